@@ -1,0 +1,89 @@
+"""One error family for everything a user can get wrong.
+
+Every error carries where it happened (``source`` file, ``line``, ``column``,
+``field``) and a ``hint`` saying how to fix it.  The CLI prints it as one line::
+
+    advisor: error: site.yaml:12: thresholds.max_wind_ms: expected a number, got 'fast' (write e.g. 4.0)
+
+and exits with status 2.  ``InsufficientData`` is the one exception that means
+"the input is well formed but cannot support a call" (exit 12).
+"""
+
+from __future__ import annotations
+
+
+class AdvisorError(Exception):
+    """Base class: a problem with the user's input, reported on one line."""
+
+    def __init__(
+        self,
+        message: str,
+        *,
+        source: str | None = None,
+        line: int | None = None,
+        column: int | None = None,
+        field: str | None = None,
+        hint: str | None = None,
+    ) -> None:
+        super().__init__(message)
+        self.message = message
+        self.source = source
+        self.line = line
+        self.column = column
+        self.field = field
+        self.hint = hint
+
+    def location(self) -> str:
+        """``file:line:column`` (the parts that are known), or ``''``."""
+        parts = [str(p) for p in (self.source, self.line, self.column) if p is not None]
+        return ":".join(parts)
+
+    def one_line(self) -> str:
+        """The whole error as a single line, without the ``advisor: error:`` prefix."""
+        text = self.message
+        if self.field:
+            text = f"{self.field}: {text}"
+        loc = self.location()
+        if loc:
+            text = f"{loc}: {text}"
+        if self.hint:
+            text = f"{text} ({self.hint})"
+        return " ".join(text.split())
+
+    def __str__(self) -> str:  # pragma: no cover - trivial
+        return self.one_line()
+
+
+class UsageError(AdvisorError):
+    """A command-line argument is malformed."""
+
+
+class FeedError(AdvisorError):
+    """A weather feed cannot be read or mapped."""
+
+
+class SiteError(AdvisorError):
+    """A site configuration file is invalid."""
+
+
+class RegistryError(AdvisorError):
+    """The reference-scan registry is invalid."""
+
+
+class RulesError(AdvisorError):
+    """A rule file is invalid."""
+
+
+class ConditionError(RulesError):
+    """A rule condition or expression does not parse or does not type-check.
+
+    ``column`` is the 1-based character position within the condition text.
+    """
+
+
+class ModelError(AdvisorError):
+    """A model file is malformed, truncated or does not match the features."""
+
+
+class InsufficientData(AdvisorError):
+    """Input is well formed but too little or too poor to support a call (exit 12)."""

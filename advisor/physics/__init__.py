@@ -1,0 +1,11 @@
+"""Physics: vectorised numpy formulas the advisor's features and decision are built from.
+
+    sun       solar elevation/azimuth, hours since sunset/sunrise     (NOAA / Meeus ch. 25)
+    moisture  saturation vapour pressure, dew point, RH, spread        (Magnus, Alduchov & Eskridge 1996)
+    aperture  wavelength, Ruze efficiency, surface tolerance, beam     (Ruze 1966)
+    sky       sidereal time, precession, source elevation/visibility   (Meeus ch. 12, 21)
+
+Every function is pure: it takes scalars or numpy arrays (times as numpy ``datetime64``
+or pandas UTC datetimes) and returns numpy arrays; no files, clock or terminal.
+Import the submodules directly, e.g. ``from advisor.physics import sun``.
+"""

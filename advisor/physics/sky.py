@@ -1,0 +1,239 @@
+"""Sky: sidereal time, precession, and where a J2000 source is seen from the site.
+
+    gmst_deg(times_utc)                      Greenwich mean sidereal time
+    local_sidereal_time_deg(times_utc, lon)  local mean sidereal time
+    precess_j2000_to_date(ra, dec, times)    mean place of date
+    source_altaz_deg(times, ra, dec, lat, lon) -> (elevation, azimuth), shape (n_times, n_sources)
+    source_elevation_deg(...)                -> elevation only
+    minutes_above_elevation(..., min_elevation_deg) -> minutes until the source drops below
+
+Geometric positions: nutation, aberration, refraction and parallax are ignored (together
+< 0.01 deg for sources outside the solar system, refraction aside).  Longitude east-positive.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .sun import _days_since_j2000, _finish, _gmst_deg_from_days, _altaz_from_hour_angle
+
+__all__ = [
+    "SIDEREAL_RATE_DEG_PER_H",
+    "gmst_deg",
+    "local_sidereal_time_deg",
+    "precess_j2000_to_date",
+    "source_altaz_deg",
+    "source_elevation_deg",
+    "minutes_above_elevation",
+]
+
+#: Rate of change of hour angle of a fixed star [deg/h] (360.98564736629 deg per UT day,
+#: Meeus eq. 12.4), i.e. 15.041 deg/h.
+SIDEREAL_RATE_DEG_PER_H = 360.98564736629 / 24.0
+_ARCSEC = 1.0 / 3600.0
+
+
+def gmst_deg(times_utc):
+    """Greenwich mean sidereal time.
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC (taken as UT1; |UT1 - UTC| < 0.9 s).
+
+    Returns
+    -------
+    ndarray (float for scalar input)
+        GMST, 0..360. [deg]
+
+    Notes
+    -----
+    theta0 = 280.46061837 + 360.98564736629 (JD - 2451545) + 0.000387933 T^2 - T^3 / 38710000.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, eq. 12.4
+    (IAU 1982 expression).
+    """
+    return _finish(_gmst_deg_from_days(_days_since_j2000(times_utc)))
+
+
+def local_sidereal_time_deg(times_utc, longitude_deg):
+    """Local mean sidereal time.
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC.
+    longitude_deg : numeric
+        Longitude, east positive. [deg]
+
+    Returns
+    -------
+    ndarray (float for scalar input)
+        GMST + longitude, 0..360. [deg]
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12.
+    """
+    gmst = _gmst_deg_from_days(_days_since_j2000(times_utc))
+    return _finish(np.mod(gmst + np.asarray(longitude_deg, dtype=float), 360.0))
+
+
+def _precess_days(ra_deg, dec_deg, days_j2000):
+    """Rigorous precession from J2000.0 to the mean equinox of date (broadcasting)."""
+    t = np.asarray(days_j2000, dtype=float) / 36525.0
+    zeta = np.radians((2306.2181 * t + 0.30188 * t**2 + 0.017998 * t**3) * _ARCSEC)
+    z = np.radians((2306.2181 * t + 1.09468 * t**2 + 0.018203 * t**3) * _ARCSEC)
+    theta = np.radians((2004.3109 * t - 0.42665 * t**2 - 0.041833 * t**3) * _ARCSEC)
+    ra0 = np.radians(np.asarray(ra_deg, dtype=float))
+    dec0 = np.radians(np.asarray(dec_deg, dtype=float))
+    a = np.cos(dec0) * np.sin(ra0 + zeta)
+    b = np.cos(theta) * np.cos(dec0) * np.cos(ra0 + zeta) - np.sin(theta) * np.sin(dec0)
+    c = np.sin(theta) * np.cos(dec0) * np.cos(ra0 + zeta) + np.cos(theta) * np.sin(dec0)
+    ra = np.degrees(np.arctan2(a, b) + z)
+    dec = np.degrees(np.arctan2(c, np.hypot(a, b)))
+    return np.mod(ra, 360.0), dec
+
+
+def precess_j2000_to_date(ra_deg, dec_deg, times_utc):
+    """Precess mean J2000.0 equatorial coordinates to the mean equinox of date.
+
+    Parameters
+    ----------
+    ra_deg, dec_deg : numeric
+        Right ascension and declination, J2000.0. [deg]
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Epoch(s) of date, UTC (TT - UTC is negligible here); broadcast against the coordinates.
+
+    Returns
+    -------
+    ra_deg, dec_deg : ndarray (float for scalar input)
+        Mean place of date (no nutation, no aberration, no proper motion). [deg]
+
+    Notes
+    -----
+    zeta, z, theta from Meeus eq. 21.3 with the starting epoch J2000.0; the rotation from
+    eq. 21.4, declination via atan2 so it stays accurate near the poles.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 21
+    (rigorous method; IAU 1976 precession).
+    """
+    ra, dec = _precess_days(ra_deg, dec_deg, _days_since_j2000(times_utc))
+    return _finish(ra), _finish(dec)
+
+
+def _site_frame(times_utc, ra_deg, dec_deg, longitude_deg):
+    """Precessed (n, m) declination and hour angle [deg] for times (n,) and sources (m,)."""
+    days = np.atleast_1d(_days_since_j2000(times_utc)).ravel()[:, None]
+    ra = np.atleast_1d(np.asarray(ra_deg, dtype=float)).ravel()[None, :]
+    dec = np.atleast_1d(np.asarray(dec_deg, dtype=float)).ravel()[None, :]
+    ra_date, dec_date = _precess_days(ra, dec, days)
+    lst = _gmst_deg_from_days(days) + float(longitude_deg)
+    hour_angle = np.mod(lst - ra_date + 180.0, 360.0) - 180.0
+    return hour_angle, dec_date
+
+
+def source_altaz_deg(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg):
+    """Geometric elevation and azimuth of J2000 sources from a site.
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC; shape (n,) (a scalar counts as n = 1).
+    ra_deg, dec_deg : numeric
+        J2000.0 right ascension and declination of the sources; shape (m,). [deg]
+    latitude_deg : float
+        Site latitude, north positive. [deg]
+    longitude_deg : float
+        Site longitude, east positive. [deg]
+
+    Returns
+    -------
+    elevation_deg, azimuth_deg : ndarray, shape (n, m)
+        Elevation [deg]; azimuth clockwise from north, 0..360 [deg].
+
+    Notes
+    -----
+    Coordinates are precessed to the mean equinox of date (Meeus ch. 21) and the hour angle
+    taken from the local mean sidereal time (Meeus ch. 12).  Nutation (< 0.005 deg), annual
+    aberration (< 0.006 deg), diurnal aberration, polar motion and refraction are ignored.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12, 13, 21.
+    """
+    hour_angle, dec_date = _site_frame(times_utc, ra_deg, dec_deg, longitude_deg)
+    return _altaz_from_hour_angle(hour_angle, dec_date, float(latitude_deg))
+
+
+def source_elevation_deg(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg):
+    """Geometric elevation of J2000 sources from a site, shape (n_times, n_sources). [deg]
+
+    Same arguments and conventions as :func:`source_altaz_deg`.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12, 13, 21.
+    """
+    return source_altaz_deg(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg)[0]
+
+
+def minutes_above_elevation(
+    times_utc,
+    ra_deg,
+    dec_deg,
+    latitude_deg,
+    longitude_deg,
+    min_elevation_deg,
+    horizon_min=1440.0,
+):
+    """Minutes from each time until each source next drops below an elevation limit.
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC; shape (n,).
+    ra_deg, dec_deg : numeric
+        J2000.0 coordinates of the sources; shape (m,). [deg]
+    latitude_deg, longitude_deg : float
+        Site latitude (north positive) and longitude (east positive). [deg]
+    min_elevation_deg : numeric
+        Elevation limit; scalar or shape (m,) (one per source). [deg]
+    horizon_min : float, default 1440
+        Look-ahead; the result never exceeds it. [min]
+
+    Returns
+    -------
+    ndarray, shape (n, m)
+        Minutes above the limit from now on [min]: 0 where the source is below the limit now,
+        ``horizon_min`` where it stays above for the whole horizon (e.g. circumpolar above it).
+
+    Notes
+    -----
+    The source sets through elevation e at hour angle H0 with
+    cos H0 = (sin e - sin phi sin delta) / (cos phi cos delta); the time left is
+    (H0 - H) / 15.041 deg/h, H the current hour angle in -180..180 deg.  The declination is
+    held at its value now (precession over a day is < 0.2 arcsec).
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12, 13, 15, 21.
+    """
+    hour_angle, dec_date = _site_frame(times_utc, ra_deg, dec_deg, longitude_deg)
+    elevation, _az = _altaz_from_hour_angle(hour_angle, dec_date, float(latitude_deg))
+    limit = np.atleast_1d(np.asarray(min_elevation_deg, dtype=float)).ravel()[None, :]
+    phi = np.radians(float(latitude_deg))
+    dec = np.radians(dec_date)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cos_h0 = (np.sin(np.radians(limit)) - np.sin(phi) * np.sin(dec)) / (np.cos(phi) * np.cos(dec))
+    never_sets = cos_h0 < -1.0
+    h0 = np.degrees(np.arccos(np.clip(cos_h0, -1.0, 1.0)))
+    minutes = np.clip((h0 - hour_angle) / SIDEREAL_RATE_DEG_PER_H * 60.0, 0.0, None)
+    minutes = np.where(never_sets, np.inf, minutes)
+    minutes = np.where(elevation >= limit, minutes, 0.0)
+    minutes = np.minimum(minutes, float(horizon_min))
+    return np.where(np.isnan(elevation), np.nan, minutes)

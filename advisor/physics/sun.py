@@ -1,0 +1,363 @@
+"""Sun: position (elevation, azimuth) and time since the last sunset or sunrise.
+
+    elevation_deg, azimuth_deg = solar_position(times_utc, latitude_deg, longitude_deg)
+    hours = hours_since_sunset(times_utc, latitude_deg, longitude_deg)
+    hours = hours_since_sunrise(times_utc, latitude_deg, longitude_deg)
+
+The ephemeris is the low-accuracy solar theory of Meeus (ch. 25), the one behind the NOAA
+solar calculator (about 0.01 deg).  The hour angle comes from the apparent sidereal time
+(Meeus ch. 12 with the main nutation term), so position and sunrise/sunset share one model.
+Longitude is east-positive (west negative); azimuth is clockwise from north, 0..360 deg.
+Times are UTC; UTC is used for both UT1 (|UT1 - UTC| < 0.9 s) and TT (TT - UTC ~ 69 s), which
+moves the sun by less than 0.005 deg.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["solar_position", "hours_since_sunset", "hours_since_sunrise"]
+
+#: Standard altitude of the sun's upper limb at rise/set: -(34' refraction + 16' semi-diameter)
+#: [deg] (Meeus ch. 15).
+SUNRISE_SUNSET_ALTITUDE_DEG = -0.833
+
+_J2000_NS = np.datetime64("2000-01-01T12:00:00", "ns")
+_NS_PER_DAY = 86_400e9
+_JD_J2000 = 2451545.0
+#: Equatorial horizontal parallax of the sun at 1 au [deg] (Meeus ch. 40: 8.794 arcsec).
+_SUN_PARALLAX_1AU_DEG = 8.794 / 3600.0
+#: Sidereal rotation of the Earth [deg of hour angle per day of UT] (Meeus eq. 12.4).
+_SIDEREAL_DEG_PER_DAY = 360.98564736629
+#: Days of search back from each time for the last sunset/sunrise.
+_MAX_LOOKBACK_DAYS = 2.0
+
+
+# --------------------------------------------------------------------------------------------
+# time handling (shared with sky.py)
+# --------------------------------------------------------------------------------------------
+def _as_datetime64_ns(times_utc) -> np.ndarray:
+    """UTC times as a naive ``datetime64[ns]`` array (0-d for a scalar), NaT kept.
+
+    Accepts numpy datetime64 (scalar or array, read as UTC), pandas ``DatetimeIndex`` /
+    ``Series`` / ``Timestamp`` (tz-aware: converted to UTC; naive: read as UTC), Python
+    ``datetime`` and ISO 8601 strings.
+    """
+    if isinstance(times_utc, pd.Series):
+        values = pd.to_datetime(times_utc, utc=True).dt.tz_localize(None)
+        return values.to_numpy(dtype="datetime64[ns]")
+    if isinstance(times_utc, pd.Index):
+        return pd.to_datetime(times_utc, utc=True).tz_localize(None).to_numpy(dtype="datetime64[ns]")
+    if isinstance(times_utc, (pd.Timestamp, _dt.datetime, str)):
+        stamp = pd.Timestamp(times_utc)
+        if stamp is pd.NaT:
+            return np.array(np.datetime64("NaT", "ns"))
+        if stamp.tzinfo is not None:
+            stamp = stamp.tz_convert("UTC").tz_localize(None)
+        return np.array(stamp.to_datetime64(), dtype="datetime64[ns]")
+    arr = np.asarray(times_utc)
+    if arr.dtype.kind == "M":
+        return arr.astype("datetime64[ns]")
+    # objects / strings, possibly with offsets: let pandas parse, then restore the shape
+    flat = pd.to_datetime(pd.Index(arr.ravel()), utc=True).tz_localize(None)
+    return flat.to_numpy(dtype="datetime64[ns]").reshape(arr.shape)
+
+
+def _days_since_j2000(times_utc) -> np.ndarray:
+    """Days since J2000.0 (2000-01-01 12:00) of UTC times [d]; NaN for NaT."""
+    arr = _as_datetime64_ns(times_utc)
+    nat = np.isnat(arr)
+    delta_ns = np.where(nat, np.timedelta64(0, "ns"), arr - _J2000_NS).astype(np.int64)
+    days = delta_ns / _NS_PER_DAY
+    return np.where(nat, np.nan, days)
+
+
+def _to_julian_day(times_utc) -> np.ndarray:
+    """Julian day of UTC times [d]; NaN for NaT (Meeus ch. 7)."""
+    return _JD_J2000 + _days_since_j2000(times_utc)
+
+
+def _finish(x):
+    """Return a Python float for a 0-d result, the array otherwise."""
+    x = np.asarray(x, dtype=float)
+    return float(x) if x.ndim == 0 else x
+
+
+# --------------------------------------------------------------------------------------------
+# ephemeris
+# --------------------------------------------------------------------------------------------
+def _gmst_deg_from_days(days_j2000: np.ndarray) -> np.ndarray:
+    """Greenwich mean sidereal time [deg, 0..360] from UT days since J2000.0.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, eq. 12.4
+    (IAU 1982 expression).
+    """
+    d = np.asarray(days_j2000, dtype=float)
+    t = d / 36525.0
+    # 360.98564736629 d = 360 d + 0.98564736629 d; keep the large part exact modulo 360
+    whole = np.floor(d)
+    theta = (
+        280.46061837
+        + 360.0 * (d - whole)
+        + 0.98564736629 * d
+        + t * t * (0.000387933 - t / 38710000.0)
+    )
+    return np.mod(theta, 360.0)
+
+
+def _sun_equatorial(days_j2000: np.ndarray):
+    """Apparent right ascension, declination, radius vector and equation of the equinoxes.
+
+    Returns ``(ra_deg, dec_deg, radius_au, eqeq_deg)``, each the shape of the input.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., ch. 25 (low accuracy, eqs.
+    25.2-25.8) and ch. 22 (main nutation term, -17.20" sin Omega).
+    NOAA Global Monitoring Laboratory, Solar Calculator (same expressions).
+    """
+    jc = np.asarray(days_j2000, dtype=float) / 36525.0
+    mean_long = np.mod(280.46646 + jc * (36000.76983 + 0.0003032 * jc), 360.0)
+    mean_anom = np.radians(357.52911 + jc * (35999.05029 - 0.0001537 * jc))
+    ecc = 0.016708634 - jc * (0.000042037 + 0.0000001267 * jc)
+    centre = (
+        np.sin(mean_anom) * (1.914602 - jc * (0.004817 + 0.000014 * jc))
+        + np.sin(2.0 * mean_anom) * (0.019993 - 0.000101 * jc)
+        + np.sin(3.0 * mean_anom) * 0.000289
+    )
+    true_long = mean_long + centre
+    true_anom = mean_anom + np.radians(centre)
+    radius_au = 1.000001018 * (1.0 - ecc * ecc) / (1.0 + ecc * np.cos(true_anom))
+    omega = np.radians(125.04 - 1934.136 * jc)
+    nutation_long_deg = -0.00478 * np.sin(omega)
+    app_long = np.radians(true_long - 0.00569 + nutation_long_deg)
+    obliq0 = 23.0 + (26.0 + (21.448 - jc * (46.8150 + jc * (0.00059 - jc * 0.001813))) / 60.0) / 60.0
+    obliq = np.radians(obliq0 + 0.00256 * np.cos(omega))
+    ra = np.degrees(np.arctan2(np.cos(obliq) * np.sin(app_long), np.cos(app_long)))
+    dec = np.degrees(np.arcsin(np.sin(obliq) * np.sin(app_long)))
+    eqeq = nutation_long_deg * np.cos(obliq)
+    return np.mod(ra, 360.0), dec, radius_au, eqeq
+
+
+def _sun_hour_angle_dec(days_j2000, longitude_deg):
+    """Local apparent hour angle [deg, -180..180) and declination [deg] of the sun."""
+    ra, dec, radius_au, eqeq = _sun_equatorial(days_j2000)
+    hour_angle = _gmst_deg_from_days(days_j2000) + eqeq + longitude_deg - ra
+    return np.mod(hour_angle + 180.0, 360.0) - 180.0, dec, radius_au
+
+
+def _refraction_deg(elevation_deg, pressure_hpa=1010.0, temp_c=10.0):
+    """Atmospheric refraction to add to a true elevation [deg].
+
+    The NOAA solar calculator's piecewise expression (continuous, defined at every elevation),
+    scaled by (P / 1010 hPa) (283 K / (273 K + T)) as in Meeus (1998) ch. 16.
+
+    References
+    ----------
+    NOAA Global Monitoring Laboratory, Solar Calculator, "Approximate atmospheric refraction".
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., ch. 16.
+    """
+    e = np.asarray(elevation_deg, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        tan_e = np.tan(np.radians(e))
+        high = 58.1 / tan_e - 0.07 / tan_e**3 + 0.000086 / tan_e**5
+        low = 1735.0 + e * (-518.2 + e * (103.4 + e * (-12.79 + e * 0.711)))
+        below = -20.774 / tan_e
+        arcsec = np.where(e > 5.0, high, np.where(e > -0.575, low, below))
+    scale = (np.asarray(pressure_hpa, dtype=float) / 1010.0) * (283.0 / (273.0 + np.asarray(temp_c, dtype=float)))
+    return arcsec / 3600.0 * scale
+
+
+def _altaz_from_hour_angle(hour_angle_deg, dec_deg, latitude_deg):
+    """Geometric elevation and azimuth (from north, clockwise) [deg] (Meeus eq. 13.5-13.6)."""
+    h = np.radians(hour_angle_deg)
+    d = np.radians(dec_deg)
+    phi = np.radians(latitude_deg)
+    sin_e = np.sin(phi) * np.sin(d) + np.cos(phi) * np.cos(d) * np.cos(h)
+    elevation = np.degrees(np.arcsin(np.clip(sin_e, -1.0, 1.0)))
+    azimuth = np.degrees(
+        np.arctan2(-np.cos(d) * np.sin(h), np.sin(d) * np.cos(phi) - np.cos(d) * np.cos(h) * np.sin(phi))
+    )
+    return elevation, np.mod(azimuth, 360.0)
+
+
+# --------------------------------------------------------------------------------------------
+# public API
+# --------------------------------------------------------------------------------------------
+def solar_position(
+    times_utc,
+    latitude_deg,
+    longitude_deg,
+    refraction: bool = True,
+    pressure_hpa=1010.0,
+    temp_c=10.0,
+):
+    """Topocentric elevation and azimuth of the sun's centre.
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC (tz-aware converted, naive read as UTC).
+    latitude_deg : numeric
+        Geodetic latitude, north positive. [deg]
+    longitude_deg : numeric
+        Longitude, east positive (west negative). [deg]
+    refraction : bool, default True
+        Return the apparent (refraction-corrected) elevation.
+    pressure_hpa : numeric, default 1010
+        Station air pressure for the refraction. [hPa]
+    temp_c : numeric, default 10
+        Air temperature for the refraction. [C]
+
+    Returns
+    -------
+    elevation_deg, azimuth_deg : ndarray (float for scalar input)
+        Elevation above the horizon [deg]; azimuth clockwise from north, 0..360 [deg].
+        NaN where the time is NaT.
+
+    Notes
+    -----
+    Apparent RA/Dec from Meeus ch. 25 (low accuracy, ~0.01 deg); hour angle from the apparent
+    sidereal time; elevation lowered by the solar parallax 8.794"/R cos(e) (topocentric);
+    refraction from the NOAA expression scaled by pressure and temperature.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12, 13, 16, 25.
+    NOAA Global Monitoring Laboratory, Solar Calculator.
+    Reda, I., Andreas, A. (2004). Solar Position Algorithm for Solar Radiation Applications,
+    NREL/TP-560-34302 (worked example used as a check).
+    """
+    days = _days_since_j2000(times_utc)
+    hour_angle, dec, radius_au = _sun_hour_angle_dec(days, np.asarray(longitude_deg, dtype=float))
+    elevation, azimuth = _altaz_from_hour_angle(hour_angle, dec, latitude_deg)
+    elevation = elevation - (_SUN_PARALLAX_1AU_DEG / radius_au) * np.cos(np.radians(elevation))
+    if refraction:
+        elevation = elevation + _refraction_deg(elevation, pressure_hpa, temp_c)
+    return _finish(elevation), _finish(azimuth)
+
+
+def _solar_events_days(day_numbers, latitude_deg, longitude_deg, altitude_deg, sign):
+    """Rise (sign=-1) or set (sign=+1) of the sun on given local mean solar days.
+
+    ``day_numbers`` counts local mean solar days from J2000.0 (day ``n`` has its mean noon at
+    ``n - longitude/360`` days since J2000.0).  Returns days since J2000.0 of the event, NaN
+    where the sun does not cross ``altitude_deg`` that day (polar day or night).
+
+    Solar transit is found from the hour angle, then the event from the hour angle H0 with
+    cos H0 = (sin h0 - sin phi sin delta) / (cos phi cos delta), each refined by a few
+    fixed-point steps at the event time (Meeus ch. 15).
+    """
+    lon = np.asarray(longitude_deg, dtype=float)
+    phi = np.radians(latitude_deg)
+    sin_h0 = np.sin(np.radians(altitude_deg))
+    event = np.asarray(day_numbers, dtype=float) - lon / 360.0
+    for _ in range(3):  # transit: hour angle 0
+        hour_angle, _dec, _r = _sun_hour_angle_dec(event, lon)
+        event = event - hour_angle / 360.0
+    crosses = np.ones(event.shape, dtype=bool)
+    for _ in range(4):  # event: hour angle = sign * H0
+        hour_angle, dec, _r = _sun_hour_angle_dec(event, lon)
+        d = np.radians(dec)
+        cos_h0 = (sin_h0 - np.sin(phi) * np.sin(d)) / (np.cos(phi) * np.cos(d))
+        crosses = np.abs(cos_h0) <= 1.0
+        target = sign * np.degrees(np.arccos(np.clip(cos_h0, -1.0, 1.0)))
+        step = np.mod(target - hour_angle + 180.0, 360.0) - 180.0
+        event = event + step / 360.0
+    return np.where(crosses, event, np.nan)
+
+
+def _hours_since_event(times_utc, latitude_deg, longitude_deg, sign):
+    days = _days_since_j2000(times_utc)
+    lat, lon, days = np.broadcast_arrays(
+        np.asarray(latitude_deg, dtype=float), np.asarray(longitude_deg, dtype=float), days
+    )
+    shape = days.shape
+    days, lat, lon = days.ravel(), lat.ravel(), lon.ravel()
+    out = np.full(days.shape, np.nan)
+    ok = np.isfinite(days) & np.isfinite(lat) & np.isfinite(lon)
+    if ok.any():
+        today = np.floor(days[ok] + lon[ok] / 360.0 + 0.5)
+        # candidate days: today, yesterday, the day before; computed once per distinct (day, site)
+        cand_day = (today[:, None] - np.arange(3.0)[None, :]).ravel()
+        cand_lat = np.repeat(lat[ok], 3)
+        cand_lon = np.repeat(lon[ok], 3)
+        if np.all(cand_lat == cand_lat[0]) and np.all(cand_lon == cand_lon[0]):  # one site: fast path
+            day_keys, inverse = np.unique(cand_day, return_inverse=True)
+            keys = np.column_stack([day_keys, np.full_like(day_keys, cand_lat[0]), np.full_like(day_keys, cand_lon[0])])
+        else:
+            keys, inverse = np.unique(np.column_stack([cand_day, cand_lat, cand_lon]), axis=0, return_inverse=True)
+        events = _solar_events_days(keys[:, 0], keys[:, 1], keys[:, 2], SUNRISE_SUNSET_ALTITUDE_DEG, sign)
+        cand = events[inverse.ravel()].reshape(-1, 3)
+        elapsed = days[ok][:, None] - cand
+        with np.errstate(invalid="ignore"):
+            usable = (elapsed >= 0.0) & (elapsed <= _MAX_LOOKBACK_DAYS)
+        elapsed = np.where(usable, elapsed, np.inf)
+        best = elapsed.min(axis=1)
+        out[ok] = np.where(np.isfinite(best), best * 24.0, np.nan)
+    return _finish(out.reshape(shape))
+
+
+def hours_since_sunset(times_utc, latitude_deg, longitude_deg):
+    """Hours since the most recent sunset at or before each time.
+
+    Sunset is when the sun's geometric (geocentric) altitude falls through the standard
+    -0.833 deg (upper limb on the refracted horizon).
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC.
+    latitude_deg : numeric
+        Latitude, north positive. [deg]
+    longitude_deg : numeric
+        Longitude, east positive. [deg]
+
+    Returns
+    -------
+    ndarray (float for scalar input)
+        Elapsed time since the last sunset [h]; NaN if there was none in the previous 2 days
+        (polar day or night) or the time is NaT.
+
+    Notes
+    -----
+    Computed per local solar day from the transit time and the sunset hour angle
+    (cos H0 = (sin h0 - sin phi sin delta) / (cos phi cos delta)), not by searching a grid.
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 15.
+    """
+    return _hours_since_event(times_utc, latitude_deg, longitude_deg, +1.0)
+
+
+def hours_since_sunrise(times_utc, latitude_deg, longitude_deg):
+    """Hours since the most recent sunrise at or before each time.
+
+    Same conventions as :func:`hours_since_sunset` (standard altitude -0.833 deg); NaN if no
+    sunrise in the previous 2 days.
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC.
+    latitude_deg : numeric
+        Latitude, north positive. [deg]
+    longitude_deg : numeric
+        Longitude, east positive. [deg]
+
+    Returns
+    -------
+    ndarray (float for scalar input)
+        Elapsed time since the last sunrise [h].
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 15.
+    """
+    return _hours_since_event(times_utc, latitude_deg, longitude_deg, -1.0)
