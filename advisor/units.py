@@ -45,7 +45,7 @@ def _add(name: str, dimension: str, scale: float, offset: float = 0.0, aliases: 
 
 
 # speed → m/s
-_add("m/s", "speed", 1.0, aliases=("ms", "m s-1", "mps"))
+_add("m/s", "speed", 1.0, aliases=("m s-1", "mps"))
 _add("kn", "speed", 1852.0 / 3600.0, aliases=("kt", "kts", "knot", "knots"))
 _add("mph", "speed", 0.44704)
 _add("km/h", "speed", 1000.0 / 3600.0, aliases=("kmh", "kph"))

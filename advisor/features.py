@@ -1,0 +1,217 @@
+"""Features: every number the rules and the decision look at, one row per evaluation time.
+
+``compute_features(frame, times_utc, site, registry, freq_ghz)`` takes the canonical feed frame
+(only the rows that may be used: observed ones for a check, observed + forecast for an outlook)
+and any array of evaluation times, and returns a DataFrame with one row per time and one column
+per entry of :data:`FEATURES` (plus ``time`` and ``calibrator_name``).  Weather values are the
+last good sample at or before each time; wind statistics are over the 10 minutes before it.
+
+:data:`FEATURES` is the single list of feature names, units and meanings: the rule compiler,
+the lint, ``rules features`` and the JSON output all read it.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, wavelength_mm
+from .physics.sky import minutes_above_elevation, source_elevation_deg
+from .physics.sun import hours_since_sunrise, hours_since_sunset, solar_position
+from .references import Registry, reference_in_force
+from .rules.condition import FeatureSpec
+from .site import Site
+
+WIND_WINDOW = "10min"
+TEMP_RATE_WINDOW_MIN = 60.0
+STANDARD_SUNSET_ELEVATION_DEG = -0.833
+
+_F = FeatureSpec
+#: Every feature a rule may use: name, unit (advisor.units, "flag" or "1"), meaning.
+FEATURES: tuple[FeatureSpec, ...] = (
+    # wind
+    _F("wind_mean_ms", "m/s", "mean wind over the last 10 minutes"),
+    _F("wind_gust_ms", "m/s", "highest gust over the last 10 minutes"),
+    _F("gust_factor", "1", "gust divided by mean wind (turbulence); NaN below 0.5 m/s mean"),
+    _F("wind_pointing_error_arcsec", "arcsec", "expected wind-induced pointing error (site figure, scales with gust²)"),
+    _F("pointing_beam_fraction", "1", "wind pointing error as a fraction of the beam FWHM"),
+    # moisture
+    _F("air_temp_c", "degC", "air temperature"),
+    _F("rel_humidity_pct", "%", "relative humidity"),
+    _F("dew_point_c", "degC", "dew point (Magnus, Alduchov & Eskridge 1996)"),
+    _F("dew_point_spread_c", "delta_degC", "air temperature minus dew point"),
+    _F("visibility_m", "m", "visibility (NaN if the feed has none)"),
+    _F("precip_mm_h", "mm/h", "precipitation rate (NaN if the feed has none)"),
+    _F("pressure_hpa", "hPa", "station pressure (NaN if the feed has none)"),
+    _F("solar_wm2", "W/m2", "global irradiance (NaN if the feed has none)"),
+    _F("fog", "flag", "fog likely: small dew-point spread with high RH, or visibility below the site limit"),
+    _F("precipitation", "flag", "precipitation at or above the site threshold"),
+    # thermal state
+    _F("sun_elevation_deg", "deg", "apparent sun elevation"),
+    _F("sun_azimuth_deg", "deg", "sun azimuth, clockwise from north"),
+    _F("is_night", "flag", "sun below the horizon (elevation < -0.833 deg)"),
+    _F("sun_transition", "flag", "sun between -6 and +15 deg: the structure deforms fastest"),
+    _F("hours_since_sunset", "h", "hours since the most recent sunset"),
+    _F("hours_since_sunrise", "h", "hours since the most recent sunrise"),
+    _F("air_temp_rate_c_per_h", "degC/h", "air-temperature change over the last hour"),
+    # reference scan
+    _F("has_reference", "flag", "a reference scan is in force"),
+    _F("reference_age_h", "h", "age of the reference scan in force (NaN without one)"),
+    _F("reference_temp_delta_c", "delta_degC", "|air temperature - temperature at the reference scan|"),
+    # calibrators
+    _F("calibrator_elevation_deg", "deg", "elevation of the best calibrator now (NaN if none usable)"),
+    _F("calibrator_minutes_up", "min", "minutes the best calibrator stays above the minimum elevation"),
+    _F("calibrator_available", "flag", "a calibrator stays usable for the whole astronomical measurement"),
+    # target and site figures
+    _F("freq_ghz", "GHz", "target observing frequency"),
+    _F("wavelength_mm", "mm", "target wavelength"),
+    _F("required_surface_rms_um", "um", "lambda/16 surface requirement at the target frequency"),
+    _F("beam_fwhm_arcsec", "arcsec", "beam FWHM at the target frequency (1.2 lambda/D)"),
+    _F("hf_wind_limit_ms", "m/s", "site's high-frequency mean-wind limit"),
+    _F("high_frequency_min_ghz", "GHz", "site's lowest frequency counted as high-frequency"),
+    _F("scan_duration_min", "min", "duration of a laser scan (site figure)"),
+    _F("astronomical_duration_min", "min", "duration of an astronomical measurement (site figure)"),
+    # data quality
+    _F("data_age_min", "min", "age of the last good weather sample"),
+    _F("data_ok", "flag", "weather data fresh, plausible and complete"),
+)
+CATALOGUE: dict[str, FeatureSpec] = {f.name: f for f in FEATURES}
+FLAG_NAMES = tuple(f.name for f in FEATURES if f.unit == "flag")
+
+
+def _ns(times) -> np.ndarray:
+    """Times (DatetimeIndex/Series/datetime64) → int64 nanoseconds since the epoch, UTC."""
+    if isinstance(times, pd.Series):
+        times = pd.DatetimeIndex(times)
+    if isinstance(times, pd.DatetimeIndex):
+        if times.tz is not None:
+            times = times.tz_convert("UTC").tz_localize(None)
+        return times.as_unit("ns").asi8
+    return np.asarray(times, dtype="datetime64[ns]").astype(np.int64)
+
+
+def _rolling(good: pd.DataFrame) -> pd.DataFrame:
+    """10-minute wind statistics and the one-hour temperature rate at each good sample."""
+    series = good.set_index("time")
+    out = pd.DataFrame(index=series.index)
+    out["wind_mean_ms"] = series["wind_mean_ms"].rolling(WIND_WINDOW).mean()
+    out["wind_gust_ms"] = series["wind_gust_ms"].rolling(WIND_WINDOW).max()
+    t_ns = _ns(series.index)
+    temp = series["air_temp_c"].to_numpy()
+    back = np.searchsorted(t_ns, t_ns - int(TEMP_RATE_WINDOW_MIN * 60e9), side="left")
+    dt_h = (t_ns - t_ns[back]) / 3.6e12
+    with np.errstate(invalid="ignore", divide="ignore"):
+        rate = (temp - temp[back]) / dt_h
+    # need at least half the window of history for a meaningful rate
+    out["air_temp_rate_c_per_h"] = np.where(dt_h >= 0.5 * TEMP_RATE_WINDOW_MIN / 60.0, rate, np.nan)
+    return out
+
+
+def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry,
+                     freq_ghz: float) -> pd.DataFrame:
+    """Features at each of ``times_utc`` from the canonical feed ``frame`` (see module doc)."""
+    t_ns = _ns(times_utc)
+    n = len(t_ns)
+    times_index = pd.DatetimeIndex(t_ns.astype("datetime64[ns]")).tz_localize("UTC")
+    th = site.thresholds
+    out: dict[str, np.ndarray] = {}
+
+    # --- weather at each time: last good sample at or before it --------------------------
+    all_ns = _ns(frame["time"])
+    good_mask = frame["good"].to_numpy(dtype=bool)
+    good = frame[good_mask]
+    good_ns = all_ns[good_mask]
+    pos = np.searchsorted(good_ns, t_ns, side="right") - 1
+    has = pos >= 0
+    safe = np.clip(pos, 0, None)
+    rolled = _rolling(good) if len(good) else None
+
+    def take(values: np.ndarray) -> np.ndarray:
+        if len(values) == 0:
+            return np.full(n, np.nan)
+        return np.where(has, values[safe], np.nan)
+
+    for name in ("air_temp_c", "rel_humidity_pct", "dew_point_c", "visibility_m", "precip_mm_h",
+                 "pressure_hpa", "solar_wm2"):
+        col = good[name].to_numpy(dtype=float) if name in good else np.array([])
+        out[name] = take(col) if len(col) else np.full(n, np.nan)
+    for name in ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h"):
+        out[name] = take(rolled[name].to_numpy(dtype=float)) if rolled is not None else np.full(n, np.nan)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out["gust_factor"] = np.where(out["wind_mean_ms"] >= 0.5, out["wind_gust_ms"] / out["wind_mean_ms"], np.nan)
+
+    # --- data quality --------------------------------------------------------------------
+    age_min = np.where(has, (t_ns - good_ns[safe]) / 6e10, np.nan) if len(good_ns) else np.full(n, np.nan)
+    out["data_age_min"] = age_min
+    latest = np.searchsorted(all_ns, t_ns, side="right") - 1
+    latest_ok = np.where(latest >= 0, good_mask[np.clip(latest, 0, None)] if len(good_mask) else False, False)
+    out["data_ok"] = has & (age_min <= site.feed.max_feed_age_min) & latest_ok & np.isfinite(out["wind_mean_ms"])
+
+    # --- moisture ------------------------------------------------------------------------
+    out["dew_point_spread_c"] = out["air_temp_c"] - out["dew_point_c"]
+    out["fog"] = ((out["dew_point_spread_c"] < th.fog_spread_c) & (out["rel_humidity_pct"] >= th.fog_rel_humidity_pct)) | (
+        out["visibility_m"] < th.fog_visibility_m)
+    out["precipitation"] = out["precip_mm_h"] >= th.precip_mm_h
+
+    # --- sun and thermal state -----------------------------------------------------------
+    sun_el, sun_az = solar_position(times_index, site.latitude_deg, site.longitude_deg)
+    out["sun_elevation_deg"] = np.asarray(sun_el, dtype=float)
+    out["sun_azimuth_deg"] = np.asarray(sun_az, dtype=float)
+    out["is_night"] = out["sun_elevation_deg"] < STANDARD_SUNSET_ELEVATION_DEG
+    out["sun_transition"] = (out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0)
+    out["hours_since_sunset"] = np.asarray(hours_since_sunset(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
+    out["hours_since_sunrise"] = np.asarray(hours_since_sunrise(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
+
+    # --- reference scan ------------------------------------------------------------------
+    ref_ns, ref_temp = reference_in_force(registry, t_ns)
+    out["has_reference"] = ref_ns >= 0
+    out["reference_age_h"] = np.where(ref_ns >= 0, (t_ns - ref_ns) / 3.6e12, np.nan)
+    out["reference_temp_delta_c"] = np.abs(out["air_temp_c"] - ref_temp)
+
+    # --- calibrators ---------------------------------------------------------------------
+    astro = site.astronomical
+    names = np.array([c.name for c in site.calibrators] + [""], dtype=object)
+    if site.calibrators:
+        ra = np.array([c.ra_deg for c in site.calibrators])
+        dec = np.array([c.dec_deg for c in site.calibrators])
+        el = np.asarray(source_elevation_deg(times_index, ra, dec, site.latitude_deg, site.longitude_deg)).reshape(n, -1)
+        mins = np.asarray(minutes_above_elevation(times_index, ra, dec, site.latitude_deg, site.longitude_deg,
+                                                  astro.min_calibrator_elevation_deg)).reshape(n, -1)
+        usable = (el >= astro.min_calibrator_elevation_deg) & (el <= astro.max_calibrator_elevation_deg)
+        score = np.where(usable, mins, -1.0)
+        best = np.argmax(score, axis=1)
+        any_usable = usable.any(axis=1)
+        rows = np.arange(n)
+        out["calibrator_elevation_deg"] = np.where(any_usable, el[rows, best], np.nan)
+        out["calibrator_minutes_up"] = np.where(any_usable, mins[rows, best], 0.0)
+        cal_name = np.where(any_usable, names[best], "")
+    else:
+        out["calibrator_elevation_deg"] = np.full(n, np.nan)
+        out["calibrator_minutes_up"] = np.zeros(n)
+        cal_name = np.full(n, "", dtype=object)
+    out["calibrator_available"] = out["calibrator_minutes_up"] >= astro.duration_min
+
+    # --- target and site figures ---------------------------------------------------------
+    beam = float(beam_fwhm_arcsec(freq_ghz, site.dish_diameter_m))
+    out["freq_ghz"] = np.full(n, float(freq_ghz))
+    out["wavelength_mm"] = np.full(n, float(wavelength_mm(freq_ghz)))
+    out["required_surface_rms_um"] = np.full(n, float(required_surface_rms_um(freq_ghz)))
+    out["beam_fwhm_arcsec"] = np.full(n, beam)
+    out["hf_wind_limit_ms"] = np.full(n, th.high_frequency_wind_limit_ms)
+    out["high_frequency_min_ghz"] = np.full(n, th.high_frequency_min_ghz)
+    out["scan_duration_min"] = np.full(n, site.scan.duration_min)
+    out["astronomical_duration_min"] = np.full(n, astro.duration_min)
+    out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
+    out["pointing_beam_fraction"] = out["wind_pointing_error_arcsec"] / beam
+
+    result = pd.DataFrame({"time": times_index})
+    for spec in FEATURES:
+        values = out[spec.name]
+        result[spec.name] = np.asarray(values, dtype=bool) if spec.unit == "flag" else np.asarray(values, dtype=float)
+    result["calibrator_name"] = cal_name
+    return result
+
+
+def columns_of(features: pd.DataFrame) -> dict[str, np.ndarray]:
+    """The feature columns as a name → numpy array mapping (what compiled conditions read)."""
+    return {spec.name: features[spec.name].to_numpy() for spec in FEATURES}

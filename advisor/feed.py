@@ -1,0 +1,292 @@
+"""Weather feed reader: a logger's CSV or JSON Lines file → the canonical frame.
+
+``read_feed(path, layout)`` returns a :class:`Feed`: a frame sorted by UTC time with the
+canonical columns of DESIGN §4 in SI units, a ``kind`` column (``observed``/``forecast``), per-row
+quality flags (``q_implausible``, ``q_gap_before``, ``q_missing``) and a :class:`FeedQuality`
+summary.  Duplicate timestamps are dropped (first kept) and out-of-order rows are sorted, both
+counted.  Implausible values are set to NaN and their row flagged, so no statistic ever uses
+them.  ``canonical_frame(df, layout)`` does the same for an in-memory table (tests, forecasts).
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from . import units
+from .errors import FeedError
+from .physics.moisture import dew_point_c
+from .site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
+
+MAX_FEED_BYTES = 2_000_000_000
+
+#: Physically plausible range of each canonical column [its SI unit] (DESIGN §4).
+PLAUSIBLE_RANGE = {
+    "wind_mean_ms": (0.0, 75.0),
+    "wind_gust_ms": (0.0, 100.0),
+    "air_temp_c": (-60.0, 60.0),
+    "rel_humidity_pct": (0.0, 100.5),
+    "dew_point_c": (-80.0, 60.0),
+    "pressure_hpa": (300.0, 1100.0),
+    "precip_mm_h": (0.0, 500.0),
+    "visibility_m": (0.0, 1_000_000.0),
+    "solar_wm2": (-20.0, 1500.0),
+}
+
+_OFFSET = re.compile(r"(?:Z|[+-]\d\d:?\d\d)$", re.IGNORECASE)
+
+
+@dataclass(frozen=True)
+class FeedQuality:
+    """Counts of what the reader found wrong or odd in a feed."""
+
+    n_rows: int
+    n_duplicates: int
+    n_out_of_order: int
+    n_gaps: int
+    n_implausible: int
+    n_missing: int
+    first_time_utc: pd.Timestamp | None
+    last_time_utc: pd.Timestamp | None
+
+    def as_dict(self) -> dict:
+        return {
+            "rows": self.n_rows,
+            "duplicates": self.n_duplicates,
+            "out_of_order": self.n_out_of_order,
+            "gaps": self.n_gaps,
+            "implausible_rows": self.n_implausible,
+            "missing_rows": self.n_missing,
+            "first_time_utc": _iso(self.first_time_utc),
+            "last_time_utc": _iso(self.last_time_utc),
+        }
+
+
+@dataclass(frozen=True)
+class Feed:
+    """A canonical feed: ``frame`` (UTC-sorted, SI) plus its quality summary and origin."""
+
+    frame: pd.DataFrame
+    quality: FeedQuality
+    source: str
+
+
+def _iso(ts: pd.Timestamp | None) -> str | None:
+    return None if ts is None or pd.isna(ts) else ts.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def _read_table(path: Path) -> pd.DataFrame:
+    source = str(path)
+    try:
+        size = path.stat().st_size
+    except FileNotFoundError:
+        raise FeedError("feed file not found", source=source, hint="check the --feed path") from None
+    except OSError as exc:
+        raise FeedError(f"cannot read feed: {exc.strerror}", source=source) from None
+    if path.is_dir():
+        raise FeedError("is a directory, expected a CSV or JSON Lines file", source=source)
+    if size == 0:
+        raise FeedError("feed file is empty", source=source, hint="expected a header line and data rows")
+    if size > MAX_FEED_BYTES:
+        raise FeedError(f"feed is {size / 1e9:.1f} GB, above the 2 GB limit", source=source,
+                        hint="split the archive by month")
+    with path.open("rb") as fh:
+        head = fh.read(4096)
+    if b"\x00" in head:
+        raise FeedError("binary content (NUL bytes)", source=source, hint="expected CSV or JSON Lines text")
+    try:
+        head.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        if exc.start < len(head) - 4:
+            raise FeedError("not UTF-8 text", source=source, hint="save the feed as UTF-8 CSV") from None
+    is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or head.lstrip().startswith(b"{")
+    try:
+        if is_jsonl:
+            return _read_jsonl(path)
+        return pd.read_csv(path, dtype=str, keep_default_na=False, na_values=["", "NaN", "nan", "NA", "null"],
+                           skipinitialspace=True)
+    except FeedError:
+        raise
+    except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
+        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        m = re.search(r"line (\d+)", msg)
+        raise FeedError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
+                        hint="check delimiters and quoting") from None
+    except pd.errors.EmptyDataError:
+        raise FeedError("feed has no header or rows", source=source) from None
+
+
+def _read_jsonl(path: Path) -> pd.DataFrame:
+    rows = []
+    with path.open("r", encoding="utf-8") as fh:
+        for number, raw in enumerate(fh, start=1):
+            if not raw.strip():
+                continue
+            try:
+                obj = json.loads(raw)
+            except json.JSONDecodeError as exc:
+                raise FeedError(f"invalid JSON: {exc.msg}", source=str(path), line=number,
+                                column=exc.colno, hint="one JSON object per line") from None
+            if not isinstance(obj, dict):
+                raise FeedError("expected a JSON object on each line", source=str(path), line=number)
+            rows.append(obj)
+    if not rows:
+        raise FeedError("feed has no rows", source=str(path))
+    return pd.DataFrame(rows).astype(object)
+
+
+def _parse_times(raw: pd.Series, layout: FeedLayout, source: str, line_offset: int) -> pd.Series:
+    """Timestamps (ISO 8601 with offset, or naive in ``layout.time_zone``, or epoch s) → UTC."""
+    values = raw.astype("string").str.strip()
+    empty = values.isna() | (values == "")
+    if empty.any():
+        i = int(np.flatnonzero(empty.to_numpy())[0])
+        raise FeedError("empty timestamp", source=source, line=i + line_offset,
+                        field=layout.time_column, hint="every row needs a time")
+    numeric = pd.to_numeric(values, errors="coerce")
+    if numeric.notna().all():
+        times = pd.to_datetime(numeric.astype(float), unit="s", utc=True)
+        return times
+    has_offset = values.str.contains(_OFFSET)
+    if has_offset.all():
+        try:
+            return pd.to_datetime(values, utc=True, format="ISO8601")
+        except (ValueError, TypeError):
+            pass
+    elif not has_offset.any():
+        if layout.time_zone is None:
+            raise FeedError("timestamps carry no UTC offset and no time zone is declared",
+                            source=source, line=line_offset, field=layout.time_column,
+                            hint="write times like 2026-01-15T09:00:00Z, or set feed.time_zone in the site file")
+        try:
+            naive = pd.to_datetime(values, format="ISO8601")
+            local = naive.dt.tz_localize(layout.time_zone, ambiguous="NaT", nonexistent="NaT")
+        except (ValueError, TypeError):
+            local = None
+        if local is not None:
+            bad = local.isna()
+            if bad.any():
+                i = int(np.flatnonzero(bad.to_numpy())[0])
+                raise FeedError(f"local time {values.iloc[i]!r} is ambiguous or does not exist in {layout.time_zone}",
+                                source=source, line=i + line_offset, field=layout.time_column,
+                                hint="log in UTC or with an offset to avoid daylight-saving changes")
+            return local.dt.tz_convert("UTC")
+    else:
+        i = int(np.flatnonzero(~has_offset.to_numpy())[0])
+        raise FeedError(f"timestamp {values.iloc[i]!r} has no UTC offset while others do",
+                        source=source, line=i + line_offset, field=layout.time_column,
+                        hint="write every time with an offset or Z")
+    # Find the first unparseable value for the message.
+    for i, text in enumerate(values):
+        try:
+            pd.Timestamp(text)
+        except (ValueError, TypeError):
+            raise FeedError(f"cannot read timestamp {text!r}", source=source, line=i + line_offset,
+                            field=layout.time_column, hint="use ISO 8601, e.g. 2026-01-15T09:00:00Z") from None
+    raise FeedError("cannot read timestamps", source=source, field=layout.time_column,
+                    hint="use ISO 8601, e.g. 2026-01-15T09:00:00Z")
+
+
+def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<feed>",
+                    line_offset: int = 2) -> Feed:
+    """Map, convert, sort and flag a logger table into a canonical :class:`Feed`."""
+    table = table.rename(columns=lambda c: str(c).strip())
+    if len(table) == 0:
+        raise FeedError("feed has a header but no data rows", source=source)
+    time_col = layout.time_column if layout.time_column in table.columns else (
+        "time" if "time" in table.columns else None)
+    if time_col is None:
+        hint = f"map it with feed.time_column in the site file; columns found: {', '.join(map(str, table.columns[:8]))}"
+        if len(table.columns) == 1 and any(ch in str(table.columns[0]) for ch in ";\t|"):
+            hint = "the file seems to use another delimiter than ','; save it as comma-separated"
+        raise FeedError(f"no time column '{layout.time_column}'", source=source, line=1, hint=hint)
+    times = _parse_times(table[time_col], layout, source, line_offset)
+
+    mapping = {c.canonical: c for c in layout.columns}
+    out = {}
+    for name in CANONICAL_COLUMNS:
+        spec = mapping.get(name)
+        if spec is not None and spec.source_column in table.columns:
+            raw, unit = table[spec.source_column], spec.unit
+        elif name in table.columns:  # canonical names are always read as SI
+            raw, unit = table[name], CANONICAL_UNITS[name]
+        elif name in REQUIRED_COLUMNS:
+            wanted = f"'{spec.source_column}' (mapped to {name})" if spec else name
+            raise FeedError(f"missing required column {wanted}", source=source, line=1,
+                            hint=f"columns found: {', '.join(map(str, table.columns[:10]))}; "
+                                 "map the logger's column in the site file under feed.columns")
+        else:
+            continue
+        values = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float)
+        out[name] = np.asarray(units.convert(values, unit, CANONICAL_UNITS[name]), dtype=float)
+
+    frame = pd.DataFrame(out)
+    frame.insert(0, "time", times.to_numpy())
+    if "kind" in table.columns:
+        kind = table["kind"].astype("string").str.strip().str.lower().fillna("observed")
+        bad = ~kind.isin(["observed", "forecast"])
+        if bad.any():
+            i = int(np.flatnonzero(bad.to_numpy())[0])
+            raise FeedError(f"kind {table['kind'].iloc[i]!r} is neither 'observed' nor 'forecast'",
+                            source=source, line=i + line_offset, field="kind")
+        frame["kind"] = kind.to_numpy(dtype=object)
+    else:
+        frame["kind"] = "observed"
+
+    # Implausible values → NaN, row flagged (DESIGN §4 ranges).
+    implausible = np.zeros(len(frame), dtype=bool)
+    for name, (lo, hi) in PLAUSIBLE_RANGE.items():
+        if name in frame:
+            col = frame[name].to_numpy()
+            bad = (col < lo) | (col > hi)
+            implausible |= bad
+            col = np.where(bad, np.nan, col)
+            if name == "rel_humidity_pct":
+                col = np.minimum(col, 100.0)
+            frame[name] = col
+    gust_below_mean = frame["wind_gust_ms"].to_numpy() < frame["wind_mean_ms"].to_numpy() - 0.5
+    implausible |= gust_below_mean
+    for name in ("wind_mean_ms", "wind_gust_ms"):
+        frame.loc[gust_below_mean, name] = np.nan
+    frame["q_implausible"] = implausible
+    frame["q_missing"] = frame[list(REQUIRED_COLUMNS)].isna().any(axis=1).to_numpy() & ~implausible
+
+    # Derived dew point where the feed has none.
+    derived = dew_point_c(frame["air_temp_c"].to_numpy(), frame["rel_humidity_pct"].to_numpy())
+    if "dew_point_c" in frame:
+        frame["dew_point_c"] = frame["dew_point_c"].fillna(pd.Series(derived))
+    else:
+        frame["dew_point_c"] = derived
+
+    # Order and duplicates.
+    t = frame["time"].to_numpy()
+    n_out_of_order = int((t[1:] < t[:-1]).sum()) if len(t) > 1 else 0
+    frame = frame.sort_values("time", kind="stable")
+    dup = frame["time"].duplicated(keep="first")
+    n_duplicates = int(dup.sum())
+    frame = frame[~dup.to_numpy()].reset_index(drop=True)
+    dt_min = frame["time"].diff().dt.total_seconds().to_numpy() / 60.0
+    frame["q_gap_before"] = np.nan_to_num(dt_min, nan=0.0) > layout.max_gap_min
+    frame["good"] = ~(frame["q_implausible"] | frame["q_missing"]).to_numpy()
+
+    quality = FeedQuality(
+        n_rows=len(frame), n_duplicates=n_duplicates, n_out_of_order=n_out_of_order,
+        n_gaps=int(frame["q_gap_before"].sum()), n_implausible=int(frame["q_implausible"].sum()),
+        n_missing=int(frame["q_missing"].sum()),
+        first_time_utc=frame["time"].iloc[0] if len(frame) else None,
+        last_time_utc=frame["time"].iloc[-1] if len(frame) else None,
+    )
+    return Feed(frame=frame, quality=quality, source=source)
+
+
+def read_feed(path: Path | str, layout: FeedLayout) -> Feed:
+    """Read a CSV or JSON Lines feed file and return its canonical :class:`Feed`."""
+    path = Path(path)
+    table = _read_table(path)
+    is_jsonl = not isinstance(table.columns, pd.RangeIndex) and path.suffix.lower() in (".jsonl", ".ndjson")
+    return canonical_frame(table, layout, source=str(path), line_offset=1 if is_jsonl else 2)

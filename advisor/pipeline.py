@@ -1,0 +1,28 @@
+"""The one evaluation path shared by check, outlook and replay: frame → features → rules → decision.
+
+Pure: takes already-loaded objects, returns :class:`advisor.decision.Decisions`.  The caller
+chooses the rows of the feed that may be used and the evaluation times.
+"""
+
+from __future__ import annotations
+
+from typing import Callable, Mapping
+
+import numpy as np
+import pandas as pd
+
+from .decision import Decisions, decide
+from .features import compute_features, columns_of
+from .references import Registry
+from .rules.ruleset import RuleSet
+from .site import Site
+
+OddsFunction = Callable[[pd.DataFrame], Mapping[str, np.ndarray]]
+
+
+def evaluate(frame: pd.DataFrame, times_utc, site: Site, registry: Registry, rules: RuleSet,
+             freq_ghz: float, odds: OddsFunction | None = None) -> Decisions:
+    """Decisions at every time in ``times_utc`` from the canonical ``frame``."""
+    features = compute_features(frame, times_utc, site, registry, freq_ghz)
+    rule_eval = rules.evaluate(columns_of(features), len(features))
+    return decide(features, rule_eval, rules, site, odds(features) if odds else None)

@@ -1,0 +1,224 @@
+"""Three views of one :class:`advisor.decision.Call`: a rich panel, plain text, and JSON.
+
+Nothing is computed here beyond formatting: the call is finished before it is rendered.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from zoneinfo import ZoneInfo
+
+import numpy as np
+from rich import box
+from rich.console import Group
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from .decision import Call
+from .features import CATALOGUE
+
+SCHEMA_VERSION = 1
+
+CAUTIONS = (
+    "Advisory only — not a safety system.",
+    "Stow the antenna at the site's wind limits regardless of this tool.",
+    "Laser scanners can be hazardous to eyes: follow the site's laser-safety procedure and keep "
+    "people off the structure during scans and surface moves.",
+    "Defer to local rules and the site's responsible staff.",
+)
+
+VERDICT_STYLE = {
+    "scan": ("SCAN NOW", "bold black on green"),
+    "astronomical": ("ASTRONOMICAL", "bold black on cyan"),
+    "postpone": ("POSTPONE", "bold black on yellow"),
+    "undetermined": ("UNDETERMINED", "bold white on red"),
+}
+EFFECT_LABEL = {"block": "against", "warn": "caution", "add_error": "error term", "info": "budget"}
+
+#: Features shown in the "key conditions" block, in order, with display formats.
+KEY_FEATURES = (
+    ("wind_mean_ms", "wind (10-min mean)", "{:.1f} m/s"),
+    ("wind_gust_ms", "gusts (10-min max)", "{:.1f} m/s"),
+    ("air_temp_c", "air temperature", "{:.1f} °C"),
+    ("dew_point_spread_c", "dew-point spread", "{:.1f} °C"),
+    ("rel_humidity_pct", "relative humidity", "{:.0f} %"),
+    ("visibility_m", "visibility", "{:.0f} m"),
+    ("precip_mm_h", "precipitation", "{:.1f} mm/h"),
+    ("sun_elevation_deg", "sun elevation", "{:.1f}°"),
+    ("hours_since_sunset", "since sunset", "{:.1f} h"),
+    ("air_temp_rate_c_per_h", "temperature rate", "{:+.1f} °C/h"),
+    ("reference_age_h", "reference age", "{:.1f} h"),
+    ("reference_temp_delta_c", "|ΔT| to reference", "{:.1f} °C"),
+    ("calibrator_elevation_deg", "best calibrator elevation", "{:.0f}°"),
+    ("calibrator_minutes_up", "calibrator stays up", "{:.0f} min"),
+    ("data_age_min", "data age", "{:.1f} min"),
+)
+
+
+@dataclass(frozen=True)
+class Context:
+    """What the call was made on, for titles and JSON."""
+
+    site_name: str
+    time_zone: str
+    feed_source: str
+    is_demo: bool
+    data_quality: dict
+    next_window: dict | None = None
+    notes: tuple[str, ...] = ()
+
+
+def _num(value):
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if value is None:
+        return None
+    value = float(value)
+    return None if not math.isfinite(value) else round(value, 4)
+
+
+def to_json_dict(call: Call, ctx: Context, exit_status: int) -> dict:
+    """The ``--json`` object of DESIGN §7."""
+    features = {spec: _num(call.features.get(spec)) for spec in CATALOGUE}
+    return {
+        "schema_version": SCHEMA_VERSION,
+        "verdict": call.verdict,
+        "headline": call.headline,
+        "time_utc": call.time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "target_freq_ghz": call.freq_ghz,
+        "site": ctx.site_name,
+        "demo_data": ctx.is_demo,
+        "reasons": [r.as_dict() for r in call.reasons],
+        "features": features,
+        "calibrator": call.calibrator_name or None,
+        "candidates": call.candidates,
+        "data_quality": ctx.data_quality,
+        "next_window": ctx.next_window,
+        "notes": list(ctx.notes),
+        "cautions": list(CAUTIONS),
+        "exit_status": exit_status,
+    }
+
+
+def _times(call: Call, ctx: Context) -> str:
+    local = call.time_utc.tz_convert(ZoneInfo(ctx.time_zone))
+    return f"{call.time_utc:%Y-%m-%d %H:%M} UTC ({local:%H:%M %Z} local)"
+
+
+def _fmt_feature(name: str, fmt: str, features: dict) -> str:
+    value = features.get(name)
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return "n/a"
+    return fmt.format(value)
+
+
+def _candidate_rows(call: Call):
+    for method, label in (("scan", "laser scan"), ("astronomical", "astronomical")):
+        c = call.candidates[method]
+        rms = "n/a" if c["surface_rms_um"] is None else f"{c['surface_rms_um']:.0f} µm"
+        eta = "n/a" if c["ruze_efficiency"] is None else f"{c['ruze_efficiency']:.2f}"
+        p = "—" if c["p_usable"] is None else f"{c['p_usable']:.0%}"
+        yield (label, "yes" if c["feasible"] else "no", rms, eta, p, f"{c['duration_min']:.0f} min",
+               ", ".join(c["blocked_by"]) or "—")
+
+
+CANDIDATE_HEADERS = ("method", "feasible", "surface rms", "Ruze η", "p usable", "duration", "blocked by")
+
+
+def render_panel(call: Call, ctx: Context) -> Panel:
+    """The terminal view: verdict first, then candidates, reasons, key features, cautions."""
+    label, style = VERDICT_STYLE[call.verdict]
+    parts = []
+    head = Text()
+    head.append(f" {label} ", style=style)
+    head.append(f"  {call.headline}")
+    parts.append(head)
+    if ctx.is_demo:
+        parts.append(Text("DEMO DATA — invented site and weather, for trying the tool.", style="bold magenta"))
+    for note in ctx.notes:
+        parts.append(Text(note, style="italic"))
+    parts.append(Text(""))
+
+    table = Table(box=box.SIMPLE_HEAD, expand=False, pad_edge=False)
+    for h in CANDIDATE_HEADERS:
+        table.add_column(h, justify="right" if h in ("surface rms", "Ruze η", "p usable", "duration") else "left")
+    for row in _candidate_rows(call):
+        table.add_row(*row, style="green" if row[1] == "yes" else "dim")
+    parts.append(table)
+
+    reasons = Table(box=None, show_header=False, pad_edge=False, expand=False)
+    reasons.add_column("effect", style="bold", no_wrap=True)
+    reasons.add_column("rule", style="dim", no_wrap=True)
+    reasons.add_column("message")
+    effect_style = {"block": "red", "warn": "yellow", "add_error": "magenta", "info": "cyan"}
+    for r in call.reasons:
+        reasons.add_row(Text(EFFECT_LABEL.get(r.effect, r.effect), style=effect_style.get(r.effect, "")),
+                        f"{r.rule} [{r.applies_to}]", r.message)
+    parts.append(Text("Reasons", style="bold underline"))
+    parts.append(reasons)
+
+    feats = Table(box=None, show_header=False, pad_edge=False, expand=False)
+    for _ in range(2):
+        feats.add_column(style="dim")
+        feats.add_column(justify="right")
+    cells = [(lbl, _fmt_feature(name, fmt, call.features)) for name, lbl, fmt in KEY_FEATURES]
+    if call.calibrator_name:
+        cells.append(("best calibrator", call.calibrator_name))
+    for k in range(0, len(cells), 2):
+        pair = cells[k:k + 2] + [("", "")] * (2 - len(cells[k:k + 2]))
+        feats.add_row(pair[0][0], pair[0][1], "  " + pair[1][0], pair[1][1])
+    parts.append(Text(""))
+    parts.append(Text("Key conditions", style="bold underline"))
+    parts.append(feats)
+    if ctx.next_window:
+        parts.append(Text(""))
+        parts.append(Text(_next_window_text(ctx.next_window), style="bold"))
+    parts.append(Text(""))
+    parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
+    title = f"advisor · {ctx.site_name} · {_times(call, ctx)} · {call.freq_ghz:g} GHz"
+    return Panel(Group(*parts), title=title, title_align="left", border_style=style.split()[-1],
+                 subtitle=f"feed: {ctx.feed_source}", subtitle_align="left")
+
+
+def _next_window_text(next_window: dict) -> str:
+    bits = []
+    for method, w in next_window.items():
+        if w:
+            bits.append(f"{method} from {w['start_utc']} to {w['end_utc']}")
+        else:
+            bits.append(f"{method}: none in the forecast")
+    return "Next window: " + "; ".join(bits)
+
+
+def render_plain(call: Call, ctx: Context) -> str:
+    """Plain text for pipes, logs and advisory.txt."""
+    label, _ = VERDICT_STYLE[call.verdict]
+    lines = [f"advisor · {ctx.site_name} · {_times(call, ctx)} · {call.freq_ghz:g} GHz",
+             f"VERDICT: {label} — {call.headline}"]
+    if ctx.is_demo:
+        lines.append("DEMO DATA — invented site and weather, for trying the tool.")
+    lines.extend(ctx.notes)
+    lines.append("")
+    rows = [CANDIDATE_HEADERS, *_candidate_rows(call)]
+    widths = [max(len(str(r[k])) for r in rows) for k in range(len(CANDIDATE_HEADERS))]
+    for r in rows:
+        lines.append("  ".join(str(v).ljust(w) for v, w in zip(r, widths)).rstrip())
+    lines.append("")
+    lines.append("Reasons:")
+    for r in call.reasons:
+        lines.append(f"  - {EFFECT_LABEL.get(r.effect, r.effect)} [{r.rule}, {r.applies_to}]: {r.message}")
+    lines.append("")
+    lines.append("Key conditions:")
+    for name, lbl, fmt in KEY_FEATURES:
+        lines.append(f"  {lbl}: {_fmt_feature(name, fmt, call.features)}")
+    if call.calibrator_name:
+        lines.append(f"  best calibrator: {call.calibrator_name}")
+    if ctx.next_window:
+        lines.append("")
+        lines.append(_next_window_text(ctx.next_window))
+    lines.append("")
+    lines.append(f"feed: {ctx.feed_source}")
+    lines.append("Cautions: " + " ".join(CAUTIONS))
+    return "\n".join(lines) + "\n"

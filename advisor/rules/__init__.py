@@ -1,0 +1,1 @@
+"""Rules: the condition language and the YAML rule sets written in it."""
