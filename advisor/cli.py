@@ -247,7 +247,7 @@ def build_parser() -> argparse.ArgumentParser:
                            description="Evaluate the feed at one instant and print the call.",
                            epilog=EXIT_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
     _add_evaluation_options(check)
-    check.add_argument("--json", action="store_true", help="print one JSON object (DESIGN contract)")
+    check.add_argument("--json", action="store_true", help="print one JSON object (stable schema, see README)")
     check.set_defaults(func=cmd_check)
 
     ref = sub.add_parser("reference", help="the reference-scan registry",

@@ -212,9 +212,27 @@ def explain(decisions: Decisions, i: int) -> Call:
             "blocked_by": [r.id for r in decisions.rules if r.applies(method) and r.effect == "block"
                            and decisions.rule_eval.fired[r.id][i]],
         }
+    reasons.extend(_choice_reasons(verdict, cands, site))
     headline = _headline(verdict, cands, row)
     return Call(verdict=verdict, time_utc=row["time"], freq_ghz=freq, reasons=reasons, features=values,
                 candidates=cands, calibrator_name=str(row.get("calibrator_name", "")), headline=headline)
+
+
+def _choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
+    """Why the chosen method won over the other one, when both were feasible."""
+    scan, astro = cands["scan"], cands["astronomical"]
+    if not (scan["feasible"] and astro["feasible"]):
+        return []
+    margin = site.thresholds.laser_preference_efficiency
+    gap = astro["ruze_efficiency"] - scan["ruze_efficiency"]
+    if verdict == "scan":
+        text = (f"Both methods are feasible; the laser is preferred: its efficiency is within {margin:.2f} of "
+                f"holography's ({gap:+.2f}) and it takes {scan['duration_min']:.0f} min instead of "
+                f"{astro['duration_min']:.0f} min of telescope time.")
+    else:
+        text = (f"Both methods are feasible; holography's efficiency is {gap:.2f} better, more than the "
+                f"{margin:.2f} margin that favours the quicker laser scan.")
+    return [Reason("choice", "both", "info", text)]
 
 
 def _headline(verdict: str, cands: dict, row: pd.Series) -> str:

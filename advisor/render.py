@@ -35,7 +35,7 @@ VERDICT_STYLE = {
     "postpone": ("POSTPONE", "bold black on yellow"),
     "undetermined": ("UNDETERMINED", "bold white on red"),
 }
-EFFECT_LABEL = {"block": "against", "warn": "caution", "add_error": "error term", "info": "budget"}
+EFFECT_LABEL = {"block": "against", "warn": "caution", "add_error": "error term", "info": "note"}
 
 #: Features shown in the "key conditions" block, in order, with display formats.
 KEY_FEATURES = (
@@ -44,7 +44,7 @@ KEY_FEATURES = (
     ("air_temp_c", "air temperature", "{:.1f} °C"),
     ("dew_point_spread_c", "dew-point spread", "{:.1f} °C"),
     ("rel_humidity_pct", "relative humidity", "{:.0f} %"),
-    ("visibility_m", "visibility", "{:.0f} m"),
+    ("visibility_m", "visibility", "{:.0f} m"),  # shown in km above 10 km, see _fmt_feature
     ("precip_mm_h", "precipitation", "{:.1f} mm/h"),
     ("sun_elevation_deg", "sun elevation", "{:.1f}°"),
     ("hours_since_sunset", "since sunset", "{:.1f} h"),
@@ -111,6 +111,10 @@ def _fmt_feature(name: str, fmt: str, features: dict) -> str:
     value = features.get(name)
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return "n/a"
+    if name == "visibility_m" and value >= 10_000:
+        return f"{value / 1000:.0f} km"
+    if name == "calibrator_minutes_up" and value >= 1440:
+        return "all day (circumpolar)"
     return fmt.format(value)
 
 
