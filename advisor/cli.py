@@ -143,8 +143,19 @@ def _want_color(stream) -> bool:
     return stream.isatty() and "NO_COLOR" not in os.environ
 
 
-def cmd_check(args: argparse.Namespace) -> int:
-    from .render import Context, render_panel, render_plain, to_json_dict
+@dataclass(frozen=True)
+class CheckResult:
+    """One evaluated instant: the call, its rendering context and exit status."""
+
+    call: object
+    ctx: object
+    status: int
+    inputs: Inputs
+
+
+def run_check(args: argparse.Namespace) -> CheckResult:
+    """Load inputs, evaluate at ``--at`` and explain; shared by ``check`` and other commands."""
+    from .render import Context
 
     inputs = load_inputs(args)
     at = _evaluation_time(args, inputs)
@@ -155,21 +166,28 @@ def cmd_check(args: argparse.Namespace) -> int:
     call = explain(decisions, 0)
     status = EXIT_CODES[call.verdict]
     quality = inputs.feed.quality.as_dict()
-    quality.update({"source": inputs.feed.source, "data_age_min": call.features.get("data_age_min"),
+    age = call.features.get("data_age_min")
+    quality.update({"source": inputs.feed.source,
+                    "data_age_min": None if age is None or age != age else round(float(age), 2),
                     "ok": bool(call.features.get("data_ok"))})
-    if quality["data_age_min"] is not None and quality["data_age_min"] != quality["data_age_min"]:
-        quality["data_age_min"] = None
     ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=inputs.feed.source,
                   is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
+    return CheckResult(call, ctx, status, inputs)
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    from .render import render_panel, render_plain, to_json_dict
+
+    result = run_check(args)
     if args.json:
-        print(json.dumps(to_json_dict(call, ctx, status), indent=2, allow_nan=False))
+        print(json.dumps(to_json_dict(result.call, result.ctx, result.status), indent=2, allow_nan=False))
     elif _want_color(sys.stdout):
         from rich.console import Console
 
-        Console().print(render_panel(call, ctx))
+        Console().print(render_panel(result.call, result.ctx))
     else:
-        sys.stdout.write(render_plain(call, ctx))
-    return status
+        sys.stdout.write(render_plain(result.call, result.ctx))
+    return result.status
 
 
 def _registry_path(args) -> Path:
@@ -266,6 +284,8 @@ def build_parser() -> argparse.ArgumentParser:
     lst.add_argument("--at", metavar="TIME", help="compute ages at this time (default now)")
     lst.set_defaults(func=cmd_reference_list)
     ref.set_defaults(func=lambda a: _missing_action(ref))
+
+    # Further commands register here, one line each: module.add_parser(sub, _add_evaluation_options)
     return parser
 
 
