@@ -107,6 +107,16 @@ def _times(call: Call, ctx: Context) -> str:
     return f"{call.time_utc:%Y-%m-%d %H:%M} UTC ({local:%H:%M %Z} local)"
 
 
+def key_features(features: dict):
+    """(label, text) pairs of the key conditions; hours since sunrise by day, since sunset by night."""
+    rows = []
+    for name, label, fmt in KEY_FEATURES:
+        if name == "hours_since_sunset" and not features.get("is_night", True):
+            name, label = "hours_since_sunrise", "since sunrise"
+        rows.append((label, _fmt_feature(name, fmt, features)))
+    return rows
+
+
 def _fmt_feature(name: str, fmt: str, features: dict) -> str:
     value = features.get(name)
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
@@ -128,7 +138,15 @@ def _candidate_rows(call: Call):
                ", ".join(c["blocked_by"]) or "—")
 
 
-CANDIDATE_HEADERS = ("method", "feasible", "surface rms", "Ruze η", "p usable", "duration", "blocked by")
+CANDIDATE_HEADERS = ("method", "feasible", "surface rms", "Ruze η", "p usable", "takes", "blocked by")
+
+
+_EFFECT_ORDER = {"block": 0, "add_error": 1, "warn": 2, "info": 3}
+
+
+def ordered_reasons(call: Call):
+    """Reasons, most severe first (stable within one severity)."""
+    return sorted(call.reasons, key=lambda r: _EFFECT_ORDER.get(r.effect, 9))
 
 
 def render_panel(call: Call, ctx: Context) -> Panel:
@@ -139,27 +157,28 @@ def render_panel(call: Call, ctx: Context) -> Panel:
     head.append(f" {label} ", style=style)
     head.append(f"  {call.headline}")
     parts.append(head)
+    parts.append(Text(f"{_times(call, ctx)} · target {call.freq_ghz:g} GHz", style="bold"))
     if ctx.is_demo:
         parts.append(Text("DEMO DATA — invented site and weather, for trying the tool.", style="bold magenta"))
     for note in ctx.notes:
         parts.append(Text(note, style="italic"))
-    parts.append(Text(""))
 
     table = Table(box=box.SIMPLE_HEAD, expand=False, pad_edge=False)
-    for h in CANDIDATE_HEADERS:
-        table.add_column(h, justify="right" if h in ("surface rms", "Ruze η", "p usable", "duration") else "left")
+    for h in CANDIDATE_HEADERS[:-1]:  # blocking rules are listed under Reasons
+        table.add_column(h, justify="right" if h in ("surface rms", "Ruze η", "p usable", "takes") else "left",
+                         no_wrap=True)
     for row in _candidate_rows(call):
-        table.add_row(*row, style="green" if row[1] == "yes" else "dim")
+        table.add_row(*row[:-1], style="green" if row[1] == "yes" else "dim")
     parts.append(table)
 
     reasons = Table(box=None, show_header=False, pad_edge=False, expand=False)
     reasons.add_column("effect", style="bold", no_wrap=True)
-    reasons.add_column("rule", style="dim", no_wrap=True)
     reasons.add_column("message")
     effect_style = {"block": "red", "warn": "yellow", "add_error": "magenta", "info": "cyan"}
-    for r in call.reasons:
-        reasons.add_row(Text(EFFECT_LABEL.get(r.effect, r.effect), style=effect_style.get(r.effect, "")),
-                        f"{r.rule} [{r.applies_to}]", r.message)
+    for r in ordered_reasons(call):
+        message = Text(r.message)
+        message.append(f"  [{r.rule} · {r.applies_to}]", style="dim")
+        reasons.add_row(Text(EFFECT_LABEL.get(r.effect, r.effect), style=effect_style.get(r.effect, "")), message)
     parts.append(Text("Reasons", style="bold underline"))
     parts.append(reasons)
 
@@ -167,7 +186,7 @@ def render_panel(call: Call, ctx: Context) -> Panel:
     for _ in range(2):
         feats.add_column(style="dim")
         feats.add_column(justify="right")
-    cells = [(lbl, _fmt_feature(name, fmt, call.features)) for name, lbl, fmt in KEY_FEATURES]
+    cells = key_features(call.features)
     if call.calibrator_name:
         cells.append(("best calibrator", call.calibrator_name))
     for k in range(0, len(cells), 2):
@@ -181,7 +200,7 @@ def render_panel(call: Call, ctx: Context) -> Panel:
         parts.append(Text(_next_window_text(ctx.next_window), style="bold"))
     parts.append(Text(""))
     parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
-    title = f"advisor · {ctx.site_name} · {_times(call, ctx)} · {call.freq_ghz:g} GHz"
+    title = f"advisor · {ctx.site_name}"
     return Panel(Group(*parts), title=title, title_align="left", border_style=style.split()[-1],
                  subtitle=f"feed: {ctx.feed_source}", subtitle_align="left")
 
@@ -211,12 +230,12 @@ def render_plain(call: Call, ctx: Context) -> str:
         lines.append("  ".join(str(v).ljust(w) for v, w in zip(r, widths)).rstrip())
     lines.append("")
     lines.append("Reasons:")
-    for r in call.reasons:
+    for r in ordered_reasons(call):
         lines.append(f"  - {EFFECT_LABEL.get(r.effect, r.effect)} [{r.rule}, {r.applies_to}]: {r.message}")
     lines.append("")
     lines.append("Key conditions:")
-    for name, lbl, fmt in KEY_FEATURES:
-        lines.append(f"  {lbl}: {_fmt_feature(name, fmt, call.features)}")
+    for lbl, text in key_features(call.features):
+        lines.append(f"  {lbl}: {text}")
     if call.calibrator_name:
         lines.append(f"  best calibrator: {call.calibrator_name}")
     if ctx.next_window:
