@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from .physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, wavelength_mm
-from .physics.sky import minutes_above_elevation, source_elevation_deg
+from .physics.sky import elevation_and_minutes_above
 from .physics.sun import hours_since_sunrise, hours_since_sunset, solar_position
 from .references import Registry, reference_in_force
 from .rules.condition import FeatureSpec
@@ -174,9 +174,9 @@ def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Regis
     if site.calibrators:
         ra = np.array([c.ra_deg for c in site.calibrators])
         dec = np.array([c.dec_deg for c in site.calibrators])
-        el = np.asarray(source_elevation_deg(times_index, ra, dec, site.latitude_deg, site.longitude_deg)).reshape(n, -1)
-        mins = np.asarray(minutes_above_elevation(times_index, ra, dec, site.latitude_deg, site.longitude_deg,
-                                                  astro.min_calibrator_elevation_deg)).reshape(n, -1)
+        el, mins = elevation_and_minutes_above(times_index, ra, dec, site.latitude_deg, site.longitude_deg,
+                                               astro.min_calibrator_elevation_deg)
+        el, mins = np.asarray(el).reshape(n, -1), np.asarray(mins).reshape(n, -1)
         usable = (el >= astro.min_calibrator_elevation_deg) & (el <= astro.max_calibrator_elevation_deg)
         score = np.where(usable, mins, -1.0)
         best = np.argmax(score, axis=1)

@@ -38,7 +38,6 @@ PLAUSIBLE_RANGE = {
     "solar_wm2": (-20.0, 1500.0),
 }
 
-_OFFSET = re.compile(r"(?:Z|[+-]\d\d:?\d\d)$", re.IGNORECASE)
 
 
 @dataclass(frozen=True)
@@ -108,8 +107,7 @@ def _read_table(path: Path) -> pd.DataFrame:
     try:
         if is_jsonl:
             return _read_jsonl(path)
-        return pd.read_csv(path, dtype=str, keep_default_na=False, na_values=["", "NaN", "nan", "NA", "null"],
-                           skipinitialspace=True)
+        return pd.read_csv(path, low_memory=False)
     except FeedError:
         raise
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
@@ -140,19 +138,53 @@ def _read_jsonl(path: Path) -> pd.DataFrame:
     return pd.DataFrame(rows).astype(object)
 
 
+def _is_number(text) -> bool:
+    try:
+        float(text)
+    except (TypeError, ValueError):
+        return False
+    return True
+
+
+def _has_utc_offset(texts: np.ndarray) -> np.ndarray:
+    """Vectorised: does each ISO 8601 text end in ``Z``, ``±HH:MM`` or ``±HHMM`` after a time?"""
+    arr = np.asarray(texts, dtype="U40")
+    width = arr.dtype.itemsize // 4
+    codes = arr.view(np.uint32).reshape(len(arr), width)
+    length = np.strings.str_len(arr)
+    rows = np.arange(len(arr))
+
+    def char_at(offset_from_end: int) -> np.ndarray:
+        idx = length - offset_from_end
+        ok = idx >= 0
+        return np.where(ok, codes[rows, np.clip(idx, 0, width - 1)], 0)
+
+    sign6, colon3, sign5 = char_at(6), char_at(3), char_at(5)
+    plus_minus = (ord("+"), ord("-"))
+    zulu = np.isin(char_at(1), (ord("Z"), ord("z")))
+    hh_mm = np.isin(sign6, plus_minus) & (colon3 == ord(":"))
+    hhmm = np.isin(sign5, plus_minus) & np.all([(char_at(k) >= ord("0")) & (char_at(k) <= ord("9")) for k in (1, 2, 3, 4)], axis=0)
+    has_time = np.strings.find(arr, ":") >= 0
+    return has_time & (zulu | hh_mm | hhmm)
+
+
 def _parse_times(raw: pd.Series, layout: FeedLayout, source: str, line_offset: int) -> pd.Series:
     """Timestamps (ISO 8601 with offset, or naive in ``layout.time_zone``, or epoch s) → UTC."""
-    values = raw.astype("string").str.strip()
-    empty = values.isna() | (values == "")
+    values = raw if raw.dtype == object else raw.astype(object)
+    empty = values.isna()
     if empty.any():
         i = int(np.flatnonzero(empty.to_numpy())[0])
         raise FeedError("empty timestamp", source=source, line=i + line_offset,
                         field=layout.time_column, hint="every row needs a time")
-    numeric = pd.to_numeric(values, errors="coerce")
-    if numeric.notna().all():
-        times = pd.to_datetime(numeric.astype(float), unit="s", utc=True)
-        return times
-    has_offset = values.str.contains(_OFFSET)
+    if pd.api.types.is_numeric_dtype(raw) or _is_number(values.iloc[0]):
+        numeric = pd.to_numeric(values, errors="coerce")
+        if numeric.isna().any():
+            i = int(np.flatnonzero(numeric.isna().to_numpy())[0])
+            raise FeedError(f"cannot read timestamp {values.iloc[i]!r} as epoch seconds", source=source,
+                            line=i + line_offset, field=layout.time_column,
+                            hint="write every time the same way: epoch seconds or ISO 8601")
+        return pd.to_datetime(numeric.astype(float), unit="s", utc=True)
+    has_offset = pd.Series(_has_utc_offset(values.to_numpy(dtype=object)), index=values.index)
     if has_offset.all():
         try:
             return pd.to_datetime(values, utc=True, format="ISO8601")
@@ -222,11 +254,14 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
                                  "map the logger's column in the site file under feed.columns")
         else:
             continue
-        values = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float)
+        if pd.api.types.is_float_dtype(raw) or pd.api.types.is_integer_dtype(raw):
+            values = raw.to_numpy(dtype=float)
+        else:
+            values = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float)
         out[name] = np.asarray(units.convert(values, unit, CANONICAL_UNITS[name]), dtype=float)
 
     frame = pd.DataFrame(out)
-    frame.insert(0, "time", times.to_numpy())
+    frame.insert(0, "time", pd.DatetimeIndex(times).as_unit("ns"))
     if "kind" in table.columns:
         kind = table["kind"].astype("string").str.strip().str.lower().fillna("observed")
         bad = ~kind.isin(["observed", "forecast"])
@@ -264,7 +299,7 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         frame["dew_point_c"] = derived
 
     # Order and duplicates.
-    t = frame["time"].to_numpy()
+    t = pd.DatetimeIndex(frame["time"]).asi8
     n_out_of_order = int((t[1:] < t[:-1]).sum()) if len(t) > 1 else 0
     frame = frame.sort_values("time", kind="stable")
     dup = frame["time"].duplicated(keep="first")

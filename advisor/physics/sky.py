@@ -127,11 +127,17 @@ def precess_j2000_to_date(ra_deg, dec_deg, times_utc):
 
 
 def _site_frame(times_utc, ra_deg, dec_deg, longitude_deg):
-    """Precessed (n, m) declination and hour angle [deg] for times (n,) and sources (m,)."""
+    """Precessed (n, m) declination and hour angle [deg] for times (n,) and sources (m,).
+
+    Precession is evaluated once per whole day of the input (it moves a source by less than
+    0.2 arcsec a day), so long time series cost one trigonometric pass per day, not per time.
+    """
     days = np.atleast_1d(_days_since_j2000(times_utc)).ravel()[:, None]
     ra = np.atleast_1d(np.asarray(ra_deg, dtype=float)).ravel()[None, :]
     dec = np.atleast_1d(np.asarray(dec_deg, dtype=float)).ravel()[None, :]
-    ra_date, dec_date = _precess_days(ra, dec, days)
+    whole_days, inverse = np.unique(np.floor(days[:, 0]), return_inverse=True)
+    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)
+    ra_date, dec_date = ra_day[inverse], dec_day[inverse]
     lst = _gmst_deg_from_days(days) + float(longitude_deg)
     hour_angle = np.mod(lst - ra_date + 180.0, 360.0) - 180.0
     return hour_angle, dec_date
@@ -179,7 +185,16 @@ def source_elevation_deg(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg
     ----------
     Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12, 13, 21.
     """
-    return source_altaz_deg(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg)[0]
+    hour_angle, dec_date = _site_frame(times_utc, ra_deg, dec_deg, longitude_deg)
+    return _elevation_deg(hour_angle, dec_date, float(latitude_deg))
+
+
+def _elevation_deg(hour_angle_deg, dec_deg, latitude_deg):
+    """Geometric elevation [deg] from hour angle and declination (Meeus eq. 13.6)."""
+    phi = np.radians(latitude_deg)
+    d = np.radians(dec_deg)
+    sin_e = np.sin(phi) * np.sin(d) + np.cos(phi) * np.cos(d) * np.cos(np.radians(hour_angle_deg))
+    return np.degrees(np.arcsin(np.clip(sin_e, -1.0, 1.0)))
 
 
 def minutes_above_elevation(
@@ -223,8 +238,18 @@ def minutes_above_elevation(
     ----------
     Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12, 13, 15, 21.
     """
+    return elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg,
+                                       min_elevation_deg, horizon_min)[1]
+
+
+def elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg,
+                                min_elevation_deg, horizon_min=1440.0):
+    """Elevation now [deg] and minutes above ``min_elevation_deg`` [min], both (n, m), in one pass.
+
+    Same arguments and conventions as :func:`minutes_above_elevation`.
+    """
     hour_angle, dec_date = _site_frame(times_utc, ra_deg, dec_deg, longitude_deg)
-    elevation, _az = _altaz_from_hour_angle(hour_angle, dec_date, float(latitude_deg))
+    elevation = _elevation_deg(hour_angle, dec_date, float(latitude_deg))
     limit = np.atleast_1d(np.asarray(min_elevation_deg, dtype=float)).ravel()[None, :]
     phi = np.radians(float(latitude_deg))
     dec = np.radians(dec_date)
@@ -236,4 +261,4 @@ def minutes_above_elevation(
     minutes = np.where(never_sets, np.inf, minutes)
     minutes = np.where(elevation >= limit, minutes, 0.0)
     minutes = np.minimum(minutes, float(horizon_min))
-    return np.where(np.isnan(elevation), np.nan, minutes)
+    return elevation, np.where(np.isnan(elevation), np.nan, minutes)
