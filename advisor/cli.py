@@ -16,7 +16,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import __version__
+from . import __version__, cli_replay
 from .decision import EXIT_CODES, explain
 from .errors import AdvisorError, InsufficientData, UsageError
 from .features import CATALOGUE
@@ -240,13 +240,14 @@ def cmd_reference_list(args) -> int:
     return 0
 
 
-def _add_evaluation_options(p: argparse.ArgumentParser) -> None:
+def _add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) -> None:
     p.add_argument("--feed", metavar="FEED", help="weather feed, CSV or JSON Lines (default: the site's feed)")
     p.add_argument("--site", metavar="SITE.yaml", help="site file (default: the bundled invented demo site)")
     p.add_argument("--freq", default="86", metavar="FREQ",
                    help="target frequency: 86, 86GHz, or a wavelength like 3.5mm (default 86 GHz)")
-    p.add_argument("--at", metavar="TIME", help="evaluation time, ISO 8601 with Z or offset (default: now; "
-                   "the last sample for the demo feed)")
+    if with_at:
+        p.add_argument("--at", metavar="TIME", help="evaluation time, ISO 8601 with Z or offset (default: now; "
+                       "the last sample for the demo feed)")
     p.add_argument("--references", metavar="REFS.csv", help="reference-scan registry (default: the site's)")
     p.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
                    help="extra rule files layered over the defaults and the site's")
@@ -286,6 +287,7 @@ def build_parser() -> argparse.ArgumentParser:
     ref.set_defaults(func=lambda a: _missing_action(ref))
 
     # Further commands register here, one line each: module.add_parser(sub, _add_evaluation_options)
+    cli_replay.add_parser(sub, _add_evaluation_options)
     return parser
 
 

@@ -1,0 +1,218 @@
+"""``advisor replay``: evaluate every row of an archive and report hours, scores and rule changes."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from zoneinfo import ZoneInfo
+
+import numpy as np
+import pandas as pd
+
+from .decision import VERDICTS
+from .errors import UsageError
+from .references import read_registry
+from .replay import (LETTERS, compare_rule_sets, dominant_letters, hours_by, read_attempts, replay_verdicts,
+                     score_attempts, step_hours)
+
+PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
+
+
+def add_parser(sub, add_evaluation_options) -> None:
+    p = sub.add_parser(
+        "replay", help="replay an archive: hours per verdict, scores against attempts, rule-set changes",
+        description="Evaluate every row of a weather archive with the same rules and decision as "
+                    "`check`, then summarise hours per verdict (by month and hour of day), score the "
+                    "advice against recorded attempts, and compare two rule sets.")
+    add_evaluation_options(p, with_at=False)
+    p.add_argument("--history", metavar="ATTEMPTS.csv",
+                   help="recorded attempts: time, method (scan|astronomical), usable (yes/no)")
+    p.add_argument("--compare-rules", metavar="FILE.yaml", nargs="+", action="extend",
+                   help="a second rule set (layered like --rules) to compare with")
+    p.add_argument("--from", dest="time_from", metavar="TIME", help="first instant (ISO 8601 with Z/offset)")
+    p.add_argument("--to", dest="time_to", metavar="TIME", help="last instant (ISO 8601 with Z/offset)")
+    p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
+    p.add_argument("--csv", metavar="FILE", help="write one row per evaluated time: time, verdict")
+    p.set_defaults(func=cmd_replay)
+
+
+def _progress(total: int):
+    """A progress callback drawing on stderr for long archives on a terminal, else a no-op."""
+    if total < PROGRESS_ROWS or not sys.stderr.isatty():
+        return None, None
+    from rich.console import Console
+    from rich.progress import Progress
+
+    progress = Progress(console=Console(stderr=True), transient=True)
+    task = progress.add_task("replaying", total=total)
+    progress.start()
+    return (lambda done, _total: progress.update(task, completed=done)), progress
+
+
+def cmd_replay(args: argparse.Namespace) -> int:
+    from .cli import load_inputs, load_ruleset, parse_at
+
+    if args.feed is None:
+        raise UsageError("replay needs an archive", field="--feed", hint="pass --feed ARCHIVE.csv")
+    inputs = load_inputs(args)
+    frame = inputs.feed.frame
+    frame = frame[frame["kind"] == "observed"]
+    t_from, t_to = parse_at(args.time_from), parse_at(args.time_to)
+    if t_from is not None and t_to is not None and t_to <= t_from:
+        raise UsageError("--to must be after --from", field="--to")
+    times = pd.DatetimeIndex(frame["time"]).as_unit("ns")
+    keep = np.ones(len(times), dtype=bool)
+    if t_from is not None:
+        keep &= times >= t_from
+    if t_to is not None:
+        keep &= times <= t_to
+    times = times[keep]
+    if len(times) == 0:
+        raise UsageError("no archive rows in the chosen period", field="--from/--to",
+                         hint=f"the archive covers {inputs.feed.quality.first_time_utc} to {inputs.feed.quality.last_time_utc}")
+    registry = read_registry(inputs.registry_path)
+    odds = getattr(inputs, "odds", None)
+    on_chunk, progress = _progress(len(times) * (2 if args.compare_rules else 1))
+    try:
+        base = replay_verdicts(frame, times, inputs.site, registry, inputs.rules, inputs.freq_ghz, odds,
+                               on_chunk=on_chunk)
+        other = None
+        if args.compare_rules:
+            other_rules = load_ruleset(inputs.site, (args.rules or []) + args.compare_rules)
+            offset = len(times)
+            other = replay_verdicts(frame, times, inputs.site, registry, other_rules, inputs.freq_ghz, odds,
+                                    on_chunk=(lambda d, t: on_chunk(offset + d, 2 * offset)) if on_chunk else None)
+    finally:
+        if progress:
+            progress.stop()
+    hours = step_hours(times, inputs.site.feed.max_gap_min)
+    local = times.tz_convert(ZoneInfo(inputs.site.time_zone))
+    summary = {
+        "feed": inputs.feed.source,
+        "from_utc": times[0].strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "to_utc": times[-1].strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "rows": int(len(times)),
+        "target_freq_ghz": inputs.freq_ghz,
+        "rules": len(inputs.rules),
+        "hours": _hours_dict(base.verdict, hours),
+        "by_month": _table_dict(hours_by(base.verdict, hours, local.strftime("%Y-%m"))),
+        "by_local_hour": _table_dict(hours_by(base.verdict, hours, local.hour)),
+        "attempts": None,
+        "comparison": None,
+    }
+    if args.history:
+        attempts = read_attempts(args.history)
+        summary["attempts"] = score_attempts(times, base.verdict, base.rule_eval, attempts,
+                                             inputs.site.feed.max_feed_age_min)
+    if other is not None:
+        comparison = compare_rule_sets(base.verdict, other.verdict, base.rule_eval, other.rule_eval, hours)
+        comparison["hours_b"] = _hours_dict(other.verdict, hours)
+        if args.history:
+            comparison["attempts_b"] = score_attempts(times, other.verdict, other.rule_eval, attempts,
+                                                      inputs.site.feed.max_feed_age_min)
+        summary["comparison"] = comparison
+    if args.csv:
+        _write_csv(args.csv, times, base.verdict, other.verdict if other is not None else None)
+    if args.json:
+        print(json.dumps(summary, indent=2, allow_nan=False))
+    else:
+        _print_summary(summary, base.verdict, hours, local)
+    return 0
+
+
+def _hours_dict(verdict: np.ndarray, hours: np.ndarray) -> dict:
+    return {v: round(float(hours[verdict == v].sum()), 2) for v in VERDICTS}
+
+
+def _table_dict(table: pd.DataFrame) -> dict:
+    return {str(k): {v: round(float(table.loc[k, v]), 2) for v in table.columns} for k in table.index}
+
+
+def _write_csv(path: str, times: pd.DatetimeIndex, verdict: np.ndarray, verdict_b) -> None:
+    from .references import atomic_write_text
+
+    out = pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ"), "verdict": verdict})
+    if verdict_b is not None:
+        out["verdict_compared"] = verdict_b
+    try:
+        atomic_write_text(path, out.to_csv(index=False))
+    except OSError as exc:
+        raise UsageError(f"cannot write {path}: {exc.strerror}", field="--csv") from None
+
+
+def _print_summary(summary: dict, verdict: np.ndarray, hours: np.ndarray, local: pd.DatetimeIndex) -> None:
+    from rich import box
+    from rich.console import Console
+    from rich.table import Table
+    from rich.text import Text
+
+    from .render import VERDICT_STYLE
+
+    console = Console(highlight=False)
+    total = sum(summary["hours"].values()) or 1.0
+    console.print(f"Replay of {summary['feed']}")
+    console.print(f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
+                  f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules")
+    line = Text("Hours: ")
+    for v in VERDICTS:
+        line.append(f" {LETTERS[v]} ", style=VERDICT_STYLE[v][1])
+        line.append(f" {v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.1%})  ")
+    console.print(line)
+
+    months = Table(title="Hours per month (site local time)", box=box.SIMPLE_HEAD, title_justify="left")
+    months.add_column("month")
+    for v in VERDICTS:
+        months.add_column(v, justify="right")
+    for month, row in summary["by_month"].items():
+        months.add_row(month, *(f"{row[v]:.1f}" for v in VERDICTS))
+    console.print(months)
+
+    # Heat strip: one line per month, one cell per local hour, the dominant verdict's letter.
+    strip = Text("Dominant verdict by local hour (S scan, A astronomical, P postpone, U undetermined)\n",
+                 style="bold")
+    strip.append("         " + "".join(f"{h:<3d}" for h in range(0, 24, 3)).rstrip() + "\n", style="dim")
+    months_key = local.strftime("%Y-%m")
+    for month in summary["by_month"]:
+        mask = np.asarray(months_key == month)
+        table = hours_by(verdict[mask], hours[mask], local.hour[mask]).reindex(range(24), fill_value=0.0)
+        strip.append(f"{month}  ")
+        for letter in dominant_letters(table):
+            style = next((VERDICT_STYLE[v][1] for v, lt in LETTERS.items() if lt == letter), "dim")
+            strip.append(letter, style=style)
+        strip.append("\n")
+    console.print(strip)
+
+    attempts = summary["attempts"]
+    if attempts:
+        console.print(Text("Against recorded attempts", style="bold underline"))
+        console.print(f"  {attempts['scan_attempts']} scan attempts covered by the archive; scan advised at "
+                      f"{attempts['scan_advised_at_attempts']}")
+        console.print(f"  false go (scan advised, scan failed): {attempts['false_go']} "
+                      f"(rate {_pct(attempts['false_go_rate'])})")
+        console.print(f"  missed (usable scan, advice not scan): {attempts['usable_scans_not_advised']} "
+                      f"(rate {_pct(attempts['missed_rate'])})")
+        if attempts["per_rule"]:
+            rules = Table(box=box.SIMPLE_HEAD)
+            for h in ("rule", "scan attempts when fired", "failed", "false go", "missed"):
+                rules.add_column(h, justify="left" if h == "rule" else "right")
+            for r in attempts["per_rule"]:
+                rules.add_row(r["rule"], str(r["scan_attempts_when_fired"]), str(r["failed_when_fired"]),
+                              str(r["false_go_when_fired"]), str(r["missed_when_fired"]))
+            console.print(rules)
+    comparison = summary["comparison"]
+    if comparison:
+        console.print(Text("Compared rule set", style="bold underline"))
+        console.print(f"  {comparison['hours_changed']:.1f} h change verdict")
+        for t in comparison["transitions"]:
+            console.print(f"    {t['from']} → {t['to']}: {t['hours']:.1f} h")
+        for r in comparison["by_rule"]:
+            console.print(f"    by {r['rule']}: {r['hours_changed']:.1f} h")
+        if "attempts_b" in comparison and attempts:
+            b = comparison["attempts_b"]
+            console.print(f"  false-go rate {_pct(attempts['false_go_rate'])} → {_pct(b['false_go_rate'])}; "
+                          f"missed rate {_pct(attempts['missed_rate'])} → {_pct(b['missed_rate'])}")
+
+
+def _pct(rate) -> str:
+    return "n/a" if rate is None else f"{rate:.0%}"

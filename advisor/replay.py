@@ -1,0 +1,224 @@
+"""Replay: what the advice would have been over an archive, and how it scored.
+
+Pure summaries over the vectorised decisions of every archive row:
+
+* :func:`step_hours` — how many hours each row stands for (gaps count for nothing);
+* :func:`hours_by` — hours per verdict, per month or per local hour of day;
+* :func:`score_attempts` — against recorded attempts: false go (scan advised, scan failed) and
+  missed (usable scan while the advice was not scan), overall and per rule that fired;
+* :func:`compare_rule_sets` — hours that change verdict between two rule sets, by rule.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .decision import VERDICTS
+from .errors import FeedError
+from .rules.ruleset import RuleEvaluation
+
+LETTERS = {"scan": "S", "astronomical": "A", "postpone": "P", "undetermined": "U"}
+_TRUE = {"yes", "y", "true", "1", "usable", "ok", "success"}
+_FALSE = {"no", "n", "false", "0", "unusable", "failed", "fail"}
+
+
+@dataclass(frozen=True)
+class Attempts:
+    """Recorded measurement attempts: UTC times, method, whether the result was usable."""
+
+    times_utc: pd.DatetimeIndex
+    method: np.ndarray
+    usable: np.ndarray
+    source: str
+
+    def __len__(self) -> int:
+        return len(self.times_utc)
+
+
+def read_attempts(path: Path | str) -> Attempts:
+    """Read an attempts/history CSV: ``time``, ``method`` (scan|astronomical), ``usable``
+    (yes/no) — or, without ``usable``, ``residual_rms_um`` with ``usable_max_rms_um``."""
+    path = Path(path)
+    source = str(path)
+    try:
+        table = pd.read_csv(path)
+    except FileNotFoundError:
+        raise FeedError("history file not found", source=source, hint="check the --history path") from None
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise FeedError(f"cannot read history: {str(exc).splitlines()[0]}", source=source) from None
+    time_col = next((c for c in ("time", "start_utc", "time_utc", "start") if c in table.columns), None)
+    if time_col is None or "method" not in table.columns:
+        raise FeedError("history needs columns 'time' and 'method'", source=source, line=1,
+                        hint="columns: time, method (scan|astronomical), usable (yes/no)")
+    try:
+        times = pd.to_datetime(table[time_col], utc=True, format="ISO8601")
+    except (ValueError, TypeError):
+        raise FeedError("cannot read the history's times", source=source, field=time_col,
+                        hint="ISO 8601 with Z or an offset") from None
+    method = table["method"].astype(str).str.strip().str.lower().to_numpy()
+    bad = ~np.isin(method, ("scan", "astronomical"))
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise FeedError(f"method {table['method'].iloc[i]!r} is neither scan nor astronomical", source=source,
+                        line=i + 2, field="method")
+    if "usable" in table.columns:
+        text = table["usable"].astype(str).str.strip().str.lower()
+        unknown = ~text.isin(_TRUE | _FALSE)
+        if unknown.any():
+            i = int(np.flatnonzero(unknown.to_numpy())[0])
+            raise FeedError(f"usable {table['usable'].iloc[i]!r} is not yes/no", source=source, line=i + 2,
+                            field="usable")
+        usable = text.isin(_TRUE).to_numpy()
+    elif {"residual_rms_um", "usable_max_rms_um"} <= set(table.columns):
+        usable = (table["residual_rms_um"] <= table["usable_max_rms_um"]).to_numpy()
+    else:
+        raise FeedError("history needs a 'usable' column (yes/no)", source=source, line=1)
+    order = np.argsort(times.to_numpy(), kind="stable")
+    return Attempts(pd.DatetimeIndex(times.iloc[order]).as_unit("ns"), method[order], usable[order], source)
+
+
+def step_hours(times_utc: pd.DatetimeIndex, max_gap_min: float) -> np.ndarray:
+    """Hours each row stands for: the time to the next row, nothing across a gap."""
+    t = times_utc.as_unit("ns").asi8
+    if len(t) == 0:
+        return np.zeros(0)
+    dt_min = np.diff(t) / 6e10
+    typical = float(np.median(dt_min)) if len(dt_min) else 1.0
+    step = np.append(dt_min, typical)
+    return np.where(step <= max_gap_min, step, 0.0) / 60.0
+
+
+def hours_by(verdict: np.ndarray, hours: np.ndarray, keys) -> pd.DataFrame:
+    """Hours per verdict (columns) for each value of ``keys`` (rows); all verdicts as columns."""
+    frame = pd.DataFrame({"key": np.asarray(keys), "verdict": verdict, "hours": hours})
+    table = frame.pivot_table(index="key", columns="verdict", values="hours", aggfunc="sum", fill_value=0.0)
+    return table.reindex(columns=list(VERDICTS), fill_value=0.0)
+
+
+def dominant_letters(table: pd.DataFrame) -> list[str]:
+    """The letter of the verdict with most hours in each row of a :func:`hours_by` table ('·' if none)."""
+    values = table.to_numpy()
+    best = values.argmax(axis=1)
+    return ["·" if values[i].sum() == 0 else LETTERS[table.columns[best[i]]] for i in range(len(table))]
+
+
+def _advice_at(times_utc: pd.DatetimeIndex, verdict: np.ndarray, at: pd.DatetimeIndex,
+               max_age_min: float) -> np.ndarray:
+    """The replayed verdict in force at each time of ``at`` (None-like '' if no row close before)."""
+    t = times_utc.as_unit("ns").asi8
+    q = at.as_unit("ns").asi8
+    pos = np.searchsorted(t, q, side="right") - 1
+    ok = (pos >= 0) & ((q - t[np.clip(pos, 0, None)]) <= max_age_min * 6e10)
+    return np.where(ok, verdict[np.clip(pos, 0, None)], "")
+
+
+def score_attempts(times_utc: pd.DatetimeIndex, verdict: np.ndarray, rule_eval: RuleEvaluation,
+                   attempts: Attempts, max_age_min: float = 15.0) -> dict:
+    """False-go and missed rates of the advice against recorded attempts, overall and per rule."""
+    advice = _advice_at(times_utc, verdict, attempts.times_utc, max_age_min)
+    t = times_utc.as_unit("ns").asi8
+    pos = np.clip(np.searchsorted(t, attempts.times_utc.as_unit("ns").asi8, side="right") - 1, 0, None)
+    covered = advice != ""
+    scan = (attempts.method == "scan") & covered
+    advised_scan = scan & (advice == "scan")
+    false_go = advised_scan & ~attempts.usable
+    missed = scan & (advice != "scan") & attempts.usable
+    result = {
+        "attempts": int(len(attempts)),
+        "attempts_covered": int(covered.sum()),
+        "scan_attempts": int(scan.sum()),
+        "scan_advised_at_attempts": int(advised_scan.sum()),
+        "false_go": int(false_go.sum()),
+        "false_go_rate": _rate(false_go.sum(), advised_scan.sum()),
+        "usable_scans_not_advised": int(missed.sum()),
+        "missed_rate": _rate(missed.sum(), (scan & attempts.usable).sum()),
+        "per_rule": [],
+    }
+    for rule_id, fired in rule_eval.fired.items():
+        at_attempt = fired[pos] & scan
+        if not at_attempt.any():
+            continue
+        result["per_rule"].append({
+            "rule": rule_id,
+            "scan_attempts_when_fired": int(at_attempt.sum()),
+            "failed_when_fired": int((at_attempt & ~attempts.usable).sum()),
+            "false_go_when_fired": int((at_attempt & false_go).sum()),
+            "missed_when_fired": int((at_attempt & missed).sum()),
+        })
+    result["per_rule"].sort(key=lambda r: -r["scan_attempts_when_fired"])
+    return result
+
+
+def _rate(num, den) -> float | None:
+    return None if den == 0 else round(float(num) / float(den), 4)
+
+
+def compare_rule_sets(verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: RuleEvaluation,
+                      eval_b: RuleEvaluation, hours: np.ndarray) -> dict:
+    """Hours that change verdict from rule set A to B, as a from→to table and by rule.
+
+    A changed row is attributed to every rule whose firing differs between the two sets there
+    (a rule present in only one set counts as not firing in the other).
+    """
+    changed = verdict_a != verdict_b
+    transitions = []
+    for a in VERDICTS:
+        for b in VERDICTS:
+            mask = changed & (verdict_a == a) & (verdict_b == b)
+            if mask.any():
+                transitions.append({"from": a, "to": b, "hours": round(float(hours[mask].sum()), 2)})
+    by_rule = []
+    none = np.zeros(len(verdict_a), dtype=bool)
+    for rule_id in sorted(set(eval_a.fired) | set(eval_b.fired)):
+        differs = eval_a.fired.get(rule_id, none) != eval_b.fired.get(rule_id, none)
+        mask = changed & differs
+        if mask.any():
+            by_rule.append({"rule": rule_id, "hours_changed": round(float(hours[mask].sum()), 2)})
+    by_rule.sort(key=lambda r: -r["hours_changed"])
+    return {"hours_changed": round(float(hours[changed].sum()), 2), "transitions": transitions, "by_rule": by_rule}
+
+
+LOOKBACK = pd.Timedelta(hours=2)  # history a chunk needs for 10-min wind and 1-h temperature rate
+
+
+@dataclass(frozen=True)
+class Replayed:
+    """Verdicts and rule firings at every evaluated time."""
+
+    times_utc: pd.DatetimeIndex
+    verdict: np.ndarray
+    rule_eval: RuleEvaluation
+
+
+def replay_verdicts(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rules, freq_ghz: float,
+                    odds=None, chunk_rows: int = 100_000, on_chunk=None) -> Replayed:
+    """Evaluate ``times_utc`` in chunks (bounded memory), each with the feed rows it needs.
+
+    ``on_chunk(done_rows, total_rows)`` is called after each chunk (for a progress bar).
+    """
+    from .pipeline import evaluate
+
+    frame_ns = pd.DatetimeIndex(frame["time"]).as_unit("ns").asi8
+    t_ns = times_utc.as_unit("ns").asi8
+    verdicts, fired, errors = [], {r.id: [] for r in rules}, {}
+    for start in range(0, len(t_ns), chunk_rows):
+        chunk = times_utc[start:start + chunk_rows]
+        lo = np.searchsorted(frame_ns, chunk[0].value - LOOKBACK.value, side="left")
+        hi = np.searchsorted(frame_ns, chunk[-1].value, side="right")
+        decisions = evaluate(frame.iloc[lo:hi], chunk, site, registry, rules, freq_ghz, odds)
+        verdicts.append(decisions.verdict)
+        for rule_id, mask in decisions.rule_eval.fired.items():
+            fired[rule_id].append(mask)
+        for rule_id, err in decisions.rule_eval.error_um.items():
+            errors.setdefault(rule_id, []).append(err)
+        if on_chunk:
+            on_chunk(min(start + chunk_rows, len(t_ns)), len(t_ns))
+    if not verdicts:
+        return Replayed(times_utc, np.array([], dtype=object), RuleEvaluation({}, {}))
+    return Replayed(times_utc, np.concatenate(verdicts),
+                    RuleEvaluation({k: np.concatenate(v) for k, v in fired.items()},
+                                   {k: np.concatenate(v) for k, v in errors.items()}))

@@ -1,0 +1,114 @@
+"""Replay: hours per verdict, scoring against attempts, and rule-set comparison."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from advisor.cli import main
+from advisor.replay import Attempts, compare_rule_sets, hours_by, score_attempts, step_hours
+from advisor.rules.ruleset import RuleEvaluation
+
+ROOT = Path(__file__).resolve().parent.parent
+DEMO = ROOT / "example_weather"
+
+
+def _times(n, step_min=10, start="2026-01-16T00:00:00Z"):
+    return pd.date_range(start, periods=n, freq=f"{step_min}min").as_unit("ns")
+
+
+def test_step_hours_counts_nothing_across_a_gap():
+    times = _times(6).delete(3)  # a 20-minute hole between rows 2 and 3
+    hours = step_hours(times, max_gap_min=15)
+    assert hours.tolist() == pytest.approx([10 / 60, 10 / 60, 0.0, 10 / 60, 10 / 60])
+
+
+def test_hours_by_sums_and_keeps_every_verdict_column():
+    verdict = np.array(["scan", "scan", "postpone", "scan"], dtype=object)
+    table = hours_by(verdict, np.full(4, 0.5), ["a", "b", "a", "a"])
+    assert list(table.columns) == ["scan", "astronomical", "postpone", "undetermined"]
+    assert table.loc["a", "scan"] == 1.0 and table.loc["a", "postpone"] == 0.5 and table.loc["b", "scan"] == 0.5
+
+
+def test_false_go_and_missed_against_attempts():
+    times = _times(6)
+    verdict = np.array(["scan", "scan", "astronomical", "astronomical", "scan", "postpone"], dtype=object)
+    fired = {"windy": np.array([False, True, True, False, False, False])}
+    attempts = Attempts(
+        times_utc=times[[0, 1, 2, 3, 5]] + pd.Timedelta(minutes=2),
+        method=np.array(["scan", "scan", "scan", "astronomical", "scan"]),
+        usable=np.array([True, False, True, True, False]),
+        source="test")
+    score = score_attempts(times, verdict, RuleEvaluation(fired, {}), attempts, max_age_min=15)
+    assert score["scan_attempts"] == 4
+    assert score["scan_advised_at_attempts"] == 2          # rows 0 and 1
+    assert score["false_go"] == 1 and score["false_go_rate"] == 0.5   # row 1 failed
+    assert score["usable_scans_not_advised"] == 1 and score["missed_rate"] == 0.5  # row 2
+    windy = next(r for r in score["per_rule"] if r["rule"] == "windy")
+    assert windy == {"rule": "windy", "scan_attempts_when_fired": 2, "failed_when_fired": 1,
+                     "false_go_when_fired": 1, "missed_when_fired": 1}
+
+
+def test_attempts_outside_the_archive_are_not_scored():
+    times = _times(3)
+    attempts = Attempts(pd.DatetimeIndex([times[-1] + pd.Timedelta(hours=5)]), np.array(["scan"]),
+                        np.array([True]), "test")
+    score = score_attempts(times, np.array(["scan"] * 3, dtype=object), RuleEvaluation({}, {}), attempts)
+    assert score["attempts_covered"] == 0 and score["missed_rate"] is None
+
+
+def test_compare_attributes_changes_to_the_rule_that_differs():
+    a = np.array(["astronomical", "astronomical", "scan"], dtype=object)
+    b = np.array(["scan", "astronomical", "scan"], dtype=object)
+    eval_a = RuleEvaluation({"fog_blinds_laser": np.array([True, True, False])}, {})
+    eval_b = RuleEvaluation({}, {})  # the rule is disabled in B
+    result = compare_rule_sets(a, b, eval_a, eval_b, np.full(3, 0.25))
+    assert result["hours_changed"] == 0.25
+    assert result["transitions"] == [{"from": "astronomical", "to": "scan", "hours": 0.25}]
+    assert result["by_rule"] == [{"rule": "fog_blinds_laser", "hours_changed": 0.25}]
+
+
+@pytest.fixture()
+def sample_args():
+    return ["replay", "--site", str(DEMO / "larch_basin.yaml"), "--feed", str(DEMO / "larch_basin_archive_sample.csv"),
+            "--references", str(DEMO / "larch_basin_archive_references.csv"),
+            "--from", "2026-01-10T00:00:00Z", "--to", "2026-01-20T00:00:00Z"]
+
+
+def test_replay_sample_json_hours_add_up(capsys, sample_args):
+    assert main(sample_args + ["--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    total = sum(doc["hours"].values())
+    assert total == pytest.approx(10 * 24, abs=0.1)
+    by_month = sum(sum(m.values()) for m in doc["by_month"].values())
+    assert by_month == pytest.approx(total, abs=1e-6)
+
+
+def test_replay_compare_rules_disabling_fog_rule(capsys, tmp_path, sample_args):
+    override = tmp_path / "no_fog.yaml"
+    override.write_text("rules:\n  - id: fog_blinds_laser\n    enabled: false\n")
+    assert main(sample_args + ["--compare-rules", str(override), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    comp = doc["comparison"]
+    # Only scan can gain when a scan-blocking rule is disabled.
+    assert all(t["to"] == "scan" for t in comp["transitions"])
+    assert all(r["rule"] == "fog_blinds_laser" for r in comp["by_rule"])
+    assert comp["hours_b"]["scan"] >= doc["hours"]["scan"]
+
+
+def test_replay_csv_export(tmp_path, sample_args):
+    out = tmp_path / "steps.csv"
+    assert main(sample_args + ["--csv", str(out), "--json"]) == 0
+    table = pd.read_csv(out)
+    assert list(table.columns) == ["time", "verdict"]
+    assert set(table["verdict"]) <= {"scan", "astronomical", "postpone", "undetermined"}
+    assert table["time"].str.endswith("Z").all()
+
+
+def test_replay_without_feed_is_usage_error(capsys):
+    assert main(["replay"]) == 2
+    assert "--feed" in capsys.readouterr().err
