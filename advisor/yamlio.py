@@ -14,6 +14,9 @@ import yaml
 
 from .errors import AdvisorError
 
+# libyaml's safe loader where PyYAML was built with it (the wheels are), else the pure-Python one.
+_SafeLoader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
+
 MAX_YAML_BYTES = 2_000_000
 MAX_YAML_NODES = 200_000
 
@@ -57,8 +60,9 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError]):
         if stripped.startswith("\t"):
             raise error_type("tab used for indentation", source=source, line=number,
                              hint="indent with spaces")
+    loader = _SafeLoader(text)
     try:
-        root = yaml.compose(text, Loader=yaml.SafeLoader)
+        root = loader.get_single_node()
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         line = mark.line + 1 if mark else None
@@ -72,7 +76,7 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError]):
         return None, {}
     lines = _node_lines(root, error_type, source)
     try:
-        data = yaml.SafeLoader(text).get_single_data()
+        data = loader.construct_document(root)
     except yaml.constructor.ConstructorError as exc:
         mark = exc.problem_mark
         raise error_type(f"YAML tag not allowed: {exc.problem}", source=source,
