@@ -24,6 +24,7 @@ from .physics.moisture import dew_point_c
 from .site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
 
 MAX_FEED_BYTES = 2_000_000_000
+MAX_OUT_OF_ORDER_FRACTION = 0.01
 
 #: Physically plausible range of each canonical column [its SI unit] (DESIGN §4).
 PLAUSIBLE_RANGE = {
@@ -136,6 +137,33 @@ def _read_jsonl(path: Path) -> pd.DataFrame:
     if not rows:
         raise FeedError("feed has no rows", source=str(path))
     return pd.DataFrame(rows).astype(object)
+
+
+def _numeric(raw: pd.Series, column: str, source: str, line_offset: int) -> np.ndarray:
+    """A feed column as floats; a non-empty value that is not a number is an error."""
+    if pd.api.types.is_float_dtype(raw) or pd.api.types.is_integer_dtype(raw):
+        return raw.to_numpy(dtype=float)
+    if pd.api.types.is_bool_dtype(raw):
+        raise FeedError("true/false where a number is expected", source=source, line=line_offset, field=column)
+    values = pd.to_numeric(raw, errors="coerce")
+    bad = values.isna() & raw.notna() & (raw.astype(str).str.strip() != "")
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise FeedError(f"{raw.iloc[i]!r} is not a number", source=source, line=i + line_offset, field=column,
+                        hint="leave the cell empty for a missing value")
+    return values.to_numpy(dtype=float)
+
+
+def _refuse_mixed_humidity(values: np.ndarray, column: str, source: str, line_offset: int) -> None:
+    """RH in percent with some rows written as fractions (0..1) is ambiguous: refuse it."""
+    finite = np.isfinite(values)
+    looks_fraction = finite & (values > 0) & (values <= 1.0)
+    looks_percent = finite & (values > 1.5)
+    if looks_fraction.sum() >= 3 and looks_percent.any():
+        i = int(np.flatnonzero(looks_fraction)[0])
+        raise FeedError("relative humidity looks like a fraction in some rows and percent in others",
+                        source=source, line=i + line_offset, field=column,
+                        hint="write RH the same way in every row; map it with unit: fraction if it is 0..1")
 
 
 def _is_number(text) -> bool:
@@ -254,10 +282,10 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
                                  "map the logger's column in the site file under feed.columns")
         else:
             continue
-        if pd.api.types.is_float_dtype(raw) or pd.api.types.is_integer_dtype(raw):
-            values = raw.to_numpy(dtype=float)
-        else:
-            values = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float)
+        column = spec.source_column if spec is not None and spec.source_column in table.columns else name
+        values = _numeric(raw, column, source, line_offset)
+        if name == "rel_humidity_pct" and unit == "%":
+            _refuse_mixed_humidity(values, column, source, line_offset)
         out[name] = np.asarray(units.convert(values, unit, CANONICAL_UNITS[name]), dtype=float)
 
     frame = pd.DataFrame(out)
@@ -298,13 +326,29 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
     else:
         frame["dew_point_c"] = derived
 
-    # Order and duplicates.
+    # Order and duplicates: a few late rows are sorted in, exact repeats dropped (both counted);
+    # a feed running backwards or repeating a time with other values is refused.
     t = pd.DatetimeIndex(frame["time"]).asi8
-    n_out_of_order = int((t[1:] < t[:-1]).sum()) if len(t) > 1 else 0
+    backwards = np.flatnonzero(t[1:] < t[:-1]) + 1 if len(t) > 1 else np.array([], dtype=int)
+    n_out_of_order = int(len(backwards))
+    if n_out_of_order > max(1, MAX_OUT_OF_ORDER_FRACTION * len(t)):
+        raise FeedError(f"{n_out_of_order} rows go back in time, first at this line", source=source,
+                        line=int(backwards[0]) + line_offset,
+                        hint="the logger clock or the file order is wrong; sort the feed by time")
     frame = frame.sort_values("time", kind="stable")
-    dup = frame["time"].duplicated(keep="first")
+    dup = frame["time"].duplicated(keep="first").to_numpy()
+    if dup.any():
+        value_cols = [c for c in CANONICAL_COLUMNS if c in frame]
+        repeated = frame[frame["time"].duplicated(keep=False).to_numpy()]
+        conflicting = repeated.groupby("time")[value_cols].nunique(dropna=False).gt(1).any(axis=1)
+        if conflicting.any():
+            when = conflicting[conflicting].index[0]
+            i = int(np.flatnonzero(t == when.value)[1])
+            raise FeedError(f"time {_iso(when)} appears twice with different values", source=source,
+                            line=i + line_offset, field=time_col,
+                            hint="remove the duplicate rows; the advisor will not guess which is right")
     n_duplicates = int(dup.sum())
-    frame = frame[~dup.to_numpy()].reset_index(drop=True)
+    frame = frame[~dup].reset_index(drop=True)
     dt_min = frame["time"].diff().dt.total_seconds().to_numpy() / 60.0
     frame["q_gap_before"] = np.nan_to_num(dt_min, nan=0.0) > layout.max_gap_min
     frame["good"] = ~(frame["q_implausible"] | frame["q_missing"]).to_numpy()
