@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import json
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -238,6 +238,11 @@ def _parse_times(raw: pd.Series, layout: FeedLayout, source: str, line_offset: i
             return local.dt.tz_convert("UTC")
     else:
         i = int(np.flatnonzero(~has_offset.to_numpy())[0])
+        try:
+            pd.Timestamp(values.iloc[i])
+        except (ValueError, TypeError):
+            raise FeedError(f"cannot read timestamp {values.iloc[i]!r}", source=source, line=i + line_offset,
+                            field=layout.time_column, hint="use ISO 8601, e.g. 2026-01-15T09:00:00Z") from None
         raise FeedError(f"timestamp {values.iloc[i]!r} has no UTC offset while others do",
                         source=source, line=i + line_offset, field=layout.time_column,
                         hint="write every time with an offset or Z")
@@ -265,7 +270,7 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         if len(table.columns) == 1 and any(ch in str(table.columns[0]) for ch in ";\t|"):
             hint = "the file seems to use another delimiter than ','; save it as comma-separated"
         raise FeedError(f"no time column '{layout.time_column}'", source=source, line=1, hint=hint)
-    times = _parse_times(table[time_col], layout, source, line_offset)
+    times = _parse_times(table[time_col], replace(layout, time_column=time_col), source, line_offset)
 
     mapping = {c.canonical: c for c in layout.columns}
     out = {}
