@@ -10,6 +10,8 @@ them.  ``canonical_frame(df, layout)`` does the same for an in-memory table (tes
 
 from __future__ import annotations
 
+import contextlib
+import io
 import json
 import re
 from dataclasses import dataclass, replace
@@ -23,7 +25,8 @@ from .errors import FeedError
 from .physics.moisture import dew_point_c
 from .site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
 
-MAX_FEED_BYTES = 2_000_000_000
+MAX_FULL_READ_BYTES = 600_000_000   # whole-file reads (replay, outlook); bounded memory
+CHECK_TAIL_BYTES = 16_000_000       # an instant's call reads at most this much of a big feed
 MAX_OUT_OF_ORDER_FRACTION = 0.01
 
 #: Physically plausible range of each canonical column [its SI unit] (DESIGN §4).
@@ -80,7 +83,29 @@ def _iso(ts: pd.Timestamp | None) -> str | None:
     return None if ts is None or pd.isna(ts) else ts.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
-def _read_table(path: Path) -> pd.DataFrame:
+def _tail_text(path: Path, tail_bytes: int, is_jsonl: bool) -> tuple[str, int]:
+    """Header (CSV) plus the last ``tail_bytes`` of the file, cut at a line start; and the 1-based
+    line number of the first data line kept (counted in the skipped part, in bounded memory)."""
+    size = path.stat().st_size
+    start = size - tail_bytes
+    with path.open("rb") as fh:
+        header = b"" if is_jsonl else fh.readline()
+        fh.seek(max(start, len(header)))
+        fh.readline()  # drop the partial line
+        cut = fh.tell()
+        body = fh.read()
+        fh.seek(0)
+        newlines, done = 0, 0
+        while done < cut:
+            block = fh.read(min(1 << 24, cut - done))
+            newlines += block.count(b"\n")
+            done += len(block)
+    text = (header + body).decode("utf-8", errors="strict")
+    return text, newlines + 1
+
+
+def _read_table(path: Path, tail_bytes: int | None = None) -> tuple[pd.DataFrame, int]:
+    """The raw table and the file line of its first data row."""
     source = str(path)
     try:
         size = path.stat().st_size
@@ -92,9 +117,11 @@ def _read_table(path: Path) -> pd.DataFrame:
         raise FeedError("is a directory, expected a CSV or JSON Lines file", source=source)
     if size == 0:
         raise FeedError("feed file is empty", source=source, hint="expected a header line and data rows")
-    if size > MAX_FEED_BYTES:
-        raise FeedError(f"feed is {size / 1e9:.1f} GB, above the 2 GB limit", source=source,
-                        hint="split the archive by month")
+    tail = tail_bytes is not None and size > 2 * tail_bytes
+    if not tail and size > MAX_FULL_READ_BYTES:
+        raise FeedError(f"feed is {size / 1e6:.0f} MB; whole-file commands read at most "
+                        f"{MAX_FULL_READ_BYTES / 1e6:.0f} MB", source=source,
+                        hint="split the archive by month and process each part")
     with path.open("rb") as fh:
         head = fh.read(4096)
     if b"\x00" in head:
@@ -106,9 +133,14 @@ def _read_table(path: Path) -> pd.DataFrame:
             raise FeedError("not UTF-8 text", source=source, hint="save the feed as UTF-8 CSV") from None
     is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or head.lstrip().startswith(b"{")
     try:
+        if tail:
+            text, first_line = _tail_text(path, tail_bytes, is_jsonl)
+            if is_jsonl:
+                return _read_jsonl(path, text.splitlines(), first_line), first_line
+            return pd.read_csv(io.StringIO(text), low_memory=False), first_line
         if is_jsonl:
-            return _read_jsonl(path)
-        return pd.read_csv(path, low_memory=False)
+            return _read_jsonl(path), 1
+        return pd.read_csv(path, low_memory=False), 2
     except FeedError:
         raise
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
@@ -120,10 +152,14 @@ def _read_table(path: Path) -> pd.DataFrame:
         raise FeedError("feed has no header or rows", source=source) from None
 
 
-def _read_jsonl(path: Path) -> pd.DataFrame:
+def _nullcontext(value):
+    return contextlib.nullcontext(value)
+
+
+def _read_jsonl(path: Path, lines=None, first_line: int = 1) -> pd.DataFrame:
     rows = []
-    with path.open("r", encoding="utf-8") as fh:
-        for number, raw in enumerate(fh, start=1):
+    with (path.open("r", encoding="utf-8") if lines is None else _nullcontext(lines)) as fh:
+        for number, raw in enumerate(fh, start=first_line):
             if not raw.strip():
                 continue
             try:
@@ -368,9 +404,12 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
     return Feed(frame=frame, quality=quality, source=source)
 
 
-def read_feed(path: Path | str, layout: FeedLayout) -> Feed:
-    """Read a CSV or JSON Lines feed file and return its canonical :class:`Feed`."""
+def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = None) -> Feed:
+    """Read a CSV or JSON Lines feed file and return its canonical :class:`Feed`.
+
+    With ``tail_bytes``, a file larger than twice that is read only from its last
+    ``tail_bytes`` (plus the header): enough for an instant's call, in bounded memory.
+    """
     path = Path(path)
-    table = _read_table(path)
-    is_jsonl = not isinstance(table.columns, pd.RangeIndex) and path.suffix.lower() in (".jsonl", ".ndjson")
-    return canonical_frame(table, layout, source=str(path), line_offset=1 if is_jsonl else 2)
+    table, first_line = _read_table(path, tail_bytes)
+    return canonical_frame(table, layout, source=str(path), line_offset=first_line)
