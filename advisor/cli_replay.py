@@ -154,10 +154,8 @@ def _print_summary(summary: dict, verdict: np.ndarray, hours: np.ndarray, local:
     console.print(f"Replay of {summary['feed']}")
     console.print(f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
                   f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules")
-    line = Text("Hours: ")
-    for v in VERDICTS:
-        line.append(f" {LETTERS[v]} ", style=VERDICT_STYLE[v][1])
-        line.append(f" {v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.1%})  ")
+    line = Text("Hours per verdict: ")
+    line.append(", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS))
     console.print(line)
 
     months = Table(title="Hours per month (site local time)", box=box.SIMPLE_HEAD, title_justify="left")
@@ -169,8 +167,11 @@ def _print_summary(summary: dict, verdict: np.ndarray, hours: np.ndarray, local:
     console.print(months)
 
     # Heat strip: one line per month, one cell per local hour, the dominant verdict's letter.
-    strip = Text("Dominant verdict by local hour (S scan, A astronomical, P postpone, U undetermined)\n",
-                 style="bold")
+    strip = Text("Dominant verdict by local hour of day\n", style="bold")
+    for v in VERDICTS:
+        strip.append(f" {LETTERS[v]} ", style=VERDICT_STYLE[v][1])
+        strip.append(f" {v}  ")
+    strip.append("\n")
     strip.append("         " + "".join(f"{h:<3d}" for h in range(0, 24, 3)).rstrip() + "\n", style="dim")
     months_key = local.strftime("%Y-%m")
     for month in summary["by_month"]:
