@@ -95,6 +95,12 @@ class Inputs:
     freq_ghz: float
     is_demo: bool
     notes: tuple[str, ...]
+    model: object = None          # advisor.model.SiteModel, or None: rules and error budget only
+
+    @property
+    def odds(self):
+        """The site model's odds function for :func:`advisor.pipeline.evaluate`, or None (rules only)."""
+        return self.model.odds if self.model is not None else None
 
 
 def load_ruleset(site: Site, extra: list[str] | None) -> RuleSet:
@@ -126,7 +132,10 @@ def load_inputs(args: argparse.Namespace) -> Inputs:
     feed = read_feed(feed_path, layout)
     registry_path = Path(args.references) if args.references else site.references_path
     rules = load_ruleset(site, args.rules)
-    return Inputs(site, feed, rules, registry_path, freq, is_demo, tuple(notes))
+    from .cli_model import model_for_check
+    model = model_for_check(getattr(args, "model", None), site, notes,
+                            demo_model_on_other_feed=site.is_demo and not is_demo)
+    return Inputs(site, feed, rules, registry_path, freq, is_demo, tuple(notes), model)
 
 
 def _evaluation_time(args, inputs: Inputs) -> pd.Timestamp:
@@ -162,7 +171,8 @@ def run_check(args: argparse.Namespace) -> CheckResult:
     frame = inputs.feed.frame
     observed = frame[(frame["kind"] == "observed") & (frame["time"] <= at)]
     registry = read_registry(inputs.registry_path)
-    decisions = evaluate(observed, pd.DatetimeIndex([at]), inputs.site, registry, inputs.rules, inputs.freq_ghz)
+    decisions = evaluate(observed, pd.DatetimeIndex([at]), inputs.site, registry, inputs.rules, inputs.freq_ghz,
+                         inputs.odds)
     call = explain(decisions, 0)
     status = EXIT_CODES[call.verdict]
     quality = inputs.feed.quality.as_dict()
@@ -251,6 +261,8 @@ def _add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) ->
     p.add_argument("--references", metavar="REFS.csv", help="reference-scan registry (default: the site's)")
     p.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
                    help="extra rule files layered over the defaults and the site's")
+    p.add_argument("--model", metavar="MODEL.json", help="site model giving p_usable (default: the site's "
+                   "model.path; 'none' for rules only)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -288,6 +300,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     # Further commands register here, one line each: module.add_parser(sub, _add_evaluation_options)
     cli_replay.add_parser(sub, _add_evaluation_options)
+    from . import cli_model; cli_model.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     return parser
 
 

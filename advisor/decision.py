@@ -117,8 +117,9 @@ def decide(features: pd.DataFrame, rule_eval: RuleEvaluation, rules: RuleSet, si
     """Verdicts for every row of ``features``.
 
     ``odds`` is the seam for the site classifier: method → probability of a usable result per
-    row (NaN where unknown).  Without it, candidates carry ``p_usable = NaN`` and the decision
-    rests on rules and the error budget alone.
+    row (NaN where unknown), optionally with ``notes`` (method → per-row text naming what pushed
+    the odds most), which become ``Decisions.model_notes``.  Without it, candidates carry
+    ``p_usable = NaN`` and the decision rests on rules and the error budget alone.
     """
     n = len(features)
     freq = features["freq_ghz"].to_numpy()
@@ -141,7 +142,8 @@ def decide(features: pd.DataFrame, rule_eval: RuleEvaluation, rules: RuleSet, si
     verdict[astro.feasible] = "astronomical"
     verdict[scan.feasible & (~astro.feasible | prefer_scan)] = "scan"
     verdict[~features["data_ok"].to_numpy(dtype=bool)] = "undetermined"
-    return Decisions(features, verdict, candidates, rule_eval, rules, site)
+    # An odds mapping may carry per-row explanations (advisor.model.ModelOdds.notes).
+    return Decisions(features, verdict, candidates, rule_eval, rules, site, dict(getattr(odds, "notes", None) or {}))
 
 
 def _fmt(value: float, spec: str) -> str:

@@ -1,0 +1,335 @@
+"""Training the site model on the site's own history of attempts (scikit-learn; never on the check path).
+
+    history = read_history(path)                                # validated past attempts
+    features = history_features(history, site, feed=None)      # the same feature code as check
+    result = train(history, features)                           # per method: fit, cross-validate, export
+
+A history row is one past attempt: ``time`` (ISO 8601 with offset or ``Z``), ``method``
+(``scan`` or ``astronomical``) and its outcome: ``usable`` (yes/no) and/or the measured residual
+``residual_rms_um``, judged against the row's ``usable_max_rms_um`` or the ``usable_below_um``
+argument when ``usable`` is blank (the same columns ``advisor replay --history`` reads).  Features come
+either from a weather archive at each attempt's time, or from weather columns in the history
+itself: the canonical feed columns as recorded at the attempt (``wind_mean_ms`` and
+``wind_gust_ms`` as the 10-minute mean and maximum, ``air_temp_c``, ``rel_humidity_pct``, ...)
+plus ``air_temp_rate_c_per_h``; dew point, fog, sun and the rest are then derived by
+:func:`advisor.features.compute_features` exactly as for ``check``.
+
+Per method the model is ``StandardScaler`` + ``LogisticRegression`` (L2, lbfgs) on a few
+physically motivated terms (:data:`DEFAULT_TERMS`), scored by stratified k-fold
+cross-validation (ROC AUC, Brier score, a reliability table) and exported to plain JSON by
+:mod:`advisor.model`.  Too little data (fewer than :data:`MIN_ATTEMPTS` attempts, or fewer than
+:data:`MIN_PER_CLASS` of either outcome) is refused rather than fitted.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import platform
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import sklearn
+from sklearn.base import clone
+from sklearn.linear_model import LogisticRegression
+from sklearn.metrics import brier_score_loss, roc_auc_score
+from sklearn.model_selection import StratifiedKFold, cross_val_predict
+from sklearn.pipeline import Pipeline
+from sklearn.preprocessing import StandardScaler
+
+from . import __version__
+from .errors import AdvisorError
+from .features import CATALOGUE, compute_features
+from .feed import Feed, canonical_frame
+from .model import METHOD_LABELS, MethodModel, SiteModel, Term, term_matrix
+from .references import Registry
+from .site import CANONICAL_COLUMNS, REQUIRED_COLUMNS, FeedLayout, Site
+
+MIN_ATTEMPTS = 30
+MIN_PER_CLASS = 5
+CV_FOLDS = 5
+CV_SEED = 0
+C_REGULARISATION = 10.0
+RELIABILITY_EDGES = (0.0, 0.2, 0.4, 0.6, 0.8, 1.0)
+MAX_HISTORY_BYTES = 200_000_000
+#: Windowed features a history records directly (they cannot be recomputed from one row).
+RECORDED_FEATURES = ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h")
+USABLE_WORDS = {**dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),
+                **dict.fromkeys(("no", "n", "false", "0", "unusable", "failed", "fail"), 0.0), "": np.nan}
+
+#: Terms per method.  Wind pressure, hence structural vibration and pointing error, grows
+#: as the square of the wind speed (gust²); the laser path suffers as the air nears
+#: saturation (how far the dew-point spread falls short of 3 °C); thermal drift of the
+#: structure follows the rate of air-temperature change (|dT/dt|).
+DEFAULT_TERMS: dict[str, tuple[Term, ...]] = {
+    method: (Term("wind_gust_ms", "square"), Term("dew_point_spread_c", "shortfall", 3.0),
+             Term("air_temp_rate_c_per_h", "abs"))
+    for method in METHOD_LABELS
+}
+
+_OFFSET = re.compile(r"(?:Z|[+-]\d\d:?\d\d)$", re.IGNORECASE)
+
+
+class HistoryError(AdvisorError):
+    """A history file is malformed, or too small to train on honestly."""
+
+
+@dataclass(frozen=True)
+class History:
+    """Validated attempts: ``frame`` has ``time`` (UTC), ``method``, ``usable`` (bool), ``residual_rms_um``
+    and any weather columns; ``sha256`` is the hash of the file's bytes."""
+
+    frame: pd.DataFrame
+    source: str
+    sha256: str
+
+
+def sha256_of(path: Path) -> str:
+    digest = hashlib.sha256()
+    with Path(path).open("rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def read_history(path: Path | str, usable_below_um: float | None = None) -> History:
+    """Read and validate a history CSV (see the module docstring for its columns)."""
+    path = Path(path)
+    source = str(path)
+    try:
+        size = path.stat().st_size
+    except FileNotFoundError:
+        raise HistoryError("history file not found", source=source, hint="check the --history path") from None
+    if path.is_dir():
+        raise HistoryError("is a directory, expected a CSV file", source=source)
+    if size == 0:
+        raise HistoryError("history file is empty", source=source, hint="expected a header line and one row per attempt")
+    if size > MAX_HISTORY_BYTES:
+        raise HistoryError(f"history is {size / 1e6:.0f} MB, above the {MAX_HISTORY_BYTES / 1e6:.0f} MB limit", source=source)
+    try:
+        table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8")
+    except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
+        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        m = re.search(r"line (\d+)", msg)
+        raise HistoryError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
+                           hint="save the history as comma-separated UTF-8 text") from None
+    table = table.rename(columns=lambda c: str(c).strip())
+    if len(table) == 0:
+        raise HistoryError("history has a header but no attempts", source=source)
+    for required in ("time", "method"):
+        if required not in table.columns:
+            raise HistoryError(f"missing column {required!r}", source=source, line=1,
+                               hint="columns: time, method, usable and/or residual_rms_um, then weather columns")
+    if "usable" not in table.columns and "residual_rms_um" not in table.columns:
+        raise HistoryError("no outcome column: need 'usable' (yes/no) and/or 'residual_rms_um'", source=source, line=1)
+
+    def line_of(mask) -> int:
+        return int(np.flatnonzero(np.asarray(mask))[0]) + 2
+
+    text_time = table["time"].str.strip()
+    no_offset = ~text_time.str.contains(_OFFSET)
+    if no_offset.any():
+        i = line_of(no_offset)
+        raise HistoryError(f"time {table['time'].iloc[i - 2]!r} has no UTC offset", source=source, line=i, field="time",
+                           hint="write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z")
+    times = pd.to_datetime(text_time, utc=True, format="ISO8601", errors="coerce")
+    if times.isna().any():
+        i = line_of(times.isna())
+        raise HistoryError(f"cannot read time {table['time'].iloc[i - 2]!r}", source=source, line=i, field="time",
+                           hint="write ISO 8601, e.g. 2026-01-15T09:00:00Z")
+    method = table["method"].str.strip().str.lower()
+    bad = ~method.isin(list(METHOD_LABELS))
+    if bad.any():
+        i = line_of(bad)
+        raise HistoryError(f"method {table['method'].iloc[i - 2]!r} is neither 'scan' nor 'astronomical'",
+                           source=source, line=i, field="method")
+    out = pd.DataFrame({"time": times, "method": method.to_numpy(dtype=object)})
+
+    usable = np.full(len(table), np.nan)
+    if "usable" in table.columns:
+        words = table["usable"].str.strip().str.lower()
+        bad = ~words.isin(list(USABLE_WORDS))
+        if bad.any():
+            i = line_of(bad)
+            raise HistoryError(f"usable {table['usable'].iloc[i - 2]!r} is not yes/no", source=source, line=i,
+                               field="usable", hint="write yes or no (or leave it blank and give residual_rms_um)")
+        usable = words.map(USABLE_WORDS).to_numpy(dtype=float)
+    rms = _numeric(table, "residual_rms_um", source) if "residual_rms_um" in table.columns else np.full(len(table), np.nan)
+    if (rms < 0).any():
+        raise HistoryError("residual_rms_um is negative", source=source, line=line_of(rms < 0), field="residual_rms_um")
+    limit = np.full(len(table), np.nan if usable_below_um is None else float(usable_below_um))
+    if "usable_max_rms_um" in table.columns:
+        row_limit = _numeric(table, "usable_max_rms_um", source)
+        limit = np.where(np.isfinite(row_limit), row_limit, limit)
+    judged = np.isnan(usable) & np.isfinite(rms)
+    if (judged & np.isnan(limit)).any():
+        raise HistoryError("no 'usable' value and no limit to judge residual_rms_um by", source=source,
+                           line=line_of(judged & np.isnan(limit)), field="usable",
+                           hint="fill in usable, add usable_max_rms_um, or pass --usable-below-um UM")
+    usable = np.where(judged, (rms <= limit).astype(float), usable)
+    if np.isnan(usable).any():
+        raise HistoryError("attempt has no outcome (neither usable nor residual_rms_um)", source=source,
+                           line=line_of(np.isnan(usable)), field="usable")
+    out["usable"] = usable.astype(bool)
+    out["residual_rms_um"] = rms
+    for name in (*CANONICAL_COLUMNS, "air_temp_rate_c_per_h"):
+        if name in table.columns:
+            out[name] = _numeric(table, name, source)
+    return History(out, source, sha256_of(path))
+
+
+def _numeric(table: pd.DataFrame, name: str, source: str) -> np.ndarray:
+    raw = table[name].str.strip()
+    values = pd.to_numeric(raw.replace({"": None, "NaN": None, "nan": None, "NA": None}), errors="coerce")
+    bad = values.isna() & ~raw.isin(["", "NaN", "nan", "NA"])
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise HistoryError(f"{name} {table[name].iloc[i]!r} is not a number", source=source, line=i + 2, field=name)
+    return values.to_numpy(dtype=float)
+
+
+def history_features(history: History, site: Site, feed: Feed | None = None,
+                     freq_ghz: float = 86.0) -> pd.DataFrame:
+    """Features at each attempt (one row per history row, same order), as ``check`` computes them.
+
+    With ``feed`` (an archive), the features come from its observed rows at each attempt's time.
+    Without it, from the history's own weather columns (see the module docstring).
+    """
+    frame = history.frame
+    times = pd.DatetimeIndex(frame["time"])
+    if feed is not None:
+        observed = feed.frame[feed.frame["kind"] == "observed"]
+        return compute_features(observed, times, site, Registry.empty(), freq_ghz)
+    needed = (*REQUIRED_COLUMNS, "air_temp_rate_c_per_h")
+    missing = [c for c in needed if c not in frame.columns]
+    if missing:
+        raise HistoryError(f"no weather column {missing[0]!r} and no --feed archive to compute it from",
+                           source=history.source, line=1,
+                           hint=f"add the columns {', '.join(needed)} or pass --feed ARCHIVE.csv")
+    weather = [c for c in CANONICAL_COLUMNS if c in frame.columns]
+    table = pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ")})
+    for name in weather:
+        table[name] = frame[name].to_numpy()
+    recorded = canonical_frame(table, FeedLayout(max_feed_age_min=site.feed.max_feed_age_min, max_gap_min=1e9),
+                               source=history.source)
+    features = compute_features(recorded.frame, times, site, Registry.empty(), freq_ghz)
+    for name in RECORDED_FEATURES:
+        features[name] = frame[name].to_numpy(dtype=float)
+    return features
+
+
+def make_pipeline(c: float = C_REGULARISATION) -> Pipeline:
+    """The estimator of one method: standardise the terms, then L2 logistic regression."""
+    return Pipeline([("scale", StandardScaler()),
+                     ("logistic", LogisticRegression(C=c, tol=1e-10, max_iter=10_000))])
+
+
+@dataclass(frozen=True)
+class MethodFit:
+    """One method's fitted pipeline, its inputs and its cross-validated metrics."""
+
+    method: str
+    pipeline: Pipeline
+    terms: tuple[Term, ...]
+    X: np.ndarray
+    y: np.ndarray
+    cv_p: np.ndarray
+    metrics: dict
+
+
+@dataclass(frozen=True)
+class TrainingResult:
+    model: SiteModel
+    fits: dict[str, MethodFit]
+    n_dropped: int
+
+
+def reliability_table(p: np.ndarray, y: np.ndarray, edges=RELIABILITY_EDGES) -> list[dict]:
+    """Predicted against observed frequency of usable results, in bins of predicted probability."""
+    idx = np.clip(np.digitize(p, edges[1:-1], right=False), 0, len(edges) - 2)
+    rows = []
+    for k in range(len(edges) - 1):
+        sel = idx == k
+        n = int(sel.sum())
+        rows.append({"p_from": edges[k], "p_to": edges[k + 1], "attempts": n,
+                     "mean_predicted": round(float(p[sel].mean()), 4) if n else None,
+                     "observed_usable": round(float(y[sel].mean()), 4) if n else None})
+    return rows
+
+
+def fit_method(method: str, X: np.ndarray, y: np.ndarray, terms: tuple[Term, ...],
+               c: float = C_REGULARISATION, source: str = "<history>") -> MethodFit:
+    """Fit and cross-validate one method; refuse when the data are too few to fit honestly."""
+    label = METHOD_LABELS[method]
+    other = next(m for m in METHOD_LABELS if m != method)
+    hint = f"collect more history, or train the other method alone with --method {other}"
+    n, n_ok = len(y), int(y.sum())
+    n_bad = n - n_ok
+    if n < MIN_ATTEMPTS:
+        raise HistoryError(f"{label}: only {n} attempts to learn from, need at least {MIN_ATTEMPTS} to fit honestly",
+                           source=source, hint=hint)
+    if min(n_ok, n_bad) < MIN_PER_CLASS:
+        which = "usable" if n_ok < n_bad else "unusable"
+        raise HistoryError(f"{label}: only {min(n_ok, n_bad)} {which} attempts out of {n}, need at least "
+                           f"{MIN_PER_CLASS} of each outcome to fit honestly", source=source, hint=hint)
+    pipeline = make_pipeline(c).fit(X, y)
+    folds = min(CV_FOLDS, n_ok, n_bad)
+    cv = StratifiedKFold(n_splits=folds, shuffle=True, random_state=CV_SEED)
+    cv_p = cross_val_predict(clone(pipeline), X, y, cv=cv, method="predict_proba")[:, 1]
+    base = n_ok / n
+    metrics = {
+        "attempts": n, "usable": n_ok, "unusable": n_bad, "usable_fraction": round(base, 4),
+        "cv_folds": folds,
+        "roc_auc": round(float(roc_auc_score(y, cv_p)), 4),
+        "brier": round(float(brier_score_loss(y, cv_p)), 4),
+        "brier_base_rate": round(base * (1 - base), 4),
+        "reliability": reliability_table(cv_p, y),
+    }
+    return MethodFit(method, pipeline, terms, X, y, cv_p, metrics)
+
+
+def method_model(fit: MethodFit) -> MethodModel:
+    """The exported (numpy) form of a fitted pipeline."""
+    scaler, logistic = fit.pipeline.named_steps["scale"], fit.pipeline.named_steps["logistic"]
+    return MethodModel(fit.terms, np.array(scaler.mean_, dtype=float), np.array(scaler.scale_, dtype=float),
+                       np.array(logistic.coef_[0], dtype=float), float(logistic.intercept_[0]), fit.metrics)
+
+
+def train(history: History, features: pd.DataFrame, methods=tuple(METHOD_LABELS),
+          terms: dict[str, tuple[Term, ...]] | None = None, c: float = C_REGULARISATION,
+          metadata: dict | None = None) -> TrainingResult:
+    """Fit every method in ``methods`` and assemble the :class:`~advisor.model.SiteModel`."""
+    terms = terms or DEFAULT_TERMS
+    frame = history.frame
+    usable_rows = np.ones(len(frame), dtype=bool)
+    used = sorted({t.feature for m in methods for t in terms[m]}, key=list(CATALOGUE).index)
+    for name in used:
+        usable_rows &= np.isfinite(features[name].to_numpy(dtype=float))
+    usable_rows &= features["data_ok"].to_numpy(dtype=bool)
+    fits = {}
+    for method in methods:
+        rows = usable_rows & (frame["method"].to_numpy() == method)
+        X = term_matrix(features[rows], terms[method])
+        y = frame["usable"].to_numpy()[rows].astype(int)
+        fits[method] = fit_method(method, X, y, terms[method], c, history.source)
+    of_methods = frame["method"].isin(list(methods)).to_numpy()
+    n_dropped = int((of_methods & ~usable_rows).sum())
+    times = frame.loc[of_methods, "time"]
+    training = {
+        "trained_by": f"advisor {__version__} (advisor train)",
+        "history": {"file": Path(history.source).name, "sha256": history.sha256, "rows": int(len(frame)),
+                    "first_utc": times.min().strftime("%Y-%m-%dT%H:%M:%SZ"),
+                    "last_utc": times.max().strftime("%Y-%m-%dT%H:%M:%SZ")},
+        "rows_used": {m: int(f.metrics["attempts"]) for m, f in fits.items()},
+        "rows_dropped": n_dropped,
+        "estimator": f"StandardScaler + LogisticRegression (L2, C={c:g}, lbfgs), one per method",
+        "cross_validation": f"stratified {CV_FOLDS}-fold, shuffled with seed {CV_SEED}; metrics on held-out folds",
+        "libraries": {"python": platform.python_version(), "numpy": np.__version__, "pandas": pd.__version__,
+                      "scikit-learn": sklearn.__version__},
+    }
+    training.update(metadata or {})
+    model = SiteModel(features=tuple((n, CATALOGUE[n].unit) for n in used),
+                      methods={m: method_model(f) for m, f in fits.items()}, training=training)
+    return TrainingResult(model, fits, n_dropped)
