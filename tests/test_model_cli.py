@@ -156,3 +156,39 @@ def test_check_never_imports_scikit_learn():
     assert proc.returncode == 0, proc.stderr
     assert "HEAVY []" in proc.stderr
     assert json.loads(proc.stdout)["candidates"]["scan"]["p_usable"] is not None
+
+
+def test_train_from_an_archive_feed_computes_features_at_each_attempt(tmp_path, capsys):
+    """--feed: features come from the archive (demo logger layout) at each attempt's time."""
+    import importlib.util
+
+    import pandas as pd
+
+    spec = importlib.util.spec_from_file_location("make_demo_for_model_cli", ROOT / "example_weather" / "make_demo.py")
+    make_demo = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(make_demo)
+    archive = tmp_path / "archive.csv"
+    make_demo.synth_mast("2026-03-01", "2026-03-05", scenario=None).to_csv(archive, index=False)
+    times = pd.date_range("2026-03-01T02:00Z", periods=48, freq="113min")
+    usable = ["yes" if k % 3 else "no" for k in range(48)]
+    history = tmp_path / "attempts.csv"
+    pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ"), "method": "scan", "usable": usable}).to_csv(
+        history, index=False)
+    out_path = tmp_path / "model.json"
+    status, out, err = run(capsys, "train", "--history", history, "--feed", archive, "--method", "scan",
+                           "--out", out_path)
+    assert status == 0, err
+    assert "features from the archive feed" in out
+    model = load_model(out_path)
+    assert set(model.methods) == {"scan"} and model.methods["scan"].metrics["attempts"] == 48
+    assert model.training["feed"]["file"] == "archive.csv" and len(model.training["feed"]["sha256"]) == 64
+    # the scaler's mean of gust² is the mean over the attempts of the archive's 10-min max gust, squared
+    from advisor.features import compute_features
+    from advisor.feed import read_feed
+    from advisor.references import Registry
+    from advisor.site import load_site
+
+    site = load_site(None)
+    feed = read_feed(archive, site.feed)
+    gust = compute_features(feed.frame, pd.DatetimeIndex(times), site, Registry.empty(), 86.0)["wind_gust_ms"]
+    assert model.methods["scan"].mean[0] == pytest.approx(float(np.mean(gust.to_numpy() ** 2)), rel=1e-12)
