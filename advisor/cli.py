@@ -180,8 +180,12 @@ def run_check(args: argparse.Namespace) -> CheckResult:
     quality.update({"source": inputs.feed.source,
                     "data_age_min": None if age is None or age != age else round(float(age), 2),
                     "ok": bool(call.features.get("data_ok"))})
+    next_window = None
+    if int((frame["time"] > at).sum()) >= 2:  # the feed carries future rows: when can each method next be done
+        from .cli_outlook import next_window_for_check
+        next_window = next_window_for_check(inputs, at, registry)
     ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=inputs.feed.source,
-                  is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
+                  is_demo=inputs.is_demo, data_quality=quality, next_window=next_window, notes=inputs.notes)
     return CheckResult(call, ctx, status, inputs)
 
 
@@ -301,6 +305,7 @@ def build_parser() -> argparse.ArgumentParser:
     # Further commands register here, one line each: module.add_parser(sub, _add_evaluation_options)
     cli_replay.add_parser(sub, _add_evaluation_options)
     from . import cli_model; cli_model.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
+    from . import cli_outlook; cli_outlook.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     return parser
 
 

@@ -101,6 +101,33 @@ class Thresholds:
 
 
 @dataclass(frozen=True)
+class ForecastSettings:
+    """``forecast:`` — how forecast rows are read and how far they are trusted (``advisor outlook``)."""
+
+    path: Path | None = None             # forecast file read beside the site's own feed
+    issue_time_column: str = "issued"    # ISO 8601 issue time of each forecast row
+    horizon_h: float = 48.0              # rows further than this past their issue time are flagged
+    wind_margin_pct: float = 0.0         # forecast wind and gusts raised by this before the rules [%]
+    dew_point_margin_c: float = 0.0      # forecast dew point raised by this (capped at the air temperature) [°C]
+    settling_min: float = 10.0           # added to a method's duration for the shortest window offered [min]
+
+
+def _forecast_settings(reader: "_Reader", base: Path) -> ForecastSettings:
+    path = ("forecast",)
+    reader.section(path, {"path", "issue_time_column", "horizon_h", "wind_margin_pct", "dew_point_margin_c",
+                          "settling_min"})
+    d = ForecastSettings
+    return ForecastSettings(
+        path=reader.path_value(path + ("path",), base),
+        issue_time_column=reader.text(path + ("issue_time_column",), default=d.issue_time_column),
+        horizon_h=reader.number(path + ("horizon_h",), default=d.horizon_h, lo=1, hi=24 * 60),
+        wind_margin_pct=reader.number(path + ("wind_margin_pct",), default=d.wind_margin_pct, lo=0, hi=200),
+        dew_point_margin_c=reader.number(path + ("dew_point_margin_c",), default=d.dew_point_margin_c, lo=0, hi=10),
+        settling_min=reader.number(path + ("settling_min",), default=d.settling_min, lo=0, hi=1440),
+    )
+
+
+@dataclass(frozen=True)
 class Site:
     """A validated site configuration."""
 
@@ -118,6 +145,7 @@ class Site:
     references_path: Path | None = None
     rule_paths: tuple[Path, ...] = ()
     model_path: Path | None = None
+    forecast: ForecastSettings = field(default_factory=ForecastSettings)
     source: str = "<built-in>"
     is_demo: bool = False
     extra: dict = field(default_factory=dict, compare=False)
@@ -283,7 +311,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         raise SiteError("expected a mapping at the top of the site file", source=source, line=1,
                         hint="start with 'site:'")
     r = _Reader(data, lines, source)
-    r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators"})
+    r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators", "forecast"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
     name = r.text(("site", "name"), required=True)
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
@@ -373,6 +401,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         references_path=r.path_value(("references", "path"), base),
         rule_paths=rule_paths,
         model_path=r.path_value(("model", "path"), base),
+        forecast=_forecast_settings(r, base),
         source=source, is_demo=is_demo,
     )
 

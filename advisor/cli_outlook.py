@@ -1,0 +1,242 @@
+"""``advisor outlook``: the call at every forecast step, the windows for each method, the next one.
+
+    advisor outlook [--feed FEED] [--forecast FILE] --freq 86 [--from T] [--hours 24]
+                    [--min-duration-min N] [--json | --csv] [--svg FILE]  (+ every option of check)
+
+The shell around :mod:`advisor.outlook`: loads the inputs exactly as ``check`` does, adds the
+forecast file (``--forecast``, or the site's ``forecast.path`` when the site's own feed is
+read) and the forecast rows' issue times, then prints one of the views.  Exit status 0 when
+an outlook was printed, 2 on bad input.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import shutil
+import sys
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .errors import FeedError, UsageError
+
+MAX_HOURS = 31 * 24.0
+_UTC_OFFSET = r"(?:[Zz]|[+-]\d\d:?\d\d)$"
+
+
+def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
+    """Register ``outlook`` on the ``advisor`` subparsers."""
+    p = sub.add_parser(
+        "outlook", help="the call at every forecast step and the next window for each method",
+        description="Evaluate every step of a forecast with the same rules as check; print a timeline "
+                    "strip (one letter per step: S scan, A astronomical, P postpone, U undetermined, "
+                    "? gap), the windows for each method and the next one.",
+        epilog="Exit status: 0 outlook printed; 2 bad input or usage. Advisory only - not a safety system.",
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    add_evaluation_options(p)
+    p.add_argument("--forecast", metavar="FILE", help="forecast file read beside the feed, in the feed's format "
+                   "(default: the site's forecast.path when the site's own feed is read)")
+    p.add_argument("--from", dest="from_", metavar="TIME", help="first step, ISO 8601 with Z or offset "
+                   "(default: --at, else now; the demo feed's last sample for the demo)")
+    p.add_argument("--hours", default="24", metavar="H", help="how far to look ahead [h] (default 24)")
+    p.add_argument("--min-duration-min", metavar="N", help="offer only windows at least N minutes long "
+                   "(never shorter than the method's duration + the site's settling time)")
+    out = p.add_mutually_exclusive_group()
+    out.add_argument("--json", action="store_true", help="print one JSON object: steps, windows, next windows")
+    out.add_argument("--csv", action="store_true", help="print CSV, one row per step (time in ISO 8601 UTC, verdict, ...)")
+    p.add_argument("--svg", metavar="FILE", help="also save the timeline picture as SVG")
+    p.set_defaults(func=cmd_outlook)
+    return p
+
+
+def _positive_number(text: str | None, option: str, lo: float, hi: float, default: float | None) -> float | None:
+    if text is None:
+        return default
+    try:
+        value = float(text)
+    except ValueError:
+        raise UsageError(f"{text!r} is not a number", field=option, hint=f"give a number between {lo:g} and {hi:g}") from None
+    if not (lo <= value <= hi) or value != value:
+        raise UsageError(f"{value:g} is outside {lo:g}..{hi:g}", field=option)
+    return value
+
+
+def read_issue_times(path: Path, layout, column: str) -> pd.Series | None:
+    """Issue time of each row of a feed file (UTC, NaT where empty), indexed by row time; None without the column."""
+    from .feed import _parse_times, _read_jsonl  # the feed's own time parsing, so rows line up exactly
+
+    path = Path(path)
+    is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson")
+    try:
+        if is_jsonl:
+            with path.open("r", encoding="utf-8") as fh:
+                first = fh.readline()
+            if f'"{column}"' not in first:
+                return None
+            table = _read_jsonl(path).astype("string")
+            line_offset = 1
+        else:
+            header = pd.read_csv(path, nrows=0, skipinitialspace=True)
+            names = {str(c).strip(): c for c in header.columns}
+            time_col = layout.time_column if layout.time_column in names else "time"
+            if column not in names or time_col not in names:
+                return None
+            table = pd.read_csv(path, usecols=[names[time_col], names[column]], dtype=str, keep_default_na=False,
+                                skipinitialspace=True).rename(columns=lambda c: str(c).strip())
+            line_offset = 2
+    except (OSError, ValueError, pd.errors.ParserError) as exc:
+        raise FeedError(f"cannot read issue times: {exc}".splitlines()[0], source=str(path)) from None
+    time_col = layout.time_column if layout.time_column in table.columns else "time"
+    times = _parse_times(table[time_col], layout, str(path), line_offset)
+    values = table[column].astype("string").str.strip()
+    present = (values.notna() & (values != "")).to_numpy()
+    parsed = pd.to_datetime(values.where(present), utc=True, format="ISO8601", errors="coerce")
+    has_offset = values.fillna("").str.contains(_UTC_OFFSET).to_numpy()
+    bad = present & (parsed.isna().to_numpy() | ~has_offset)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise FeedError(f"cannot read issue time {values.iloc[i]!r}", source=str(path), line=i + line_offset,
+                        field=column, hint="write ISO 8601 with Z or an offset, e.g. 2026-12-01T03:00:00Z")
+    issued = pd.DataFrame({"time": times.to_numpy(), "issued": parsed.to_numpy()})
+    issued = issued.sort_values("time", kind="stable").drop_duplicates("time", keep="first")
+    return pd.Series(issued["issued"].to_numpy(), index=pd.DatetimeIndex(issued["time"]))
+
+
+def _with_issue_times(frame: pd.DataFrame, path: Path, layout, column: str) -> pd.DataFrame:
+    issued = read_issue_times(path, layout, column)
+    out = frame.copy()
+    if issued is None:
+        out["issued_utc"] = pd.Series(pd.NaT, index=out.index, dtype="datetime64[ns, UTC]")
+    else:
+        out["issued_utc"] = pd.DatetimeIndex(out["time"]).map(issued).astype("datetime64[ns, UTC]")
+    return out
+
+
+def _odds_of(inputs):
+    """The classifier's odds function when ``load_inputs`` provides one (else rules only)."""
+    odds = getattr(inputs, "odds", None)
+    if odds is None and getattr(inputs, "model", None) is not None:
+        odds = inputs.model.odds
+    return odds
+
+
+def _svg_target(text: str | None) -> Path | None:
+    if text is None:
+        return None
+    path = Path(text).expanduser()
+    if path.is_dir():
+        raise UsageError(f"{path} is a directory", field="--svg", hint="give a file name, e.g. outlook.svg")
+    if not path.parent.is_dir():
+        raise UsageError(f"folder {path.parent} does not exist", field="--svg", hint="create it or choose another path")
+    return path
+
+
+def _write_atomic(path: Path, text: str) -> None:
+    """Write ``text`` to a temporary file beside ``path`` (mode from the umask), then rename it over ``path``."""
+    tmp = path.parent / f".{path.name}.{os.getpid()}.tmp"
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+
+
+def _svg_text(outlook, ctx) -> str:
+    from rich.console import Console
+
+    from .outlook import LABEL_W, outlook_renderable
+
+    width = int(min(200, max(100, LABEL_W + len(outlook.steps) + 4)))
+    console = Console(record=True, width=width, file=open(os.devnull, "w"), force_terminal=True,
+                      color_system="truecolor")
+    console.print(outlook_renderable(outlook, ctx, width))
+    console.file.close()
+    return console.export_svg(title=f"advisor outlook · {ctx.site_name}")
+
+
+def cmd_outlook(args: argparse.Namespace) -> int:
+    from .cli import _want_color, load_inputs, parse_at
+    from .feed import read_feed
+    from .outlook import combine_frames, compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
+        render_plain_outlook
+    from .references import read_registry
+    from .render import Context
+
+    hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0)
+    min_dur = _positive_number(args.min_duration_min, "--min-duration-min", 0.0, 7 * 1440.0, None)
+    svg = _svg_target(args.svg)
+    if args.from_ is not None and args.at is not None:
+        raise UsageError("give --from or --at, not both", field="--from", hint="--from is the first step of the outlook")
+    try:
+        start = parse_at(args.from_)
+    except UsageError as exc:
+        raise UsageError(exc.message, field="--from", hint=exc.hint) from None
+    start = start if start is not None else parse_at(args.at)
+
+    inputs = load_inputs(args)
+    site = inputs.site
+    layout = site.feed if not (site.is_demo and args.feed is not None) else replace(site.feed, time_zone=None)
+    column = site.forecast.issue_time_column
+    frame = _with_issue_times(inputs.feed.frame, Path(inputs.feed.source), layout, column)
+    forecast_path = Path(args.forecast) if args.forecast else (site.forecast.path if args.feed is None else None)
+    sources = [inputs.feed.source]
+    if forecast_path is not None:
+        fc_layout = layout if args.forecast is None else (
+            replace(site.feed, time_zone=None) if site.is_demo else site.feed)
+        fc = read_feed(forecast_path, fc_layout)
+        frame = combine_frames(frame, _with_issue_times(fc.frame, forecast_path, fc_layout, column))
+        sources.append(fc.source)
+    if start is None:
+        if inputs.is_demo:
+            observed = frame[frame["kind"] == "observed"]
+            start = observed["time"].iloc[-1] if len(observed) else frame["time"].iloc[0]
+        else:
+            start = pd.Timestamp.now(tz="UTC")
+
+    registry = read_registry(inputs.registry_path)
+    outlook = compute_outlook(frame, start, hours, site, registry, inputs.rules, inputs.freq_ghz,
+                              odds=_odds_of(inputs), min_duration_min=min_dur, source=" + ".join(sources))
+    quality = inputs.feed.quality.as_dict()
+    quality["source"] = inputs.feed.source
+    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=" + ".join(sources),
+                  is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
+
+    svg_text = _svg_text(outlook, ctx) if svg is not None else None
+    if args.json:
+        print(json.dumps(outlook_json(outlook, ctx), indent=2, allow_nan=False))
+    elif args.csv:
+        outlook_csv_frame(outlook).to_csv(sys.stdout, index=False, lineterminator="\n")
+    elif _want_color(sys.stdout):
+        from rich.console import Console
+
+        console = Console()
+        console.print(outlook_renderable(outlook, ctx, console.width))
+    else:
+        width = shutil.get_terminal_size((100, 24)).columns
+        sys.stdout.write(render_plain_outlook(outlook, ctx, width))
+    if svg_text is not None:
+        _write_atomic(svg, svg_text)
+        print(f"advisor: saved the outlook picture to {svg}", file=sys.stderr)
+    return 0
+
+
+def next_window_for_check(inputs, at_utc: pd.Timestamp, registry) -> dict | None:
+    """``check``'s ``next_window`` when its feed carries rows after ``at_utc`` (None otherwise)."""
+    from .outlook import next_windows_after
+
+    site = inputs.site
+    layout = replace(site.feed, time_zone=None) if site.is_demo and not inputs.is_demo else site.feed
+    frame = _with_issue_times(inputs.feed.frame, Path(inputs.feed.source), layout, site.forecast.issue_time_column)
+    return next_windows_after(frame, at_utc, site, registry, inputs.rules, inputs.freq_ghz, odds=_odds_of(inputs))
