@@ -18,9 +18,9 @@ import pandas as pd
 
 from . import __version__, cli_replay
 from .decision import EXIT_CODES, explain
-from .errors import AdvisorError, InsufficientData, UsageError
+from .errors import AdvisorError, FeedError, InsufficientData, UsageError
 from .features import CATALOGUE
-from .feed import Feed, read_feed
+from .feed import CHECK_TAIL_BYTES, Feed, read_feed
 from .pipeline import evaluate
 from .references import append_reference, parse_time_utc, read_registry
 from .rules.ruleset import RuleSet, default_rule_files, load_rules
@@ -41,6 +41,7 @@ _FREQ = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][-+]?\d+)?)\s*([A-Za-zµ]*)\s*$"
 _FREQ_UNITS_GHZ = {"": 1.0, "ghz": 1.0, "mhz": 1e-3, "thz": 1e3}
 _WAVE_UNITS_MM = {"mm": 1.0, "cm": 10.0, "um": 1e-3, "µm": 1e-3, "m": 1000.0}
 FREQ_RANGE_GHZ = (1.0, 1000.0)
+FUTURE_TOLERANCE = pd.Timedelta(minutes=5)  # logger clocks may run a little fast
 
 
 def parse_frequency_ghz(text: str) -> float:
@@ -110,7 +111,7 @@ def load_ruleset(site: Site, extra: list[str] | None) -> RuleSet:
     return load_rules(files, CATALOGUE)
 
 
-def load_inputs(args: argparse.Namespace) -> Inputs:
+def load_inputs(args: argparse.Namespace, tail_bytes: int | None = None) -> Inputs:
     """Site, feed, rules and registry for check-like commands."""
     freq = parse_frequency_ghz(args.freq)
     site = load_site(args.site)
@@ -129,7 +130,7 @@ def load_inputs(args: argparse.Namespace) -> Inputs:
     if site.is_demo and args.feed is not None:
         # The demo logger's local time zone must not be guessed onto someone else's feed.
         layout = replace(layout, time_zone=None)
-    feed = read_feed(feed_path, layout)
+    feed = read_feed(feed_path, layout, tail_bytes=tail_bytes)
     registry_path = Path(args.references) if args.references else site.references_path
     rules = load_ruleset(site, args.rules)
     from .cli_model import model_for_check
@@ -145,7 +146,14 @@ def _evaluation_time(args, inputs: Inputs) -> pd.Timestamp:
     if inputs.is_demo:
         observed = inputs.feed.frame[inputs.feed.frame["kind"] == "observed"]
         return observed["time"].iloc[-1]
-    return pd.Timestamp.now(tz="UTC")
+    now = pd.Timestamp.now(tz="UTC")
+    frame = inputs.feed.frame
+    observed = frame["time"][frame["kind"] == "observed"]
+    if len(observed) and observed.iloc[-1] > now + FUTURE_TOLERANCE:
+        raise FeedError(f"observed rows run until {observed.iloc[-1]:%Y-%m-%dT%H:%M}Z, after the current time",
+                        source=inputs.feed.source,
+                        hint="check the logger clock and time zone, or pass --at for a past instant")
+    return now
 
 
 def _want_color(stream) -> bool:
@@ -166,7 +174,7 @@ def run_check(args: argparse.Namespace) -> CheckResult:
     """Load inputs, evaluate at ``--at`` and explain; shared by ``check`` and other commands."""
     from .render import Context
 
-    inputs = load_inputs(args)
+    inputs = load_inputs(args, tail_bytes=CHECK_TAIL_BYTES)
     at = _evaluation_time(args, inputs)
     frame = inputs.feed.frame
     observed = frame[(frame["kind"] == "observed") & (frame["time"] <= at)]
@@ -269,14 +277,21 @@ def _add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) ->
                    "model.path; 'none' for rules only)")
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with one-line errors in the advisor's own format (exit 2)."""
+
+    def error(self, message: str):  # noqa: D401 - argparse API
+        self.exit(2, f"advisor: error: {self.prog}: {message} (see '{self.prog} --help')\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="advisor",
         description="Before a high-frequency session: scan the reflector now, use the astronomical "
                     "method, or postpone - with reasons and numbers.",
         epilog=EXIT_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--version", action="version", version=f"advisor {__version__}")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     check = sub.add_parser("check", help="the call for one instant (default: now)",
                            description="Evaluate the feed at one instant and print the call.",
@@ -287,7 +302,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     ref = sub.add_parser("reference", help="the reference-scan registry",
                          description="Record and list reference scans (taken right after an astronomical correction).")
-    ref_sub = ref.add_subparsers(dest="action", metavar="ACTION")
+    ref_sub = ref.add_subparsers(dest="action", metavar="ACTION", parser_class=_Parser)
     add = ref_sub.add_parser("add", help="record a reference scan")
     add.add_argument("--time", required=True, metavar="TIME", help="when it was taken: ISO 8601 with Z/offset, or 'now'")
     add.add_argument("--air-temp-c", required=True, metavar="DEGC", help="air temperature at the scan [°C]")

@@ -1,0 +1,187 @@
+"""``advisor tick``: the cron/systemd-timer command, quiet unless the advice changes.
+
+Evaluates like ``check`` (every ``check`` option; default feed: the site's), keeps the result in
+``--state-dir`` (see :mod:`advisor.tick`), prints to stdout only when the verdict changed (or,
+with ``--notify-on-reasons``, the reason set), runs the site's notify command on change, and
+exits with ``check``'s status.  A missing, empty or unreadable feed is an undetermined advisory
+(not an input error), so the status page never keeps showing an old call.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from dataclasses import replace
+from pathlib import Path
+
+EXIT_HELP = """exit status:
+  0   scan            take a laser scan now
+  10  astronomical    use the astronomical method
+  11  postpone        neither method is worth doing now
+  12  undetermined    data missing, stale or implausible (also: feed missing or unreadable)
+  2   bad input or usage (site, rules, registry, options)
+  74  the state dir cannot be created or written (nothing was changed in it)
+  75  another tick held the state dir's lock for --lock-wait seconds (nothing was changed)
+  1   internal error
+
+stdout is empty unless the advice changed (or --always), so cron mails only changes; warnings
+and errors go to stderr.  Advisory only - not a safety system."""
+
+
+def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
+    """Register ``advisor tick`` on the subcommand table ``sub``."""
+    p = sub.add_parser(
+        "tick", help="one cron/timer run: keep the advisory in a state dir, speak only on change",
+        description="Evaluate the latest feed, write DIR/advisory.json, .txt and .html atomically, append "
+                    "DIR/history.jsonl, and print (and run the site's notify command) only when the verdict "
+                    "changed since the last run.",
+        epilog=EXIT_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
+    add_evaluation_options(p)
+    p.add_argument("--json", action="store_true", help="when printing, print the advisory JSON object")
+    p.add_argument("--state-dir", required=True, metavar="DIR",
+                   help="folder for the advisory, history and state (created if its parent exists)")
+    p.add_argument("--always", action="store_true", help="print the advisory on every run, not only on change")
+    p.add_argument("--notify-on-reasons", action="store_true",
+                   help="also announce when the set of reasons (blocks, cautions, error terms) changes")
+    p.add_argument("--lock-wait", type=float, default=10.0, metavar="SECONDS",
+                   help="how long to wait for an overlapping run to finish (default 10)")
+    p.set_defaults(func=cmd_tick)
+    return p
+
+
+def _empty_feed(source: str):
+    """A canonical feed with no rows (the feed file could not be read)."""
+    import pandas as pd
+
+    from .feed import Feed, FeedQuality, canonical_frame
+    from .site import FeedLayout
+
+    # A one-row canonical table gives the frame its columns and dtypes; the row is dropped.
+    table = pd.DataFrame({"time": ["2000-01-01T00:00:00Z"], "wind_mean_ms": [0.0], "wind_gust_ms": [0.0],
+                          "air_temp_c": [0.0], "rel_humidity_pct": [50.0]})
+    frame = canonical_frame(table, FeedLayout()).frame.iloc[:0]
+    return Feed(frame=frame, quality=FeedQuality(0, 0, 0, 0, 0, 0, None, None), source=source)
+
+
+def _without_feed(args, error):
+    """The undetermined call when the feed itself cannot be read, with the reason why."""
+    import pandas as pd
+
+    from .cli import CheckResult, Inputs, load_ruleset, parse_at, parse_frequency_ghz
+    from .decision import EXIT_CODES, Reason, explain
+    from .pipeline import evaluate
+    from .references import read_registry
+    from .render import Context
+    from .site import load_site
+
+    freq = parse_frequency_ghz(args.freq)
+    site = load_site(args.site)
+    source = str(args.feed or site.feed.path)
+    feed = _empty_feed(source)
+    rules = load_ruleset(site, args.rules)
+    registry_path = Path(args.references) if args.references else site.references_path
+    at = parse_at(args.at) or pd.Timestamp.now(tz="UTC")
+    decisions = evaluate(feed.frame, pd.DatetimeIndex([at]), site, read_registry(registry_path), rules, freq)
+    call = explain(decisions, 0)
+    why = Reason("feed", "both", "block", f"The weather feed cannot be read: {error.one_line()}")
+    call = replace(call, reasons=[why] + [r for r in call.reasons if r.rule != "data"])
+    quality = feed.quality.as_dict()
+    quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
+    inputs = Inputs(site, feed, rules, registry_path, freq, False, ())
+    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=source, is_demo=False,
+                  data_quality=quality, notes=())
+    return CheckResult(call, ctx, EXIT_CODES[call.verdict], inputs)
+
+
+def _evaluate(args):
+    from .cli import run_check
+    from .errors import FeedError, InsufficientData
+
+    try:
+        return run_check(args)
+    except (FeedError, InsufficientData) as exc:
+        return _without_feed(args, exc)
+
+
+def _warn(message: str) -> None:
+    print(f"advisor: warning: {message}", file=sys.stderr)
+
+
+def cmd_tick(args) -> int:
+    from . import tick as T
+    from .cli import _want_color
+    from .render import render_panel, render_plain, to_json_dict
+
+    if not args.lock_wait >= 0:
+        from .errors import UsageError
+
+        raise UsageError(f"--lock-wait {args.lock_wait:g} must be zero or more seconds", field="--lock-wait")
+    state_dir = Path(args.state_dir)
+    try:
+        with T.locked(state_dir, args.lock_wait):
+            leftovers = T.remove_leftover_temps(state_dir)
+            if leftovers:
+                _warn(f"{state_dir}: removed {len(leftovers)} temp file(s) left by an interrupted run")
+            result = _evaluate(args)
+            call, site = result.call, result.inputs.site
+            now = T.now_utc()
+            previous, warning = T.read_state(state_dir, now)
+            if warning:
+                _warn(warning)
+            change = T.track_change(previous, call.verdict, T.reason_set(call.reasons), T.utc_text(now),
+                                    site.tick.dead_feed_ticks, args.notify_on_reasons)
+            ctx = T.with_note(result.ctx, T.dead_feed_note(change))
+            doc = T.advisory_json(to_json_dict(call, ctx, result.status), change)
+            text = T.issued_line(change) + "\n" + render_plain(call, ctx)
+            panel = render_panel(call, ctx)
+            title = f"{T.VERDICT_STYLE[call.verdict][0]} · {site.name} · advisor"
+            html_panel = render_panel(call, result.ctx)  # the page shows the dead-feed note as a banner
+            files = {
+                "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
+                "advisory.txt": text,
+                "advisory.html": T.advisory_html(html_panel, change, title, site.feed.max_feed_age_min),
+                "state.json": json.dumps(change.state.as_dict(), indent=2) + "\n",
+            }
+            record = {"issued_utc": change.state.issued_utc, "time_utc": doc["time_utc"], "verdict": call.verdict,
+                      "exit_status": result.status, "change": change.kind, "reasons": list(change.state.reasons),
+                      "data_age_min": doc["data_quality"].get("data_age_min"),
+                      "target_freq_ghz": call.freq_ghz, "undetermined_ticks": change.state.undetermined_ticks,
+                      "pid": os.getpid()}
+            for warning in T.publish(state_dir, files, record, site.tick.history_max_bytes):
+                _warn(warning)
+    except T.Busy as exc:
+        print(f"advisor: busy: {exc.one_line()}", file=sys.stderr)
+        return T.EXIT_BUSY
+    except T.StateDirError as exc:
+        print(f"advisor: error: {exc.one_line()}", file=sys.stderr)
+        return T.EXIT_STATE_DIR
+
+    announce = change.kind is not None
+    if announce or args.always:
+        headline = change.headline if announce else (
+            f"advisor tick: no change: {T.VERDICT_STYLE[call.verdict][0]} since {T.short_utc(change.state.since_utc)}")
+        if args.json:
+            print(json.dumps({**doc, "change": change.kind, "headline": headline}, indent=2, allow_nan=False))
+        elif _want_color(sys.stdout):
+            from rich.console import Console
+
+            print(headline)
+            Console().print(panel)
+        else:
+            sys.stdout.write(headline + "\n" + text)
+        sys.stdout.flush()
+    argv = site.tick.notify_command
+    if announce and argv:
+        if site.tick.notify_format == "json":
+            payload = json.dumps({**doc, "change": change.kind, "headline": change.headline}, indent=2) + "\n"
+        else:
+            payload = change.headline + "\n\n" + text
+        env = {"ADVISOR_VERDICT": call.verdict, "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
+               "ADVISOR_CHANGE": change.kind, "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
+               "ADVISOR_STATE_DIR": str(state_dir.resolve())}
+        problem = T.run_notify(argv, payload, site.tick.notify_timeout_s, env)
+        if problem:
+            _warn(problem)
+    return result.status
