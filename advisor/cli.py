@@ -319,6 +319,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     # Further commands register here, one line each: module.add_parser(sub, _add_evaluation_options)
     cli_replay.add_parser(sub, _add_evaluation_options)
+    from . import cli_tick; cli_tick.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     from . import cli_model; cli_model.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     from . import cli_outlook; cli_outlook.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     return parser

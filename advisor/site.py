@@ -128,6 +128,42 @@ def _forecast_settings(reader: "_Reader", base: Path) -> ForecastSettings:
 
 
 @dataclass(frozen=True)
+class TickConfig:
+    """``advisor tick`` settings: notify command (argv, never a shell line) and state-dir limits."""
+
+    notify_command: tuple[str, ...] = ()
+    notify_timeout_s: float = 30.0
+    notify_format: str = "text"          # text | json, what the notify command reads on stdin
+    history_max_bytes: int = 5_000_000   # history.jsonl is rotated to history.jsonl.1 above this
+    dead_feed_ticks: int = 6             # consecutive undetermined ticks before "the feed looks dead"
+
+
+def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
+    path = ("tick",)
+    section = reader.section(path, {"notify_command", "notify_timeout_s", "notify_format",
+                                    "history_max_bytes", "dead_feed_ticks"})
+    argv = section.get("notify_command") or []
+    if not isinstance(argv, list) or not all(isinstance(a, str) and a for a in argv):
+        raise reader.fail(path + ("notify_command",), f"expected a list of non-empty strings, got {argv!r}",
+                          hint="write the program and its arguments as a list, e.g. [/usr/local/bin/page-ops, "
+                               "--team, surface]; it is run directly, never through a shell")
+    if argv and "/" in argv[0] and not Path(argv[0]).expanduser().is_absolute():
+        argv = [str(base / argv[0]), *argv[1:]]
+    ints = {}
+    for name, lo, hi in (("history_max_bytes", 1000, 1e12), ("dead_feed_ticks", 1, 100_000)):
+        value = reader.number(path + (name,), default=getattr(TickConfig, name), lo=lo, hi=hi)
+        if value != int(value):
+            raise reader.fail(path + (name,), f"expected a whole number, got {value:g}")
+        ints[name] = int(value)
+    fmt = reader.text(path + ("notify_format",), default="text")
+    if fmt not in ("text", "json"):
+        raise reader.fail(path + ("notify_format",), f"unknown format {fmt!r}", hint="use text or json")
+    return TickConfig(notify_command=tuple(argv), notify_format=fmt,
+                      notify_timeout_s=reader.number(path + ("notify_timeout_s",), default=30.0, lo=0.1, hi=3600),
+                      **ints)
+
+
+@dataclass(frozen=True)
 class Site:
     """A validated site configuration."""
 
@@ -145,6 +181,7 @@ class Site:
     references_path: Path | None = None
     rule_paths: tuple[Path, ...] = ()
     model_path: Path | None = None
+    tick: TickConfig = field(default_factory=TickConfig)
     forecast: ForecastSettings = field(default_factory=ForecastSettings)
     source: str = "<built-in>"
     is_demo: bool = False
@@ -311,7 +348,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         raise SiteError("expected a mapping at the top of the site file", source=source, line=1,
                         hint="start with 'site:'")
     r = _Reader(data, lines, source)
-    r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators", "forecast"})
+    r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators", "tick", "forecast"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
     name = r.text(("site", "name"), required=True)
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
@@ -401,6 +438,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         references_path=r.path_value(("references", "path"), base),
         rule_paths=rule_paths,
         model_path=r.path_value(("model", "path"), base),
+        tick=_tick_config(r, base),
         forecast=_forecast_settings(r, base),
         source=source, is_demo=is_demo,
     )
