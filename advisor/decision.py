@@ -146,8 +146,13 @@ def decide(features: pd.DataFrame, rule_eval: RuleEvaluation, rules: RuleSet, si
     return Decisions(features, verdict, candidates, rule_eval, rules, site, dict(getattr(odds, "notes", None) or {}))
 
 
-def _fmt(value: float, spec: str) -> str:
-    return "n/a" if value is None or not np.isfinite(value) else format(value, spec)
+def _odds_text(p: float) -> str:
+    """A probability as a percentage that never rounds to a misleading 0 % or 100 %."""
+    if p < 0.01:
+        return "<1%"
+    if p > 0.99:
+        return ">99%"
+    return f"{p:.0%}"
 
 
 def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
@@ -200,7 +205,7 @@ def explain(decisions: Decisions, i: int) -> Call:
             reasons.append(Reason(f"budget.{method}", method, "info", msg))
         if np.isfinite(p) and p < th.min_p_usable:
             reasons.append(Reason(f"model.{method}", method, "block",
-                                  f"{label}: site model gives only {p:.0%} odds of a usable result "
+                                  f"{label}: site model gives only {_odds_text(p)} odds of a usable result "
                                   f"(threshold {th.min_p_usable:.0%})"))
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
             if note:
