@@ -23,7 +23,7 @@ from .features import CATALOGUE
 from .feed import CHECK_TAIL_BYTES, Feed, read_feed
 from .pipeline import evaluate
 from .references import append_reference, parse_time_utc, read_registry
-from .rules.ruleset import RuleSet, default_rule_files, load_rules
+from .rules.ruleset import RuleSet, RulesRejected, default_rule_files, load_rules
 from .site import Site, load_site
 
 EXIT_HELP = """exit status:
@@ -318,6 +318,7 @@ def build_parser() -> argparse.ArgumentParser:
     ref.set_defaults(func=lambda a: _missing_action(ref))
 
     # Further commands register here, one line each: module.add_parser(sub, _add_evaluation_options)
+    from . import cli_rules; cli_rules.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     cli_replay.add_parser(sub, _add_evaluation_options)
     from . import cli_tick; cli_tick.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     from . import cli_model; cli_model.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
@@ -339,6 +340,10 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     try:
         return args.func(args)
+    except RulesRejected as exc:   # every lint error, one line each
+        for line in exc.lines():
+            print(f"advisor: error: {line}", file=sys.stderr)
+        return 2
     except InsufficientData as exc:
         print(f"advisor: {exc.one_line()}", file=sys.stderr)
         return 12
