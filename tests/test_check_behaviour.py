@@ -138,3 +138,10 @@ def test_every_call_has_reasons_with_numbers(call_for):
     call = call_for(weather_table(wind_mean_ms=5.0, wind_gust_ms=6.5))
     limit = next(r for r in call.reasons if r.rule == "high_frequency_wind_limit")
     assert "5.0 m/s" in limit.message and "4.0 m/s" in limit.message
+
+
+def test_messages_read_well_with_missing_values_and_negative_zero():
+    from advisor.rules.ruleset import format_message
+
+    text = format_message("spread {a:.1f} °C, visibility {b:.0f} m): blind", {"a": -0.01, "b": float("nan")})
+    assert text == "spread 0.0 °C, visibility n/a): blind"

@@ -19,6 +19,7 @@ over all files and compiles every rule once; a rule set with any lint error is r
 
 from __future__ import annotations
 
+import re
 import string
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -118,8 +119,12 @@ def message_fields(template: str) -> list[str]:
 def format_message(template: str, row: Mapping[str, Any]) -> str:
     """Fill a message template with one row's values; NaN → 'n/a', flags → yes/no."""
     parts = []
+    drop_unit = False
     for literal, name, spec, _ in string.Formatter().parse(template):
+        if drop_unit:  # "visibility n/a", not "visibility n/a m"
+            literal = _UNIT_AFTER_VALUE.sub("", literal, count=1)
         parts.append(literal)
+        drop_unit = False
         if name is None:
             continue
         value = row.get(name)
@@ -127,12 +132,20 @@ def format_message(template: str, row: Mapping[str, Any]) -> str:
             parts.append("yes" if value else "no")
         elif value is None or (isinstance(value, (float, np.floating)) and not np.isfinite(value)):
             parts.append("n/a")
+            drop_unit = True
         else:
             try:
-                parts.append(format(value, spec or ""))
+                text = format(value, spec or "")
+                if isinstance(value, (float, np.floating)) and text.startswith("-") and \
+                        text.lstrip("-") == format(0.0, spec or ""):
+                    text = text[1:]  # no "-0.0 °C"
+                parts.append(text)
             except (ValueError, TypeError):
                 parts.append(str(value))
     return "".join(parts)
+
+
+_UNIT_AFTER_VALUE = re.compile(r"^ ?(?:[°µ%]\S{0,4}|[A-Za-z]{1,3}(?:/[A-Za-z0-9²]{1,3})?²?)(?=$|[\s,;:.)])")
 
 
 class RulesRejected(RulesError):
