@@ -18,6 +18,7 @@ import pandas as pd
 
 from . import __version__, cli_replay
 from .decision import EXIT_CODES, explain
+from .helpformat import HelpFormatter
 from .errors import AdvisorError, FeedError, InsufficientData, UsageError
 from .features import CATALOGUE
 from .feed import CHECK_TAIL_BYTES, Feed, read_feed
@@ -289,13 +290,13 @@ def build_parser() -> argparse.ArgumentParser:
         prog="advisor",
         description="Before a high-frequency session: scan the reflector now, use the astronomical "
                     "method, or postpone - with reasons and numbers.",
-        epilog=EXIT_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
+        epilog=EXIT_HELP, formatter_class=HelpFormatter)
     parser.add_argument("--version", action="version", version=f"advisor {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     check = sub.add_parser("check", help="the call for one instant (default: now)",
                            description="Evaluate the feed at one instant and print the call.",
-                           epilog=EXIT_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
+                           epilog=EXIT_HELP, formatter_class=HelpFormatter)
     _add_evaluation_options(check)
     check.add_argument("--json", action="store_true", help="print one JSON object (stable schema, see README)")
     check.set_defaults(func=cmd_check)

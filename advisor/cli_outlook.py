@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import FeedError, UsageError
+from .helpformat import HelpFormatter
 
 MAX_HOURS = 31 * 24.0
 _UTC_OFFSET = r"(?:[Zz]|[+-]\d\d:?\d\d)$"
@@ -36,7 +37,7 @@ def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
                     "strip (one letter per step: S scan, A astronomical, P postpone, U undetermined, "
                     "? gap), the windows for each method and the next one.",
         epilog="Exit status: 0 outlook printed; 2 bad input or usage. Advisory only - not a safety system.",
-        formatter_class=argparse.RawDescriptionHelpFormatter)
+        formatter_class=HelpFormatter)
     add_evaluation_options(p)
     p.add_argument("--forecast", metavar="FILE", help="forecast file read beside the feed, in the feed's format "
                    "(default: the site's forecast.path when the site's own feed is read)")

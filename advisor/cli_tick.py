@@ -16,6 +16,8 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
+from .helpformat import HelpFormatter
+
 EXIT_HELP = """exit status:
   0   scan            take a laser scan now
   10  astronomical    use the astronomical method
@@ -37,7 +39,7 @@ def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
         description="Evaluate the latest feed, write DIR/advisory.json, .txt and .html atomically, append "
                     "DIR/history.jsonl, and print (and run the site's notify command) only when the verdict "
                     "changed since the last run.",
-        epilog=EXIT_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
+        epilog=EXIT_HELP, formatter_class=HelpFormatter)
     add_evaluation_options(p)
     p.add_argument("--json", action="store_true", help="when printing, print the advisory JSON object")
     p.add_argument("--state-dir", required=True, metavar="DIR",
