@@ -13,7 +13,8 @@ import pandas as pd
 from .decision import VERDICTS
 from .errors import UsageError
 from .references import read_registry
-from .replay import (LETTERS, compare_rule_sets, dominant_letters, hours_by, read_attempts, replay_verdicts,
+from .history import read_history
+from .replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, replay_verdicts,
                      score_attempts, step_hours)
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
@@ -102,7 +103,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
         "comparison": None,
     }
     if args.history:
-        attempts = read_attempts(args.history)
+        attempts = attempts_from_history(read_history(args.history))
         summary["attempts"] = score_attempts(times, base.verdict, base.rule_eval, attempts,
                                              inputs.site.feed.max_feed_age_min)
     if other is not None:
@@ -195,8 +196,8 @@ def _print_summary(summary: dict, verdict: np.ndarray, hours: np.ndarray, local:
                       f"(rate {_pct(attempts['missed_rate'])})")
         if attempts["per_rule"]:
             rules = Table(box=box.SIMPLE_HEAD)
-            for h in ("rule", "scan attempts when fired", "failed", "false go", "missed"):
-                rules.add_column(h, justify="left" if h == "rule" else "right")
+            for h in ("rule", "scans when fired", "failed", "false go", "missed"):
+                rules.add_column(h, justify="left" if h == "rule" else "right", no_wrap=True)
             for r in attempts["per_rule"]:
                 rules.add_row(r["rule"], str(r["scan_attempts_when_fired"]), str(r["failed_when_fired"]),
                               str(r["false_go_when_fired"]), str(r["missed_when_fired"]))

@@ -12,18 +12,15 @@ Pure summaries over the vectorised decisions of every archive row:
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from .decision import VERDICTS
-from .errors import FeedError
+from .history import History
 from .rules.ruleset import RuleEvaluation
 
 LETTERS = {"scan": "S", "astronomical": "A", "postpone": "P", "undetermined": "U"}
-_TRUE = {"yes", "y", "true", "1", "usable", "ok", "success"}
-_FALSE = {"no", "n", "false", "0", "unusable", "failed", "fail"}
 
 
 @dataclass(frozen=True)
@@ -39,46 +36,11 @@ class Attempts:
         return len(self.times_utc)
 
 
-def read_attempts(path: Path | str) -> Attempts:
-    """Read an attempts/history CSV: ``time``, ``method`` (scan|astronomical), ``usable``
-    (yes/no) — or, without ``usable``, ``residual_rms_um`` with ``usable_max_rms_um``."""
-    path = Path(path)
-    source = str(path)
-    try:
-        table = pd.read_csv(path)
-    except FileNotFoundError:
-        raise FeedError("history file not found", source=source, hint="check the --history path") from None
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise FeedError(f"cannot read history: {str(exc).splitlines()[0]}", source=source) from None
-    time_col = next((c for c in ("time", "start_utc", "time_utc", "start") if c in table.columns), None)
-    if time_col is None or "method" not in table.columns:
-        raise FeedError("history needs columns 'time' and 'method'", source=source, line=1,
-                        hint="columns: time, method (scan|astronomical), usable (yes/no)")
-    try:
-        times = pd.to_datetime(table[time_col], utc=True, format="ISO8601")
-    except (ValueError, TypeError):
-        raise FeedError("cannot read the history's times", source=source, field=time_col,
-                        hint="ISO 8601 with Z or an offset") from None
-    method = table["method"].astype(str).str.strip().str.lower().to_numpy()
-    bad = ~np.isin(method, ("scan", "astronomical"))
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise FeedError(f"method {table['method'].iloc[i]!r} is neither scan nor astronomical", source=source,
-                        line=i + 2, field="method")
-    if "usable" in table.columns:
-        text = table["usable"].astype(str).str.strip().str.lower()
-        unknown = ~text.isin(_TRUE | _FALSE)
-        if unknown.any():
-            i = int(np.flatnonzero(unknown.to_numpy())[0])
-            raise FeedError(f"usable {table['usable'].iloc[i]!r} is not yes/no", source=source, line=i + 2,
-                            field="usable")
-        usable = text.isin(_TRUE).to_numpy()
-    elif {"residual_rms_um", "usable_max_rms_um"} <= set(table.columns):
-        usable = (table["residual_rms_um"] <= table["usable_max_rms_um"]).to_numpy()
-    else:
-        raise FeedError("history needs a 'usable' column (yes/no)", source=source, line=1)
-    order = np.argsort(times.to_numpy(), kind="stable")
-    return Attempts(pd.DatetimeIndex(times.iloc[order]).as_unit("ns"), method[order], usable[order], source)
+def attempts_from_history(history: History) -> Attempts:
+    """The attempts of a validated :class:`advisor.history.History`, sorted by time."""
+    frame = history.frame.sort_values("time", kind="stable")
+    return Attempts(pd.DatetimeIndex(frame["time"]).as_unit("ns"), frame["method"].to_numpy(dtype=object),
+                    frame["usable"].to_numpy(dtype=bool), history.source)
 
 
 def step_hours(times_utc: pd.DatetimeIndex, max_gap_min: float) -> np.ndarray:

@@ -23,9 +23,7 @@ cross-validation (ROC AUC, Brier score, a reliability table) and exported to pla
 
 from __future__ import annotations
 
-import hashlib
 import platform
-import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -40,8 +38,8 @@ from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import StandardScaler
 
 from . import __version__
-from .errors import AdvisorError
 from .features import CATALOGUE, compute_features
+from .history import History, HistoryError, read_history, sha256_of  # noqa: F401 (re-exported)
 from .feed import Feed, canonical_frame
 from .model import METHOD_LABELS, MethodModel, SiteModel, Term, term_matrix
 from .references import Registry
@@ -53,12 +51,8 @@ CV_FOLDS = 5
 CV_SEED = 0
 C_REGULARISATION = 10.0
 RELIABILITY_EDGES = (0.0, 0.2, 0.4, 0.6, 0.8, 1.0)
-MAX_HISTORY_BYTES = 200_000_000
 #: Windowed features a history records directly (they cannot be recomputed from one row).
 RECORDED_FEATURES = ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h")
-USABLE_WORDS = {**dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),
-                **dict.fromkeys(("no", "n", "false", "0", "unusable", "failed", "fail"), 0.0), "": np.nan}
-
 #: Terms per method.  Wind pressure, hence structural vibration and pointing error, grows
 #: as the square of the wind speed (gust²); the laser path suffers as the air nears
 #: saturation (how far the dew-point spread falls short of 3 °C); thermal drift of the
@@ -68,127 +62,6 @@ DEFAULT_TERMS: dict[str, tuple[Term, ...]] = {
              Term("air_temp_rate_c_per_h", "abs"))
     for method in METHOD_LABELS
 }
-
-_OFFSET = re.compile(r"(?:Z|[+-]\d\d:?\d\d)$", re.IGNORECASE)
-
-
-class HistoryError(AdvisorError):
-    """A history file is malformed, or too small to train on honestly."""
-
-
-@dataclass(frozen=True)
-class History:
-    """Validated attempts: ``frame`` has ``time`` (UTC), ``method``, ``usable`` (bool), ``residual_rms_um``
-    and any weather columns; ``sha256`` is the hash of the file's bytes."""
-
-    frame: pd.DataFrame
-    source: str
-    sha256: str
-
-
-def sha256_of(path: Path) -> str:
-    digest = hashlib.sha256()
-    with Path(path).open("rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
-
-
-def read_history(path: Path | str, usable_below_um: float | None = None) -> History:
-    """Read and validate a history CSV (see the module docstring for its columns)."""
-    path = Path(path)
-    source = str(path)
-    try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise HistoryError("history file not found", source=source, hint="check the --history path") from None
-    if path.is_dir():
-        raise HistoryError("is a directory, expected a CSV file", source=source)
-    if size == 0:
-        raise HistoryError("history file is empty", source=source, hint="expected a header line and one row per attempt")
-    if size > MAX_HISTORY_BYTES:
-        raise HistoryError(f"history is {size / 1e6:.0f} MB, above the {MAX_HISTORY_BYTES / 1e6:.0f} MB limit", source=source)
-    try:
-        table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8")
-    except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        m = re.search(r"line (\d+)", msg)
-        raise HistoryError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
-                           hint="save the history as comma-separated UTF-8 text") from None
-    table = table.rename(columns=lambda c: str(c).strip())
-    if len(table) == 0:
-        raise HistoryError("history has a header but no attempts", source=source)
-    for required in ("time", "method"):
-        if required not in table.columns:
-            raise HistoryError(f"missing column {required!r}", source=source, line=1,
-                               hint="columns: time, method, usable and/or residual_rms_um, then weather columns")
-    if "usable" not in table.columns and "residual_rms_um" not in table.columns:
-        raise HistoryError("no outcome column: need 'usable' (yes/no) and/or 'residual_rms_um'", source=source, line=1)
-
-    def line_of(mask) -> int:
-        return int(np.flatnonzero(np.asarray(mask))[0]) + 2
-
-    text_time = table["time"].str.strip()
-    no_offset = ~text_time.str.contains(_OFFSET)
-    if no_offset.any():
-        i = line_of(no_offset)
-        raise HistoryError(f"time {table['time'].iloc[i - 2]!r} has no UTC offset", source=source, line=i, field="time",
-                           hint="write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z")
-    times = pd.to_datetime(text_time, utc=True, format="ISO8601", errors="coerce")
-    if times.isna().any():
-        i = line_of(times.isna())
-        raise HistoryError(f"cannot read time {table['time'].iloc[i - 2]!r}", source=source, line=i, field="time",
-                           hint="write ISO 8601, e.g. 2026-01-15T09:00:00Z")
-    method = table["method"].str.strip().str.lower()
-    bad = ~method.isin(list(METHOD_LABELS))
-    if bad.any():
-        i = line_of(bad)
-        raise HistoryError(f"method {table['method'].iloc[i - 2]!r} is neither 'scan' nor 'astronomical'",
-                           source=source, line=i, field="method")
-    out = pd.DataFrame({"time": times, "method": method.to_numpy(dtype=object)})
-
-    usable = np.full(len(table), np.nan)
-    if "usable" in table.columns:
-        words = table["usable"].str.strip().str.lower()
-        bad = ~words.isin(list(USABLE_WORDS))
-        if bad.any():
-            i = line_of(bad)
-            raise HistoryError(f"usable {table['usable'].iloc[i - 2]!r} is not yes/no", source=source, line=i,
-                               field="usable", hint="write yes or no (or leave it blank and give residual_rms_um)")
-        usable = words.map(USABLE_WORDS).to_numpy(dtype=float)
-    rms = _numeric(table, "residual_rms_um", source) if "residual_rms_um" in table.columns else np.full(len(table), np.nan)
-    if (rms < 0).any():
-        raise HistoryError("residual_rms_um is negative", source=source, line=line_of(rms < 0), field="residual_rms_um")
-    limit = np.full(len(table), np.nan if usable_below_um is None else float(usable_below_um))
-    if "usable_max_rms_um" in table.columns:
-        row_limit = _numeric(table, "usable_max_rms_um", source)
-        limit = np.where(np.isfinite(row_limit), row_limit, limit)
-    judged = np.isnan(usable) & np.isfinite(rms)
-    if (judged & np.isnan(limit)).any():
-        raise HistoryError("no 'usable' value and no limit to judge residual_rms_um by", source=source,
-                           line=line_of(judged & np.isnan(limit)), field="usable",
-                           hint="fill in usable, add usable_max_rms_um, or pass --usable-below-um UM")
-    usable = np.where(judged, (rms <= limit).astype(float), usable)
-    if np.isnan(usable).any():
-        raise HistoryError("attempt has no outcome (neither usable nor residual_rms_um)", source=source,
-                           line=line_of(np.isnan(usable)), field="usable")
-    out["usable"] = usable.astype(bool)
-    out["residual_rms_um"] = rms
-    for name in (*CANONICAL_COLUMNS, "air_temp_rate_c_per_h"):
-        if name in table.columns:
-            out[name] = _numeric(table, name, source)
-    return History(out, source, sha256_of(path))
-
-
-def _numeric(table: pd.DataFrame, name: str, source: str) -> np.ndarray:
-    raw = table[name].str.strip()
-    values = pd.to_numeric(raw.replace({"": None, "NaN": None, "nan": None, "NA": None}), errors="coerce")
-    bad = values.isna() & ~raw.isin(["", "NaN", "nan", "NA"])
-    if bad.any():
-        i = int(np.flatnonzero(bad.to_numpy())[0])
-        raise HistoryError(f"{name} {table[name].iloc[i]!r} is not a number", source=source, line=i + 2, field=name)
-    return values.to_numpy(dtype=float)
-
 
 def history_features(history: History, site: Site, feed: Feed | None = None,
                      freq_ghz: float = 86.0) -> pd.DataFrame:

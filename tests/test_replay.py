@@ -112,3 +112,15 @@ def test_replay_csv_export(tmp_path, sample_args):
 def test_replay_without_feed_is_usage_error(capsys):
     assert main(["replay"]) == 2
     assert "--feed" in capsys.readouterr().err
+
+
+def test_replay_scores_the_demo_history(capsys):
+    """The history file that trains the model is the same one replay scores against."""
+    argv = ["replay", "--site", str(DEMO / "larch_basin.yaml"), "--feed", str(DEMO / "larch_basin_archive_sample.csv"),
+            "--references", str(DEMO / "larch_basin_archive_references.csv"),
+            "--history", str(DEMO / "larch_basin_history.csv"), "--json"]
+    assert main(argv) == 0
+    attempts = json.loads(capsys.readouterr().out)["attempts"]
+    assert attempts["scan_attempts"] > 0
+    assert attempts["false_go"] <= attempts["scan_advised_at_attempts"]
+    assert 0.0 <= (attempts["missed_rate"] or 0.0) <= 1.0
