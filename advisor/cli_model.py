@@ -122,7 +122,7 @@ def _coefficient_lines(method_model) -> list[str]:
 def cmd_train(args: argparse.Namespace) -> int:
     from . import training
     from .feed import read_feed
-    from .references import atomic_write_text
+    from .fileio import atomic_write_text
     from .site import load_site
 
     site = load_site(args.site)

@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import FeedError, UsageError
+from .fileio import atomic_write_text
 from .helpformat import HelpFormatter
 
 MAX_HOURS = 31 * 24.0
@@ -136,24 +137,6 @@ def _svg_target(text: str | None) -> Path | None:
     return path
 
 
-def _write_atomic(path: Path, text: str) -> None:
-    """Write ``text`` to a temporary file beside ``path`` (mode from the umask), then rename it over ``path``."""
-    tmp = path.parent / f".{path.name}.{os.getpid()}.tmp"
-    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
-
-
 def _svg_text(outlook, ctx) -> str:
     from rich.console import Console
 
@@ -228,7 +211,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
         width = shutil.get_terminal_size((100, 24)).columns
         sys.stdout.write(render_plain_outlook(outlook, ctx, width))
     if svg_text is not None:
-        _write_atomic(svg, svg_text)
+        atomic_write_text(svg, svg_text)
         print(f"advisor: saved the outlook picture to {svg}", file=sys.stderr)
     return 0
 

@@ -131,7 +131,7 @@ def _table_dict(table: pd.DataFrame) -> dict:
 
 
 def _write_csv(path: str, times: pd.DatetimeIndex, verdict: np.ndarray, verdict_b) -> None:
-    from .references import atomic_write_text
+    from .fileio import atomic_write_text
 
     out = pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ"), "verdict": verdict})
     if verdict_b is not None:

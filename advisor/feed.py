@@ -22,6 +22,7 @@ import pandas as pd
 
 from . import units
 from .errors import FeedError
+from .fileio import regular_file_size
 from .physics.moisture import dew_point_c
 from .site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
 
@@ -107,16 +108,7 @@ def _tail_text(path: Path, tail_bytes: int, is_jsonl: bool) -> tuple[str, int]:
 def _read_table(path: Path, tail_bytes: int | None = None) -> tuple[pd.DataFrame, int]:
     """The raw table and the file line of its first data row."""
     source = str(path)
-    try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise FeedError("feed file not found", source=source, hint="check the --feed path") from None
-    except OSError as exc:
-        raise FeedError(f"cannot read feed: {exc.strerror}", source=source) from None
-    if path.is_dir():
-        raise FeedError("is a directory, expected a CSV or JSON Lines file", source=source)
-    if size == 0:
-        raise FeedError("feed file is empty", source=source, hint="expected a header line and data rows")
+    size = regular_file_size(path, FeedError, "feed file", empty_hint="expected a header line and data rows")
     tail = tail_bytes is not None and size > 2 * tail_bytes
     if not tail and size > MAX_FULL_READ_BYTES:
         raise FeedError(f"feed is {size / 1e6:.0f} MB; whole-file commands read at most "

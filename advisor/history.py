@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import AdvisorError
+from .fileio import regular_file_size
 from .model import METHOD_LABELS
 from .site import CANONICAL_COLUMNS
 
@@ -54,16 +55,8 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
     """Read and validate a history CSV (see the module docstring for its columns)."""
     path = Path(path)
     source = str(path)
-    try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise HistoryError("history file not found", source=source, hint="check the --history path") from None
-    if path.is_dir():
-        raise HistoryError("is a directory, expected a CSV file", source=source)
-    if size == 0:
-        raise HistoryError("history file is empty", source=source, hint="expected a header line and one row per attempt")
-    if size > MAX_HISTORY_BYTES:
-        raise HistoryError(f"history is {size / 1e6:.0f} MB, above the {MAX_HISTORY_BYTES / 1e6:.0f} MB limit", source=source)
+    regular_file_size(path, HistoryError, "history file", max_bytes=MAX_HISTORY_BYTES,
+                      empty_hint="expected a header line and one row per attempt")
     try:
         table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8")
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:

@@ -10,8 +10,6 @@ from __future__ import annotations
 
 import csv
 import io
-import os
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -19,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import RegistryError
+from .fileio import atomic_write_text
 
 COLUMNS = ("time", "air_temp_c", "note")
 
@@ -104,33 +103,6 @@ def reference_in_force(registry: Registry, times_utc: pd.DatetimeIndex) -> tuple
     has = pos >= 0
     safe = np.clip(pos, 0, None)
     return np.where(has, ref_t[safe], -1), np.where(has, registry.air_temp_c[safe], np.nan)
-
-
-def atomic_write_text(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` via temp file + fsync + rename in the same folder."""
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-    try:
-        dir_fd = os.open(folder, os.O_RDONLY)
-        try:
-            os.fsync(dir_fd)
-        finally:
-            os.close(dir_fd)
-    except OSError:
-        pass
 
 
 def append_reference(path: Path | str, time_utc: pd.Timestamp, air_temp_c: float, note: str = "") -> Registry:

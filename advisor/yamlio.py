@@ -13,6 +13,7 @@ from pathlib import Path
 import yaml
 
 from .errors import AdvisorError
+from .fileio import regular_file_size
 
 # libyaml's safe loader where PyYAML was built with it (the wheels are), else the pure-Python one.
 _SafeLoader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
@@ -91,17 +92,10 @@ def load_yaml(path: Path | str, error_type: type[AdvisorError]):
     """Read and parse a YAML file safely; return ``(data, lines)``."""
     path = Path(path)
     source = str(path)
-    try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise error_type("file not found", source=source, hint="check the path") from None
-    except OSError as exc:
-        raise error_type(f"cannot read file: {exc.strerror}", source=source) from None
-    if path.is_dir():
-        raise error_type("is a directory, expected a YAML file", source=source)
-    if size > MAX_YAML_BYTES:
-        raise error_type(f"file is {size} bytes, more than the {MAX_YAML_BYTES} allowed",
-                         source=source, hint="a configuration file should be small")
+    if path.exists() and not path.is_dir() and path.stat().st_size == 0:
+        return None, {}
+    what = {"RulesError": "rule file", "SiteError": "site file"}.get(error_type.__name__, "YAML file")
+    regular_file_size(path, error_type, what, max_bytes=MAX_YAML_BYTES)
     try:
         raw = path.read_bytes()
         text = raw.decode("utf-8")

@@ -110,11 +110,11 @@ def test_lint_follows_the_site_rule_files_and_a_missing_one_is_an_error(capsys, 
     site.write_text("site:\n  name: T\n  latitude_deg: 47\n  longitude_deg: -114\n  dish_diameter_m: 50\n"
                     "rules:\n  - missing_rules.yaml\n", encoding="utf-8")
     status, out, _ = run(capsys, "rules", "lint", "--site", str(site))
-    assert status == 2 and "missing_rules.yaml: error: file not found" in out
+    assert status == 2 and "missing_rules.yaml: error: rule file not found" in out
     feed = tmp_path / "feed.csv"
     weather_table().to_csv(feed, index=False)
     status, _, err = run(capsys, "check", "--site", str(site), "--feed", str(feed))
-    assert status == 2 and "missing_rules.yaml: file not found" in err     # no fallback to defaults
+    assert status == 2 and "missing_rules.yaml: rule file not found" in err     # no fallback to defaults
 
 
 # --------------------------------------------------------------------------- every command refuses
