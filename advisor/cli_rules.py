@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from .features import CATALOGUE, FEATURES
-from .rules.condition import Call, Compare, Convert, Name, Node, Number, Unary, evaluate_row
+from .rules.condition import Call, Compare, Convert, Name, Node, Number, Unary, evaluate_row, names_in
 from .rules.lint import condition_parts, lint_files
 from .rules.ruleset import MESSAGE_EXTRAS, RuleSet, default_rule_files, format_message
 from .site import Site, load_site
@@ -130,23 +130,8 @@ def _part_numbers(part: Node, row: dict) -> str:
     if isinstance(inner, Name):
         return f"{inner.name} = {_number(row.get(inner.name))}"
     if isinstance(inner, Call) and inner.func == "missing":
-        return ", ".join(f"{n} = {_number(row.get(n))}" for n in sorted(_names(inner.args[0])))
+        return ", ".join(f"{n} = {_number(row.get(n))}" for n in sorted(names_in(inner.args[0])))
     return ""
-
-
-def _names(node: Node) -> set[str]:
-    out, stack = set(), [node]
-    while stack:
-        n = stack.pop()
-        if isinstance(n, Name):
-            out.add(n.name)
-        for attr in ("operand", "left", "right"):
-            if hasattr(n, attr):
-                stack.append(getattr(n, attr))
-        for attr in ("operands", "args"):
-            if hasattr(n, attr):
-                stack.extend(getattr(n, attr))
-    return out
 
 
 def _where(rule) -> str:
@@ -284,7 +269,7 @@ def _shown_in_parts(ast: Node) -> set[str]:
         if isinstance(inner, Name):
             shown.add(inner.name)
         elif isinstance(inner, Compare) and len(inner.ops) == 1:
-            names = [_names(side) for side in inner.operands]
+            names = [names_in(side) for side in inner.operands]
             for side, other in ((0, 1), (1, 0)):
                 if isinstance(inner.operands[side], Name) and not names[other]:
                     shown.add(inner.operands[side].name)

@@ -272,6 +272,20 @@ def _children(node: Node) -> tuple[Node, ...]:
     return ()
 
 
+def iter_nodes(root: Node):
+    """Every node of a tree, ``root`` first (depth first, no recursion)."""
+    stack = [root]
+    while stack:
+        node = stack.pop()
+        yield node
+        stack.extend(_children(node))
+
+
+def names_in(root: Node) -> set[str]:
+    """The feature names a tree reads."""
+    return {n.name for n in iter_nodes(root) if isinstance(n, Name)}
+
+
 def _depth(root: Node) -> int:
     """Depth of the tree, computed without recursion."""
     deepest, stack = 0, [(root, 1)]

@@ -48,7 +48,7 @@ from .. import units
 from ..errors import ConditionError, RulesError
 from ..yamlio import load_yaml, parse_yaml_text
 from .condition import (Bool, Call, Compare, Compiled, FeatureSpec, Logical, Name, Node, Number, Unary,
-                        compile_condition, compile_expression, evaluate_row)
+                        compile_condition, compile_expression, evaluate_row, names_in)
 from .ruleset import (APPLIES_TO, EFFECTS, MAX_RULES, MESSAGE_EXTRAS, RULE_KEYS, Rule, RuleSet,
                       message_fields)
 
@@ -444,18 +444,7 @@ class _Reasoner:
 
 
 def _constant(node: Node) -> bool:
-    stack = [node]
-    while stack:
-        n = stack.pop()
-        if isinstance(n, Name):
-            return False
-        for attr in ("operand", "left", "right"):
-            if hasattr(n, attr):
-                stack.append(getattr(n, attr))
-        for attr in ("operands", "args"):
-            if hasattr(n, attr):
-                stack.extend(getattr(n, attr))
-    return True
+    return not names_in(node)
 
 
 def condition_parts(node: Node, keep_not: bool = False) -> list[Node]:
