@@ -190,11 +190,14 @@ def run_check(args: argparse.Namespace) -> CheckResult:
                     "data_age_min": None if age is None or age != age else round(float(age), 2),
                     "ok": bool(call.features.get("data_ok"))})
     next_window = None
+    notes = inputs.notes
     if int((frame["time"] > at).sum()) >= 2:  # the feed carries future rows: when can each method next be done
         from .cli_outlook import next_window_for_check
         next_window = next_window_for_check(inputs, at, registry)
+        if next_window and ((frame["kind"] == "observed") & (frame["time"] > at)).any():
+            notes = (*notes, "Next window found in observations after the evaluation time (hindsight).")
     ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=inputs.feed.source,
-                  is_demo=inputs.is_demo, data_quality=quality, next_window=next_window, notes=inputs.notes)
+                  is_demo=inputs.is_demo, data_quality=quality, next_window=next_window, notes=notes)
     return CheckResult(call, ctx, status, inputs)
 
 

@@ -49,7 +49,7 @@ FEATURES: tuple[FeatureSpec, ...] = (
     # thermal state
     _F("sun_elevation_deg", "deg", "apparent sun elevation"),
     _F("sun_azimuth_deg", "deg", "sun azimuth, clockwise from north"),
-    _F("is_night", "flag", "sun below the horizon (elevation < -0.833 deg)"),
+    _F("is_night", "flag", "between sunset and sunrise (sun centre below -0.833 deg, refraction included)"),
     _F("sun_transition", "flag", "sun between -6 and +15 deg: the structure deforms fastest"),
     _F("hours_since_sunset", "h", "hours since the most recent sunset"),
     _F("hours_since_sunrise", "h", "hours since the most recent sunrise"),
@@ -157,10 +157,14 @@ def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Regis
     sun_el, sun_az = solar_position(times_index, site.latitude_deg, site.longitude_deg)
     out["sun_elevation_deg"] = np.asarray(sun_el, dtype=float)
     out["sun_azimuth_deg"] = np.asarray(sun_az, dtype=float)
-    out["is_night"] = out["sun_elevation_deg"] < STANDARD_SUNSET_ELEVATION_DEG
-    out["sun_transition"] = (out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0)
     out["hours_since_sunset"] = np.asarray(hours_since_sunset(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
     out["hours_since_sunrise"] = np.asarray(hours_since_sunrise(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
+    # Night: the most recent of the two events was a sunset (same definition as the event times);
+    # where there is none within two days (polar), fall back to the elevation.
+    known = np.isfinite(out["hours_since_sunset"]) & np.isfinite(out["hours_since_sunrise"])
+    out["is_night"] = np.where(known, out["hours_since_sunset"] < out["hours_since_sunrise"],
+                               out["sun_elevation_deg"] < STANDARD_SUNSET_ELEVATION_DEG)
+    out["sun_transition"] = (out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0)
 
     # --- reference scan ------------------------------------------------------------------
     ref_ns, ref_temp = reference_in_force(registry, t_ns)

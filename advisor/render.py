@@ -10,6 +10,7 @@ from dataclasses import dataclass
 from zoneinfo import ZoneInfo
 
 import numpy as np
+import pandas as pd
 from rich import box
 from rich.console import Group
 from rich.panel import Panel
@@ -125,7 +126,11 @@ def _fmt_feature(name: str, fmt: str, features: dict) -> str:
         return f"{value / 1000:.0f} km"
     if name == "calibrator_minutes_up" and value >= 1440:
         return "all day (circumpolar)"
-    return fmt.format(value)
+    text = fmt.format(value)
+    number = text.split()[0].rstrip("°")
+    if number.startswith("-") and number.lstrip("-+").replace(".", "").strip("0") == "":
+        text = text[1:]  # no "-0.0 °C"
+    return text
 
 
 def _candidate_rows(call: Call):
@@ -197,7 +202,7 @@ def render_panel(call: Call, ctx: Context) -> Panel:
     parts.append(feats)
     if ctx.next_window:
         parts.append(Text(""))
-        parts.append(Text(_next_window_text(ctx.next_window), style="bold"))
+        parts.append(Text(_next_window_text(ctx.next_window, ctx.time_zone), style="bold"))
     parts.append(Text(""))
     parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
     title = f"advisor · {ctx.site_name}"
@@ -205,13 +210,20 @@ def render_panel(call: Call, ctx: Context) -> Panel:
                  subtitle=f"feed: {ctx.feed_source}", subtitle_align="left")
 
 
-def _next_window_text(next_window: dict) -> str:
+def _next_window_text(next_window: dict, time_zone: str) -> str:
+    """'Next window: laser scan 10:29–11:44 MST (17:29–18:44 UTC, 75 min); astronomical ...'."""
+    zone = ZoneInfo(time_zone)
     bits = []
     for method, w in next_window.items():
-        if w:
-            bits.append(f"{method} from {w['start_utc']} to {w['end_utc']}")
-        else:
-            bits.append(f"{method}: none in the forecast")
+        label = "laser scan" if method == "scan" else method
+        if not w:
+            bits.append(f"{label}: none in the forecast")
+            continue
+        start, end = (pd.Timestamp(w[k]) for k in ("start_utc", "end_utc"))
+        ls, le = start.tz_convert(zone), end.tz_convert(zone)
+        day = "" if ls.date() == le.date() else f" {le:%d %b}"
+        bits.append(f"{label} {ls:%d %b %H:%M}–{le:%H:%M}{day} {le:%Z} ({start:%H:%M}–{end:%H:%M} UTC, "
+                    f"{w.get('length_min', (end - start).total_seconds() / 60):.0f} min)")
     return "Next window: " + "; ".join(bits)
 
 
@@ -240,7 +252,7 @@ def render_plain(call: Call, ctx: Context) -> str:
         lines.append(f"  best calibrator: {call.calibrator_name}")
     if ctx.next_window:
         lines.append("")
-        lines.append(_next_window_text(ctx.next_window))
+        lines.append(_next_window_text(ctx.next_window, ctx.time_zone))
     lines.append("")
     lines.append(f"feed: {ctx.feed_source}")
     lines.append("Cautions: " + " ".join(CAUTIONS))
