@@ -87,6 +87,13 @@ CASES = [
     ("rules_duplicate_ids.yaml", check_rules, 2, "duplicate"),
     ("rules_not_a_list.yaml", check_rules, 2, "list"),
     ("rules_python_tag.yaml", check_rules, 2, "tag not allowed"),
+    # model files (check falls back to rules only with a note; `model show` refuses them)
+    ("model_truncated.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "truncated json"),
+    ("model_not_json.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "invalid json"),
+    ("model_pickle.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "not utf-8"),
+    ("model_wrong_schema.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "schema version 99"),
+    ("model_unknown_feature.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "unknown feature"),
+    ("model_wrong_unit.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "'kn' in the model"),
     # reference registries
     ("refs_bad_time.csv", check_refs, 2, "time"),
     ("refs_missing_column.csv", check_refs, 2, "missing column"),
@@ -167,3 +174,23 @@ def test_ten_thousand_rules_are_refused_quickly(capsys, tmp_path):
     status = main(["check", "--feed", GOOD_FEED, "--at", AT, "--rules", str(big)])
     err = capsys.readouterr().err
     assert status == 2 and "more than" in err and len(err.strip().splitlines()) == 1
+
+
+def test_huge_model_file_is_refused(capsys, tmp_path):
+    big = tmp_path / "huge_model.json"
+    big.write_text('{"format": "advisor-site-model", "pad": "' + "x" * 3_000_000 + '"}')
+    assert main(["model", "show", str(big)]) == 2
+    err = capsys.readouterr().err
+    assert len(err.strip().splitlines()) == 1 and "huge_model.json" in err
+
+
+def test_broken_model_makes_check_fall_back_to_rules_only(capsys):
+    status = main(["check", "--feed", GOOD_FEED, "--at", AT, "--model", str(CORPUS / "model_truncated.json"), "--json"])
+    out, err = capsys.readouterr()
+    import json
+
+    doc = json.loads(out)
+    assert status == 10 and doc["verdict"] == "astronomical"  # no reference in force for January
+    assert all(c["p_usable"] is None for c in doc["candidates"].values())
+    assert any("rests on rules and the error budget only" in note for note in doc["notes"])
+    assert "falling back to rules only" in err
