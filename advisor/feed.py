@@ -14,6 +14,7 @@ import contextlib
 import io
 import json
 import re
+import warnings
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -129,10 +130,10 @@ def _read_table(path: Path, tail_bytes: int | None = None) -> tuple[pd.DataFrame
             text, first_line = _tail_text(path, tail_bytes, is_jsonl)
             if is_jsonl:
                 return _read_jsonl(path, text.splitlines(), first_line), first_line
-            return pd.read_csv(io.StringIO(text), low_memory=False), first_line
+            return _read_csv(io.StringIO(text)), first_line
         if is_jsonl:
             return _read_jsonl(path), 1
-        return pd.read_csv(path, low_memory=False), 2
+        return _read_csv(path), 2
     except FeedError:
         raise
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
@@ -142,6 +143,13 @@ def _read_table(path: Path, tail_bytes: int | None = None) -> tuple[pd.DataFrame
                         hint="check delimiters and quoting") from None
     except pd.errors.EmptyDataError:
         raise FeedError("feed has no header or rows", source=source) from None
+
+
+def _read_csv(source) -> pd.DataFrame:
+    """pandas' C parser in its fast (chunked) mode; a column of mixed types is coerced later anyway."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", pd.errors.DtypeWarning)
+        return pd.read_csv(source)
 
 
 def _nullcontext(value):
@@ -204,9 +212,14 @@ def _is_number(text) -> bool:
 
 def _has_utc_offset(texts: np.ndarray) -> np.ndarray:
     """Vectorised: does each ISO 8601 text end in ``Z``, ``±HH:MM`` or ``±HHMM`` after a time?"""
-    arr = np.asarray(texts, dtype="U40")
-    width = arr.dtype.itemsize // 4
-    codes = arr.view(np.uint32).reshape(len(arr), width)
+    texts = np.asarray(texts, dtype=object)
+    try:  # ASCII bytes are five times cheaper to build than unicode arrays
+        arr = texts.astype("S")
+        codes = arr.view(np.uint8).reshape(len(arr), arr.dtype.itemsize)
+    except (UnicodeEncodeError, ValueError, TypeError):
+        arr = np.asarray(texts.astype(str))
+        codes = arr.view(np.uint32).reshape(len(arr), arr.dtype.itemsize // 4)
+    width = codes.shape[1]
     length = np.strings.str_len(arr)
     rows = np.arange(len(arr))
 
@@ -220,7 +233,7 @@ def _has_utc_offset(texts: np.ndarray) -> np.ndarray:
     zulu = np.isin(char_at(1), (ord("Z"), ord("z")))
     hh_mm = np.isin(sign6, plus_minus) & (colon3 == ord(":"))
     hhmm = np.isin(sign5, plus_minus) & np.all([(char_at(k) >= ord("0")) & (char_at(k) <= ord("9")) for k in (1, 2, 3, 4)], axis=0)
-    has_time = np.strings.find(arr, ":") >= 0
+    has_time = np.strings.find(arr, b":" if arr.dtype.kind == "S" else ":") >= 0
     return has_time & (zulu | hh_mm | hhmm)
 
 

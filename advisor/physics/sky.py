@@ -246,19 +246,54 @@ def elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longit
                                 min_elevation_deg, horizon_min=1440.0):
     """Elevation now [deg] and minutes above ``min_elevation_deg`` [min], both (n, m), in one pass.
 
-    Same arguments and conventions as :func:`minutes_above_elevation`.
+    Same arguments and conventions as :func:`minutes_above_elevation`.  Everything that depends
+    only on the declination (precessed once per day) is computed per day and source; only the
+    hour angle and its cosine are computed per time and source.
     """
-    hour_angle, dec_date = _site_frame(times_utc, ra_deg, dec_deg, longitude_deg)
-    elevation = _elevation_deg(hour_angle, dec_date, float(latitude_deg))
-    limit = np.atleast_1d(np.asarray(min_elevation_deg, dtype=float)).ravel()[None, :]
+    days = np.atleast_1d(_days_since_j2000(times_utc)).ravel()
+    ra = np.atleast_1d(np.asarray(ra_deg, dtype=float)).ravel()[None, :]
+    dec = np.atleast_1d(np.asarray(dec_deg, dtype=float)).ravel()[None, :]
+    whole_days, inverse = np.unique(np.floor(days), return_inverse=True)
+    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)          # (d, m)
     phi = np.radians(float(latitude_deg))
-    dec = np.radians(dec_date)
+    d = np.radians(dec_day)
+    a_day = np.sin(phi) * np.sin(d)                                             # sin(e) = a + b cos(H)
+    b_day = np.cos(phi) * np.cos(d)
+    limit = np.atleast_1d(np.asarray(min_elevation_deg, dtype=float)).ravel()[None, :]
     with np.errstate(divide="ignore", invalid="ignore"):
-        cos_h0 = (np.sin(np.radians(limit)) - np.sin(phi) * np.sin(dec)) / (np.cos(phi) * np.cos(dec))
-    never_sets = cos_h0 < -1.0
-    h0 = np.degrees(np.arccos(np.clip(cos_h0, -1.0, 1.0)))
-    minutes = np.clip((h0 - hour_angle) / SIDEREAL_RATE_DEG_PER_H * 60.0, 0.0, None)
-    minutes = np.where(never_sets, np.inf, minutes)
-    minutes = np.where(elevation >= limit, minutes, 0.0)
-    minutes = np.minimum(minutes, float(horizon_min))
-    return elevation, np.where(np.isnan(elevation), np.nan, minutes)
+        cos_h0 = (np.sin(np.radians(limit)) - a_day) / b_day
+    never_sets_day = cos_h0 < -1.0
+    h0_day = np.degrees(np.arccos(np.clip(cos_h0, -1.0, 1.0)))
+
+    # The (n, m) block runs in float32 (about ten times faster here; resolution ~1e-5 deg, far
+    # below the 0.05 deg the tests hold us to); inputs reduced mod 360 in float64 first.
+    # The (n, m) block runs in float32 (about ten times faster here; resolution ~1e-5 deg, far
+    # below the 0.05 deg the tests hold us to); inputs are reduced mod 360 in float64 first.
+    if np.all(inverse[1:] >= inverse[:-1]):           # times in order: repeat each day's row
+        counts = np.bincount(inverse, minlength=len(whole_days))
+
+        def per_time(day_values):
+            return np.repeat(day_values.astype(np.float32), counts, axis=0)
+    else:
+        def per_time(day_values):
+            return day_values.astype(np.float32)[inverse]
+
+    f32 = np.float32
+    lst = np.mod(_gmst_deg_from_days(days) + float(longitude_deg), 360.0).astype(f32)   # (n,)
+    hour_angle = lst[:, None] - per_time(np.mod(ra_day, 360.0))
+    hour_angle += f32(180.0)
+    np.mod(hour_angle, f32(360.0), out=hour_angle)
+    hour_angle -= f32(180.0)
+    sin_e = np.cos(hour_angle * f32(np.pi / 180.0))
+    sin_e *= per_time(b_day)
+    sin_e += per_time(a_day)
+    np.clip(sin_e, f32(-1.0), f32(1.0), out=sin_e)
+    elevation = np.arcsin(sin_e, out=sin_e)
+    elevation *= f32(180.0 / np.pi)
+    minutes = per_time(h0_day) - hour_angle
+    minutes *= f32(60.0 / SIDEREAL_RATE_DEG_PER_H)
+    np.clip(minutes, f32(0.0), f32(horizon_min), out=minutes)
+    minutes[per_time(never_sets_day) > 0] = f32(horizon_min)
+    minutes[elevation < limit] = f32(0.0)
+    minutes[np.isnan(elevation)] = np.nan
+    return elevation, minutes
