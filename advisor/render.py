@@ -9,15 +9,15 @@ import math
 from dataclasses import dataclass
 from zoneinfo import ZoneInfo
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import pandas as pd
-from rich import box
-from rich.console import Group
-from rich.panel import Panel
-from rich.table import Table
-from rich.text import Text
 
 from .decision import Call
+
+if TYPE_CHECKING:  # rich is imported only when a panel is drawn: piped output stays light
+    from rich.panel import Panel
 from .features import CATALOGUE
 
 SCHEMA_VERSION = 1
@@ -156,6 +156,12 @@ def ordered_reasons(call: Call):
 
 def render_panel(call: Call, ctx: Context) -> Panel:
     """The terminal view: verdict first, then candidates, reasons, key features, cautions."""
+    from rich import box
+    from rich.console import Group
+    from rich.panel import Panel
+    from rich.table import Table
+    from rich.text import Text
+
     label, style = VERDICT_STYLE[call.verdict]
     parts = []
     head = Text()
