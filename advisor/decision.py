@@ -162,9 +162,10 @@ def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     if not np.isfinite(age):
         reasons.append(Reason("data", "both", "block", "No good weather sample at or before this time."))
     elif age > site.feed.max_feed_age_min:
+        age_text = f"{age:.0f} min" if age < 120 else f"{age / 60:.1f} h"
         reasons.append(Reason("data", "both", "block",
-                              f"Last good weather sample is {age:.0f} min old (limit {site.feed.max_feed_age_min:.0f} min): "
-                              "the feed looks stale."))
+                              f"Last good weather sample is {age_text} old (limit {site.feed.max_feed_age_min:.0f} min): "
+                              "the feed looks stale; the figures below are from that sample."))
     if not reasons:
         reasons.append(Reason("data", "both", "block",
                               "The latest weather sample is implausible or incomplete; no call is made on bad data."))
