@@ -158,3 +158,18 @@ def test_installed_console_script_from_another_directory(tmp_path):
     assert proc.returncode in (0, 10, 11, 12), proc.stderr
     doc = json.loads(proc.stdout)
     assert doc["demo_data"] is True and doc["schema_version"] >= 1
+
+
+class _FakeTTY:
+    def isatty(self):
+        return True
+
+
+def test_colour_only_on_a_terminal_and_never_with_no_color(monkeypatch):
+    from advisor.cli import _want_color
+
+    monkeypatch.delenv("NO_COLOR", raising=False)
+    assert _want_color(_FakeTTY())
+    assert not _want_color(open(os.devnull, "w"))
+    monkeypatch.setenv("NO_COLOR", "1")
+    assert not _want_color(_FakeTTY())
