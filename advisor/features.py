@@ -174,7 +174,9 @@ def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Regis
 
     # --- calibrators ---------------------------------------------------------------------
     astro = site.astronomical
-    names = np.array([c.name for c in site.calibrators] + [""], dtype=object)
+    # Calibrator names as a categorical (codes into the site's list; the last category is "none").
+    names = list(dict.fromkeys([c.name for c in site.calibrators] + [""]))
+    name_code = np.array([names.index(c.name) for c in site.calibrators] + [len(names) - 1])
     if site.calibrators:
         ra = np.array([c.ra_deg for c in site.calibrators])
         dec = np.array([c.dec_deg for c in site.calibrators])
@@ -188,11 +190,11 @@ def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Regis
         rows = np.arange(n)
         out["calibrator_elevation_deg"] = np.where(any_usable, el[rows, best], np.nan)
         out["calibrator_minutes_up"] = np.where(any_usable, mins[rows, best], 0.0)
-        cal_name = np.where(any_usable, names[best], "")
+        cal_name = pd.Categorical.from_codes(np.where(any_usable, name_code[best], len(names) - 1), categories=names)
     else:
         out["calibrator_elevation_deg"] = np.full(n, np.nan)
         out["calibrator_minutes_up"] = np.zeros(n)
-        cal_name = np.full(n, "", dtype=object)
+        cal_name = pd.Categorical.from_codes(np.zeros(n, dtype=int), categories=[""])
     out["calibrator_available"] = out["calibrator_minutes_up"] >= astro.duration_min
 
     # --- target and site figures ---------------------------------------------------------
@@ -208,12 +210,12 @@ def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Regis
     out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
     out["pointing_beam_fraction"] = out["wind_pointing_error_arcsec"] / beam
 
-    result = pd.DataFrame({"time": times_index})
+    columns = {"time": times_index}
     for spec in FEATURES:
         values = out[spec.name]
-        result[spec.name] = np.asarray(values, dtype=bool) if spec.unit == "flag" else np.asarray(values, dtype=float)
-    result["calibrator_name"] = cal_name
-    return result
+        columns[spec.name] = np.asarray(values, dtype=bool) if spec.unit == "flag" else np.asarray(values, dtype=float)
+    columns["calibrator_name"] = cal_name
+    return pd.DataFrame(columns)
 
 
 def columns_of(features: pd.DataFrame) -> dict[str, np.ndarray]:

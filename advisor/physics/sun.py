@@ -283,17 +283,18 @@ def _hours_since_event(times_utc, latitude_deg, longitude_deg, sign):
     ok = np.isfinite(days) & np.isfinite(lat) & np.isfinite(lon)
     if ok.any():
         today = np.floor(days[ok] + lon[ok] / 360.0 + 0.5)
-        # candidate days: today, yesterday, the day before; computed once per distinct (day, site)
-        cand_day = (today[:, None] - np.arange(3.0)[None, :]).ravel()
-        cand_lat = np.repeat(lat[ok], 3)
-        cand_lon = np.repeat(lon[ok], 3)
-        if np.all(cand_lat == cand_lat[0]) and np.all(cand_lon == cand_lon[0]):  # one site: fast path
-            day_keys, inverse = np.unique(cand_day, return_inverse=True)
-            keys = np.column_stack([day_keys, np.full_like(day_keys, cand_lat[0]), np.full_like(day_keys, cand_lon[0])])
-        else:
-            keys, inverse = np.unique(np.column_stack([cand_day, cand_lat, cand_lon]), axis=0, return_inverse=True)
-        events = _solar_events_days(keys[:, 0], keys[:, 1], keys[:, 2], SUNRISE_SUNSET_ALTITUDE_DEG, sign)
-        cand = events[inverse.ravel()].reshape(-1, 3)
+        back = np.arange(3.0)[None, :]  # candidate days: today, yesterday, the day before
+        if np.all(lat[ok] == lat[ok][0]) and np.all(lon[ok] == lon[ok][0]):  # one site: once per distinct day
+            unique_days, inverse = np.unique(today, return_inverse=True)
+            day_keys = np.unique(np.concatenate([unique_days - k for k in range(3)]))
+            events = _solar_events_days(day_keys, lat[ok][0], lon[ok][0], SUNRISE_SUNSET_ALTITUDE_DEG, sign)
+            cand = events[np.searchsorted(day_keys, unique_days[:, None] - back)][inverse.ravel()]
+        else:  # several sites: once per distinct (day, site)
+            cand_day = (today[:, None] - back).ravel()
+            keys, inverse = np.unique(np.column_stack([cand_day, np.repeat(lat[ok], 3), np.repeat(lon[ok], 3)]),
+                                      axis=0, return_inverse=True)
+            events = _solar_events_days(keys[:, 0], keys[:, 1], keys[:, 2], SUNRISE_SUNSET_ALTITUDE_DEG, sign)
+            cand = events[inverse.ravel()].reshape(-1, 3)
         elapsed = days[ok][:, None] - cand
         with np.errstate(invalid="ignore"):
             usable = (elapsed >= 0.0) & (elapsed <= _MAX_LOOKBACK_DAYS)
