@@ -232,3 +232,18 @@ def test_hours_since_sunset_types_and_continuity():
     pair = np.array([sunset - np.timedelta64(60, "s"), sunset + np.timedelta64(60, "s")])
     before, after = sun.hours_since_sunset(pair, SITE_LAT_DEG, SITE_LON_DEG)
     assert before > 23.0 and after == pytest.approx(1.0 / 60.0, abs=1e-3)
+
+
+def test_long_series_use_the_hourly_grid_without_losing_accuracy():
+    """Self-consistency of our two code paths (no external source needed): a year at 10-minute
+    steps goes through the interpolated hourly grid; it must match the direct evaluation of
+    the same Meeus ch. 25 expressions to well within their own ~0.01 deg accuracy."""
+    from advisor.physics import sun
+
+    times = pd.date_range("2026-01-01", "2027-01-01", freq="10min", tz="UTC")
+    days = sun._days_since_j2000(times)
+    direct = sun._sun_equatorial(days)
+    fast = sun._sun_equatorial_fast(days)
+    ra_diff = np.abs((fast[0] - direct[0] + 180.0) % 360.0 - 180.0)
+    assert ra_diff.max() < 1e-5 and np.abs(fast[1] - direct[1]).max() < 1e-5
+    assert np.abs(fast[2] - direct[2]).max() < 1e-8  # AU; parallax changes by < 1e-7 arcsec

@@ -144,9 +144,33 @@ def _sun_equatorial(days_j2000: np.ndarray):
     return np.mod(ra, 360.0), dec, radius_au, eqeq
 
 
+#: Long time series take the sun's RA/Dec from an hourly grid, linearly interpolated: over an
+#: hour the sun moves 0.04 deg in RA, so the interpolation error is below 1e-6 deg.
+_GRID_MIN_POINTS = 5000
+_GRID_STEP_DAYS = 1.0 / 24.0
+
+
+def _sun_equatorial_fast(days_j2000):
+    """:func:`_sun_equatorial`, evaluated on an hourly grid and interpolated for long series."""
+    days = np.asarray(days_j2000, dtype=float)
+    finite = np.isfinite(days)
+    if days.size < _GRID_MIN_POINTS or not finite.any():
+        return _sun_equatorial(days)
+    lo, hi = np.nanmin(days), np.nanmax(days)
+    grid = np.arange(np.floor(lo / _GRID_STEP_DAYS) - 1, np.ceil(hi / _GRID_STEP_DAYS) + 2) * _GRID_STEP_DAYS
+    if grid.size * 4 > days.size:  # short span but many points: interpolation saves little
+        return _sun_equatorial(days)
+    ra_g, dec_g, radius_g, eqeq_g = _sun_equatorial(grid)
+    ra_g = np.degrees(np.unwrap(np.radians(ra_g)))
+    flat = days.ravel()
+    out = [np.interp(flat, grid, g).reshape(days.shape) for g in (ra_g, dec_g, radius_g, eqeq_g)]
+    out = [np.where(finite, o, np.nan) for o in out]
+    return np.mod(out[0], 360.0), out[1], out[2], out[3]
+
+
 def _sun_hour_angle_dec(days_j2000, longitude_deg):
     """Local apparent hour angle [deg, -180..180) and declination [deg] of the sun."""
-    ra, dec, radius_au, eqeq = _sun_equatorial(days_j2000)
+    ra, dec, radius_au, eqeq = _sun_equatorial_fast(days_j2000)
     hour_angle = _gmst_deg_from_days(days_j2000) + eqeq + longitude_deg - ra
     return np.mod(hour_angle + 180.0, 360.0) - 180.0, dec, radius_au
 
