@@ -72,6 +72,7 @@ def call_for(demo_site, default_rules):
             registry = registry_at(pd.Timestamp(at) - pd.Timedelta(hours=2), table["air_temp_c"].iloc[-1] + 0.8)
         decisions = evaluate(feed.frame, pd.DatetimeIndex([pd.Timestamp(at)]), site, registry,
                              default_rules, freq_ghz)
+        assert len(decisions.verdict) == 1, "one evaluation time, one verdict"
         return explain(decisions, 0)
 
     return run
