@@ -14,7 +14,7 @@ from .decision import VERDICTS
 from .errors import UsageError
 from .references import read_registry
 from .history import read_history
-from .replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, replay_verdicts,
+from .replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, replay_rule_sets,
                      score_attempts, step_hours)
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
@@ -74,19 +74,17 @@ def cmd_replay(args: argparse.Namespace) -> int:
                          hint=f"the archive covers {inputs.feed.quality.first_time_utc} to {inputs.feed.quality.last_time_utc}")
     registry = read_registry(inputs.registry_path)
     odds = getattr(inputs, "odds", None)
-    on_chunk, progress = _progress(len(times) * (2 if args.compare_rules else 1))
+    rule_sets = [inputs.rules]
+    if args.compare_rules:  # the same features serve both rule sets
+        rule_sets.append(load_ruleset(inputs.site, (args.rules or []) + args.compare_rules))
+    on_chunk, progress = _progress(len(times))
     try:
-        base = replay_verdicts(frame, times, inputs.site, registry, inputs.rules, inputs.freq_ghz, odds,
-                               on_chunk=on_chunk)
-        other = None
-        if args.compare_rules:
-            other_rules = load_ruleset(inputs.site, (args.rules or []) + args.compare_rules)
-            offset = len(times)
-            other = replay_verdicts(frame, times, inputs.site, registry, other_rules, inputs.freq_ghz, odds,
-                                    on_chunk=(lambda d, t: on_chunk(offset + d, 2 * offset)) if on_chunk else None)
+        replayed = replay_rule_sets(frame, times, inputs.site, registry, rule_sets, inputs.freq_ghz, odds,
+                                    on_chunk=on_chunk)
     finally:
         if progress:
             progress.stop()
+    base, other = replayed[0], (replayed[1] if len(replayed) > 1 else None)
     hours = step_hours(times, inputs.site.feed.max_gap_min)
     local = times.tz_convert(ZoneInfo(inputs.site.time_zone))
     summary = {

@@ -158,29 +158,38 @@ class Replayed:
 
 def replay_verdicts(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rules, freq_ghz: float,
                     odds=None, chunk_rows: int = 100_000, on_chunk=None) -> Replayed:
-    """Evaluate ``times_utc`` in chunks (bounded memory), each with the feed rows it needs.
+    """Verdicts and rule firings at ``times_utc`` under one rule set (see :func:`replay_rule_sets`)."""
+    return replay_rule_sets(frame, times_utc, site, registry, [rules], freq_ghz, odds, chunk_rows, on_chunk)[0]
+
+
+def replay_rule_sets(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rule_sets,
+                     freq_ghz: float, odds=None, chunk_rows: int = 100_000, on_chunk=None) -> list[Replayed]:
+    """Evaluate ``times_utc`` in chunks (bounded memory), each with the feed rows it needs, under
+    every rule set of ``rule_sets``; the features of a chunk are computed once for all of them.
 
     ``on_chunk(done_rows, total_rows)`` is called after each chunk (for a progress bar).
     """
-    from .pipeline import evaluate
+    from .pipeline import evaluate_rule_sets
 
     frame_ns = pd.DatetimeIndex(frame["time"]).as_unit("ns").asi8
     t_ns = times_utc.as_unit("ns").asi8
-    verdicts, fired, errors = [], {r.id: [] for r in rules}, {}
+    parts = [([], {r.id: [] for r in rules}, {}) for rules in rule_sets]
     for start in range(0, len(t_ns), chunk_rows):
         chunk = times_utc[start:start + chunk_rows]
         lo = np.searchsorted(frame_ns, chunk[0].value - LOOKBACK.value, side="left")
         hi = np.searchsorted(frame_ns, chunk[-1].value, side="right")
-        decisions = evaluate(frame.iloc[lo:hi], chunk, site, registry, rules, freq_ghz, odds)
-        verdicts.append(decisions.verdict)
-        for rule_id, mask in decisions.rule_eval.fired.items():
-            fired[rule_id].append(mask)
-        for rule_id, err in decisions.rule_eval.error_um.items():
-            errors.setdefault(rule_id, []).append(err)
+        for decisions, (verdicts, fired, errors) in zip(
+                evaluate_rule_sets(frame.iloc[lo:hi], chunk, site, registry, rule_sets, freq_ghz, odds), parts):
+            verdicts.append(decisions.verdict)
+            for rule_id, mask in decisions.rule_eval.fired.items():
+                fired[rule_id].append(mask)
+            for rule_id, err in decisions.rule_eval.error_um.items():
+                errors.setdefault(rule_id, []).append(err)
         if on_chunk:
             on_chunk(min(start + chunk_rows, len(t_ns)), len(t_ns))
-    if not verdicts:
-        return Replayed(times_utc, np.array([], dtype=object), RuleEvaluation({}, {}))
-    return Replayed(times_utc, np.concatenate(verdicts),
-                    RuleEvaluation({k: np.concatenate(v) for k, v in fired.items()},
-                                   {k: np.concatenate(v) for k, v in errors.items()}))
+    if len(t_ns) == 0:
+        return [Replayed(times_utc, np.array([], dtype=object), RuleEvaluation({}, {})) for _ in rule_sets]
+    return [Replayed(times_utc, np.concatenate(verdicts),
+                     RuleEvaluation({k: np.concatenate(v) for k, v in fired.items()},
+                                    {k: np.concatenate(v) for k, v in errors.items()}))
+            for verdicts, fired, errors in parts]

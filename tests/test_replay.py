@@ -124,3 +124,26 @@ def test_replay_scores_the_demo_history(capsys):
     assert attempts["scan_attempts"] > 0
     assert attempts["false_go"] <= attempts["scan_advised_at_attempts"]
     assert 0.0 <= (attempts["missed_rate"] or 0.0) <= 1.0
+
+
+def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules, tmp_path):
+    """--compare-rules computes the features once; the verdicts must equal separate replays."""
+    from advisor.cli import load_ruleset
+    from advisor.feed import read_feed
+    from advisor.references import read_registry
+    from advisor.replay import replay_rule_sets, replay_verdicts
+    from advisor.site import load_site
+
+    site = load_site(DEMO / "larch_basin.yaml")
+    override = tmp_path / "no_fog.yaml"
+    override.write_text("rules:\n  - id: fog_blinds_laser\n    enabled: false\n")
+    other = load_ruleset(site, [str(override)])
+    feed = read_feed(DEMO / "larch_basin_archive_sample.csv", site.feed)
+    frame = feed.frame.iloc[:3000]
+    times = pd.DatetimeIndex(frame["time"])
+    registry = read_registry(DEMO / "larch_basin_archive_references.csv")
+    both = replay_rule_sets(frame, times, site, registry, [default_rules, other], 86.0, chunk_rows=1000)
+    for rules, got in zip((default_rules, other), both):
+        alone = replay_verdicts(frame, times, site, registry, rules, 86.0, chunk_rows=700)
+        assert np.array_equal(alone.verdict, got.verdict)
+        assert all(np.array_equal(alone.rule_eval.fired[k], got.rule_eval.fired[k]) for k in alone.rule_eval.fired)
