@@ -94,7 +94,10 @@ def _rolling(good: pd.DataFrame) -> pd.DataFrame:
     """10-minute wind statistics and the one-hour temperature rate at each good sample."""
     series = good.set_index("time")
     out = pd.DataFrame(index=series.index)
-    out["wind_mean_ms"] = series["wind_mean_ms"].rolling(WIND_WINDOW).mean()
+    # pandas' rolling mean is an online sum, so its last bits depend on where the series starts;
+    # rounding to 1e-6 m/s (far below any anemometer's resolution) makes a row's value the same
+    # however the frame was cut (check, outlook and replay chunks agree to the bit).
+    out["wind_mean_ms"] = series["wind_mean_ms"].rolling(WIND_WINDOW).mean().round(6)
     out["wind_gust_ms"] = series["wind_gust_ms"].rolling(WIND_WINDOW).max()
     t_ns = _ns(series.index)
     temp = series["air_temp_c"].to_numpy()
