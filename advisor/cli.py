@@ -91,13 +91,15 @@ class Inputs:
     """Everything loaded for one evaluation."""
 
     site: Site
-    feed: Feed
+    feed: Feed | None             # None when loaded with read_feed=False (see feed_path)
     rules: RuleSet
     registry_path: Path | None
     freq_ghz: float
     is_demo: bool
     notes: tuple[str, ...]
     model: object = None          # advisor.model.SiteModel, or None: rules and error budget only
+    feed_path: Path | None = None
+    feed_layout: object = None    # advisor.site.FeedLayout used to read feed_path
 
     @property
     def odds(self):
@@ -112,8 +114,8 @@ def load_ruleset(site: Site, extra: list[str] | None) -> RuleSet:
     return load_rules(files, CATALOGUE)
 
 
-def load_inputs(args: argparse.Namespace, tail_bytes: int | None = None) -> Inputs:
-    """Site, feed, rules and registry for check-like commands."""
+def load_inputs(args: argparse.Namespace, tail_bytes: int | None = None, read: bool = True) -> Inputs:
+    """Site, feed, rules and registry for check-like commands (``read=False``: the feed is only located)."""
     freq = parse_frequency_ghz(args.freq)
     site = load_site(args.site)
     notes = []
@@ -131,13 +133,13 @@ def load_inputs(args: argparse.Namespace, tail_bytes: int | None = None) -> Inpu
     if site.is_demo and args.feed is not None:
         # The demo logger's local time zone must not be guessed onto someone else's feed.
         layout = replace(layout, time_zone=None)
-    feed = read_feed(feed_path, layout, tail_bytes=tail_bytes)
+    feed = read_feed(feed_path, layout, tail_bytes=tail_bytes) if read else None
     registry_path = Path(args.references) if args.references else site.references_path
     rules = load_ruleset(site, args.rules)
     from .cli_model import model_for_check
     model = model_for_check(getattr(args, "model", None), site, notes,
                             demo_model_on_other_feed=site.is_demo and not is_demo)
-    return Inputs(site, feed, rules, registry_path, freq, is_demo, tuple(notes), model)
+    return Inputs(site, feed, rules, registry_path, freq, is_demo, tuple(notes), model, feed_path, layout)
 
 
 def _evaluation_time(args, inputs: Inputs) -> pd.Timestamp:

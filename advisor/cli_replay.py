@@ -5,16 +5,19 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from pathlib import Path
 from zoneinfo import ZoneInfo
 
 import numpy as np
 import pandas as pd
 
 from .decision import VERDICTS
+from . import featurecache
 from .errors import UsageError
+from .feed import read_feed
 from .references import read_registry
 from .history import read_history
-from .replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, replay_rule_sets,
+from .replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, month_keys, replay_features, replay_from_features,
                      score_attempts, step_hours)
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
@@ -35,6 +38,9 @@ def add_parser(sub, add_evaluation_options) -> None:
     p.add_argument("--to", dest="time_to", metavar="TIME", help="last instant (ISO 8601 with Z/offset)")
     p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
     p.add_argument("--csv", metavar="FILE", help="write one row per evaluated time: time, verdict")
+    p.add_argument("--no-cache", action="store_true",
+                   help="recompute the archive's features instead of reusing them from an earlier replay "
+                        "(cache: $ADVISOR_CACHE_DIR, default ~/.cache/advisor/replay)")
     p.set_defaults(func=cmd_replay)
 
 
@@ -56,46 +62,37 @@ def cmd_replay(args: argparse.Namespace) -> int:
 
     if args.feed is None:
         raise UsageError("replay needs an archive", field="--feed", hint="pass --feed ARCHIVE.csv")
-    inputs = load_inputs(args)
-    frame = inputs.feed.frame
-    frame = frame[frame["kind"] == "observed"]
+    inputs = load_inputs(args, read=False)
     t_from, t_to = parse_at(args.time_from), parse_at(args.time_to)
     if t_from is not None and t_to is not None and t_to <= t_from:
         raise UsageError("--to must be after --from", field="--to")
-    times = pd.DatetimeIndex(frame["time"]).as_unit("ns")
-    keep = np.ones(len(times), dtype=bool)
-    if t_from is not None:
-        keep &= times >= t_from
-    if t_to is not None:
-        keep &= times <= t_to
-    times = times[keep]
-    if len(times) == 0:
-        raise UsageError("no archive rows in the chosen period", field="--from/--to",
-                         hint=f"the archive covers {inputs.feed.quality.first_time_utc} to {inputs.feed.quality.last_time_utc}")
     registry = read_registry(inputs.registry_path)
     odds = getattr(inputs, "odds", None)
     rule_sets = [inputs.rules]
     if args.compare_rules:  # the same features serve both rule sets
         rule_sets.append(load_ruleset(inputs.site, (args.rules or []) + args.compare_rules))
-    on_chunk, progress = _progress(len(times))
-    try:
-        replayed = replay_rule_sets(frame, times, inputs.site, registry, rule_sets, inputs.freq_ghz, odds,
-                                    on_chunk=on_chunk)
-    finally:
-        if progress:
-            progress.stop()
-    base, other = replayed[0], (replayed[1] if len(replayed) > 1 else None)
+    key = featurecache.key_for(inputs.feed_path, Path(inputs.site.source), inputs.registry_path, {
+        "freq_ghz": inputs.freq_ghz, "from": t_from, "to": t_to,
+        "time_zone": getattr(inputs.feed_layout, "time_zone", None)})
+    features = None if args.no_cache else featurecache.load(key)
+    if features is None:
+        features = _compute_features(inputs, registry, t_from, t_to)
+        if not args.no_cache:
+            featurecache.store(key, features)
+    base, *rest = replay_from_features(features, inputs.site, rule_sets, odds)
+    other = rest[0] if rest else None
+    times = base.times_utc
     hours = step_hours(times, inputs.site.feed.max_gap_min)
     local = times.tz_convert(ZoneInfo(inputs.site.time_zone))
     summary = {
-        "feed": inputs.feed.source,
+        "feed": str(inputs.feed_path),
         "from_utc": times[0].strftime("%Y-%m-%dT%H:%M:%SZ"),
         "to_utc": times[-1].strftime("%Y-%m-%dT%H:%M:%SZ"),
         "rows": int(len(times)),
         "target_freq_ghz": inputs.freq_ghz,
         "rules": len(inputs.rules),
         "hours": _hours_dict(base.verdict, hours),
-        "by_month": _table_dict(hours_by(base.verdict, hours, local.strftime("%Y-%m"))),
+        "by_month": _table_dict(hours_by(base.verdict, hours, month_keys(local))),
         "by_local_hour": _table_dict(hours_by(base.verdict, hours, local.hour)),
         "attempts": None,
         "comparison": None,
@@ -118,6 +115,28 @@ def cmd_replay(args: argparse.Namespace) -> int:
     else:
         _print_summary(summary, base.verdict, hours, local)
     return 0
+
+
+def _compute_features(inputs, registry, t_from, t_to) -> pd.DataFrame:
+    """Read the archive and compute the features of every observed row in the period."""
+    feed = read_feed(inputs.feed_path, inputs.feed_layout)
+    frame = feed.frame[feed.frame["kind"] == "observed"]
+    times = pd.DatetimeIndex(frame["time"]).as_unit("ns")
+    keep = np.ones(len(times), dtype=bool)
+    if t_from is not None:
+        keep &= times >= t_from
+    if t_to is not None:
+        keep &= times <= t_to
+    times = times[keep]
+    if len(times) == 0:
+        raise UsageError("no archive rows in the chosen period", field="--from/--to",
+                         hint=f"the archive covers {feed.quality.first_time_utc} to {feed.quality.last_time_utc}")
+    on_chunk, progress = _progress(len(times))
+    try:
+        return replay_features(frame, times, inputs.site, registry, inputs.freq_ghz, on_chunk=on_chunk)
+    finally:
+        if progress:
+            progress.stop()
 
 
 def _hours_dict(verdict: np.ndarray, hours: np.ndarray) -> dict:
@@ -172,7 +191,7 @@ def _print_summary(summary: dict, verdict: np.ndarray, hours: np.ndarray, local:
         strip.append(f" {v}  ")
     strip.append("\n")
     strip.append("         " + "".join(f"{h:<3d}" for h in range(0, 24, 3)).rstrip() + "\n", style="dim")
-    months_key = local.strftime("%Y-%m")
+    months_key = month_keys(local)
     for month in summary["by_month"]:
         mask = np.asarray(months_key == month)
         table = hours_by(verdict[mask], hours[mask], local.hour[mask]).reindex(range(24), fill_value=0.0)

@@ -55,10 +55,23 @@ def step_hours(times_utc: pd.DatetimeIndex, max_gap_min: float) -> np.ndarray:
 
 
 def hours_by(verdict: np.ndarray, hours: np.ndarray, keys) -> pd.DataFrame:
-    """Hours per verdict (columns) for each value of ``keys`` (rows); all verdicts as columns."""
-    frame = pd.DataFrame({"key": np.asarray(keys), "verdict": verdict, "hours": hours})
-    table = frame.pivot_table(index="key", columns="verdict", values="hours", aggfunc="sum", fill_value=0.0)
-    return table.reindex(columns=list(VERDICTS), fill_value=0.0)
+    """Hours per verdict (columns, every verdict) for each distinct value of ``keys`` (rows, sorted)."""
+    unique_keys, key_code = np.unique(np.asarray(keys), return_inverse=True)
+    verdict_code = np.full(len(verdict), -1)
+    for i, v in enumerate(VERDICTS):
+        verdict_code[np.asarray(verdict) == v] = i
+    ok = verdict_code >= 0
+    sums = np.bincount(key_code.ravel()[ok] * len(VERDICTS) + verdict_code[ok], weights=np.asarray(hours)[ok],
+                       minlength=len(unique_keys) * len(VERDICTS)).reshape(len(unique_keys), len(VERDICTS))
+    return pd.DataFrame(sums, index=pd.Index(unique_keys, name="key"), columns=list(VERDICTS))
+
+
+def month_keys(local_times: pd.DatetimeIndex) -> np.ndarray:
+    """'YYYY-MM' of each time, formatted once per distinct month (not per row)."""
+    code = local_times.year.to_numpy() * 100 + local_times.month.to_numpy()
+    unique, inverse = np.unique(code, return_inverse=True)
+    labels = np.array([f"{c // 100:04d}-{c % 100:02d}" for c in unique])
+    return labels[inverse]
 
 
 def dominant_letters(table: pd.DataFrame) -> list[str]:
@@ -164,32 +177,44 @@ def replay_verdicts(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, regi
 
 def replay_rule_sets(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rule_sets,
                      freq_ghz: float, odds=None, chunk_rows: int = 100_000, on_chunk=None) -> list[Replayed]:
-    """Evaluate ``times_utc`` in chunks (bounded memory), each with the feed rows it needs, under
-    every rule set of ``rule_sets``; the features of a chunk are computed once for all of them.
+    """Verdicts under every rule set of ``rule_sets``; the features are computed once for all."""
+    features = replay_features(frame, times_utc, site, registry, freq_ghz, chunk_rows, on_chunk)
+    return replay_from_features(features, site, rule_sets, odds)
+
+
+def replay_features(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, freq_ghz: float,
+                    chunk_rows: int = 100_000, on_chunk=None) -> pd.DataFrame:
+    """Features at ``times_utc``, computed in chunks (bounded memory), each with the feed rows it needs.
 
     ``on_chunk(done_rows, total_rows)`` is called after each chunk (for a progress bar).
     """
-    from .pipeline import evaluate_rule_sets
+    from .features import compute_features
 
     frame_ns = pd.DatetimeIndex(frame["time"]).as_unit("ns").asi8
     t_ns = times_utc.as_unit("ns").asi8
-    parts = [([], {r.id: [] for r in rules}, {}) for rules in rule_sets]
+    parts = []
     for start in range(0, len(t_ns), chunk_rows):
         chunk = times_utc[start:start + chunk_rows]
         lo = np.searchsorted(frame_ns, chunk[0].value - LOOKBACK.value, side="left")
         hi = np.searchsorted(frame_ns, chunk[-1].value, side="right")
-        for decisions, (verdicts, fired, errors) in zip(
-                evaluate_rule_sets(frame.iloc[lo:hi], chunk, site, registry, rule_sets, freq_ghz, odds), parts):
-            verdicts.append(decisions.verdict)
-            for rule_id, mask in decisions.rule_eval.fired.items():
-                fired[rule_id].append(mask)
-            for rule_id, err in decisions.rule_eval.error_um.items():
-                errors.setdefault(rule_id, []).append(err)
+        parts.append(compute_features(frame.iloc[lo:hi], chunk, site, registry, freq_ghz))
         if on_chunk:
             on_chunk(min(start + chunk_rows, len(t_ns)), len(t_ns))
-    if len(t_ns) == 0:
-        return [Replayed(times_utc, np.array([], dtype=object), RuleEvaluation({}, {})) for _ in rule_sets]
-    return [Replayed(times_utc, np.concatenate(verdicts),
-                     RuleEvaluation({k: np.concatenate(v) for k, v in fired.items()},
-                                    {k: np.concatenate(v) for k, v in errors.items()}))
-            for verdicts, fired, errors in parts]
+    if not parts:
+        return compute_features(frame.iloc[:0], times_utc, site, registry, freq_ghz)
+    return pd.concat(parts, ignore_index=True) if len(parts) > 1 else parts[0]
+
+
+def replay_from_features(features: pd.DataFrame, site, rule_sets, odds=None) -> list[Replayed]:
+    """Verdicts and rule firings under each rule set, from already computed features."""
+    from .decision import decide
+    from .features import columns_of
+
+    times = pd.DatetimeIndex(features["time"])
+    columns = columns_of(features)
+    p_usable = odds(features) if odds else None
+    out = []
+    for rules in rule_sets:
+        rule_eval = rules.evaluate(columns, len(features))
+        out.append(Replayed(times, decide(features, rule_eval, rules, site, p_usable).verdict, rule_eval))
+    return out

@@ -84,3 +84,9 @@ def site_with(demo_site):
         return replace(demo_site, thresholds=replace(demo_site.thresholds, **thresholds))
 
     return make
+
+
+@pytest.fixture(autouse=True)
+def _replay_cache_in_tmp(tmp_path_factory, monkeypatch):
+    """Tests never write to the user's ~/.cache: the replay feature cache lives in a temp folder."""
+    monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path_factory.getbasetemp() / "advisor-cache"))

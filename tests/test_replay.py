@@ -147,3 +147,61 @@ def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules
         alone = replay_verdicts(frame, times, site, registry, rules, 86.0, chunk_rows=700)
         assert np.array_equal(alone.verdict, got.verdict)
         assert all(np.array_equal(alone.rule_eval.fired[k], got.rule_eval.fired[k]) for k in alone.rule_eval.fired)
+
+
+def _cache_files():
+    import os
+
+    folder = Path(os.environ["ADVISOR_CACHE_DIR"])
+    return sorted(folder.glob("*.npz")) if folder.exists() else []
+
+
+def test_second_replay_reuses_the_features_and_gives_the_same_answer(capsys, tmp_path, monkeypatch, sample_args):
+    monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path / "cache"))
+    assert main(sample_args + ["--json"]) == 0
+    cold = json.loads(capsys.readouterr().out)
+    assert len(_cache_files()) == 1
+
+    import advisor.cli_replay as cli_replay
+
+    def no_reading(*_a, **_k):
+        raise AssertionError("the archive was read again")
+
+    monkeypatch.setattr(cli_replay, "read_feed", no_reading)
+    assert main(sample_args + ["--json"]) == 0
+    assert json.loads(capsys.readouterr().out) == cold
+
+
+def test_cache_key_follows_the_inputs(capsys, tmp_path, monkeypatch, sample_args):
+    monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path / "cache"))
+    refs = tmp_path / "refs.csv"
+    refs.write_bytes((DEMO / "larch_basin_archive_references.csv").read_bytes())
+    args = [a if a != str(DEMO / "larch_basin_archive_references.csv") else str(refs) for a in sample_args]
+    assert main(args + ["--json"]) == 0
+    first = json.loads(capsys.readouterr().out)
+    with refs.open("a") as fh:  # a new reference scan changes the features: a new entry
+        fh.write("2026-01-12T01:00:00Z,-20.0,new\n")
+    assert main(args + ["--json"]) == 0
+    second = json.loads(capsys.readouterr().out)
+    assert len(_cache_files()) == 2
+    assert first != second
+    assert main(args + ["--freq", "43", "--json"]) == 0  # another frequency: another entry
+    capsys.readouterr()
+    assert len(_cache_files()) == 3
+
+
+def test_damaged_cache_entry_is_recomputed(capsys, tmp_path, monkeypatch, sample_args):
+    monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path / "cache"))
+    assert main(sample_args + ["--json"]) == 0
+    good = json.loads(capsys.readouterr().out)
+    (entry,) = _cache_files()
+    entry.write_bytes(entry.read_bytes()[:1000])  # truncated
+    assert main(sample_args + ["--json"]) == 0
+    assert json.loads(capsys.readouterr().out) == good
+    assert _cache_files() == [entry] and entry.stat().st_size > 1000
+
+
+def test_no_cache_writes_nothing(capsys, tmp_path, monkeypatch, sample_args):
+    monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path / "cache"))
+    assert main(sample_args + ["--no-cache", "--json"]) == 0
+    assert _cache_files() == []
