@@ -14,7 +14,7 @@ import pandas as pd
 from .decision import VERDICTS
 from . import featurecache
 from .errors import UsageError
-from .feed import read_feed
+from .feed import check_whole_read, read_feed
 from .references import read_registry
 from .history import read_history
 from .replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, month_keys, replay_features, replay_from_features,
@@ -71,6 +71,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
     rule_sets = [inputs.rules]
     if args.compare_rules:  # the same features serve both rule sets
         rule_sets.append(load_ruleset(inputs.site, (args.rules or []) + args.compare_rules))
+    check_whole_read(inputs.feed_path)  # before hashing it for the cache
     key = featurecache.key_for(inputs.feed_path, Path(inputs.site.source), inputs.registry_path, {
         "freq_ghz": inputs.freq_ghz, "from": t_from, "to": t_to,
         "time_zone": getattr(inputs.feed_layout, "time_zone", None)})

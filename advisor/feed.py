@@ -85,6 +85,15 @@ def _iso(ts: pd.Timestamp | None) -> str | None:
     return None if ts is None or pd.isna(ts) else ts.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
+def check_whole_read(path: Path, size: int | None = None) -> None:
+    """Refuse, before touching its content, a feed too big to read whole in bounded memory."""
+    size = regular_file_size(Path(path), FeedError, "feed file") if size is None else size
+    if size > MAX_FULL_READ_BYTES:
+        raise FeedError(f"feed is {size / 1e6:.0f} MB; whole-file commands read at most "
+                        f"{MAX_FULL_READ_BYTES / 1e6:.0f} MB", source=str(path),
+                        hint="split the archive by month and process each part")
+
+
 def _tail_text(path: Path, tail_bytes: int, is_jsonl: bool) -> tuple[str, int]:
     """Header (CSV) plus the last ``tail_bytes`` of the file, cut at a line start; and the 1-based
     line number of the first data line kept (counted in the skipped part, in bounded memory)."""
@@ -111,10 +120,8 @@ def _read_table(path: Path, tail_bytes: int | None = None) -> tuple[pd.DataFrame
     source = str(path)
     size = regular_file_size(path, FeedError, "feed file", empty_hint="expected a header line and data rows")
     tail = tail_bytes is not None and size > 2 * tail_bytes
-    if not tail and size > MAX_FULL_READ_BYTES:
-        raise FeedError(f"feed is {size / 1e6:.0f} MB; whole-file commands read at most "
-                        f"{MAX_FULL_READ_BYTES / 1e6:.0f} MB", source=source,
-                        hint="split the archive by month and process each part")
+    if not tail:
+        check_whole_read(path, size)
     with path.open("rb") as fh:
         head = fh.read(4096)
     if b"\x00" in head:
