@@ -133,7 +133,8 @@ def load_inputs(args: argparse.Namespace, tail_bytes: int | None = None, read: b
     if site.is_demo and args.feed is not None:
         # The demo logger's local time zone must not be guessed onto someone else's feed.
         layout = replace(layout, time_zone=None)
-    feed = read_feed(feed_path, layout, tail_bytes=tail_bytes) if read else None
+    feed = read_feed(feed_path, layout, tail_bytes=tail_bytes,
+                     issue_time_column=site.forecast.issue_time_column) if read else None
     registry_path = Path(args.references) if args.references else site.references_path
     rules = load_ruleset(site, args.rules)
     from .cli_model import model_for_check

@@ -19,15 +19,13 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
-from .errors import FeedError, UsageError
+from .errors import UsageError
 from .fileio import atomic_write_text
 from .helpformat import HelpFormatter
 
 MAX_HOURS = 31 * 24.0
-_UTC_OFFSET = r"(?:[Zz]|[+-]\d\d:?\d\d)$"
 
 
 def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
@@ -65,57 +63,6 @@ def _positive_number(text: str | None, option: str, lo: float, hi: float, defaul
     if not (lo <= value <= hi) or value != value:
         raise UsageError(f"{value:g} is outside {lo:g}..{hi:g}", field=option)
     return value
-
-
-def read_issue_times(path: Path, layout, column: str) -> pd.Series | None:
-    """Issue time of each row of a feed file (UTC, NaT where empty), indexed by row time; None without the column."""
-    from .feed import _parse_times, _read_jsonl  # the feed's own time parsing, so rows line up exactly
-
-    path = Path(path)
-    is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson")
-    try:
-        if is_jsonl:
-            with path.open("r", encoding="utf-8") as fh:
-                first = fh.readline()
-            if f'"{column}"' not in first:
-                return None
-            table = _read_jsonl(path).astype("string")
-            line_offset = 1
-        else:
-            header = pd.read_csv(path, nrows=0, skipinitialspace=True)
-            names = {str(c).strip(): c for c in header.columns}
-            time_col = layout.time_column if layout.time_column in names else "time"
-            if column not in names or time_col not in names:
-                return None
-            table = pd.read_csv(path, usecols=[names[time_col], names[column]], dtype=str, keep_default_na=False,
-                                skipinitialspace=True).rename(columns=lambda c: str(c).strip())
-            line_offset = 2
-    except (OSError, ValueError, pd.errors.ParserError) as exc:
-        raise FeedError(f"cannot read issue times: {exc}".splitlines()[0], source=str(path)) from None
-    time_col = layout.time_column if layout.time_column in table.columns else "time"
-    times = _parse_times(table[time_col], layout, str(path), line_offset)
-    values = table[column].astype("string").str.strip()
-    present = (values.notna() & (values != "")).to_numpy()
-    parsed = pd.to_datetime(values.where(present), utc=True, format="ISO8601", errors="coerce")
-    has_offset = values.fillna("").str.contains(_UTC_OFFSET).to_numpy()
-    bad = present & (parsed.isna().to_numpy() | ~has_offset)
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise FeedError(f"cannot read issue time {values.iloc[i]!r}", source=str(path), line=i + line_offset,
-                        field=column, hint="write ISO 8601 with Z or an offset, e.g. 2026-12-01T03:00:00Z")
-    issued = pd.DataFrame({"time": times.to_numpy(), "issued": parsed.to_numpy()})
-    issued = issued.sort_values("time", kind="stable").drop_duplicates("time", keep="first")
-    return pd.Series(issued["issued"].to_numpy(), index=pd.DatetimeIndex(issued["time"]))
-
-
-def _with_issue_times(frame: pd.DataFrame, path: Path, layout, column: str) -> pd.DataFrame:
-    issued = read_issue_times(path, layout, column)
-    out = frame.copy()
-    if issued is None:
-        out["issued_utc"] = pd.Series(pd.NaT, index=out.index, dtype="datetime64[ns, UTC]")
-    else:
-        out["issued_utc"] = pd.DatetimeIndex(out["time"]).map(issued).astype("datetime64[ns, UTC]")
-    return out
 
 
 def _odds_of(inputs):
@@ -173,14 +120,14 @@ def cmd_outlook(args: argparse.Namespace) -> int:
     site = inputs.site
     layout = site.feed if not (site.is_demo and args.feed is not None) else replace(site.feed, time_zone=None)
     column = site.forecast.issue_time_column
-    frame = _with_issue_times(inputs.feed.frame, Path(inputs.feed.source), layout, column)
+    frame = inputs.feed.frame                    # issue times were read with the feed
     forecast_path = Path(args.forecast) if args.forecast else (site.forecast.path if args.feed is None else None)
     sources = [inputs.feed.source]
     if forecast_path is not None:
         fc_layout = layout if args.forecast is None else (
             replace(site.feed, time_zone=None) if site.is_demo else site.feed)
-        fc = read_feed(forecast_path, fc_layout)
-        frame = combine_frames(frame, _with_issue_times(fc.frame, forecast_path, fc_layout, column))
+        fc = read_feed(forecast_path, fc_layout, issue_time_column=column)
+        frame = combine_frames(frame, fc.frame)
         sources.append(fc.source)
     if start is None:
         if inputs.is_demo:
@@ -221,6 +168,4 @@ def next_window_for_check(inputs, at_utc: pd.Timestamp, registry) -> dict | None
     from .outlook import next_windows_after
 
     site = inputs.site
-    layout = replace(site.feed, time_zone=None) if site.is_demo and not inputs.is_demo else site.feed
-    frame = _with_issue_times(inputs.feed.frame, Path(inputs.feed.source), layout, site.forecast.issue_time_column)
-    return next_windows_after(frame, at_utc, site, registry, inputs.rules, inputs.freq_ghz, odds=_odds_of(inputs))
+    return next_windows_after(inputs.feed.frame, at_utc, site, registry, inputs.rules, inputs.freq_ghz, odds=_odds_of(inputs))

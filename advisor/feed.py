@@ -85,6 +85,22 @@ def _iso(ts: pd.Timestamp | None) -> str | None:
     return None if ts is None or pd.isna(ts) else ts.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
+def _issue_times(table: pd.DataFrame, column: str, source: str, line_offset: int) -> pd.Series:
+    """The issue-time column as UTC times (NaT where empty); every given time needs an offset."""
+    if column not in table.columns:
+        return pd.Series(pd.NaT, index=table.index, dtype="datetime64[ns, UTC]")
+    values = table[column].astype("string").str.strip()
+    present = (values.notna() & (values != "")).to_numpy()
+    texts = values.fillna("").to_numpy(dtype=object)
+    parsed = pd.to_datetime(values.where(present), utc=True, format="ISO8601", errors="coerce")
+    bad = present & (parsed.isna().to_numpy() | ~_has_utc_offset(texts))
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise FeedError(f"cannot read issue time {values.iloc[i]!r}", source=source, line=i + line_offset,
+                        field=column, hint="write ISO 8601 with Z or an offset, e.g. 2026-12-01T03:00:00Z")
+    return pd.Series(pd.DatetimeIndex(parsed).as_unit("ns"), index=table.index)
+
+
 def check_whole_read(path: Path, size: int | None = None) -> None:
     """Refuse, before touching its content, a feed too big to read whole in bounded memory."""
     size = regular_file_size(Path(path), FeedError, "feed file") if size is None else size
@@ -306,8 +322,12 @@ def _parse_times(raw: pd.Series, layout: FeedLayout, source: str, line_offset: i
 
 
 def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<feed>",
-                    line_offset: int = 2) -> Feed:
-    """Map, convert, sort and flag a logger table into a canonical :class:`Feed`."""
+                    line_offset: int = 2, issue_time_column: str | None = None) -> Feed:
+    """Map, convert, sort and flag a logger table into a canonical :class:`Feed`.
+
+    With ``issue_time_column``, the frame also carries ``issued_utc``: each forecast row's issue
+    time (NaT where the column is absent or the cell empty).
+    """
     table = table.rename(columns=lambda c: str(c).strip())
     if len(table) == 0:
         raise FeedError("feed has a header but no data rows", source=source)
@@ -353,6 +373,8 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         frame["kind"] = kind.to_numpy(dtype=object)
     else:
         frame["kind"] = "observed"
+    if issue_time_column is not None:
+        frame["issued_utc"] = _issue_times(table, issue_time_column, source, line_offset)
 
     # Implausible values → NaN, row flagged (DESIGN §4 ranges).
     implausible = np.zeros(len(frame), dtype=bool)
@@ -416,7 +438,8 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
     return Feed(frame=frame, quality=quality, source=source)
 
 
-def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = None) -> Feed:
+def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = None,
+              issue_time_column: str | None = None) -> Feed:
     """Read a CSV or JSON Lines feed file and return its canonical :class:`Feed`.
 
     With ``tail_bytes``, a file larger than twice that is read only from its last
@@ -424,4 +447,5 @@ def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = Non
     """
     path = Path(path)
     table, first_line = _read_table(path, tail_bytes)
-    return canonical_frame(table, layout, source=str(path), line_offset=first_line)
+    return canonical_frame(table, layout, source=str(path), line_offset=first_line,
+                           issue_time_column=issue_time_column)

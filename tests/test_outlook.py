@@ -305,3 +305,24 @@ def test_observations_supersede_forecast_rows_for_the_same_hours(site, default_r
     assert (early["source"] == "observed").all() and (early["verdict"] == "scan").all()
     assert (late["source"] == "forecast").all() and (late["verdict"] == "postpone").all()
     assert any("hindsight" in note for note in out.notes)
+
+
+def test_issue_times_are_read_with_the_feed_in_one_pass(tmp_path):
+    """The feed reader carries each row's issue time, so nothing re-reads the file for it."""
+    from advisor.errors import FeedError
+    from advisor.feed import read_feed
+    from advisor.site import FeedLayout
+
+    table = weather_table(hours=1.0)
+    table["kind"] = ["observed"] * 31 + ["forecast"] * 30
+    table["issued"] = [""] * 31 + ["2026-01-16T03:30:00Z"] * 30
+    path = tmp_path / "mixed.csv"
+    table.to_csv(path, index=False)
+    frame = read_feed(path, FeedLayout(), issue_time_column="issued").frame
+    assert frame["issued_utc"].isna().sum() == 31
+    assert (frame.loc[frame["kind"] == "forecast", "issued_utc"] == pd.Timestamp("2026-01-16T03:30:00Z")).all()
+    table.loc[40, "issued"] = "2026-01-16T03:30:00"  # no offset
+    table.to_csv(path, index=False)
+    with pytest.raises(FeedError) as info:
+        read_feed(path, FeedLayout(), issue_time_column="issued")
+    assert info.value.line == 42 and info.value.field == "issued"
