@@ -90,3 +90,12 @@ def site_with(demo_site):
 def _replay_cache_in_tmp(tmp_path_factory, monkeypatch):
     """Tests never write to the user's ~/.cache: the replay feature cache lives in a temp folder."""
     monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path_factory.getbasetemp() / "advisor-cache"))
+
+
+def run_cli(capsys, *argv):
+    """Run the advisor's command line in-process: (exit status, stdout, stderr)."""
+    from advisor.cli import main
+
+    status = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return status, out, err

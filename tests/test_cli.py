@@ -11,18 +11,15 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from advisor.cli import main, parse_frequency_ghz
+from advisor.cli import parse_frequency_ghz
 from advisor.errors import UsageError
 
-from .conftest import NIGHT_UTC, weather_table
+from .conftest import NIGHT_UTC, weather_table, run_cli
 
 ROOT = Path(__file__).resolve().parent.parent
 
 
-def run(capsys, *argv):
-    status = main(list(argv))
-    out, err = capsys.readouterr()
-    return status, out, err
+run = run_cli
 
 
 @pytest.fixture()

@@ -15,7 +15,7 @@ from advisor.errors import FeedError
 from advisor.feed import read_feed
 from advisor.site import FeedLayout
 
-from .conftest import NIGHT_UTC, weather_table
+from .conftest import weather_table
 
 COLUMNS = ("wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct")
 

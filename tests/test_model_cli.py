@@ -11,18 +11,16 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from advisor.cli import main
 from advisor.model import MAX_MODEL_BYTES, load_model
+
+from .conftest import run_cli
 
 ROOT = Path(__file__).resolve().parent.parent
 HISTORY = ROOT / "example_weather" / "larch_basin_history.csv"
 BUNDLED = ROOT / "example_weather" / "larch_basin_model.json"
 
 
-def run(capsys, *argv):
-    status = main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return status, out, err
+run = run_cli
 
 
 def test_train_on_the_demo_history_rebuilds_the_bundled_model(tmp_path, capsys):

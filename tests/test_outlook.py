@@ -19,7 +19,6 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from advisor.cli import main
 from advisor.decision import VERDICTS
 from advisor.errors import SiteError
 from advisor.feed import canonical_frame
@@ -27,7 +26,7 @@ from advisor.outlook import apply_forecast_margins, combine_frames, compute_outl
 from advisor.render import Context
 from advisor.site import FeedLayout, load_site
 
-from .conftest import NIGHT_UTC, registry_at, weather_table
+from .conftest import NIGHT_UTC, registry_at, weather_table, run_cli
 
 ROOT = Path(__file__).resolve().parent.parent
 LAYOUT = FeedLayout(max_feed_age_min=15.0)
@@ -158,10 +157,7 @@ def test_plain_view_reads_without_colour(site, default_rules):
 
 
 # --- the command line ----------------------------------------------------------------------
-def run(capsys, *argv):
-    status = main(list(argv))
-    out, err = capsys.readouterr()
-    return status, out, err
+run = run_cli
 
 
 @pytest.fixture()

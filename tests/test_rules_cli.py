@@ -11,13 +11,13 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from advisor.cli import load_ruleset, main
+from advisor.cli import load_ruleset
 from advisor.cli_rules import rule_files
 from advisor.features import CATALOGUE, FEATURES
 from advisor.rules.lint import lint_files
 from advisor.site import load_site
 
-from .conftest import NIGHT_UTC, weather_table
+from .conftest import NIGHT_UTC, weather_table, run_cli
 
 ROOT = Path(__file__).resolve().parent.parent
 GOOD = """rules:
@@ -46,10 +46,7 @@ BAD = """rules:
 """
 
 
-def run(capsys, *argv):
-    status = main(list(argv))
-    out, err = capsys.readouterr()
-    return status, out, err
+run = run_cli
 
 
 @pytest.fixture()
