@@ -344,7 +344,8 @@ def _rain_spells(solar_day: np.ndarray, t_min: np.ndarray, seed: int,
 
 
 def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
-               seed: int = DEFAULT_SEED, scenario: str | None = None) -> pd.DataFrame:
+               seed: int = DEFAULT_SEED, scenario: str | None = None,
+               extra_overrides: tuple = ()) -> pd.DataFrame:
     """Invented one-minute mast records for the fictional Larch Basin site.
 
     Parameters
@@ -359,6 +360,8 @@ def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
     scenario : {None, "demo_week"}
         ``None`` gives the seeded random weather only; ``"demo_week"`` applies
         ``DEMO_WEEK_OVERRIDES`` on top (rain on 27 Nov, fog then wind on 30 Nov, calm evening).
+    extra_overrides : tuple of Override, default ()
+        Further named overrides applied after the scenario's (used by make_forecast.py).
 
     Returns
     -------
@@ -407,7 +410,7 @@ def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
     z_cloud_fast = _sinusoid_field(tf, seed, 13, 4.0, 90.0, slope=0.3)
     z_temp_fast = _sinusoid_field(tf, seed, 14, 8.0, 40.0, slope=0.3)
 
-    overrides = DEMO_WEEK_OVERRIDES if scenario == "demo_week" else ()
+    overrides = (DEMO_WEEK_OVERRIDES if scenario == "demo_week" else ()) + tuple(extra_overrides)
     events = {"random_rain": np.ones_like(tf)}  # 1 keeps the seeded rain spells
     _apply_overrides(events, tf, tuple(o for o in overrides if o.field in events))
     rain_rate, rain_spell, rain_cloud = (

@@ -22,10 +22,9 @@ The story, in local time (MST = UTC-7), from the issue time on:
 * the last rows lie beyond the site's forecast horizon (``forecast.horizon_h``) and are flagged.
 
 How: ``make_demo.synth_mast`` with the demo week's scenario, extended by
-``FORECAST_OVERRIDES`` (same mechanism, each override with its reason).  The generator reads
-its scenario from ``make_demo.DEMO_WEEK_OVERRIDES`` when called, so the extension is swapped in
-for the duration of one call and restored afterwards; ``make_demo.py`` itself is not changed and
-the committed demo week is unaffected.  Seeded: same seed, byte-identical file.
+``FORECAST_OVERRIDES`` (same mechanism, each override with its reason), passed as
+``synth_mast(..., extra_overrides=FORECAST_OVERRIDES)``; the committed demo week is unaffected.
+Seeded: same seed, byte-identical file.
 """
 
 from __future__ import annotations
@@ -33,7 +32,6 @@ from __future__ import annotations
 import argparse
 import importlib.util
 import sys
-from contextlib import contextmanager
 from pathlib import Path
 
 import pandas as pd
@@ -103,17 +101,6 @@ FORECAST_OVERRIDES: tuple = (
 )
 
 
-@contextmanager
-def _demo_scenario_extended(extra: tuple):
-    """Temporarily append ``extra`` to make_demo's demo-week scenario (restored on exit)."""
-    saved = md.DEMO_WEEK_OVERRIDES
-    md.DEMO_WEEK_OVERRIDES = tuple(saved) + tuple(extra)
-    try:
-        yield
-    finally:
-        md.DEMO_WEEK_OVERRIDES = saved
-
-
 def synth_forecast(seed: int = md.DEFAULT_SEED) -> pd.DataFrame:
     """The invented demo forecast in the logger's format, plus ``kind`` and ``issued``.
 
@@ -124,9 +111,8 @@ def synth_forecast(seed: int = md.DEFAULT_SEED) -> pd.DataFrame:
         ``CADENCE_MIN`` minutes from ``FIRST_STEP_UTC`` to ``LAST_STEP_UTC``, without the rows of
         ``DROPOUT_UTC``; ``kind`` = ``forecast``; ``issued`` = ``ISSUED_UTC``.
     """
-    with _demo_scenario_extended(FORECAST_OVERRIDES):
-        frame = md.synth_mast(FIRST_STEP_UTC, LAST_STEP_UTC, cadence_min=CADENCE_MIN, seed=seed,
-                              scenario="demo_week")
+    frame = md.synth_mast(FIRST_STEP_UTC, LAST_STEP_UTC, cadence_min=CADENCE_MIN, seed=seed,
+                          scenario="demo_week", extra_overrides=FORECAST_OVERRIDES)
     utc = pd.to_datetime(frame["timestamp"], format="ISO8601", utc=True)
     lo, hi = (pd.Timestamp(t) for t in DROPOUT_UTC)
     keep = ~((utc >= lo) & (utc <= hi)).to_numpy()
