@@ -22,9 +22,9 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
-from .physics.aperture import root_sum_square, ruze_efficiency
-from .rules.ruleset import RuleEvaluation, RuleSet, format_message
-from .site import Site
+from advisor.physics.aperture import root_sum_square, ruze_efficiency
+from advisor.rules.ruleset import RuleEvaluation, RuleSet, format_message
+from advisor.io.site import Site
 
 METHODS = ("scan", "astronomical")
 VERDICTS = ("scan", "astronomical", "postpone", "undetermined")
@@ -142,7 +142,7 @@ def decide(features: pd.DataFrame, rule_eval: RuleEvaluation, rules: RuleSet, si
     verdict[astro.feasible] = "astronomical"
     verdict[scan.feasible & (~astro.feasible | prefer_scan)] = "scan"
     verdict[~features["data_ok"].to_numpy(dtype=bool)] = "undetermined"
-    # An odds mapping may carry per-row explanations (advisor.model.ModelOdds.notes).
+    # An odds mapping may carry per-row explanations (advisor.model.inference.ModelOdds.notes).
     return Decisions(features, verdict, candidates, rule_eval, rules, site, dict(getattr(odds, "notes", None) or {}))
 
 

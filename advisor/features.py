@@ -15,12 +15,12 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, wavelength_mm
-from .physics.sky import elevation_and_minutes_above
-from .physics.sun import hours_since_sunrise, hours_since_sunset, solar_position
-from .references import Registry, reference_in_force
-from .rules.condition import FeatureSpec
-from .site import Site
+from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, wavelength_mm
+from advisor.physics.sky import elevation_and_minutes_above
+from advisor.physics.sun import hours_since_sunrise, hours_since_sunset, solar_position
+from advisor.io.references import Registry, reference_in_force
+from advisor.rules.condition import FeatureSpec
+from advisor.io.site import Site
 
 WIND_WINDOW = "10min"
 TEMP_RATE_WINDOW_MIN = 60.0

@@ -56,13 +56,13 @@ def main(argv=None) -> int:
     import pandas as pd
     from rich.console import Console
 
-    from advisor.cli import load_ruleset
-    from advisor.feed import canonical_frame
-    from advisor.outlook import compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
+    from advisor.commands.main import load_ruleset
+    from advisor.io.feed import canonical_frame
+    from advisor.evaluation.outlook import compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
         render_plain_outlook
-    from advisor.references import read_registry
-    from advisor.render import Context
-    from advisor.site import load_site
+    from advisor.io.references import read_registry
+    from advisor.views.render import Context
+    from advisor.io.site import load_site
 
     md = _make_demo()
     site = load_site(None)

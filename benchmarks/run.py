@@ -89,7 +89,7 @@ def bench_replay(repeat: int) -> list[dict]:
 
     import pandas as pd
 
-    from advisor.cli import main as advisor_main
+    from advisor.commands.main import main as advisor_main
 
     ensure_year()
     argv = ["replay", "--site", str(SITE), "--feed", str(YEAR), "--references", str(YEAR_REFERENCES), "--json"]
@@ -120,12 +120,12 @@ def bench_rules_vs_loop(repeat: int, rows: int = 20_000) -> dict:
     import numpy as np
     import pandas as pd
 
-    from advisor.cli import load_ruleset
+    from advisor.commands.main import load_ruleset
     from advisor.features import columns_of, compute_features
-    from advisor.feed import read_feed
-    from advisor.references import read_registry
+    from advisor.io.feed import read_feed
+    from advisor.io.references import read_registry
     from advisor.rules.condition import evaluate_row
-    from advisor.site import load_site
+    from advisor.io.site import load_site
 
     ensure_year()
     site = load_site(SITE)

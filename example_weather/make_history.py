@@ -90,8 +90,8 @@ def true_p_usable(method: str, wind_gust_ms, dew_point_spread_c, air_temp_rate_c
 
 def year_of_weather(seed: int = make_demo.DEFAULT_SEED):
     """The demo generator's archive for the history year, read by the advisor's feed code."""
-    from advisor.feed import canonical_frame
-    from advisor.site import load_site
+    from advisor.io.feed import canonical_frame
+    from advisor.io.site import load_site
 
     site = load_site(None)
     start = pd.Timestamp(HISTORY_START_UTC) - pd.Timedelta(hours=WARMUP_H)
@@ -105,7 +105,7 @@ def make_history(seed: int = DEFAULT_SEED, n_attempts: int = DEFAULT_ATTEMPTS, w
     ``weather`` is ``(site, canonical frame)`` from :func:`year_of_weather`; computed if omitted.
     """
     from advisor.features import compute_features
-    from advisor.references import Registry
+    from advisor.io.references import Registry
 
     site, frame = weather if weather is not None else year_of_weather()
     rng = np.random.default_rng(seed)

@@ -14,11 +14,11 @@ import pytest
 
 from advisor.decision import explain
 from advisor.features import CATALOGUE
-from advisor.feed import canonical_frame
-from advisor.pipeline import evaluate
-from advisor.references import Registry
+from advisor.io.feed import canonical_frame
+from advisor.evaluation.evaluate import evaluate
+from advisor.io.references import Registry
 from advisor.rules.ruleset import default_rule_files, load_rules
-from advisor.site import FeedLayout, load_site
+from advisor.io.site import FeedLayout, load_site
 
 # A winter night at the demo site: sunset is near 00:05 UTC on 15 Jan, so 04:00 UTC on the
 # 16th is about four hours after sunset.
@@ -94,7 +94,7 @@ def _replay_cache_in_tmp(tmp_path_factory, monkeypatch):
 
 def run_cli(capsys, *argv):
     """Run the advisor's command line in-process: (exit status, stdout, stderr)."""
-    from advisor.cli import main
+    from advisor.commands.main import main
 
     status = main([str(a) for a in argv])
     out, err = capsys.readouterr()

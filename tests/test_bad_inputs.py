@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from advisor.cli import main
+from advisor.commands.main import main
 
 CORPUS = Path(__file__).resolve().parent / "bad_inputs"
 GOOD_FEED = str(CORPUS / "feed_good.csv")

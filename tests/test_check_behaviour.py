@@ -5,8 +5,8 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 
-from advisor.references import Registry
-from advisor.site import ColumnMap, FeedLayout
+from advisor.io.references import Registry
+from advisor.io.site import ColumnMap, FeedLayout
 
 from .conftest import NIGHT_UTC, registry_at, weather_table
 

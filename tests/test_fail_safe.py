@@ -10,10 +10,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from advisor.cli import main
+from advisor.commands.main import main
 from advisor.errors import FeedError
-from advisor.feed import read_feed
-from advisor.site import FeedLayout
+from advisor.io.feed import read_feed
+from advisor.io.site import FeedLayout
 
 from .conftest import weather_table
 

@@ -16,11 +16,11 @@ import pytest
 
 from advisor.decision import explain
 from advisor.errors import ModelError
-from advisor.feed import canonical_frame
-from advisor.model import (MAX_MODEL_BYTES, MethodModel, SiteModel, Term, dumps_model, load_model,
+from advisor.io.feed import canonical_frame
+from advisor.model.inference import (MAX_MODEL_BYTES, MethodModel, SiteModel, Term, dumps_model, load_model,
                            model_to_dict, parse_model, term_matrix)
-from advisor.pipeline import evaluate
-from advisor.site import FeedLayout
+from advisor.evaluation.evaluate import evaluate
+from advisor.io.site import FeedLayout
 
 from .conftest import NIGHT_UTC, registry_at, weather_table
 
@@ -51,8 +51,8 @@ def bundled_doc() -> dict:
 def test_numpy_inference_equals_sklearn_predict_proba():
     """The exported JSON, read back and applied with numpy, reproduces the fitted scikit-learn
     pipeline's predict_proba (the reference implementation) to 1e-9."""
-    from advisor.site import load_site
-    from advisor.training import history_features, read_history, train
+    from advisor.io.site import load_site
+    from advisor.model.training import history_features, read_history, train
 
     site = load_site(None)
     history = read_history(ROOT / "example_weather" / "larch_basin_history.csv")
@@ -106,7 +106,7 @@ def _evaluate(model, **weather):
     feed = canonical_frame(table, FeedLayout(max_feed_age_min=15))
     from advisor.rules.ruleset import default_rule_files, load_rules
     from advisor.features import CATALOGUE
-    from advisor.site import load_site
+    from advisor.io.site import load_site
 
     rules = load_rules([(p, "default") for p in default_rule_files()], CATALOGUE)
     site = load_site(None)

@@ -11,7 +11,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from advisor.model import MAX_MODEL_BYTES, load_model
+from advisor.model.inference import MAX_MODEL_BYTES, load_model
 
 from .conftest import run_cli
 
@@ -142,11 +142,11 @@ def test_site_model_path_that_is_missing_falls_back(tmp_path, capsys):
 def test_check_never_imports_scikit_learn():
     """The check path is numpy-only inference: scikit-learn (and test-only astropy) stay unloaded."""
     code = ("import sys\n"
-            "from advisor.cli import main\n"
+            "from advisor.commands.main import main\n"
             "status = main(['check', '--json'])\n"
             "heavy = sorted(m for m in sys.modules if m.split('.')[0] in ('sklearn', 'astropy', 'scipy'))\n"
             "print('HEAVY', heavy, file=sys.stderr)\n"
-            "assert 'advisor.model' in sys.modules\n"
+            "assert 'advisor.model.inference' in sys.modules\n"
             "assert not heavy, heavy\n")
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, env=env,
@@ -182,9 +182,9 @@ def test_train_from_an_archive_feed_computes_features_at_each_attempt(tmp_path, 
     assert model.training["feed"]["file"] == "archive.csv" and len(model.training["feed"]["sha256"]) == 64
     # the scaler's mean of gust² is the mean over the attempts of the archive's 10-min max gust, squared
     from advisor.features import compute_features
-    from advisor.feed import read_feed
-    from advisor.references import Registry
-    from advisor.site import load_site
+    from advisor.io.feed import read_feed
+    from advisor.io.references import Registry
+    from advisor.io.site import load_site
 
     site = load_site(None)
     feed = read_feed(archive, site.feed)

@@ -18,8 +18,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from advisor.model import term_matrix
-from advisor.training import HistoryError, history_features, read_history, train
+from advisor.model.inference import term_matrix
+from advisor.model.training import HistoryError, history_features, read_history, train
 
 ROOT = Path(__file__).resolve().parent.parent
 HISTORY = ROOT / "example_weather" / "larch_basin_history.csv"
@@ -65,7 +65,7 @@ def _truth(method):
 
 
 def test_terms_are_the_ones_the_mechanism_is_stated_in():
-    from advisor.training import DEFAULT_TERMS
+    from advisor.model.training import DEFAULT_TERMS
 
     for terms in DEFAULT_TERMS.values():
         assert tuple(t.name for t in terms) == TERM_KEYS
@@ -112,7 +112,7 @@ def test_history_weather_columns_give_the_archive_features(weather):
     """Features from the history's own columns match those the check code computes from the
     archive at the same instants (up to the history's rounding)."""
     from advisor.features import compute_features
-    from advisor.references import Registry
+    from advisor.io.references import Registry
 
     site, frame = weather
     history = read_history(HISTORY)

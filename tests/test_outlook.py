@@ -21,10 +21,10 @@ import pytest
 
 from advisor.decision import VERDICTS
 from advisor.errors import SiteError
-from advisor.feed import canonical_frame
-from advisor.outlook import apply_forecast_margins, combine_frames, compute_outlook, render_plain_outlook
-from advisor.render import Context
-from advisor.site import FeedLayout, load_site
+from advisor.io.feed import canonical_frame
+from advisor.evaluation.outlook import apply_forecast_margins, combine_frames, compute_outlook, render_plain_outlook
+from advisor.views.render import Context
+from advisor.io.site import FeedLayout, load_site
 
 from .conftest import NIGHT_UTC, registry_at, weather_table, run_cli
 
@@ -306,8 +306,8 @@ def test_observations_supersede_forecast_rows_for_the_same_hours(site, default_r
 def test_issue_times_are_read_with_the_feed_in_one_pass(tmp_path):
     """The feed reader carries each row's issue time, so nothing re-reads the file for it."""
     from advisor.errors import FeedError
-    from advisor.feed import read_feed
-    from advisor.site import FeedLayout
+    from advisor.io.feed import read_feed
+    from advisor.io.site import FeedLayout
 
     table = weather_table(hours=1.0)
     table["kind"] = ["observed"] * 31 + ["forecast"] * 30

@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pytest
 
-from advisor.cli import main
+from advisor.commands.main import main
 
 ROOT = Path(__file__).resolve().parent.parent
 DEPLOYMENT_ONLY = ("/etc/advisor/", "/opt/advisor/")  # cron/systemd templates for a real site

@@ -9,8 +9,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from advisor.cli import main
-from advisor.replay import Attempts, compare_rule_sets, hours_by, score_attempts, step_hours
+from advisor.commands.main import main
+from advisor.evaluation.replay import Attempts, compare_rule_sets, hours_by, score_attempts, step_hours
 from advisor.rules.ruleset import RuleEvaluation
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -128,11 +128,11 @@ def test_replay_scores_the_demo_history(capsys):
 
 def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules, tmp_path):
     """--compare-rules computes the features once; the verdicts must equal separate replays."""
-    from advisor.cli import load_ruleset
-    from advisor.feed import read_feed
-    from advisor.references import read_registry
-    from advisor.replay import replay_rule_sets, replay_verdicts
-    from advisor.site import load_site
+    from advisor.commands.main import load_ruleset
+    from advisor.io.feed import read_feed
+    from advisor.io.references import read_registry
+    from advisor.evaluation.replay import replay_rule_sets, replay_verdicts
+    from advisor.io.site import load_site
 
     site = load_site(DEMO / "larch_basin.yaml")
     override = tmp_path / "no_fog.yaml"
@@ -162,7 +162,7 @@ def test_second_replay_reuses_the_features_and_gives_the_same_answer(capsys, tmp
     cold = json.loads(capsys.readouterr().out)
     assert len(_cache_files()) == 1
 
-    import advisor.cli_replay as cli_replay
+    import advisor.commands.replay as cli_replay
 
     def no_reading(*_a, **_k):
         raise AssertionError("the archive was read again")

@@ -11,11 +11,11 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from advisor.cli import load_ruleset
-from advisor.cli_rules import rule_files
+from advisor.commands.main import load_ruleset
+from advisor.commands.rules import rule_files
 from advisor.features import CATALOGUE, FEATURES
 from advisor.rules.lint import lint_files
-from advisor.site import load_site
+from advisor.io.site import load_site
 
 from .conftest import NIGHT_UTC, weather_table, run_cli
 

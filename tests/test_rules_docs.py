@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 
 from advisor import units
-from advisor.cli import main
+from advisor.commands.main import main
 from advisor.errors import ConditionError
 from advisor.features import CATALOGUE
 from advisor.rules.condition import compile_condition, evaluate_row

@@ -21,11 +21,11 @@ from hypothesis import strategies as st
 
 from advisor.errors import RulesError
 from advisor.features import CATALOGUE, FEATURES
-from advisor.feed import PLAUSIBLE_RANGE
+from advisor.io.feed import PLAUSIBLE_RANGE
 from advisor.rules.condition import compile_condition, evaluate_row
 from advisor.rules.lint import FEATURE_DOMAINS, lint_files, lint_texts, threshold_findings
 from advisor.rules.ruleset import RulesRejected, default_rule_files, load_rules
-from advisor.site import CANONICAL_UNITS
+from advisor.io.site import CANONICAL_UNITS
 
 DEFAULTS = [(p.read_text(encoding="utf-8"), str(p), "default") for p in default_rule_files()]
 

@@ -18,9 +18,9 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from advisor.cli import main
+from advisor.commands.main import main
 from advisor.decision import EXIT_CODES
-from advisor.tick import EXIT_BUSY, EXIT_STATE_DIR, TickState, track_change
+from advisor.evaluation.tick import EXIT_BUSY, EXIT_STATE_DIR, TickState, track_change
 
 from .conftest import NIGHT_UTC, weather_table
 
@@ -345,7 +345,7 @@ def test_bad_tick_section_is_a_one_line_site_error(capsys, tmp_path, state, sect
 
 
 def test_relative_notify_program_is_resolved_against_the_site_folder(tmp_path):
-    from advisor.site import load_site
+    from advisor.io.site import load_site
 
     site = make_site(tmp_path, tick="tick:\n  notify_command: [./notify.sh, --to, ops]\n")
     assert load_site(site).tick.notify_command == (str(tmp_path / "notify.sh"), "--to", "ops")

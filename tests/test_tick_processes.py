@@ -21,8 +21,8 @@ from pathlib import Path
 
 import pytest
 
-from advisor.cli import main
-from advisor.tick import EXIT_STATE_DIR
+from advisor.commands.main import main
+from advisor.evaluation.tick import EXIT_STATE_DIR
 
 from .test_tick import ROOT, history, make_site, tick_argv
 
@@ -61,8 +61,8 @@ def primed(tmp_path, capsys):
 # (about 0.7 s of CPU each here), which would make the test slow without testing anything more.
 FORKER = """
 import json, os, sys
-from advisor.cli import main
-import advisor.cli_tick, advisor.tick, advisor.render, rich.console
+from advisor.commands.main import main
+import advisor.commands.tick, advisor.evaluation.tick, advisor.views.render, rich.console
 jobs, outdir = json.loads(sys.argv[1]), sys.argv[2]
 pids = []
 for i, argv in enumerate(jobs):

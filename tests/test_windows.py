@@ -13,7 +13,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from advisor.windows import WINDOW_COLUMNS, find_windows, next_window, runs
+from advisor.evaluation.windows import WINDOW_COLUMNS, find_windows, next_window, runs
 
 T0 = pd.Timestamp("2026-01-16T04:00:00Z")
 

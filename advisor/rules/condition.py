@@ -75,8 +75,8 @@ from typing import Any, Callable, Mapping
 import numpy as np
 import pandas as pd
 
-from .. import units
-from ..errors import ConditionError
+from advisor import units
+from advisor.errors import ConditionError
 
 __all__ = [
     "FeatureSpec", "Compiled", "parse", "compile_condition", "compile_expression", "evaluate_row",

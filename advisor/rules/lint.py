@@ -11,7 +11,7 @@ Files are layered in the order given (package defaults, the site's, then ``--rul
 whose id already exists is merged over it key by key, ``enabled: false`` switches it off.
 Problems found (errors unless marked *warning*):
 
-* the file: not readable, not YAML, YAML tags/aliases/tabs (via :mod:`advisor.yamlio`), not a
+* the file: not readable, not YAML, YAML tags/aliases/tabs (via :mod:`advisor.io.yamlio`), not a
   ``rules:`` list, a file with no rules (*warning*);
 * each rule: unknown or duplicated keys (closest known key suggested), a missing or malformed
   id, an id used twice in one file, values of ``applies_to``/``effect``/``enabled`` outside
@@ -44,12 +44,12 @@ from typing import Any, Iterable, Mapping
 
 import yaml
 
-from .. import units
-from ..errors import ConditionError, RulesError
-from ..yamlio import load_yaml, parse_yaml_text
-from .condition import (Bool, Call, Compare, Compiled, FeatureSpec, Logical, Name, Node, Number, Unary,
+from advisor import units
+from advisor.errors import ConditionError, RulesError
+from advisor.io.yamlio import load_yaml, parse_yaml_text
+from advisor.rules.condition import (Bool, Call, Compare, Compiled, FeatureSpec, Logical, Name, Node, Number, Unary,
                         compile_condition, compile_expression, evaluate_row, names_in)
-from .ruleset import (APPLIES_TO, EFFECTS, MAX_RULES, MESSAGE_EXTRAS, RULE_KEYS, Rule, RuleSet,
+from advisor.rules.ruleset import (APPLIES_TO, EFFECTS, MAX_RULES, MESSAGE_EXTRAS, RULE_KEYS, Rule, RuleSet,
                       message_fields)
 
 __all__ = ["Problem", "LintReport", "lint_files", "lint_texts", "threshold_findings", "condition_parts",
@@ -68,7 +68,7 @@ MAX_BRANCHES = 256
 
 def _feature_domains() -> dict[str, tuple[float, float, str]]:
     """Range each feature can take when present: name → (lowest, highest, why) [feature unit]."""
-    from ..feed import PLAUSIBLE_RANGE  # the feed drops values outside these before any rule sees them
+    from advisor.io.feed import PLAUSIBLE_RANGE  # the feed drops values outside these before any rule sees them
 
     domains = {name: (lo, hi, f"the feed drops values outside {lo:g}..{hi:g} as implausible")
                for name, (lo, hi) in PLAUSIBLE_RANGE.items()}

@@ -27,9 +27,9 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from ..errors import RulesError
-from ..site import package_data_dir
-from .condition import Compiled, FeatureSpec
+from advisor.errors import RulesError
+from advisor.io.site import package_data_dir
+from advisor.rules.condition import Compiled, FeatureSpec
 
 APPLIES_TO = ("scan", "astronomical", "both")
 EFFECTS = ("block", "warn", "add_error")
@@ -171,7 +171,7 @@ def load_rules(files: list[tuple[Path, str]], catalogue: Mapping[str, FeatureSpe
     RulesRejected
         When the lint finds any error in any file (warnings do not stop loading).
     """
-    from .lint import lint_files  # lint builds Rule objects, so it imports this module
+    from advisor.rules.lint import lint_files  # lint builds Rule objects, so it imports this module
 
     report = lint_files(files, catalogue)
     if not report.ok:

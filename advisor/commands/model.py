@@ -16,9 +16,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import ModelError, UsageError
-from .features import CATALOGUE
-from .model import SCHEMA_VERSION, METHOD_LABELS, SiteModel, dumps_model, load_model, parse_model, unit_text
+from advisor.errors import ModelError, UsageError
+from advisor.features import CATALOGUE
+from advisor.model.inference import SCHEMA_VERSION, METHOD_LABELS, SiteModel, dumps_model, load_model, parse_model, unit_text
 
 NO_MODEL = ("none", "off")
 
@@ -120,10 +120,10 @@ def _coefficient_lines(method_model) -> list[str]:
 
 
 def cmd_train(args: argparse.Namespace) -> int:
-    from . import training
-    from .feed import read_feed
-    from .fileio import atomic_write_text
-    from .site import load_site
+    from advisor.model import training
+    from advisor.io.feed import read_feed
+    from advisor.io.fileio import atomic_write_text
+    from advisor.io.site import load_site
 
     site = load_site(args.site)
     if args.usable_below_um is not None and not (np.isfinite(args.usable_below_um) and args.usable_below_um > 0):

@@ -21,11 +21,11 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from . import units
-from .errors import FeedError
-from .fileio import regular_file_size
-from .physics.moisture import dew_point_c
-from .site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
+from advisor import units
+from advisor.errors import FeedError
+from advisor.io.fileio import regular_file_size
+from advisor.physics.moisture import dew_point_c
+from advisor.io.site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
 
 MAX_FULL_READ_BYTES = 600_000_000   # whole-file reads (replay, outlook); bounded memory
 CHECK_TAIL_BYTES = 16_000_000       # an instant's call reads at most this much of a big feed

@@ -1,7 +1,7 @@
 """``advisor tick``: the cron/systemd-timer command, quiet unless the advice changes.
 
 Evaluates like ``check`` (every ``check`` option; default feed: the site's), keeps the result in
-``--state-dir`` (see :mod:`advisor.tick`), prints to stdout only when the verdict changed (or,
+``--state-dir`` (see :mod:`advisor.evaluation.tick`), prints to stdout only when the verdict changed (or,
 with ``--notify-on-reasons``, the reason set), runs the site's notify command on change, and
 exits with ``check``'s status.  A missing, empty or unreadable feed is an undetermined advisory
 (not an input error), so the status page never keeps showing an old call.
@@ -16,7 +16,7 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
-from .helpformat import HelpFormatter
+from advisor.commands.helpformat import HelpFormatter
 
 EXIT_HELP = """exit status:
   0   scan            take a laser scan now
@@ -57,8 +57,8 @@ def _empty_feed(source: str):
     """A canonical feed with no rows (the feed file could not be read)."""
     import pandas as pd
 
-    from .feed import Feed, FeedQuality, canonical_frame
-    from .site import FeedLayout
+    from advisor.io.feed import Feed, FeedQuality, canonical_frame
+    from advisor.io.site import FeedLayout
 
     # A one-row canonical table gives the frame its columns and dtypes; the row is dropped.
     table = pd.DataFrame({"time": ["2000-01-01T00:00:00Z"], "wind_mean_ms": [0.0], "wind_gust_ms": [0.0],
@@ -71,12 +71,12 @@ def _without_feed(args, error):
     """The undetermined call when the feed itself cannot be read, with the reason why."""
     import pandas as pd
 
-    from .cli import CheckResult, Inputs, load_ruleset, parse_at, parse_frequency_ghz
-    from .decision import EXIT_CODES, Reason, explain
-    from .pipeline import evaluate
-    from .references import read_registry
-    from .render import Context
-    from .site import load_site
+    from advisor.commands.main import CheckResult, Inputs, load_ruleset, parse_at, parse_frequency_ghz
+    from advisor.decision import EXIT_CODES, Reason, explain
+    from advisor.evaluation.evaluate import evaluate
+    from advisor.io.references import read_registry
+    from advisor.views.render import Context
+    from advisor.io.site import load_site
 
     freq = parse_frequency_ghz(args.freq)
     site = load_site(args.site)
@@ -98,8 +98,8 @@ def _without_feed(args, error):
 
 
 def _evaluate(args):
-    from .cli import run_check
-    from .errors import FeedError, InsufficientData
+    from advisor.commands.main import run_check
+    from advisor.errors import FeedError, InsufficientData
 
     try:
         return run_check(args)
@@ -112,12 +112,12 @@ def _warn(message: str) -> None:
 
 
 def cmd_tick(args) -> int:
-    from . import tick as T
-    from .cli import _want_color
-    from .render import render_panel, render_plain, to_json_dict
+    from advisor.evaluation import tick as T
+    from advisor.commands.main import _want_color
+    from advisor.views.render import render_panel, render_plain, to_json_dict
 
     if not args.lock_wait >= 0:
-        from .errors import UsageError
+        from advisor.errors import UsageError
 
         raise UsageError(f"--lock-wait {args.lock_wait:g} must be zero or more seconds", field="--lock-wait")
     state_dir = Path(args.state_dir)

@@ -11,11 +11,11 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 import pandas as pd
 
-from .decision import Decisions, decide
-from .features import compute_features, columns_of
-from .references import Registry
-from .rules.ruleset import RuleSet
-from .site import Site
+from advisor.decision import Decisions, decide
+from advisor.features import compute_features, columns_of
+from advisor.io.references import Registry
+from advisor.rules.ruleset import RuleSet
+from advisor.io.site import Site
 
 OddsFunction = Callable[[pd.DataFrame], Mapping[str, np.ndarray]]
 

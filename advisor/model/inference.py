@@ -12,7 +12,7 @@ below a knot), the probability of a usable surface map is::
 with ``m_k, s_k`` the training mean and standard deviation of each term (the scaler) and
 ``w_k, b`` the fitted logistic coefficients.  A model file holds only names and numbers: it is
 never unpickled, and nothing in it is executed.  This module imports numpy only (the training
-side, :mod:`advisor.training`, is the one that needs scikit-learn).
+side, :mod:`advisor.model.training`, is the one that needs scikit-learn).
 """
 
 from __future__ import annotations
@@ -27,8 +27,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import ModelError
-from .features import CATALOGUE
+from advisor.errors import ModelError
+from advisor.features import CATALOGUE
 
 FORMAT = "advisor-site-model"
 SCHEMA_VERSION = 1
@@ -219,7 +219,7 @@ class SiteModel:
     source: str = "<model>"
 
     def odds(self, features: pd.DataFrame) -> ModelOdds:
-        """The seam of :func:`advisor.pipeline.evaluate`: ``p_usable`` and notes per method."""
+        """The seam of :func:`advisor.evaluation.evaluate.evaluate`: ``p_usable`` and notes per method."""
         odds, notes = {}, {}
         for method, m in self.methods.items():
             p = m.predict(features)

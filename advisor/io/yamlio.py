@@ -12,8 +12,8 @@ from pathlib import Path
 
 import yaml
 
-from .errors import AdvisorError
-from .fileio import regular_file_size
+from advisor.errors import AdvisorError
+from advisor.io.fileio import regular_file_size
 
 # libyaml's safe loader where PyYAML was built with it (the wheels are), else the pure-Python one.
 _SafeLoader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)

@@ -17,7 +17,7 @@ plus ``air_temp_rate_c_per_h``; dew point, fog, sun and the rest are then derive
 Per method the model is ``StandardScaler`` + ``LogisticRegression`` (L2, lbfgs) on a few
 physically motivated terms (:data:`DEFAULT_TERMS`), scored by stratified k-fold
 cross-validation (ROC AUC, Brier score, a reliability table) and exported to plain JSON by
-:mod:`advisor.model`.  Too little data (fewer than :data:`MIN_ATTEMPTS` attempts, or fewer than
+:mod:`advisor.model.inference`.  Too little data (fewer than :data:`MIN_ATTEMPTS` attempts, or fewer than
 :data:`MIN_PER_CLASS` of either outcome) is refused rather than fitted.
 """
 
@@ -37,13 +37,13 @@ from sklearn.model_selection import StratifiedKFold, cross_val_predict
 from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import StandardScaler
 
-from . import __version__
-from .features import CATALOGUE, compute_features
-from .history import History, HistoryError, read_history, sha256_of  # noqa: F401 (re-exported)
-from .feed import Feed, canonical_frame
-from .model import METHOD_LABELS, MethodModel, SiteModel, Term, term_matrix
-from .references import Registry
-from .site import CANONICAL_COLUMNS, REQUIRED_COLUMNS, FeedLayout, Site
+from advisor import __version__
+from advisor.features import CATALOGUE, compute_features
+from advisor.io.history import History, HistoryError, read_history, sha256_of  # noqa: F401 (re-exported)
+from advisor.io.feed import Feed, canonical_frame
+from advisor.model.inference import METHOD_LABELS, MethodModel, SiteModel, Term, term_matrix
+from advisor.io.references import Registry
+from advisor.io.site import CANONICAL_COLUMNS, REQUIRED_COLUMNS, FeedLayout, Site
 
 MIN_ATTEMPTS = 30
 MIN_PER_CLASS = 5
@@ -173,7 +173,7 @@ def method_model(fit: MethodFit) -> MethodModel:
 def train(history: History, features: pd.DataFrame, methods=tuple(METHOD_LABELS),
           terms: dict[str, tuple[Term, ...]] | None = None, c: float = C_REGULARISATION,
           metadata: dict | None = None) -> TrainingResult:
-    """Fit every method in ``methods`` and assemble the :class:`~advisor.model.SiteModel`."""
+    """Fit every method in ``methods`` and assemble the :class:`~advisor.model.inference.SiteModel`."""
     terms = terms or DEFAULT_TERMS
     frame = history.frame
     usable_rows = np.ones(len(frame), dtype=bool)

@@ -11,13 +11,13 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 
-from .decision import VERDICTS
-from . import featurecache
-from .errors import UsageError
-from .feed import check_whole_read, read_feed
-from .references import read_registry
-from .history import read_history
-from .replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, month_keys, replay_features, replay_from_features,
+from advisor.decision import VERDICTS
+from advisor.io import featurecache
+from advisor.errors import UsageError
+from advisor.io.feed import check_whole_read, read_feed
+from advisor.io.references import read_registry
+from advisor.io.history import read_history
+from advisor.evaluation.replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, month_keys, replay_features, replay_from_features,
                      score_attempts, step_hours)
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
@@ -58,7 +58,7 @@ def _progress(total: int):
 
 
 def cmd_replay(args: argparse.Namespace) -> int:
-    from .cli import load_inputs, load_ruleset, parse_at
+    from advisor.commands.main import load_inputs, load_ruleset, parse_at
 
     if args.feed is None:
         raise UsageError("replay needs an archive", field="--feed", hint="pass --feed ARCHIVE.csv")
@@ -149,7 +149,7 @@ def _table_dict(table: pd.DataFrame) -> dict:
 
 
 def _write_csv(path: str, times: pd.DatetimeIndex, verdict: np.ndarray, verdict_b) -> None:
-    from .fileio import atomic_write_text
+    from advisor.io.fileio import atomic_write_text
 
     out = pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ"), "verdict": verdict})
     if verdict_b is not None:
@@ -166,7 +166,7 @@ def _print_summary(summary: dict, verdict: np.ndarray, hours: np.ndarray, local:
     from rich.table import Table
     from rich.text import Text
 
-    from .render import VERDICT_STYLE
+    from advisor.views.render import VERDICT_STYLE
 
     console = Console(highlight=False)
     total = sum(summary["hours"].values()) or 1.0

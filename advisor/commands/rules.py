@@ -18,11 +18,11 @@ from pathlib import Path
 
 import numpy as np
 
-from .features import CATALOGUE, FEATURES
-from .rules.condition import Call, Compare, Convert, Name, Node, Number, Unary, evaluate_row, names_in
-from .rules.lint import condition_parts, lint_files
-from .rules.ruleset import MESSAGE_EXTRAS, RuleSet, default_rule_files, format_message
-from .site import Site, load_site
+from advisor.features import CATALOGUE, FEATURES
+from advisor.rules.condition import Call, Compare, Convert, Name, Node, Number, Unary, evaluate_row, names_in
+from advisor.rules.lint import condition_parts, lint_files
+from advisor.rules.ruleset import MESSAGE_EXTRAS, RuleSet, default_rule_files, format_message
+from advisor.io.site import Site, load_site
 
 METHODS = ("scan", "astronomical")
 #: How a unit of the catalogue is shown next to a number.
@@ -45,7 +45,7 @@ def _display_path(path: Path | str) -> str:
 
 
 def rule_files(site: Site, extra: list[str] | None) -> list[tuple[Path, str]]:
-    """The layered ``(file, layer)`` list, as :func:`advisor.cli.load_ruleset` loads it."""
+    """The layered ``(file, layer)`` list, as :func:`advisor.commands.main.load_ruleset` loads it."""
     files = [(Path(_display_path(p)), "default") for p in default_rule_files()]
     files += [(Path(_display_path(p)), "site") for p in site.rule_paths]
     files += [(Path(p), "command line") for p in (extra or [])]
@@ -180,7 +180,7 @@ def cmd_lint(args: argparse.Namespace) -> int:
 
 
 def _load(args: argparse.Namespace) -> tuple[Site, RuleSet]:
-    from .cli import load_ruleset
+    from advisor.commands.main import load_ruleset
 
     site = load_site(args.site)
     return site, load_ruleset(site, args.rules)
@@ -214,8 +214,8 @@ def cmd_show(args: argparse.Namespace) -> int:
 
 def cmd_explain(args: argparse.Namespace) -> int:
     """Every rule's condition at one instant, with the numbers behind it."""
-    from .cli import run_check
-    from .render import VERDICT_STYLE
+    from advisor.commands.main import run_check
+    from advisor.views.render import VERDICT_STYLE
 
     result = run_check(args)
     call, rules = result.call, result.inputs.rules
@@ -301,7 +301,7 @@ def cmd_features(args: argparse.Namespace) -> int:
 
 def add_parser(sub, add_evaluation_options) -> None:
     """Register ``advisor rules`` and its actions on the top-level subparsers."""
-    from .cli import _missing_action
+    from advisor.commands.main import _missing_action
 
     rules = sub.add_parser("rules", help="lint, show and explain the rule set",
                            description="The YAML rule set: check it, see what is in effect, see why it "

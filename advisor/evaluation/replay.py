@@ -16,9 +16,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .decision import VERDICTS
-from .history import History
-from .rules.ruleset import RuleEvaluation
+from advisor.decision import VERDICTS
+from advisor.io.history import History
+from advisor.rules.ruleset import RuleEvaluation
 
 LETTERS = {"scan": "S", "astronomical": "A", "postpone": "P", "undetermined": "U"}
 
@@ -37,7 +37,7 @@ class Attempts:
 
 
 def attempts_from_history(history: History) -> Attempts:
-    """The attempts of a validated :class:`advisor.history.History`, sorted by time."""
+    """The attempts of a validated :class:`advisor.io.history.History`, sorted by time."""
     frame = history.frame.sort_values("time", kind="stable")
     return Attempts(pd.DatetimeIndex(frame["time"]).as_unit("ns"), frame["method"].to_numpy(dtype=object),
                     frame["usable"].to_numpy(dtype=bool), history.source)
@@ -188,7 +188,7 @@ def replay_features(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, regi
 
     ``on_chunk(done_rows, total_rows)`` is called after each chunk (for a progress bar).
     """
-    from .features import compute_features
+    from advisor.features import compute_features
 
     frame_ns = pd.DatetimeIndex(frame["time"]).as_unit("ns").asi8
     t_ns = times_utc.as_unit("ns").asi8
@@ -207,8 +207,8 @@ def replay_features(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, regi
 
 def replay_from_features(features: pd.DataFrame, site, rule_sets, odds=None) -> list[Replayed]:
     """Verdicts and rule firings under each rule set, from already computed features."""
-    from .decision import decide
-    from .features import columns_of
+    from advisor.decision import decide
+    from advisor.features import columns_of
 
     times = pd.DatetimeIndex(features["time"])
     columns = columns_of(features)

@@ -14,11 +14,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
-from .decision import Call
+from advisor.decision import Call
 
 if TYPE_CHECKING:  # rich is imported only when a panel is drawn: piped output stays light
     from rich.panel import Panel
-from .features import CATALOGUE
+from advisor.features import CATALOGUE
 
 SCHEMA_VERSION = 1
 

@@ -4,7 +4,7 @@ A history row is one past attempt: ``time`` (ISO 8601 with offset or ``Z``), ``m
 (``scan`` or ``astronomical``) and its outcome: ``usable`` (yes/no) and/or the measured residual
 ``residual_rms_um``, judged against the row's ``usable_max_rms_um`` or the ``usable_below_um``
 argument when ``usable`` is blank; optionally the weather at the attempt in canonical names.
-Training (:mod:`advisor.training`) and replay scoring (:mod:`advisor.replay`) both read it here.
+Training (:mod:`advisor.model.training`) and replay scoring (:mod:`advisor.evaluation.replay`) both read it here.
 """
 
 from __future__ import annotations
@@ -17,10 +17,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import AdvisorError
-from .fileio import regular_file_size
-from .model import METHOD_LABELS
-from .site import CANONICAL_COLUMNS
+from advisor.errors import AdvisorError
+from advisor.io.fileio import regular_file_size
+from advisor.model.inference import METHOD_LABELS
+from advisor.io.site import CANONICAL_COLUMNS
 
 MAX_HISTORY_BYTES = 200_000_000
 USABLE_WORDS = {**dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),

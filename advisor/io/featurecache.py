@@ -25,11 +25,11 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from . import __version__
+from advisor import __version__
 
 MAX_ENTRIES = 3
 #: Modules whose code decides the features: their source is part of every key.
-_FEATURE_CODE = ("features.py", "feed.py", "site.py", "references.py", "units.py",
+_FEATURE_CODE = ("features.py", "io/feed.py", "io/site.py", "io/references.py", "units.py",
                  "physics/sun.py", "physics/sky.py", "physics/moisture.py", "physics/aperture.py")
 
 
@@ -56,7 +56,7 @@ def key_for(feed_path: Path, site_path: Path | None, registry_path: Path | None,
     for path in (feed_path, site_path, registry_path):
         _hash_file(digest, path)
         digest.update(b"\0")
-    here = Path(__file__).resolve().parent
+    here = Path(__file__).resolve().parents[1]
     for name in _FEATURE_CODE:
         _hash_file(digest, here / name)
     digest.update(json.dumps({"version": __version__, **settings}, sort_keys=True, default=str).encode())

@@ -10,7 +10,7 @@ import os
 import secrets
 from pathlib import Path
 
-from .errors import AdvisorError
+from advisor.errors import AdvisorError
 
 
 def regular_file_size(path: Path, error_type: type[AdvisorError], what: str, max_bytes: int | None = None,

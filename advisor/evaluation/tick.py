@@ -42,9 +42,9 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Iterator
 
-from .decision import VERDICTS
-from .errors import AdvisorError
-from .render import VERDICT_STYLE
+from advisor.decision import VERDICTS
+from advisor.errors import AdvisorError
+from advisor.views.render import VERDICT_STYLE
 
 #: Exit status when another tick holds the lock (sysexits.h EX_TEMPFAIL: try again later).
 EXIT_BUSY = 75

@@ -16,16 +16,18 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import __version__, cli_replay
-from .decision import EXIT_CODES, explain
-from .helpformat import HelpFormatter
-from .errors import AdvisorError, FeedError, InsufficientData, UsageError
-from .features import CATALOGUE
-from .feed import CHECK_TAIL_BYTES, Feed, read_feed
-from .pipeline import evaluate
-from .references import append_reference, parse_time_utc, read_registry
-from .rules.ruleset import RuleSet, RulesRejected, default_rule_files, load_rules
-from .site import Site, load_site
+from advisor import __version__
+
+from advisor.commands import replay as cli_replay
+from advisor.decision import EXIT_CODES, explain
+from advisor.commands.helpformat import HelpFormatter
+from advisor.errors import AdvisorError, FeedError, InsufficientData, UsageError
+from advisor.features import CATALOGUE
+from advisor.io.feed import CHECK_TAIL_BYTES, Feed, read_feed
+from advisor.evaluation.evaluate import evaluate
+from advisor.io.references import append_reference, parse_time_utc, read_registry
+from advisor.rules.ruleset import RuleSet, RulesRejected, default_rule_files, load_rules
+from advisor.io.site import Site, load_site
 
 EXIT_HELP = """exit status:
   0   scan            take a laser scan now
@@ -97,13 +99,13 @@ class Inputs:
     freq_ghz: float
     is_demo: bool
     notes: tuple[str, ...]
-    model: object = None          # advisor.model.SiteModel, or None: rules and error budget only
+    model: object = None          # advisor.model.inference.SiteModel, or None: rules and error budget only
     feed_path: Path | None = None
-    feed_layout: object = None    # advisor.site.FeedLayout used to read feed_path
+    feed_layout: object = None    # advisor.io.site.FeedLayout used to read feed_path
 
     @property
     def odds(self):
-        """The site model's odds function for :func:`advisor.pipeline.evaluate`, or None (rules only)."""
+        """The site model's odds function for :func:`advisor.evaluation.evaluate.evaluate`, or None (rules only)."""
         return self.model.odds if self.model is not None else None
 
 
@@ -137,7 +139,7 @@ def load_inputs(args: argparse.Namespace, tail_bytes: int | None = None, read: b
                      issue_time_column=site.forecast.issue_time_column) if read else None
     registry_path = Path(args.references) if args.references else site.references_path
     rules = load_ruleset(site, args.rules)
-    from .cli_model import model_for_check
+    from advisor.commands.model import model_for_check
     model = model_for_check(getattr(args, "model", None), site, notes,
                             demo_model_on_other_feed=site.is_demo and not is_demo)
     return Inputs(site, feed, rules, registry_path, freq, is_demo, tuple(notes), model, feed_path, layout)
@@ -176,7 +178,7 @@ class CheckResult:
 
 def run_check(args: argparse.Namespace) -> CheckResult:
     """Load inputs, evaluate at ``--at`` and explain; shared by ``check`` and other commands."""
-    from .render import Context
+    from advisor.views.render import Context
 
     inputs = load_inputs(args, tail_bytes=CHECK_TAIL_BYTES)
     at = _evaluation_time(args, inputs)
@@ -195,7 +197,7 @@ def run_check(args: argparse.Namespace) -> CheckResult:
     next_window = None
     notes = inputs.notes
     if int((frame["time"] > at).sum()) >= 2:  # the feed carries future rows: when can each method next be done
-        from .cli_outlook import next_window_for_check
+        from advisor.commands.outlook import next_window_for_check
         next_window = next_window_for_check(inputs, at, registry)
         if next_window and ((frame["kind"] == "observed") & (frame["time"] > at)).any():
             notes = (*notes, "Next window found in observations after the evaluation time (hindsight).")
@@ -205,7 +207,7 @@ def run_check(args: argparse.Namespace) -> CheckResult:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    from .render import render_panel, render_plain, to_json_dict
+    from advisor.views.render import render_panel, render_plain, to_json_dict
 
     result = run_check(args)
     if args.json:
@@ -325,11 +327,11 @@ def build_parser() -> argparse.ArgumentParser:
     ref.set_defaults(func=lambda a: _missing_action(ref))
 
     # Further commands register here, one line each: module.add_parser(sub, _add_evaluation_options)
-    from . import cli_rules; cli_rules.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
+    from advisor.commands import rules as cli_rules; cli_rules.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     cli_replay.add_parser(sub, _add_evaluation_options)
-    from . import cli_tick; cli_tick.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
-    from . import cli_model; cli_model.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
-    from . import cli_outlook; cli_outlook.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
+    from advisor.commands import tick as cli_tick; cli_tick.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
+    from advisor.commands import model as cli_model; cli_model.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
+    from advisor.commands import outlook as cli_outlook; cli_outlook.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     return parser
 
 

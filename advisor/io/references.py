@@ -16,8 +16,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import RegistryError
-from .fileio import atomic_write_text
+from advisor.errors import RegistryError
+from advisor.io.fileio import atomic_write_text
 
 COLUMNS = ("time", "air_temp_c", "note")
 

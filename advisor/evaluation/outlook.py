@@ -9,13 +9,13 @@
 
 The steps are a regular grid at the forecast's own spacing (its median row interval), from
 ``start_utc`` for ``hours``.  Every step goes through the same vectorised path as ``check``
-(:func:`advisor.pipeline.evaluate`), after the site's forecast margins are applied to the
+(:func:`advisor.evaluation.evaluate.evaluate`), after the site's forecast margins are applied to the
 forecast rows (``forecast.wind_margin_pct``, ``forecast.dew_point_margin_c``).  A step with no
 forecast row of its own (the last row at or before it is a whole step old or more) is a **gap**:
 its verdict is ``undetermined`` and it ends any window.  A step whose forecast row lies further
 than ``forecast.horizon_h`` past its issue time is flagged ``beyond_horizon``.
 
-Windows (:mod:`advisor.windows`) are runs of steps in which a method is feasible on good data,
+Windows (:mod:`advisor.evaluation.windows`) are runs of steps in which a method is feasible on good data,
 at least the method's duration plus ``forecast.settling_min`` long.  A step at ``t`` stands for
 ``[t, t + step)``.
 """
@@ -29,14 +29,14 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 
-from .decision import METHODS, VERDICTS
-from .errors import FeedError
-from .physics.moisture import relative_humidity_pct
-from .pipeline import OddsFunction, evaluate
-from .references import Registry
-from .rules.ruleset import RuleSet
-from .site import Site
-from .windows import find_windows, next_window, window_dict
+from advisor.decision import METHODS, VERDICTS
+from advisor.errors import FeedError
+from advisor.physics.moisture import relative_humidity_pct
+from advisor.evaluation.evaluate import OddsFunction, evaluate
+from advisor.io.references import Registry
+from advisor.rules.ruleset import RuleSet
+from advisor.io.site import Site
+from advisor.evaluation.windows import find_windows, next_window, window_dict
 
 OUTLOOK_SCHEMA_VERSION = 1
 #: How far ``check`` looks ahead for the next window when its feed carries future rows [h].
@@ -62,7 +62,7 @@ class Outlook:
     requested_hours: float
     step_min: float
     steps: pd.DataFrame                     # one row per step (see step_frame)
-    windows: dict[str, pd.DataFrame]        # method -> advisor.windows table
+    windows: dict[str, pd.DataFrame]        # method -> advisor.evaluation.windows table
     min_window_min: dict[str, float]        # method -> shortest window offered [min]
     next_window: dict[str, dict | None]     # method -> first window or None
     sun_events: pd.DataFrame                # event (sunrise/sunset), time_utc, step
@@ -368,7 +368,7 @@ MIN_TICK_CELLS = 7
 
 
 def _style_of(verdict: str) -> str:
-    from .render import VERDICT_STYLE
+    from advisor.views.render import VERDICT_STYLE
 
     return VERDICT_STYLE[verdict][1]
 
@@ -632,7 +632,7 @@ def _wrap(text: str, width: int, indent: str = "") -> list[str]:
 
 def render_plain_outlook(outlook: Outlook, ctx, width: int = 100) -> str:
     """Plain text for pipes and logs: letters carry the verdicts, no colour needed; folded to ``width``."""
-    from .render import CAUTIONS
+    from advisor.views.render import CAUTIONS
 
     tzname = _tz_abbrev(outlook.start_utc, outlook.site.time_zone)
     lines: list[str] = []
@@ -686,7 +686,7 @@ def outlook_renderable(outlook: Outlook, ctx, width: int = 100):
     from rich.table import Table
     from rich.text import Text
 
-    from .render import CAUTIONS
+    from advisor.views.render import CAUTIONS
 
     head = _header(outlook, ctx)
     parts = [Text(ctx.site_name, style="bold")] + [Text(line) for line in head[1:]]
@@ -769,7 +769,7 @@ def outlook_csv_frame(outlook: Outlook) -> pd.DataFrame:
 
 def outlook_json(outlook: Outlook, ctx) -> dict:
     """The ``outlook --json`` object: per-step verdicts, windows, next windows, spans and notes."""
-    from .render import CAUTIONS
+    from advisor.views.render import CAUTIONS
 
     csv = outlook_csv_frame(outlook)
     step_records = []

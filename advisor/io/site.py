@@ -15,9 +15,9 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from . import units
-from .errors import SiteError
-from .yamlio import load_yaml
+from advisor import units
+from advisor.errors import SiteError
+from advisor.io.yamlio import load_yaml
 
 CANONICAL_COLUMNS = (
     "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",
@@ -194,7 +194,7 @@ def package_data_dir(package: str, source_folder: str) -> Path:
         module = importlib.import_module(package)
         return Path(next(iter(module.__path__)))
     except (ModuleNotFoundError, StopIteration):
-        return Path(__file__).resolve().parent.parent / source_folder
+        return Path(__file__).resolve().parents[2] / source_folder
 
 
 def demo_dir() -> Path:

@@ -3,7 +3,7 @@
     advisor outlook [--feed FEED] [--forecast FILE] --freq 86 [--from T] [--hours 24]
                     [--min-duration-min N] [--json | --csv] [--svg FILE]  (+ every option of check)
 
-The shell around :mod:`advisor.outlook`: loads the inputs exactly as ``check`` does, adds the
+The shell around :mod:`advisor.evaluation.outlook`: loads the inputs exactly as ``check`` does, adds the
 forecast file (``--forecast``, or the site's ``forecast.path`` when the site's own feed is
 read) and the forecast rows' issue times, then prints one of the views.  Exit status 0 when
 an outlook was printed, 2 on bad input.
@@ -21,9 +21,9 @@ from pathlib import Path
 
 import pandas as pd
 
-from .errors import UsageError
-from .fileio import atomic_write_text
-from .helpformat import HelpFormatter
+from advisor.errors import UsageError
+from advisor.io.fileio import atomic_write_text
+from advisor.commands.helpformat import HelpFormatter
 
 MAX_HOURS = 31 * 24.0
 
@@ -87,7 +87,7 @@ def _svg_target(text: str | None) -> Path | None:
 def _svg_text(outlook, ctx) -> str:
     from rich.console import Console
 
-    from .outlook import LABEL_W, outlook_renderable
+    from advisor.evaluation.outlook import LABEL_W, outlook_renderable
 
     width = int(min(200, max(100, LABEL_W + len(outlook.steps) + 4)))
     console = Console(record=True, width=width, file=open(os.devnull, "w"), force_terminal=True,
@@ -98,12 +98,12 @@ def _svg_text(outlook, ctx) -> str:
 
 
 def cmd_outlook(args: argparse.Namespace) -> int:
-    from .cli import _want_color, load_inputs, parse_at
-    from .feed import read_feed
-    from .outlook import combine_frames, compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
+    from advisor.commands.main import _want_color, load_inputs, parse_at
+    from advisor.io.feed import read_feed
+    from advisor.evaluation.outlook import combine_frames, compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
         render_plain_outlook
-    from .references import read_registry
-    from .render import Context
+    from advisor.io.references import read_registry
+    from advisor.views.render import Context
 
     hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0)
     min_dur = _positive_number(args.min_duration_min, "--min-duration-min", 0.0, 7 * 1440.0, None)
@@ -165,7 +165,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
 
 def next_window_for_check(inputs, at_utc: pd.Timestamp, registry) -> dict | None:
     """``check``'s ``next_window`` when its feed carries rows after ``at_utc`` (None otherwise)."""
-    from .outlook import next_windows_after
+    from advisor.evaluation.outlook import next_windows_after
 
     site = inputs.site
     return next_windows_after(inputs.feed.frame, at_utc, site, registry, inputs.rules, inputs.freq_ghz, odds=_odds_of(inputs))
