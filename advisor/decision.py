@@ -22,14 +22,11 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
+from advisor.vocabulary import EXIT_CODES, METHOD_LABEL, METHODS, VERDICTS  # noqa: F401 (re-exported)
 from advisor.physics.aperture import root_sum_square, ruze_efficiency
 from advisor.rules.ruleset import RuleEvaluation, RuleSet, format_message
 from advisor.io.site import Site
 
-METHODS = ("scan", "astronomical")
-VERDICTS = ("scan", "astronomical", "postpone", "undetermined")
-#: Exit status of ``check`` per verdict (DESIGN §7).
-EXIT_CODES = {"scan": 0, "astronomical": 10, "postpone": 11, "undetermined": 12}
 
 
 @dataclass(frozen=True)
@@ -197,7 +194,7 @@ def explain(decisions: Decisions, i: int) -> Call:
     for method in METHODS:
         c = decisions.candidates[method]
         rms, eta, p = float(c.surface_rms_um[i]), float(c.ruze_efficiency[i]), float(c.p_usable[i])
-        label = "laser scan" if method == "scan" else "astronomical"
+        label = METHOD_LABEL[method]
         if np.isfinite(rms):
             msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq:g} GHz "
                    f"(λ/16 = {req:.0f} µm)")

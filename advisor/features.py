@@ -17,67 +17,13 @@ import pandas as pd
 
 from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, wavelength_mm
 from advisor.physics.sky import elevation_and_minutes_above
-from advisor.physics.sun import hours_since_sunrise, hours_since_sunset, solar_position
+from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG, hours_since_sunrise, hours_since_sunset, solar_position
 from advisor.io.references import Registry, reference_in_force
-from advisor.rules.condition import FeatureSpec
+from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, FeatureSpec  # noqa: F401 (re-exported)
 from advisor.io.site import Site
 
 WIND_WINDOW = "10min"
 TEMP_RATE_WINDOW_MIN = 60.0
-STANDARD_SUNSET_ELEVATION_DEG = -0.833
-
-_F = FeatureSpec
-#: Every feature a rule may use: name, unit (advisor.units, "flag" or "1"), meaning.
-FEATURES: tuple[FeatureSpec, ...] = (
-    # wind
-    _F("wind_mean_ms", "m/s", "mean wind over the last 10 minutes"),
-    _F("wind_gust_ms", "m/s", "highest gust over the last 10 minutes"),
-    _F("gust_factor", "1", "gust divided by mean wind (turbulence); NaN below 0.5 m/s mean"),
-    _F("wind_pointing_error_arcsec", "arcsec", "expected wind-induced pointing error (site figure, scales with gust²)"),
-    _F("pointing_beam_fraction", "1", "wind pointing error as a fraction of the beam FWHM"),
-    # moisture
-    _F("air_temp_c", "degC", "air temperature"),
-    _F("rel_humidity_pct", "%", "relative humidity"),
-    _F("dew_point_c", "degC", "dew point (Magnus, Alduchov & Eskridge 1996)"),
-    _F("dew_point_spread_c", "delta_degC", "air temperature minus dew point"),
-    _F("visibility_m", "m", "visibility (NaN if the feed has none)"),
-    _F("precip_mm_h", "mm/h", "precipitation rate (NaN if the feed has none)"),
-    _F("pressure_hpa", "hPa", "station pressure (NaN if the feed has none)"),
-    _F("solar_wm2", "W/m2", "global irradiance (NaN if the feed has none)"),
-    _F("fog", "flag", "fog likely: small dew-point spread with high RH, or visibility below the site limit"),
-    _F("precipitation", "flag", "precipitation at or above the site threshold"),
-    # thermal state
-    _F("sun_elevation_deg", "deg", "apparent sun elevation"),
-    _F("sun_azimuth_deg", "deg", "sun azimuth, clockwise from north"),
-    _F("is_night", "flag", "between sunset and sunrise (sun centre below -0.833 deg, refraction included)"),
-    _F("sun_transition", "flag", "sun between -6 and +15 deg: the structure deforms fastest"),
-    _F("hours_since_sunset", "h", "hours since the most recent sunset"),
-    _F("hours_since_sunrise", "h", "hours since the most recent sunrise"),
-    _F("air_temp_rate_c_per_h", "degC/h", "air-temperature change over the last hour"),
-    # reference scan
-    _F("has_reference", "flag", "a reference scan is in force"),
-    _F("reference_age_h", "h", "age of the reference scan in force (NaN without one)"),
-    _F("reference_temp_delta_c", "delta_degC", "|air temperature - temperature at the reference scan|"),
-    # calibrators
-    _F("calibrator_elevation_deg", "deg", "elevation of the best calibrator now (NaN if none usable)"),
-    _F("calibrator_minutes_up", "min", "minutes the best calibrator stays above the minimum elevation"),
-    _F("calibrator_available", "flag", "a calibrator stays usable for the whole astronomical measurement"),
-    # target and site figures
-    _F("freq_ghz", "GHz", "target observing frequency"),
-    _F("wavelength_mm", "mm", "target wavelength"),
-    _F("required_surface_rms_um", "um", "lambda/16 surface requirement at the target frequency"),
-    _F("beam_fwhm_arcsec", "arcsec", "beam FWHM at the target frequency (1.2 lambda/D)"),
-    _F("hf_wind_limit_ms", "m/s", "site's high-frequency mean-wind limit"),
-    _F("high_frequency_min_ghz", "GHz", "site's lowest frequency counted as high-frequency"),
-    _F("scan_duration_min", "min", "duration of a laser scan (site figure)"),
-    _F("astronomical_duration_min", "min", "duration of an astronomical measurement (site figure)"),
-    # data quality
-    _F("data_age_min", "min", "age of the last good weather sample"),
-    _F("data_ok", "flag", "weather data fresh, plausible and complete"),
-)
-CATALOGUE: dict[str, FeatureSpec] = {f.name: f for f in FEATURES}
-FLAG_NAMES = tuple(f.name for f in FEATURES if f.unit == "flag")
-
 
 def _ns(times) -> np.ndarray:
     """Times (DatetimeIndex/Series/datetime64) → int64 nanoseconds since the epoch, UTC."""
@@ -166,7 +112,7 @@ def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Regis
     # where there is none within two days (polar), fall back to the elevation.
     known = np.isfinite(out["hours_since_sunset"]) & np.isfinite(out["hours_since_sunrise"])
     out["is_night"] = np.where(known, out["hours_since_sunset"] < out["hours_since_sunrise"],
-                               out["sun_elevation_deg"] < STANDARD_SUNSET_ELEVATION_DEG)
+                               out["sun_elevation_deg"] < SUNRISE_SUNSET_ALTITUDE_DEG)
     out["sun_transition"] = (out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0)
 
     # --- reference scan ------------------------------------------------------------------

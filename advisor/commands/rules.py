@@ -24,7 +24,7 @@ from advisor.rules.lint import condition_parts, lint_files
 from advisor.rules.ruleset import MESSAGE_EXTRAS, RuleSet, default_rule_files, format_message
 from advisor.io.site import Site, load_site
 
-METHODS = ("scan", "astronomical")
+from advisor.vocabulary import DEMO_BANNER, METHODS
 #: How a unit of the catalogue is shown next to a number.
 _SHOWN_UNIT = {"degC": "°C", "delta_degC": "°C", "deg": "°", "um": "µm", "1": "", "%": "%",
                "degC/h": "°C/h"}
@@ -226,7 +226,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     out.line(f"rules at {when} · {result.ctx.site_name} · {call.freq_ghz:g} GHz")
     out.line(f"verdict: {VERDICT_STYLE[call.verdict][0]} — {call.headline}")
     if result.inputs.is_demo:
-        out.line("DEMO DATA — invented site and weather, for trying the tool.")
+        out.line(DEMO_BANNER)
     evaluated = []
     for rule in rules:
         fired = bool(rule.condition.evaluate(columns, length=1)[0])

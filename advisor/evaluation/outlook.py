@@ -29,7 +29,9 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 
-from advisor.decision import METHODS, VERDICTS
+from advisor.catalogue import STEP_FEATURES
+from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG
+from advisor.vocabulary import DEMO_BANNER, LETTERS, METHOD_LABEL, METHODS, VERDICTS
 from advisor.errors import FeedError
 from advisor.physics.moisture import relative_humidity_pct
 from advisor.evaluation.evaluate import OddsFunction, evaluate
@@ -41,15 +43,13 @@ from advisor.evaluation.windows import find_windows, next_window, window_dict
 OUTLOOK_SCHEMA_VERSION = 1
 #: How far ``check`` looks ahead for the next window when its feed carries future rows [h].
 NEXT_WINDOW_LOOKAHEAD_H = 48.0
-SUNRISE_SUNSET_ELEVATION_DEG = -0.833
-METHOD_LABEL = {"scan": "laser scan", "astronomical": "astronomical"}
+SUNRISE_SUNSET_ELEVATION_DEG = SUNRISE_SUNSET_ALTITUDE_DEG
 #: One letter per verdict, so the strip reads without colour; ``?`` marks a gap.
-VERDICT_LETTER = {"scan": "S", "astronomical": "A", "postpone": "P", "undetermined": "U"}
+VERDICT_LETTER = LETTERS
 GAP_LETTER = "?"
 VERDICT_WORDS = {"scan": "scan now", "astronomical": "astronomical method", "postpone": "postpone",
                  "undetermined": "undetermined (data bad)"}
-STEP_COLUMNS = ("wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct", "dew_point_spread_c",
-                "visibility_m", "precip_mm_h", "sun_elevation_deg")
+STEP_COLUMNS = STEP_FEATURES
 
 
 @dataclass(frozen=True)
@@ -643,7 +643,7 @@ def render_plain_outlook(outlook: Outlook, ctx, width: int = 100) -> str:
     for text in _header(outlook, ctx):
         add(text)
     if ctx.is_demo:
-        add("DEMO DATA — invented site and weather, for trying the tool.")
+        add(DEMO_BANNER)
     for note in (*ctx.notes, *outlook.notes):
         add(note, "  ")
     lines.append("")
@@ -691,7 +691,7 @@ def outlook_renderable(outlook: Outlook, ctx, width: int = 100):
     head = _header(outlook, ctx)
     parts = [Text(ctx.site_name, style="bold")] + [Text(line) for line in head[1:]]
     if ctx.is_demo:
-        parts.append(Text("DEMO DATA — invented site and weather, for trying the tool.", style="bold magenta"))
+        parts.append(Text(DEMO_BANNER, style="bold magenta"))
     for note in (*ctx.notes, *outlook.notes):
         parts.append(Text(note, style="italic"))
     parts.append(Text(""))
@@ -717,7 +717,7 @@ def outlook_renderable(outlook: Outlook, ctx, width: int = 100):
             table.add_column(h, justify="right" if h in ("length", "wind max", "gust max", "spread min", "mean η",
                                                          "advised") else "left")
         for r in rows:
-            table.add_row(*r, style="green" if r[0] == "laser scan" else "cyan")
+            table.add_row(*r, style="green" if r[0] == METHOD_LABEL["scan"] else "cyan")
         parts.append(table)
     else:
         parts.append(Text("  none"))

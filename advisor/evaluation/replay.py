@@ -16,11 +16,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from advisor.decision import VERDICTS
+from advisor.vocabulary import LETTERS, VERDICTS
 from advisor.io.history import History
 from advisor.rules.ruleset import RuleEvaluation
 
-LETTERS = {"scan": "S", "astronomical": "A", "postpone": "P", "undetermined": "U"}
 
 
 @dataclass(frozen=True)

@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from advisor import units
+from advisor.catalogue import PLAUSIBLE_RANGE
 from advisor.errors import FeedError
 from advisor.io.fileio import regular_file_size
 from advisor.physics.moisture import dew_point_c
@@ -32,17 +33,6 @@ CHECK_TAIL_BYTES = 16_000_000       # an instant's call reads at most this much 
 MAX_OUT_OF_ORDER_FRACTION = 0.01
 
 #: Physically plausible range of each canonical column [its SI unit] (DESIGN §4).
-PLAUSIBLE_RANGE = {
-    "wind_mean_ms": (0.0, 75.0),
-    "wind_gust_ms": (0.0, 100.0),
-    "air_temp_c": (-60.0, 60.0),
-    "rel_humidity_pct": (0.0, 100.5),
-    "dew_point_c": (-80.0, 60.0),
-    "pressure_hpa": (300.0, 1100.0),
-    "precip_mm_h": (0.0, 500.0),
-    "visibility_m": (0.0, 1_000_000.0),
-    "solar_wm2": (-20.0, 1500.0),
-}
 
 
 

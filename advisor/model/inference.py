@@ -28,35 +28,18 @@ import numpy as np
 import pandas as pd
 
 from advisor.errors import ModelError
-from advisor.features import CATALOGUE
+from advisor.catalogue import CATALOGUE, unit_text
+from advisor.vocabulary import METHOD_LABEL
 
 FORMAT = "advisor-site-model"
 SCHEMA_VERSION = 1
 MAX_MODEL_BYTES = 1_000_000
 MAX_TERMS = 32
-METHOD_LABELS = {"scan": "laser scan", "astronomical": "astronomical"}
+METHOD_LABELS = METHOD_LABEL
 TRANSFORMS = ("identity", "square", "abs", "shortfall")
 RETRAIN_HINT = "retrain it with 'advisor train --history HISTORY.csv --out MODEL.json'"
 
 #: How a feature reads in a sentence: (words, format of its value with unit).
-FEATURE_WORDS = {
-    "wind_gust_ms": ("gusts", "{:.1f} m/s"),
-    "wind_mean_ms": ("mean wind", "{:.1f} m/s"),
-    "dew_point_spread_c": ("dew-point spread", "{:.1f} °C"),
-    "air_temp_rate_c_per_h": ("temperature change", "{:+.1f} °C/h"),
-    "air_temp_c": ("air temperature", "{:.1f} °C"),
-    "rel_humidity_pct": ("relative humidity", "{:.0f} %"),
-    "visibility_m": ("visibility", "{:.0f} m"),
-    "sun_elevation_deg": ("sun elevation", "{:.0f}°"),
-    "hours_since_sunset": ("time since sunset", "{:.1f} h"),
-    "reference_age_h": ("reference age", "{:.1f} h"),
-}
-UNIT_TEXT = {"degC": "°C", "delta_degC": "°C", "degC/h": "°C/h", "deg": "°", "um": "µm", "1": ""}
-
-
-def unit_text(unit: str) -> str:
-    """A unit as people write it (``delta_degC`` → ``°C``)."""
-    return UNIT_TEXT.get(unit, unit)
 
 
 def feature_phrase(name: str, value: float) -> str:
@@ -64,7 +47,7 @@ def feature_phrase(name: str, value: float) -> str:
     spec = CATALOGUE[name]
     if spec.unit == "flag":
         return name.replace("_", " ") if bool(value) else f"no {name.replace('_', ' ')}"
-    words, fmt = FEATURE_WORDS.get(name, (name.replace("_", " "), "{:.3g} " + unit_text(spec.unit)))
+    words, fmt = spec.phrase, spec.display_format
     text = fmt.format(value)
     if re.match(r"-0(\.0*)?(\D|$)", text):   # no "-0.0 °C" for a value that rounds to zero
         text = text[1:]
@@ -100,7 +83,7 @@ class Term:
 
     def describe(self) -> str:
         """The term in words: ``gusts squared``, ``dew-point spread short of 3 °C``."""
-        words = FEATURE_WORDS.get(self.feature, (self.feature.replace("_", " "), ""))[0]
+        words = CATALOGUE[self.feature].phrase if self.feature in CATALOGUE else self.feature.replace("_", " ")
         if self.transform == "square":
             return f"{words} squared"
         if self.transform == "abs":

@@ -76,6 +76,7 @@ import numpy as np
 import pandas as pd
 
 from advisor import units
+from advisor.catalogue import FeatureSpec
 from advisor.errors import ConditionError
 
 __all__ = [
@@ -130,38 +131,7 @@ _UNKNOWN = "?"  # internal: a number whose unit the checker cannot name (e.g. a 
 # --------------------------------------------------------------------------- catalogue
 
 
-@dataclass(frozen=True)
-class FeatureSpec:
-    """One feature a condition may name.
-
-    Parameters
-    ----------
-    name : str
-        Feature name, ``[a-z_][a-z0-9_]*``, carrying its unit (``wind_mean_ms``).
-    unit : str
-        A unit of :mod:`advisor.units`, ``"1"`` for dimensionless, ``"flag"`` for booleans.
-    meaning : str
-        One line for documentation and lint output.
-    """
-
-    name: str
-    unit: str
-    meaning: str = ""
-
-    def __post_init__(self) -> None:
-        if (not isinstance(self.name, str) or not _NAME_RE.match(self.name)
-                or self.name in KEYWORDS or self.name in _RESERVED or self.name.startswith("__")):
-            raise ValueError(f"feature name {self.name!r} must match [a-z_][a-z0-9_]* and not be a keyword")
-        if self.unit != "flag":
-            try:
-                units.lookup(self.unit)
-            except (units.UnitError, TypeError):
-                raise ValueError(f"feature {self.name}: unknown unit {self.unit!r}") from None
-
-    @property
-    def kind(self) -> str:
-        """``"flag"`` for booleans, ``"number"`` otherwise."""
-        return "flag" if self.unit == "flag" else "number"
+# FeatureSpec is declared with the catalogue (advisor.catalogue) and re-exported here.
 
 
 # --------------------------------------------------------------------------- syntax tree

@@ -45,6 +45,7 @@ from typing import Any, Iterable, Mapping
 import yaml
 
 from advisor import units
+from advisor.catalogue import FEATURE_DOMAINS
 from advisor.errors import ConditionError, RulesError
 from advisor.io.yamlio import load_yaml, parse_yaml_text
 from advisor.rules.condition import (Bool, Call, Compare, Compiled, FeatureSpec, Logical, Name, Node, Number, Unary,
@@ -66,39 +67,6 @@ MAX_BRANCHES = 256
 # --------------------------------------------------------------------------- feature domains
 
 
-def _feature_domains() -> dict[str, tuple[float, float, str]]:
-    """Range each feature can take when present: name → (lowest, highest, why) [feature unit]."""
-    from advisor.io.feed import PLAUSIBLE_RANGE  # the feed drops values outside these before any rule sees them
-
-    domains = {name: (lo, hi, f"the feed drops values outside {lo:g}..{hi:g} as implausible")
-               for name, (lo, hi) in PLAUSIBLE_RANGE.items()}
-    domains["rel_humidity_pct"] = (0.0, 100.0, "relative humidity is 0..100 % (the feed drops or clips "
-                                               "other values)")
-    never_negative = {
-        "gust_factor": "it is a ratio of two speeds",
-        "wind_pointing_error_arcsec": "it grows with the square of the gust speed",
-        "pointing_beam_fraction": "it is a pointing error divided by the beam width",
-        "hours_since_sunset": "it counts hours since the most recent sunset",
-        "hours_since_sunrise": "it counts hours since the most recent sunrise",
-        "reference_age_h": "the reference in force is never later than the evaluation time",
-        "reference_temp_delta_c": "it is an absolute difference",
-        "calibrator_minutes_up": "it is a duration",
-        "freq_ghz": "it is a frequency", "wavelength_mm": "it is a wavelength",
-        "required_surface_rms_um": "it is an rms", "beam_fwhm_arcsec": "it is a beam width",
-        "hf_wind_limit_ms": "it is a speed", "high_frequency_min_ghz": "it is a frequency",
-        "scan_duration_min": "it is a duration", "astronomical_duration_min": "it is a duration",
-        "data_age_min": "the last good sample is never later than the evaluation time",
-    }
-    for name, why in never_negative.items():
-        domains[name] = (0.0, math.inf, f"it is never negative: {why}")
-    for name in ("sun_elevation_deg", "calibrator_elevation_deg"):
-        domains[name] = (-90.0, 90.0, "an elevation is between -90 and +90 deg")
-    domains["sun_azimuth_deg"] = (0.0, 360.0, "azimuth is counted 0..360 deg from north")
-    return domains
-
-
-#: Range of values each feature can take when it is present, with the reason (lint's "impossible").
-FEATURE_DOMAINS: dict[str, tuple[float, float, str]] = _feature_domains()
 
 
 # --------------------------------------------------------------------------- problems

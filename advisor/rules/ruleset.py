@@ -31,8 +31,7 @@ from advisor.errors import RulesError
 from advisor.io.site import package_data_dir
 from advisor.rules.condition import Compiled, FeatureSpec
 
-APPLIES_TO = ("scan", "astronomical", "both")
-EFFECTS = ("block", "warn", "add_error")
+from advisor.vocabulary import APPLIES_TO, EFFECTS  # noqa: E402,F401 (re-exported)
 RULE_KEYS = ("id", "applies_to", "condition", "effect", "error_um", "message", "enabled")
 MAX_RULES = 2000
 #: Non-feature values a message may name.

@@ -18,7 +18,8 @@ from advisor.decision import Call
 
 if TYPE_CHECKING:  # rich is imported only when a panel is drawn: piped output stays light
     from rich.panel import Panel
-from advisor.features import CATALOGUE
+from advisor.catalogue import CATALOGUE, KEY_FEATURES
+from advisor.vocabulary import DEMO_BANNER, EFFECT_LABEL, METHOD_LABEL, VERDICT
 
 SCHEMA_VERSION = 1
 
@@ -30,32 +31,8 @@ CAUTIONS = (
     "Defer to local rules and the site's responsible staff.",
 )
 
-VERDICT_STYLE = {
-    "scan": ("SCAN NOW", "bold black on green"),
-    "astronomical": ("ASTRONOMICAL", "bold black on cyan"),
-    "postpone": ("POSTPONE", "bold black on yellow"),
-    "undetermined": ("UNDETERMINED", "bold white on red"),
-}
-EFFECT_LABEL = {"block": "against", "warn": "caution", "add_error": "error term", "info": "note"}
+VERDICT_STYLE = {v.name: (v.label, v.style) for v in VERDICT.values()}
 
-#: Features shown in the "key conditions" block, in order, with display formats.
-KEY_FEATURES = (
-    ("wind_mean_ms", "wind (10-min mean)", "{:.1f} m/s"),
-    ("wind_gust_ms", "gusts (10-min max)", "{:.1f} m/s"),
-    ("air_temp_c", "air temperature", "{:.1f} °C"),
-    ("dew_point_spread_c", "dew-point spread", "{:.1f} °C"),
-    ("rel_humidity_pct", "relative humidity", "{:.0f} %"),
-    ("visibility_m", "visibility", "{:.0f} m"),  # shown in km above 10 km, see _fmt_feature
-    ("precip_mm_h", "precipitation", "{:.1f} mm/h"),
-    ("sun_elevation_deg", "sun elevation", "{:.1f}°"),
-    ("hours_since_sunset", "since sunset", "{:.1f} h"),
-    ("air_temp_rate_c_per_h", "temperature rate", "{:+.1f} °C/h"),
-    ("reference_age_h", "reference age", "{:.1f} h"),
-    ("reference_temp_delta_c", "|ΔT| to reference", "{:.1f} °C"),
-    ("calibrator_elevation_deg", "best calibrator elevation", "{:.0f}°"),
-    ("calibrator_minutes_up", "calibrator stays up", "{:.0f} min"),
-    ("data_age_min", "data age", "{:.1f} min"),
-)
 
 
 @dataclass(frozen=True)
@@ -111,9 +88,10 @@ def _times(call: Call, ctx: Context) -> str:
 def key_features(features: dict):
     """(label, text) pairs of the key conditions; hours since sunrise by day, since sunset by night."""
     rows = []
-    for name, label, fmt in KEY_FEATURES:
-        if name == "hours_since_sunset" and not features.get("is_night", True):
-            name, label = "hours_since_sunrise", "since sunrise"
+    for spec in KEY_FEATURES:
+        if spec.name == "hours_since_sunset" and not features.get("is_night", True):
+            spec = CATALOGUE["hours_since_sunrise"]
+        name, label, fmt = spec.name, spec.label, spec.display_format
         rows.append((label, _fmt_feature(name, fmt, features)))
     return rows
 
@@ -134,7 +112,7 @@ def _fmt_feature(name: str, fmt: str, features: dict) -> str:
 
 
 def _candidate_rows(call: Call):
-    for method, label in (("scan", "laser scan"), ("astronomical", "astronomical")):
+    for method, label in METHOD_LABEL.items():
         c = call.candidates[method]
         rms = "n/a" if c["surface_rms_um"] is None else f"{c['surface_rms_um']:.0f} µm"
         eta = "n/a" if c["ruze_efficiency"] is None else f"{c['ruze_efficiency']:.2f}"
@@ -170,7 +148,7 @@ def render_panel(call: Call, ctx: Context) -> Panel:
     parts.append(head)
     parts.append(Text(f"{_times(call, ctx)} · target {call.freq_ghz:g} GHz", style="bold"))
     if ctx.is_demo:
-        parts.append(Text("DEMO DATA — invented site and weather, for trying the tool.", style="bold magenta"))
+        parts.append(Text(DEMO_BANNER, style="bold magenta"))
     for note in ctx.notes:
         parts.append(Text(note, style="italic"))
 
@@ -221,7 +199,7 @@ def _next_window_text(next_window: dict, time_zone: str) -> str:
     zone = ZoneInfo(time_zone)
     bits = []
     for method, w in next_window.items():
-        label = "laser scan" if method == "scan" else method
+        label = METHOD_LABEL[method]
         if not w:
             bits.append(f"{label}: none in the forecast")
             continue
@@ -239,7 +217,7 @@ def render_plain(call: Call, ctx: Context) -> str:
     lines = [f"advisor · {ctx.site_name} · {_times(call, ctx)} · {call.freq_ghz:g} GHz",
              f"VERDICT: {label} — {call.headline}"]
     if ctx.is_demo:
-        lines.append("DEMO DATA — invented site and weather, for trying the tool.")
+        lines.append(DEMO_BANNER)
     lines.extend(ctx.notes)
     lines.append("")
     rows = [CANDIDATE_HEADERS, *_candidate_rows(call)]

@@ -1,0 +1,221 @@
+"""The feature catalogue: every number the rules, the model and the views know, declared once.
+
+    spec = CATALOGUE["wind_gust_ms"]
+    spec.unit, spec.meaning, spec.label, spec.fmt, spec.plausible, spec.domain, spec.scope
+
+Each :class:`FeatureSpec` holds a feature's name (which carries its unit), its unit, its
+meaning, how the screen labels and formats it, the range a raw measurement must fall in to be
+plausible (the feed drops values outside it), the range the feature can take at all (lint's
+"can never be true") and its scope: ``row`` features vary with the evaluation time; ``target``
+features depend only on the target frequency and the site, and travel as scalars.
+
+Adding a feature means adding one entry here and computing it in :mod:`advisor.features`;
+lint, ``rules features``, the screen, the model's wording, the outlook table, the feed's
+plausibility check and ``check --json`` all read this list.
+"""
+
+from __future__ import annotations
+
+import keyword
+import math
+import re
+from dataclasses import dataclass
+
+from advisor import units
+
+__all__ = ["FeatureSpec", "FEATURES", "CATALOGUE", "FLAG_NAMES", "KEY_FEATURES", "STEP_FEATURES",
+           "PLAUSIBLE_RANGE", "FEATURE_DOMAINS", "ROW_FEATURES", "TARGET_FEATURES", "unit_text"]
+
+_INF = math.inf
+_NAME_RE = re.compile(r"[a-z_][a-z0-9_]*\Z")
+
+
+@dataclass(frozen=True)
+class FeatureSpec:
+    """One feature.
+
+    Parameters
+    ----------
+    name : str
+        Feature name, ``[a-z_][a-z0-9_]*``, carrying its unit (``wind_mean_ms``).
+    unit : str
+        A unit of :mod:`advisor.units`, ``"1"`` for dimensionless, ``"flag"`` for booleans.
+    meaning : str
+        One line for documentation and lint output.
+    label : str
+        Short words for the screen and the model's explanations ("gusts"); defaults to the name.
+    fmt : str
+        ``str.format`` pattern of the value with its unit ("{:.1f} m/s").
+    plausible : tuple of float, optional
+        (lowest, highest) a measured input may have; the feed drops other values as implausible.
+    domain : tuple, optional
+        (lowest, highest, why) the feature can ever take when present (lint's impossible ranges).
+    scope : str
+        ``row`` (varies with time) or ``target`` (depends only on the target and the site).
+    words : str
+        The feature in a sentence ("gusts 7.8 m/s lowered the odds"); defaults to the label.
+    key : bool
+        Shown among the screen's key conditions.
+    step : bool
+        Shown per step in the outlook's tables.
+    """
+
+    name: str
+    unit: str
+    meaning: str = ""
+    label: str = ""
+    fmt: str = ""
+    plausible: tuple[float, float] | None = None
+    domain: tuple[float, float, str] | None = None
+    scope: str = "row"
+    words: str = ""
+    key: bool = False
+    step: bool = False
+
+    def __post_init__(self) -> None:
+        if (not isinstance(self.name, str) or not _NAME_RE.match(self.name)
+                or keyword.iskeyword(self.name) or self.name in ("true", "false") or self.name.startswith("__")):
+            raise ValueError(f"feature name {self.name!r} must match [a-z_][a-z0-9_]* and not be a keyword")
+        if self.unit != "flag":
+            try:
+                units.lookup(self.unit)
+            except (units.UnitError, TypeError):
+                raise ValueError(f"feature {self.name}: unknown unit {self.unit!r}") from None
+        if self.scope not in ("row", "target"):
+            raise ValueError(f"feature {self.name}: scope must be 'row' or 'target', not {self.scope!r}")
+
+    @property
+    def kind(self) -> str:
+        """``"flag"`` for booleans, ``"number"`` otherwise."""
+        return "flag" if self.unit == "flag" else "number"
+
+    @property
+    def phrase(self) -> str:
+        """The feature in a sentence: its words, else its label, else its name with spaces."""
+        return self.words or self.label or self.name.replace("_", " ")
+
+    @property
+    def display_format(self) -> str:
+        """Format of a value with its unit; a generic one when the entry gives none."""
+        if self.fmt:
+            return self.fmt
+        return "{:.3g} " + unit_text(self.unit) if unit_text(self.unit) else "{:.3g}"
+
+
+#: Units as people write them.
+_UNIT_TEXT = {"degC": "°C", "delta_degC": "°C", "degC/h": "°C/h", "deg": "°", "um": "µm", "1": "", "flag": ""}
+
+
+def unit_text(unit: str) -> str:
+    """A unit as people write it (``delta_degC`` → ``°C``)."""
+    return _UNIT_TEXT.get(unit, unit)
+
+
+def _never_negative(why: str) -> tuple[float, float, str]:
+    return (0.0, _INF, f"it is never negative: {why}")
+
+
+def _measured(lo: float, hi: float) -> tuple[float, float, str]:
+    return (lo, hi, f"the feed drops values outside {lo:g}..{hi:g} as implausible")
+
+
+_ELEVATION = (-90.0, 90.0, "an elevation is between -90 and +90 deg")
+_F = FeatureSpec
+
+#: Every feature, in the order tables list them.
+FEATURES: tuple[FeatureSpec, ...] = (
+    # wind
+    _F("wind_mean_ms", "m/s", "mean wind over the last 10 minutes", "wind (10-min mean)", "{:.1f} m/s",
+       words="mean wind", plausible=(0.0, 75.0), domain=_measured(0.0, 75.0), key=True, step=True),
+    _F("wind_gust_ms", "m/s", "highest gust over the last 10 minutes", "gusts (10-min max)", "{:.1f} m/s",
+       words="gusts", plausible=(0.0, 100.0), domain=_measured(0.0, 100.0), key=True, step=True),
+    _F("gust_factor", "1", "gust divided by mean wind (turbulence); NaN below 0.5 m/s mean", "gust factor",
+       "{:.2f}", domain=_never_negative("it is a ratio of two speeds")),
+    _F("wind_pointing_error_arcsec", "arcsec",
+       "expected wind-induced pointing error (site figure, scales with gust²)", "wind pointing error",
+       "{:.1f} arcsec", domain=_never_negative("it grows with the square of the gust speed")),
+    _F("pointing_beam_fraction", "1", "wind pointing error as a fraction of the beam FWHM",
+       "pointing error / beam", "{:.2f}", domain=_never_negative("it is a pointing error divided by the beam width")),
+    # moisture
+    _F("air_temp_c", "degC", "air temperature", "air temperature", "{:.1f} °C",
+       plausible=(-60.0, 60.0), domain=_measured(-60.0, 60.0), key=True, step=True),
+    _F("rel_humidity_pct", "%", "relative humidity", "relative humidity", "{:.0f} %",
+       plausible=(0.0, 100.5), domain=(0.0, 100.0, "relative humidity is 0..100 % (the feed drops or clips "
+                                                 "other values)"), key=True, step=True),
+    _F("dew_point_c", "degC", "dew point (Magnus, Alduchov & Eskridge 1996)", "dew point", "{:.1f} °C",
+       plausible=(-80.0, 60.0), domain=_measured(-80.0, 60.0)),
+    _F("dew_point_spread_c", "delta_degC", "air temperature minus dew point", "dew-point spread", "{:.1f} °C",
+       key=True, step=True),
+    _F("visibility_m", "m", "visibility (NaN if the feed has none)", "visibility", "{:.0f} m",
+       plausible=(0.0, 1_000_000.0), domain=_measured(0.0, 1_000_000.0), key=True, step=True),
+    _F("precip_mm_h", "mm/h", "precipitation rate (NaN if the feed has none)", "precipitation", "{:.1f} mm/h",
+       plausible=(0.0, 500.0), domain=_measured(0.0, 500.0), key=True, step=True),
+    _F("pressure_hpa", "hPa", "station pressure (NaN if the feed has none)", "pressure", "{:.0f} hPa",
+       plausible=(300.0, 1100.0), domain=_measured(300.0, 1100.0)),
+    _F("solar_wm2", "W/m2", "global irradiance (NaN if the feed has none)", "irradiance", "{:.0f} W/m²",
+       plausible=(-20.0, 1500.0), domain=_measured(-20.0, 1500.0)),
+    _F("fog", "flag", "fog likely: small dew-point spread with high RH, or visibility below the site limit"),
+    _F("precipitation", "flag", "precipitation at or above the site threshold"),
+    # thermal state
+    _F("sun_elevation_deg", "deg", "apparent sun elevation", "sun elevation", "{:.1f}°", domain=_ELEVATION,
+       key=True, step=True),
+    _F("sun_azimuth_deg", "deg", "sun azimuth, clockwise from north", "sun azimuth", "{:.0f}°",
+       domain=(0.0, 360.0, "azimuth is counted 0..360 deg from north")),
+    _F("is_night", "flag", "between sunset and sunrise (sun centre below -0.833 deg, refraction included)"),
+    _F("sun_transition", "flag", "sun between -6 and +15 deg: the structure deforms fastest"),
+    _F("hours_since_sunset", "h", "hours since the most recent sunset", "since sunset", "{:.1f} h", words="time since sunset",
+       domain=_never_negative("it counts hours since the most recent sunset"), key=True),
+    _F("hours_since_sunrise", "h", "hours since the most recent sunrise", "since sunrise", "{:.1f} h",
+       domain=_never_negative("it counts hours since the most recent sunrise")),
+    _F("air_temp_rate_c_per_h", "degC/h", "air-temperature change over the last hour", "temperature rate",
+       "{:+.1f} °C/h", words="temperature change", key=True),
+    # reference scan
+    _F("has_reference", "flag", "a reference scan is in force"),
+    _F("reference_age_h", "h", "age of the reference scan in force (NaN without one)", "reference age", "{:.1f} h",
+       domain=_never_negative("the reference in force is never later than the evaluation time"), key=True),
+    _F("reference_temp_delta_c", "delta_degC", "|air temperature - temperature at the reference scan|",
+       "|ΔT| to reference", "{:.1f} °C", domain=_never_negative("it is an absolute difference"), key=True),
+    # calibrators
+    _F("calibrator_elevation_deg", "deg", "elevation of the best calibrator now (NaN if none usable)",
+       "best calibrator elevation", "{:.0f}°", domain=_ELEVATION, key=True),
+    _F("calibrator_minutes_up", "min", "minutes the best calibrator stays above the minimum elevation",
+       "calibrator stays up", "{:.0f} min", domain=_never_negative("it is a duration"), key=True),
+    _F("calibrator_available", "flag", "a calibrator stays usable for the whole astronomical measurement"),
+    # target and site figures (scalars: the same for every row of one evaluation)
+    _F("freq_ghz", "GHz", "target observing frequency", "target frequency", "{:g} GHz",
+       domain=_never_negative("it is a frequency"), scope="target"),
+    _F("wavelength_mm", "mm", "target wavelength", "wavelength", "{:.2f} mm",
+       domain=_never_negative("it is a wavelength"), scope="target"),
+    _F("required_surface_rms_um", "um", "lambda/16 surface requirement at the target frequency",
+       "surface requirement", "{:.0f} µm", domain=_never_negative("it is an rms"), scope="target"),
+    _F("beam_fwhm_arcsec", "arcsec", "beam FWHM at the target frequency (1.2 lambda/D)", "beam FWHM",
+       "{:.1f} arcsec", domain=_never_negative("it is a beam width"), scope="target"),
+    _F("hf_wind_limit_ms", "m/s", "site's high-frequency mean-wind limit", "high-frequency wind limit",
+       "{:.1f} m/s", domain=_never_negative("it is a speed"), scope="target"),
+    _F("high_frequency_min_ghz", "GHz", "site's lowest frequency counted as high-frequency",
+       "lowest high frequency", "{:g} GHz", domain=_never_negative("it is a frequency"), scope="target"),
+    _F("scan_duration_min", "min", "duration of a laser scan (site figure)", "laser scan duration", "{:.0f} min",
+       domain=_never_negative("it is a duration"), scope="target"),
+    _F("astronomical_duration_min", "min", "duration of an astronomical measurement (site figure)",
+       "astronomical duration", "{:.0f} min", domain=_never_negative("it is a duration"), scope="target"),
+    # data quality
+    _F("data_age_min", "min", "age of the last good weather sample", "data age", "{:.1f} min",
+       domain=_never_negative("the last good sample is never later than the evaluation time"), key=True),
+    _F("data_ok", "flag", "weather data fresh, plausible and complete"),
+)
+
+#: name → spec.
+CATALOGUE: dict[str, FeatureSpec] = {f.name: f for f in FEATURES}
+FLAG_NAMES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.unit == "flag")
+#: Features that vary with the evaluation time (computed per row, cached by replay).
+ROW_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.scope == "row")
+#: Features fixed by the target frequency and the site (scalars).
+TARGET_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.scope == "target")
+#: The screen's key conditions, in order.
+KEY_FEATURES: tuple[FeatureSpec, ...] = tuple(f for f in FEATURES if f.key)
+#: The outlook's per-step weather columns.
+STEP_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.step)
+#: Raw measurement → (lowest, highest) plausible value; the feed drops values outside.
+PLAUSIBLE_RANGE: dict[str, tuple[float, float]] = {f.name: f.plausible for f in FEATURES if f.plausible}
+#: Feature → (lowest, highest, why) it can take when present (lint's "can never be true").
+FEATURE_DOMAINS: dict[str, tuple[float, float, str]] = {f.name: f.domain for f in FEATURES if f.domain}
