@@ -7,7 +7,9 @@ Each :class:`FeatureSpec` holds a feature's name (which carries its unit), its u
 meaning, how the screen labels and formats it, the range a raw measurement must fall in to be
 plausible (the feed drops values outside it), the range the feature can take at all (lint's
 "can never be true") and its scope: ``row`` features vary with the evaluation time; ``target``
-features depend only on the target frequency and the site, and travel as scalars.
+features depend only on the target frequency and the site, and travel as scalars;
+``target_row`` features vary per row but depend on the target, so a replay's cache of row
+features serves every target frequency.
 
 Adding a feature means adding one entry here and computing it in :mod:`advisor.features`;
 lint, ``rules features``, the screen, the model's wording, the outlook table, the feed's
@@ -24,9 +26,12 @@ from dataclasses import dataclass
 from advisor import units
 
 __all__ = ["FeatureSpec", "FEATURES", "CATALOGUE", "FLAG_NAMES", "KEY_FEATURES", "STEP_FEATURES",
-           "PLAUSIBLE_RANGE", "FEATURE_DOMAINS", "ROW_FEATURES", "TARGET_FEATURES", "unit_text"]
+           "PLAUSIBLE_RANGE", "FEATURE_DOMAINS", "ROW_FEATURES", "TARGET_ROW_FEATURES", "TARGET_FEATURES", "SCOPES",
+           "unit_text"]
 
 _INF = math.inf
+#: Where a feature's value comes from (see FeatureSpec.scope).
+SCOPES = ("row", "target", "target_row")
 _NAME_RE = re.compile(r"[a-z_][a-z0-9_]*\Z")
 
 
@@ -51,7 +56,9 @@ class FeatureSpec:
     domain : tuple, optional
         (lowest, highest, why) the feature can ever take when present (lint's impossible ranges).
     scope : str
-        ``row`` (varies with time) or ``target`` (depends only on the target and the site).
+        ``row``: varies with time, not with the target (a replay caches these);
+        ``target``: fixed by the target frequency and the site (travels as a scalar);
+        ``target_row``: varies with time and depends on the target (computed after the cache).
     words : str
         The feature in a sentence ("gusts 7.8 m/s lowered the odds"); defaults to the label.
     key : bool
@@ -81,8 +88,8 @@ class FeatureSpec:
                 units.lookup(self.unit)
             except (units.UnitError, TypeError):
                 raise ValueError(f"feature {self.name}: unknown unit {self.unit!r}") from None
-        if self.scope not in ("row", "target"):
-            raise ValueError(f"feature {self.name}: scope must be 'row' or 'target', not {self.scope!r}")
+        if self.scope not in SCOPES:
+            raise ValueError(f"feature {self.name}: scope must be one of {SCOPES}, not {self.scope!r}")
 
     @property
     def kind(self) -> str:
@@ -135,7 +142,8 @@ FEATURES: tuple[FeatureSpec, ...] = (
        "expected wind-induced pointing error (site figure, scales with gust²)", "wind pointing error",
        "{:.1f} arcsec", domain=_never_negative("it grows with the square of the gust speed")),
     _F("pointing_beam_fraction", "1", "wind pointing error as a fraction of the beam FWHM",
-       "pointing error / beam", "{:.2f}", domain=_never_negative("it is a pointing error divided by the beam width")),
+       "pointing error / beam", "{:.2f}", domain=_never_negative("it is a pointing error divided by the beam width"),
+       scope="target_row"),
     # moisture
     _F("air_temp_c", "degC", "air temperature", "air temperature", "{:.1f} °C",
        plausible=(-60.0, 60.0), domain=_measured(-60.0, 60.0), key=True, step=True),
@@ -209,6 +217,8 @@ CATALOGUE: dict[str, FeatureSpec] = {f.name: f for f in FEATURES}
 FLAG_NAMES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.unit == "flag")
 #: Features that vary with the evaluation time (computed per row, cached by replay).
 ROW_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.scope == "row")
+#: Row features that depend on the target (computed from row features and the targets).
+TARGET_ROW_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.scope == "target_row")
 #: Features fixed by the target frequency and the site (scalars).
 TARGET_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.scope == "target")
 #: The screen's key conditions, in order.

@@ -1,8 +1,9 @@
 """The decision: per-candidate error budget, Ruze efficiency, feasibility and the verdict.
 
-``decide(features, rule_eval, rules, site, odds)`` works on whole columns and returns a
-:class:`Decisions` (one verdict per row); ``explain(decisions, i)`` turns one row into a
-:class:`Call` with its reasons, ready to render.  DESIGN §6:
+``decide(features, targets, rule_eval, rules, site, odds)`` works on whole columns and returns
+a :class:`Decisions` (one verdict per row, with each method's blocking masks);
+``explain(decisions, i)`` turns one row into a :class:`Call` with its reasons, ready to render.
+The error budgets (see docs/design.md):
 
 * laser:        σ = √(σ_astro² + σ_scan(wind)² + σ_age² + Σ rule terms²), σ_scan = √(noise² + (k v²)²),
                 σ_age = √((ageing · age_days)² + (mismatch · |ΔT|)²)
@@ -45,13 +46,22 @@ class Candidates:
 class Decisions:
     """Vectorised decisions over a feature frame."""
 
-    features: pd.DataFrame
+    features: pd.DataFrame        # row features (``time``, ..., ``source_row``)
+    targets: dict[str, float]     # target features: one number each
     verdict: np.ndarray           # object array of VERDICTS
     candidates: dict[str, Candidates]
     rule_eval: RuleEvaluation
     rules: RuleSet
     site: Site
     model_notes: dict[str, list] = field(default_factory=dict)
+
+    def blocking(self, method: str) -> dict[str, np.ndarray]:
+        """Rule id → mask of the rows where that blocking rule fired against ``method``."""
+        return {r.id: self.rule_eval.fired[r.id] for r in self.rules if r.applies(method) and r.effect == "block"}
+
+    def blocked_by(self, method: str, i: int) -> list[str]:
+        """Ids of the blocking rules that fired against ``method`` at row ``i``."""
+        return [rule_id for rule_id, mask in self.blocking(method).items() if mask[i]]
 
 
 @dataclass(frozen=True)
@@ -80,10 +90,13 @@ class Call:
 
 
 def _rule_error_terms(rule_eval: RuleEvaluation, rules: RuleSet, method: str, n: int) -> np.ndarray:
-    terms = [rule_eval.error_um[r.id] for r in rules if r.applies(method) and r.id in rule_eval.error_um]
-    if not terms:
-        return np.zeros(n)
-    return np.sqrt(np.sum(np.square(np.vstack(terms)), axis=0))
+    """Root-sum-square of the rule error terms for ``method`` (one running sum: constant memory)."""
+    total = np.zeros(n)
+    for r in rules:
+        if r.applies(method) and r.id in rule_eval.error_um:
+            term = rule_eval.error_um[r.id]
+            total += term * term
+    return np.sqrt(total, out=total)
 
 
 def _blocked(rule_eval: RuleEvaluation, rules: RuleSet, method: str, n: int) -> np.ndarray:
@@ -109,8 +122,8 @@ def astronomical_budget_um(features: pd.DataFrame, site: Site) -> np.ndarray:
     return root_sum_square(a.surface_rms_um, a.wind_term_um_per_ms2 * gust**2, drift)
 
 
-def decide(features: pd.DataFrame, rule_eval: RuleEvaluation, rules: RuleSet, site: Site,
-           odds: Mapping[str, np.ndarray] | None = None) -> Decisions:
+def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: RuleEvaluation, rules: RuleSet,
+           site: Site, odds: Mapping[str, np.ndarray] | None = None) -> Decisions:
     """Verdicts for every row of ``features``.
 
     ``odds`` is the seam for the site classifier: method → probability of a usable result per
@@ -119,7 +132,7 @@ def decide(features: pd.DataFrame, rule_eval: RuleEvaluation, rules: RuleSet, si
     ``p_usable = NaN`` and the decision rests on rules and the error budget alone.
     """
     n = len(features)
-    freq = features["freq_ghz"].to_numpy()
+    freq = float(targets["freq_ghz"])
     th = site.thresholds
     base = {"scan": laser_budget_um(features, site), "astronomical": astronomical_budget_um(features, site)}
     durations = {"scan": site.scan.duration_min, "astronomical": site.astronomical.duration_min}
@@ -140,7 +153,8 @@ def decide(features: pd.DataFrame, rule_eval: RuleEvaluation, rules: RuleSet, si
     verdict[scan.feasible & (~astro.feasible | prefer_scan)] = "scan"
     verdict[~features["data_ok"].to_numpy(dtype=bool)] = "undetermined"
     # An odds mapping may carry per-row explanations (advisor.model.inference.ModelOdds.notes).
-    return Decisions(features, verdict, candidates, rule_eval, rules, site, dict(getattr(odds, "notes", None) or {}))
+    return Decisions(features, dict(targets), verdict, candidates, rule_eval, rules, site,
+                     dict(getattr(odds, "notes", None) or {}))
 
 
 def _odds_text(p: float) -> str:
@@ -176,7 +190,9 @@ def explain(decisions: Decisions, i: int) -> Call:
     site = decisions.site
     th = site.thresholds
     verdict = str(decisions.verdict[i])
-    values = {k: (bool(v) if isinstance(v, (bool, np.bool_)) else v) for k, v in row.items() if k != "time"}
+    values = {k: (bool(v) if isinstance(v, (bool, np.bool_)) else v) for k, v in row.items()
+              if k not in ("time", "source_row")}
+    values.update(decisions.targets)
     reasons: list[Reason] = []
     if verdict == "undetermined":
         reasons.extend(_data_reasons(row, site))
@@ -188,8 +204,8 @@ def explain(decisions: Decisions, i: int) -> Call:
                 term = decisions.rule_eval.error_um[rule.id][i]
                 message = f"{message} (+{term:.0f} µm in quadrature)"
             reasons.append(Reason(rule.id, rule.applies_to, effect, message))
-    freq = float(row["freq_ghz"])
-    req = float(row["required_surface_rms_um"])
+    freq = float(decisions.targets["freq_ghz"])
+    req = float(decisions.targets["required_surface_rms_um"])
     cands = {}
     for method in METHODS:
         c = decisions.candidates[method]
@@ -214,8 +230,7 @@ def explain(decisions: Decisions, i: int) -> Call:
             "ruze_efficiency": None if not np.isfinite(eta) else round(eta, 4),
             "p_usable": None if not np.isfinite(p) else round(p, 4),
             "duration_min": c.duration_min,
-            "blocked_by": [r.id for r in decisions.rules if r.applies(method) and r.effect == "block"
-                           and decisions.rule_eval.fired[r.id][i]],
+            "blocked_by": decisions.blocked_by(method, i),
         }
     reasons.extend(_choice_reasons(verdict, cands, site))
     headline = _headline(verdict, cands, row)

@@ -12,6 +12,9 @@ the lint, ``rules features`` and the JSON output all read it.
 
 from __future__ import annotations
 
+import importlib.util
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 
@@ -19,11 +22,25 @@ from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, 
 from advisor.physics.sky import elevation_and_minutes_above
 from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG, hours_since_sunrise, hours_since_sunset, solar_position
 from advisor.io.references import Registry, reference_in_force
-from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, FeatureSpec  # noqa: F401 (re-exported)
+from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, ROW_FEATURES, FeatureSpec  # noqa: F401 (re-exported)
 from advisor.io.site import Site
 
 WIND_WINDOW = "10min"
 TEMP_RATE_WINDOW_MIN = 60.0
+#: Feed history a row's features read before its time (10-min wind, 1-h temperature rate): what a
+#: chunk of an archive must include before its first row.
+LOOKBACK = pd.Timedelta(hours=2)
+
+#: Version of the row features' definition; raise it when their meaning changes without a change
+#: in the source of :data:`FEATURE_SOURCE_MODULES` (e.g. a changed data file they read).
+FEATURES_VERSION = 2
+#: Every module whose code decides the row features.  A replay's feature cache hashes their
+#: source; tests/test_featurecache.py fails when the import closure of this module grows beyond it.
+FEATURE_SOURCE_MODULES = (
+    "advisor.features", "advisor.catalogue", "advisor.units", "advisor.errors",
+    "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
+    "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
+)
 
 def _ns(times) -> np.ndarray:
     """Times (DatetimeIndex/Series/datetime64) → int64 nanoseconds since the epoch, UTC."""
@@ -56,9 +73,13 @@ def _rolling(good: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry,
-                     freq_ghz: float) -> pd.DataFrame:
-    """Features at each of ``times_utc`` from the canonical feed ``frame`` (see module doc)."""
+def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry) -> pd.DataFrame:
+    """The row-scope features at each of ``times_utc`` (independent of the target frequency).
+
+    Columns: ``time``, every ``row`` feature of the catalogue, ``calibrator_name`` and
+    ``source_row`` (position in ``frame`` of the weather sample each row reads, -1 if none).
+    This is what a replay caches: it does not depend on the target.
+    """
     t_ns = _ns(times_utc)
     n = len(t_ns)
     times_index = pd.DatetimeIndex(t_ns.astype("datetime64[ns]")).tz_localize("UTC")
@@ -146,27 +167,99 @@ def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Regis
         cal_name = pd.Categorical.from_codes(np.zeros(n, dtype=int), categories=[""])
     out["calibrator_available"] = out["calibrator_minutes_up"] >= astro.duration_min
 
-    # --- target and site figures ---------------------------------------------------------
-    beam = float(beam_fwhm_arcsec(freq_ghz, site.dish_diameter_m))
-    out["freq_ghz"] = np.full(n, float(freq_ghz))
-    out["wavelength_mm"] = np.full(n, float(wavelength_mm(freq_ghz)))
-    out["required_surface_rms_um"] = np.full(n, float(required_surface_rms_um(freq_ghz)))
-    out["beam_fwhm_arcsec"] = np.full(n, beam)
-    out["hf_wind_limit_ms"] = np.full(n, th.high_frequency_wind_limit_ms)
-    out["high_frequency_min_ghz"] = np.full(n, th.high_frequency_min_ghz)
-    out["scan_duration_min"] = np.full(n, site.scan.duration_min)
-    out["astronomical_duration_min"] = np.full(n, astro.duration_min)
     out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
-    out["pointing_beam_fraction"] = out["wind_pointing_error_arcsec"] / beam
 
     columns = {"time": times_index}
-    for spec in FEATURES:
-        values = out[spec.name]
-        columns[spec.name] = np.asarray(values, dtype=bool) if spec.unit == "flag" else np.asarray(values, dtype=float)
+    for name in ROW_FEATURES:
+        values = out[name]
+        columns[name] = np.asarray(values, dtype=bool) if CATALOGUE[name].unit == "flag" else np.asarray(values, dtype=float)
     columns["calibrator_name"] = cal_name
+    good_rows = np.flatnonzero(good_mask)
+    columns["source_row"] = np.where(has, good_rows[safe] if len(good_rows) else -1, -1).astype(np.int64)
     return pd.DataFrame(columns)
 
 
-def columns_of(features: pd.DataFrame) -> dict[str, np.ndarray]:
-    """The feature columns as a name → numpy array mapping (what compiled conditions read)."""
-    return {spec.name: features[spec.name].to_numpy() for spec in FEATURES}
+def row_features_chunked(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site: Site, registry: Registry,
+                         chunk_rows: int = 100_000, on_chunk=None) -> pd.DataFrame:
+    """:func:`row_features` in chunks of ``chunk_rows`` times, each with the feed rows it needs.
+
+    Identical to one call over all times (each chunk gets :data:`LOOKBACK` of history before its
+    first time); memory is bounded by the chunk.  ``on_chunk(done_rows, total_rows)`` is called
+    after each chunk (for a progress bar).
+    """
+    frame_ns = _ns(frame["time"])
+    t_ns = _ns(times_utc)
+    parts = []
+    for start in range(0, len(t_ns), chunk_rows):
+        chunk = times_utc[start:start + chunk_rows]
+        lo = np.searchsorted(frame_ns, t_ns[start] - LOOKBACK.value, side="left")
+        hi = np.searchsorted(frame_ns, t_ns[min(start + chunk_rows, len(t_ns)) - 1], side="right")
+        part = row_features(frame.iloc[lo:hi], chunk, site, registry)
+        source = part["source_row"].to_numpy()
+        part["source_row"] = np.where(source >= 0, source + lo, -1)
+        parts.append(part)
+        if on_chunk:
+            on_chunk(min(start + chunk_rows, len(t_ns)), len(t_ns))
+    if not parts:
+        return row_features(frame.iloc[:0], times_utc, site, registry)
+    return pd.concat(parts, ignore_index=True) if len(parts) > 1 else parts[0]
+
+
+def feature_source_paths() -> list[Path]:
+    """Source files of :data:`FEATURE_SOURCE_MODULES` (what a feature cache key hashes)."""
+    paths = []
+    for name in FEATURE_SOURCE_MODULES:
+        spec = importlib.util.find_spec(name)
+        if spec is None or spec.origin is None:  # pragma: no cover - a broken install
+            raise ImportError(f"cannot locate the source of {name}")
+        paths.append(Path(spec.origin))
+    return paths
+
+
+def target_features(site: Site, freq_ghz: float) -> dict[str, float]:
+    """The target-scope features: one number each, fixed by the target frequency and the site."""
+    th = site.thresholds
+    return {
+        "freq_ghz": float(freq_ghz),
+        "wavelength_mm": float(wavelength_mm(freq_ghz)),
+        "required_surface_rms_um": float(required_surface_rms_um(freq_ghz)),
+        "beam_fwhm_arcsec": float(beam_fwhm_arcsec(freq_ghz, site.dish_diameter_m)),
+        "hf_wind_limit_ms": float(th.high_frequency_wind_limit_ms),
+        "high_frequency_min_ghz": float(th.high_frequency_min_ghz),
+        "scan_duration_min": float(site.scan.duration_min),
+        "astronomical_duration_min": float(site.astronomical.duration_min),
+    }
+
+
+def with_target(rows: pd.DataFrame, targets: dict[str, float]) -> pd.DataFrame:
+    """Row features plus the ``target_row`` ones (row values that depend on the target)."""
+    out = rows.copy(deep=False)
+    out["pointing_beam_fraction"] = rows["wind_pointing_error_arcsec"].to_numpy() / targets["beam_fwhm_arcsec"]
+    return out
+
+
+def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry,
+                     freq_ghz: float) -> pd.DataFrame:
+    """Every feature at each of ``times_utc`` as one wide frame (target features repeated per row).
+
+    For callers that want a plain table (training, tests); the evaluation path keeps the target
+    features as scalars (:func:`target_features`).
+    """
+    targets = target_features(site, freq_ghz)
+    out = with_target(row_features(frame, times_utc, site, registry), targets)
+    for name, value in targets.items():
+        out[name] = np.full(len(out), value)
+    return out
+
+
+def columns_of(features: pd.DataFrame, targets: dict[str, float] | None = None) -> dict[str, np.ndarray]:
+    """Feature columns as name → array of the frame's length (what compiled conditions read).
+
+    Target features come from ``targets`` as read-only broadcast views (no memory per row), or
+    from the frame when it carries them (:func:`compute_features`).
+    """
+    n = len(features)
+    columns = {name: features[name].to_numpy() for name in CATALOGUE if name in features}
+    for name, value in (targets or {}).items():
+        columns[name] = np.broadcast_to(np.float64(value), (n,))
+    return columns

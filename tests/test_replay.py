@@ -185,9 +185,17 @@ def test_cache_key_follows_the_inputs(capsys, tmp_path, monkeypatch, sample_args
     second = json.loads(capsys.readouterr().out)
     assert len(_cache_files()) == 2
     assert first != second
-    assert main(args + ["--freq", "43", "--json"]) == 0  # another frequency: another entry
-    capsys.readouterr()
-    assert len(_cache_files()) == 3
+    # Another frequency reuses the entry: the row features do not depend on the target.
+    import advisor.commands.replay as cli_replay
+
+    def no_reading(*_a, **_k):
+        raise AssertionError("the archive was read again for another frequency")
+
+    monkeypatch.setattr(cli_replay, "read_feed", no_reading)
+    assert main(args + ["--freq", "43", "--json"]) == 0
+    at_43 = json.loads(capsys.readouterr().out)
+    assert len(_cache_files()) == 2
+    assert at_43["target_freq_ghz"] == 43.0 and at_43["hours"] != second["hours"]
 
 
 def test_damaged_cache_entry_is_recomputed(capsys, tmp_path, monkeypatch, sample_args):

@@ -12,6 +12,8 @@ import numpy as np
 import pandas as pd
 
 from advisor.decision import VERDICTS
+from advisor.evaluation.evaluate import Scenario
+from advisor.features import FEATURES_VERSION, feature_source_paths
 from advisor.io import featurecache
 from advisor.errors import UsageError
 from advisor.io.feed import check_whole_read, read_feed
@@ -67,20 +69,22 @@ def cmd_replay(args: argparse.Namespace) -> int:
     if t_from is not None and t_to is not None and t_to <= t_from:
         raise UsageError("--to must be after --from", field="--to")
     registry = read_registry(inputs.registry_path)
+    scenario = Scenario(inputs.site, registry, inputs.rules, inputs.freq_ghz, getattr(inputs, "odds", None))
     odds = getattr(inputs, "odds", None)
     rule_sets = [inputs.rules]
     if args.compare_rules:  # the same features serve both rule sets
         rule_sets.append(load_ruleset(inputs.site, (args.rules or []) + args.compare_rules))
     check_whole_read(inputs.feed_path)  # before hashing it for the cache
     key = featurecache.key_for(inputs.feed_path, Path(inputs.site.source), inputs.registry_path, {
-        "freq_ghz": inputs.freq_ghz, "from": t_from, "to": t_to,
-        "time_zone": getattr(inputs.feed_layout, "time_zone", None)})
+        "from": t_from, "to": t_to,
+        "time_zone": getattr(inputs.feed_layout, "time_zone", None)},
+        code_paths=feature_source_paths(), features_version=FEATURES_VERSION)
     features = None if args.no_cache else featurecache.load(key)
     if features is None:
-        features = _compute_features(inputs, registry, t_from, t_to)
+        features = _compute_features(inputs, scenario, t_from, t_to)
         if not args.no_cache:
             featurecache.store(key, features)
-    base, *rest = replay_from_features(features, inputs.site, rule_sets, odds)
+    base, *rest = replay_from_features(features, scenario, rule_sets)
     other = rest[0] if rest else None
     times = base.times_utc
     hours = step_hours(times, inputs.site.feed.max_gap_min)
@@ -118,7 +122,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
     return 0
 
 
-def _compute_features(inputs, registry, t_from, t_to) -> pd.DataFrame:
+def _compute_features(inputs, scenario, t_from, t_to) -> pd.DataFrame:
     """Read the archive and compute the features of every observed row in the period."""
     feed = read_feed(inputs.feed_path, inputs.feed_layout)
     frame = feed.frame[feed.frame["kind"] == "observed"]
@@ -134,7 +138,7 @@ def _compute_features(inputs, registry, t_from, t_to) -> pd.DataFrame:
                          hint=f"the archive covers {feed.quality.first_time_utc} to {feed.quality.last_time_utc}")
     on_chunk, progress = _progress(len(times))
     try:
-        return replay_features(frame, times, inputs.site, registry, inputs.freq_ghz, on_chunk=on_chunk)
+        return replay_features(frame, times, scenario, on_chunk=on_chunk)
     finally:
         if progress:
             progress.stop()

@@ -247,16 +247,14 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     t_ns = _ns(times)
     step_ns = int(round(step_min * 6e10))
 
-    # the row each step reads (the last good one at or before it), its kind and issue time
-    good = used["good"].to_numpy(dtype=bool)
-    good_ns = _ns(used["time"])[good]
-    src = np.searchsorted(good_ns, t_ns, side="right") - 1
+    # the row each step reads (the last good one at or before it, from the features), its kind and issue time
+    src = f["source_row"].to_numpy()
     has_src = src >= 0
     src_safe = np.clip(src, 0, None)
     all_ns = _ns(used["time"])
     last_any = np.searchsorted(all_ns, t_ns, side="right") - 1      # any row, good or not: a bad row is no gap
     gap = (last_any < 0) | (t_ns - all_ns[np.clip(last_any, 0, None)] >= step_ns)
-    kinds = used["kind"].to_numpy()[good]
+    kinds = used["kind"].to_numpy()
     src_kind = np.where(has_src, kinds[src_safe] if len(kinds) else "", "").astype(object)
     beyond = np.zeros(n, dtype=bool)
     issued_list: tuple[pd.Timestamp, ...] = ()
@@ -266,9 +264,8 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
         issued_ns = np.where(issued.isna(), np.iinfo(np.int64).min, _ns(issued.fillna(pd.Timestamp(0, tz="UTC"))))
         known = ~issued.isna()
         issued_list = tuple(pd.DatetimeIndex(np.unique(issued_ns[known & fc_used]).astype("datetime64[ns]")).tz_localize("UTC"))
-        issued_good = issued_ns[good]
-        row_ns = good_ns[src_safe] if len(good_ns) else np.zeros(n, dtype=np.int64)
-        step_issued = issued_good[src_safe] if len(issued_good) else np.full(n, np.iinfo(np.int64).min)
+        row_ns = all_ns[src_safe] if len(all_ns) else np.zeros(n, dtype=np.int64)
+        step_issued = issued_ns[src_safe] if len(issued_ns) else np.full(n, np.iinfo(np.int64).min)
         beyond = (has_src & (src_kind == "forecast") & (step_issued != np.iinfo(np.int64).min)
                   & ((row_ns - step_issued) > int(fs.horizon_h * 3.6e12)))
 
@@ -283,12 +280,7 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
         steps[name] = f[name].to_numpy(dtype=float)
     data_good = verdict != "undetermined"
     windows, min_window, nxt = {}, {}, {}
-    blocked = {m: {} for m in METHODS}
-    for rule in rules:
-        if rule.effect == "block":
-            for m in METHODS:
-                if rule.applies(m):
-                    blocked[m][rule.id] = decisions.rule_eval.fired[rule.id]
+    blocked = {m: decisions.blocking(m) for m in METHODS}
     for method in METHODS:
         c = decisions.candidates[method]
         usable = c.feasible & data_good

@@ -17,6 +17,8 @@ import numpy as np
 import pandas as pd
 
 from advisor.vocabulary import LETTERS, VERDICTS
+from advisor.evaluation.evaluate import Scenario
+from advisor.features import row_features_chunked
 from advisor.io.history import History
 from advisor.rules.ruleset import RuleEvaluation
 
@@ -156,9 +158,6 @@ def compare_rule_sets(verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: Rule
     return {"hours_changed": round(float(hours[changed].sum()), 2), "transitions": transitions, "by_rule": by_rule}
 
 
-LOOKBACK = pd.Timedelta(hours=2)  # history a chunk needs for 10-min wind and 1-h temperature rate
-
-
 @dataclass(frozen=True)
 class Replayed:
     """Verdicts and rule firings at every evaluated time."""
@@ -177,43 +176,21 @@ def replay_verdicts(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, regi
 def replay_rule_sets(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rule_sets,
                      freq_ghz: float, odds=None, chunk_rows: int = 100_000, on_chunk=None) -> list[Replayed]:
     """Verdicts under every rule set of ``rule_sets``; the features are computed once for all."""
-    features = replay_features(frame, times_utc, site, registry, freq_ghz, chunk_rows, on_chunk)
-    return replay_from_features(features, site, rule_sets, odds)
+    scenario = Scenario(site, registry, rule_sets[0], freq_ghz, odds)
+    rows = replay_features(frame, times_utc, scenario, chunk_rows, on_chunk)
+    return replay_from_features(rows, scenario, rule_sets)
 
 
-def replay_features(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, freq_ghz: float,
+def replay_features(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, scenario: Scenario,
                     chunk_rows: int = 100_000, on_chunk=None) -> pd.DataFrame:
-    """Features at ``times_utc``, computed in chunks (bounded memory), each with the feed rows it needs.
+    """Row features at ``times_utc`` in chunks of bounded memory (:func:`advisor.features.row_features_chunked`).
 
-    ``on_chunk(done_rows, total_rows)`` is called after each chunk (for a progress bar).
+    The result does not depend on the target frequency (a cache of it serves every frequency).
     """
-    from advisor.features import compute_features
-
-    frame_ns = pd.DatetimeIndex(frame["time"]).as_unit("ns").asi8
-    t_ns = times_utc.as_unit("ns").asi8
-    parts = []
-    for start in range(0, len(t_ns), chunk_rows):
-        chunk = times_utc[start:start + chunk_rows]
-        lo = np.searchsorted(frame_ns, chunk[0].value - LOOKBACK.value, side="left")
-        hi = np.searchsorted(frame_ns, chunk[-1].value, side="right")
-        parts.append(compute_features(frame.iloc[lo:hi], chunk, site, registry, freq_ghz))
-        if on_chunk:
-            on_chunk(min(start + chunk_rows, len(t_ns)), len(t_ns))
-    if not parts:
-        return compute_features(frame.iloc[:0], times_utc, site, registry, freq_ghz)
-    return pd.concat(parts, ignore_index=True) if len(parts) > 1 else parts[0]
+    return row_features_chunked(frame, times_utc, scenario.site, scenario.registry, chunk_rows, on_chunk)
 
 
-def replay_from_features(features: pd.DataFrame, site, rule_sets, odds=None) -> list[Replayed]:
-    """Verdicts and rule firings under each rule set, from already computed features."""
-    from advisor.decision import decide
-    from advisor.features import columns_of
-
-    times = pd.DatetimeIndex(features["time"])
-    columns = columns_of(features)
-    p_usable = odds(features) if odds else None
-    out = []
-    for rules in rule_sets:
-        rule_eval = rules.evaluate(columns, len(features))
-        out.append(Replayed(times, decide(features, rule_eval, rules, site, p_usable).verdict, rule_eval))
-    return out
+def replay_from_features(rows: pd.DataFrame, scenario: Scenario, rule_sets=None) -> list[Replayed]:
+    """Verdicts and rule firings under each rule set (default: the scenario's), from row features."""
+    times = pd.DatetimeIndex(rows["time"])
+    return [Replayed(times, d.verdict, d.rule_eval) for d in scenario.decide(rows, rule_sets)]

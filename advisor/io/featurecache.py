@@ -6,8 +6,11 @@ archive row (sun, moisture, wind windows, reference, calibrators) do not depend 
 ``~/.cache/advisor``), keyed by a hash of everything they are computed from:
 
 * the bytes of the archive, the site file and the reference registry;
-* the frequency and the replayed period;
-* the advisor's version and the source of every module that computes features.
+* the replayed period and the feed layout;
+* the features' version and the source of every module that computes them (the caller passes
+  both: :data:`advisor.features.FEATURES_VERSION`, :func:`advisor.features.feature_source_paths`).
+
+The row features do not depend on the target frequency, so one entry serves every frequency.
 
 A change to any of these gives a new key, so an entry is never stale. Entries are plain
 ``.npz`` arrays (no pickle), written atomically; a damaged entry is removed and recomputed.
@@ -25,12 +28,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from advisor import __version__
-
 MAX_ENTRIES = 3
-#: Modules whose code decides the features: their source is part of every key.
-_FEATURE_CODE = ("features.py", "io/feed.py", "io/site.py", "io/references.py", "units.py",
-                 "physics/sun.py", "physics/sky.py", "physics/moisture.py", "physics/aperture.py")
 
 
 def cache_dir() -> Path:
@@ -50,16 +48,18 @@ def _hash_file(digest, path: Path | None) -> None:
             digest.update(block)
 
 
-def key_for(feed_path: Path, site_path: Path | None, registry_path: Path | None, settings: dict) -> str:
-    """The cache key of one replay's features."""
+def key_for(feed_path: Path, site_path: Path | None, registry_path: Path | None, settings: dict,
+            code_paths=(), features_version: int = 0) -> str:
+    """The cache key of one replay's features: inputs, settings, feature code and its version."""
     digest = hashlib.blake2b(digest_size=20)
     for path in (feed_path, site_path, registry_path):
         _hash_file(digest, path)
         digest.update(b"\0")
-    here = Path(__file__).resolve().parents[1]
-    for name in _FEATURE_CODE:
-        _hash_file(digest, here / name)
-    digest.update(json.dumps({"version": __version__, **settings}, sort_keys=True, default=str).encode())
+    for path in code_paths:
+        _hash_file(digest, Path(path))
+        digest.update(b"\0")
+    digest.update(json.dumps({"features_version": features_version, **settings}, sort_keys=True,
+                             default=str).encode())
     return digest.hexdigest()
 
 
