@@ -19,7 +19,7 @@ import pandas as pd
 
 from advisor.errors import AdvisorError
 from advisor.io.fileio import regular_file_size
-from advisor.model.inference import METHOD_LABELS
+from advisor.vocabulary import METHODS
 from advisor.io.site import CANONICAL_COLUMNS
 
 MAX_HISTORY_BYTES = 200_000_000
@@ -89,7 +89,7 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
         raise HistoryError(f"cannot read time {table['time'].iloc[i - 2]!r}", source=source, line=i, field="time",
                            hint="write ISO 8601, e.g. 2026-01-15T09:00:00Z")
     method = table["method"].str.strip().str.lower()
-    bad = ~method.isin(list(METHOD_LABELS))
+    bad = ~method.isin(list(METHODS))
     if bad.any():
         i = line_of(bad)
         raise HistoryError(f"method {table['method'].iloc[i - 2]!r} is neither 'scan' nor 'astronomical'",
