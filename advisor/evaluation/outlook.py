@@ -194,7 +194,7 @@ def _sun_events(times: pd.DatetimeIndex, sun_el: np.ndarray, step_min: float) ->
                          "step": step})
 
 
-def _spans(times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, np.ndarray],
+def _spans(times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, dict[str, np.ndarray]],
            step_min: float) -> pd.DataFrame:
     """Runs of one category (a verdict, or ``gap``) with the blocking rules that fired in each."""
     n = len(category)
@@ -257,7 +257,7 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     if "issued_utc" in used and fc_used.any():
         issued = pd.DatetimeIndex(used["issued_utc"])
         issued_ns = np.where(issued.isna(), np.iinfo(np.int64).min, _ns(issued.fillna(pd.Timestamp(0, tz="UTC"))))
-        known = ~issued.isna()
+        known = ~np.asarray(issued.isna())
         issued_list = tuple(pd.DatetimeIndex(np.unique(issued_ns[known & fc_used]).astype("datetime64[ns]")).tz_localize("UTC"))
         issued_good = issued_ns[good]
         row_ns = good_ns[src_safe] if len(good_ns) else np.zeros(n, dtype=np.int64)
@@ -276,7 +276,7 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
         steps[name] = f[name].to_numpy(dtype=float)
     data_good = verdict != "undetermined"
     windows, min_window, nxt = {}, {}, {}
-    blocked = {m: {} for m in METHODS}
+    blocked: dict[str, dict[str, np.ndarray]] = {m: {} for m in METHODS}
     for rule in rules:
         if rule.effect == "block":
             for m in METHODS:

@@ -16,6 +16,7 @@ from advisor.evaluation.outlook import Outlook
 from advisor.evaluation.windows import window_dict
 from advisor.views.context import CAUTIONS, Context
 from advisor.views.jsondoc import json_number
+from advisor.views.outlook_parts import rows_of
 from advisor.vocabulary import METHODS, VERDICTS
 
 OUTLOOK_SCHEMA_VERSION = 1
@@ -60,7 +61,7 @@ def outlook_json(outlook: Outlook, ctx: Context) -> dict:
     spans = [{"verdict": "undetermined" if r.category == "gap" else r.category, "gap": r.category == "gap",
               "start_utc": r.start_utc.strftime("%Y-%m-%dT%H:%M:%SZ"), "end_utc": r.end_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
               "steps": int(r.steps), **{f"{m}_blocked_by": list(getattr(r, f"{m}_blocked_by")) for m in METHODS}}
-             for r in outlook.spans.itertuples(index=False)]
+             for r in rows_of(outlook.spans)]
     counts = {v: int((outlook.steps["verdict"] == v).sum()) for v in VERDICTS}
     counts["gap"] = int(outlook.steps["gap"].sum())
     return {

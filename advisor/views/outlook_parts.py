@@ -12,6 +12,7 @@ Nothing is computed here beyond formatting: the outlook is finished before it is
 
 from __future__ import annotations
 
+from typing import Any, Iterator
 from zoneinfo import ZoneInfo
 
 import numpy as np
@@ -25,6 +26,11 @@ from advisor.vocabulary import METHOD_LABEL, METHODS, VERDICT
 WIDE_TABLE_MIN = 130
 WINDOW_HEADERS = ("method", "from (local)", "to (local)", "from (UTC)", "length", "wind max", "gust max",
                   "spread min", "mean η", "advised", "note")
+
+
+def rows_of(table: pd.DataFrame) -> Iterator[Any]:
+    """The rows of a table as named tuples (one attribute per column)."""
+    return table.itertuples(index=False)
 
 
 def fmt_local(ts: pd.Timestamp, tz: str, with_date: bool = True) -> str:
@@ -65,10 +71,10 @@ def sun_text(outlook: Outlook) -> str:
 def window_rows(outlook: Outlook) -> list[tuple[str, ...]]:
     """One row of text per window (columns: :data:`WINDOW_HEADERS`)."""
     tz = outlook.site.time_zone
-    rows = []
+    rows: list[tuple[str, ...]] = []
     for method in METHODS:
         table = outlook.windows[method]
-        for w in table.itertuples(index=False):        # one row per window, not per step
+        for w in rows_of(table):        # one row per window, not per step
             note = []
             if w.beyond_horizon:
                 note.append("beyond horizon")
@@ -94,7 +100,7 @@ def window_list_lines(outlook: Outlook) -> list[str]:
     tz = outlook.site.time_zone
     lines = []
     for method in METHODS:
-        for w in outlook.windows[method].itertuples(index=False):   # one entry per window
+        for w in rows_of(outlook.windows[method]):   # one entry per window
             notes = (["beyond the forecast horizon"] if w.beyond_horizon else []) + (
                 ["may run past the outlook"] if w.open_end else [])
             lines.append(f"  {METHOD_LABEL[method]:<13}{when_text(w.start_utc, w.end_utc, tz)}, {length_text(w.length_min)}")
@@ -138,7 +144,7 @@ def span_lines(outlook: Outlook, limit: int = 12) -> list[str]:
     tz = outlook.site.time_zone
     sp = outlook.spans
     out = []
-    for row in sp.head(limit).itertuples(index=False):   # one line per span of one verdict
+    for row in rows_of(sp.head(limit)):   # one line per span of one verdict
         gap = row.category == "gap"
         what = "no forecast (gap)" if gap else VERDICT[row.category].words
         letter = GAP_LETTER if gap else VERDICT[row.category].letter

@@ -24,13 +24,13 @@ METHOD_STYLE = {"scan": "green", "astronomical": "cyan"}
 def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     """The rich view: a panel with the coloured strip, the windows table and the next windows."""
     from rich import box
-    from rich.console import Group
+    from rich.console import Group, RenderableType
     from rich.panel import Panel
     from rich.table import Table
     from rich.text import Text
 
     head = header_lines(outlook, ctx)
-    parts = [Text(ctx.site_name, style="bold")] + [Text(line) for line in head[1:]]
+    parts: list[RenderableType] = [Text(ctx.site_name, style="bold"), *(Text(line) for line in head[1:])]
     if ctx.is_demo:
         parts.append(Text(DEMO_BANNER, style="bold magenta"))
     for note in (*ctx.notes, *outlook.notes):
@@ -49,8 +49,8 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     rows = window_rows(outlook)
     if rows and width < WIDE_TABLE_MIN:
         for line in window_list_lines(outlook):
-            head = line.lstrip()
-            style = next((METHOD_STYLE[m] for m, label in METHOD_LABEL.items() if head.startswith(label)), "dim")
+            lead = line.lstrip()
+            style = next((METHOD_STYLE[m] for m, label in METHOD_LABEL.items() if lead.startswith(label)), "dim")
             parts.append(Text(line, style=style))
     elif rows:
         table = Table(box=box.SIMPLE_HEAD, pad_edge=False, expand=False)

@@ -78,7 +78,7 @@ def strip_lines(outlook: Outlook, width: int) -> list[list[tuple[str, str | None
         ticks = np.flatnonzero(is_tick[a:b])
         if len(ticks) == 0 or ticks[0] >= 6:                # label the block's first cell too ("HH:MM ")
             ticks = np.concatenate(([0], ticks))
-        for k in ticks:                                  # a few ticks per block
+        for k in (int(t) for t in ticks):                # a few ticks per block
             ts_l, ts_u = local[a + k], times[a + k]
             label = f"{ts_l.day} {ts_l:%b}" if minute_of_day[a + k] == 0 else f"{ts_l:%H:%M}"
             if k <= last_end or k + len(label) > w:
@@ -113,7 +113,9 @@ def legend_entries(outlook: Outlook) -> list[list[tuple[str, str | None]]]:
 
 def wrap_entries(entries, width: int, plain: bool = True):
     """Legend entries packed into lines of at most ``width`` columns (an entry is never split)."""
-    lines, current, used = [], [], 0
+    lines: list[list[tuple[str, str | None]]] = []
+    current: list[tuple[str, str | None]] = []
+    used = 0
     for entry in entries:
         size = sum(len(t) for t, _ in entry)
         if current and used + 3 + size > width:

@@ -23,13 +23,13 @@ EFFECT_STYLE = {"block": "red", "warn": "yellow", "add_error": "magenta", "info"
 def render_panel(call: Call, ctx: Context) -> Panel:
     """The terminal view: verdict first, then candidates, reasons, key features, cautions."""
     from rich import box
-    from rich.console import Group
+    from rich.console import Group, RenderableType
     from rich.panel import Panel
     from rich.table import Table
     from rich.text import Text
 
     verdict = VERDICT[call.verdict]
-    parts = []
+    parts: list[RenderableType] = []
     head = Text()
     head.append(f" {verdict.label} ", style=verdict.style)
     head.append(f"  {call.headline}")
