@@ -2,7 +2,7 @@
 
     METHODS            ("scan", "astronomical")
     VERDICTS           the four calls, in the order every table lists them
-    VERDICT[v]         letter, screen label, style and exit status of one call
+    VERDICT[v]         letter, screen label, style, exit status and legend words of one call
     METHOD_LABEL[m]    how a method is called in text ("laser scan")
     EFFECTS            what a rule may do (block | warn | add_error) and how each view says it
 
@@ -33,15 +33,17 @@ class Verdict:
     style: str           # rich style of the headline badge
     exit_status: int     # exit status of ``advisor check``
     meaning: str         # one line for --help and the README
+    words: str           # a few words for legends ("scan now")
 
 
 _VERDICT_LIST = (
-    Verdict("scan", "S", "SCAN NOW", "bold black on green", 0, "take a laser scan now"),
+    Verdict("scan", "S", "SCAN NOW", "bold black on green", 0, "take a laser scan now", "scan now"),
     Verdict("astronomical", "A", "ASTRONOMICAL", "bold black on cyan", 10,
-            "use the astronomical method (holography on a calibrator)"),
-    Verdict("postpone", "P", "POSTPONE", "bold black on yellow", 11, "neither method is worth doing now"),
+            "use the astronomical method (holography on a calibrator)", "astronomical method"),
+    Verdict("postpone", "P", "POSTPONE", "bold black on yellow", 11, "neither method is worth doing now",
+            "postpone"),
     Verdict("undetermined", "U", "UNDETERMINED", "bold white on red", 12,
-            'data missing, stale or implausible (never "scan")'),
+            'data missing, stale or implausible (never "scan")', "undetermined (data bad)"),
 )
 VERDICT: dict[str, Verdict] = {v.name: v for v in _VERDICT_LIST}
 VERDICTS: tuple[str, ...] = tuple(VERDICT)

@@ -58,10 +58,12 @@ def main(argv=None) -> int:
 
     from advisor.commands.main import load_ruleset
     from advisor.io.feed import canonical_frame
-    from advisor.evaluation.outlook import compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
-        render_plain_outlook
+    from advisor.evaluation.outlook import compute_outlook
     from advisor.io.references import read_registry
-    from advisor.views.render import Context
+    from advisor.views.context import Context
+    from advisor.views.outlook_data import outlook_csv_frame, outlook_json
+    from advisor.views.outlook_plain import render_plain_outlook
+    from advisor.views.outlook_rich import outlook_renderable
     from advisor.io.site import load_site
 
     md = _make_demo()

@@ -22,8 +22,9 @@ import pytest
 from advisor.decision import VERDICTS
 from advisor.errors import SiteError
 from advisor.io.feed import canonical_frame
-from advisor.evaluation.outlook import apply_forecast_margins, combine_frames, compute_outlook, render_plain_outlook
-from advisor.views.render import Context
+from advisor.evaluation.outlook import apply_forecast_margins, combine_frames, compute_outlook
+from advisor.views.outlook_plain import render_plain_outlook
+from advisor.views.context import Context
 from advisor.io.site import FeedLayout, load_site
 
 from .conftest import NIGHT_UTC, registry_at, weather_table, run_cli

@@ -20,7 +20,8 @@ import pytest
 
 from advisor.commands.main import main
 from advisor.decision import EXIT_CODES
-from advisor.evaluation.tick import EXIT_BUSY, EXIT_STATE_DIR, TickState, track_change
+from advisor.evaluation.advisory import TickState, track_change
+from advisor.io.statedir import EXIT_BUSY, EXIT_STATE_DIR
 
 from .conftest import NIGHT_UTC, weather_table
 

@@ -22,7 +22,7 @@ from pathlib import Path
 import pytest
 
 from advisor.commands.main import main
-from advisor.evaluation.tick import EXIT_STATE_DIR
+from advisor.io.statedir import EXIT_STATE_DIR
 
 from .test_tick import ROOT, history, make_site, tick_argv
 
@@ -62,7 +62,8 @@ def primed(tmp_path, capsys):
 FORKER = """
 import json, os, sys
 from advisor.commands.main import main
-import advisor.commands.tick, advisor.evaluation.tick, advisor.views.render, rich.console
+import advisor.commands.tick, advisor.evaluation.advisory, advisor.io.statedir, advisor.io.notify
+import advisor.views.advisory, advisor.views.jsondoc, advisor.views.panel, advisor.views.plain, rich.console
 jobs, outdir = json.loads(sys.argv[1]), sys.argv[2]
 pids = []
 for i, argv in enumerate(jobs):

@@ -178,7 +178,7 @@ class CheckResult:
 
 def run_check(args: argparse.Namespace) -> CheckResult:
     """Load inputs, evaluate at ``--at`` and explain; shared by ``check`` and other commands."""
-    from advisor.views.render import Context
+    from advisor.views.context import Context
 
     inputs = load_inputs(args, tail_bytes=CHECK_TAIL_BYTES)
     at = _evaluation_time(args, inputs)
@@ -207,7 +207,9 @@ def run_check(args: argparse.Namespace) -> CheckResult:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    from advisor.views.render import render_panel, render_plain, to_json_dict
+    from advisor.views.jsondoc import to_json_dict
+    from advisor.views.panel import render_panel
+    from advisor.views.plain import render_plain
 
     result = run_check(args)
     if args.json:

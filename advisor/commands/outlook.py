@@ -3,17 +3,16 @@
     advisor outlook [--feed FEED] [--forecast FILE] --freq 86 [--from T] [--hours 24]
                     [--min-duration-min N] [--json | --csv] [--svg FILE]  (+ every option of check)
 
-The shell around :mod:`advisor.evaluation.outlook`: loads the inputs exactly as ``check`` does, adds the
-forecast file (``--forecast``, or the site's ``forecast.path`` when the site's own feed is
-read) and the forecast rows' issue times, then prints one of the views.  Exit status 0 when
-an outlook was printed, 2 on bad input.
+The shell around :mod:`advisor.evaluation.outlook` and its views (``advisor.views.outlook_*``):
+loads the inputs exactly as ``check`` does, adds the forecast file (``--forecast``, or the
+site's ``forecast.path`` when the site's own feed is read) and the forecast rows' issue times,
+then prints one of the views. Exit status 0 when an outlook was printed, 2 on bad input.
 """
 
 from __future__ import annotations
 
 import argparse
 import json
-import os
 import shutil
 import sys
 from dataclasses import replace
@@ -84,26 +83,15 @@ def _svg_target(text: str | None) -> Path | None:
     return path
 
 
-def _svg_text(outlook, ctx) -> str:
-    from rich.console import Console
-
-    from advisor.evaluation.outlook import LABEL_W, outlook_renderable
-
-    width = int(min(200, max(100, LABEL_W + len(outlook.steps) + 4)))
-    console = Console(record=True, width=width, file=open(os.devnull, "w"), force_terminal=True,
-                      color_system="truecolor")
-    console.print(outlook_renderable(outlook, ctx, width))
-    console.file.close()
-    return console.export_svg(title=f"advisor outlook · {ctx.site_name}")
-
-
 def cmd_outlook(args: argparse.Namespace) -> int:
     from advisor.commands.main import _want_color, load_inputs, parse_at
     from advisor.io.feed import read_feed
-    from advisor.evaluation.outlook import combine_frames, compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
-        render_plain_outlook
+    from advisor.evaluation.outlook import combine_frames, compute_outlook
     from advisor.io.references import read_registry
-    from advisor.views.render import Context
+    from advisor.views.context import Context
+    from advisor.views.outlook_data import outlook_csv_frame, outlook_json
+    from advisor.views.outlook_plain import render_plain_outlook
+    from advisor.views.outlook_rich import outlook_renderable, outlook_svg
 
     hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0)
     min_dur = _positive_number(args.min_duration_min, "--min-duration-min", 0.0, 7 * 1440.0, None)
@@ -144,7 +132,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
     ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=" + ".join(sources),
                   is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
 
-    svg_text = _svg_text(outlook, ctx) if svg is not None else None
+    svg_text = outlook_svg(outlook, ctx) if svg is not None else None
     if args.json:
         print(json.dumps(outlook_json(outlook, ctx), indent=2, allow_nan=False))
     elif args.csv:

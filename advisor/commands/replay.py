@@ -19,8 +19,8 @@ from advisor.errors import UsageError
 from advisor.io.feed import check_whole_read, read_feed
 from advisor.io.references import read_registry
 from advisor.io.history import read_history
-from advisor.evaluation.replay import (LETTERS, attempts_from_history, compare_rule_sets, dominant_letters, hours_by, month_keys, replay_features, replay_from_features,
-                     score_attempts, step_hours)
+from advisor.evaluation.replay import (attempts_from_history, compare_rule_sets, dominant_by_month_hour, hours_by,
+                                       month_keys, replay_features, replay_from_features, score_attempts, step_hours)
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
 
@@ -118,7 +118,11 @@ def cmd_replay(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(summary, indent=2, allow_nan=False))
     else:
-        _print_summary(summary, base.verdict, hours, local)
+        from rich.console import Console
+
+        from advisor.views.replay import replay_renderable
+
+        Console(highlight=False).print(replay_renderable(summary, dominant_by_month_hour(base.verdict, hours, local)))
     return 0
 
 
@@ -162,81 +166,3 @@ def _write_csv(path: str, times: pd.DatetimeIndex, verdict: np.ndarray, verdict_
         atomic_write_text(path, out.to_csv(index=False))
     except OSError as exc:
         raise UsageError(f"cannot write {path}: {exc.strerror}", field="--csv") from None
-
-
-def _print_summary(summary: dict, verdict: np.ndarray, hours: np.ndarray, local: pd.DatetimeIndex) -> None:
-    from rich import box
-    from rich.console import Console
-    from rich.table import Table
-    from rich.text import Text
-
-    from advisor.views.render import VERDICT_STYLE
-
-    console = Console(highlight=False)
-    total = sum(summary["hours"].values()) or 1.0
-    console.print(f"Replay of {summary['feed']}")
-    console.print(f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
-                  f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules")
-    line = Text("Hours per verdict: ")
-    line.append(", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS))
-    console.print(line)
-
-    months = Table(title="Hours per month (site local time)", box=box.SIMPLE_HEAD, title_justify="left")
-    months.add_column("month")
-    for v in VERDICTS:
-        months.add_column(v, justify="right")
-    for month, row in summary["by_month"].items():
-        months.add_row(month, *(f"{row[v]:.1f}" for v in VERDICTS))
-    console.print(months)
-
-    # Heat strip: one line per month, one cell per local hour, the dominant verdict's letter.
-    strip = Text("Dominant verdict by local hour of day\n", style="bold")
-    for v in VERDICTS:
-        strip.append(f" {LETTERS[v]} ", style=VERDICT_STYLE[v][1])
-        strip.append(f" {v}  ")
-    strip.append("\n")
-    strip.append("         " + "".join(f"{h:<3d}" for h in range(0, 24, 3)).rstrip() + "\n", style="dim")
-    months_key = month_keys(local)
-    for month in summary["by_month"]:
-        mask = np.asarray(months_key == month)
-        table = hours_by(verdict[mask], hours[mask], local.hour[mask]).reindex(range(24), fill_value=0.0)
-        strip.append(f"{month}  ")
-        for letter in dominant_letters(table):
-            style = next((VERDICT_STYLE[v][1] for v, lt in LETTERS.items() if lt == letter), "dim")
-            strip.append(letter, style=style)
-        strip.append("\n")
-    console.print(strip)
-
-    attempts = summary["attempts"]
-    if attempts:
-        console.print(Text("Against recorded attempts", style="bold underline"))
-        console.print(f"  {attempts['scan_attempts']} scan attempts covered by the archive; scan advised at "
-                      f"{attempts['scan_advised_at_attempts']}")
-        console.print(f"  false go (scan advised, scan failed): {attempts['false_go']} "
-                      f"(rate {_pct(attempts['false_go_rate'])})")
-        console.print(f"  missed (usable scan, advice not scan): {attempts['usable_scans_not_advised']} "
-                      f"(rate {_pct(attempts['missed_rate'])})")
-        if attempts["per_rule"]:
-            rules = Table(box=box.SIMPLE_HEAD)
-            for h in ("rule", "scans when fired", "failed", "false go", "missed"):
-                rules.add_column(h, justify="left" if h == "rule" else "right", no_wrap=True)
-            for r in attempts["per_rule"]:
-                rules.add_row(r["rule"], str(r["scan_attempts_when_fired"]), str(r["failed_when_fired"]),
-                              str(r["false_go_when_fired"]), str(r["missed_when_fired"]))
-            console.print(rules)
-    comparison = summary["comparison"]
-    if comparison:
-        console.print(Text("Compared rule set", style="bold underline"))
-        console.print(f"  {comparison['hours_changed']:.1f} h change verdict")
-        for t in comparison["transitions"]:
-            console.print(f"    {t['from']} → {t['to']}: {t['hours']:.1f} h")
-        for r in comparison["by_rule"]:
-            console.print(f"    by {r['rule']}: {r['hours_changed']:.1f} h")
-        if "attempts_b" in comparison and attempts:
-            b = comparison["attempts_b"]
-            console.print(f"  false-go rate {_pct(attempts['false_go_rate'])} → {_pct(b['false_go_rate'])}; "
-                          f"missed rate {_pct(attempts['missed_rate'])} → {_pct(b['missed_rate'])}")
-
-
-def _pct(rate) -> str:
-    return "n/a" if rate is None else f"{rate:.0%}"

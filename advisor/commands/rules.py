@@ -215,7 +215,7 @@ def cmd_show(args: argparse.Namespace) -> int:
 def cmd_explain(args: argparse.Namespace) -> int:
     """Every rule's condition at one instant, with the numbers behind it."""
     from advisor.commands.main import run_check
-    from advisor.views.render import VERDICT_STYLE
+    from advisor.vocabulary import VERDICT
 
     result = run_check(args)
     call, rules = result.call, result.inputs.rules
@@ -224,7 +224,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     out = _Out()
     when = call.time_utc.strftime("%Y-%m-%d %H:%M UTC")
     out.line(f"rules at {when} · {result.ctx.site_name} · {call.freq_ghz:g} GHz")
-    out.line(f"verdict: {VERDICT_STYLE[call.verdict][0]} — {call.headline}")
+    out.line(f"verdict: {VERDICT[call.verdict].label} — {call.headline}")
     if result.inputs.is_demo:
         out.line(DEMO_BANNER)
     evaluated = []

@@ -1,7 +1,7 @@
 """``advisor tick``: the cron/systemd-timer command, quiet unless the advice changes.
 
 Evaluates like ``check`` (every ``check`` option; default feed: the site's), keeps the result in
-``--state-dir`` (see :mod:`advisor.evaluation.tick`), prints to stdout only when the verdict changed (or,
+``--state-dir`` (see :mod:`advisor.io.statedir`; what changed: :mod:`advisor.evaluation.advisory`), prints to stdout only when the verdict changed (or,
 with ``--notify-on-reasons``, the reason set), runs the site's notify command on change, and
 exits with ``check``'s status.  A missing, empty or unreadable feed is an undetermined advisory
 (not an input error), so the status page never keeps showing an old call.
@@ -75,7 +75,7 @@ def _without_feed(args, error):
     from advisor.decision import EXIT_CODES, Reason, explain
     from advisor.evaluation.evaluate import evaluate
     from advisor.io.references import read_registry
-    from advisor.views.render import Context
+    from advisor.views.context import Context
     from advisor.io.site import load_site
 
     freq = parse_frequency_ghz(args.freq)
@@ -112,9 +112,17 @@ def _warn(message: str) -> None:
 
 
 def cmd_tick(args) -> int:
-    from advisor.evaluation import tick as T
+    from datetime import datetime, timezone
+
     from advisor.commands.main import _want_color
-    from advisor.views.render import render_panel, render_plain, to_json_dict
+    from advisor.evaluation import advisory
+    from advisor.io import notify, statedir
+    from advisor.views.advisory import advisory_html, advisory_json, advisory_title, issued_line
+    from advisor.views.context import with_note
+    from advisor.views.jsondoc import to_json_dict
+    from advisor.views.panel import render_panel
+    from advisor.views.plain import render_plain
+    from advisor.vocabulary import VERDICT
 
     if not args.lock_wait >= 0:
         from advisor.errors import UsageError
@@ -122,28 +130,28 @@ def cmd_tick(args) -> int:
         raise UsageError(f"--lock-wait {args.lock_wait:g} must be zero or more seconds", field="--lock-wait")
     state_dir = Path(args.state_dir)
     try:
-        with T.locked(state_dir, args.lock_wait):
-            leftovers = T.remove_leftover_temps(state_dir)
+        with statedir.locked(state_dir, args.lock_wait):
+            leftovers = statedir.remove_leftover_temps(state_dir)
             if leftovers:
                 _warn(f"{state_dir}: removed {len(leftovers)} temp file(s) left by an interrupted run")
             result = _evaluate(args)
             call, site = result.call, result.inputs.site
-            now = T.now_utc()
-            previous, warning = T.read_state(state_dir, now)
+            now = datetime.now(timezone.utc)
+            previous, warning = statedir.read_state(state_dir, now, advisory.parse_state)
             if warning:
                 _warn(warning)
-            change = T.track_change(previous, call.verdict, T.reason_set(call.reasons), T.utc_text(now),
-                                    site.tick.dead_feed_ticks, args.notify_on_reasons)
-            ctx = T.with_note(result.ctx, T.dead_feed_note(change))
-            doc = T.advisory_json(to_json_dict(call, ctx, result.status), change)
-            text = T.issued_line(change) + "\n" + render_plain(call, ctx)
+            change = advisory.track_change(previous, call.verdict, advisory.reason_set(call.reasons),
+                                           advisory.utc_text(now), site.tick.dead_feed_ticks, args.notify_on_reasons)
+            ctx = with_note(result.ctx, advisory.dead_feed_note(change))
+            doc = advisory_json(to_json_dict(call, ctx, result.status), change)
+            text = issued_line(change) + "\n" + render_plain(call, ctx)
             panel = render_panel(call, ctx)
-            title = f"{T.VERDICT_STYLE[call.verdict][0]} · {site.name} · advisor"
+            title = advisory_title(call.verdict, site.name)
             html_panel = render_panel(call, result.ctx)  # the page shows the dead-feed note as a banner
             files = {
                 "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
                 "advisory.txt": text,
-                "advisory.html": T.advisory_html(html_panel, change, title, site.feed.max_feed_age_min),
+                "advisory.html": advisory_html(html_panel, change, title, site.feed.max_feed_age_min),
                 "state.json": json.dumps(change.state.as_dict(), indent=2) + "\n",
             }
             record = {"issued_utc": change.state.issued_utc, "time_utc": doc["time_utc"], "verdict": call.verdict,
@@ -151,19 +159,19 @@ def cmd_tick(args) -> int:
                       "data_age_min": doc["data_quality"].get("data_age_min"),
                       "target_freq_ghz": call.freq_ghz, "undetermined_ticks": change.state.undetermined_ticks,
                       "pid": os.getpid()}
-            for warning in T.publish(state_dir, files, record, site.tick.history_max_bytes):
+            for warning in statedir.publish(state_dir, files, record, site.tick.history_max_bytes):
                 _warn(warning)
-    except T.Busy as exc:
+    except statedir.Busy as exc:
         print(f"advisor: busy: {exc.one_line()}", file=sys.stderr)
-        return T.EXIT_BUSY
-    except T.StateDirError as exc:
+        return statedir.EXIT_BUSY
+    except statedir.StateDirError as exc:
         print(f"advisor: error: {exc.one_line()}", file=sys.stderr)
-        return T.EXIT_STATE_DIR
+        return statedir.EXIT_STATE_DIR
 
     announce = change.kind is not None
     if announce or args.always:
         headline = change.headline if announce else (
-            f"advisor tick: no change: {T.VERDICT_STYLE[call.verdict][0]} since {T.short_utc(change.state.since_utc)}")
+            f"advisor tick: no change: {VERDICT[call.verdict].label} since {advisory.short_utc(change.state.since_utc)}")
         if args.json:
             print(json.dumps({**doc, "change": change.kind, "headline": headline}, indent=2, allow_nan=False))
         elif _want_color(sys.stdout):
@@ -183,7 +191,7 @@ def cmd_tick(args) -> int:
         env = {"ADVISOR_VERDICT": call.verdict, "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
                "ADVISOR_CHANGE": change.kind, "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
                "ADVISOR_STATE_DIR": str(state_dir.resolve())}
-        problem = T.run_notify(argv, payload, site.tick.notify_timeout_s, env)
+        problem = notify.run_notify(argv, payload, site.tick.notify_timeout_s, env)
         if problem:
             _warn(problem)
     return result.status

@@ -1,11 +1,11 @@
-"""Outlook: the call at every forecast step, the windows for each method, and their views.
+"""Outlook: the call at every forecast step and the windows for each method.
 
     frame = combine_frames(feed_frame, forecast_frame)     # one canonical frame; observed wins ties
     outlook = compute_outlook(frame, start_utc, hours, site, registry, rules, freq_ghz, odds=None,
                               min_duration_min=None)      # pure: arrays in, Outlook out
     nxt = next_windows_after(frame, at_utc, site, registry, rules, freq_ghz)   # for ``check``
-    render_plain_outlook(outlook, ctx, width) / outlook_renderable(outlook, ctx, width)
-    outlook_json(outlook, ctx) / outlook_csv_frame(outlook)
+
+Its views (plain text, rich panel, SVG, JSON, CSV) are in :mod:`advisor.views` (``outlook_*``).
 
 The steps are a regular grid at the forecast's own spacing (its median row interval), from
 ``start_utc`` for ``hours``.  Every step goes through the same vectorised path as ``check``
@@ -22,34 +22,27 @@ at least the method's duration plus ``forecast.settling_min`` long.  A step at `
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
-from zoneinfo import ZoneInfo
 
 import numpy as np
 import pandas as pd
 
 from advisor.catalogue import STEP_FEATURES
 from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG
-from advisor.vocabulary import DEMO_BANNER, LETTERS, METHOD_LABEL, METHODS, VERDICTS
+from advisor.vocabulary import METHODS
 from advisor.errors import FeedError
 from advisor.physics.moisture import relative_humidity_pct
 from advisor.evaluation.evaluate import OddsFunction, evaluate
 from advisor.io.references import Registry
 from advisor.rules.ruleset import RuleSet
 from advisor.io.site import Site
-from advisor.evaluation.windows import find_windows, next_window, window_dict
+from advisor.evaluation.windows import find_windows, next_window
 
-OUTLOOK_SCHEMA_VERSION = 1
 #: How far ``check`` looks ahead for the next window when its feed carries future rows [h].
 NEXT_WINDOW_LOOKAHEAD_H = 48.0
 SUNRISE_SUNSET_ELEVATION_DEG = SUNRISE_SUNSET_ALTITUDE_DEG
-#: One letter per verdict, so the strip reads without colour; ``?`` marks a gap.
-VERDICT_LETTER = LETTERS
+#: How a gap (a step without a forecast row) is shown in the strip; the notes name it.
 GAP_LETTER = "?"
-VERDICT_WORDS = {"scan": "scan now", "astronomical": "astronomical method", "postpone": "postpone",
-                 "undetermined": "undetermined (data bad)"}
-STEP_COLUMNS = STEP_FEATURES
 
 
 @dataclass(frozen=True)
@@ -201,7 +194,7 @@ def _sun_events(times: pd.DatetimeIndex, sun_el: np.ndarray, step_min: float) ->
                          "step": step})
 
 
-def _spans(times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, np.ndarray],
+def _spans(times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, dict[str, np.ndarray]],
            step_min: float) -> pd.DataFrame:
     """Runs of one category (a verdict, or ``gap``) with the blocking rules that fired in each."""
     n = len(category)
@@ -262,7 +255,7 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     if "issued_utc" in used and fc_used.any():
         issued = pd.DatetimeIndex(used["issued_utc"])
         issued_ns = np.where(issued.isna(), np.iinfo(np.int64).min, _ns(issued.fillna(pd.Timestamp(0, tz="UTC"))))
-        known = ~issued.isna()
+        known = ~np.asarray(issued.isna())
         issued_list = tuple(pd.DatetimeIndex(np.unique(issued_ns[known & fc_used]).astype("datetime64[ns]")).tz_localize("UTC"))
         row_ns = all_ns[src_safe] if len(all_ns) else np.zeros(n, dtype=np.int64)
         step_issued = issued_ns[src_safe] if len(issued_ns) else np.full(n, np.iinfo(np.int64).min)
@@ -276,7 +269,7 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
 
     steps = pd.DataFrame({"time": times, "verdict": verdict, "gap": gap, "beyond_horizon": beyond,
                           "source": np.where(gap, "none", src_kind).astype(object)})
-    for name in STEP_COLUMNS:
+    for name in STEP_FEATURES:
         steps[name] = f[name].to_numpy(dtype=float)
     data_good = verdict != "undetermined"
     windows, min_window, nxt = {}, {}, {}
@@ -351,459 +344,3 @@ def next_windows_after(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, re
     if int((t > at_ns).sum()) < 2:
         return None
     return compute_outlook(frame, at_utc, lookahead_h, site, registry, rules, freq_ghz, odds).next_window
-
-
-# --- views ---------------------------------------------------------------------------------
-LABEL_W = 6
-TICK_CHOICES_MIN = (10, 15, 20, 30, 60, 120, 180, 240, 360, 720, 1440)
-MIN_TICK_CELLS = 7
-
-
-def _style_of(verdict: str) -> str:
-    from advisor.views.render import VERDICT_STYLE
-
-    return VERDICT_STYLE[verdict][1]
-
-
-GAP_STYLE = "bold white on grey35"
-
-
-def _fmt_local(ts: pd.Timestamp, tz: str, with_date: bool = True) -> str:
-    local = ts.tz_convert(ZoneInfo(tz))
-    return f"{local.day} {local:%b %H:%M}" if with_date else f"{local:%H:%M}"
-
-
-def _fmt_utc(ts: pd.Timestamp, with_date: bool = True) -> str:
-    return f"{ts.day} {ts:%b %H:%M}" if with_date else f"{ts:%H:%M}"
-
-
-def _tz_abbrev(ts: pd.Timestamp, tz: str) -> str:
-    return ts.tz_convert(ZoneInfo(tz)).strftime("%Z")
-
-
-def _length_text(minutes: float) -> str:
-    minutes = int(round(minutes))
-    h, m = divmod(minutes, 60)
-    return f"{h} h {m:02d} min" if h else f"{m} min"
-
-
-def _tick_minutes(step_min: float) -> int:
-    for choice in TICK_CHOICES_MIN:
-        if choice % step_min < 1e-9 and choice / step_min >= MIN_TICK_CELLS:
-            return choice
-    return int(math.ceil(MIN_TICK_CELLS * step_min / 60.0) * 60)
-
-
-def strip_lines(outlook: Outlook, width: int) -> list[list[tuple[str, str | None]]]:
-    """The timeline strip as lines of (text, style) segments, wrapped to ``width`` columns.
-
-    Per block: the local-time axis, the cells (one letter per step), the UTC axis and the sun
-    row (``·`` night, ``↑`` sunrise, ``↓`` sunset).
-    """
-    steps = outlook.steps
-    tz = outlook.site.time_zone
-    n = len(steps)
-    times = pd.DatetimeIndex(steps["time"])
-    local = times.tz_convert(ZoneInfo(tz))
-    tick_min = _tick_minutes(outlook.step_min)
-    tick_cells = max(1, int(round(tick_min / outlook.step_min)))
-    minute_of_day = local.hour * 60 + local.minute
-    is_tick = ((minute_of_day % tick_min) == 0) & (local.second == 0)
-    avail = max(tick_cells, width - LABEL_W)
-    per_row = max(tick_cells, (avail // tick_cells) * tick_cells)
-
-    verdict = steps["verdict"].to_numpy()
-    gap = steps["gap"].to_numpy(dtype=bool)
-    beyond = steps["beyond_horizon"].to_numpy(dtype=bool)
-    letter = pd.Series(verdict).map(VERDICT_LETTER).to_numpy(dtype=object)
-    letter = np.where(gap, GAP_LETTER, letter)
-    letter = np.where(beyond & ~gap, np.char.lower(letter.astype(str)), letter).astype(object)
-    style_key = np.where(gap, "gap", verdict).astype(object)
-
-    night = steps["sun_elevation_deg"].to_numpy() < SUNRISE_SUNSET_ELEVATION_DEG
-    sun_row = np.where(night, "·", " ").astype("<U1")
-    ev = outlook.sun_events
-    sun_row[ev["step"].to_numpy(dtype=np.int64)] = np.where(ev["event"].to_numpy() == "sunrise", "↑", "↓")
-
-    styles = {v: _style_of(v) for v in VERDICTS}
-    styles["gap"] = GAP_STYLE
-    lines: list[list[tuple[str, str | None]]] = []
-    tz_label = _tz_abbrev(times[0], tz)[:LABEL_W - 1]
-    for a in range(0, n, per_row):
-        b = min(n, a + per_row)
-        w = b - a
-        loc_buf = [" "] * w
-        utc_buf = [" "] * w
-        last_end = -1
-        ticks = np.flatnonzero(is_tick[a:b])
-        if len(ticks) == 0 or ticks[0] >= 6:                # label the block's first cell too ("HH:MM ")
-            ticks = np.concatenate(([0], ticks))
-        for k in ticks:                                  # a few ticks per block
-            ts_l, ts_u = local[a + k], times[a + k]
-            label = f"{ts_l.day} {ts_l:%b}" if minute_of_day[a + k] == 0 else f"{ts_l:%H:%M}"
-            if k <= last_end or k + len(label) > w:
-                continue
-            loc_buf[k:k + len(label)] = label
-            utc_label = f"{ts_u:%H:%M}"
-            utc_buf[k:k + len(utc_label)] = utc_label
-            last_end = k + len(label)
-        lines.append([(tz_label.ljust(LABEL_W), "dim"), ("".join(loc_buf), "bold")])
-        cells: list[tuple[str, str | None]] = [("".ljust(LABEL_W), None)]
-        keys = style_key[a:b]
-        change = np.flatnonzero(np.concatenate(([True], keys[1:] != keys[:-1])))
-        ends = np.append(change[1:], w)
-        for s, e in zip(change, ends):                  # runs of one verdict, not steps
-            cells.append(("".join(letter[a + s:a + e]), styles[keys[s]]))
-        lines.append(cells)
-        lines.append([("UTC".ljust(LABEL_W), "dim"), ("".join(utc_buf), None)])
-        lines.append([("sun".ljust(LABEL_W), "dim"), ("".join(sun_row[a:b]), "yellow")])
-        lines.append([("", None)])
-    return lines
-
-
-def legend_entries(outlook: Outlook) -> list[list[tuple[str, str | None]]]:
-    """The legend as entries of (text, style) segments: letter key, gap, horizon flag, sun marks."""
-    entries = [[(f" {VERDICT_LETTER[v]} ", _style_of(v)), (f" {VERDICT_WORDS[v]}", None)] for v in VERDICTS]
-    entries.append([(f" {GAP_LETTER} ", GAP_STYLE), (" gap: no forecast row (undetermined)", None)])
-    if outlook.steps["beyond_horizon"].any():
-        entries.append([("s a p u", "bold"), (" lower case: beyond the forecast horizon", None)])
-    entries.append([("↑ ↓ ·", "yellow"), (" sunrise, sunset, night", None)])
-    return entries
-
-
-def _wrap_entries(entries, width: int, plain: bool = True):
-    """Legend entries packed into lines of at most ``width`` columns (an entry is never split)."""
-    lines, current, used = [], [], 0
-    for entry in entries:
-        size = sum(len(t) for t, _ in entry)
-        if current and used + 3 + size > width:
-            lines.append(current)
-            current, used = [], 0
-        if current:
-            current.append(("   ", None))
-            used += 3
-        current.extend(entry)
-        used += size
-    if current:
-        lines.append(current)
-    return ["".join(t for t, _ in line) for line in lines] if plain else lines
-
-
-def _sun_text(outlook: Outlook) -> str:
-    tz = outlook.site.time_zone
-    ev = outlook.sun_events
-    if len(ev) == 0:
-        return ""
-    tzname = _tz_abbrev(outlook.start_utc, tz)
-    parts = [f"{e} {_fmt_local(t, tz)} {tzname} ({_fmt_utc(t, False)} UTC)"
-             for e, t in zip(ev["event"], ev["time_utc"])]
-    return "Sun: " + "; ".join(parts)
-
-
-WINDOW_HEADERS = ("method", "from (local)", "to (local)", "from (UTC)", "length", "wind max", "gust max",
-                  "spread min", "mean η", "advised", "note")
-
-
-def window_rows(outlook: Outlook) -> list[tuple[str, ...]]:
-    tz = outlook.site.time_zone
-    rows = []
-    for method in METHODS:
-        table = outlook.windows[method]
-        for w in table.itertuples(index=False):        # one row per window, not per step
-            note = []
-            if w.beyond_horizon:
-                note.append("beyond horizon")
-            if w.open_end:
-                note.append("runs past the outlook")
-            rows.append((METHOD_LABEL[method], _fmt_local(w.start_utc, tz), _fmt_local(w.end_utc, tz),
-                         _fmt_utc(w.start_utc), _length_text(w.length_min),
-                         _num(w.max_wind_mean_ms, "{:.1f} m/s"), _num(w.max_wind_gust_ms, "{:.1f} m/s"),
-                         _num(w.min_dew_point_spread_c, "{:.1f} °C"), _num(w.mean_ruze_efficiency, "{:.2f}"),
-                         f"{w.advised_fraction:.0%}", ", ".join(note)))
-    return rows
-
-
-WIDE_TABLE_MIN = 130
-
-
-def windows_heading(outlook: Outlook) -> str:
-    need = ", ".join(f"{METHOD_LABEL[m]} ≥ {_length_text(outlook.min_window_min[m])}" for m in METHODS)
-    tzname = _tz_abbrev(outlook.start_utc, outlook.site.time_zone)
-    return f"Windows, local time {tzname} (each ≥ the method's duration + settling: {need})"
-
-
-def window_list_lines(outlook: Outlook) -> list[str]:
-    """Each window on two lines (fits 80 columns): when, then its worst conditions and figures."""
-    tz = outlook.site.time_zone
-    lines = []
-    for method in METHODS:
-        for w in outlook.windows[method].itertuples(index=False):   # one entry per window
-            notes = (["beyond the forecast horizon"] if w.beyond_horizon else []) + (
-                ["may run past the outlook"] if w.open_end else [])
-            lines.append(f"  {METHOD_LABEL[method]:<13}{_when(w.start_utc, w.end_utc, tz)}, {_length_text(w.length_min)}")
-            lines.append(f"      wind ≤ {_num(w.max_wind_mean_ms, '{:.1f}')} m/s (gusts "
-                         f"{_num(w.max_wind_gust_ms, '{:.1f}')}), spread ≥ {_num(w.min_dew_point_spread_c, '{:.1f}')} °C, "
-                         f"η {_num(w.mean_ruze_efficiency, '{:.2f}')}, advised {w.advised_fraction:.0%}")
-            if notes:
-                lines.append(f"      {'; '.join(notes)}")
-    return lines
-
-
-def _when(start: pd.Timestamp, end: pd.Timestamp, tz: str) -> str:
-    """``30 Nov 20:00 → 1 Dec 00:20 (03:00–07:20 UTC)``: local times with dates, then UTC."""
-    return f"{_fmt_local(start, tz)} → {_fmt_local(end, tz)} ({start:%H:%M}–{end:%H:%M} UTC)"
-
-
-def _num(value, fmt: str) -> str:
-    return "n/a" if value is None or not np.isfinite(value) else fmt.format(value)
-
-
-def next_window_lines(outlook: Outlook) -> list[str]:
-    tz = outlook.site.time_zone
-    lines = []
-    for method in METHODS:
-        w = outlook.next_window[method]
-        need = _length_text(outlook.min_window_min[method])
-        if w is None:
-            lines.append(f"  {METHOD_LABEL[method]:<13}none of at least {need} in this outlook")
-            continue
-        s, e = pd.Timestamp(w["start_utc"]), pd.Timestamp(w["end_utc"])
-        flags = "".join(["; beyond the forecast horizon" if w["beyond_horizon"] else "",
-                         "; may run past the outlook" if w["open_end"] else ""])
-        lines.append(f"  {METHOD_LABEL[method]:<13}{_when(s, e, tz)}, {_length_text(w['length_min'])}{flags}")
-    return lines
-
-
-def span_lines(outlook: Outlook, limit: int = 12) -> list[str]:
-    tz = outlook.site.time_zone
-    sp = outlook.spans
-    out = []
-    for row in sp.head(limit).itertuples(index=False):   # one line per span of one verdict
-        what = "no forecast (gap)" if row.category == "gap" else VERDICT_WORDS[row.category]
-        why = []
-        if row.category != "gap":
-            for method in METHODS:
-                ids = getattr(row, f"{method}_blocked_by")
-                if ids:
-                    why.append(f"{METHOD_LABEL[method]} blocked by {', '.join(ids)}")
-        same_day = row.start_utc.tz_convert(ZoneInfo(tz)).date() == row.end_utc.tz_convert(ZoneInfo(tz)).date()
-        out.append(f"  {_fmt_local(row.start_utc, tz)} → {_fmt_local(row.end_utc, tz, with_date=not same_day)}  "
-                   f"{VERDICT_LETTER.get(row.category, GAP_LETTER)} {what}" + (f" — {'; '.join(why)}" if why else ""))
-    if len(sp) > limit:
-        out.append(f"  … {len(sp) - limit} more spans (see --json)")
-    return out
-
-
-def _header(outlook: Outlook, ctx) -> list[str]:
-    tz = outlook.site.time_zone
-    tzname = _tz_abbrev(outlook.start_utc, tz)
-    s, e = outlook.start_utc, outlook.end_utc
-    lines = [f"advisor outlook · {ctx.site_name} · {outlook.freq_ghz:g} GHz",
-             f"{_fmt_local(s, tz)} → {_fmt_local(e, tz)} {tzname} ({_fmt_utc(s)} → {_fmt_utc(e)} UTC), "
-             f"{len(outlook.steps)} steps of {outlook.step_min:g} min"]
-    if outlook.issued_utc:
-        issued = ", ".join(f"{t:%Y-%m-%d %H:%M} UTC" for t in outlook.issued_utc[-3:])
-        lines.append(f"Forecast issued {issued}; horizon {outlook.horizon_h:g} h.")
-    return lines
-
-
-def _plain_segments(segs) -> str:
-    return "".join(text for text, _ in segs).rstrip()
-
-
-def _wrap(text: str, width: int, indent: str = "") -> list[str]:
-    """``text`` folded at word boundaries to ``width`` columns; continuation lines get ``indent``."""
-    import textwrap
-
-    if len(text) <= width:
-        return [text]
-    lead = text[:len(text) - len(text.lstrip())]
-    return textwrap.wrap(text, width=max(40, width), subsequent_indent=lead + indent,
-                         break_long_words=False, break_on_hyphens=False) or [""]
-
-
-def render_plain_outlook(outlook: Outlook, ctx, width: int = 100) -> str:
-    """Plain text for pipes and logs: letters carry the verdicts, no colour needed; folded to ``width``."""
-    from advisor.views.render import CAUTIONS
-
-    tzname = _tz_abbrev(outlook.start_utc, outlook.site.time_zone)
-    lines: list[str] = []
-
-    def add(text: str, indent: str = "") -> None:
-        lines.extend(_wrap(text, width, indent))
-
-    for text in _header(outlook, ctx):
-        add(text)
-    if ctx.is_demo:
-        add(DEMO_BANNER)
-    for note in (*ctx.notes, *outlook.notes):
-        add(note, "  ")
-    lines.append("")
-    lines.extend(_plain_segments(segs) for segs in strip_lines(outlook, width))
-    lines.extend(_wrap_entries(legend_entries(outlook), width))
-    sun = _sun_text(outlook)
-    if sun:
-        add(sun, "  ")
-    lines.append("")
-    add(windows_heading(outlook) + ":", "  ")
-    rows = window_rows(outlook)
-    if rows and width < WIDE_TABLE_MIN:
-        for line in window_list_lines(outlook):
-            add(line, "  ")
-    elif rows:
-        table = [WINDOW_HEADERS, *rows]
-        widths = [max(len(r[k]) for r in table) for k in range(len(WINDOW_HEADERS))]
-        lines.extend("  " + "  ".join(v.ljust(wd) for v, wd in zip(r, widths)).rstrip() for r in table)
-    else:
-        lines.append("  none")
-    lines.append("")
-    lines.append(f"Next window (local time {tzname}):")
-    for line in next_window_lines(outlook):
-        add(line, "  ")
-    lines.append("")
-    lines.append(f"Verdict spans (local time {tzname}):")
-    for line in span_lines(outlook):
-        add(line, "    ")
-    lines.append("")
-    add(f"feed: {ctx.feed_source}", "  ")
-    add("Cautions: " + " ".join(CAUTIONS), "  ")
-    return "\n".join(lines) + "\n"
-
-
-def outlook_renderable(outlook: Outlook, ctx, width: int = 100):
-    """The rich view: a panel with the coloured strip, the windows table and the next windows."""
-    from rich import box
-    from rich.console import Group
-    from rich.panel import Panel
-    from rich.table import Table
-    from rich.text import Text
-
-    from advisor.views.render import CAUTIONS
-
-    head = _header(outlook, ctx)
-    parts = [Text(ctx.site_name, style="bold")] + [Text(line) for line in head[1:]]
-    if ctx.is_demo:
-        parts.append(Text(DEMO_BANNER, style="bold magenta"))
-    for note in (*ctx.notes, *outlook.notes):
-        parts.append(Text(note, style="italic"))
-    parts.append(Text(""))
-    inner = max(40, width - 4)
-    for segs in strip_lines(outlook, inner):
-        parts.append(Text.assemble(*[(t, s) if s else t for t, s in segs], no_wrap=True, overflow="crop"))
-    for segs in _wrap_entries(legend_entries(outlook), inner, plain=False):
-        parts.append(Text.assemble(*[(t, s) if s else t for t, s in segs]))
-    sun = _sun_text(outlook)
-    if sun:
-        parts.append(Text(sun, style="dim"))
-    parts.append(Text(""))
-    parts.append(Text(windows_heading(outlook), style="bold underline"))
-    rows = window_rows(outlook)
-    if rows and width < WIDE_TABLE_MIN:
-        for line in window_list_lines(outlook):
-            head = line.lstrip()
-            parts.append(Text(line, style="green" if head.startswith("laser") else
-                              "cyan" if head.startswith("astronomical") else "dim"))
-    elif rows:
-        table = Table(box=box.SIMPLE_HEAD, pad_edge=False, expand=False)
-        for h in WINDOW_HEADERS:
-            table.add_column(h, justify="right" if h in ("length", "wind max", "gust max", "spread min", "mean η",
-                                                         "advised") else "left")
-        for r in rows:
-            table.add_row(*r, style="green" if r[0] == METHOD_LABEL["scan"] else "cyan")
-        parts.append(table)
-    else:
-        parts.append(Text("  none"))
-    if not (rows and width >= WIDE_TABLE_MIN):
-        parts.append(Text(""))
-    parts.append(Text(f"Next window (local time {_tz_abbrev(outlook.start_utc, outlook.site.time_zone)})",
-                      style="bold underline"))
-    for line in next_window_lines(outlook):
-        parts.append(Text(line, style="bold"))
-    parts.append(Text(""))
-    parts.append(Text(f"Verdict spans (local time {_tz_abbrev(outlook.start_utc, outlook.site.time_zone)})",
-                      style="bold underline"))
-    for line in span_lines(outlook):
-        parts.append(Text(line))
-    parts.append(Text(""))
-    parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
-    return Panel(Group(*parts), title=f"advisor outlook · {outlook.freq_ghz:g} GHz", title_align="left",
-                 border_style="blue",
-                 subtitle=f"feed: {ctx.feed_source}", subtitle_align="left", width=width)
-
-
-def _json_num(value, nd: int = 4):
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    value = float(value)
-    return None if not math.isfinite(value) else round(value, nd)
-
-
-def _iso_local(times: pd.DatetimeIndex, tz: str) -> np.ndarray:
-    """ISO 8601 local times with a ``±HH:MM`` offset (vectorised string work)."""
-    text = pd.Series(times.tz_convert(ZoneInfo(tz)).strftime("%Y-%m-%dT%H:%M:%S%z"))
-    return (text.str[:-2] + ":" + text.str[-2:]).to_numpy(dtype=object)
-
-
-def outlook_csv_frame(outlook: Outlook) -> pd.DataFrame:
-    """One row per step: ``time`` (ISO 8601 UTC), ``verdict``, flags, conditions, per-method figures."""
-    steps = outlook.steps
-    out = pd.DataFrame({"time": pd.DatetimeIndex(steps["time"]).strftime("%Y-%m-%dT%H:%M:%SZ"),
-                        "verdict": steps["verdict"].to_numpy(),
-                        "local_time": _iso_local(pd.DatetimeIndex(steps["time"]), outlook.site.time_zone)})
-    for name in ("gap", "beyond_horizon", "source", *STEP_COLUMNS):
-        out[name] = steps[name].to_numpy()
-    for method in METHODS:
-        for suffix in ("feasible", "surface_rms_um", "ruze_efficiency", "p_usable"):
-            out[f"{method}_{suffix}"] = steps[f"{method}_{suffix}"].to_numpy()
-        out[f"in_{method}_window"] = steps[f"in_{method}_window"].to_numpy()
-    return out.round(4)
-
-
-def outlook_json(outlook: Outlook, ctx) -> dict:
-    """The ``outlook --json`` object: per-step verdicts, windows, next windows, spans and notes."""
-    from advisor.views.render import CAUTIONS
-
-    csv = outlook_csv_frame(outlook)
-    step_records = []
-    columns = list(csv.columns)
-    values = csv.to_numpy(dtype=object)
-    for row in values:                               # JSON records need Python objects
-        rec = {}
-        for k, v in zip(columns, row):
-            rec["time_utc" if k == "time" else k] = v if isinstance(v, str) else _json_num(v)
-        step_records.append(rec)
-    windows = []
-    for method in METHODS:
-        for _, w in outlook.windows[method].iterrows():
-            windows.append({"method": method, **window_dict(w)})
-    spans = [{"verdict": "undetermined" if r.category == "gap" else r.category, "gap": r.category == "gap",
-              "start_utc": r.start_utc.strftime("%Y-%m-%dT%H:%M:%SZ"), "end_utc": r.end_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
-              "steps": int(r.steps), **{f"{m}_blocked_by": list(getattr(r, f"{m}_blocked_by")) for m in METHODS}}
-             for r in outlook.spans.itertuples(index=False)]
-    counts = {v: int((outlook.steps["verdict"] == v).sum()) for v in VERDICTS}
-    counts["gap"] = int(outlook.steps["gap"].sum())
-    return {
-        "schema_version": OUTLOOK_SCHEMA_VERSION,
-        "command": "outlook",
-        "site": ctx.site_name,
-        "demo_data": ctx.is_demo,
-        "target_freq_ghz": outlook.freq_ghz,
-        "from_utc": outlook.start_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "to_utc": outlook.end_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "step_min": outlook.step_min,
-        "time_zone": outlook.site.time_zone,
-        "forecast": {"issued_utc": [t.strftime("%Y-%m-%dT%H:%M:%SZ") for t in outlook.issued_utc],
-                     "horizon_h": outlook.horizon_h, "margins": outlook.margins,
-                     "steps_beyond_horizon": int(outlook.steps["beyond_horizon"].sum())},
-        "counts": counts,
-        "min_window_min": outlook.min_window_min,
-        "next_window": outlook.next_window,
-        "windows": windows,
-        "spans": spans,
-        "sun_events": [{"event": e, "time_utc": t.strftime("%Y-%m-%dT%H:%M:%SZ")}
-                       for e, t in zip(outlook.sun_events["event"], outlook.sun_events["time_utc"])],
-        "steps": step_records,
-        "data_quality": ctx.data_quality,
-        "notes": [*ctx.notes, *outlook.notes],
-        "cautions": list(CAUTIONS),
-    }

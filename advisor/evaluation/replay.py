@@ -4,6 +4,7 @@ Pure summaries over the vectorised decisions of every archive row:
 
 * :func:`step_hours` — how many hours each row stands for (gaps count for nothing);
 * :func:`hours_by` — hours per verdict, per month or per local hour of day;
+* :func:`dominant_by_month_hour` — the verdict with most hours at each local hour of each month;
 * :func:`score_attempts` — against recorded attempts: false go (scan advised, scan failed) and
   missed (usable scan while the advice was not scan), overall and per rule that fired;
 * :func:`compare_rule_sets` — hours that change verdict between two rule sets, by rule.
@@ -16,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from advisor.vocabulary import LETTERS, VERDICTS
+from advisor.vocabulary import VERDICTS
 from advisor.evaluation.evaluate import Scenario
 from advisor.features import row_features_chunked
 from advisor.io.history import History
@@ -75,11 +76,27 @@ def month_keys(local_times: pd.DatetimeIndex) -> np.ndarray:
     return labels[inverse]
 
 
-def dominant_letters(table: pd.DataFrame) -> list[str]:
-    """The letter of the verdict with most hours in each row of a :func:`hours_by` table ('·' if none)."""
+def dominant_verdicts(table: pd.DataFrame) -> np.ndarray:
+    """The verdict with most hours in each row of a :func:`hours_by` table ('' for a row without hours)."""
     values = table.to_numpy()
-    best = values.argmax(axis=1)
-    return ["·" if values[i].sum() == 0 else LETTERS[table.columns[best[i]]] for i in range(len(table))]
+    best = np.asarray(table.columns, dtype=object)[values.argmax(axis=1)]
+    return np.where(values.sum(axis=1) == 0, "", best).astype(object)
+
+
+def dominant_by_month_hour(verdict: np.ndarray, hours: np.ndarray, local_times: pd.DatetimeIndex) -> pd.DataFrame:
+    """The dominant verdict at each local hour of day (columns 0..23) of each month (rows 'YYYY-MM', sorted).
+
+    A cell is '' when the archive has no hours there.
+    """
+    months = month_keys(local_times)
+    hour = local_times.hour.to_numpy()
+    verdict = np.asarray(verdict)
+    rows = {}
+    for month in np.unique(months):                      # one pass per month, not per row
+        mask = months == month
+        table = hours_by(verdict[mask], hours[mask], hour[mask]).reindex(range(24), fill_value=0.0)
+        rows[str(month)] = dominant_verdicts(table)
+    return pd.DataFrame.from_dict(rows, orient="index", columns=list(range(24)))
 
 
 def _advice_at(times_utc: pd.DatetimeIndex, verdict: np.ndarray, at: pd.DatetimeIndex,

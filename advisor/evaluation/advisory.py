@@ -1,0 +1,134 @@
+"""What a scheduled run (``advisor tick``) has to say: what changed since the last run, and the state to keep.
+
+    previous = parse_state(text)                     the stored state (ValueError when invalid)
+    change = track_change(previous, verdict, reason_set(call.reasons), utc_text(now),
+                          dead_feed_ticks, notify_on_reasons)
+    change.kind                                      first | verdict | reasons | dead_feed | None
+    change.headline                                  the one-line announcement
+    change.state.as_dict()                           the state to store for the next run
+    dead_feed_note(change)                           a line for the advisory while the feed looks dead
+
+Pure: no files, no clock (the caller gives the time); the state folder is
+:mod:`advisor.io.statedir`, the advisory's pages are :mod:`advisor.views.advisory`.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from datetime import datetime, timezone
+
+from advisor.vocabulary import VERDICT, VERDICTS
+
+STATE_SCHEMA = 1
+
+
+def utc_text(moment: datetime) -> str:
+    """``2026-12-01T03:00:00.123Z`` (UTC, milliseconds)."""
+    return moment.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%f")[:-3] + "Z"
+
+
+def short_utc(text: str | None) -> str:
+    """``2026-12-01T03:00:00.123Z`` → ``2026-12-01 03:00:00 UTC``."""
+    return "?" if not text else f"{text[:10]} {text[11:19]} UTC"
+
+
+def _label(verdict: str) -> str:
+    return VERDICT[verdict].label
+
+
+@dataclass(frozen=True)
+class TickState:
+    """What the previous tick left: its verdict, reason set and counters."""
+
+    verdict: str
+    reasons: tuple[str, ...]
+    since_utc: str
+    issued_utc: str
+    undetermined_ticks: int
+
+    def as_dict(self) -> dict:
+        return {"schema": STATE_SCHEMA, "verdict": self.verdict, "reasons": list(self.reasons),
+                "since_utc": self.since_utc, "issued_utc": self.issued_utc,
+                "undetermined_ticks": self.undetermined_ticks}
+
+
+def parse_state(text: str) -> TickState:
+    """The state a previous run stored (``state.json``); ValueError when it is not one."""
+    doc = json.loads(text)
+    if not isinstance(doc, dict) or doc.get("schema") != STATE_SCHEMA:
+        raise ValueError("not a tick state object of schema 1")
+    verdict, reasons, ticks = doc.get("verdict"), doc.get("reasons"), doc.get("undetermined_ticks")
+    if verdict not in VERDICTS:
+        raise ValueError(f"unknown verdict {verdict!r}")
+    if not isinstance(reasons, list) or not all(isinstance(r, str) for r in reasons):
+        raise ValueError("reasons is not a list of strings")
+    if isinstance(ticks, bool) or not isinstance(ticks, int) or ticks < 0:
+        raise ValueError("undetermined_ticks is not a count")
+    for key in ("since_utc", "issued_utc"):
+        value = doc.get(key)
+        if not isinstance(value, str) or not value.endswith("Z"):
+            raise ValueError(f"{key} is not a UTC time")
+        datetime.fromisoformat(value[:-1])
+    return TickState(verdict, tuple(reasons), doc["since_utc"], doc["issued_utc"], ticks)
+
+
+# --- change tracking (pure) ---------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Change:
+    """What this tick found compared with the last: ``kind`` is None when nothing to announce."""
+
+    kind: str | None            # first | verdict | reasons | dead_feed | None
+    headline: str
+    state: TickState
+    previous_verdict: str | None
+    feed_looks_dead: bool
+
+
+def reason_set(reasons) -> tuple[str, ...]:
+    """The reasons that carry a judgement (block, warn, error term) as sorted ``rule[applies_to]``."""
+    return tuple(sorted({f"{r.rule}[{r.applies_to}]" for r in reasons if r.effect != "info"}))
+
+
+def track_change(previous: TickState | None, verdict: str, reasons: tuple[str, ...], issued_utc: str,
+                 dead_feed_ticks: int, notify_on_reasons: bool) -> Change:
+    """Compare this tick with the previous state; the new state and what to announce."""
+    label = _label(verdict)
+    undetermined = (previous.undetermined_ticks if previous else 0) + 1 if verdict == "undetermined" else 0
+    dead = verdict == "undetermined" and undetermined >= dead_feed_ticks
+    if previous is None:
+        since, kind = issued_utc, "first"
+        headline = f"advisor tick: first advisory in this state dir: {label}"
+    elif previous.verdict != verdict:
+        since, kind = issued_utc, "verdict"
+        headline = (f"advisor tick: verdict changed: {_label(previous.verdict)} → {label} "
+                    f"({previous.verdict} since {short_utc(previous.since_utc)})")
+        if previous.verdict == "undetermined" and previous.undetermined_ticks >= dead_feed_ticks:
+            headline += f"; the feed is back after {previous.undetermined_ticks} undetermined ticks"
+    else:
+        since = previous.since_utc
+        added = sorted(set(reasons) - set(previous.reasons))
+        dropped = sorted(set(previous.reasons) - set(reasons))
+        if dead and undetermined == dead_feed_ticks:
+            kind = "dead_feed"
+            headline = (f"advisor tick: the feed looks dead: {undetermined} consecutive undetermined ticks "
+                        f"since {short_utc(since)}")
+        elif notify_on_reasons and (added or dropped):
+            kind = "reasons"
+            bits = [f"+ {r}" for r in added] + [f"- {r}" for r in dropped]
+            headline = f"advisor tick: reasons changed ({label} unchanged): " + "; ".join(bits)
+        else:
+            kind, headline = None, ""
+    if dead and kind in ("first", "verdict"):
+        headline += f"; the feed looks dead ({undetermined} consecutive undetermined ticks)"
+    state = TickState(verdict, reasons, since, issued_utc, undetermined)
+    return Change(kind, headline, state, previous.verdict if previous else None, dead)
+
+
+def dead_feed_note(change: Change) -> str | None:
+    """A line for the advisory itself while the feed looks dead."""
+    if not change.feed_looks_dead:
+        return None
+    return (f"THE FEED LOOKS DEAD: {change.state.undetermined_ticks} consecutive undetermined ticks since "
+            f"{short_utc(change.state.since_utc)}. Check the weather logger and its link.")

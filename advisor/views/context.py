@@ -1,0 +1,33 @@
+"""What every view shows around a result: the :class:`Context` it was made in and the cautions."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+__all__ = ["CAUTIONS", "Context", "with_note"]
+
+CAUTIONS = (
+    "Advisory only — not a safety system.",
+    "Stow the antenna at the site's wind limits regardless of this tool.",
+    "Laser scanners can be hazardous to eyes: follow the site's laser-safety procedure and keep "
+    "people off the structure during scans and surface moves.",
+    "Defer to local rules and the site's responsible staff.",
+)
+
+
+@dataclass(frozen=True)
+class Context:
+    """What the call was made on, for titles and JSON."""
+
+    site_name: str
+    time_zone: str
+    feed_source: str
+    is_demo: bool
+    data_quality: dict
+    next_window: dict | None = None
+    notes: tuple[str, ...] = ()
+
+
+def with_note(ctx: Context, note: str | None) -> Context:
+    """``ctx`` with one more note line (a Context is frozen); ``ctx`` itself when ``note`` is empty."""
+    return ctx if not note else replace(ctx, notes=tuple(ctx.notes) + (note,))

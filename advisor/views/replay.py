@@ -1,0 +1,110 @@
+"""The ``advisor replay`` summary for the terminal: hours per verdict, per month, a heat strip,
+scores against recorded attempts and the rule-set comparison.
+
+    replay_renderable(summary, dominant)
+
+``summary`` is the dict ``replay --json`` prints; ``dominant`` is
+:func:`advisor.evaluation.replay.dominant_by_month_hour`.  rich is imported only when drawn.
+"""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from advisor.vocabulary import VERDICT, VERDICTS
+
+#: Shown in the heat strip where a month has no hours at that hour of day.
+NO_HOURS_LETTER = "·"
+
+
+def pct(rate: float | None) -> str:
+    """``45%``, or ``n/a`` when there was nothing to divide by."""
+    return "n/a" if rate is None else f"{rate:.0%}"
+
+
+def heat_strip(dominant: pd.DataFrame):
+    """One line per month, one cell per local hour: the letter of the verdict with most hours."""
+    from rich.text import Text
+
+    strip = Text("Dominant verdict by local hour of day\n", style="bold")
+    for v in VERDICTS:
+        strip.append(f" {VERDICT[v].letter} ", style=VERDICT[v].style)
+        strip.append(f" {v}  ")
+    strip.append("\n")
+    strip.append("         " + "".join(f"{h:<3d}" for h in range(0, 24, 3)).rstrip() + "\n", style="dim")
+    for month, row in dominant.iterrows():               # one line per month
+        strip.append(f"{month}  ")
+        for verdict in row:
+            if verdict:
+                strip.append(VERDICT[verdict].letter, style=VERDICT[verdict].style)
+            else:
+                strip.append(NO_HOURS_LETTER, style="dim")
+        strip.append("\n")
+    return strip
+
+
+def _attempt_parts(attempts: dict) -> list:
+    from rich import box
+    from rich.table import Table
+    from rich.text import Text
+
+    parts: list = [
+        Text("Against recorded attempts", style="bold underline"),
+        f"  {attempts['scan_attempts']} scan attempts covered by the archive; scan advised at "
+        f"{attempts['scan_advised_at_attempts']}",
+        f"  false go (scan advised, scan failed): {attempts['false_go']} (rate {pct(attempts['false_go_rate'])})",
+        f"  missed (usable scan, advice not scan): {attempts['usable_scans_not_advised']} "
+        f"(rate {pct(attempts['missed_rate'])})",
+    ]
+    if attempts["per_rule"]:
+        rules = Table(box=box.SIMPLE_HEAD)
+        for h in ("rule", "scans when fired", "failed", "false go", "missed"):
+            rules.add_column(h, justify="left" if h == "rule" else "right", no_wrap=True)
+        for r in attempts["per_rule"]:
+            rules.add_row(r["rule"], str(r["scan_attempts_when_fired"]), str(r["failed_when_fired"]),
+                          str(r["false_go_when_fired"]), str(r["missed_when_fired"]))
+        parts.append(rules)
+    return parts
+
+
+def _comparison_parts(comparison: dict, attempts: dict | None) -> list:
+    from rich.text import Text
+
+    parts: list = [Text("Compared rule set", style="bold underline"),
+                   f"  {comparison['hours_changed']:.1f} h change verdict"]
+    parts += [f"    {t['from']} → {t['to']}: {t['hours']:.1f} h" for t in comparison["transitions"]]
+    parts += [f"    by {r['rule']}: {r['hours_changed']:.1f} h" for r in comparison["by_rule"]]
+    if "attempts_b" in comparison and attempts:
+        b = comparison["attempts_b"]
+        parts.append(f"  false-go rate {pct(attempts['false_go_rate'])} → {pct(b['false_go_rate'])}; "
+                     f"missed rate {pct(attempts['missed_rate'])} → {pct(b['missed_rate'])}")
+    return parts
+
+
+def replay_renderable(summary: dict, dominant: pd.DataFrame):
+    """The summary as one rich renderable (print it with a Console; markup in plain strings is rich's)."""
+    from rich import box
+    from rich.console import Group
+    from rich.table import Table
+    from rich.text import Text
+
+    total = sum(summary["hours"].values()) or 1.0
+    line = Text("Hours per verdict: ")
+    line.append(", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS))
+    parts: list = [f"Replay of {summary['feed']}",
+                   f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
+                   f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules",
+                   line]
+
+    months = Table(title="Hours per month (site local time)", box=box.SIMPLE_HEAD, title_justify="left")
+    months.add_column("month")
+    for v in VERDICTS:
+        months.add_column(v, justify="right")
+    for month, row in summary["by_month"].items():
+        months.add_row(month, *(f"{row[v]:.1f}" for v in VERDICTS))
+    parts += [months, heat_strip(dominant)]
+    if summary["attempts"]:
+        parts += _attempt_parts(summary["attempts"])
+    if summary["comparison"]:
+        parts += _comparison_parts(summary["comparison"], summary["attempts"])
+    return Group(*parts)
