@@ -28,7 +28,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from advisor.errors import RulesError
-from advisor.io.site import package_data_dir
+from advisor.io.bundled import package_data_dir
 from advisor.rules.condition import Compiled, FeatureSpec
 
 from advisor.vocabulary import APPLIES_TO, EFFECTS  # noqa: E402,F401 (re-exported)
