@@ -26,7 +26,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from advisor.features import CATALOGUE, FEATURES  # noqa: E402
-from advisor.rules.ruleset import default_rule_files, load_rules  # noqa: E402
+from advisor.rules.loader import default_rule_files, load_rules  # noqa: E402
 
 ROWS = 525_600
 RULES = 50

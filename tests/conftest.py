@@ -17,7 +17,7 @@ from advisor.features import CATALOGUE
 from advisor.io.feed import canonical_frame
 from advisor.evaluation.evaluate import evaluate
 from advisor.io.references import Registry
-from advisor.rules.ruleset import default_rule_files, load_rules
+from advisor.rules.loader import default_rule_files, load_rules
 from advisor.io.site import FeedLayout, load_site
 
 # A winter night at the demo site: sunset is near 00:05 UTC on 15 Jan, so 04:00 UTC on the

@@ -104,7 +104,7 @@ def test_json_round_trip_is_exact():
 def _evaluate(model, **weather):
     table = weather_table(**weather)
     feed = canonical_frame(table, FeedLayout(max_feed_age_min=15))
-    from advisor.rules.ruleset import default_rule_files, load_rules
+    from advisor.rules.loader import default_rule_files, load_rules
     from advisor.features import CATALOGUE
     from advisor.io.site import load_site
 

@@ -14,7 +14,7 @@ import pytest
 from advisor.commands.main import load_ruleset
 from advisor.commands.rules import rule_files
 from advisor.features import CATALOGUE, FEATURES
-from advisor.rules.lint import lint_files
+from advisor.rules.loader import lint_files
 from advisor.io.site import load_site
 
 from .conftest import NIGHT_UTC, weather_table, run_cli
@@ -200,6 +200,6 @@ def test_benchmark_rule_file_lints_clean_and_has_fifty_rules(tmp_path):
     spec.loader.exec_module(bench)
     f = tmp_path / "bench.yaml"
     f.write_text(bench.site_rules_yaml(30), encoding="utf-8")
-    defaults = [(p, "default") for p in __import__("advisor.rules.ruleset", fromlist=["x"]).default_rule_files()]
+    defaults = [(p, "default") for p in __import__("advisor.rules.loader", fromlist=["x"]).default_rule_files()]
     report = lint_files(defaults + [(f, "site")], CATALOGUE)
     assert report.problems == () and len(report.ruleset) == bench.RULES

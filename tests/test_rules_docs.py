@@ -26,8 +26,7 @@ from advisor.commands.main import main
 from advisor.errors import ConditionError
 from advisor.features import CATALOGUE
 from advisor.rules.condition import compile_condition, evaluate_row
-from advisor.rules.lint import lint_texts
-from advisor.rules.ruleset import default_rule_files
+from advisor.rules.loader import default_rule_files, lint_texts
 
 DOC = Path(__file__).resolve().parent.parent / "docs" / "rules.md"
 _FENCE = re.compile(r"^```(\w+)([^\n]*)\n(.*?)^```\s*$", re.S | re.M)

@@ -19,12 +19,13 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from advisor.catalogue import FEATURE_DOMAINS
 from advisor.errors import RulesError
 from advisor.features import CATALOGUE, FEATURES
 from advisor.io.feed import PLAUSIBLE_RANGE
 from advisor.rules.condition import compile_condition, evaluate_row
-from advisor.rules.lint import FEATURE_DOMAINS, lint_files, lint_texts, threshold_findings
-from advisor.rules.ruleset import RulesRejected, default_rule_files, load_rules
+from advisor.rules.loader import RulesRejected, default_rule_files, lint_files, lint_texts, load_rules
+from advisor.rules.thresholds import threshold_findings
 from advisor.io.site import CANONICAL_UNITS
 
 DEFAULTS = [(p.read_text(encoding="utf-8"), str(p), "default") for p in default_rule_files()]

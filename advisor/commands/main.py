@@ -26,7 +26,8 @@ from advisor.features import CATALOGUE
 from advisor.io.feed import CHECK_TAIL_BYTES, Feed, read_feed
 from advisor.evaluation.evaluate import evaluate
 from advisor.io.references import append_reference, parse_time_utc, read_registry
-from advisor.rules.ruleset import RuleSet, RulesRejected, default_rule_files, load_rules
+from advisor.rules.loader import RulesRejected, default_rule_files, load_rules
+from advisor.rules.ruleset import RuleSet
 from advisor.io.site import Site, load_site
 
 EXIT_HELP = """exit status:

@@ -19,9 +19,10 @@ from pathlib import Path
 import numpy as np
 
 from advisor.features import CATALOGUE, FEATURES
-from advisor.rules.condition import Call, Compare, Convert, Name, Node, Number, Unary, evaluate_row, names_in
-from advisor.rules.lint import condition_parts, lint_files
-from advisor.rules.ruleset import MESSAGE_EXTRAS, RuleSet, default_rule_files, format_message
+from advisor.rules.condition import (Call, Compare, Convert, Name, Node, Number, Unary, condition_parts, evaluate_row,
+                                     names_in)
+from advisor.rules.loader import default_rule_files, lint_files
+from advisor.rules.ruleset import MESSAGE_EXTRAS, RuleSet, format_message
 from advisor.io.site import Site, load_site
 
 from advisor.vocabulary import DEMO_BANNER, METHODS

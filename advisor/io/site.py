@@ -3,20 +3,20 @@
 ``load_site(path)`` reads a site YAML file, validates every key (errors name the key path and
 line, and say what is expected) and returns a frozen :class:`Site`.  Paths inside the file
 (feed, reference registry, extra rule files) are resolved relative to the file's folder.
-``demo_site_path()`` is the bundled invented demo site.
+``demo_site_path()`` (from :mod:`advisor.io.bundled`) is the bundled invented demo site.
 """
 
 from __future__ import annotations
 
 import re
 from dataclasses import dataclass, field
-import importlib
 from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from advisor import units
 from advisor.errors import SiteError
+from advisor.io.bundled import demo_site_path
 from advisor.io.yamlio import load_yaml
 
 CANONICAL_COLUMNS = (
@@ -186,25 +186,6 @@ class Site:
     source: str = "<built-in>"
     is_demo: bool = False
     extra: dict = field(default_factory=dict, compare=False)
-
-
-def package_data_dir(package: str, source_folder: str) -> Path:
-    """Folder of bundled data: the installed copy, or the source tree's folder when run from a checkout."""
-    try:
-        module = importlib.import_module(package)
-        return Path(next(iter(module.__path__)))
-    except (ModuleNotFoundError, StopIteration):
-        return Path(__file__).resolve().parents[2] / source_folder
-
-
-def demo_dir() -> Path:
-    """Folder of the bundled invented demo data (a copy of example_weather/)."""
-    return package_data_dir("advisor.demo", "example_weather")
-
-
-def demo_site_path() -> Path:
-    """Path of the bundled demo site file."""
-    return demo_dir() / "larch_basin.yaml"
 
 
 _ANGLE_HMS = re.compile(r"^\s*([+-]?\d+)[h:\s]\s*(\d+)[m:\s]\s*(\d+(?:\.\d*)?)s?\s*$")

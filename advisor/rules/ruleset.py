@@ -1,4 +1,4 @@
-"""Rule sets: loading layered YAML rule files and evaluating them over a feature frame.
+"""Rules and rule sets: what a loaded rule is, evaluating a rule set over features, messages.
 
 A rule file holds ``rules:``, a list of mappings::
 
@@ -10,11 +10,10 @@ A rule file holds ``rules:``, a list of mappings::
       message: "Fog likely (spread {dew_point_spread_c:.1f} °C): the laser cannot see the surface."
       enabled: true                    # optional; false disables a rule of an earlier layer
 
-Files are applied in order (package defaults, then the site's, then ``--rules``).  A rule whose
-id already exists is merged over it (its keys replace the earlier ones), so a site can change
-one threshold without copying a whole rule.  Loading runs the lint (:mod:`advisor.rules.lint`)
-over all files and compiles every rule once; a rule set with any lint error is refused with
-:class:`RulesRejected`, which carries every error line.
+Reading and layering the files is :mod:`advisor.rules.loader`; this module holds the result
+(:class:`Rule`, :class:`RuleSet`), evaluates it over columns of features
+(:meth:`RuleSet.evaluate`, vectorised, scalar target features broadcast) and fills a rule's
+message for one row (:func:`format_message`).  It reads no file.
 """
 
 from __future__ import annotations
@@ -22,17 +21,20 @@ from __future__ import annotations
 import re
 import string
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
 
-from advisor.errors import RulesError
-from advisor.io.site import package_data_dir
-from advisor.rules.condition import Compiled, FeatureSpec
+from advisor.rules.compiler import Compiled
 
-from advisor.vocabulary import APPLIES_TO, EFFECTS  # noqa: E402,F401 (re-exported)
+__all__ = ["Rule", "RuleSet", "RuleEvaluation", "format_message", "message_fields",
+           "RULE_KEYS", "REQUIRED_KEYS", "MAX_RULES", "MESSAGE_EXTRAS"]
+
+#: The keys a rule mapping may have.
 RULE_KEYS = ("id", "applies_to", "condition", "effect", "error_um", "message", "enabled")
+#: The keys every rule must have once its layers are merged.
+REQUIRED_KEYS = ("id", "applies_to", "condition", "effect", "message")
+#: Most rules in one file.
 MAX_RULES = 2000
 #: Non-feature values a message may name.
 MESSAGE_EXTRAS = ("calibrator_name",)
@@ -58,6 +60,7 @@ class Rule:
     overrides: tuple[tuple[str, int | None, str], ...] = ()
 
     def applies(self, method: str) -> bool:
+        """Whether the rule concerns ``method`` (``scan`` or ``astronomical``)."""
         return self.applies_to in (method, "both")
 
 
@@ -84,8 +87,14 @@ class RuleSet:
     def __len__(self) -> int:
         return len(self.rules)
 
-    def evaluate(self, columns: Mapping[str, np.ndarray], n: int) -> RuleEvaluation:
-        """Evaluate every rule over ``columns`` (name → array of length ``n``), vectorised."""
+    def evaluate(self, columns: Mapping[str, Any], n: int) -> RuleEvaluation:
+        """Evaluate every rule over ``columns``, vectorised; every result has length ``n``.
+
+        ``columns`` maps feature names to arrays (or Series) of length ``n`` or to scalars (the
+        target-scope features, such as ``freq_ghz``, travel as one value).  Scalars broadcast and
+        are never widened to ``n``: a rule takes its results (``fired``, and ``error_um`` for
+        ``add_error``) plus the temporaries of its own expression, whatever the columns hold.
+        """
         fired: dict[str, np.ndarray] = {}
         errors: dict[str, np.ndarray] = {}
         for rule in self.rules:
@@ -95,12 +104,6 @@ class RuleSet:
                 value = np.asarray(rule.error.evaluate(columns, length=n), dtype=float) * rule.error_scale
                 errors[rule.id] = np.where(mask, np.nan_to_num(value, nan=0.0), 0.0)
         return RuleEvaluation(fired, errors)
-
-
-def default_rule_files() -> list[Path]:
-    """The rule files shipped with the package (a copy of the top-level rules/ folder)."""
-    folder = package_data_dir("advisor.default_rules", "rules")
-    return sorted(folder.glob("*.yaml"))
 
 
 def message_fields(template: str) -> list[str]:
@@ -145,34 +148,3 @@ def format_message(template: str, row: Mapping[str, Any]) -> str:
 
 
 _UNIT_AFTER_VALUE = re.compile(r"^ ?(?:[°µ%]\S{0,4}|[A-Za-z]{1,3}(?:/[A-Za-z0-9²]{1,3})?²?)(?=$|[\s,;:.)])")
-
-
-class RulesRejected(RulesError):
-    """The rule set has lint errors; ``problems`` holds every one (file, line, column, hint)."""
-
-    def __init__(self, problems) -> None:
-        problems = tuple(problems)
-        first = problems[0]
-        super().__init__(first.message, source=first.source, line=first.line, column=first.column,
-                         field=first.field, hint=first.hint)
-        self.problems = problems
-
-    def lines(self) -> list[str]:
-        """Each error as one line ``file:line:col: field: message (hint)`` (without a prefix)."""
-        return [p.as_error().one_line() for p in self.problems]
-
-
-def load_rules(files: list[tuple[Path, str]], catalogue: Mapping[str, FeatureSpec]) -> RuleSet:
-    """Load ``(path, layer)`` files in order, layering by id, and compile the result.
-
-    Raises
-    ------
-    RulesRejected
-        When the lint finds any error in any file (warnings do not stop loading).
-    """
-    from advisor.rules.lint import lint_files  # lint builds Rule objects, so it imports this module
-
-    report = lint_files(files, catalogue)
-    if not report.ok:
-        raise RulesRejected(report.errors)
-    return report.ruleset
