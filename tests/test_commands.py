@@ -108,7 +108,7 @@ def test_check_builds_only_its_parser_and_loads_no_other_command():
             "loaded = sorted(m for m in sys.modules if m.startswith('advisor.'))\n"
             "print('\\n'.join(loaded))\n")
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
-    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, env=env,
+    proc = subprocess.run([sys.executable, "-c", code], check=False, capture_output=True, text=True, cwd=ROOT, env=env,
                           timeout=120)
     assert proc.returncode == 0, proc.stderr
     loaded = set(proc.stdout.split())
@@ -121,7 +121,7 @@ def test_check_builds_only_its_parser_and_loads_no_other_command():
 
 def test_python_dash_m_advisor_lists_the_commands():
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
-    proc = subprocess.run([sys.executable, "-m", "advisor", "--help"], capture_output=True, text=True, cwd=ROOT,
+    proc = subprocess.run([sys.executable, "-m", "advisor", "--help"], check=False, capture_output=True, text=True, cwd=ROOT,
                           env=env, timeout=120)
     assert proc.returncode == 0
     assert all(c.name in proc.stdout for c in COMMANDS)
@@ -196,3 +196,42 @@ def test_check_at_today_is_the_same_as_the_written_midnight(capsys, tmp_path):
         pytest.skip("crossed a midnight in America/Denver")
     assert status in (0, 10, 11, 12), err
     assert pd.Timestamp(json.loads(out)["time_utc"]) == midnight
+
+
+# --------------------------------------------------------------------------- rules explain
+
+
+def test_rules_explain_reports_what_the_evaluation_decided(capsys, tmp_path, monkeypatch):
+    """Fired or not and the added error terms come from the decisions, not from a second evaluation."""
+    from dataclasses import replace
+
+    import numpy as np
+
+    feed = tmp_path / "feed.csv"
+    weather_table().to_csv(feed, index=False)
+    argv = ["rules", "explain", "--feed", feed, "--at", "2026-01-16T04:00:00Z"]
+    real = session.run_check
+    chosen = {}
+
+    def marked(request):
+        """The real result, with one rule that did not fire marked as fired by the evaluation."""
+        result = real(request)
+        rule_eval = result.decisions.rule_eval
+        rule = next(r for r in result.decisions.rules
+                    if r.error is not None and not rule_eval.fired[r.id][0])
+        chosen["id"] = rule.id
+        fired = {**rule_eval.fired, rule.id: np.array([True])}
+        error_um = {**rule_eval.error_um, rule.id: np.array([7.0])}
+        decisions = replace(result.decisions, rule_eval=replace(rule_eval, fired=fired, error_um=error_um))
+        return replace(result, decisions=decisions)
+
+    status, plain, _ = run_cli(capsys, *argv)
+    assert status == 0
+    monkeypatch.setattr(session, "run_check", marked)
+    status, out, _ = run_cli(capsys, *argv)
+    assert status == 0
+    block = next(b for b in out.split("\n\n") if b.split()[1] == chosen["id"])
+    assert block.startswith("TRUE ")
+    assert "7 µm (added)" in block
+    before = next(b for b in plain.split("\n\n") if b.split()[1] == chosen["id"])
+    assert before.startswith("false") and "(not added)" in before

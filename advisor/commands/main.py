@@ -45,7 +45,7 @@ COMMANDS = (
 class _Parser(argparse.ArgumentParser):
     """argparse with one-line errors in the advisor's own format (exit 2)."""
 
-    def error(self, message: str):  # noqa: D401 - argparse API
+    def error(self, message: str):  # argparse API
         self.exit(2, f"advisor: error: {self.prog}: {message} (see '{self.prog} --help')\n")
 
 

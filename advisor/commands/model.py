@@ -98,7 +98,7 @@ def cmd_train(args: argparse.Namespace) -> int:
                          field="--usable-below-um")
     history = training.read_history(args.history, args.usable_below_um)
     feed = None
-    meta = {"site": site.name, "features_from": "history's own weather columns"}
+    meta: dict[str, object] = {"site": site.name, "features_from": "history's own weather columns"}
     if args.feed:
         feed = read_feed(Path(args.feed), session.feed_layout(site, named_on_command_line=True))
         meta["features_from"] = "archive feed"

@@ -93,7 +93,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
     from advisor.io.feed import read_feed
     from advisor.views.render import Context
 
-    hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0)
+    hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0) or 24.0  # never None: has a default
     min_dur = _positive_number(args.min_duration_min, "--min-duration-min", 0.0, 7 * 1440.0, None)
     svg = _svg_target(args.svg)
     if args.from_ is not None and args.at is not None:
@@ -104,10 +104,11 @@ def cmd_outlook(args: argparse.Namespace) -> int:
 
     inputs = session.load_inputs(request, read="whole")
     site = inputs.site
-    frame = inputs.feed.frame                    # issue times were read with the feed
+    feed = inputs.require_feed()
+    frame = feed.frame                           # issue times were read with the feed
     # The site's forecast file goes with the site's own feed; --forecast names one explicitly.
     forecast_path = Path(args.forecast) if args.forecast else (site.forecast.path if request.feed_path is None else None)
-    sources = [inputs.feed.source]
+    sources = [feed.source]
     if forecast_path is not None:
         fc = read_feed(forecast_path, session.feed_layout(site, named_on_command_line=args.forecast is not None),
                        issue_time_column=site.forecast.issue_time_column)
@@ -117,8 +118,8 @@ def cmd_outlook(args: argparse.Namespace) -> int:
 
     outlook = compute_outlook(frame, start, hours, site, inputs.registry, inputs.rules, inputs.freq_ghz,
                               odds=inputs.odds, min_duration_min=min_dur, source=" + ".join(sources))
-    quality = inputs.feed.quality.as_dict()
-    quality["source"] = inputs.feed.source
+    quality = feed.quality.as_dict()
+    quality["source"] = feed.source
     ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=" + ".join(sources),
                   is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
 
@@ -135,7 +136,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
     else:
         width = shutil.get_terminal_size((100, 24)).columns
         sys.stdout.write(render_plain_outlook(outlook, ctx, width))
-    if svg_text is not None:
+    if svg is not None and svg_text is not None:
         atomic_write_text(svg, svg_text)
         print(f"advisor: saved the outlook picture to {svg}", file=sys.stderr)
     return 0

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import math
 from pathlib import Path
 
 import pandas as pd
@@ -63,7 +64,7 @@ def cmd_reference_add(args: argparse.Namespace) -> int:
     except ValueError:
         raise UsageError(f"air temperature {args.air_temp_c!r} is not a number", field="--air-temp-c",
                          hint="give °C, e.g. 3.5") from None
-    if temp != temp:
+    if math.isnan(temp):
         raise UsageError("air temperature is NaN", field="--air-temp-c")
     registry = append_reference(path, time, temp, args.note or "")
     print(f"added reference scan at {time:%Y-%m-%dT%H:%M:%SZ} ({temp:.1f} °C) to {path}; {len(registry)} in registry")
@@ -72,6 +73,7 @@ def cmd_reference_add(args: argparse.Namespace) -> int:
 
 def cmd_reference_list(args: argparse.Namespace) -> int:
     request = session.request_from(args)
+    path: Path | None
     if request.references_path is not None or request.site_path is not None:
         path = _registry_path(request)
     else:

@@ -163,7 +163,7 @@ def cmd_lint(args: argparse.Namespace) -> int:
         print(problem.one_line())
     n_err, n_warn = len(report.errors), len(report.warnings)
     if report.ruleset is not None:
-        layers = {}
+        layers: dict[str, int] = {}
         for rule in report.ruleset:
             layers[rule.layer] = layers.get(rule.layer, 0) + 1
         split = ", ".join(f"{n} {layer}" for layer, n in layers.items())
@@ -272,8 +272,9 @@ def _shown_in_parts(ast: Node) -> set[str]:
         elif isinstance(inner, Compare) and len(inner.ops) == 1:
             names = [names_in(side) for side in inner.operands]
             for side, other in ((0, 1), (1, 0)):
-                if isinstance(inner.operands[side], Name) and not names[other]:
-                    shown.add(inner.operands[side].name)
+                operand = inner.operands[side]
+                if isinstance(operand, Name) and not names[other]:
+                    shown.add(operand.name)
     return shown
 
 

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import argparse
 import datetime as dt
+import math
 import os
 import re
 import sys
@@ -120,7 +121,7 @@ def parse_time(text: str | None, field: str) -> TimeOption | None:
         return TimeOption(field, text, days_back=DAY_WORDS[word])
     try:
         return TimeOption(field, text, instant_utc=parse_time_utc(text))
-    except Exception:  # pandas raises several types for garbage
+    except Exception:  # noqa: BLE001 - pandas raises several types for garbage
         raise UsageError(f"cannot read time {text!r}", field=field,
                          hint="write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z, "
                               "or now, today, yesterday") from None
@@ -268,13 +269,19 @@ class Inputs:
     notes: tuple[str, ...]
     model: SiteModel | None = None  # None: rules and error budget only
 
+    def require_feed(self) -> Feed:
+        """The feed as read (``load_inputs`` with ``read="tail"`` or ``"whole"``)."""
+        if self.feed is None:
+            raise RuntimeError("the feed was located but not read (load_inputs(read=None))")
+        return self.feed
+
     @property
     def odds(self):
         """The site model's odds function for :func:`advisor.evaluation.evaluate.evaluate`, or None (rules only)."""
         return self.model.odds if self.model is not None else None
 
 
-FeedRead = Literal["tail", "whole", None]
+FeedRead = Literal["tail", "whole"] | None
 
 
 def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = True) -> Inputs:
@@ -317,13 +324,14 @@ def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame |
     """
     if at is not None:
         return at.resolve(inputs.site.time_zone)
-    if frame is None:
-        frame = inputs.feed.frame if inputs.feed is not None else None
-    observed = frame["time"][frame["kind"] == "observed"] if frame is not None else pd.Series([], dtype=object)
-    if inputs.is_demo and frame is not None and len(frame):
-        return observed.iloc[-1] if len(observed) else frame["time"].iloc[0]
+    if frame is None and inputs.feed is not None:
+        frame = inputs.feed.frame
+    times = frame["time"] if frame is not None else pd.Series([], dtype="datetime64[ns, UTC]")
+    observed = times[frame["kind"] == "observed"] if frame is not None else times
+    if inputs.is_demo and len(times):
+        return pd.Timestamp(observed.iloc[-1] if len(observed) else times.iloc[0])
     now = pd.Timestamp.now(tz="UTC")
-    if len(observed) and observed.iloc[-1] > now + FUTURE_TOLERANCE:
+    if len(observed) and pd.Timestamp(observed.iloc[-1]) > now + FUTURE_TOLERANCE:
         raise FeedError(f"observed rows run until {observed.iloc[-1]:%Y-%m-%dT%H:%M}Z, after the current time",
                         source=inputs.feed.source if inputs.feed is not None else None,
                         hint="check the logger clock and time zone, or pass --at for a past instant")
@@ -346,10 +354,11 @@ class CheckResult:
 
 def _quality(inputs: Inputs, call: Call) -> dict:
     """The feed's quality summary for the JSON and the panel."""
-    quality = inputs.feed.quality.as_dict()
+    feed = inputs.require_feed()
+    quality = feed.quality.as_dict()
     age = call.features.get("data_age_min")
-    quality.update({"source": inputs.feed.source,
-                    "data_age_min": None if age is None or age != age else round(float(age), 2),
+    quality.update({"source": feed.source,
+                    "data_age_min": None if age is None or math.isnan(age) else round(float(age), 2),
                     "ok": bool(call.features.get("data_ok"))})
     return quality
 
@@ -362,12 +371,13 @@ def run_check(request: Request) -> CheckResult:
 
     inputs = load_inputs(request, read="tail")
     at = evaluation_time(inputs, request.at)
-    instant = evaluate_instant(inputs.feed.frame, at, inputs.site, inputs.registry, inputs.rules, inputs.freq_ghz,
+    feed = inputs.require_feed()
+    instant = evaluate_instant(feed.frame, at, inputs.site, inputs.registry, inputs.rules, inputs.freq_ghz,
                                inputs.odds)
     notes = inputs.notes
     if instant.next_window_in_hindsight:
         notes = (*notes, "Next window found in observations after the evaluation time (hindsight).")
-    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=inputs.feed.source,
+    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=feed.source,
                   is_demo=inputs.is_demo, data_quality=_quality(inputs, instant.call),
                   next_window=instant.next_window, notes=notes)
     return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)
@@ -396,11 +406,12 @@ def check_without_feed(request: Request, error: AdvisorError) -> CheckResult:
 
     located = load_inputs(request, read=None, with_model=False)
     source = str(located.feed_path)
-    inputs = replace(located, feed=empty_feed(source), is_demo=False, notes=())
+    feed = empty_feed(source)
+    inputs = replace(located, feed=feed, is_demo=False, notes=())
     at = evaluation_time(inputs, request.at)
-    instant = evaluate_without_weather(inputs.feed.frame, at, inputs.site, inputs.registry, inputs.rules,
+    instant = evaluate_without_weather(feed.frame, at, inputs.site, inputs.registry, inputs.rules,
                                        inputs.freq_ghz, f"The weather feed cannot be read: {error.one_line()}")
-    quality = inputs.feed.quality.as_dict()
+    quality = feed.quality.as_dict()
     quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
     ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=source, is_demo=False,
                   data_quality=quality, notes=())

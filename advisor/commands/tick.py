@@ -134,7 +134,7 @@ def cmd_tick(args) -> int:
         else:
             payload = change.headline + "\n\n" + text
         env = {"ADVISOR_VERDICT": call.verdict, "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
-               "ADVISOR_CHANGE": change.kind, "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
+               "ADVISOR_CHANGE": change.kind or "", "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
                "ADVISOR_STATE_DIR": str(state_dir.resolve())}
         problem = T.run_notify(argv, payload, site.tick.notify_timeout_s, env)
         if problem:

@@ -41,7 +41,9 @@ def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, regi
     next_window = None
     hindsight = False
     if int((frame["time"] > at_utc).sum()) >= 2:
-        from advisor.evaluation.outlook import next_windows_after  # only when the frame looks ahead
+        from advisor.evaluation.outlook import (
+            next_windows_after,  # only when the frame looks ahead
+        )
 
         next_window = next_windows_after(frame, at_utc, site, registry, rules, freq_ghz, odds=odds)
         hindsight = bool(next_window) and bool(((frame["kind"] == "observed") & (frame["time"] > at_utc)).any())
