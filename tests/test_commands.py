@@ -235,3 +235,12 @@ def test_rules_explain_reports_what_the_evaluation_decided(capsys, tmp_path, mon
     assert "7 µm (added)" in block
     before = next(b for b in plain.split("\n\n") if b.split()[1] == chosen["id"])
     assert before.startswith("false") and "(not added)" in before
+
+
+@pytest.mark.parametrize("command", [["check"], ["outlook"], ["rules", "explain"]])
+def test_every_evaluating_command_refuses_observations_after_now(capsys, command):
+    """One default evaluation time: without --at, a feed observed into the future is refused alike."""
+    feed = ROOT / "tests" / "bad_inputs" / "feed_in_the_future.csv"
+    status, out, err = run_cli(capsys, *command, "--feed", feed)
+    assert status == 2 and out == ""
+    assert err.startswith("advisor: error: ") and "after the current time" in err and str(feed) in err
