@@ -56,7 +56,7 @@ def main(argv=None) -> int:
     import pandas as pd
     from rich.console import Console
 
-    from advisor.commands.main import load_ruleset
+    from advisor.commands.session import load_ruleset
     from advisor.io.feed import canonical_frame
     from advisor.evaluation.outlook import compute_outlook
     from advisor.io.references import read_registry

@@ -120,7 +120,7 @@ def bench_rules_vs_loop(repeat: int, rows: int = 20_000) -> dict:
     import numpy as np
     import pandas as pd
 
-    from advisor.commands.main import load_ruleset
+    from advisor.commands.session import load_ruleset
     from advisor.features import columns_of, compute_features
     from advisor.io.feed import read_feed
     from advisor.io.references import read_registry

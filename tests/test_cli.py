@@ -11,7 +11,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from advisor.commands.main import parse_frequency_ghz
+from advisor.commands.session import parse_frequency_ghz
 from advisor.errors import UsageError
 
 from .conftest import NIGHT_UTC, weather_table, run_cli
@@ -163,7 +163,7 @@ class _FakeTTY:
 
 
 def test_colour_only_on_a_terminal_and_never_with_no_color(monkeypatch):
-    from advisor.commands.main import _want_color
+    from advisor.commands.session import want_color as _want_color
 
     monkeypatch.delenv("NO_COLOR", raising=False)
     assert _want_color(_FakeTTY())

@@ -128,7 +128,7 @@ def test_replay_scores_the_demo_history(capsys):
 
 def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules, tmp_path):
     """--compare-rules computes the features once; the verdicts must equal separate replays."""
-    from advisor.commands.main import load_ruleset
+    from advisor.commands.session import load_ruleset
     from advisor.io.feed import read_feed
     from advisor.io.references import read_registry
     from advisor.evaluation.replay import replay_rule_sets, replay_verdicts

@@ -11,7 +11,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from advisor.commands.main import load_ruleset
+from advisor.commands.session import load_ruleset
 from advisor.commands.rules import rule_files
 from advisor.features import CATALOGUE, FEATURES
 from advisor.rules.loader import lint_files

@@ -24,7 +24,7 @@ def _random_columns(n: int, seed: int) -> dict[str, np.ndarray]:
     rng = np.random.default_rng(seed)
     out: dict[str, np.ndarray] = {}
     for spec in FEATURES:
-        if spec.scope != "row":
+        if spec.scope == "target":
             continue
         if spec.unit == "flag":
             out[spec.name] = rng.random(n) < 0.3

@@ -1,32 +1,31 @@
-"""``advisor train`` and ``advisor model show``, and the model that ``check`` uses.
+"""``advisor train`` and ``advisor model show``: fitting and inspecting the site model.
 
 ``train`` fits the site model on a history of past attempts (scikit-learn, imported only when
 ``train`` runs); ``model show`` prints what a model file was trained on and its coefficients in
-plain units; :func:`model_for_check` picks and loads the model for ``check`` (``--model``, the
-site's ``model.path``, or none), falling back to rules only — and saying so — when the file is
-unusable.  Nothing here imports scikit-learn at module level: ``check`` stays light.
+plain units.  Which model ``check`` uses is decided in :func:`advisor.commands.session.model_for`.
 """
 
 from __future__ import annotations
 
 import argparse
-import sys
-from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
-from advisor.errors import ModelError, UsageError
+from advisor.commands import session
+from advisor.errors import UsageError
 from advisor.features import CATALOGUE
-from advisor.model.inference import SCHEMA_VERSION, METHOD_LABELS, SiteModel, dumps_model, load_model, parse_model, unit_text
-
-NO_MODEL = ("none", "off")
+from advisor.model.inference import SCHEMA_VERSION, METHOD_LABELS, dumps_model, load_model, parse_model, unit_text
 
 
-def add_parser(sub, add_evaluation_options=None) -> None:
-    """Register ``train`` and ``model`` on the top-level subparsers."""
+def add_parser(sub, name: str, help: str) -> None:
+    """Register ``train`` or ``model`` (this module owns both) on the top-level subparsers."""
+    {"train": _add_train, "model": _add_model}[name](sub, name, help)
+
+
+def _add_train(sub, name: str, help: str) -> None:
     train = sub.add_parser(
-        "train", help="fit the site model on the site's past attempts",
+        name, help=help,
         description="Fit a small classifier per method (standardised logistic regression) on past attempts, "
                     "print cross-validated metrics and write it as plain JSON.",
         epilog="History columns: time (ISO 8601 with Z/offset), method (scan|astronomical), usable (yes/no) "
@@ -44,46 +43,14 @@ def add_parser(sub, add_evaluation_options=None) -> None:
                        help="judge rows without 'usable' (or usable_max_rms_um) by residual_rms_um <= UM")
     train.set_defaults(func=cmd_train)
 
-    model = sub.add_parser("model", help="inspect a site model file",
-                           description="Inspect a site model written by 'advisor train'.")
+
+def _add_model(sub, name: str, help: str) -> None:
+    model = sub.add_parser(name, help=help, description="Inspect a site model written by 'advisor train'.")
     actions = model.add_subparsers(dest="action", metavar="ACTION")
     show = actions.add_parser("show", help="what a model was trained on, its metrics and coefficients")
     show.add_argument("path", metavar="MODEL.json")
     show.set_defaults(func=cmd_model_show)
-    model.set_defaults(func=lambda args: _missing_action(model))
-
-
-def _missing_action(parser: argparse.ArgumentParser) -> int:
-    parser.print_usage(sys.stderr)
-    print(f"{parser.prog}: error: choose an action (see --help)", file=sys.stderr)
-    return 2
-
-
-# --- check ---------------------------------------------------------------------------------
-
-def model_for_check(option: str | None, site, notes: list[str],
-                    demo_model_on_other_feed: bool = False) -> SiteModel | None:
-    """The model ``check`` uses: ``--model FILE`` / ``--model none``, else the site's model.
-
-    An unusable file is reported on stderr and in ``notes``; the call then rests on the rules.
-    """
-    if option is not None and option.strip().lower() in NO_MODEL:
-        notes.append("Site model switched off (--model none): the call rests on rules and the error budget only.")
-        return None
-    path = Path(option) if option is not None else site.model_path
-    if path is None:
-        return None
-    try:
-        model = load_model(path)
-    except ModelError as exc:
-        print(f"advisor: warning: {exc.one_line()}; falling back to rules only", file=sys.stderr)
-        what = f"{exc.field}: {exc.message}" if exc.field else exc.message
-        where = f"{exc.location()}: " if exc.location() else ""
-        notes.append(f"Site model not used ({where}{what}): the call rests on rules and the error budget only.")
-        return None
-    if demo_model_on_other_feed and option is None:
-        notes.append("The odds come from the demo site's model, trained on an invented history.")
-    return model
+    model.set_defaults(func=lambda args: session.missing_action(model))
 
 
 # --- train ---------------------------------------------------------------------------------
@@ -120,10 +87,10 @@ def _coefficient_lines(method_model) -> list[str]:
 
 
 def cmd_train(args: argparse.Namespace) -> int:
-    from advisor.model import training
     from advisor.io.feed import read_feed
     from advisor.io.fileio import atomic_write_text
     from advisor.io.site import load_site
+    from advisor.model import training
 
     site = load_site(args.site)
     if args.usable_below_um is not None and not (np.isfinite(args.usable_below_um) and args.usable_below_um > 0):
@@ -131,11 +98,9 @@ def cmd_train(args: argparse.Namespace) -> int:
                          field="--usable-below-um")
     history = training.read_history(args.history, args.usable_below_um)
     feed = None
-    meta = {"site": site.name, "features_from": "history's own weather columns"}
+    meta: dict[str, object] = {"site": site.name, "features_from": "history's own weather columns"}
     if args.feed:
-        # As for check: the demo logger's local time zone is never guessed onto another feed.
-        layout = replace(site.feed, time_zone=None) if site.is_demo else site.feed
-        feed = read_feed(Path(args.feed), layout)
+        feed = read_feed(Path(args.feed), session.feed_layout(site, named_on_command_line=True))
         meta["features_from"] = "archive feed"
         meta["feed"] = {"file": Path(args.feed).name, "sha256": training.sha256_of(Path(args.feed))}
     if args.usable_below_um is not None:

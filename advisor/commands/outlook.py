@@ -3,10 +3,10 @@
     advisor outlook [--feed FEED] [--forecast FILE] --freq 86 [--from T] [--hours 24]
                     [--min-duration-min N] [--json | --csv] [--svg FILE]  (+ every option of check)
 
-The shell around :mod:`advisor.evaluation.outlook` and its views (``advisor.views.outlook_*``):
-loads the inputs exactly as ``check`` does, adds the forecast file (``--forecast``, or the
-site's ``forecast.path`` when the site's own feed is read) and the forecast rows' issue times,
-then prints one of the views. Exit status 0 when an outlook was printed, 2 on bad input.
+The shell around :mod:`advisor.evaluation.outlook`: loads the inputs exactly as ``check`` does, adds the
+forecast file (``--forecast``, or the site's ``forecast.path`` when the site's own feed is
+read) and the forecast rows' issue times, then prints one of the views.  Exit status 0 when
+an outlook was printed, 2 on bad input.
 """
 
 from __future__ import annotations
@@ -15,32 +15,30 @@ import argparse
 import json
 import shutil
 import sys
-from dataclasses import replace
 from pathlib import Path
 
-import pandas as pd
-
+from advisor.commands import session
+from advisor.commands.helpformat import HelpFormatter
 from advisor.errors import UsageError
 from advisor.io.fileio import atomic_write_text
-from advisor.commands.helpformat import HelpFormatter
 
 MAX_HOURS = 31 * 24.0
 
 
-def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
+def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
     """Register ``outlook`` on the ``advisor`` subparsers."""
     p = sub.add_parser(
-        "outlook", help="the call at every forecast step and the next window for each method",
+        name, help=help,
         description="Evaluate every step of a forecast with the same rules as check; print a timeline "
                     "strip (one letter per step: S scan, A astronomical, P postpone, U undetermined, "
                     "? gap), the windows for each method and the next one.",
         epilog="Exit status: 0 outlook printed; 2 bad input or usage. Advisory only - not a safety system.",
         formatter_class=HelpFormatter)
-    add_evaluation_options(p)
+    session.add_evaluation_options(p)
     p.add_argument("--forecast", metavar="FILE", help="forecast file read beside the feed, in the feed's format "
                    "(default: the site's forecast.path when the site's own feed is read)")
-    p.add_argument("--from", dest="from_", metavar="TIME", help="first step, ISO 8601 with Z or offset "
-                   "(default: --at, else now; the demo feed's last sample for the demo)")
+    p.add_argument("--from", dest="from_", metavar="TIME", help=session.time_help(
+                   "first step (default: --at, else now; the demo feed's last sample for the demo)"))
     p.add_argument("--hours", default="24", metavar="H", help="how far to look ahead [h] (default 24)")
     p.add_argument("--min-duration-min", metavar="N", help="offer only windows at least N minutes long "
                    "(never shorter than the method's duration + the site's settling time)")
@@ -64,14 +62,6 @@ def _positive_number(text: str | None, option: str, lo: float, hi: float, defaul
     return value
 
 
-def _odds_of(inputs):
-    """The classifier's odds function when ``load_inputs`` provides one (else rules only)."""
-    odds = getattr(inputs, "odds", None)
-    if odds is None and getattr(inputs, "model", None) is not None:
-        odds = inputs.model.odds
-    return odds
-
-
 def _svg_target(text: str | None) -> Path | None:
     if text is None:
         return None
@@ -84,51 +74,40 @@ def _svg_target(text: str | None) -> Path | None:
 
 
 def cmd_outlook(args: argparse.Namespace) -> int:
-    from advisor.commands.main import _want_color, load_inputs, parse_at
-    from advisor.io.feed import read_feed
     from advisor.evaluation.outlook import combine_frames, compute_outlook
-    from advisor.io.references import read_registry
+    from advisor.io.feed import read_feed
     from advisor.views.context import Context
     from advisor.views.outlook_data import outlook_csv_frame, outlook_json
     from advisor.views.outlook_plain import render_plain_outlook
     from advisor.views.outlook_rich import outlook_renderable, outlook_svg
 
-    hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0)
+    hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0) or 24.0  # never None: has a default
     min_dur = _positive_number(args.min_duration_min, "--min-duration-min", 0.0, 7 * 1440.0, None)
     svg = _svg_target(args.svg)
     if args.from_ is not None and args.at is not None:
         raise UsageError("give --from or --at, not both", field="--from", hint="--from is the first step of the outlook")
-    try:
-        start = parse_at(args.from_)
-    except UsageError as exc:
-        raise UsageError(exc.message, field="--from", hint=exc.hint) from None
-    start = start if start is not None else parse_at(args.at)
+    from_option = session.parse_time(args.from_, "--from")
+    request = session.request_from(args)
+    start_option = from_option or request.at
 
-    inputs = load_inputs(args)
+    inputs = session.load_inputs(request, read="whole")
     site = inputs.site
-    layout = site.feed if not (site.is_demo and args.feed is not None) else replace(site.feed, time_zone=None)
-    column = site.forecast.issue_time_column
-    frame = inputs.feed.frame                    # issue times were read with the feed
-    forecast_path = Path(args.forecast) if args.forecast else (site.forecast.path if args.feed is None else None)
-    sources = [inputs.feed.source]
+    feed = inputs.require_feed()
+    frame = feed.frame                           # issue times were read with the feed
+    # The site's forecast file goes with the site's own feed; --forecast names one explicitly.
+    forecast_path = Path(args.forecast) if args.forecast else (site.forecast.path if request.feed_path is None else None)
+    sources = [feed.source]
     if forecast_path is not None:
-        fc_layout = layout if args.forecast is None else (
-            replace(site.feed, time_zone=None) if site.is_demo else site.feed)
-        fc = read_feed(forecast_path, fc_layout, issue_time_column=column)
+        fc = read_feed(forecast_path, session.feed_layout(site, named_on_command_line=args.forecast is not None),
+                       issue_time_column=site.forecast.issue_time_column)
         frame = combine_frames(frame, fc.frame)
         sources.append(fc.source)
-    if start is None:
-        if inputs.is_demo:
-            observed = frame[frame["kind"] == "observed"]
-            start = observed["time"].iloc[-1] if len(observed) else frame["time"].iloc[0]
-        else:
-            start = pd.Timestamp.now(tz="UTC")
+    start = session.evaluation_time(inputs, start_option, frame)
 
-    registry = read_registry(inputs.registry_path)
-    outlook = compute_outlook(frame, start, hours, site, registry, inputs.rules, inputs.freq_ghz,
-                              odds=_odds_of(inputs), min_duration_min=min_dur, source=" + ".join(sources))
-    quality = inputs.feed.quality.as_dict()
-    quality["source"] = inputs.feed.source
+    outlook = compute_outlook(frame, start, hours, site, inputs.registry, inputs.rules, inputs.freq_ghz,
+                              odds=inputs.odds, min_duration_min=min_dur, source=" + ".join(sources))
+    quality = feed.quality.as_dict()
+    quality["source"] = feed.source
     ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=" + ".join(sources),
                   is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
 
@@ -137,7 +116,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
         print(json.dumps(outlook_json(outlook, ctx), indent=2, allow_nan=False))
     elif args.csv:
         outlook_csv_frame(outlook).to_csv(sys.stdout, index=False, lineterminator="\n")
-    elif _want_color(sys.stdout):
+    elif session.want_color(sys.stdout):
         from rich.console import Console
 
         console = Console()
@@ -145,15 +124,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
     else:
         width = shutil.get_terminal_size((100, 24)).columns
         sys.stdout.write(render_plain_outlook(outlook, ctx, width))
-    if svg_text is not None:
+    if svg is not None and svg_text is not None:
         atomic_write_text(svg, svg_text)
         print(f"advisor: saved the outlook picture to {svg}", file=sys.stderr)
     return 0
-
-
-def next_window_for_check(inputs, at_utc: pd.Timestamp, registry) -> dict | None:
-    """``check``'s ``next_window`` when its feed carries rows after ``at_utc`` (None otherwise)."""
-    from advisor.evaluation.outlook import next_windows_after
-
-    site = inputs.site
-    return next_windows_after(inputs.feed.frame, at_utc, site, registry, inputs.rules, inputs.freq_ghz, odds=_odds_of(inputs))

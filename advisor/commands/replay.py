@@ -11,33 +11,34 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 
-from advisor.decision import VERDICTS
-from advisor.evaluation.evaluate import Scenario
-from advisor.features import FEATURES_VERSION, feature_source_paths
-from advisor.io import featurecache
+from advisor.commands import session
 from advisor.errors import UsageError
+from advisor.io import featurecache
 from advisor.io.feed import check_whole_read, read_feed
-from advisor.io.references import read_registry
 from advisor.io.history import read_history
+from advisor.vocabulary import VERDICTS
+from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import (attempts_from_history, compare_rule_sets, dominant_by_month_hour, hours_by,
                                        month_keys, replay_features, replay_from_features, score_attempts, step_hours)
+from advisor.features import FEATURES_VERSION, feature_source_paths
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
 
 
-def add_parser(sub, add_evaluation_options) -> None:
+def add_parser(sub, name: str, help: str) -> None:
+    """Register ``advisor replay``."""
     p = sub.add_parser(
-        "replay", help="replay an archive: hours per verdict, scores against attempts, rule-set changes",
+        name, help=help,
         description="Evaluate every row of a weather archive with the same rules and decision as "
                     "`check`, then summarise hours per verdict (by month and hour of day), score the "
                     "advice against recorded attempts, and compare two rule sets.")
-    add_evaluation_options(p, with_at=False)
+    session.add_evaluation_options(p, with_at=False)
     p.add_argument("--history", metavar="ATTEMPTS.csv",
                    help="recorded attempts: time, method (scan|astronomical), usable (yes/no)")
     p.add_argument("--compare-rules", metavar="FILE.yaml", nargs="+", action="extend",
                    help="a second rule set (layered like --rules) to compare with")
-    p.add_argument("--from", dest="time_from", metavar="TIME", help="first instant (ISO 8601 with Z/offset)")
-    p.add_argument("--to", dest="time_to", metavar="TIME", help="last instant (ISO 8601 with Z/offset)")
+    p.add_argument("--from", dest="time_from", metavar="TIME", help=session.time_help("first instant"))
+    p.add_argument("--to", dest="time_to", metavar="TIME", help=session.time_help("last instant"))
     p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
     p.add_argument("--csv", metavar="FILE", help="write one row per evaluated time: time, verdict")
     p.add_argument("--no-cache", action="store_true",
@@ -60,24 +61,24 @@ def _progress(total: int):
 
 
 def cmd_replay(args: argparse.Namespace) -> int:
-    from advisor.commands.main import load_inputs, load_ruleset, parse_at
-
-    if args.feed is None:
+    request = session.request_from(args)
+    if request.feed_path is None:
         raise UsageError("replay needs an archive", field="--feed", hint="pass --feed ARCHIVE.csv")
-    inputs = load_inputs(args, read=False)
-    t_from, t_to = parse_at(args.time_from), parse_at(args.time_to)
+    from_option = session.parse_time(args.time_from, "--from")
+    to_option = session.parse_time(args.time_to, "--to")
+    inputs = session.load_inputs(request, read=None)
+    zone = inputs.site.time_zone
+    t_from = from_option.resolve(zone) if from_option is not None else None
+    t_to = to_option.resolve(zone) if to_option is not None else None
     if t_from is not None and t_to is not None and t_to <= t_from:
         raise UsageError("--to must be after --from", field="--to")
-    registry = read_registry(inputs.registry_path)
-    scenario = Scenario(inputs.site, registry, inputs.rules, inputs.freq_ghz, getattr(inputs, "odds", None))
-    odds = getattr(inputs, "odds", None)
+    scenario = Scenario(inputs.site, inputs.registry, inputs.rules, inputs.freq_ghz, inputs.odds)
     rule_sets = [inputs.rules]
     if args.compare_rules:  # the same features serve both rule sets
-        rule_sets.append(load_ruleset(inputs.site, (args.rules or []) + args.compare_rules))
+        rule_sets.append(session.load_ruleset(inputs.site, [*request.rule_files, *args.compare_rules]))
     check_whole_read(inputs.feed_path)  # before hashing it for the cache
     key = featurecache.key_for(inputs.feed_path, Path(inputs.site.source), inputs.registry_path, {
-        "from": t_from, "to": t_to,
-        "time_zone": getattr(inputs.feed_layout, "time_zone", None)},
+        "from": t_from, "to": t_to, "time_zone": inputs.feed_layout.time_zone},
         code_paths=feature_source_paths(), features_version=FEATURES_VERSION)
     features = None if args.no_cache else featurecache.load(key)
     if features is None:
@@ -166,3 +167,8 @@ def _write_csv(path: str, times: pd.DatetimeIndex, verdict: np.ndarray, verdict_
         atomic_write_text(path, out.to_csv(index=False))
     except OSError as exc:
         raise UsageError(f"cannot write {path}: {exc.strerror}", field="--csv") from None
+
+
+
+def _pct(rate) -> str:
+    return "n/a" if rate is None else f"{rate:.0%}"

@@ -18,14 +18,15 @@ from pathlib import Path
 
 import numpy as np
 
+from advisor.commands import session
 from advisor.features import CATALOGUE, FEATURES
+from advisor.io.site import Site, load_site
 from advisor.rules.condition import (Call, Compare, Convert, Name, Node, Number, Unary, condition_parts, evaluate_row,
                                      names_in)
-from advisor.rules.loader import default_rule_files, lint_files
+from advisor.rules.loader import lint_files
 from advisor.rules.ruleset import MESSAGE_EXTRAS, RuleSet, format_message
-from advisor.io.site import Site, load_site
+from advisor.vocabulary import DEMO_BANNER, METHODS, VERDICT
 
-from advisor.vocabulary import DEMO_BANNER, METHODS
 #: How a unit of the catalogue is shown next to a number.
 _SHOWN_UNIT = {"degC": "°C", "delta_degC": "°C", "deg": "°", "um": "µm", "1": "", "%": "%",
                "degC/h": "°C/h"}
@@ -46,11 +47,10 @@ def _display_path(path: Path | str) -> str:
 
 
 def rule_files(site: Site, extra: list[str] | None) -> list[tuple[Path, str]]:
-    """The layered ``(file, layer)`` list, as :func:`advisor.commands.main.load_ruleset` loads it."""
-    files = [(Path(_display_path(p)), "default") for p in default_rule_files()]
-    files += [(Path(_display_path(p)), "site") for p in site.rule_paths]
-    files += [(Path(p), "command line") for p in (extra or [])]
-    return files
+    """The layered ``(file, layer)`` list of :func:`advisor.commands.session.rule_files`, files shown
+    relative to the working directory where they lie below it (as lint reports them)."""
+    return [(Path(_display_path(p)) if layer != "command line" else p, layer)
+            for p, layer in session.rule_files(site, extra)]
 
 
 class _Out:
@@ -164,7 +164,7 @@ def cmd_lint(args: argparse.Namespace) -> int:
         print(problem.one_line())
     n_err, n_warn = len(report.errors), len(report.warnings)
     if report.ruleset is not None:
-        layers = {}
+        layers: dict[str, int] = {}
         for rule in report.ruleset:
             layers[rule.layer] = layers.get(rule.layer, 0) + 1
         split = ", ".join(f"{n} {layer}" for layer, n in layers.items())
@@ -181,10 +181,9 @@ def cmd_lint(args: argparse.Namespace) -> int:
 
 
 def _load(args: argparse.Namespace) -> tuple[Site, RuleSet]:
-    from advisor.commands.main import load_ruleset
-
-    site = load_site(args.site)
-    return site, load_ruleset(site, args.rules)
+    request = session.request_from(args)
+    site = load_site(request.site_path)
+    return site, session.load_ruleset(site, request.rule_files)
 
 
 def cmd_show(args: argparse.Namespace) -> int:
@@ -214,12 +213,14 @@ def cmd_show(args: argparse.Namespace) -> int:
 
 
 def cmd_explain(args: argparse.Namespace) -> int:
-    """Every rule's condition at one instant, with the numbers behind it."""
-    from advisor.commands.main import run_check
-    from advisor.vocabulary import VERDICT
+    """Every rule's condition at one instant, with the numbers behind it.
 
-    result = run_check(args)
-    call, rules = result.call, result.inputs.rules
+    Which rules fired and the error terms they added come from the evaluation itself (the
+    decisions ``check`` makes); the condition tree only supplies the numbers behind each part.
+    """
+    result = session.run_check(session.request_from(args))
+    call, decisions = result.call, result.decisions
+    fired_of, error_of = decisions.rule_eval.fired, decisions.rule_eval.error_um
     row = {k: v for k, v in call.features.items()}
     columns = {name: np.asarray([row[name]]) for name in CATALOGUE if name in row}
     out = _Out()
@@ -228,10 +229,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     out.line(f"verdict: {VERDICT[call.verdict].label} — {call.headline}")
     if result.inputs.is_demo:
         out.line(DEMO_BANNER)
-    evaluated = []
-    for rule in rules:
-        fired = bool(rule.condition.evaluate(columns, length=1)[0])
-        evaluated.append((rule, fired))
+    evaluated = [(rule, bool(fired_of[rule.id][0])) for rule in decisions.rules]
     n_fired = sum(f for _, f in evaluated)
     out.line(f"{len(evaluated)} rules: {n_fired} true, {len(evaluated) - n_fired} false (true ones first)")
     for rule, fired in sorted(evaluated, key=lambda rf: not rf[1]):
@@ -247,7 +245,10 @@ def cmd_explain(args: argparse.Namespace) -> int:
             out.line(f"         {text}: {value}" + (f"  ({numbers})" if numbers else ""), indent=13)
         used = set(rule.condition.names)
         if rule.error is not None:
-            term = float(rule.error.evaluate(columns, length=1)[0]) * rule.error_scale
+            if fired:       # the term the decision added
+                term = float(error_of[rule.id][0])
+            else:           # what the term would be: the decision added nothing
+                term = float(rule.error.evaluate(columns, length=1)[0]) * rule.error_scale
             state = "added" if fired else "not added"
             shown = f"{_number(term)} µm" if rule.error_text == _number(term) else \
                 f"{rule.error_text} = {_number(term)} µm"
@@ -272,8 +273,9 @@ def _shown_in_parts(ast: Node) -> set[str]:
         elif isinstance(inner, Compare) and len(inner.ops) == 1:
             names = [names_in(side) for side in inner.operands]
             for side, other in ((0, 1), (1, 0)):
-                if isinstance(inner.operands[side], Name) and not names[other]:
-                    shown.add(inner.operands[side].name)
+                operand = inner.operands[side]
+                if isinstance(operand, Name) and not names[other]:
+                    shown.add(operand.name)
     return shown
 
 
@@ -300,11 +302,9 @@ def cmd_features(args: argparse.Namespace) -> int:
 # --------------------------------------------------------------------------- registration
 
 
-def add_parser(sub, add_evaluation_options) -> None:
-    """Register ``advisor rules`` and its actions on the top-level subparsers."""
-    from advisor.commands.main import _missing_action
-
-    rules = sub.add_parser("rules", help="lint, show and explain the rule set",
+def add_parser(sub, name: str, help: str) -> None:
+    """Register ``advisor rules`` and its actions."""
+    rules = sub.add_parser(name, help=help,
                            description="The YAML rule set: check it, see what is in effect, see why it "
                                        "fired, and list what conditions may use. Syntax: docs/rules.md.")
     actions = rules.add_subparsers(dest="rules_action", metavar="ACTION")
@@ -332,7 +332,7 @@ def add_parser(sub, add_evaluation_options) -> None:
     explain = actions.add_parser("explain", help="every rule's condition at one instant, with its numbers",
                                  description="Evaluate the feed at one instant (options as for check) and "
                                              "show every rule: its condition's value and the numbers behind it.")
-    add_evaluation_options(explain)
+    session.add_evaluation_options(explain)
     explain.set_defaults(func=cmd_explain)
 
     features = actions.add_parser("features", help="the feature names conditions may use",
@@ -340,7 +340,7 @@ def add_parser(sub, add_evaluation_options) -> None:
                                               "its unit and meaning.")
     features.set_defaults(func=cmd_features)
 
-    rules.set_defaults(func=lambda a: _missing_action(rules))
+    rules.set_defaults(func=lambda a: session.missing_action(rules))
 
 
 __all__ = ["add_parser", "rule_files", "cmd_lint", "cmd_show", "cmd_explain", "cmd_features"]

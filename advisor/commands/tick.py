@@ -13,10 +13,11 @@ import argparse
 import json
 import os
 import sys
-from dataclasses import replace
 from pathlib import Path
 
+from advisor.commands import session
 from advisor.commands.helpformat import HelpFormatter
+from advisor.errors import FeedError, InsufficientData, UsageError
 
 EXIT_HELP = """exit status:
   0   scan            take a laser scan now
@@ -32,15 +33,15 @@ stdout is empty unless the advice changed (or --always), so cron mails only chan
 and errors go to stderr.  Advisory only - not a safety system."""
 
 
-def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
+def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
     """Register ``advisor tick`` on the subcommand table ``sub``."""
     p = sub.add_parser(
-        "tick", help="one cron/timer run: keep the advisory in a state dir, speak only on change",
+        name, help=help,
         description="Evaluate the latest feed, write DIR/advisory.json, .txt and .html atomically, append "
                     "DIR/history.jsonl, and print (and run the site's notify command) only when the verdict "
                     "changed since the last run.",
         epilog=EXIT_HELP, formatter_class=HelpFormatter)
-    add_evaluation_options(p)
+    session.add_evaluation_options(p)
     p.add_argument("--json", action="store_true", help="when printing, print the advisory JSON object")
     p.add_argument("--state-dir", required=True, metavar="DIR",
                    help="folder for the advisory, history and state (created if its parent exists)")
@@ -53,58 +54,12 @@ def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
     return p
 
 
-def _empty_feed(source: str):
-    """A canonical feed with no rows (the feed file could not be read)."""
-    import pandas as pd
-
-    from advisor.io.feed import Feed, FeedQuality, canonical_frame
-    from advisor.io.site import FeedLayout
-
-    # A one-row canonical table gives the frame its columns and dtypes; the row is dropped.
-    table = pd.DataFrame({"time": ["2000-01-01T00:00:00Z"], "wind_mean_ms": [0.0], "wind_gust_ms": [0.0],
-                          "air_temp_c": [0.0], "rel_humidity_pct": [50.0]})
-    frame = canonical_frame(table, FeedLayout()).frame.iloc[:0]
-    return Feed(frame=frame, quality=FeedQuality(0, 0, 0, 0, 0, 0, None, None), source=source)
-
-
-def _without_feed(args, error):
-    """The undetermined call when the feed itself cannot be read, with the reason why."""
-    import pandas as pd
-
-    from advisor.commands.main import CheckResult, Inputs, load_ruleset, parse_at, parse_frequency_ghz
-    from advisor.decision import EXIT_CODES, Reason, explain
-    from advisor.evaluation.evaluate import evaluate
-    from advisor.io.references import read_registry
-    from advisor.views.context import Context
-    from advisor.io.site import load_site
-
-    freq = parse_frequency_ghz(args.freq)
-    site = load_site(args.site)
-    source = str(args.feed or site.feed.path)
-    feed = _empty_feed(source)
-    rules = load_ruleset(site, args.rules)
-    registry_path = Path(args.references) if args.references else site.references_path
-    at = parse_at(args.at) or pd.Timestamp.now(tz="UTC")
-    decisions = evaluate(feed.frame, pd.DatetimeIndex([at]), site, read_registry(registry_path), rules, freq)
-    call = explain(decisions, 0)
-    why = Reason("feed", "both", "block", f"The weather feed cannot be read: {error.one_line()}")
-    call = replace(call, reasons=[why] + [r for r in call.reasons if r.rule != "data"])
-    quality = feed.quality.as_dict()
-    quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
-    inputs = Inputs(site, feed, rules, registry_path, freq, False, ())
-    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=source, is_demo=False,
-                  data_quality=quality, notes=())
-    return CheckResult(call, ctx, EXIT_CODES[call.verdict], inputs)
-
-
-def _evaluate(args):
-    from advisor.commands.main import run_check
-    from advisor.errors import FeedError, InsufficientData
-
+def _evaluate(request: session.Request) -> session.CheckResult:
+    """``check``'s result; an unreadable feed gives the undetermined call instead of an input error."""
     try:
-        return run_check(args)
+        return session.run_check(request)
     except (FeedError, InsufficientData) as exc:
-        return _without_feed(args, exc)
+        return session.check_without_feed(request, exc)
 
 
 def _warn(message: str) -> None:
@@ -114,7 +69,6 @@ def _warn(message: str) -> None:
 def cmd_tick(args) -> int:
     from datetime import datetime, timezone
 
-    from advisor.commands.main import _want_color
     from advisor.evaluation import advisory
     from advisor.io import notify, statedir
     from advisor.views.advisory import advisory_html, advisory_json, advisory_title, issued_line
@@ -124,9 +78,8 @@ def cmd_tick(args) -> int:
     from advisor.views.plain import render_plain
     from advisor.vocabulary import VERDICT
 
+    request = session.request_from(args)
     if not args.lock_wait >= 0:
-        from advisor.errors import UsageError
-
         raise UsageError(f"--lock-wait {args.lock_wait:g} must be zero or more seconds", field="--lock-wait")
     state_dir = Path(args.state_dir)
     try:
@@ -134,7 +87,7 @@ def cmd_tick(args) -> int:
             leftovers = statedir.remove_leftover_temps(state_dir)
             if leftovers:
                 _warn(f"{state_dir}: removed {len(leftovers)} temp file(s) left by an interrupted run")
-            result = _evaluate(args)
+            result = _evaluate(request)
             call, site = result.call, result.inputs.site
             now = datetime.now(timezone.utc)
             previous, warning = statedir.read_state(state_dir, now, advisory.parse_state)
@@ -174,7 +127,7 @@ def cmd_tick(args) -> int:
             f"advisor tick: no change: {VERDICT[call.verdict].label} since {advisory.short_utc(change.state.since_utc)}")
         if args.json:
             print(json.dumps({**doc, "change": change.kind, "headline": headline}, indent=2, allow_nan=False))
-        elif _want_color(sys.stdout):
+        elif session.want_color(sys.stdout):
             from rich.console import Console
 
             print(headline)
@@ -189,7 +142,7 @@ def cmd_tick(args) -> int:
         else:
             payload = change.headline + "\n\n" + text
         env = {"ADVISOR_VERDICT": call.verdict, "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
-               "ADVISOR_CHANGE": change.kind, "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
+               "ADVISOR_CHANGE": change.kind or "", "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
                "ADVISOR_STATE_DIR": str(state_dir.resolve())}
         problem = notify.run_notify(argv, payload, site.tick.notify_timeout_s, env)
         if problem:

@@ -1,0 +1,418 @@
+"""Beneath every command: the shared options, parsed once into a :class:`Request`, and the inputs
+loaded once from it (:func:`load_inputs`).
+
+Each boundary rule of the command line is written here and only here:
+
+* how a frequency and a time are read from the command line (:func:`parse_frequency_ghz`,
+  :func:`parse_time`; messages name the option that was wrong);
+* which feed is read and how: the site's feed unless ``--feed`` names one, and a file named on
+  the command line is never read with the demo logger's local time zone (:func:`feed_layout`);
+* rule layering: defaults → the site's files → ``--rules`` files (:func:`rule_files`);
+* which site model gives the odds (:func:`model_for`);
+* the default evaluation time: the demo feed's last observation for the demo, else now — and
+  a feed whose observations run into the future is refused (:func:`evaluation_time`);
+* the call at one instant, shared by ``check``, ``tick`` and ``rules explain`` (:func:`run_check`),
+  and the undetermined call when the feed itself cannot be read (:func:`check_without_feed`).
+
+Command modules import this module, never each other.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import math
+import os
+import re
+import sys
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import TYPE_CHECKING, Literal
+from zoneinfo import ZoneInfo
+
+import pandas as pd
+
+from advisor.errors import AdvisorError, FeedError, ModelError, UsageError
+from advisor.io.feed import CHECK_TAIL_BYTES, Feed, FeedQuality, read_feed
+from advisor.io.references import Registry, parse_time_utc, read_registry
+from advisor.io.site import FeedLayout, Site, load_site
+
+if TYPE_CHECKING:
+    from advisor.decision import Call, Decisions
+    from advisor.model.inference import SiteModel
+    from advisor.rules.ruleset import RuleSet
+    from advisor.views.context import Context
+
+# --------------------------------------------------------------------------- option parsers
+
+DEFAULT_FREQ_GHZ = 86.0
+FREQ_RANGE_GHZ = (1.0, 1000.0)
+FUTURE_TOLERANCE = pd.Timedelta(minutes=5)  # logger clocks may run a little fast
+NO_MODEL = ("none", "off")
+#: Words a time option accepts besides ISO 8601: ``now``, and the start of a day counted back.
+DAY_WORDS = {"today": 0, "yesterday": 1}
+TIME_FORMS = "ISO 8601 with Z or an offset, 'now', or 'today'/'yesterday' (00:00 site time)"
+
+_FREQ = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][-+]?\d+)?)\s*([A-Za-zµ]*)\s*$")
+_FREQ_UNITS_GHZ = {"": 1.0, "ghz": 1.0, "mhz": 1e-3, "thz": 1e3}
+_WAVE_UNITS_MM = {"mm": 1.0, "cm": 10.0, "um": 1e-3, "µm": 1e-3, "m": 1000.0}
+
+
+def parse_frequency_ghz(text: str, field: str = "--freq") -> float:
+    """``86``, ``86GHz``, ``86 GHz`` or a wavelength like ``3.5mm`` → frequency [GHz]."""
+    m = _FREQ.match(str(text))
+    if not m:
+        raise UsageError(f"cannot read frequency {text!r}", field=field,
+                         hint="write e.g. 86, 86GHz or a wavelength like 3.5mm")
+    value, unit = float(m.group(1)), m.group(2)
+    key = unit.lower() if unit != "µm" else unit
+    if key in _FREQ_UNITS_GHZ:
+        ghz = value * _FREQ_UNITS_GHZ[key]
+    elif key in _WAVE_UNITS_MM:
+        mm = value * _WAVE_UNITS_MM[key]
+        if mm <= 0:
+            raise UsageError(f"wavelength {text!r} must be positive", field=field)
+        ghz = 299_792_458.0 / (mm * 1e-3) / 1e9
+    else:
+        raise UsageError(f"unknown unit {unit!r} in frequency {text!r}", field=field,
+                         hint="use GHz, MHz, THz, or a wavelength in mm/cm")
+    lo, hi = FREQ_RANGE_GHZ
+    if not lo <= ghz <= hi:
+        raise UsageError(f"frequency {ghz:g} GHz is outside {lo:g}..{hi:g} GHz", field=field,
+                         hint="give the observing frequency, e.g. 86")
+    return ghz
+
+
+@dataclass(frozen=True)
+class TimeOption:
+    """A time given on the command line: an instant, or the start of a day counted back from today.
+
+    ``today`` and ``yesterday`` mean 00:00 in the site's time zone, so they are resolved once the
+    site is known (:meth:`resolve`); every other form is an instant already.
+    """
+
+    field: str                        # the option it came from, e.g. "--from"
+    text: str
+    instant_utc: pd.Timestamp | None = None
+    days_back: int | None = None      # 0 today, 1 yesterday
+
+    def resolve(self, time_zone: str | None, now_utc: pd.Timestamp | None = None) -> pd.Timestamp:
+        """The UTC instant; day words are midnight in ``time_zone`` (UTC when None)."""
+        if self.instant_utc is not None:
+            return self.instant_utc
+        zone = ZoneInfo(time_zone or "UTC")
+        now = (now_utc if now_utc is not None else pd.Timestamp.now(tz="UTC")).tz_convert(zone)
+        day = now.date() - dt.timedelta(days=self.days_back or 0)
+        return pd.Timestamp(dt.datetime.combine(day, dt.time(0), tzinfo=zone)).tz_convert("UTC")
+
+
+def parse_time(text: str | None, field: str) -> TimeOption | None:
+    """A time option (``--at``, ``--from``, ``--to``, ``--time``); ``None`` stays None.
+
+    Accepts ISO 8601 with ``Z`` or an offset, ``now``, ``today`` or ``yesterday``; anything else
+    is a :class:`UsageError` naming ``field``.
+    """
+    if text is None:
+        return None
+    word = str(text).strip().lower()
+    if word == "now":
+        return TimeOption(field, text, instant_utc=pd.Timestamp.now(tz="UTC"))
+    if word in DAY_WORDS:
+        return TimeOption(field, text, days_back=DAY_WORDS[word])
+    try:
+        return TimeOption(field, text, instant_utc=parse_time_utc(text))
+    except Exception:  # noqa: BLE001 - pandas raises several types for garbage
+        raise UsageError(f"cannot read time {text!r}", field=field,
+                         hint="write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z, "
+                              "or now, today, yesterday") from None
+
+
+def time_help(what: str) -> str:
+    """The help text of a time option: what it is, then the forms it accepts."""
+    return f"{what}: {TIME_FORMS}"
+
+
+def add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) -> None:
+    """The options every evaluating command shares (``check`` and those that say "options as for check")."""
+    p.add_argument("--feed", metavar="FEED", help="weather feed, CSV or JSON Lines (default: the site's feed)")
+    p.add_argument("--site", metavar="SITE.yaml", help="site file (default: the bundled invented demo site)")
+    p.add_argument("--freq", default="86", metavar="FREQ",
+                   help="target frequency: 86, 86GHz, or a wavelength like 3.5mm (default 86 GHz)")
+    if with_at:
+        p.add_argument("--at", metavar="TIME", help=time_help(
+            "evaluation time (default: now; the last sample for the demo feed)"))
+    p.add_argument("--references", metavar="REFS.csv", help="reference-scan registry (default: the site's)")
+    p.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
+                   help="extra rule files layered over the defaults and the site's")
+    p.add_argument("--model", metavar="MODEL.json", help="site model giving p_usable (default: the site's "
+                   "model.path; 'none' for rules only)")
+
+
+def missing_action(parser: argparse.ArgumentParser) -> int:
+    """A command with actions called without one: usage and one line on stderr, exit 2."""
+    parser.print_usage(sys.stderr)
+    print(f"{parser.prog}: error: choose an action (see --help)", file=sys.stderr)
+    return 2
+
+
+def want_color(stream) -> bool:
+    """Colour only on a terminal, and never with ``NO_COLOR`` set."""
+    return stream.isatty() and "NO_COLOR" not in os.environ
+
+
+# --------------------------------------------------------------------------- the request
+
+
+@dataclass(frozen=True)
+class Request:
+    """The shared options of one command line, parsed and checked once."""
+
+    site_path: Path | None = None        # None: the bundled demo site
+    feed_path: Path | None = None        # None: the site's feed
+    freq_ghz: float = DEFAULT_FREQ_GHZ
+    at: TimeOption | None = None         # None: the default evaluation time
+    references_path: Path | None = None  # None: the site's registry
+    rule_files: tuple[Path, ...] = ()    # layered over the defaults and the site's
+    model: str | None = None             # MODEL.json, 'none'/'off', or None: the site's
+
+
+def request_from(args: argparse.Namespace) -> Request:
+    """Parse the shared options of ``args`` (those a command does not have take their defaults)."""
+    def path(name: str) -> Path | None:
+        value = getattr(args, name, None)
+        return Path(value) if value else None
+
+    freq = getattr(args, "freq", None)
+    return Request(
+        site_path=path("site"),
+        feed_path=path("feed"),
+        freq_ghz=parse_frequency_ghz(freq) if freq is not None else DEFAULT_FREQ_GHZ,
+        at=parse_time(getattr(args, "at", None), "--at"),
+        references_path=path("references"),
+        rule_files=tuple(Path(p) for p in (getattr(args, "rules", None) or ())),
+        model=getattr(args, "model", None),
+    )
+
+
+# --------------------------------------------------------------------------- loading
+
+
+def feed_layout(site: Site, named_on_command_line: bool) -> FeedLayout:
+    """How to read a feed file for ``site``.
+
+    The demo logger's local time zone is never guessed onto a file the user named: with the
+    demo site, such a file must carry its own UTC offsets.
+    """
+    if site.is_demo and named_on_command_line:
+        return replace(site.feed, time_zone=None)
+    return site.feed
+
+
+def rule_files(site: Site, extra=()) -> list[tuple[Path, str]]:
+    """The layered ``(file, layer)`` list: the defaults, then the site's files, then ``extra``."""
+    from advisor.rules.loader import default_rule_files
+
+    files = [(Path(p), "default") for p in default_rule_files()]
+    files += [(Path(p), "site") for p in site.rule_paths]
+    files += [(Path(p), "command line") for p in (extra or ())]
+    return files
+
+
+def load_ruleset(site: Site, extra=()) -> RuleSet:
+    """The effective rule set for ``site`` with ``extra`` files layered on top."""
+    from advisor.features import CATALOGUE
+    from advisor.rules.loader import load_rules
+
+    return load_rules(rule_files(site, extra), CATALOGUE)
+
+
+def model_for(choice: str | None, site: Site, notes: list[str],
+              demo_model_on_other_feed: bool = False) -> SiteModel | None:
+    """The site model giving the odds: ``--model FILE`` / ``--model none``, else the site's model.
+
+    An unusable file is reported on stderr and in ``notes``; the call then rests on the rules.
+    """
+    if choice is not None and choice.strip().lower() in NO_MODEL:
+        notes.append("Site model switched off (--model none): the call rests on rules and the error budget only.")
+        return None
+    path = Path(choice) if choice is not None else site.model_path
+    if path is None:
+        return None
+    from advisor.model.inference import load_model
+
+    try:
+        model = load_model(path)
+    except ModelError as exc:
+        print(f"advisor: warning: {exc.one_line()}; falling back to rules only", file=sys.stderr)
+        what = f"{exc.field}: {exc.message}" if exc.field else exc.message
+        where = f"{exc.location()}: " if exc.location() else ""
+        notes.append(f"Site model not used ({where}{what}): the call rests on rules and the error budget only.")
+        return None
+    if demo_model_on_other_feed and choice is None:
+        notes.append("The odds come from the demo site's model, trained on an invented history.")
+    return model
+
+
+@dataclass(frozen=True)
+class Inputs:
+    """Everything loaded for one evaluation."""
+
+    site: Site
+    feed: Feed | None             # None when loaded with read=None (the feed is only located)
+    feed_path: Path
+    feed_layout: FeedLayout
+    rules: RuleSet
+    registry: Registry
+    registry_path: Path | None
+    freq_ghz: float
+    is_demo: bool
+    notes: tuple[str, ...]
+    model: SiteModel | None = None  # None: rules and error budget only
+
+    def require_feed(self) -> Feed:
+        """The feed as read (``load_inputs`` with ``read="tail"`` or ``"whole"``)."""
+        if self.feed is None:
+            raise RuntimeError("the feed was located but not read (load_inputs(read=None))")
+        return self.feed
+
+    @property
+    def odds(self):
+        """The site model's odds function for :func:`advisor.evaluation.evaluate.evaluate`, or None (rules only)."""
+        return self.model.odds if self.model is not None else None
+
+
+FeedRead = Literal["tail", "whole"] | None
+
+
+def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = True) -> Inputs:
+    """Site, feed, rules, registry and model for ``request``.
+
+    ``read``: ``"tail"`` reads at most the feed's last part (enough for an instant's call),
+    ``"whole"`` the whole file, ``None`` only locates it (the caller reads it).
+    """
+    site = load_site(request.site_path)
+    notes: list[str] = []
+    if request.feed_path is not None:
+        path = request.feed_path
+        if request.site_path is None:
+            notes.append("No --site given: using the demo site's location and figures.")
+    elif site.feed.path is not None:
+        path = site.feed.path
+    else:
+        raise UsageError("no feed given and the site file names none", field="--feed",
+                         hint="pass --feed FILE or set feed.path in the site file")
+    is_demo = site.is_demo and request.feed_path is None
+    layout = feed_layout(site, request.feed_path is not None)
+    feed = None
+    if read is not None:
+        feed = read_feed(path, layout, tail_bytes=CHECK_TAIL_BYTES if read == "tail" else None,
+                         issue_time_column=site.forecast.issue_time_column)
+    registry_path = request.references_path or site.references_path
+    registry = read_registry(registry_path)
+    rules = load_ruleset(site, request.rule_files)
+    model = model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not is_demo) \
+        if with_model else None
+    return Inputs(site, feed, path, layout, rules, registry, registry_path, request.freq_ghz, is_demo,
+                  tuple(notes), model)
+
+
+def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame | None = None) -> pd.Timestamp:
+    """The instant to evaluate: ``at`` when given; else the demo feed's last observation; else now.
+
+    ``frame`` is the feed (plus forecast) being evaluated, by default the inputs' feed. Now is
+    refused when the feed's observations run past it: the logger clock or time zone is wrong.
+    """
+    if at is not None:
+        return at.resolve(inputs.site.time_zone)
+    if frame is None and inputs.feed is not None:
+        frame = inputs.feed.frame
+    times = frame["time"] if frame is not None else pd.Series([], dtype="datetime64[ns, UTC]")
+    observed = times[frame["kind"] == "observed"] if frame is not None else times
+    if inputs.is_demo and len(times):
+        return pd.Timestamp(observed.iloc[-1] if len(observed) else times.iloc[0])
+    now = pd.Timestamp.now(tz="UTC")
+    if len(observed) and pd.Timestamp(observed.iloc[-1]) > now + FUTURE_TOLERANCE:
+        raise FeedError(f"observed rows run until {observed.iloc[-1]:%Y-%m-%dT%H:%M}Z, after the current time",
+                        source=inputs.feed.source if inputs.feed is not None else None,
+                        hint="check the logger clock and time zone, or pass --at for a past instant")
+    return now
+
+
+# --------------------------------------------------------------------------- the call at one instant
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """One evaluated instant: the decisions, the explained call, its rendering context and exit status."""
+
+    call: Call
+    ctx: Context
+    status: int
+    inputs: Inputs
+    decisions: Decisions
+
+
+def _quality(inputs: Inputs, call: Call) -> dict:
+    """The feed's quality summary for the JSON and the panel."""
+    feed = inputs.require_feed()
+    quality = feed.quality.as_dict()
+    age = call.features.get("data_age_min")
+    quality.update({"source": feed.source,
+                    "data_age_min": None if age is None or math.isnan(age) else round(float(age), 2),
+                    "ok": bool(call.features.get("data_ok"))})
+    return quality
+
+
+def run_check(request: Request) -> CheckResult:
+    """Load the inputs, evaluate at the evaluation time and explain (``check``, ``tick``, ``rules explain``)."""
+    from advisor.evaluation.instant import evaluate_instant
+    from advisor.views.context import Context
+    from advisor.vocabulary import EXIT_CODES
+
+    inputs = load_inputs(request, read="tail")
+    at = evaluation_time(inputs, request.at)
+    feed = inputs.require_feed()
+    instant = evaluate_instant(feed.frame, at, inputs.site, inputs.registry, inputs.rules, inputs.freq_ghz,
+                               inputs.odds)
+    notes = inputs.notes
+    if instant.next_window_in_hindsight:
+        notes = (*notes, "Next window found in observations after the evaluation time (hindsight).")
+    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=feed.source,
+                  is_demo=inputs.is_demo, data_quality=_quality(inputs, instant.call),
+                  next_window=instant.next_window, notes=notes)
+    return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)
+
+
+def empty_feed(source: str) -> Feed:
+    """A canonical feed with no rows (the feed file could not be read)."""
+    from advisor.io.feed import canonical_frame
+
+    # A one-row canonical table gives the frame its columns and dtypes; the row is dropped.
+    table = pd.DataFrame({"time": ["2000-01-01T00:00:00Z"], "wind_mean_ms": [0.0], "wind_gust_ms": [0.0],
+                          "air_temp_c": [0.0], "rel_humidity_pct": [50.0]})
+    frame = canonical_frame(table, FeedLayout()).frame.iloc[:0]
+    return Feed(frame=frame, quality=FeedQuality(0, 0, 0, 0, 0, 0, None, None), source=source)
+
+
+def check_without_feed(request: Request, error: AdvisorError) -> CheckResult:
+    """The undetermined call when the feed itself cannot be read, with the reason why (``tick``).
+
+    Site, rules and registry are loaded as for :func:`run_check` (their errors still stop the
+    command); the site model is not consulted, since there is no weather to give odds on.
+    """
+    from advisor.evaluation.instant import evaluate_without_weather
+    from advisor.views.context import Context
+    from advisor.vocabulary import EXIT_CODES
+
+    located = load_inputs(request, read=None, with_model=False)
+    source = str(located.feed_path)
+    feed = empty_feed(source)
+    inputs = replace(located, feed=feed, is_demo=False, notes=())
+    at = evaluation_time(inputs, request.at)
+    instant = evaluate_without_weather(feed.frame, at, inputs.site, inputs.registry, inputs.rules,
+                                       inputs.freq_ghz, f"The weather feed cannot be read: {error.one_line()}")
+    quality = feed.quality.as_dict()
+    quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
+    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=source, is_demo=False,
+                  data_quality=quality, notes=())
+    return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)

@@ -1,0 +1,64 @@
+"""The call at one instant (``check``, ``tick``, ``rules explain``): decisions, the explained call and,
+when the frame carries rows after the instant, the next window for each method.
+
+Pure: takes loaded objects and returns an :class:`Instant`; the commands add the files' names,
+the data-quality summary and the rendering context.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import pandas as pd
+
+from advisor.decision import Call, Decisions, Reason, explain
+from advisor.evaluation.evaluate import OddsFunction, evaluate
+from advisor.io.references import Registry
+from advisor.io.site import Site
+from advisor.rules.ruleset import RuleSet
+
+
+@dataclass(frozen=True)
+class Instant:
+    """One evaluated instant."""
+
+    decisions: Decisions            # one row: the rule evaluation, candidates and verdict behind the call
+    call: Call
+    next_window: dict | None        # per method, from the rows after the instant; None without such rows
+    next_window_in_hindsight: bool  # the rows after the instant used for next_window include observations
+
+
+def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry, rules: RuleSet,
+                     freq_ghz: float, odds: OddsFunction | None = None) -> Instant:
+    """The call at ``at_utc`` from the observed rows of ``frame`` up to it.
+
+    Rows after ``at_utc`` (a forecast, or an archive evaluated in the past) never enter the
+    call; when there are at least two of them they give the next window for each method.
+    """
+    observed = frame[(frame["kind"] == "observed") & (frame["time"] <= at_utc)]
+    decisions = evaluate(observed, pd.DatetimeIndex([at_utc]), site, registry, rules, freq_ghz, odds)
+    call = explain(decisions, 0)
+    next_window = None
+    hindsight = False
+    if int((frame["time"] > at_utc).sum()) >= 2:
+        from advisor.evaluation.outlook import (
+            next_windows_after,  # only when the frame looks ahead
+        )
+
+        next_window = next_windows_after(frame, at_utc, site, registry, rules, freq_ghz, odds=odds)
+        hindsight = bool(next_window) and bool(((frame["kind"] == "observed") & (frame["time"] > at_utc)).any())
+    return Instant(decisions, call, next_window, hindsight)
+
+
+def evaluate_without_weather(empty_frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry,
+                             rules: RuleSet, freq_ghz: float, why: str) -> Instant:
+    """The undetermined call when there is no weather at all (the feed cannot be read).
+
+    ``empty_frame`` is a canonical frame without rows; ``why`` becomes the blocking ``feed``
+    reason in place of the generic data reasons.  No model odds: there is no weather to give them on.
+    """
+    decisions = evaluate(empty_frame, pd.DatetimeIndex([at_utc]), site, registry, rules, freq_ghz)
+    call = explain(decisions, 0)
+    reason = Reason("feed", "both", "block", why)
+    call = replace(call, reasons=[reason] + [r for r in call.reasons if r.rule != "data"])
+    return Instant(decisions, call, None, False)
