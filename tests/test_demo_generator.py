@@ -1,7 +1,7 @@
 """Tests of the invented demo weather generator, example_weather/make_demo.py.
 
 The data are invented.  The checks compare them with the demo story the project asked for
-(DESIGN.md section 2, "Larch Basin Observatory") and with physical sanity; no generated
+(the invented "Larch Basin Observatory" of example_weather/README.md) and with physical sanity; no generated
 number is used as an expected value.  Unit conversions and the dew point are computed here,
 independently of the script, from the sources named beside them.
 """

@@ -126,7 +126,7 @@ def test_reason_names_the_feature_that_pushed_the_odds_most_in_words_with_number
 
 
 def test_low_odds_make_the_method_infeasible_with_a_reason():
-    """Below thresholds.min_p_usable the method is not recommended (DESIGN §6)."""
+    """Below thresholds.min_p_usable the method is not recommended (docs/design.md)."""
     decisions, call = _evaluate(hand_model(scan_intercept=-3.0))
     assert call.candidates["scan"]["p_usable"] < 0.5
     assert call.candidates["scan"]["feasible"] is False

@@ -2,7 +2,7 @@
 
 The weather here is synthetic (tests/conftest.py) and only puts the decision in a known state.
 Trade figures used: a mean wind of about 4 m/s is a usual upper limit for high-frequency
-observing on large dishes (common practice, DESIGN.md §5; the demo site's
+observing on large dishes (common practice; the demo site's
 ``high_frequency_wind_limit_ms``).  The humidity check compares with psychrolib (ASHRAE
 Handbook—Fundamentals formulas).
 """
@@ -283,7 +283,7 @@ def test_site_forecast_section_is_validated(tmp_path):
 
 def test_implausible_forecast_row_is_undetermined_not_a_gap(site, default_rules):
     table = forecast_table()
-    table.iloc[5, table.columns.get_loc("rel_humidity_pct")] = 140.0     # outside 0-100 % (DESIGN §4)
+    table.iloc[5, table.columns.get_loc("rel_humidity_pct")] = 140.0     # outside 0-100 %
     out = outlook_of(frame_of(table), site(), default_rules)
     bad = out.steps.iloc[6]                                               # step 0 is the observed row
     assert bad["verdict"] == "undetermined" and not bad["gap"]

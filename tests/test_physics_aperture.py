@@ -18,7 +18,7 @@ def test_wavelength_from_exact_speed_of_light():
 @pytest.mark.parametrize("fraction, efficiency", [(16.0, 0.5396), (20.0, 0.6738)])
 def test_ruze_efficiency_at_standard_tolerances(fraction, efficiency):
     """Ruze (1966), Proc. IEEE 54, 633: eta = exp(-(4 pi sigma / lambda)^2);
-    sigma = lambda/16 -> 0.5396, sigma = lambda/20 -> 0.6738 (DESIGN.md section 5)."""
+    sigma = lambda/16 -> exp(-(pi/4)^2) = 0.5396, sigma = lambda/20 -> exp(-(pi/5)^2) = 0.6738 (by hand)."""
     for freq_ghz in (30.0, 86.0, 116.0):
         sigma_um = aperture.wavelength_mm(freq_ghz) * 1e3 / fraction
         assert aperture.ruze_efficiency(sigma_um, freq_ghz) == pytest.approx(efficiency, abs=5e-5)

@@ -20,7 +20,7 @@ def test_dew_point_matches_psychrolib_ashrae():
     """Reference library: psychrolib GetTDewPointFromRelHum (ASHRAE Handbook--Fundamentals
     formulas) over T 0..40 C, RH 10..100 %; within 0.2 C.  Only dew points above 0 C are
     compared: below the triple point ASHRAE/psychrolib use saturation over ice (a frost point),
-    while the Magnus form here is over water (DESIGN.md section 5: "above 0 C")."""
+    while the Magnus form here is over water (the comparison holds above 0 °C only)."""
     psychrolib = _psychrolib()
     temp_c, rh_pct = np.meshgrid(np.arange(0.0, 40.1, 2.0), np.arange(10.0, 100.1, 5.0))
     temp_c, rh_pct = temp_c.ravel(), rh_pct.ravel()

@@ -1,7 +1,7 @@
 """Rule lint: every problem at once with file:line:column, layering, thresholds that can never hold.
 
 No physics is checked here.  The feature ranges lint relies on come from the feed's plausibility
-limits (DESIGN §4) and from definitions (an absolute difference is never negative); the
+limits and from definitions (an absolute difference is never negative); the
 property test at the end checks that "can never be true" / "is always true" are never claimed
 for a condition some row within those ranges contradicts.
 """
