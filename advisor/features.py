@@ -18,7 +18,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, wavelength_mm
+from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, root_sum_square, wavelength_mm
+from advisor.physics.laser import reference_mismatch_um_per_c
+from advisor.vocabulary import METHODS
 from advisor.physics.sky import elevation_and_minutes_above
 from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG, hours_since_sunrise, hours_since_sunset, solar_position
 from advisor.io.references import Registry, reference_in_force
@@ -40,7 +42,7 @@ FEATURE_SOURCE_MODULES = (
     "advisor.features", "advisor.catalogue", "advisor.units", "advisor.errors",
     "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
     "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
-    "advisor.io.bundled",
+    "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary",
 )
 
 def _ns(times) -> np.ndarray:
@@ -170,6 +172,12 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
 
     out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
 
+    # --- expected surface of each method (before rule error terms) ---------------------------
+    out["scan_surface_rms_um"] = laser_surface_rms_um(site, out["wind_gust_ms"], out["reference_age_h"],
+                                                      out["reference_temp_delta_c"])
+    out["astronomical_surface_rms_um"] = astronomical_surface_rms_um(site, out["wind_gust_ms"],
+                                                                     out["air_temp_rate_c_per_h"])
+
     columns = {"time": times_index}
     for name in ROW_FEATURES:
         values = out[name]
@@ -217,13 +225,64 @@ def feature_source_paths() -> list[Path]:
     return paths
 
 
+def mismatch_um_per_c(site: Site) -> float:
+    """The laser's error per °C between the air now and at the reference scan [µm/°C].
+
+    The site's measured ``reference_mismatch_um_per_c`` when it gives one, else the air path and
+    mount figures through :func:`advisor.physics.laser.reference_mismatch_um_per_c`.
+    """
+    s = site.scan
+    if s.reference_mismatch_um_per_c is not None:
+        return float(s.reference_mismatch_um_per_c)
+    pressure = 1013.25 * np.exp(-site.elevation_m / 8400.0)  # isothermal scale height ~8.4 km
+    return reference_mismatch_um_per_c(s.air_path_m, s.refraction_compensated_fraction, s.mount_um_per_c,
+                                       pressure_hpa=pressure, temp_c=5.0)
+
+
+def laser_surface_rms_um(site: Site, wind_gust_ms, reference_age_h, reference_temp_delta_c) -> np.ndarray:
+    """Expected surface rms after a laser correction [µm]; NaN without a reference.
+
+    σ = √(σ_astro² + σ_scan² + σ_age²), with σ_scan = √(noise² + (k·gust²)²) (vibration grows with
+    wind pressure ∝ v²) and σ_age = √((ageing · age_days)² + (mismatch · |ΔT|)²): the surface the
+    reference scan was taken on, the scan's own error, and the reference's decay with age and
+    with the air-temperature difference (air path and mount, :func:`mismatch_um_per_c`).
+    Independent terms add in quadrature.
+    """
+    s = site.scan
+    gust = np.asarray(wind_gust_ms, dtype=float)
+    scan_term = root_sum_square(s.noise_um_at_calm, s.wind_term_um_per_ms2 * gust**2)
+    age_term = root_sum_square(s.reference_ageing_um_per_day * np.asarray(reference_age_h, dtype=float) / 24.0,
+                               mismatch_um_per_c(site) * np.asarray(reference_temp_delta_c, dtype=float))
+    return np.asarray(root_sum_square(site.astronomical.surface_rms_um, scan_term, age_term), dtype=float)
+
+
+def astronomical_surface_rms_um(site: Site, wind_gust_ms, air_temp_rate_c_per_h) -> np.ndarray:
+    """Expected surface rms after an out-of-focus holography correction [µm].
+
+    σ = √(σ_astro² + (k·gust²)² + (drift · |dT/dt| · duration)²): the site's holography figure,
+    wind deformation during the measurement, and thermal drift over its longer duration.
+    """
+    a = site.astronomical
+    gust = np.asarray(wind_gust_ms, dtype=float)
+    rate = np.nan_to_num(np.abs(np.asarray(air_temp_rate_c_per_h, dtype=float)), nan=0.0)
+    drift = a.thermal_drift_um_per_c * rate * a.duration_min / 60.0
+    return np.asarray(root_sum_square(a.surface_rms_um, a.wind_term_um_per_ms2 * gust**2, drift), dtype=float)
+
+
+def best_surface_rms_um(site: Site) -> dict[str, float]:
+    """The least surface rms each method can leave in any weather (calm, fresh reference) [µm]."""
+    return {"scan": float(laser_surface_rms_um(site, 0.0, 0.0, 0.0)),
+            "astronomical": float(astronomical_surface_rms_um(site, 0.0, 0.0))}
+
+
 def target_features(site: Site, freq_ghz: float) -> dict[str, float]:
     """The target-scope features: one number each, fixed by the target frequency and the site."""
     th = site.thresholds
     return {
         "freq_ghz": float(freq_ghz),
         "wavelength_mm": float(wavelength_mm(freq_ghz)),
-        "required_surface_rms_um": float(required_surface_rms_um(freq_ghz)),
+        "surface_requirement_fraction": float(th.surface_requirement_fraction),
+        "required_surface_rms_um": float(required_surface_rms_um(freq_ghz, th.surface_requirement_fraction)),
         "beam_fwhm_arcsec": float(beam_fwhm_arcsec(freq_ghz, site.dish_diameter_m)),
         "hf_wind_limit_ms": float(th.high_frequency_wind_limit_ms),
         "high_frequency_min_ghz": float(th.high_frequency_min_ghz),
@@ -236,6 +295,9 @@ def with_target(rows: pd.DataFrame, targets: dict[str, float]) -> pd.DataFrame:
     """Row features plus the ``target_row`` ones (row values that depend on the target)."""
     out = rows.copy(deep=False)
     out["pointing_beam_fraction"] = rows["wind_pointing_error_arcsec"].to_numpy() / targets["beam_fwhm_arcsec"]
+    for method in METHODS:
+        out[f"{method}_surface_margin_um"] = (targets["required_surface_rms_um"]
+                                              - rows[f"{method}_surface_rms_um"].to_numpy())
     return out
 
 

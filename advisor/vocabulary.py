@@ -44,6 +44,9 @@ _VERDICT_LIST = (
             "postpone"),
     Verdict("undetermined", "U", "UNDETERMINED", "bold white on red", 12,
             'data missing, stale or implausible (never "scan")', "undetermined (data bad)"),
+    Verdict("no_correction", "N", "NO CORRECTION NEEDED", "bold black on white", 13,
+            "the site's uncorrected surface already meets the requirement at this frequency",
+            "no correction needed"),
 )
 VERDICT: dict[str, Verdict] = {v.name: v for v in _VERDICT_LIST}
 VERDICTS: tuple[str, ...] = tuple(VERDICT)

@@ -68,7 +68,13 @@ class ScanFigures:
     noise_um_at_calm: float = 80.0
     wind_term_um_per_ms2: float = 4.0
     reference_ageing_um_per_day: float = 15.0
-    reference_mismatch_um_per_c: float = 20.0
+    # |ΔT| from the reference scan's air temperature: the air's refractive index along the beam
+    # and the mount's thermal motion (advisor.physics.laser); a site may instead give the
+    # combined coefficient it has measured (reference_mismatch_um_per_c).
+    air_path_m: float = 60.0
+    refraction_compensated_fraction: float = 0.7
+    mount_um_per_c: float = 10.0
+    reference_mismatch_um_per_c: float | None = None
     duration_min: float = 12.0
 
 
@@ -80,6 +86,7 @@ class AstronomicalFigures:
     wind_term_um_per_ms2: float = 3.0
     thermal_drift_um_per_c: float = 25.0
     duration_min: float = 45.0
+    uncorrected_surface_rms_um: float | None = None   # the surface with no fresh correction (optional)
     min_calibrator_elevation_deg: float = 25.0
     max_calibrator_elevation_deg: float = 80.0
 
@@ -90,6 +97,7 @@ class Thresholds:
 
     high_frequency_wind_limit_ms: float = 4.0
     high_frequency_min_ghz: float = 30.0
+    surface_requirement_fraction: float = 16.0   # the surface must reach λ/N (Ruze η 0.54 at λ/16)
     min_ruze_efficiency: float = 0.30
     laser_preference_efficiency: float = 0.08
     min_p_usable: float = 0.5
@@ -374,16 +382,18 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     scan = _figures(r, ("methods", "scan"), ScanFigures, {
         "noise_um_at_calm": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
         "reference_ageing_um_per_day": (0, 5000), "reference_mismatch_um_per_c": (0, 5000),
+        "air_path_m": (0, 1000), "refraction_compensated_fraction": (0, 1), "mount_um_per_c": (0, 5000),
         "duration_min": (0.1, 1440)})
     astro = _figures(r, ("methods", "astronomical"), AstronomicalFigures, {
         "surface_rms_um": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
-        "thermal_drift_um_per_c": (0, 5000), "duration_min": (0.1, 1440),
+        "thermal_drift_um_per_c": (0, 5000), "duration_min": (0.1, 1440), "uncorrected_surface_rms_um": (0, 100000),
         "min_calibrator_elevation_deg": (0, 90), "max_calibrator_elevation_deg": (0, 90)})
     if astro.min_calibrator_elevation_deg >= astro.max_calibrator_elevation_deg:
         raise r.fail(("methods", "astronomical", "max_calibrator_elevation_deg"),
                      "must be above min_calibrator_elevation_deg")
     thresholds = _figures(r, ("thresholds",), Thresholds, {
         "high_frequency_wind_limit_ms": (0, 100), "high_frequency_min_ghz": (0, 2000),
+        "surface_requirement_fraction": (1, 1000),
         "min_ruze_efficiency": (0, 1), "laser_preference_efficiency": (0, 1),
         "min_p_usable": (0, 1), "fog_spread_c": (0, 20), "fog_rel_humidity_pct": (0, 100),
         "fog_visibility_m": (0, 100000), "precip_mm_h": (0, 1000),

@@ -11,7 +11,10 @@ from advisor.catalogue import CATALOGUE
 from advisor.decision import Call
 from advisor.views.context import CAUTIONS, Context
 
-SCHEMA_VERSION = 1
+#: 2: verdict ``no_correction`` (exit 13); candidates carry ``meets_requirement`` and
+#: ``requirement_margin_um``; ``blocked_by`` lists every block (rules, efficiency.min, target.unreachable,
+#: model.<method>, data).
+SCHEMA_VERSION = 2
 
 
 def json_number(value, digits: int = 4):
