@@ -183,6 +183,9 @@ FEATURES: tuple[FeatureSpec, ...] = (
        domain=_never_negative("the reference in force is never later than the evaluation time"), key=True),
     _F("reference_temp_delta_c", "delta_degC", "|air temperature - temperature at the reference scan|",
        "|ΔT| to reference", "{:.1f} °C", domain=_never_negative("it is an absolute difference"), key=True),
+    _F("reference_mismatch_um", "um", "laser error from |ΔT| to the reference scan: air refractive index along "
+       "the beam and the scanner mount's thermal motion", "laser error from |ΔT|", "{:.0f} µm",
+       domain=_never_negative("it is an rms")),
     # expected surface of each method (site error budget, before rule error terms)
     _F("scan_surface_rms_um", "um", "expected surface rms after a laser correction, before rule error terms "
        "(NaN without a reference)", "laser: expected surface", "{:.0f} µm",

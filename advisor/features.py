@@ -172,6 +172,8 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
 
     out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
 
+    out["reference_mismatch_um"] = mismatch_um_per_c(site) * out["reference_temp_delta_c"]
+
     # --- expected surface of each method (before rule error terms) ---------------------------
     out["scan_surface_rms_um"] = laser_surface_rms_um(site, out["wind_gust_ms"], out["reference_age_h"],
                                                       out["reference_temp_delta_c"])
