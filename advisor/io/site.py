@@ -144,12 +144,16 @@ class TickConfig:
     notify_format: str = "text"          # text | json, what the notify command reads on stdin
     history_max_bytes: int = 5_000_000   # history.jsonl is rotated to history.jsonl.1 above this
     dead_feed_ticks: int = 6             # consecutive undetermined ticks before "the feed looks dead"
+    # A new call is announced once it has held for confirm_ticks ticks or confirm_min minutes
+    # (whichever comes first); a call forced by a block (fog, rain, wind, bad data) at once.
+    confirm_ticks: int = 3
+    confirm_min: float = 15.0
 
 
 def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
     path = ("tick",)
     section = reader.section(path, {"notify_command", "notify_timeout_s", "notify_format",
-                                    "history_max_bytes", "dead_feed_ticks"})
+                                    "history_max_bytes", "dead_feed_ticks", "confirm_ticks", "confirm_min"})
     argv = section.get("notify_command") or []
     if not isinstance(argv, list) or not all(isinstance(a, str) and a for a in argv):
         raise reader.fail(path + ("notify_command",), f"expected a list of non-empty strings, got {argv!r}",
@@ -158,7 +162,8 @@ def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
     if argv and "/" in argv[0] and not Path(argv[0]).expanduser().is_absolute():
         argv = [str(base / argv[0]), *argv[1:]]
     ints = {}
-    for name, lo, hi in (("history_max_bytes", 1000, 1e12), ("dead_feed_ticks", 1, 100_000)):
+    for name, lo, hi in (("history_max_bytes", 1000, 1e12), ("dead_feed_ticks", 1, 100_000),
+                         ("confirm_ticks", 1, 100_000)):
         value = reader.number(path + (name,), default=getattr(TickConfig, name), lo=lo, hi=hi)
         if value != int(value):
             raise reader.fail(path + (name,), f"expected a whole number, got {value:g}")
@@ -168,6 +173,7 @@ def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
         raise reader.fail(path + ("notify_format",), f"unknown format {fmt!r}", hint="use text or json")
     return TickConfig(notify_command=tuple(argv), notify_format=fmt,
                       notify_timeout_s=reader.number(path + ("notify_timeout_s",), default=30.0, lo=0.1, hi=3600),
+                      confirm_min=reader.number(path + ("confirm_min",), default=TickConfig.confirm_min, lo=0, hi=1440),
                       **ints)
 
 
