@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .sun import _days_since_j2000, _finish, _gmst_deg_from_days, _altaz_from_hour_angle
+from .ephemeris import _altaz_from_hour_angle, _days_since_j2000, _finish, _gmst_deg_from_days
 
 __all__ = [
     "SIDEREAL_RATE_DEG_PER_H",
