@@ -58,6 +58,8 @@ _SUN_PARALLAX_1AU_DEG = 8.794 / 3600.0
 DEFAULT_LOOKBACK_DAYS = 366.0
 #: :func:`sun_state` codes.
 SUN_POLAR_DAY, SUN_UP, SUN_UNKNOWN, SUN_DOWN, SUN_POLAR_NIGHT = 2, 1, 0, -1, -2
+#: First search window [d]: outside the polar regions every day has a sunrise and a sunset.
+_SHORT_LOOKBACK_DAYS = 3.0
 #: Bisection steps on a half-day bracket: 0.5 d / 2**20 = 0.04 s.
 _BISECTIONS = 20
 
@@ -204,11 +206,16 @@ def _hours_since_event(times_utc, latitude_deg, longitude_deg, rising, max_lookb
     out = np.full(days.shape, np.nan)
     for rows, lat, lon in groups:
         d = days[rows]
-        table = _EventTable(d.min() - lookback - 1.0, d.max(), lat, lon)
-        events = table.rise_days if rising else table.set_days
+        # Search the last few days first; go back the whole lookback only for the times that
+        # found nothing there (polar day or night), so the usual case stays cheap.
+        for margin in sorted({min(lookback, _SHORT_LOOKBACK_DAYS), lookback}):
+            table = _EventTable(d.min() - margin - 1.0, d.max(), lat, lon)
+            events = table.rise_days if rising else table.set_days
+            last = np.searchsorted(events, d, side="right") - 1
+            if np.all(last >= 0):
+                break
         if events.size == 0:
             continue
-        last = np.searchsorted(events, d, side="right") - 1
         elapsed = d - events[np.clip(last, 0, None)]
         out[rows] = np.where((last >= 0) & (elapsed <= lookback), elapsed * 24.0, np.nan)
     return _finish(out.reshape(shape))
