@@ -42,7 +42,7 @@ FEATURE_SOURCE_MODULES = (
     "advisor.features", "advisor.catalogue", "advisor.units", "advisor.errors",
     "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
     "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
-    "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary",
+    "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary", "advisor.physics.ephemeris",
 )
 
 def _ns(times) -> np.ndarray:
