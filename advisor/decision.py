@@ -14,9 +14,11 @@ quadrature.  A method is feasible when nothing blocks it:
 * ``model.<method>`` — the site model's odds of a usable result are below the site's threshold;
 * ``data`` — the weather data cannot support a call (the row is ``undetermined``, never ``scan``).
 
-Between two feasible methods the one with the higher efficiency wins, compared as displayed
-(two decimals), the laser when it is within ``laser_preference_efficiency`` (it costs minutes,
-not half an hour of telescope time).  When the site's uncorrected surface already meets the
+Between two feasible methods the one worth more over the session wins (:func:`session_value`:
+η² × (session − duration) / session × odds, with the figures as displayed), so holography's extra
+half hour is taken only when the session is long enough to pay it back; without a session
+length (``thresholds.session_hours: 0``) the laser wins when its efficiency is within
+``laser_preference_efficiency``.  When the site's uncorrected surface already meets the
 requirement the call is ``no_correction``.
 """
 
@@ -128,8 +130,46 @@ def _rule_blocked(rule_eval: RuleEvaluation, rules: RuleSet, method: str, n: int
 
 
 def _as_shown(efficiency: np.ndarray) -> np.ndarray:
-    """Efficiencies as the screen shows them (two decimals), so the choice never contradicts them."""
+    """Efficiencies (and odds) as the screen shows them (two decimals), so the choice never contradicts them."""
     return np.round(efficiency, 2)
+
+
+def session_value(efficiency, p_usable, duration_min, session_min):
+    """What a correction is worth over a session, as a fraction of a perfect session [1].
+
+    Parameters
+    ----------
+    efficiency : numeric
+        Efficiency the correction leaves (Ruze η, or η with other factors). [1]
+    p_usable : numeric
+        Odds that the correction succeeds; NaN (no model) counts as 1. [1]
+    duration_min : numeric
+        Telescope time the correction takes. [min]
+    session_min : float
+        Length of the session. [min]
+
+    Returns
+    -------
+    ndarray (float for scalar input)
+        η² × max(S − d, 0) / S × p.
+
+    Notes
+    -----
+    The signal-to-noise ratio of an observation grows as η √t (radiometer equation), so the
+    integration time to a given sensitivity scales as 1/η²: a session observed at η for S − d
+    minutes is worth η² (S − d) minutes at η = 1.  With holography at 230 µm against the laser at
+    250 µm at 100 GHz (figures of the trade, common practice), η 0.39 against 0.33 means 1.4× the
+    integration time with the laser, and holography's extra 33 min pay back after about 80 min.
+
+    References
+    ----------
+    Dicke, R. H. (1946). Rev. Sci. Instrum. 17, 268 (the radiometer equation).
+    """
+    p = np.asarray(p_usable, dtype=float)
+    odds = np.where(np.isfinite(p), p, 1.0)
+    observed = np.clip(float(session_min) - np.asarray(duration_min, dtype=float), 0.0, None) / float(session_min)
+    value = np.asarray(efficiency, dtype=float) ** 2 * observed * odds
+    return float(value) if value.ndim == 0 else value
 
 
 def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: RuleEvaluation, rules: RuleSet,
@@ -169,7 +209,14 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
                                         {k: v for k, v in blocks.items() if v.any()})
 
     scan, astro = candidates["scan"], candidates["astronomical"]
-    prefer_scan = _as_shown(scan.ruze_efficiency) >= _as_shown(astro.ruze_efficiency) - th.laser_preference_efficiency - 1e-9
+    session_min = 60.0 * th.session_hours
+    if session_min > 0:  # the session's economics, on the figures as displayed
+        prefer_scan = (session_value(_as_shown(scan.ruze_efficiency), _as_shown(scan.p_usable), scan.duration_min, session_min)
+                       >= session_value(_as_shown(astro.ruze_efficiency), _as_shown(astro.p_usable),
+                                        astro.duration_min, session_min) - 1e-12)
+    else:
+        prefer_scan = (_as_shown(scan.ruze_efficiency)
+                       >= _as_shown(astro.ruze_efficiency) - th.laser_preference_efficiency - 1e-9)
     verdict = np.full(n, "postpone", dtype=object)
     verdict[astro.feasible] = "astronomical"
     verdict[scan.feasible & (~astro.feasible | prefer_scan)] = "scan"
@@ -291,11 +338,56 @@ def explain(decisions: Decisions, i: int) -> Call:
                 candidates=cands, calibrator_name=str(row.get("calibrator_name", "")), headline=headline)
 
 
+def _minutes_text(minutes: float) -> str:
+    """A duration to the nearest 10 min: 'about 80 min', 'about 2 h 10 min'."""
+    m = int(round(minutes / 10.0) * 10)
+    return f"about {m} min" if m < 120 else f"about {m // 60} h {m % 60:02d} min".replace(" 00 min", "")
+
+
 def _choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
     """Why the chosen method won over the other one, when both were feasible (figures as shown)."""
     scan, astro = cands["scan"], cands["astronomical"]
     if not (scan["feasible"] and astro["feasible"]) or verdict not in METHODS:
         return []
+    session_min = 60.0 * site.thresholds.session_hours
+    if session_min <= 0:
+        return _margin_choice_reasons(verdict, cands, site)
+    other = "astronomical" if verdict == "scan" else "scan"
+    chosen, alt = cands[verdict], cands[other]
+    label = {"scan": "the laser", "astronomical": "holography"}
+
+    def per_minute(c: dict) -> float:  # η² × odds, as displayed
+        p = 1.0 if c["p_usable"] is None else round(c["p_usable"], 2)
+        return round(c["ruze_efficiency"], 2) ** 2 * p
+
+    figures = f"η {round(alt['ruze_efficiency'], 2):.2f} against {round(chosen['ruze_efficiency'], 2):.2f}"
+    if alt["p_usable"] is not None and chosen["p_usable"] is not None:
+        figures += f", odds {alt['p_usable']:.0%} against {chosen['p_usable']:.0%}"
+    extra = alt["duration_min"] - chosen["duration_min"]
+    head = f"Both methods are feasible; {label[verdict]} is preferred for a {site.thresholds.session_hours:g} h session"
+    g_chosen, g_alt = per_minute(chosen), per_minute(alt)
+    if g_chosen >= g_alt and extra >= 0:
+        text = (f"{head}: it is quicker ({chosen['duration_min']:.0f} min against {alt['duration_min']:.0f} min) "
+                f"and {label[other]}'s surface would not shorten the integration ({figures}).")
+    elif g_chosen > g_alt:   # better per minute, and longer: its extra minutes pay back
+        ratio = g_chosen / g_alt if g_alt > 0 else float("inf")
+        payback = -extra / (ratio - 1.0) if np.isfinite(ratio) else 0.0
+        text = (f"{head}: with {label[other]}'s surface ({figures.replace('against', 'instead of', 1)}) the session "
+                f"would need {ratio:.2f}× the integration time, and the extra {-extra:.0f} min pay back after "
+                f"{_minutes_text(payback)} of observing.")
+    else:                    # the other is better per minute but takes longer: not paid back in this session
+        ratio = g_alt / g_chosen if g_chosen > 0 else float("inf")
+        payback = extra / (ratio - 1.0) if ratio > 1.0 else float("inf")
+        saving = 1.0 - 1.0 / ratio if ratio > 0 else 0.0
+        when = f"after {_minutes_text(payback)} of observing" if np.isfinite(payback) else "never"
+        text = (f"{head}: {label[other]}'s surface ({figures}) would save {saving:.0%} of the integration time, "
+                f"which pays back its extra {extra:.0f} min only {when}, more than the session leaves.")
+    return [Reason("choice", "both", "info", text)]
+
+
+def _margin_choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
+    """The choice without a session length: the laser within a fixed efficiency margin."""
+    scan, astro = cands["scan"], cands["astronomical"]
     margin = site.thresholds.laser_preference_efficiency
     gap = round(astro["ruze_efficiency"], 2) - round(scan["ruze_efficiency"], 2)
     if verdict == "scan":

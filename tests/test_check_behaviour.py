@@ -11,12 +11,15 @@ from advisor.io.site import ColumnMap, FeedLayout
 from .conftest import NIGHT_UTC, registry_at, weather_table
 
 
-def test_calm_dry_night_with_fresh_matched_reference_scans(call_for):
-    call = call_for(weather_table())
+def test_calm_dry_night_with_fresh_matched_reference_scans(call_for, site_with):
+    # Both methods are feasible; which one is worth more depends on the session (holography's
+    # better surface must pay back its extra 33 minutes): the laser for 2 h, holography for 8 h.
+    call = call_for(weather_table(), site=site_with(session_hours=2.0))
     assert call.verdict == "scan", [r.message for r in call.reasons]
-    assert call.candidates["scan"]["feasible"]
+    assert call.candidates["scan"]["feasible"] and call.candidates["astronomical"]["feasible"]
     assert call.features["hours_since_sunset"] > 2
     assert call.features["wind_mean_ms"] < 2.5
+    assert call_for(weather_table(), site=site_with(session_hours=8.0)).verdict == "astronomical"
 
 
 def test_fog_blocks_laser_but_not_holography(call_for):
@@ -99,8 +102,8 @@ def test_implausible_latest_sample_is_undetermined(call_for):
     assert call.verdict == "undetermined"
 
 
-def test_feed_within_age_limit_is_still_used(call_for):
-    call = call_for(weather_table(end=NIGHT_UTC - pd.Timedelta(minutes=10)))
+def test_feed_within_age_limit_is_still_used(call_for, site_with):
+    call = call_for(weather_table(end=NIGHT_UTC - pd.Timedelta(minutes=10)), site=site_with(session_hours=2.0))
     assert call.verdict == "scan"
 
 

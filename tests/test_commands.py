@@ -100,7 +100,9 @@ def test_help_lists_every_command_with_its_line(capsys):
 
 
 def test_check_builds_only_its_parser_and_loads_no_other_command():
-    """``check`` stays light: no replay, outlook or training code, no other command's module."""
+    """``check`` stays light: no replay or training code, no other command's module.
+
+    (The outlook's computation is loaded: check reads the site's forecast for the next window.)"""
     code = ("import sys, io, contextlib\n"
             "from advisor.commands.main import main\n"
             "with contextlib.redirect_stdout(io.StringIO()):\n"
@@ -115,8 +117,8 @@ def test_check_builds_only_its_parser_and_loads_no_other_command():
     assert "advisor.commands.check" in loaded
     others = {f"advisor.commands.{c.module}" for c in COMMANDS if c.name != "check"}
     assert not loaded & others
-    assert not loaded & {"advisor.evaluation.replay", "advisor.evaluation.outlook", "advisor.model.training",
-                         "advisor.evaluation.tick"}
+    assert not loaded & {"advisor.evaluation.replay", "advisor.model.training", "advisor.evaluation.tick",
+                         "advisor.evaluation.plan"}
 
 
 def test_python_dash_m_advisor_lists_the_commands():

@@ -130,10 +130,36 @@ def test_every_infeasible_method_says_what_blocks_it(call_for, fresh_reference, 
     assert all("data" in c["blocked_by"] for c in stale.candidates.values())
 
 
-def test_the_choice_agrees_with_the_figures_it_shows(call_for, fresh_reference):
+def _value(eta: float, p, duration_min: float, session_min: float) -> float:
+    """eta^2 x observed share x odds: integration time to a given sensitivity scales as 1/eta^2
+    (radiometer equation, Dicke 1946, Rev. Sci. Instrum. 17, 268)."""
+    return eta**2 * max(session_min - duration_min, 0.0) / session_min * (1.0 if p is None else round(p, 2))
+
+
+def test_the_choice_agrees_with_the_figures_it_shows(call_for, fresh_reference, site_with):
+    table, registry = fresh_reference
+    seen = set()
+    for hours in (1.0, 4.0, 12.0):
+        for freq in (43.0, 86.0, 100.0, 115.0):
+            call = call_for(table, registry=registry, freq_ghz=freq, site=site_with(session_hours=hours))
+            choice = [r for r in call.reasons if r.rule == "choice"]
+            if not choice:
+                continue
+            values = {m: _value(round(c["ruze_efficiency"], 2), c["p_usable"], c["duration_min"], 60.0 * hours)
+                      for m, c in call.candidates.items()}
+            if call.verdict == "scan":
+                assert values["scan"] >= values["astronomical"] - 1e-12
+            else:
+                assert values["astronomical"] > values["scan"]
+            assert f"{hours:g} h session" in choice[0].message
+            seen.add(call.verdict)
+    assert seen == {"scan", "astronomical"}          # the session length decides, both ways
+
+
+def test_without_a_session_length_the_fixed_margin_decides(call_for, fresh_reference, site_with):
     table, registry = fresh_reference
     for freq in (43.0, 86.0, 100.0, 115.0):
-        call = call_for(table, registry=registry, freq_ghz=freq)
+        call = call_for(table, registry=registry, freq_ghz=freq, site=site_with(session_hours=0.0))
         choice = [r for r in call.reasons if r.rule == "choice"]
         if not choice:
             continue
@@ -144,6 +170,34 @@ def test_the_choice_agrees_with_the_figures_it_shows(call_for, fresh_reference):
         else:
             assert astro - scan > 0.08 + 1e-9
             assert f"{astro - scan:.2f} better" in choice[0].message
+
+
+def test_holography_pays_back_its_extra_minutes_in_a_long_enough_session(call_for, fresh_reference, demo_site):
+    """Figures of the trade (common practice): holography leaves about 230 um; the laser adds about
+    100 um in quadrature (about 250 um).  At 100 GHz (Ruze 1966) that is eta 0.39 against 0.33:
+    observing with the laser's surface needs (0.39/0.33)^2 = 1.40x the integration time, so
+    holography's extra 33 min pay back after 33 / 0.40 = about 80 min of observing."""
+    table, registry = fresh_reference
+    site = replace(demo_site,
+                   astronomical=replace(demo_site.astronomical, surface_rms_um=230.0, wind_term_um_per_ms2=0.0,
+                                        thermal_drift_um_per_c=0.0),
+                   scan=replace(demo_site.scan, noise_um_at_calm=100.0, wind_term_um_per_ms2=0.0,
+                                reference_ageing_um_per_day=0.0, reference_mismatch_um_per_c=0.0))
+    eta_holo = math.exp(-(4 * math.pi * 230.0 / lambda_over(1, 100.0)) ** 2)
+    eta_laser = math.exp(-(4 * math.pi * math.hypot(230.0, 100.0) / lambda_over(1, 100.0)) ** 2)
+    assert (round(eta_holo, 2), round(eta_laser, 2)) == (0.39, 0.33)
+    payback_min = 33.0 / ((0.39 / 0.33) ** 2 - 1.0)
+    assert 75.0 < payback_min < 85.0
+    long = call_for(table, registry=registry, freq_ghz=100.0, site=replace(
+        site, thresholds=replace(site.thresholds, session_hours=4.0)))
+    assert long.verdict == "astronomical"
+    text = next(r for r in long.reasons if r.rule == "choice").message
+    assert "1.40× the integration time" in text and "about 80 min of observing" in text
+    # a session shorter than holography + its payback (45 + 83 min): the laser
+    short = call_for(table, registry=registry, freq_ghz=100.0, site=replace(
+        site, thresholds=replace(site.thresholds, session_hours=2.0)))
+    assert short.verdict == "scan"
+    assert "more than the session leaves" in next(r for r in short.reasons if r.rule == "choice").message
 
 
 # --------------------------------------------------------------------------- messages follow their rule

@@ -136,7 +136,7 @@ def test_site_model_path_that_is_missing_falls_back(tmp_path, capsys):
     path.write_text(site, encoding="utf-8")
     status, out, err = run(capsys, "check", "--site", path, "--at", "2026-12-01T03:00:00Z")
     assert "model file not found" in err and "Site model not used" in out
-    assert status == 0
+    assert status in (0, 10)          # a call on the rules and error budget alone (scan or astronomical)
 
 
 def test_check_never_imports_scikit_learn():

@@ -55,7 +55,9 @@ def frame_of(forecast, observed=None, issued=None):
 @pytest.fixture()
 def site(demo_site):
     def make(**forecast):
-        return replace(demo_site, forecast=replace(demo_site.forecast, **forecast))
+        # a 2 h session: on the calm synthetic night the quick laser scan is the call
+        return replace(demo_site, forecast=replace(demo_site.forecast, **forecast),
+                       thresholds=replace(demo_site.thresholds, session_hours=2.0))
     return make
 
 

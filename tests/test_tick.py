@@ -25,7 +25,7 @@ from advisor.io.statedir import EXIT_BUSY, EXIT_STATE_DIR
 
 from .conftest import NIGHT_UTC, weather_table
 
-AT = "2026-01-16T04:00:00Z"  # NIGHT_UTC: a calm night four hours after sunset → scan at 86 GHz
+AT = "2026-01-16T04:00:00Z"  # NIGHT_UTC: a calm night four hours after sunset → scan at 86 GHz (2 h session)
 ROOT = Path(__file__).resolve().parent.parent
 
 
@@ -40,6 +40,8 @@ def make_site(folder: Path, tick: str = "", name: str = "Larch Basin Observatory
         f"site:\n  name: {json.dumps(name)}\n  latitude_deg: 47.12\n  longitude_deg: -114.0\n"
         "  elevation_m: 1050\n  time_zone: America/Denver\n  dish_diameter_m: 90\n"
         "feed:\n  path: feed.csv\nreferences:\n  path: refs.csv\n"
+        # a short session: the quick laser scan is worth more than holography's better surface
+        "thresholds:\n  session_hours: 2\n"
         "calibrators:\n  - {name: \"3C 84\", ra: \"03h19m48.16s\", dec: \"+41d30m42.1s\"}\n"
         "  - {name: \"0716+714\", ra: \"07h21m53.45s\", dec: \"+71d20m36.4s\"}\n" + tick)
     return site

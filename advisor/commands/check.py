@@ -15,6 +15,7 @@ def add_parser(sub, name: str, help: str) -> None:
     p = sub.add_parser(name, help=help, description="Evaluate the feed at one instant and print the call.",
                        epilog=EXIT_HELP, formatter_class=HelpFormatter)
     session.add_evaluation_options(p)
+    session.add_session_option(p)
     p.add_argument("--json", action="store_true", help="print one JSON object (stable schema, see README)")
     p.set_defaults(func=cmd_check)
 

@@ -11,6 +11,8 @@ Each boundary rule of the command line is written here and only here:
 * which site model gives the odds (:func:`model_for`);
 * the default evaluation time: the demo feed's last observation for the demo, else now — and
   a feed whose observations run into the future is refused (:func:`evaluation_time`);
+* the session a call is made for (``--session-hours``, else the site's ``thresholds.session_hours``);
+* the site's forecast file goes with the site's own feed (:func:`with_site_forecast`);
 * the call at one instant, shared by ``check``, ``tick`` and ``rules explain`` (:func:`run_check`),
   and the undetermined call when the feed itself cannot be read (:func:`check_without_feed`).
 
@@ -148,6 +150,26 @@ def add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) -> 
                    "model.path; 'none' for rules only)")
 
 
+def add_session_option(p: argparse.ArgumentParser) -> None:
+    """``--session-hours``: the session the choice between methods is made for."""
+    p.add_argument("--session-hours", metavar="H", help="length of the session the correction is for [h]: "
+                   "holography's extra minutes must pay back within it (default: the site's "
+                   "thresholds.session_hours; 0: no session length, the fixed efficiency margin decides)")
+
+
+def parse_hours(text: str | None, field: str, lo: float, hi: float) -> float | None:
+    """A number of hours from the command line (None stays None); errors name the option."""
+    if text is None:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        raise UsageError(f"{text!r} is not a number", field=field, hint=f"give hours between {lo:g} and {hi:g}") from None
+    if not (lo <= value <= hi):
+        raise UsageError(f"{value:g} is outside {lo:g}..{hi:g}", field=field, hint="give the length in hours")
+    return value
+
+
 def missing_action(parser: argparse.ArgumentParser) -> int:
     """A command with actions called without one: usage and one line on stderr, exit 2."""
     parser.print_usage(sys.stderr)
@@ -174,6 +196,7 @@ class Request:
     references_path: Path | None = None  # None: the site's registry
     rule_files: tuple[Path, ...] = ()    # layered over the defaults and the site's
     model: str | None = None             # MODEL.json, 'none'/'off', or None: the site's
+    session_hours: float | None = None   # None: the site's thresholds.session_hours
 
 
 def request_from(args: argparse.Namespace) -> Request:
@@ -191,6 +214,7 @@ def request_from(args: argparse.Namespace) -> Request:
         references_path=path("references"),
         rule_files=tuple(Path(p) for p in (getattr(args, "rules", None) or ())),
         model=getattr(args, "model", None),
+        session_hours=parse_hours(getattr(args, "session_hours", None), "--session-hours", 0.0, 24.0 * 7),
     )
 
 
@@ -291,6 +315,8 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     ``"whole"`` the whole file, ``None`` only locates it (the caller reads it).
     """
     site = load_site(request.site_path)
+    if request.session_hours is not None:
+        site = replace(site, thresholds=replace(site.thresholds, session_hours=request.session_hours))
     notes: list[str] = []
     if request.feed_path is not None:
         path = request.feed_path
@@ -363,8 +389,39 @@ def _quality(inputs: Inputs, call: Call) -> dict:
     return quality
 
 
+def with_site_forecast(inputs: Inputs, request: Request, notes: list[str],
+                       forecast_path: Path | None = None) -> tuple[pd.DataFrame, str | None]:
+    """The feed's frame combined with a forecast file, and the forecast's source (None without one).
+
+    ``forecast_path`` names a file explicitly; else the site's ``forecast.path`` is read when the
+    site's own feed is (a feed named with ``--feed`` may be another site's).  A forecast that
+    cannot be read leaves the call on the feed alone, said in ``notes`` and on stderr.
+    """
+    from advisor.evaluation.outlook import combine_frames
+
+    feed = inputs.require_feed()
+    site = inputs.site
+    path = forecast_path or (site.forecast.path if request.feed_path is None else None)
+    if path is None:
+        return feed.frame, None
+    try:
+        fc = read_feed(path, feed_layout(site, named_on_command_line=forecast_path is not None),
+                       issue_time_column=site.forecast.issue_time_column)
+    except AdvisorError as exc:
+        if forecast_path is not None:
+            raise
+        print(f"advisor: warning: forecast not read: {exc.one_line()}", file=sys.stderr)
+        notes.append(f"Forecast not read ({exc.one_line()}): nothing is said about the hours ahead.")
+        return feed.frame, None
+    return combine_frames(feed.frame, fc.frame), fc.source
+
+
 def run_check(request: Request) -> CheckResult:
-    """Load the inputs, evaluate at the evaluation time and explain (``check``, ``tick``, ``rules explain``)."""
+    """Load the inputs, evaluate at the evaluation time and explain (``check``, ``tick``, ``rules explain``).
+
+    The site's forecast file (when it names one and its own feed is read) gives the next window,
+    until when a postpone lasts and how long a correction holds.
+    """
     from advisor.evaluation.instant import evaluate_instant
     from advisor.views.context import Context
     from advisor.vocabulary import EXIT_CODES
@@ -372,14 +429,16 @@ def run_check(request: Request) -> CheckResult:
     inputs = load_inputs(request, read="tail")
     at = evaluation_time(inputs, request.at)
     feed = inputs.require_feed()
-    instant = evaluate_instant(feed.frame, at, inputs.site, inputs.registry, inputs.rules, inputs.freq_ghz,
-                               inputs.odds)
-    notes = inputs.notes
+    notes = list(inputs.notes)
+    frame, forecast_source = with_site_forecast(inputs, request, notes)
+    instant = evaluate_instant(frame, at, inputs.site, inputs.registry, inputs.rules, inputs.freq_ghz,
+                               inputs.odds, forecast_source=forecast_source)
     if instant.next_window_in_hindsight:
-        notes = (*notes, "Next window found in observations after the evaluation time (hindsight).")
-    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=feed.source,
+        notes.append("Next window found in observations after the evaluation time (hindsight).")
+    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone,
+                  feed_source=feed.source + (f" + {forecast_source}" if forecast_source else ""),
                   is_demo=inputs.is_demo, data_quality=_quality(inputs, instant.call),
-                  next_window=instant.next_window, notes=notes)
+                  next_window=instant.next_window, notes=tuple(notes), look_ahead=instant.look_ahead)
     return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)
 
 

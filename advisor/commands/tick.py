@@ -42,6 +42,7 @@ def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
                     "changed since the last run.",
         epilog=EXIT_HELP, formatter_class=HelpFormatter)
     session.add_evaluation_options(p)
+    session.add_session_option(p)
     p.add_argument("--json", action="store_true", help="when printing, print the advisory JSON object")
     p.add_argument("--state-dir", required=True, metavar="DIR",
                    help="folder for the advisory, history and state (created if its parent exists)")

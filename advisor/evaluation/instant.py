@@ -1,5 +1,7 @@
-"""The call at one instant (``check``, ``tick``, ``rules explain``): decisions, the explained call and,
-when the frame carries rows after the instant, the next window for each method.
+"""The call at one instant (``check``, ``tick``, ``rules explain``): decisions, the explained call,
+when the frame carries rows after the instant the next window for each method, and what it says
+about the hours ahead (:mod:`advisor.evaluation.lookahead`: how long a correction holds, until
+when a postpone lasts, the forecast against the mast).
 
 Pure: takes loaded objects and returns an :class:`Instant`; the commands add the files' names,
 the data-quality summary and the rendering context.
@@ -13,6 +15,7 @@ import pandas as pd
 
 from advisor.decision import Call, Decisions, Reason, explain
 from advisor.evaluation.evaluate import OddsFunction, evaluate
+from advisor.evaluation.lookahead import look_ahead
 from advisor.io.references import Registry
 from advisor.io.site import Site
 from advisor.rules.ruleset import RuleSet
@@ -26,14 +29,17 @@ class Instant:
     call: Call
     next_window: dict | None        # per method, from the rows after the instant; None without such rows
     next_window_in_hindsight: bool  # the rows after the instant used for next_window include observations
+    look_ahead: dict | None = None  # check --json's look_ahead object (None without weather)
 
 
 def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry, rules: RuleSet,
-                     freq_ghz: float, odds: OddsFunction | None = None) -> Instant:
+                     freq_ghz: float, odds: OddsFunction | None = None,
+                     forecast_source: str | None = None) -> Instant:
     """The call at ``at_utc`` from the observed rows of ``frame`` up to it.
 
     Rows after ``at_utc`` (a forecast, or an archive evaluated in the past) never enter the
-    call; when there are at least two of them they give the next window for each method.
+    call; when there are at least two of them they give the next window for each method.  The
+    look ahead adds its info reasons to the call (``forecast_source`` names the forecast file).
     """
     observed = frame[(frame["kind"] == "observed") & (frame["time"] <= at_utc)]
     decisions = evaluate(observed, pd.DatetimeIndex([at_utc]), site, registry, rules, freq_ghz, odds)
@@ -47,7 +53,9 @@ def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, regi
 
         next_window = next_windows_after(frame, at_utc, site, registry, rules, freq_ghz, odds=odds)
         hindsight = bool(next_window) and bool(((frame["kind"] == "observed") & (frame["time"] > at_utc)).any())
-    return Instant(decisions, call, next_window, hindsight)
+    ahead = look_ahead(frame, at_utc, call, next_window, site, forecast_source)
+    call = replace(call, reasons=[*call.reasons, *ahead.reasons])
+    return Instant(decisions, call, next_window, hindsight, ahead.doc)
 
 
 def evaluate_without_weather(empty_frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry,

@@ -36,6 +36,7 @@ from advisor.evaluation.evaluate import OddsFunction, evaluate
 from advisor.io.references import Registry
 from advisor.rules.ruleset import RuleSet
 from advisor.io.site import Site
+from advisor.evaluation.forecastcheck import compare_with_forecast, trust_observation
 from advisor.evaluation.stability import changes_at_once, stabilise
 from advisor.evaluation.windows import find_windows, next_window
 
@@ -232,9 +233,10 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     """
     start_utc = pd.Timestamp(start_utc).tz_convert("UTC")
     fs = site.forecast
+    disagreement = compare_with_forecast(frame, site)       # before observations supersede forecast rows
     used, hindsight = select_rows(frame, start_utc)
     times, step_min = step_grid(used, start_utc, hours, source)
-    used = apply_forecast_margins(used, fs.wind_margin_pct, fs.dew_point_margin_c)
+    used = apply_forecast_margins(trust_observation(used, disagreement), fs.wind_margin_pct, fs.dew_point_margin_c)
     decisions = evaluate(used, times, site, registry, rules, freq_ghz, odds)
     f = decisions.features
     n = len(times)
@@ -304,6 +306,8 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     margins = {"wind_pct": fs.wind_margin_pct, "dew_point_c": fs.dew_point_margin_c,
                "applied": bool(fc_used.any() and (fs.wind_margin_pct > 0 or fs.dew_point_margin_c > 0))}
     notes = []
+    if disagreement is not None:
+        notes.append(disagreement.text())
     if margins["applied"]:
         notes.append(margin_text(margins))
     if hindsight:

@@ -106,6 +106,23 @@ class Thresholds:
     fog_visibility_m: float = 1000.0
     precip_mm_h: float = 0.1
     pointing_error_arcsec_at_4ms: float = 1.2
+    # The session a check chooses for: a method is worth η² × (session − its duration) × its odds
+    # (advisor.decision.session_value); 0 means unknown, and laser_preference_efficiency decides.
+    session_hours: float = 4.0
+
+
+@dataclass(frozen=True)
+class StructureFigures:
+    """``structure:`` — how a correction decays as the structure's temperature changes.
+
+    Defaults are common practice, order-of-magnitude figures from memory; a site measures its own
+    (:mod:`advisor.physics.thermal`).
+    """
+
+    drift_um_per_c: float = 25.0              # surface rms added per °C the structure moved since the correction
+    time_constant_h: float = 1.0              # how fast the structure follows the air (first-order lag)
+    sun_heating_c_per_kwm2: float = 4.0       # sunlit structure above the air, per kW/m² of irradiance
+    max_efficiency_loss: float = 0.10         # a correction holds while it meets λ/N or has lost at most this of η
 
 
 @dataclass(frozen=True)
@@ -118,12 +135,15 @@ class ForecastSettings:
     wind_margin_pct: float = 0.0         # forecast wind and gusts raised by this before the rules [%]
     dew_point_margin_c: float = 0.0      # forecast dew point raised by this (capped at the air temperature) [°C]
     settling_min: float = 10.0           # added to a method's duration for the shortest window offered [min]
+    # When the latest observation disagrees with the forecast beyond the margins, the forecast is
+    # pulled towards the observation, the pull fading with this time constant [h].
+    trust_observation_h: float = 2.0
 
 
 def _forecast_settings(reader: "_Reader", base: Path) -> ForecastSettings:
     path = ("forecast",)
     reader.section(path, {"path", "issue_time_column", "horizon_h", "wind_margin_pct", "dew_point_margin_c",
-                          "settling_min"})
+                          "settling_min", "trust_observation_h"})
     d = ForecastSettings
     return ForecastSettings(
         path=reader.path_value(path + ("path",), base),
@@ -132,6 +152,8 @@ def _forecast_settings(reader: "_Reader", base: Path) -> ForecastSettings:
         wind_margin_pct=reader.number(path + ("wind_margin_pct",), default=d.wind_margin_pct, lo=0, hi=200),
         dew_point_margin_c=reader.number(path + ("dew_point_margin_c",), default=d.dew_point_margin_c, lo=0, hi=10),
         settling_min=reader.number(path + ("settling_min",), default=d.settling_min, lo=0, hi=1440),
+        trust_observation_h=reader.number(path + ("trust_observation_h",), default=d.trust_observation_h,
+                                          lo=0.1, hi=48),
     )
 
 
@@ -197,6 +219,7 @@ class Site:
     model_path: Path | None = None
     tick: TickConfig = field(default_factory=TickConfig)
     forecast: ForecastSettings = field(default_factory=ForecastSettings)
+    structure: StructureFigures = field(default_factory=StructureFigures)
     source: str = "<built-in>"
     is_demo: bool = False
     extra: dict = field(default_factory=dict, compare=False)
@@ -343,7 +366,8 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         raise SiteError("expected a mapping at the top of the site file", source=source, line=1,
                         hint="start with 'site:'")
     r = _Reader(data, lines, source)
-    r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators", "tick", "forecast"})
+    r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators", "tick", "forecast",
+                 "structure"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
     name = r.text(("site", "name"), required=True)
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
@@ -403,7 +427,10 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         "min_ruze_efficiency": (0, 1), "laser_preference_efficiency": (0, 1),
         "min_p_usable": (0, 1), "fog_spread_c": (0, 20), "fog_rel_humidity_pct": (0, 100),
         "fog_visibility_m": (0, 100000), "precip_mm_h": (0, 1000),
-        "pointing_error_arcsec_at_4ms": (0, 3600)})
+        "pointing_error_arcsec_at_4ms": (0, 3600), "session_hours": (0, 24 * 7)})
+    structure = _figures(r, ("structure",), StructureFigures, {
+        "drift_um_per_c": (0, 5000), "time_constant_h": (0.05, 100), "sun_heating_c_per_kwm2": (0, 100),
+        "max_efficiency_loss": (0.001, 0.9)})
 
     cal_list = r.get_raw(("calibrators",)) or []
     if not isinstance(cal_list, list):
@@ -437,6 +464,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         model_path=r.path_value(("model", "path"), base),
         tick=_tick_config(r, base),
         forecast=_forecast_settings(r, base),
+        structure=structure,
         source=source, is_demo=is_demo,
     )
 

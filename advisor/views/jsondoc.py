@@ -14,7 +14,9 @@ from advisor.views.context import CAUTIONS, Context
 #: 2: verdict ``no_correction`` (exit 13); candidates carry ``meets_requirement`` and
 #: ``requirement_margin_um``; ``blocked_by`` lists every block (rules, efficiency.min, target.unreachable,
 #: model.<method>, data).
-SCHEMA_VERSION = 2
+#: 3: ``look_ahead`` (session length, how long each correction holds, until when a postpone lasts, the
+#: forecast against the latest observation); the choice between methods follows the session's economics.
+SCHEMA_VERSION = 3
 
 
 def json_number(value, digits: int = 4):
@@ -44,6 +46,7 @@ def to_json_dict(call: Call, ctx: Context, exit_status: int) -> dict:
         "candidates": call.candidates,
         "data_quality": ctx.data_quality,
         "next_window": ctx.next_window,
+        "look_ahead": ctx.look_ahead,
         "notes": list(ctx.notes),
         "cautions": list(CAUTIONS),
         "exit_status": exit_status,
