@@ -39,6 +39,7 @@ COMMANDS = (
     Command("train", "model", "fit the site model on the site's past attempts"),
     Command("model", "model", "inspect a site model file"),
     Command("outlook", "outlook", "the call at every forecast step and the next window for each method"),
+    Command("plan", "plan", "plan a session: which correction when, when to re-correct, against the simple choices"),
 )
 
 
