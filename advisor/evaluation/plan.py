@@ -269,21 +269,22 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
                                             why_not=why))
             later = np.flatnonzero(start_ok[m])
             if len(later):
-                j = int(later[0])
-                alternatives.append(price(f"wait_{method}", f"wait {_span_text((t_ns[j] - t_ns[0]) / 6e10)} "
-                                          f"for {label} ({times[j].tz_convert(tz):%H:%M}), never again", [(j, m)], None))
+                first = int(later.min())
+                alternatives.append(price(f"wait_{method}", f"wait {_span_text((t_ns[first] - t_ns[0]) / 6e10)} "
+                                          f"for {label} ({times[first].tz_convert(tz):%H:%M}), never again",
+                                          [(first, m)], None))
     if uncorrected_known and verdict != "no_correction":
         alternatives.append(price("no_correction", "no correction", [], np.full_like(policy, NO_ACTION)))
 
-    corrections = []
+    planned: list[Correction] = []
     state = 0
     for i, m in actions:                                  # a few corrections
         end = i + int(problem.steps[m])
         fallback = next_action(problem, policy, end, state) if end < n and problem.p_success[m, i] < 1.0 else None
-        corrections.append(_correction(problem, decisions, times, t_struct, t_struct_end, i, m, site, targets,
+        planned.append(_correction(problem, decisions, times, t_struct, t_struct_end, i, m, site, targets,
                                        None if fallback is None else (METHODS[fallback[1]], times[fallback[0]])))
         state = state_index(m, end, n)
-    corrections = tuple(corrections)
+    corrections = tuple(planned)
     steps = _steps_frame(times, decisions, usable, gap, start_ok, states, gain, t_struct, pointing, f)
     notes = _notes(disagreement, fs, used, hindsight, start_utc, n, step_min, hours, usable, atmosphere, odds,
                    uncorrected_known, elevation_deg)

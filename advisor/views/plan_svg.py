@@ -108,7 +108,7 @@ def plan_svg(plan: Plan, ctx: Context) -> str:
 
     local = pd.DatetimeIndex(steps["time"]).tz_convert(zone)
     hour = local.floor("h")
-    for k in np.flatnonzero(np.concatenate(([True], hour[1:] != hour[:-1]))):
+    for k in (int(i) for i in np.flatnonzero(np.concatenate(([True], hour[1:] != hour[:-1])))):
         x = _x(k, n)
         parts.append(f'<line x1="{x:.1f}" y1="{BOTTOM}" x2="{x:.1f}" y2="{BOTTOM + 4}" stroke="#444444"/>')
         parts.append(_text(x, BOTTOM + 16, f"{local[k]:%H:%M}", 10, "middle"))

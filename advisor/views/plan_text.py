@@ -68,7 +68,7 @@ def schedule_lines(plan: Plan) -> list[str]:
 def alternative_rows(plan: Plan) -> list[tuple[str, ...]]:
     """One row per alternative: label, corrections, session η, time lost, integration time relative to the plan."""
     best = plan.alternatives[0].efficiency or 0.0
-    rows = []
+    rows: list[tuple[str, ...]] = []
     for a in plan.alternatives:
         if a.efficiency is None:
             continue
@@ -85,7 +85,7 @@ def strip_line(plan: Plan) -> tuple[str, str]:
     hour = local.floor("h")
     new_hour = np.concatenate(([True], hour[1:] != hour[:-1]))
     marks = [" "] * (len(letters) + 5)
-    for k in np.flatnonzero(new_hour):       # one mark per hour, where it fits
+    for k in (int(i) for i in np.flatnonzero(new_hour)):       # one mark per hour, where it fits
         if all(c == " " for c in marks[max(0, k - 1):k + 5]):
             marks[k:k + 5] = list(f"{local[k]:%H:%M}")
     return "".join(marks).rstrip(), letters
