@@ -54,6 +54,10 @@ class Decisions:
     rules: RuleSet
     site: Site
     model_notes: dict[str, list] = field(default_factory=dict)
+    #: method → per-row mask: the site model's odds are extrapolated (a term outside its training range)
+    model_extrapolated: dict[str, np.ndarray] = field(default_factory=dict)
+    #: method → per-row sentence naming what lies outside the training range (None inside)
+    model_extrapolation: dict[str, list] = field(default_factory=dict)
 
     def blocking(self, method: str) -> dict[str, np.ndarray]:
         """Rule id → mask of the rows where that blocking rule fired against ``method``."""
@@ -128,7 +132,8 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
 
     ``odds`` is the seam for the site classifier: method → probability of a usable result per
     row (NaN where unknown), optionally with ``notes`` (method → per-row text naming what pushed
-    the odds most), which become ``Decisions.model_notes``.  Without it, candidates carry
+    the odds most), which become ``Decisions.model_notes``, and ``extrapolated``/``extrapolation``
+    (method → per-row mask and sentence: the odds lie outside what the model was trained on).  Without it, candidates carry
     ``p_usable = NaN`` and the decision rests on rules and the error budget alone.
     """
     n = len(features)
@@ -154,7 +159,8 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
     verdict[~features["data_ok"].to_numpy(dtype=bool)] = "undetermined"
     # An odds mapping may carry per-row explanations (advisor.model.inference.ModelOdds.notes).
     return Decisions(features, dict(targets), verdict, candidates, rule_eval, rules, site,
-                     dict(getattr(odds, "notes", None) or {}))
+                     dict(getattr(odds, "notes", None) or {}), dict(getattr(odds, "extrapolated", None) or {}),
+                     dict(getattr(odds, "extrapolation", None) or {}))
 
 
 def _odds_text(p: float) -> str:
@@ -224,11 +230,16 @@ def explain(decisions: Decisions, i: int) -> Call:
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
             if note:
                 reasons.append(Reason(f"model.{method}", method, "info", note))
+        for warning in decisions.model_extrapolation.get(method, [])[i:i + 1]:
+            if warning:
+                reasons.append(Reason(f"model.{method}", method, "warn", warning))
+        extrapolated = decisions.model_extrapolated.get(method)
         cands[method] = {
             "feasible": bool(c.feasible[i]) and verdict != "undetermined",
             "surface_rms_um": None if not np.isfinite(rms) else round(rms, 1),
             "ruze_efficiency": None if not np.isfinite(eta) else round(eta, 4),
             "p_usable": None if not np.isfinite(p) else round(p, 4),
+            "extrapolated": bool(extrapolated[i]) if extrapolated is not None and np.isfinite(p) else False,
             "duration_min": c.duration_min,
             "blocked_by": decisions.blocked_by(method, i),
         }

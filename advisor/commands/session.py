@@ -238,7 +238,7 @@ def model_for(choice: str | None, site: Site, notes: list[str],
     path = Path(choice) if choice is not None else site.model_path
     if path is None:
         return None
-    from advisor.model.inference import load_model
+    from advisor.model.modelfile import load_model
 
     try:
         model = load_model(path)

@@ -3,13 +3,18 @@
 A history row is one past attempt: ``time`` (ISO 8601 with offset or ``Z``), ``method``
 (``scan`` or ``astronomical``) and its outcome: ``usable`` (yes/no) and/or the measured residual
 ``residual_rms_um``, judged against the row's ``usable_max_rms_um`` or the ``usable_below_um``
-argument when ``usable`` is blank; optionally the weather at the attempt in canonical names.
-Training (:mod:`advisor.model.training`) and replay scoring (:mod:`advisor.evaluation.replay`) both read it here.
+argument when ``usable`` is blank; optionally the weather at the attempt in canonical names
+(:data:`WEATHER_COLUMNS`) and a free-text ``note``.  Training (:mod:`advisor.model.training`) and
+replay scoring (:mod:`advisor.evaluation.replay`) both read it here; ``advisor attempt add`` writes
+it with :func:`append_attempt` (under a lock, by atomic replacement, refusing duplicates).
 """
 
 from __future__ import annotations
 
+import csv
 import hashlib
+import io
+import math
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -18,13 +23,26 @@ import numpy as np
 import pandas as pd
 
 from advisor.errors import AdvisorError
-from advisor.io.fileio import regular_file_size
-from advisor.vocabulary import METHODS
-from advisor.io.site import CANONICAL_COLUMNS
+from advisor.io.fileio import atomic_write_text, locked, regular_file_size
+from advisor.io.site import CANONICAL_COLUMNS, REQUIRED_COLUMNS
+from advisor.vocabulary import METHOD_LABEL, METHODS
 
 MAX_HISTORY_BYTES = 200_000_000
 USABLE_WORDS = {**dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),
                 **dict.fromkeys(("no", "n", "false", "0", "unusable", "failed", "fail"), 0.0), "": np.nan}
+
+#: The weather an attempt row carries, in canonical names and SI units: what ``attempt add``
+#: records from the feed at the attempt's time, what a ``tick`` history line keeps, and what
+#: ``train`` computes the features from.  The wind columns are the 10-minute mean and maximum
+#: and the rate is the air-temperature change over the last hour, as ``check`` computes them.
+WEATHER_COLUMNS = ("wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct", "dew_point_c",
+                   "pressure_hpa", "precip_mm_h", "visibility_m", "solar_wm2", "air_temp_rate_c_per_h")
+#: A row carries its own weather when every one of these is a number.
+REQUIRED_WEATHER = (*REQUIRED_COLUMNS, "air_temp_rate_c_per_h")
+#: The columns of a history file ``attempt add`` creates, in order.
+COLUMNS = ("time", "method", "usable", "residual_rms_um", *WEATHER_COLUMNS, "note")
+#: Two attempts of one method closer than this are the same attempt recorded twice.
+DUPLICATE_WITHIN = pd.Timedelta(minutes=1)
 
 _OFFSET = re.compile(r"(?:Z|[+-]\d\d:?\d\d)$", re.IGNORECASE)
 
@@ -127,6 +145,86 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
         if name in table.columns:
             out[name] = _numeric(table, name, source)
     return History(out, source, sha256_of(path))
+
+
+def own_weather(frame: pd.DataFrame) -> np.ndarray:
+    """Rows of a history frame that carry their own weather (every :data:`REQUIRED_WEATHER` column a number)."""
+    ok = np.ones(len(frame), dtype=bool)
+    for name in REQUIRED_WEATHER:
+        if name not in frame.columns:
+            return np.zeros(len(frame), dtype=bool)
+        ok &= np.isfinite(frame[name].to_numpy(dtype=float))
+    return ok
+
+
+def format_value(value) -> str:
+    """A number as a history cell: 6 significant digits, blank when missing."""
+    if value is None:
+        return ""
+    if isinstance(value, str):
+        return value
+    value = float(value)
+    return "" if not math.isfinite(value) else f"{value:.6g}"
+
+
+def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells: dict[str, str],
+                   duplicate_within: pd.Timedelta = DUPLICATE_WITHIN) -> int:
+    """Add one attempt to the history at ``path`` (created if absent); return its line number.
+
+    Under the history's lock (:func:`advisor.io.fileio.locked`) the existing file is validated
+    with :func:`read_history`, an attempt of the same ``method`` within ``duplicate_within`` of
+    ``time_utc`` is refused (:class:`HistoryError`, nothing written), and the file is replaced
+    atomically with the new row in time order.  Existing rows keep their text; columns the file
+    lacks are added at the end of its header (blank in the older rows).  ``cells`` maps column
+    names to text (``time`` and ``method`` are filled in here).
+    """
+    path = Path(path)
+    source = str(path)
+    if not path.parent.exists():
+        raise HistoryError("folder does not exist", source=str(path.parent), hint="create it first")
+    time_utc = pd.Timestamp(time_utc).tz_convert("UTC")
+    with locked(path, HistoryError, "attempt history"):
+        header: list[str] = []
+        rows: list[list[str]] = []
+        times = pd.DatetimeIndex([], tz="UTC")
+        if path.exists() and path.stat().st_size > 0:
+            existing = read_history(path, usable_below_um=math.inf)  # validates; every outcome counts here
+            frame = existing.frame
+            same = (frame["method"].to_numpy() == method) & (
+                (frame["time"] - time_utc).abs() < duplicate_within).to_numpy()
+            if same.any():
+                k = int(np.flatnonzero(same)[0])
+                raise HistoryError(f"a {METHOD_LABEL[method]} attempt at {frame['time'].iloc[k]:%Y-%m-%dT%H:%M:%SZ} "
+                                   "is already recorded", source=source, line=k + 2, field="time",
+                                   hint="nothing was added; give the time of a different attempt, or correct "
+                                        "that line")
+            times = pd.DatetimeIndex(frame["time"])
+            try:
+                reader = csv.reader(io.StringIO(path.read_text(encoding="utf-8")))
+                header = [h.strip() for h in next(reader)]
+                rows = [r for r in reader if any(c.strip() for c in r)]
+            except (OSError, UnicodeDecodeError, csv.Error, StopIteration) as exc:
+                raise HistoryError(f"cannot read the history: {exc}", source=source) from None
+            if len(rows) != len(times):  # pragma: no cover - read_history and csv agree on rows
+                raise HistoryError("the history's rows could not be matched up; nothing was added", source=source)
+        for name in (*COLUMNS, *cells):
+            if name not in header:
+                header.append(name)
+        values = {**cells, "time": time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"), "method": method}
+        new = [values.get(name, "") for name in header]
+        later = np.flatnonzero(times.as_unit("ns").asi8 > time_utc.as_unit("ns").value) if len(times) else []
+        at = int(later[0]) if len(later) else len(rows)
+        rows.insert(at, new)
+        buf = io.StringIO()
+        writer = csv.writer(buf, lineterminator="\n")
+        writer.writerow(header)
+        writer.writerows(r + [""] * (len(header) - len(r)) for r in rows)
+        try:
+            atomic_write_text(path, buf.getvalue())
+        except OSError as exc:
+            raise HistoryError(f"cannot write the history: {exc.strerror}", source=source,
+                               hint="check the folder is writable and the disk is not full") from None
+    return at + 2
 
 
 def _numeric(table: pd.DataFrame, name: str, source: str) -> np.ndarray:

@@ -11,7 +11,8 @@ from advisor.catalogue import CATALOGUE
 from advisor.decision import Call
 from advisor.views.context import CAUTIONS, Context
 
-SCHEMA_VERSION = 1
+#: 2: every candidate carries ``extrapolated`` (the site model's odds lie outside its training range).
+SCHEMA_VERSION = 2
 
 
 def json_number(value, digits: int = 4):
