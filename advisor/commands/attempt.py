@@ -94,6 +94,7 @@ def cmd_attempt_add(args: argparse.Namespace) -> int:
     path = _history_path(args, site)
     residual = _residual(args.residual_um)
     option = session.parse_time(args.time or "now", "--time")
+    assert option is not None  # a text was given
     when = option.resolve(site.time_zone)
     now = pd.Timestamp.now(tz="UTC")
     if when > now + FUTURE_TOLERANCE:

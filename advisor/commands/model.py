@@ -20,7 +20,7 @@ import numpy as np
 
 from advisor.catalogue import CATALOGUE, unit_text
 from advisor.commands import session
-from advisor.errors import UsageError
+from advisor.errors import AdvisorError, UsageError
 from advisor.model.inference import METHOD_LABELS, value_text
 from advisor.model.modelfile import SCHEMA_VERSION, dumps_model, load_model, parse_model
 from advisor.vocabulary import MODEL_DIRECTIONS
@@ -233,7 +233,7 @@ def _say_how_to_use(args, site, out: Path) -> None:
         return
     try:
         change = model_path_change(args.site, out)
-    except Exception as exc:  # noqa: BLE001 - advice only; the model is written either way
+    except AdvisorError as exc:  # advice only; the model is written either way
         print(f"to use it, set model.path in {args.site} to {out} ({exc})", file=sys.stderr)
         return
     print(f"to use it, set line {change.line} of {args.site} to:  {change.line_text.strip()}"

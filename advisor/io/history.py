@@ -167,6 +167,35 @@ def format_value(value) -> str:
     return "" if not math.isfinite(value) else f"{value:.6g}"
 
 
+def _records(text: str, source: str) -> tuple[list[str], list[str], list[list[str]]]:
+    """``(header cells, original text of each record, cells of each record)`` of a CSV text.
+
+    Each record's text is kept exactly as written (a quoted note may span lines), so rows that
+    are not touched are written back byte for byte.  Blank lines are dropped.
+    """
+    lines = text.splitlines(keepends=True)
+    reader = csv.reader(iter(lines))
+    try:
+        header = [h.strip() for h in next(reader)]
+        texts, cells = [], []
+        start = reader.line_num
+        for row in reader:
+            chunk = "".join(lines[start:reader.line_num])
+            start = reader.line_num
+            if any(c.strip() for c in row):
+                texts.append(chunk if chunk.endswith("\n") else chunk + "\n")
+                cells.append(row)
+    except (csv.Error, StopIteration) as exc:
+        raise HistoryError(f"cannot read the history: {exc}", source=source) from None
+    return header, texts, cells
+
+
+def _line(cells: list[str]) -> str:
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="\n").writerow(cells)
+    return buf.getvalue()
+
+
 def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells: dict[str, str],
                    duplicate_within: pd.Timedelta = DUPLICATE_WITHIN) -> int:
     """Add one attempt to the history at ``path`` (created if absent); return its line number.
@@ -175,8 +204,8 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
     with :func:`read_history`, an attempt of the same ``method`` within ``duplicate_within`` of
     ``time_utc`` is refused (:class:`HistoryError`, nothing written), and the file is replaced
     atomically with the new row in time order.  Existing rows keep their text; columns the file
-    lacks are added at the end of its header (blank in the older rows).  ``cells`` maps column
-    names to text (``time`` and ``method`` are filled in here).
+    lacks are added at the end of its header, and older rows get blank cells for them.
+    ``cells`` maps column names to text (``time`` and ``method`` are filled in here).
     """
     path = Path(path)
     source = str(path)
@@ -185,6 +214,7 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
     time_utc = pd.Timestamp(time_utc).tz_convert("UTC")
     with locked(path, HistoryError, "attempt history"):
         header: list[str] = []
+        texts: list[str] = []
         rows: list[list[str]] = []
         times = pd.DatetimeIndex([], tz="UTC")
         if path.exists() and path.stat().st_size > 0:
@@ -194,33 +224,35 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
                 (frame["time"] - time_utc).abs() < duplicate_within).to_numpy()
             if same.any():
                 k = int(np.flatnonzero(same)[0])
-                raise HistoryError(f"a {METHOD_LABEL[method]} attempt at {frame['time'].iloc[k]:%Y-%m-%dT%H:%M:%SZ} "
+                label = METHOD_LABEL[method]
+                article = "an" if label[0] in "aeiou" else "a"
+                raise HistoryError(f"{article} {label} attempt at {frame['time'].iloc[k]:%Y-%m-%dT%H:%M:%SZ} "
                                    "is already recorded", source=source, line=k + 2, field="time",
                                    hint="nothing was added; give the time of a different attempt, or correct "
                                         "that line")
             times = pd.DatetimeIndex(frame["time"])
             try:
-                reader = csv.reader(io.StringIO(path.read_text(encoding="utf-8")))
-                header = [h.strip() for h in next(reader)]
-                rows = [r for r in reader if any(c.strip() for c in r)]
-            except (OSError, UnicodeDecodeError, csv.Error, StopIteration) as exc:
+                text = path.read_text(encoding="utf-8")
+            except (OSError, UnicodeDecodeError) as exc:
                 raise HistoryError(f"cannot read the history: {exc}", source=source) from None
+            header, texts, rows = _records(text, source)
             if len(rows) != len(times):  # pragma: no cover - read_history and csv agree on rows
                 raise HistoryError("the history's rows could not be matched up; nothing was added", source=source)
+        width = len(header)
         for name in (*COLUMNS, *cells):
             if name not in header:
                 header.append(name)
+        grow = len(header) - width
+        if grow:   # blank cells for the new columns, at the end of each older record's text
+            texts = [t[: len(t) - 1] + "," * max(0, len(header) - len(r)) + "\n" if len(r) < len(header) else t
+                     for t, r in zip(texts, rows)]
         values = {**cells, "time": time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"), "method": method}
-        new = [values.get(name, "") for name in header]
-        later = np.flatnonzero(times.as_unit("ns").asi8 > time_utc.as_unit("ns").value) if len(times) else []
-        at = int(later[0]) if len(later) else len(rows)
-        rows.insert(at, new)
-        buf = io.StringIO()
-        writer = csv.writer(buf, lineterminator="\n")
-        writer.writerow(header)
-        writer.writerows(r + [""] * (len(header) - len(r)) for r in rows)
+        new = _line([values.get(name, "") for name in header])
+        later = np.flatnonzero(times.as_unit("ns").asi8 > time_utc.as_unit("ns").value)
+        at = int(later[0]) if len(later) else len(texts)
+        texts.insert(at, new)
         try:
-            atomic_write_text(path, buf.getvalue())
+            atomic_write_text(path, _line(header) + "".join(texts))
         except OSError as exc:
             raise HistoryError(f"cannot write the history: {exc.strerror}", source=source,
                                hint="check the folder is writable and the disk is not full") from None

@@ -66,7 +66,8 @@ def model_path_change(site_path: Path | str, model_path: Path | str) -> PathChan
         lines += ["\n", "model:\n", f"  path: {value}\n"]
         changed = len(lines) - 1
     else:
-        rest = _TOP_MODEL.match(lines[start].rstrip("\r\n")).group("rest").split("#")[0].strip()
+        top = _TOP_MODEL.match(lines[start].rstrip("\r\n"))
+        rest = top.group("rest").split("#")[0].strip() if top else ""
         if rest:
             raise SiteError("model: is written on one line (flow style); cannot change it safely", source=source,
                             line=start + 1, field="model",
@@ -74,15 +75,15 @@ def model_path_change(site_path: Path | str, model_path: Path | str) -> PathChan
         end = start + 1
         while end < len(lines) and (not lines[end].strip() or lines[end][0] in " \t#"):
             end += 1
-        at = next((k for k in range(start + 1, end) if _PATH_KEY.match(lines[k].rstrip("\r\n"))), None)
-        if at is not None:
-            m = _PATH_KEY.match(lines[at].rstrip("\r\n"))
+        found = ((k, _PATH_KEY.match(lines[k].rstrip("\r\n"))) for k in range(start + 1, end))
+        at, m = next(((k, m) for k, m in found if m is not None), (None, None))
+        if at is not None and m is not None:
             old = m.group("value").strip()
             newline = lines[at][len(lines[at].rstrip("\r\n")):] or "\n"
             lines[at] = f"{m.group('indent')}path: {value}{m.group('comment') or ''}{newline}"
             changed = at
         else:
-            indent = next((re.match(r"^[ \t]+", lines[k]).group(0) for k in range(start + 1, end)
+            indent = next((lines[k][: len(lines[k]) - len(lines[k].lstrip(" \t"))] for k in range(start + 1, end)
                            if lines[k].strip() and not lines[k].lstrip().startswith("#")), "  ")
             lines.insert(start + 1, f"{indent}path: {value}\n")
             changed = start + 1

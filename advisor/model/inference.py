@@ -201,7 +201,7 @@ class ExtrapolationNotes(Sequence):
 
     def __init__(self, method: str, model: MethodModel, values: np.ndarray, outside: np.ndarray):
         self.method, self.model, self.values, self.outside = method, model, values, outside
-        self.any = outside.any(axis=1)
+        self.any: np.ndarray = np.asarray(outside.any(axis=1), dtype=bool)
 
     def __len__(self) -> int:
         return len(self.any)

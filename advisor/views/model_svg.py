@@ -136,13 +136,11 @@ def model_svg(model: SiteModel, title: str = "site model") -> str:
             summary += (f": {metrics.get('attempts')} attempts, cross-validated ROC AUC {metrics['roc_auc']:.2f}, "
                         f"Brier {metrics.get('brier', float('nan')):.3f}")
         body.append(_text(12, y, summary, 14, weight="bold"))
-        panels = [lambda x0, y0, m=m: reliability_panel(x0, y0, m.metrics)]
-        panels += [lambda x0, y0, m=m, k=k: term_panel(x0, y0, m, k) for k in range(len(m.terms))]
-        for n, draw in enumerate(panels):
+        for n in range(len(m.terms) + 1):    # the reliability panel, then one per term
             if n and n % per_row == 0:
                 y += SECTION
             x0 = MARGIN_LEFT + (n % per_row) * (PANEL + GAP)
-            body += draw(x0, y + 48)
+            body += reliability_panel(x0, y + 48, metrics) if n == 0 else term_panel(x0, y + 48, m, n - 1)
         dropped = metrics.get("dropped_terms") or []
         if dropped:
             names = ", ".join(d["term"] for d in dropped)
