@@ -348,3 +348,14 @@ def test_effect_curves_follow_the_declared_direction():
             if term.transform in ("square", "abs"):    # |x| and x² fall then rise across zero
                 along = np.diff(p[x >= 0])
             assert np.all(along <= 1e-12), term.name
+
+
+def test_install_refuses_a_site_file_it_cannot_edit_safely_before_writing_anything(capsys, site):
+    text = site.read_text(encoding="utf-8")
+    start = text.index("model:\n")
+    end = text.index("\n\n", start)
+    site.write_text(text[:start] + "model: {path: larch_basin_model.json}" + text[end:], encoding="utf-8")
+    before = sorted(p.name for p in site.parent.iterdir())
+    status, out, err = run_cli(capsys, "train", "--site", site, "--install")
+    _one_error_line(status, out, err, "model: is written on one line", "'model:' then")
+    assert sorted(p.name for p in site.parent.iterdir()) == before

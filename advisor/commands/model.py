@@ -174,6 +174,7 @@ def cmd_train(args: argparse.Namespace) -> int:
                          field="--usable-below-um")
     history_path = _history_path(args, site)
     out = _out_path(args, site)
+    change = _site_change(args, out)       # with --install, a site file that cannot be edited stops here
     history = training.read_history(history_path, args.usable_below_um)
     terms = training.site_terms(site)
     methods = tuple(dict.fromkeys(args.method)) if args.method else tuple(METHOD_LABELS)
@@ -208,7 +209,7 @@ def cmd_train(args: argparse.Namespace) -> int:
     atomic_write_text(out, text)
     print()
     print(f"wrote {out} ({len(text.encode('utf-8')) / 1000:.1f} kB); inspect it with: advisor model show {out}")
-    _say_how_to_use(args, site, out)
+    _say_how_to_use(args, out, change)
     return 0
 
 
@@ -220,21 +221,38 @@ def _weather_words(hf) -> str:
     return ", ".join(parts)
 
 
-def _say_how_to_use(args, site, out: Path) -> None:
-    from advisor.io.siteedit import install_model_path, model_path_change
+def _site_change(args, out: Path):
+    """The site-file edit that points model.path at ``out`` (checked before anything is written), or None."""
+    from advisor.io.siteedit import model_path_change
+
+    if args.site is None:
+        return None
+    if args.install:
+        return model_path_change(args.site, out)       # a problem here stops train before it writes
+    try:
+        return model_path_change(args.site, out)
+    except AdvisorError as exc:                        # advice only: the model is written either way
+        print(f"advisor: warning: cannot show the site-file line: {exc.one_line()}", file=sys.stderr)
+        return None
+
+
+def _say_how_to_use(args, out: Path, change) -> None:
+    from advisor.io.fileio import atomic_write_text
 
     if args.site is None:
         print(f"to use it: --model {out} on check/outlook/tick, or in your site file: model: {{path: {out}}}")
         return
+    if change is None:
+        print(f"to use it, set model.path in {args.site} to {out}")
+        return
     if args.install:
-        change = install_model_path(args.site, out)
+        try:
+            atomic_write_text(Path(args.site), change.text)
+        except OSError as exc:
+            raise UsageError(f"cannot write {args.site}: {exc.strerror}; the model is in {out}", field="--install",
+                             hint=f"set model.path to {out} by hand") from None
         was = f" (was {change.old_value}; that file is kept)" if change.old_value else ""
         print(f"installed: {args.site}:{change.line}: {change.line_text.strip()}{was}")
-        return
-    try:
-        change = model_path_change(args.site, out)
-    except AdvisorError as exc:  # advice only; the model is written either way
-        print(f"to use it, set model.path in {args.site} to {out} ({exc})", file=sys.stderr)
         return
     print(f"to use it, set line {change.line} of {args.site} to:  {change.line_text.strip()}"
           + (f"   (now: path: {change.old_value})" if change.old_value else "   (under model:)")
