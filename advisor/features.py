@@ -37,7 +37,8 @@ FEATURES_VERSION = 2
 #: Every module whose code decides the row features.  A replay's feature cache hashes their
 #: source; tests/test_featurecache.py fails when the import closure of this module grows beyond it.
 FEATURE_SOURCE_MODULES = (
-    "advisor.features", "advisor.catalogue", "advisor.vocabulary", "advisor.units", "advisor.errors",
+    "advisor.features", "advisor.catalogue", "advisor.vocabulary", "advisor.io.sitemodel",
+    "advisor.units", "advisor.errors",
     "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
     "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
     "advisor.io.bundled",

@@ -10,20 +10,8 @@ Two sections concern the site model:
 * ``history: {path: attempts.csv}`` — the site's record of past attempts: ``advisor attempt add``
   appends to it, ``advisor train`` learns from it (see :mod:`advisor.io.history`);
 * ``model: {path: model.json, terms: [...]}`` — the model file ``check`` applies, and the terms
-  ``advisor train`` fits, each with the way it may push the odds::
-
-      model:
-        path: model.json
-        terms:
-          - {feature: wind_gust_ms, transform: square, direction: lowers}
-          - {feature: dew_point_spread_c, transform: shortfall, knot: 3.0, direction: lowers}
-          - {feature: air_temp_rate_c_per_h, transform: abs, direction: lowers, methods: [astronomical]}
-
-  ``feature`` is a row feature of the catalogue (``advisor rules features``); ``transform`` is
-  ``identity`` (x), ``square`` (x²), ``abs`` (|x|) or ``shortfall`` (max(0, knot − x), with
-  ``knot`` in the feature's unit); ``direction`` is ``lowers`` (a larger term can only lower the
-  odds of a usable result), ``raises`` or ``free``; ``methods`` defaults to both.  Without
-  ``terms``, training uses its default terms.
+  ``advisor train`` fits, each with the way it may push the odds (validated in
+  :mod:`advisor.io.sitemodel`).
 """
 
 from __future__ import annotations
@@ -35,11 +23,10 @@ from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from advisor import units
-from advisor.catalogue import CATALOGUE
 from advisor.errors import SiteError
 from advisor.io.bundled import demo_site_path
+from advisor.io.sitemodel import ModelTermSetting, model_terms
 from advisor.io.yamlio import load_yaml
-from advisor.vocabulary import METHODS, MODEL_DIRECTIONS, MODEL_TRANSFORMS
 
 CANONICAL_COLUMNS = (
     "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",
@@ -183,81 +170,6 @@ def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
     return TickConfig(notify_command=tuple(argv), notify_format=fmt,
                       notify_timeout_s=reader.number(path + ("notify_timeout_s",), default=30.0, lo=0.1, hi=3600),
                       **ints)
-
-
-@dataclass(frozen=True)
-class ModelTermSetting:
-    """One term the site asks ``advisor train`` to fit (``model.terms`` in the site file)."""
-
-    feature: str
-    transform: str = "identity"
-    knot: float | None = None
-    direction: str = "free"
-    methods: tuple[str, ...] = METHODS
-
-
-#: A site model reads at most this many terms per method.
-MAX_MODEL_TERMS = 32
-
-
-def _model_terms(reader: "_Reader") -> tuple[ModelTermSetting, ...]:
-    path = ("model", "terms")
-    raw = reader.get_raw(path)
-    if raw is None:
-        return ()
-    if not isinstance(raw, list) or not raw:
-        raise reader.fail(path, "expected a non-empty list of terms",
-                          hint="e.g. - {feature: wind_gust_ms, transform: square, direction: lowers}")
-    if len(raw) > MAX_MODEL_TERMS:
-        raise reader.fail(path, f"{len(raw)} terms, more than the {MAX_MODEL_TERMS} a site model may read")
-    out: list[ModelTermSetting] = []
-    for i in range(len(raw)):
-        tpath = path + (i,)
-        entry = reader.section(tpath, {"feature", "transform", "knot", "direction", "methods"}, required=True)
-        feature = reader.text(tpath + ("feature",), required=True)
-        spec = CATALOGUE.get(feature)
-        if spec is None:
-            import difflib
-
-            close = difflib.get_close_matches(str(feature), list(CATALOGUE), n=1)
-            raise reader.fail(tpath + ("feature",), f"unknown feature {feature!r}",
-                              hint=f"did you mean '{close[0]}'?" if close else "see 'advisor rules features'")
-        if spec.scope != "row":
-            raise reader.fail(tpath + ("feature",), f"{feature} is fixed by the target and the site, the same for "
-                              "every attempt, so the model cannot learn from it",
-                              hint="choose a feature that varies with the weather or the time")
-        transform = reader.text(tpath + ("transform",), default="identity")
-        if transform not in MODEL_TRANSFORMS:
-            raise reader.fail(tpath + ("transform",), f"unknown transform {transform!r}",
-                              hint=f"one of {', '.join(MODEL_TRANSFORMS)}")
-        if spec.unit == "flag" and transform != "identity":
-            raise reader.fail(tpath + ("transform",), f"{feature} is a flag (true/false): it enters as itself",
-                              hint="write transform: identity or leave it out")
-        knot = None
-        if transform == "shortfall":
-            knot = reader.number(tpath + ("knot",), required=True)
-        elif "knot" in entry:
-            raise reader.fail(tpath + ("knot",), f"only a shortfall term has a knot, not {transform}",
-                              hint="remove knot, or use transform: shortfall")
-        direction = reader.text(tpath + ("direction",), required=True)
-        if direction not in MODEL_DIRECTIONS:
-            raise reader.fail(tpath + ("direction",), f"unknown direction {direction!r}",
-                              hint="lowers (a larger term can only lower the odds), raises, or free")
-        methods = entry.get("methods", list(METHODS))
-        if (not isinstance(methods, list) or not methods or not all(m in METHODS for m in methods)
-                or len(set(methods)) != len(methods)):
-            raise reader.fail(tpath + ("methods",), f"expected a list of methods, got {methods!r}",
-                              hint="e.g. [scan], [astronomical] or [scan, astronomical]")
-        term = ModelTermSetting(feature, transform, knot, direction, tuple(m for m in METHODS if m in methods))
-        for k, other in enumerate(out):
-            if ((other.feature, other.transform, other.knot) == (term.feature, term.transform, term.knot)
-                    and set(other.methods) & set(term.methods)):
-                raise reader.fail(tpath, f"the same term as model.terms[{k}]", hint="list each term once")
-        out.append(term)
-    for method in METHODS:
-        if not any(method in t.methods for t in out):
-            raise reader.fail(path, f"no term for the {method} method", hint="give it at least one term")
-    return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -520,7 +432,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         references_path=r.path_value(("references", "path"), base),
         rule_paths=rule_paths,
         model_path=r.path_value(("model", "path"), base),
-        model_terms=_model_terms(r),
+        model_terms=model_terms(r),
         history_path=r.path_value(("history", "path"), base),
         tick=_tick_config(r, base),
         forecast=_forecast_settings(r, base),
