@@ -359,3 +359,30 @@ def test_install_refuses_a_site_file_it_cannot_edit_safely_before_writing_anythi
     status, out, err = run_cli(capsys, "train", "--site", site, "--install")
     _one_error_line(status, out, err, "model: is written on one line", "'model:' then")
     assert sorted(p.name for p in site.parent.iterdir()) == before
+
+
+def test_a_long_feed_is_read_from_its_tail_only_when_the_tail_covers_the_time(monkeypatch):
+    """Recording now reads the feed's tail (as check does); an older time reads it whole; both
+    give the weather a whole read gives."""
+    from advisor.io import feed as feed_module
+    from advisor.io.site import load_site
+    from advisor.model import attempts
+
+    site = load_site(None)
+    whole = feed_module.read_feed(site.feed.path, site.feed)
+    calls = []
+    real = feed_module.read_feed
+
+    def spy(path, layout, tail_bytes=None, **kw):
+        calls.append(tail_bytes)
+        return real(path, layout, tail_bytes=tail_bytes, **kw)
+
+    monkeypatch.setattr(attempts, "CHECK_TAIL_BYTES", 20_000)   # about 5 h of the demo mast
+    monkeypatch.setattr(attempts, "read_feed", spy)
+    for at, reads in ((EVENING, [20_000]), (FOG, [20_000, None])):
+        calls.clear()
+        feed = attempts.read_feed_for(site.feed.path, site.feed, [at])
+        assert calls == reads, at
+        got = attempts.weather_at(feed.frame, pd.DatetimeIndex([at]), site)
+        want = attempts.weather_at(whole.frame, pd.DatetimeIndex([at]), site)
+        pd.testing.assert_frame_equal(got, want)

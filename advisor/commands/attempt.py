@@ -84,10 +84,9 @@ def _residual(text: str | None) -> float | None:
 
 def cmd_attempt_add(args: argparse.Namespace) -> int:
     from advisor.features import CATALOGUE
-    from advisor.io.feed import read_feed
     from advisor.io.history import WEATHER_COLUMNS, append_attempt, format_value
     from advisor.io.site import load_site
-    from advisor.model.attempts import not_covered, weather_at
+    from advisor.model.attempts import not_covered, read_feed_for, weather_at
     from advisor.model.inference import feature_phrase
 
     site = load_site(args.site)
@@ -107,7 +106,7 @@ def cmd_attempt_add(args: argparse.Namespace) -> int:
     else:
         raise UsageError("no feed to take the weather from", field="--feed",
                          hint="pass --feed FILE or set feed.path in the site file")
-    feed = read_feed(feed_path, session.feed_layout(site, named_on_command_line=bool(args.feed)))
+    feed = read_feed_for(feed_path, session.feed_layout(site, named_on_command_line=bool(args.feed)), [when])
     weather = weather_at(feed.frame, pd.DatetimeIndex([when]), site)
     why = not_covered(weather, 0, feed.frame, site)
     if why is not None:

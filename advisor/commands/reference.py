@@ -64,8 +64,7 @@ def _resolve(option: session.TimeOption | None, request: session.Request) -> pd.
 def _feed_temperature(request: session.Request, time: pd.Timestamp) -> tuple[float, str]:
     """The air temperature at ``time`` from the feed, as ``check`` computes it, and where it came from."""
     from advisor.errors import FeedError
-    from advisor.io.feed import read_feed
-    from advisor.model.attempts import not_covered, weather_at
+    from advisor.model.attempts import not_covered, read_feed_for, weather_at
 
     if request.site_path is None and request.feed_path is None:
         raise UsageError("no air temperature given and no feed to read it from", field="--air-temp-c",
@@ -75,7 +74,7 @@ def _feed_temperature(request: session.Request, time: pd.Timestamp) -> tuple[flo
     if path is None:
         raise UsageError("no air temperature given and the site file names no feed", field="--air-temp-c",
                          hint="give --air-temp-c DEGC or --feed FILE")
-    feed = read_feed(path, session.feed_layout(site, named_on_command_line=request.feed_path is not None))
+    feed = read_feed_for(path, session.feed_layout(site, named_on_command_line=request.feed_path is not None), [time])
     weather = weather_at(feed.frame, pd.DatetimeIndex([time]), site)
     why = not_covered(weather, 0, feed.frame, site)
     temp = float(weather["air_temp_c"].iloc[0])

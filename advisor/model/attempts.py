@@ -20,8 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from advisor.features import TEMP_RATE_WINDOW_MIN, compute_features, row_features
-from advisor.io.feed import Feed, canonical_frame
+from advisor.features import LOOKBACK, TEMP_RATE_WINDOW_MIN, compute_features, row_features
+from advisor.io.feed import CHECK_TAIL_BYTES, Feed, canonical_frame, read_feed
 from advisor.io.history import REQUIRED_WEATHER, WEATHER_COLUMNS, History, HistoryError, own_weather
 from advisor.io.references import Registry
 from advisor.io.site import CANONICAL_COLUMNS, FeedLayout, Site
@@ -47,6 +47,17 @@ def weather_at(frame: pd.DataFrame, times_utc, site: Site) -> pd.DataFrame:
     picked = np.where(source >= 0, sample_ns[np.clip(source, 0, len(sample_ns) - 1)], nat)
     out["sample_time"] = pd.DatetimeIndex(picked.astype("datetime64[ns]")).tz_localize("UTC")
     return out
+
+
+def read_feed_for(path, layout: FeedLayout, times_utc) -> Feed:
+    """The feed at ``path``, read only from its tail when that holds every time of ``times_utc``
+    with the history the features need before it (:data:`advisor.features.LOOKBACK`); else whole."""
+    feed = read_feed(path, layout, tail_bytes=CHECK_TAIL_BYTES)
+    first = feed.quality.first_time_utc
+    earliest = pd.DatetimeIndex(times_utc).min()
+    if first is not None and earliest - LOOKBACK >= first:
+        return feed
+    return read_feed(path, layout)
 
 
 def not_covered(weather: pd.DataFrame, i: int, frame: pd.DataFrame, site: Site) -> str | None:
