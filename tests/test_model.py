@@ -16,11 +16,11 @@ import pytest
 
 from advisor.decision import explain
 from advisor.errors import ModelError
+from advisor.evaluation.evaluate import evaluate
 from advisor.io.feed import canonical_frame
+from advisor.io.site import FeedLayout
 from advisor.model.inference import MethodModel, SiteModel, Term, term_matrix
 from advisor.model.modelfile import MAX_MODEL_BYTES, dumps_model, load_model, model_to_dict, parse_model
-from advisor.evaluation.evaluate import evaluate
-from advisor.io.site import FeedLayout
 
 from .conftest import NIGHT_UTC, registry_at, weather_table
 
@@ -129,9 +129,9 @@ def test_json_round_trip_is_exact():
 def _evaluate(model, **weather):
     table = weather_table(**weather)
     feed = canonical_frame(table, FeedLayout(max_feed_age_min=15))
-    from advisor.rules.loader import default_rule_files, load_rules
     from advisor.features import CATALOGUE
     from advisor.io.site import load_site
+    from advisor.rules.loader import default_rule_files, load_rules
 
     rules = load_rules([(p, "default") for p in default_rule_files()], CATALOGUE)
     site = load_site(None)

@@ -209,9 +209,9 @@ def test_replay_warns_when_the_history_does_not_cover_the_period(capsys, sample_
 def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules, tmp_path):
     """--compare-rules computes the features once; the verdicts must equal separate replays."""
     from advisor.commands.session import load_ruleset
+    from advisor.evaluation.replay import replay_rule_sets, replay_verdicts
     from advisor.io.feed import read_feed
     from advisor.io.references import read_registry
-    from advisor.evaluation.replay import replay_rule_sets, replay_verdicts
     from advisor.io.site import load_site
 
     site = load_site(DEMO / "larch_basin.yaml")

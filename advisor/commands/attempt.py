@@ -31,7 +31,11 @@ def add_parser(sub, name: str, help: str) -> None:
         "Record and list the site's attempts at measuring the surface. Each recorded row carries the weather "
         "at its time, computed from the site's feed as 'check' computes it, so 'advisor train' can learn from it."))
     actions = cmd.add_subparsers(dest="action", metavar="ACTION")
-    add = actions.add_parser("add", help="record one attempt and its outcome")
+    add = actions.add_parser(
+        "add", help="record one attempt and its outcome",
+        description="Append one attempt to the site's history with the weather at its time, taken from the feed "
+                    "as 'check' computes it. A second attempt of the same method within a minute, or a time the "
+                    "feed does not cover, is refused and nothing is written.")
     add.add_argument("--method", required=True, choices=METHODS, help="how the surface was measured")
     add.add_argument("--usable", required=True, choices=("yes", "no"), help="did it give a usable surface map")
     add.add_argument("--residual-um", metavar="UM", help="measured residual surface rms [µm], if any")

@@ -21,11 +21,11 @@ from advisor.catalogue import CATALOGUE, unit_text
 from advisor.model.inference import METHOD_LABELS, MethodModel, SiteModel
 from advisor.vocabulary import MODEL_DIRECTIONS
 
-WIDTH = 880
+WIDTH = 1180         # a reliability panel and three term panels side by side
 PANEL = 200          # plot area side [px]
 MARGIN_LEFT = 52
 GAP = 78
-HEADER = 56
+HEADER = 84
 SECTION = PANEL + 120
 CURVE_POINTS = 80
 FONT = 'font-family="sans-serif"'
@@ -82,6 +82,13 @@ def reliability_panel(x0: float, y0: float, metrics: dict) -> list[str]:
     return out
 
 
+def _tick(value: float, span: float) -> str:
+    """A tick label with as many decimals as the axis span needs (never "-0")."""
+    decimals = max(0, 2 - int(math.floor(math.log10(span)))) if span > 0 else 2
+    text = f"{value:.{decimals}f}"
+    return text[1:] if text.startswith("-") and float(text) == 0 else text
+
+
 def effect_curve(m: MethodModel, k: int, n: int = CURVE_POINTS) -> tuple[np.ndarray, np.ndarray] | None:
     """(feature values over the trained range, p_usable with every other term at its training mean)."""
     if m.feature_min is None or m.feature_max is None:
@@ -112,7 +119,7 @@ def term_panel(x0: float, y0: float, m: MethodModel, k: int) -> list[str]:
         return out
     x, p = curve
     lo, hi = float(x[0]), float(x[-1])
-    ticks = [(f, f"{lo + f * (hi - lo):.3g}") for f in (0.0, 0.5, 1.0)]
+    ticks = [(f, _tick(lo + f * (hi - lo), hi - lo)) for f in (0.0, 0.5, 1.0)]
     out += _axes(x0, y0, xlabel, "odds of a usable result", ticks, _P_TICKS)
     points = " ".join(f"{x0 + PANEL * (xi - lo) / (hi - lo):.1f},{y0 + PANEL * (1 - pi):.1f}" for xi, pi in zip(x, p))
     out.append(f'<polyline points="{points}" fill="none" stroke="{ACCENT}" stroke-width="2"/>')
