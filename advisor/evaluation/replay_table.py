@@ -30,10 +30,11 @@ def _joined(masks: list[tuple[str, np.ndarray]], n: int) -> np.ndarray:
     """Per row, the names whose mask is true, joined by ';' (built once per distinct combination)."""
     if not masks:
         return np.full(n, "", dtype=object)
-    bits = np.column_stack([m for _, m in masks]).astype(bool)
-    combos, inverse = np.unique(bits, axis=0, return_inverse=True)
+    bits = np.ascontiguousarray(np.column_stack([m for _, m in masks]).astype(np.uint8))
+    rows = bits.view(np.dtype((np.void, bits.shape[1]))).ravel()     # one opaque value per row of bits
+    _, first, inverse = np.unique(rows, return_index=True, return_inverse=True)
     names = [name for name, _ in masks]
-    texts = np.array([";".join(name for name, on in zip(names, row) if on) for row in combos], dtype=object)
+    texts = np.array([";".join(name for name, on in zip(names, bits[k]) if on) for k in first], dtype=object)
     return texts[np.asarray(inverse).ravel()]
 
 
