@@ -136,6 +136,18 @@ def test_the_bundled_demo_history_is_read_only(capsys):
     _one_error_line(status, out, err, "--history", "read-only")
 
 
+def test_the_demo_weather_is_never_recorded_unasked(capsys, tmp_path):
+    history = tmp_path / "mine.csv"
+    status, out, err = run_cli(capsys, "attempt", "add", "--history", history, "--method", "scan", "--usable", "yes",
+                               "--time", _utc(EVENING))
+    _one_error_line(status, out, err, "--feed", "never recorded unasked")
+    assert not history.exists()
+    status, out, err = run_cli(capsys, "attempt", "add", "--history", history, "--method", "scan", "--usable", "yes",
+                               "--time", _utc(EVENING), "--feed", DEMO / "larch_basin_mast.csv")
+    assert status == 0, err
+    assert len(read_history(history).frame) == 1
+
+
 def test_attempt_list_shows_the_newest(capsys, site):
     assert _add(capsys, site, "scan", "no", EVENING, "--note", "after the front")[0] == 0
     status, out, err = run_cli(capsys, "attempt", "list", "--site", site, "--last", "2")

@@ -52,7 +52,8 @@ def test_readme_command_runs(command, monkeypatch, tmp_path, capsys):
                      "--out", str(tmp_path / "model.json")]) == 0
     if argv[:2] == ["attempt", "list"]:
         assert main(["attempt", "add", "--history", str(tmp_path / "attempts.csv"), "--method", "scan",
-                     "--usable", "yes", "--time", "2026-11-30T03:10:00Z"]) == 0
+                     "--feed", "example_weather/larch_basin_mast.csv", "--usable", "yes",
+                     "--time", "2026-11-30T03:10:00Z"]) == 0
     if argv[:2] == ["reference", "list"]:
         main(["reference", "add", "--references", str(tmp_path / "refs.csv"), "--time", "2026-11-30T03:10:00Z",
               "--air-temp-c", "-3.2"])

@@ -105,6 +105,10 @@ def cmd_attempt_add(args: argparse.Namespace) -> int:
                          hint="record an attempt once it has been made")
     if args.feed:
         feed_path = Path(args.feed)
+    elif site.is_demo:
+        raise UsageError("no feed to take the weather from", field="--feed",
+                         hint="pass --site SITE.yaml (its feed) or --feed FILE; the demo's invented weather is never "
+                              "recorded unasked")
     elif site.feed.path is not None:
         feed_path = site.feed.path
     else:

@@ -151,12 +151,14 @@ def _out_path(args, site) -> Path:
 
 
 def _completion_feed(args, site, history):
-    """The feed for rows without weather: --feed, else the site's feed when such rows exist."""
+    """The feed for rows without weather: --feed, else the site's feed when such rows exist (not the demo's)."""
     from advisor.io.feed import read_feed
     from advisor.io.history import own_weather
 
     if args.feed:
         return read_feed(Path(args.feed), session.feed_layout(site, named_on_command_line=True))
+    if site.is_demo:            # never complete a history with the invented demo weather unasked
+        return None
     if own_weather(history.frame).all() or site.feed.path is None or not Path(site.feed.path).exists():
         return None
     return read_feed(site.feed.path, site.feed)
