@@ -70,7 +70,7 @@ CASES = [
     ("site_bad_calibrator.yaml", check_site, 2, "ra out of range"),
     ("site_no_site_section.yaml", check_site, 2, "missing section"),
     ("site_top_is_list.yaml", check_site, 2, "expected a mapping"),
-    ("site_empty.yaml", check_site, 2, "expected a mapping"),
+    ("site_empty.yaml", check_site, 2, "site file is empty"),
     ("site_latitude_out_of_range.yaml", check_site, 2, "outside -90..90"),
     ("site_min_above_max_elevation.yaml", check_site, 2, "must be above min_calibrator_elevation_deg"),
     # rule files
