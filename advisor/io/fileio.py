@@ -78,9 +78,11 @@ def _kind(kind: str | FileKind) -> FileKind:
 
 
 def _size_text(n: int) -> str:
-    if n >= 1_000_000:
-        return f"{n / 1e6:,.1f} MB".replace(".0 MB", " MB")
-    return f"{n:,} bytes"
+    return f"{n:,} bytes" if n < 10_000_000 else f"{n / 1e6:,.0f} MB"
+
+
+def _limit_text(n: int) -> str:
+    return f"{n:,}-byte" if n < 10_000_000 else f"{n / 1e6:,.0f} MB"
 
 
 def check_path(path: Path | str, error_type: type[AdvisorError], what: str = "file") -> Path:
@@ -172,7 +174,7 @@ def _check_size(size: int, error_type: type[AdvisorError], spec: FileKind, sourc
         raise error_type(f"{spec.what} is empty", source=source,
                          hint=empty_hint or "a truncated or unsaved file looks the same; check the file")
     if size > spec.max_bytes:
-        raise error_type(f"{spec.what} is {_size_text(size)}, above the {_size_text(spec.max_bytes)} limit "
+        raise error_type(f"{spec.what} is {_size_text(size)}, above the {_limit_text(spec.max_bytes)} limit "
                          f"for a {spec.what}", source=source, hint=spec.too_big_hint)
 
 
@@ -232,7 +234,7 @@ def read_bytes_bounded(path: Path | str, error_type: type[AdvisorError], kind: s
         except OSError as exc:
             raise _os_error(exc, error_type, spec.what, str(path)) from None
     if len(raw) > spec.max_bytes:
-        raise error_type(f"{spec.what} grew above the {_size_text(spec.max_bytes)} limit while being read",
+        raise error_type(f"{spec.what} grew above the {_limit_text(spec.max_bytes)} limit while being read",
                          source=str(path), hint=spec.too_big_hint)
     if not raw and not empty_ok:
         raise error_type(f"{spec.what} is empty", source=str(path),
@@ -457,13 +459,15 @@ def _same_file(a: Path, b: Path) -> bool:
         return os.path.realpath(a) == os.path.realpath(b)
 
 
-def refuse_overwrite(output_path: Path | str | None, input_paths: Mapping[str, Path | str | None]
-                     | Iterable[Path | str | None], field: str) -> None:
+def refuse_overwrite(output_path: Path | str | None,
+                     input_paths: Mapping[str, Path | str | Iterable[Path | str] | None] | Iterable[Path | str | None],
+                     field: str) -> None:
     """Refuse an output path that names one of the command's input files.
 
     Compares by file identity (``os.path.samefile``: symbolic and hard links included) where
-    both exist, else by resolved path.  ``input_paths`` maps option names to paths (for the
-    message) or is a plain list; ``None`` entries and the output ``-`` (stdout) are ignored.
+    both exist, else by resolved path.  ``input_paths`` maps option names to a path or a list
+    of paths (for the message), or is a plain list of paths; ``None`` entries and ``-``
+    (stdin/stdout) are ignored.
 
     Raises
     ------
@@ -473,9 +477,15 @@ def refuse_overwrite(output_path: Path | str | None, input_paths: Mapping[str, P
     if output_path is None or str(output_path) == "-":
         return
     out = check_path(output_path, UsageError, "output")
-    items = input_paths.items() if isinstance(input_paths, Mapping) else ((None, p) for p in input_paths)
+    if isinstance(input_paths, Mapping):
+        items = []
+        for name, value in input_paths.items():
+            many = value if isinstance(value, (list, tuple, set, frozenset)) else [value]
+            items += [(name, p) for p in many]
+    else:
+        items = [(None, p) for p in input_paths]
     for name, candidate in items:
-        if candidate is None or str(candidate) == "-":
+        if candidate is None or str(candidate) in ("-", ""):
             continue
         if _same_file(out, Path(candidate)):
             which = f"the {name} input" if name else "one of its inputs"
