@@ -29,7 +29,8 @@ from typing import BinaryIO
 import pandas as pd
 
 from advisor.errors import FeedError
-from advisor.io.fileio import KINDS, FileKind, encoding_error, open_regular, sniff_encoding_problem
+from advisor.io.fileio import (KINDS, FileKind, encoding_error, open_regular, repeated_csv_column,
+                                sniff_encoding_problem)
 
 MAX_FULL_READ_BYTES = KINDS["feed"].max_bytes   # whole-file reads (replay, outlook); bounded memory
 MAX_HEADER_BYTES = 65_536                        # the CSV header line
@@ -258,6 +259,12 @@ def open_feed(path: Path | str, tail_bytes: int | None = None) -> Iterator[RawFe
             raise FeedError("feed has no header or rows", source=source, hint=_EMPTY_HINT) from None
         except (pd.errors.ParserError, ValueError) as exc:
             raise _parse_error(exc, source) from None
+        if not is_jsonl:
+            fh.seek(0)
+            repeated = repeated_csv_column(fh.readline(MAX_HEADER_BYTES))
+            if repeated:
+                raise FeedError(f"column {repeated!r} appears twice in the header", source=source, line=1,
+                                hint="keep one; the advisor will not guess which is meant")
         raw.partial = end < size
         if len(raw.table) == 0 and raw.partial:
             raise FeedError("feed has no complete data row: its last line has no newline at the end", source=source,

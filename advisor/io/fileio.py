@@ -23,6 +23,7 @@ mark (spreadsheets write one) is accepted, UTF-16 and UTF-32 are recognised and 
 from __future__ import annotations
 
 import codecs
+import csv
 import errno
 import fcntl
 import os
@@ -312,6 +313,22 @@ def read_text_bounded(path: Path | str, error_type: type[AdvisorError], kind: st
     if raw is None:
         return None
     return decode_text(raw, error_type, spec.what, str(path), expected)
+
+
+def repeated_csv_column(header: bytes | str) -> str | None:
+    """The first column name given twice in a CSV header line (BOM and spaces ignored), or ``None``.
+
+    pandas would rename the second to ``name.1`` and silently read the first: a duplicated
+    column is refused instead, like a duplicated key anywhere else.
+    """
+    text = header.decode("utf-8", "replace") if isinstance(header, bytes) else header
+    names = [n.strip() for n in next(csv.reader([text.lstrip("\ufeff").rstrip("\r\n")]), [])]
+    seen: set[str] = set()
+    for name in names:
+        if name and name in seen:
+            return name
+        seen.add(name)
+    return None
 
 
 # --- writing -------------------------------------------------------------------------------

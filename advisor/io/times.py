@@ -230,12 +230,15 @@ def parse_time_column(texts: pd.Series, *, source: str | None, field: str | None
         return out
     if naive.any():
         i = int(np.flatnonzero(naive)[0])
+        shown = repr(str(stripped[i]))
+        if require_offset:
+            raise _fail(error_type, f"time {shown} has no UTC offset", no_zone_hint or ISO_HINT, source,
+                        _line(i, line_offset), field)
         if has_offset.any():
-            raise _fail(error_type, f"timestamp {str(stripped[i])!r} has no UTC offset while others do",
+            raise _fail(error_type, f"timestamp {shown} has no UTC offset while others do",
                         "write every time with an offset or Z", source, _line(i, line_offset), field)
-        if require_offset or time_zone is None:
-            raise _fail(error_type, f"timestamp {str(stripped[i])!r} carries no UTC offset" +
-                        ("" if require_offset else " and no time zone is declared"),
+        if time_zone is None:
+            raise _fail(error_type, f"timestamp {shown} carries no UTC offset and no time zone is declared",
                         no_zone_hint or ISO_HINT, source, _line(i, line_offset), field)
     # pandas reads the original strings fastest; only stripped or lower-case texts are rewritten.
     same = np.array_equal(np.fromiter(map(len, series), dtype=np.int64, count=len(series)),
