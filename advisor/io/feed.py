@@ -110,10 +110,13 @@ def _numeric(raw: pd.Series, column: str, source: str, line_offset: int) -> np.n
     huge = ~np.isnan(values) & ~(np.abs(values) < MAX_FEED_NUMBER)
     if huge.any():
         i = int(np.flatnonzero(huge)[0])
-        shown = text.iloc[i] if text is not None else f"{values[i]:g}"
-        shown = shown if len(shown) <= 24 else f"{shown[:12]}…({len(shown)} characters)"
-        raise FeedError(f"value {shown} is not a finite number of plausible size", source=source,
-                        line=i + line_offset, field=column, hint="leave the cell empty for a missing value")
+        if text is not None:
+            shown = text.iloc[i] if len(text.iloc[i]) <= 24 else f"{text.iloc[i][:12]}… ({len(text.iloc[i])} digits)"
+            what = f"value {shown} is not a finite number of plausible size"
+        else:
+            what = f"a number too large to be a measurement (read as {values[i]:g})"
+        raise FeedError(what, source=source, line=i + line_offset, field=column,
+                        hint="leave the cell empty for a missing value")
     return values
 
 

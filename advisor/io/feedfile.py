@@ -177,8 +177,9 @@ def _unique_keys(pairs):
 
 
 def _bounded_int(text: str):
-    """A JSON integer: exact up to 15 digits, else a float (so 400 digits is ``inf``, never an OverflowError)."""
-    return int(text) if len(text) <= 16 else float(text)
+    """A JSON integer: exact up to 16 digits, else kept as its text, which the column check then
+    refuses with the number as written (never an OverflowError or Python's 4300-digit limit)."""
+    return int(text) if len(text) <= 16 else text
 
 
 def _constant(name: str) -> float:

@@ -473,7 +473,11 @@ def _same_file(a: Path, b: Path) -> bool:
     try:
         return os.path.samefile(a, b)
     except (OSError, ValueError):
+        pass
+    try:
         return os.path.realpath(a) == os.path.realpath(b)
+    except (OSError, ValueError):   # an impossible input path: its own reader reports it
+        return False
 
 
 def refuse_overwrite(output_path: Path | str | None,

@@ -79,13 +79,15 @@ def parse_registry_text(text: str | None, source: str) -> Registry:
                 continue
             texts.append(row["time"])
             lines.append(number)
+            cell = row["air_temp_c"]
+            shown = cell if len(cell) <= 24 else f"{cell[:12]}… ({len(cell)} characters)"
             try:
-                temp = float(row["air_temp_c"])
+                temp = float(cell)
             except ValueError:
-                raise RegistryError(f"air_temp_c {row['air_temp_c']!r} is not a number", source=source,
+                raise RegistryError(f"air_temp_c {shown!r} is not a number", source=source,
                                     line=number, field="air_temp_c", hint="write °C, e.g. 3.5") from None
             if not (math.isfinite(temp) and lo <= temp <= hi):
-                raise RegistryError(f"air_temp_c {row['air_temp_c']} is outside {lo:g}..{hi:g}", source=source,
+                raise RegistryError(f"air_temp_c {shown} is outside {lo:g}..{hi:g} °C", source=source,
                                     line=number, field="air_temp_c")
             temps.append(temp)
             notes.append(clean_text(row.get("note", "")))

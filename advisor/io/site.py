@@ -16,6 +16,7 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from advisor import units
 from advisor.errors import SiteError
+from advisor.text import clean_text
 from advisor.io.bundled import demo_site_path
 from advisor.io.yamlio import load_yaml
 
@@ -269,6 +270,9 @@ class _Reader:
             if key not in known:
                 import difflib
 
+                if clean_text(key) != str(key):
+                    raise self.fail(path + (key,), "unknown key: it contains control characters or escape sequences",
+                                    hint="retype the key; known keys: " + ", ".join(sorted(known)))
                 close = difflib.get_close_matches(str(key), sorted(known), n=1)
                 hint = f"did you mean '{close[0]}'?" if close else f"known keys: {', '.join(sorted(known))}"
                 raise self.fail(path + (key,), "unknown key", hint=hint)

@@ -99,7 +99,7 @@ def _check_number(node: yaml.ScalarNode, error_type: type[AdvisorError], source:
         shown = text if len(text) <= 24 else f"{text[:12]}…{text[-6:]} ({digits} digits)"
         raise error_type(f"number {shown} is too large", source=source, line=node.start_mark.line + 1,
                          column=node.start_mark.column + 1,
-                         hint=f"write a plain value below {MAX_YAML_NUMBER:.0e} in magnitude")
+                         hint="write a plain value below 1e15 in magnitude")
 
 
 def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], duplicate_keys: bool = True):
@@ -125,6 +125,11 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
         what = exc.problem or "invalid YAML"
         raise error_type(f"YAML syntax error: {what}", source=source, line=line, column=column,
                          hint="check indentation, colons and quotes") from None
+    except yaml.reader.ReaderError as exc:
+        line = text.count("\n", 0, exc.position) + 1 if isinstance(exc.position, int) else None
+        what = f"control character U+{exc.character:04X}" if isinstance(exc.character, int) else "a character"
+        raise error_type(f"{what} is not allowed in YAML", source=source, line=line,
+                         hint="remove it; write special characters with escapes inside double quotes") from None
     except yaml.YAMLError as exc:
         raise error_type(f"YAML syntax error: {exc}", source=source) from None
     except RecursionError:

@@ -297,8 +297,12 @@ def _reject_constant(name: str):
     raise ValueError(f"non-finite number {name}")
 
 
+class _LongInteger(str):
+    """An integer literal too long to be a model number, kept as written for the message."""
+
+
 def _bounded_int(text: str):
-    return int(text) if len(text.lstrip("-")) <= MAX_INT_DIGITS else float(text)
+    return int(text) if len(text.lstrip("-")) <= MAX_INT_DIGITS else _LongInteger(text)
 
 
 def _unique_keys(pairs):
@@ -350,15 +354,13 @@ class _Validator:
         return value
 
     def number(self, value, where: str) -> float:
+        if isinstance(value, _LongInteger):
+            raise self.fail(where, f"number {value[:12]}… ({len(value)} digits) is too large to be a model number")
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise self.fail(where, f"expected a finite number, got {value!r}")
-        try:
-            number = float(value)
-        except OverflowError:
-            number = math.inf
+        number = float(value)
         if not math.isfinite(number):
-            shown = repr(value) if len(repr(value)) <= 24 else f"{repr(value)[:12]}… ({len(repr(value))} digits)"
-            raise self.fail(where, f"expected a finite number, got {shown}")
+            raise self.fail(where, f"expected a finite number, got {value!r}")
         return number
 
     def numbers(self, value, where: str, n: int) -> np.ndarray:
