@@ -247,7 +247,8 @@ def open_feed(path: Path | str, tail_bytes: int | None = None) -> Iterator[RawFe
             check_whole_read(path, size)
         end = _complete_end(fh, size, tail_bytes if tail else size)
         if end == 0:
-            where = f"in the last {tail_bytes / 1e6:.0f} MB of the feed" if tail else "in the feed"
+            amount = f"{tail_bytes / 1e6:.0f} MB" if tail_bytes >= 10_000_000 else f"{tail_bytes:,} bytes"
+            where = f"in the last {amount} of the feed" if tail else "in the feed"
             raise FeedError(f"no complete line {where}: no line ends with a newline", source=source,
                             hint="a logger's line in progress is ignored until its newline is written; "
                                  "is this a CSV or JSON Lines feed?")
