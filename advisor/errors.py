@@ -13,7 +13,6 @@ from __future__ import annotations
 
 from advisor.text import clean_text, shorten
 
-
 #: Longest file name / field [characters] and message / hint shown in one error line.
 MAX_SOURCE_CHARS = 160
 MAX_MESSAGE_CHARS = 400

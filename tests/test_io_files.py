@@ -21,8 +21,18 @@ import pytest
 from advisor.commands.main import main
 from advisor.errors import AdvisorError, FeedError, RegistryError, RulesError, SiteError, UsageError
 from advisor.io import fileio
-from advisor.io.fileio import (KINDS, FileKind, append_line_locked, check_path, decode_text, locked, open_regular,
-                               read_bytes_bounded, read_text_bounded, refuse_overwrite, update_text_locked)
+from advisor.io.fileio import (
+    KINDS,
+    FileKind,
+    append_line_locked,
+    check_path,
+    decode_text,
+    locked,
+    open_regular,
+    read_bytes_bounded,
+    refuse_overwrite,
+    update_text_locked,
+)
 from advisor.io.references import read_registry
 
 CORPUS = Path(__file__).resolve().parent / "bad_inputs"
@@ -62,15 +72,13 @@ def test_paths_that_cannot_name_a_file_are_one_clear_error():
 def test_a_fifo_is_refused_without_waiting_for_a_writer(tmp_path):
     fifo = tmp_path / "feed.csv"
     os.mkfifo(fifo)
-    with no_hang():
-        with pytest.raises(FeedError, match=r"is a named pipe \(FIFO\), not a regular file"):
-            read_bytes_bounded(fifo, FeedError, "feed")
+    with no_hang(), pytest.raises(FeedError, match=r"is a named pipe \(FIFO\), not a regular file"):
+        read_bytes_bounded(fifo, FeedError, "feed")
 
 
 def test_devices_and_directories_are_refused(tmp_path):
-    with no_hang():
-        with pytest.raises(RulesError, match="is a character device, not a regular file; expected a rule file"):
-            read_bytes_bounded("/dev/zero", RulesError, "rules")
+    with no_hang(), pytest.raises(RulesError, match="is a character device, not a regular file; expected a rule file"):
+        read_bytes_bounded("/dev/zero", RulesError, "rules")
     with pytest.raises(SiteError, match="is a directory, expected a site file"):
         read_bytes_bounded(tmp_path, SiteError, "site")
 
@@ -79,10 +87,8 @@ def test_a_file_swapped_for_a_fifo_after_the_check_is_refused_on_the_open_descri
     fifo = tmp_path / "rules.yaml"
     os.mkfifo(fifo)
     monkeypatch.setattr(fileio, "stat_regular", lambda *a, **k: None)   # the race: the first check passed
-    with no_hang():
-        with pytest.raises(RulesError, match="named pipe"):
-            with open_regular(fifo, RulesError, "rules"):
-                pass
+    with no_hang(), pytest.raises(RulesError, match="named pipe"), open_regular(fifo, RulesError, "rules"):
+        pass
 
 
 def test_size_caps_are_checked_before_reading_and_name_the_fix(tmp_path):
@@ -159,7 +165,7 @@ def _add_reference(registry: str, minute: int, barrier) -> int:
 def _child(target, args, barrier) -> None:
     try:
         status = target(*args, barrier) or 0
-    except BaseException:  # noqa: BLE001 - reported through the exit status
+    except BaseException:
         status = 99
     os._exit(status)
 
@@ -204,10 +210,10 @@ def test_twenty_concurrent_appenders_write_whole_lines(tmp_path):
 
 def test_a_held_lock_makes_another_writer_give_up_with_a_clear_line(tmp_path):
     path = tmp_path / "refs.csv"
-    with locked(path, RegistryError, "reference registry"):
-        with pytest.raises(RegistryError, match="another advisor has been writing the reference registry"):
-            with locked(path, RegistryError, "reference registry", wait_s=0):
-                pass
+    with locked(path, RegistryError, "reference registry"), \
+            pytest.raises(RegistryError, match="another advisor has been writing the reference registry"), \
+            locked(path, RegistryError, "reference registry", wait_s=0):
+        pass
     with locked(path, RegistryError, "reference registry", wait_s=0):   # released again
         pass
     assert (tmp_path / ".refs.csv.lock").exists()

@@ -22,13 +22,18 @@ from advisor.errors import FeedError, ModelError, RulesError, SiteError, UsageEr
 from advisor.io import feedfile
 from advisor.io.feed import read_feed
 from advisor.io.site import FeedLayout, load_site
-from advisor.io.times import (describe_bad_time, epoch_times, iso_shape, parse_time_arg, parse_time_column,
-                              parse_time_text)
+from advisor.io.times import (
+    describe_bad_time,
+    epoch_times,
+    iso_shape,
+    parse_time_arg,
+    parse_time_column,
+    parse_time_text,
+)
 from advisor.io.yamlio import parse_yaml_text
 from advisor.model.inference import parse_model
 from advisor.text import clean_text, shorten
-
-from tests.test_io_files import CORPUS, GOOD_FEED
+from tests.test_io_files import CORPUS
 
 HEADER = "time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n"
 
@@ -229,8 +234,8 @@ def test_a_huge_sparse_feed_is_read_from_its_tail_only(tmp_path):
 @pytest.mark.parametrize("value", ["true", "false"])
 def test_json_booleans_are_never_numbers(tmp_path, value):
     feed = tmp_path / "mast.jsonl"
-    feed.write_text('{"time": "2026-01-16T03:00:00Z", "wind_mean_ms": %s, "wind_gust_ms": 2.5, '
-                    '"air_temp_c": 2.0, "rel_humidity_pct": 70}\n' % value)
+    feed.write_text('{"time": "2026-01-16T03:00:00Z", "wind_mean_ms": ' + value + ', "wind_gust_ms": 2.5, '
+                    '"air_temp_c": 2.0, "rel_humidity_pct": 70}\n')
     with pytest.raises(FeedError, match=f"{value} where a number is expected"):
         read_feed(feed, FeedLayout())
 

@@ -22,9 +22,9 @@ from advisor import units
 from advisor.catalogue import PLAUSIBLE_RANGE
 from advisor.errors import FeedError
 from advisor.io.feedfile import MAX_FULL_READ_BYTES, check_whole_read, open_feed
+from advisor.io.site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
 from advisor.io.times import EPOCH_UNITS, check_time_range, epoch_times, parse_time_column
 from advisor.physics.moisture import dew_point_c
-from advisor.io.site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
 
 __all__ = ["CHECK_TAIL_BYTES", "MAX_FULL_READ_BYTES", "Feed", "FeedQuality", "canonical_frame",
            "check_whole_read", "read_feed"]

@@ -29,8 +29,7 @@ from typing import BinaryIO
 import pandas as pd
 
 from advisor.errors import FeedError
-from advisor.io.fileio import (KINDS, FileKind, encoding_error, open_regular, repeated_csv_column,
-                                sniff_encoding_problem)
+from advisor.io.fileio import KINDS, FileKind, encoding_error, open_regular, repeated_csv_column, sniff_encoding_problem
 
 MAX_FULL_READ_BYTES = KINDS["feed"].max_bytes   # whole-file reads (replay, outlook); bounded memory
 MAX_HEADER_BYTES = 65_536                        # the CSV header line
@@ -242,18 +241,21 @@ def open_feed(path: Path | str, tail_bytes: int | None = None) -> Iterator[RawFe
         _refuse_bad_head(head, source)
         body_head = head[3:] if head.startswith(codecs.BOM_UTF8) else head
         is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or body_head.lstrip().startswith(b"{")
-        tail = tail_bytes is not None and size > 2 * tail_bytes
-        if not tail:
+        tail_part = tail_bytes if tail_bytes is not None and size > 2 * tail_bytes else None
+        if tail_part is None:
             check_whole_read(path, size)
-        end = _complete_end(fh, size, tail_bytes if tail else size)
+        end = _complete_end(fh, size, size if tail_part is None else tail_part)
         if end == 0:
-            amount = f"{tail_bytes / 1e6:.0f} MB" if tail_bytes >= 10_000_000 else f"{tail_bytes:,} bytes"
-            where = f"in the last {amount} of the feed" if tail else "in the feed"
+            where = "in the feed"
+            if tail_part is not None:
+                amount = f"{tail_part / 1e6:.0f} MB" if tail_part >= 10_000_000 else f"{tail_part:,} bytes"
+                where = f"in the last {amount} of the feed"
             raise FeedError(f"no complete line {where}: no line ends with a newline", source=source,
                             hint="a logger's line in progress is ignored until its newline is written; "
                                  "is this a CSV or JSON Lines feed?")
         try:
-            raw = _tail(fh, end, tail_bytes, is_jsonl, source) if tail else _whole(fh, end, is_jsonl, source)
+            raw = (_whole(fh, end, is_jsonl, source) if tail_part is None
+                   else _tail(fh, end, tail_part, is_jsonl, source))
         except UnicodeDecodeError:
             raise (_first_bad_utf8(fh, end, source) or FeedError("not UTF-8 text", source=source,
                                                                  hint="save the feed as UTF-8 CSV")) from None
@@ -315,4 +317,4 @@ def _tail(fh: BinaryIO, end: int, tail_bytes: int, is_jsonl: bool, source: str) 
         except (pd.errors.ParserError, ValueError) as exc:
             raise _parse_error(exc, source) from None
     except FeedError as exc:
-        raise _relocate(exc, fh, cut, is_jsonl)
+        raise _relocate(exc, fh, cut, is_jsonl) from None

@@ -23,6 +23,7 @@ mark (spreadsheets write one) is accepted, UTF-16 and UTF-32 are recognised and 
 from __future__ import annotations
 
 import codecs
+import contextlib
 import csv
 import errno
 import fcntl
@@ -187,6 +188,7 @@ def regular_file_size(path: Path, error_type: type[AdvisorError], what: str, max
     """
     spec = FileKind(what, max_bytes if max_bytes is not None else 1 << 62, "split it into smaller files")
     st = stat_regular(path, error_type, spec, empty_ok=False, empty_hint=empty_hint)
+    assert st is not None  # missing_ok is False: a missing file raised
     return st.st_size
 
 
@@ -357,10 +359,8 @@ def atomic_write_text(path: Path | str, text: str) -> None:
             os.fsync(fh.fileno())
         os.replace(tmp, path)
     except BaseException:
-        try:
+        with contextlib.suppress(OSError):
             os.unlink(tmp)
-        except OSError:
-            pass
         raise
     fsync_folder(folder)
 
@@ -498,8 +498,8 @@ def refuse_overwrite(output_path: Path | str | None,
     if output_path is None or str(output_path) == "-":
         return
     out = check_path(output_path, UsageError, "output")
+    items: list[tuple[str | None, object]] = []
     if isinstance(input_paths, Mapping):
-        items = []
         for name, value in input_paths.items():
             many = value if isinstance(value, (list, tuple, set, frozenset)) else [value]
             items += [(name, p) for p in many]
@@ -508,7 +508,7 @@ def refuse_overwrite(output_path: Path | str | None,
     for name, candidate in items:
         if candidate is None or str(candidate) in ("-", ""):
             continue
-        if _same_file(out, Path(candidate)):
+        if _same_file(out, Path(str(candidate))):
             which = f"the {name} input" if name else "one of its inputs"
             raise UsageError(f"{out} is {which}; writing it would destroy the input", field=field,
                              hint="write the output to another file")

@@ -19,9 +19,9 @@ import pandas as pd
 
 from advisor.errors import AdvisorError
 from advisor.io.fileio import KINDS, encoding_error, open_regular, repeated_csv_column, sniff_encoding_problem
+from advisor.io.site import CANONICAL_COLUMNS
 from advisor.io.times import parse_time_column
 from advisor.vocabulary import METHODS
-from advisor.io.site import CANONICAL_COLUMNS
 
 MAX_HISTORY_BYTES = KINDS["history"].max_bytes
 USABLE_WORDS = {**dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),
@@ -141,12 +141,12 @@ def _numeric(table: pd.DataFrame, name: str, source: str) -> np.ndarray:
     if bad.any():
         i = int(np.flatnonzero(bad.to_numpy())[0])
         raise HistoryError(f"{name} {table[name].iloc[i]!r} is not a number", source=source, line=i + 2, field=name)
-    values = values.to_numpy(dtype=float)
-    huge = ~np.isnan(values) & ~(np.abs(values) < 1e15)
+    numbers = values.to_numpy(dtype=float)
+    huge = ~np.isnan(numbers) & ~(np.abs(numbers) < 1e15)
     if huge.any():
         i = int(np.flatnonzero(huge)[0])
         shown = str(table[name].iloc[i]).strip()
         shown = shown if len(shown) <= 24 else f"{shown[:12]}… ({len(shown)} characters)"
         raise HistoryError(f"{name} {shown} is not a finite number of plausible size", source=source, line=i + 2,
                            field=name)
-    return values
+    return numbers

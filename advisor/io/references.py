@@ -38,7 +38,7 @@ class Registry:
     source: str = "<none>"
 
     @classmethod
-    def empty(cls, source: str = "<none>") -> "Registry":
+    def empty(cls, source: str = "<none>") -> Registry:
         return cls(pd.DatetimeIndex([], tz="UTC"), np.array([], dtype=float), (), source)
 
     def __len__(self) -> int:
@@ -157,11 +157,11 @@ def append_reference(path: Path | str, time_utc: pd.Timestamp, air_temp_c: float
 
     def add(old_text: str | None) -> str:
         registry = parse_registry_text(old_text, str(path))   # validates the existing file first
-        times = registry.times_utc.append(pd.DatetimeIndex([time_utc]).as_unit("ns"))
+        times = pd.DatetimeIndex(registry.times_utc.append(pd.DatetimeIndex([time_utc]).as_unit("ns")))
         temps = np.append(registry.air_temp_c, float(air_temp_c))
         notes = registry.notes + (note,)
         order = np.argsort(times.asi8, kind="stable")
-        new = Registry(times[order], temps[order], tuple(notes[i] for i in order), str(path))
+        new = Registry(pd.DatetimeIndex(times[order]), temps[order], tuple(notes[i] for i in order), str(path))
         result.append(new)
         return format_registry(new)
 

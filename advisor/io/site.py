@@ -16,9 +16,9 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from advisor import units
 from advisor.errors import SiteError
-from advisor.text import clean_text
 from advisor.io.bundled import demo_site_path
 from advisor.io.yamlio import load_yaml
+from advisor.text import clean_text
 
 CANONICAL_COLUMNS = (
     "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",

@@ -16,6 +16,7 @@ overflow pandas' nanosecond range (year 2262).  Errors name the line and say wha
 from __future__ import annotations
 
 import re
+from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -269,7 +270,7 @@ def parse_time_column(texts: pd.Series, *, source: str | None, field: str | None
 
 
 #: Epoch units: name in the site file → (pandas unit, factor to seconds).
-EPOCH_UNITS = {"epoch_s": ("s", 1.0), "epoch_ms": ("ms", 1e-3)}
+EPOCH_UNITS: dict[str, tuple[Literal["s", "ms"], float]] = {"epoch_s": ("s", 1.0), "epoch_ms": ("ms", 1e-3)}
 
 
 def epoch_times(values: np.ndarray, unit: str, *, guessed: bool, texts=None, source: str | None,
@@ -295,7 +296,7 @@ def epoch_times(values: np.ndarray, unit: str, *, guessed: bool, texts=None, sou
             what = f"numeric timestamp {str(shown).strip()} read as {name} is outside the years {RANGE_TEXT}"
             hint = "set feed.time_unit (epoch_s or epoch_ms) in the site file to match the logger"
         raise _fail(error_type, what, hint, source, _line(i, line_offset), field)
-    times = pd.to_datetime(values, unit=pd_unit, utc=True)
+    times = pd.to_datetime(pd.Series(values), unit=pd_unit, utc=True)
     return pd.Series(pd.DatetimeIndex(times).as_unit("ns"))
 
 

@@ -11,15 +11,14 @@ UTF-8 with or without a BOM).
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import math
 import re
+from pathlib import Path
 
 import yaml
 
 from advisor.errors import AdvisorError
-from advisor.io.fileio import FileKind, KINDS, read_text_bounded
+from advisor.io.fileio import KINDS, FileKind, read_text_bounded
 
 # libyaml's safe loader where PyYAML was built with it (the wheels are), else the pure-Python one.
 _SafeLoader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
@@ -164,7 +163,7 @@ def load_yaml(path: Path | str, error_type: type[AdvisorError], duplicate_keys: 
     """
     spec = KINDS[kind or _KIND_OF_ERROR.get(error_type.__name__, "yaml")] if not isinstance(kind, FileKind) else kind
     hint = "a truncated or unsaved file looks the same; restore its content"
-    text = read_text_bounded(path, error_type, spec, expected="a YAML text file", empty_hint=hint)
+    text = read_text_bounded(path, error_type, spec, expected="a YAML text file", empty_hint=hint) or ""
     if not text.strip():
         raise error_type(f"{spec.what} holds only blank space", source=str(path), hint=hint)
     return parse_yaml_text(text, str(path), error_type, duplicate_keys)

@@ -27,9 +27,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from advisor.catalogue import CATALOGUE, unit_text
 from advisor.errors import ModelError
 from advisor.io.fileio import FileKind, decode_text, read_bytes_bounded, sniff_encoding_problem, stat_regular
-from advisor.catalogue import CATALOGUE, unit_text
 from advisor.vocabulary import METHOD_LABEL
 
 FORMAT = "advisor-site-model"
@@ -266,7 +266,7 @@ def load_model(path: Path | str) -> SiteModel:
         if exc.message == "model file not found":
             exc.hint = "check --model or model.path in the site file, or train one with 'advisor train'"
         raise
-    raw = read_bytes_bounded(path, ModelError, kind, empty_ok=True)
+    raw = read_bytes_bounded(path, ModelError, kind, empty_ok=True) or b""
     problem = sniff_encoding_problem(raw[:4096])
     if problem == "binary" or (problem is None and b"\x00" in raw):
         raise ModelError("not UTF-8 text (binary content)", source=source,
