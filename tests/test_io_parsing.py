@@ -348,3 +348,21 @@ def test_error_lines_are_safe_for_a_terminal_and_bounded():
     assert "\x1b" not in line and "\x07" not in line and "\n" not in line
     assert "feed.csv:3: bad value 'red' (fix it)" in line and len(line) < 300 and "…" in line
     assert shorten("abc", 10) == "abc" and len(shorten("x" * 1000, 50)) == 50
+
+
+def test_history_and_rule_files_saved_with_a_byte_order_mark_are_read(tmp_path):
+    from advisor.io.history import HistoryError, read_history
+    from advisor.rules.loader import load_rules
+
+    history = tmp_path / "history.csv"
+    history.write_bytes(b"\xef\xbb\xbftime,method,usable\r\n2026-01-01T03:00:00Z,scan,yes\r\n")
+    assert list(read_history(history).frame["method"]) == ["scan"]
+    history.write_text("time,method,usable\n2026-01-01T03:00:00Z,scan,yes\n", encoding="utf-16")
+    with pytest.raises(HistoryError, match="UTF-16 text, not UTF-8"):
+        read_history(history)
+    rules = tmp_path / "rules.yaml"
+    rules.write_bytes(b"\xef\xbb\xbfrules:\n  - id: bom_rule\n    applies_to: scan\n    condition: wind_mean_ms > 30\n"
+                      b"    effect: warn\n    message: m\n")
+    from advisor.catalogue import CATALOGUE
+
+    assert [r.id for r in load_rules([(rules, "site")], CATALOGUE)] == ["bom_rule"]

@@ -22,9 +22,7 @@ mark (spreadsheets write one) is accepted, UTF-16 and UTF-32 are recognised and 
 
 from __future__ import annotations
 
-import codecs
 import contextlib
-import csv
 import errno
 import fcntl
 import os
@@ -38,6 +36,14 @@ from pathlib import Path
 from typing import BinaryIO
 
 from advisor.errors import AdvisorError, UsageError
+from advisor.io.encoding import decode_text, encoding_error, repeated_csv_column, sniff_encoding_problem
+
+__all__ = [
+    "KINDS", "FileKind", "append_line_locked", "atomic_write_text", "check_path", "decode_text", "encoding_error",
+    "fsync_folder", "lock_path", "locked", "open_regular", "read_bytes_bounded", "read_text_bounded",
+    "refuse_overwrite", "repeated_csv_column", "sniff_encoding_problem", "stat_regular",
+    "update_text_locked",
+]
 
 
 @dataclass(frozen=True)
@@ -180,18 +186,6 @@ def _check_size(size: int, error_type: type[AdvisorError], spec: FileKind, sourc
                          f"for a {spec.what}", source=source, hint=spec.too_big_hint)
 
 
-def regular_file_size(path: Path, error_type: type[AdvisorError], what: str, max_bytes: int | None = None,
-                      empty_hint: str | None = None) -> int:
-    """Size of an existing, non-empty regular file [bytes]; ``error_type`` with a clear message otherwise.
-
-    ``what`` names the kind of file in messages ("feed file", ...); ``max_bytes`` caps its size.
-    """
-    spec = FileKind(what, max_bytes if max_bytes is not None else 1 << 62, "split it into smaller files")
-    st = stat_regular(path, error_type, spec, empty_ok=False, empty_hint=empty_hint)
-    assert st is not None  # missing_ok is False: a missing file raised
-    return st.st_size
-
-
 @contextmanager
 def open_regular(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind,
                  empty_ok: bool = False, empty_hint: str | None = None) -> Iterator[tuple[BinaryIO, int]]:
@@ -245,66 +239,6 @@ def read_bytes_bounded(path: Path | str, error_type: type[AdvisorError], kind: s
     return raw
 
 
-# --- text encodings ------------------------------------------------------------------------
-
-_BOMS = (
-    (codecs.BOM_UTF32_LE, "UTF-32"), (codecs.BOM_UTF32_BE, "UTF-32"),
-    (codecs.BOM_UTF16_LE, "UTF-16"), (codecs.BOM_UTF16_BE, "UTF-16"),
-)
-
-
-def sniff_encoding_problem(head: bytes) -> str | None:
-    """What is wrong with the first bytes of a file that should be UTF-8 text, or ``None``.
-
-    Recognises UTF-16/UTF-32 (by their byte-order mark, or by the NUL bytes every other ASCII
-    character carries without one) and binary content (other NUL bytes).  A UTF-8 BOM is fine.
-    """
-    if head.startswith(codecs.BOM_UTF8):
-        head = head[len(codecs.BOM_UTF8):]
-    for bom, name in _BOMS:
-        if head.startswith(bom):
-            return name
-    sample = head[:4096]
-    if b"\x00" not in sample:
-        return None
-    if len(sample) >= 4:
-        even, odd = sample[0::2], sample[1::2]
-        n = min(len(even), len(odd))
-        # ASCII text in UTF-16: one of the two byte lanes is (almost) all NUL, the other is not.
-        if odd[:n].count(0) >= 0.9 * n and even[:n].count(0) <= 0.1 * n:
-            return "UTF-16"
-        if even[:n].count(0) >= 0.9 * n and odd[:n].count(0) <= 0.1 * n:
-            return "UTF-16"
-    return "binary"
-
-
-def encoding_error(problem: str, error_type: type[AdvisorError], what: str, source: str,
-                   expected: str = "text") -> AdvisorError:
-    """The one-line error for a :func:`sniff_encoding_problem` finding."""
-    if problem in ("UTF-16", "UTF-32"):
-        return error_type(f"{what} is {problem} text, not UTF-8", source=source,
-                          hint="re-save it as UTF-8 (in a spreadsheet: 'CSV UTF-8'; in an editor: encoding UTF-8)")
-    return error_type("binary content (NUL bytes)", source=source, hint=f"expected {expected}")
-
-
-def decode_text(raw: bytes, error_type: type[AdvisorError], what: str, source: str,
-                expected: str = "text") -> str:
-    """UTF-8 bytes as text (a leading BOM dropped); a clear error naming the line otherwise."""
-    problem = sniff_encoding_problem(raw[:4096])
-    if problem is None and b"\x00" in raw:
-        problem = "binary"
-    if problem is not None:
-        raise encoding_error(problem, error_type, what, source, expected)
-    if raw.startswith(codecs.BOM_UTF8):
-        raw = raw[len(codecs.BOM_UTF8):]
-    try:
-        return raw.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        line = raw.count(b"\n", 0, exc.start) + 1
-        raise error_type(f"not UTF-8 text (byte 0x{raw[exc.start]:02x})", source=source, line=line,
-                         hint="re-save the file as UTF-8") from None
-
-
 def read_text_bounded(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind,
                       missing_ok: bool = False, empty_ok: bool = False, empty_hint: str | None = None,
                       expected: str = "text") -> str | None:
@@ -315,22 +249,6 @@ def read_text_bounded(path: Path | str, error_type: type[AdvisorError], kind: st
     if raw is None:
         return None
     return decode_text(raw, error_type, spec.what, str(path), expected)
-
-
-def repeated_csv_column(header: bytes | str) -> str | None:
-    """The first column name given twice in a CSV header line (BOM and spaces ignored), or ``None``.
-
-    pandas would rename the second to ``name.1`` and silently read the first: a duplicated
-    column is refused instead, like a duplicated key anywhere else.
-    """
-    text = header.decode("utf-8", "replace") if isinstance(header, bytes) else header
-    names = [n.strip() for n in next(csv.reader([text.lstrip("\ufeff").rstrip("\r\n")]), [])]
-    seen: set[str] = set()
-    for name in names:
-        if name and name in seen:
-            return name
-        seen.add(name)
-    return None
 
 
 # --- writing -------------------------------------------------------------------------------
