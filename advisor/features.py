@@ -46,6 +46,7 @@ FEATURE_SOURCE_MODULES = (
     "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
     "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
     "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary", "advisor.physics.ephemeris",
+    "advisor.io.feedfile", "advisor.io.times", "advisor.io.encoding", "advisor.text",
 )
 
 def _ns(times) -> np.ndarray:

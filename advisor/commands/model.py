@@ -88,10 +88,11 @@ def _coefficient_lines(method_model) -> list[str]:
 
 def cmd_train(args: argparse.Namespace) -> int:
     from advisor.io.feed import read_feed
-    from advisor.io.fileio import atomic_write_text
+    from advisor.io.fileio import atomic_write_text, refuse_overwrite
     from advisor.io.site import load_site
     from advisor.model import training
 
+    refuse_overwrite(args.out, {"--history": args.history, "--feed": args.feed, "--site": args.site}, "--out")
     site = load_site(args.site)
     if args.usable_below_um is not None and not (np.isfinite(args.usable_below_um) and args.usable_below_um > 0):
         raise UsageError(f"--usable-below-um {args.usable_below_um!r} must be a positive number of µm",

@@ -15,6 +15,7 @@ from advisor.commands import session
 from advisor.errors import UsageError
 from advisor.io import featurecache
 from advisor.io.feed import check_whole_read, read_feed
+from advisor.io.fileio import refuse_overwrite
 from advisor.io.history import read_history
 from advisor.vocabulary import VERDICTS
 from advisor.evaluation.evaluate import Scenario
@@ -67,6 +68,8 @@ def cmd_replay(args: argparse.Namespace) -> int:
     from_option = session.parse_time(args.time_from, "--from")
     to_option = session.parse_time(args.time_to, "--to")
     inputs = session.load_inputs(request, read=None)
+    refuse_overwrite(args.csv, {"--feed": inputs.feed_path, "--history": args.history, "--site": request.site_path,
+                                "--references": inputs.registry_path, "--rules": request.rule_files}, "--csv")
     zone = inputs.site.time_zone
     t_from = from_option.resolve(zone) if from_option is not None else None
     t_to = to_option.resolve(zone) if to_option is not None else None
