@@ -58,8 +58,13 @@ def main(argv=None) -> int:
 
     from advisor.cli import load_ruleset
     from advisor.feed import canonical_frame
-    from advisor.outlook import compute_outlook, outlook_csv_frame, outlook_json, outlook_renderable, \
-        render_plain_outlook
+    from advisor.outlook import (
+        compute_outlook,
+        outlook_csv_frame,
+        outlook_json,
+        outlook_renderable,
+        render_plain_outlook,
+    )
     from advisor.references import read_registry
     from advisor.render import Context
     from advisor.site import load_site
