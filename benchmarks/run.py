@@ -84,7 +84,7 @@ COMMANDS: dict[str, list[str]] = {
 }
 #: Exit statuses meaning "ran to the end" (check exits with its verdict: 0, 10, 11, 12).
 OK_STATUS: dict[str, set[int]] = {"check": {0, 10, 11, 12}}
-#: The references, as whole processes.
+#: The references, as whole processes (in-process, the reference is pandas.read_csv(feed): see in_process_worker).
 REFERENCES: dict[str, list[str]] = {
     "read_csv": [PY, "-c", "import sys, pandas; pandas.read_csv(sys.argv[1])", "{feed}"],
     "import_numpy_pandas": [PY, "-c", "import numpy, pandas"],
@@ -165,6 +165,7 @@ class Result:
     checks: list[Check] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     error: str | None = None
+    load_average: tuple[float, float] | None = None   # 1-minute load average before and after
 
 
 class CommandFailed(RuntimeError):
@@ -448,31 +449,48 @@ def print_result(res: Result) -> None:
         print(f"  -> {fmt_check(c)}")
     for note in res.notes:
         print(f"  note: {note}")
+    print(f"  load average (1 min) {res.load_average[0]:.2f} before, {res.load_average[1]:.2f} after")
 
 
-def markdown(results: list[Result]) -> str:
-    """The summary as a Markdown table: one row per measurement, and one per check of no measurement."""
+SUMMARY_HEADER = ("target", "mode", "ours (median)", "reference (median)", "ratio min / median / max",
+                  "peak RSS ours / ref", "target", "")
+
+
+def summary_rows(results: list[Result], missed: str = "MISSED") -> list[tuple[str, ...]]:
+    """One row per measurement (with the checks made on it) and one per check on no measurement."""
     def target_text(checks: list[Check]) -> tuple[str, str]:
         if not checks:
-            return "–", "(for the record)"
-        return ("; ".join(f"{c.what} ≤ {c.limit:g}{' MB' if c.unit == 'MB' else '×'}" for c in checks),
-                ", ".join("met" if c.met else "**missed**" for c in checks))
+            return "-", "(for the record)"
+        return ("; ".join(f"{c.what} <= {c.limit:g}{' MB' if c.unit == 'MB' else 'x'}" for c in checks),
+                ", ".join("met" if c.met else missed for c in checks))
 
-    lines = [("| target | mode | ours (median) | reference (median) | ratio min / median / max | "
-              "peak RSS ours / ref | target | |"), "|---|---|---|---|---|---|---|---|"]
+    rows = []
     for res in results:
+        if res.error:
+            rows.append((res.key, "ERROR", "", "", "", "", "", "command failed"))
+            continue
         for m in res.measurements:
             s = m.summary()
             rss = (f"{s['ours_peak_rss_mb_max']:.0f} / {s['reference_peak_rss_mb_max']:.0f} MB"
-                   if "ours_peak_rss_mb_max" in s else "–")
+                   if "ours_peak_rss_mb_max" in s else "-")
             target, verdict = target_text([c for c in res.checks if c.mode == m.mode])
-            lines.append(f"| {res.key} | {m.mode} | {s['ours_median_s']:.3f} s | {s['reference_median_s']:.3f} s | "
-                         f"{fmt_ratio(s)} ({s['pairs']} pairs) | {rss} | {target} | {verdict} |")
+            rows.append((res.key, m.mode, f"{s['ours_median_s']:.3f} s", f"{s['reference_median_s']:.3f} s",
+                         f"{fmt_ratio(s)} ({s['pairs']} pairs)", rss, target, verdict))
         for c in res.checks:
             if c.mode is None:
-                lines.append(f"| {res.key} | {c.what} | | | {c.value:.2f} | | ≤ {c.limit:g} | "
-                             f"{'met' if c.met else '**missed**'} |")
-    return "\n".join(lines)
+                rows.append((res.key, c.what, "", "", f"{c.value:.2f}", "", f"<= {c.limit:g}",
+                             "met" if c.met else missed))
+    return rows
+
+
+def plain_table(rows: list[tuple[str, ...]]) -> str:
+    widths = [max(len(r[i]) for r in [SUMMARY_HEADER, *rows]) for i in range(len(SUMMARY_HEADER))]
+    return "\n".join("  ".join(cell.ljust(w) for cell, w in zip(r, widths)).rstrip() for r in [SUMMARY_HEADER, *rows])
+
+
+def markdown_table(rows: list[tuple[str, ...]]) -> str:
+    lines = ["| " + " | ".join(SUMMARY_HEADER) + " |", "|" + "---|" * len(SUMMARY_HEADER)]
+    return "\n".join(lines + ["| " + " | ".join(r) + " |" for r in rows])
 
 
 def record(results: list[Result], header: dict) -> None:
@@ -505,7 +523,7 @@ def main(argv: list[str] | None = None) -> int:
                         help=f"run only this target (repeatable): {', '.join(TARGETS)}")
     parser.add_argument("--pairs", type=int, help="timed pairs per target (default: per target, fewer with --quick)")
     parser.add_argument("--record", action="store_true", help=f"write {RESULTS_JSON.name} next to RESULTS.md")
-    parser.add_argument("--markdown", action="store_true", help="print the summary as a Markdown table")
+    parser.add_argument("--markdown", action="store_true", help="print the summary table as Markdown")
     parser.add_argument("--in-process-worker", metavar="SPEC", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.in_process_worker:
@@ -535,17 +553,19 @@ def main(argv: list[str] | None = None) -> int:
             cache = Path(tmp) / key
             cache.mkdir()
             pairs = args.pairs or PAIRS[key][1 if args.quick else 0]
+            load_before = os.getloadavg()[0]
             try:
                 fn(res, pairs, args.quick, cache)
             except CommandFailed as exc:
                 res.error, failed = str(exc), True
+            res.load_average = (round(load_before, 2), round(os.getloadavg()[0], 2))
             shutil.rmtree(cache, ignore_errors=True)
             results.append(res)
             print_result(res)
     header["load_average_end"] = [round(x, 2) for x in os.getloadavg()]
     print(f"\nload average at the end {header['load_average_end'][0]:.2f}")
-    if args.markdown:
-        print("\n" + markdown([r for r in results if not r.error]))
+    rows = summary_rows(results, "**missed**" if args.markdown else "MISSED")
+    print("\n" + (markdown_table(rows) if args.markdown else plain_table(rows)))
     if args.record:
         record(results, header)
     return 1 if failed else 0
