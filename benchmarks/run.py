@@ -111,6 +111,7 @@ MB = 1e6  # peak RSS is reported in MB of 10^6 bytes
 @dataclass
 class Sample:
     wall_s: float
+    cpu_s: float                   # user + system CPU time of the process (all its threads)
     peak_rss_mb: float | None = None
 
 
@@ -121,8 +122,10 @@ class Measurement:
     mode: str                      # "whole process" or "in-process"
     ours: str                      # what was run, as text
     reference: str
-    ours_s: list[float]
+    ours_s: list[float]            # wall time of each run [s]
     reference_s: list[float]
+    ours_cpu_s: list[float]        # CPU time of each run [s]
+    reference_cpu_s: list[float]
     ours_peak_rss_mb: list[float] = field(default_factory=list)
     reference_peak_rss_mb: list[float] = field(default_factory=list)
 
@@ -134,7 +137,8 @@ class Measurement:
         r = self.ratios
         out = {"pairs": len(r), "ratio_min": min(r), "ratio_median": statistics.median(r), "ratio_max": max(r),
                "ours_median_s": statistics.median(self.ours_s),
-               "reference_median_s": statistics.median(self.reference_s)}
+               "reference_median_s": statistics.median(self.reference_s),
+               "cpu_ratio_median": statistics.median(a / b for a, b in zip(self.ours_cpu_s, self.reference_cpu_s))}
         if self.ours_peak_rss_mb:
             out["ours_peak_rss_mb_max"] = max(self.ours_peak_rss_mb)
             out["reference_peak_rss_mb_max"] = max(self.reference_peak_rss_mb)
@@ -166,6 +170,7 @@ class Result:
     notes: list[str] = field(default_factory=list)
     error: str | None = None
     load_average: tuple[float, float] | None = None   # 1-minute load average before and after
+    elapsed_s: float | None = None                    # the whole target, generation included
 
 
 class CommandFailed(RuntimeError):
@@ -193,7 +198,7 @@ def run_process(argv: list[str], env: dict[str, str], ok: set[int] = frozenset({
             err.seek(0)
             tail = err.read().decode("utf-8", "replace").strip().splitlines()[-5:]
             raise CommandFailed(f"exit status {proc.returncode}: {shell_text(argv)}\n    " + "\n    ".join(tail))
-    return Sample(wall, usage.ru_maxrss * 1024 / MB)  # ru_maxrss is in KiB on Linux
+    return Sample(wall, usage.ru_utime + usage.ru_stime, usage.ru_maxrss * 1024 / MB)  # maxrss: KiB on Linux
 
 
 def interleave_processes(ours: list[str], ref: list[str], pairs: int, env: dict[str, str],
@@ -206,7 +211,8 @@ def interleave_processes(ours: list[str], ref: list[str], pairs: int, env: dict[
         a.append(run_process(ours, env, ok_ours))
         b.append(run_process(ref, env))
     return Measurement("whole process", shell_text(ours), shell_text(ref), [s.wall_s for s in a],
-                       [s.wall_s for s in b], [s.peak_rss_mb for s in a], [s.peak_rss_mb for s in b])
+                       [s.wall_s for s in b], [s.cpu_s for s in a], [s.cpu_s for s in b],
+                       [s.peak_rss_mb for s in a], [s.peak_rss_mb for s in b])
 
 
 def interleave_in_process(argv: list[str], feed: Path, pairs: int, env: dict[str, str]) -> Measurement:
@@ -217,7 +223,8 @@ def interleave_in_process(argv: list[str], feed: Path, pairs: int, env: dict[str
         run_process([PY, str(Path(__file__).resolve()), "--in-process-worker", str(spec)], env)
         got = json.loads(out.read_text())
     return Measurement("in-process", f"{ADVISOR_ENTRY[0]}.{ADVISOR_ENTRY[1]}({argv!r})",
-                       f"pandas.read_csv({str(feed)!r})", got["ours_s"], got["reference_s"])
+                       f"pandas.read_csv({str(feed)!r})", got["ours_s"], got["reference_s"], got["ours_cpu_s"],
+                       got["reference_cpu_s"])
 
 
 def in_process_worker(spec_path: str) -> int:
@@ -236,18 +243,19 @@ def in_process_worker(spec_path: str) -> int:
     def reference():
         pandas.read_csv(spec["feed"])
 
-    def timed(fn) -> float:
+    def timed(fn) -> tuple[float, float]:
         gc.collect()
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         fn()
-        return time.perf_counter() - t0
+        return time.perf_counter() - t0, time.process_time() - c0
 
     ours(), reference()  # warm-up pair
     a, b = [], []
     for _ in range(spec["pairs"]):
         a.append(timed(ours))
         b.append(timed(reference))
-    Path(spec["out"]).write_text(json.dumps({"ours_s": a, "reference_s": b}))
+    Path(spec["out"]).write_text(json.dumps({"ours_s": [w for w, _ in a], "reference_s": [w for w, _ in b],
+                                             "ours_cpu_s": [c for _, c in a], "reference_cpu_s": [c for _, c in b]}))
     return 0
 
 
@@ -444,16 +452,18 @@ def print_result(res: Result) -> None:
         rss = (f"; peak RSS {s['ours_peak_rss_mb_max']:.0f} / {s['reference_peak_rss_mb_max']:.0f} MB"
                if "ours_peak_rss_mb_max" in s else "")
         print(f"  {m.mode:<14} ours {s['ours_median_s']:.3f} s, reference {s['reference_median_s']:.3f} s "
-              f"(medians); ratio min/median/max {fmt_ratio(s)} over {s['pairs']} pairs{rss}")
+              f"(medians); ratio min/median/max {fmt_ratio(s)} over {s['pairs']} pairs; CPU-time ratio median "
+              f"{s['cpu_ratio_median']:.2f}{rss}")
     for c in res.checks:
         print(f"  -> {fmt_check(c)}")
     for note in res.notes:
         print(f"  note: {note}")
-    print(f"  load average (1 min) {res.load_average[0]:.2f} before, {res.load_average[1]:.2f} after")
+    print(f"  load average (1 min) {res.load_average[0]:.2f} before, {res.load_average[1]:.2f} after; "
+          f"took {res.elapsed_s:.0f} s")
 
 
-SUMMARY_HEADER = ("target", "mode", "ours (median)", "reference (median)", "ratio min / median / max",
-                  "peak RSS ours / ref", "target", "")
+SUMMARY_HEADER = ("target", "mode", "ours (median)", "reference (median)", "wall-time ratio min / median / max",
+                  "CPU-time ratio (median)", "peak RSS ours / ref", "target", "")
 
 
 def summary_rows(results: list[Result], missed: str = "MISSED") -> list[tuple[str, ...]]:
@@ -467,7 +477,7 @@ def summary_rows(results: list[Result], missed: str = "MISSED") -> list[tuple[st
     rows = []
     for res in results:
         if res.error:
-            rows.append((res.key, "ERROR", "", "", "", "", "", "command failed"))
+            rows.append((res.key, "ERROR", "", "", "", "", "", "", "command failed"))
             continue
         for m in res.measurements:
             s = m.summary()
@@ -475,10 +485,11 @@ def summary_rows(results: list[Result], missed: str = "MISSED") -> list[tuple[st
                    if "ours_peak_rss_mb_max" in s else "-")
             target, verdict = target_text([c for c in res.checks if c.mode == m.mode])
             rows.append((res.key, m.mode, f"{s['ours_median_s']:.3f} s", f"{s['reference_median_s']:.3f} s",
-                         f"{fmt_ratio(s)} ({s['pairs']} pairs)", rss, target, verdict))
+                         f"{fmt_ratio(s)} ({s['pairs']} pairs)", f"{s['cpu_ratio_median']:.2f}", rss, target,
+                         verdict))
         for c in res.checks:
             if c.mode is None:
-                rows.append((res.key, c.what, "", "", f"{c.value:.2f}", "", f"<= {c.limit:g}",
+                rows.append((res.key, c.what, "", "", f"{c.value:.2f}", "", "", f"<= {c.limit:g}",
                              "met" if c.met else missed))
     return rows
 
@@ -553,12 +564,13 @@ def main(argv: list[str] | None = None) -> int:
             cache = Path(tmp) / key
             cache.mkdir()
             pairs = args.pairs or PAIRS[key][1 if args.quick else 0]
-            load_before = os.getloadavg()[0]
+            load_before, t0 = os.getloadavg()[0], time.perf_counter()
             try:
                 fn(res, pairs, args.quick, cache)
             except CommandFailed as exc:
                 res.error, failed = str(exc), True
             res.load_average = (round(load_before, 2), round(os.getloadavg()[0], 2))
+            res.elapsed_s = round(time.perf_counter() - t0, 1)
             shutil.rmtree(cache, ignore_errors=True)
             results.append(res)
             print_result(res)
