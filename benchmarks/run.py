@@ -22,11 +22,14 @@ Method.  Each measurement alternates with its reference, A B A B ..., after one 
 (warm-up: file cache, byte-compiled modules, the feature cache where the target wants it), so a
 load spike on this shared machine hits both sides of a pair alike; the figure reported for a
 target is the min / median / max of the per-pair ratios A/B, and a target is judged on the
-median.  "Whole process" starts each side as a fresh process (``subprocess``) and takes its wall
-time and its peak resident set size (``ru_maxrss`` of that one child, from ``os.wait4``).
+median of the wall-time ratios.  "Whole process" starts each side as a fresh process
+(``subprocess``) and takes its wall time, its CPU time (user + system) and its peak resident set
+size (``ru_utime``, ``ru_stime``, ``ru_maxrss`` of that one child, from ``os.wait4``).
 "In-process" runs both sides, alternating, in one Python process that imports everything first
 (a worker started by this script): the advisor through its CLI entry function with the same
-arguments, the reference as ``pandas.read_csv``; ``gc.collect()`` before each timed call.
+arguments, the reference as ``pandas.read_csv``; ``gc.collect()`` before each timed call.  The
+CPU-time ratios are printed beside the wall-time ones: on a busy machine wall time stretches
+with the load while CPU time barely moves, so a gap between the two is contention, not code.
 
 The advisor runs from this checkout as ``python -m advisor`` with ``PYTHONPATH`` set to the
 repository root, byte-compiled (``PYTHONDONTWRITEBYTECODE`` is removed from the children's
@@ -34,9 +37,10 @@ environment, as an installed package would be compiled at install), with a fresh
 in a temporary ``ADVISOR_CACHE_DIR`` per target.  The archives are invented
 (``benchmarks/make_archive.py``) and kept under ``benchmarks/.data/`` (not committed): one year
 from 2025-12-01 (525,601 rows, 33 MB) and ten years from 2016-12-01 (5,258,881 rows, 331 MB);
-``--quick`` uses 14 and 140 days instead.  Standard library only (plus the repository's own
-scripts); nothing here is a test and nothing fails a build: the exit status is 1 only when a
-command itself failed.
+``--quick`` uses 14 and 140 days instead.  Timing and memory use only the standard library
+(the in-process worker imports pandas for its reference, the rule file comes from
+``bench_rules.py``); nothing here is a test and nothing fails a build: the exit status is 1 only
+when a command itself failed.
 """
 
 from __future__ import annotations
