@@ -226,8 +226,8 @@ def interleave_in_process(argv: list[str], feed: Path, pairs: int, env: dict[str
         spec.write_text(json.dumps({"argv": argv, "feed": str(feed), "pairs": pairs, "out": str(out)}))
         run_process([PY, str(Path(__file__).resolve()), "--in-process-worker", str(spec)], env)
         got = json.loads(out.read_text())
-    return Measurement("in-process", f"{ADVISOR_ENTRY[0]}.{ADVISOR_ENTRY[1]}({argv!r})",
-                       f"pandas.read_csv({str(feed)!r})", got["ours_s"], got["reference_s"], got["ours_cpu_s"],
+    return Measurement("in-process", f"{ADVISOR_ENTRY[0]}.{ADVISOR_ENTRY[1]}({[relative(a) for a in argv]!r})",
+                       f"pandas.read_csv({relative(str(feed))!r})", got["ours_s"], got["reference_s"], got["ours_cpu_s"],
                        got["reference_cpu_s"])
 
 
@@ -263,13 +263,17 @@ def in_process_worker(spec_path: str) -> int:
     return 0
 
 
+def relative(arg: str) -> str:
+    """``arg`` relative to the repository root when it is a path inside it."""
+    return os.path.relpath(arg, ROOT) if arg.startswith(str(ROOT) + os.sep) else arg
+
+
 def shell_text(argv: list[str]) -> str:
     """A command line as text, with this interpreter shown as ``python`` and paths relative to the root."""
     def show(arg: str) -> str:
         if arg == PY:
             return "python"
-        if arg.startswith(str(ROOT) + os.sep):
-            arg = os.path.relpath(arg, ROOT)
+        arg = relative(arg)
         return f"'{arg}'" if any(c in arg for c in " ;\"") else arg
     return " ".join(show(a) for a in argv)
 
