@@ -183,6 +183,20 @@ FEATURES: tuple[FeatureSpec, ...] = (
        domain=_never_negative("the reference in force is never later than the evaluation time"), key=True),
     _F("reference_temp_delta_c", "delta_degC", "|air temperature - temperature at the reference scan|",
        "|ΔT| to reference", "{:.1f} °C", domain=_never_negative("it is an absolute difference"), key=True),
+    _F("reference_mismatch_um", "um", "laser error from |ΔT| to the reference scan: air refractive index along "
+       "the beam and the scanner mount's thermal motion", "laser error from |ΔT|", "{:.0f} µm",
+       domain=_never_negative("it is an rms")),
+    # expected surface of each method (site error budget, before rule error terms)
+    _F("scan_surface_rms_um", "um", "expected surface rms after a laser correction, before rule error terms "
+       "(NaN without a reference)", "laser: expected surface", "{:.0f} µm",
+       domain=_never_negative("it is an rms")),
+    _F("astronomical_surface_rms_um", "um", "expected surface rms after holography, before rule error terms",
+       "holography: expected surface", "{:.0f} µm", domain=_never_negative("it is an rms")),
+    _F("scan_surface_margin_um", "um", "surface requirement minus the laser's expected surface (negative: misses it)",
+       "laser: margin to the requirement", "{:+.0f} µm", scope="target_row"),
+    _F("astronomical_surface_margin_um", "um",
+       "surface requirement minus holography's expected surface (negative: misses it)",
+       "holography: margin to the requirement", "{:+.0f} µm", scope="target_row"),
     # calibrators
     _F("calibrator_elevation_deg", "deg", "elevation of the best calibrator now (NaN if none usable)",
        "best calibrator elevation", "{:.0f}°", domain=_ELEVATION, key=True),
@@ -194,7 +208,10 @@ FEATURES: tuple[FeatureSpec, ...] = (
        domain=_never_negative("it is a frequency"), scope="target"),
     _F("wavelength_mm", "mm", "target wavelength", "wavelength", "{:.2f} mm",
        domain=_never_negative("it is a wavelength"), scope="target"),
-    _F("required_surface_rms_um", "um", "lambda/16 surface requirement at the target frequency",
+    _F("surface_requirement_fraction", "1", "the site's surface requirement as a fraction of the wavelength "
+       "(16: lambda/16)", "requirement fraction", "λ/{:g}", domain=_never_negative("it is a fraction"),
+       scope="target"),
+    _F("required_surface_rms_um", "um", "surface requirement at the target frequency (lambda / the site's fraction)",
        "surface requirement", "{:.0f} µm", domain=_never_negative("it is an rms"), scope="target"),
     _F("beam_fwhm_arcsec", "arcsec", "beam FWHM at the target frequency (1.2 lambda/D)", "beam FWHM",
        "{:.1f} arcsec", domain=_never_negative("it is a beam width"), scope="target"),
@@ -210,6 +227,8 @@ FEATURES: tuple[FeatureSpec, ...] = (
     _F("data_age_min", "min", "age of the last good weather sample", "data age", "{:.1f} min",
        domain=_never_negative("the last good sample is never later than the evaluation time"), key=True),
     _F("data_ok", "flag", "weather data fresh, plausible and complete"),
+    _F("feed_cadence_min", "min", "cadence of the sample in use: median interval between samples of its kind "
+       "(observed or forecast)", "feed cadence", "{:.0f} min", domain=_never_negative("it is an interval")),
 )
 
 #: name → spec.

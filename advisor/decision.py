@@ -1,18 +1,23 @@
-"""The decision: per-candidate error budget, Ruze efficiency, feasibility and the verdict.
+"""The decision: per-candidate surface, Ruze efficiency, feasibility and the verdict.
 
 ``decide(features, targets, rule_eval, rules, site, odds)`` works on whole columns and returns
 a :class:`Decisions` (one verdict per row, with each method's blocking masks);
 ``explain(decisions, i)`` turns one row into a :class:`Call` with its reasons, ready to render.
-The error budgets (see docs/design.md):
 
-* laser:        σ = √(σ_astro² + σ_scan(wind)² + σ_age² + Σ rule terms²), σ_scan = √(noise² + (k v²)²),
-                σ_age = √((ageing · age_days)² + (mismatch · |ΔT|)²)
-* astronomical: σ = √(σ_astro² + (k v²)² + (drift · |dT/dt| · duration_h)² + Σ rule terms²)
+Each method's expected surface is its error budget from the features (see
+:func:`advisor.features.laser_surface_rms_um`) plus the error terms of the rules that fired, in
+quadrature.  A method is feasible when nothing blocks it:
 
-A candidate is feasible when no blocking rule fired, its efficiency reaches the site's
-minimum and (when a model gives odds) ``p_usable`` reaches the site's threshold.  The laser is
-preferred when within ``laser_preference_efficiency`` of holography.  Rows whose data are not
-good (``data_ok`` false) are ``undetermined`` — never ``scan``.
+* a blocking rule that fired (its id);
+* ``efficiency.min`` — its Ruze efficiency is below the site's minimum in this weather;
+* ``target.unreachable`` — no weather could bring it to the site's minimum at this frequency;
+* ``model.<method>`` — the site model's odds of a usable result are below the site's threshold;
+* ``data`` — the weather data cannot support a call (the row is ``undetermined``, never ``scan``).
+
+Between two feasible methods the one with the higher efficiency wins, compared as displayed
+(two decimals), the laser when it is within ``laser_preference_efficiency`` (it costs minutes,
+not half an hour of telescope time).  When the site's uncorrected surface already meets the
+requirement the call is ``no_correction``.
 """
 
 from __future__ import annotations
@@ -23,16 +28,26 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
-from advisor.vocabulary import EXIT_CODES, METHOD_LABEL, METHODS, VERDICTS  # noqa: F401 (re-exported)
-from advisor.physics.aperture import root_sum_square, ruze_efficiency
-from advisor.rules.ruleset import RuleEvaluation, RuleSet, format_message
+from advisor.features import best_surface_rms_um
 from advisor.io.site import Site
+from advisor.physics.aperture import root_sum_square, ruze_efficiency
+from advisor.rules.ruleset import RuleEvaluation, RuleSet
+from advisor.vocabulary import EXIT_CODES, METHOD_LABEL, METHODS, VERDICTS  # noqa: F401 (re-exported)
 
+#: Ids of the blocks that are not rules (they appear in ``blocked_by`` like rule ids).
+DATA_BLOCK = "data"
+EFFICIENCY_BLOCK = "efficiency.min"
+UNREACHABLE_BLOCK = "target.unreachable"
+
+
+def model_block(method: str) -> str:
+    """Id of the block the site model puts on ``method``."""
+    return f"model.{method}"
 
 
 @dataclass(frozen=True)
 class Candidates:
-    """Column arrays for one method: budget, efficiency, odds, feasibility."""
+    """Column arrays for one method: surface, efficiency, odds, feasibility and what blocks it."""
 
     surface_rms_um: np.ndarray
     ruze_efficiency: np.ndarray
@@ -40,6 +55,8 @@ class Candidates:
     duration_min: float
     blocked: np.ndarray
     feasible: np.ndarray
+    meets_requirement: np.ndarray
+    blocks: dict[str, np.ndarray] = field(default_factory=dict)  # non-rule block id -> mask
 
 
 @dataclass(frozen=True)
@@ -54,18 +71,21 @@ class Decisions:
     rules: RuleSet
     site: Site
     model_notes: dict[str, list] = field(default_factory=dict)
+    best_surface_rms_um: dict[str, float] = field(default_factory=dict)
     #: method → per-row mask: the site model's odds are extrapolated (a term outside its training range)
     model_extrapolated: dict[str, np.ndarray] = field(default_factory=dict)
     #: method → per-row sentence naming what lies outside the training range (None inside)
     model_extrapolation: dict[str, list] = field(default_factory=dict)
 
     def blocking(self, method: str) -> dict[str, np.ndarray]:
-        """Rule id → mask of the rows where that blocking rule fired against ``method``."""
-        return {r.id: self.rule_eval.fired[r.id] for r in self.rules if r.applies(method) and r.effect == "block"}
+        """Block id → mask of the rows where it blocks ``method``: rules first, then the others."""
+        masks = {r.id: self.rule_eval.fired[r.id] for r in self.rules if r.applies(method) and r.effect == "block"}
+        masks.update(self.candidates[method].blocks)
+        return masks
 
     def blocked_by(self, method: str, i: int) -> list[str]:
-        """Ids of the blocking rules that fired against ``method`` at row ``i``."""
-        return [rule_id for rule_id, mask in self.blocking(method).items() if mask[i]]
+        """Ids of everything that blocks ``method`` at row ``i``."""
+        return [block_id for block_id, mask in self.blocking(method).items() if mask[i]]
 
 
 @dataclass(frozen=True)
@@ -103,27 +123,17 @@ def _rule_error_terms(rule_eval: RuleEvaluation, rules: RuleSet, method: str, n:
     return np.sqrt(total, out=total)
 
 
-def _blocked(rule_eval: RuleEvaluation, rules: RuleSet, method: str, n: int) -> np.ndarray:
-    masks = [rule_eval.fired[r.id] for r in rules if r.applies(method) and r.effect == "block"]
-    return np.logical_or.reduce(masks) if masks else np.zeros(n, dtype=bool)
+def _rule_blocked(rule_eval: RuleEvaluation, rules: RuleSet, method: str, n: int) -> np.ndarray:
+    blocked = np.zeros(n, dtype=bool)
+    for r in rules:
+        if r.applies(method) and r.effect == "block":
+            blocked |= rule_eval.fired[r.id]
+    return blocked
 
 
-def laser_budget_um(features: pd.DataFrame, site: Site) -> np.ndarray:
-    """Expected surface rms after a laser correction [µm]; NaN without a reference."""
-    s = site.scan
-    gust = features["wind_gust_ms"].to_numpy()
-    scan_term = root_sum_square(s.noise_um_at_calm, s.wind_term_um_per_ms2 * gust**2)
-    age_term = root_sum_square(s.reference_ageing_um_per_day * features["reference_age_h"].to_numpy() / 24.0,
-                               s.reference_mismatch_um_per_c * features["reference_temp_delta_c"].to_numpy())
-    return root_sum_square(site.astronomical.surface_rms_um, scan_term, age_term)
-
-
-def astronomical_budget_um(features: pd.DataFrame, site: Site) -> np.ndarray:
-    """Expected surface rms after an out-of-focus holography correction [µm]."""
-    a = site.astronomical
-    gust = features["wind_gust_ms"].to_numpy()
-    drift = a.thermal_drift_um_per_c * np.abs(features["air_temp_rate_c_per_h"].fillna(0.0).to_numpy()) * a.duration_min / 60.0
-    return root_sum_square(a.surface_rms_um, a.wind_term_um_per_ms2 * gust**2, drift)
+def _as_shown(efficiency: np.ndarray) -> np.ndarray:
+    """Efficiencies as the screen shows them (two decimals), so the choice never contradicts them."""
+    return np.round(efficiency, 2)
 
 
 def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: RuleEvaluation, rules: RuleSet,
@@ -138,29 +148,45 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
     """
     n = len(features)
     freq = float(targets["freq_ghz"])
+    required = float(targets["required_surface_rms_um"])
     th = site.thresholds
-    base = {"scan": laser_budget_um(features, site), "astronomical": astronomical_budget_um(features, site)}
+    data_bad = ~features["data_ok"].to_numpy(dtype=bool)
+    best = best_surface_rms_um(site)
     durations = {"scan": site.scan.duration_min, "astronomical": site.astronomical.duration_min}
     candidates = {}
     for method in METHODS:
-        rms = root_sum_square(base[method], _rule_error_terms(rule_eval, rules, method, n))
+        base = features[f"{method}_surface_rms_um"].to_numpy(dtype=float)
+        rms = root_sum_square(base, _rule_error_terms(rule_eval, rules, method, n))
         eta = ruze_efficiency(rms, freq)
         p = np.asarray(odds[method], dtype=float) if odds and method in odds else np.full(n, np.nan)
-        blocked = _blocked(rule_eval, rules, method, n)
-        odds_ok = np.isnan(p) | (p >= th.min_p_usable)
-        feasible = ~blocked & np.isfinite(rms) & (eta >= th.min_ruze_efficiency) & odds_ok
-        candidates[method] = Candidates(rms, eta, p, durations[method], blocked, feasible)
+        unreachable = bool(ruze_efficiency(best[method], freq) < th.min_ruze_efficiency)
+        blocks = {
+            UNREACHABLE_BLOCK: np.full(n, unreachable),
+            EFFICIENCY_BLOCK: np.isfinite(rms) & ~(eta >= th.min_ruze_efficiency) & (not unreachable),
+            model_block(method): np.isfinite(p) & (p < th.min_p_usable),
+            DATA_BLOCK: data_bad,
+        }
+        blocked = _rule_blocked(rule_eval, rules, method, n)
+        for mask in blocks.values():
+            blocked = blocked | mask
+        feasible = ~blocked & np.isfinite(rms)
+        candidates[method] = Candidates(rms, eta, p, durations[method], blocked, feasible, rms <= required,
+                                        {k: v for k, v in blocks.items() if v.any()})
 
     scan, astro = candidates["scan"], candidates["astronomical"]
-    prefer_scan = scan.ruze_efficiency >= astro.ruze_efficiency - th.laser_preference_efficiency
+    prefer_scan = _as_shown(scan.ruze_efficiency) >= _as_shown(astro.ruze_efficiency) - th.laser_preference_efficiency - 1e-9
     verdict = np.full(n, "postpone", dtype=object)
     verdict[astro.feasible] = "astronomical"
     verdict[scan.feasible & (~astro.feasible | prefer_scan)] = "scan"
-    verdict[~features["data_ok"].to_numpy(dtype=bool)] = "undetermined"
+    uncorrected = site.astronomical.uncorrected_surface_rms_um
+    if uncorrected is not None and uncorrected <= required:
+        verdict[:] = "no_correction"
+    verdict[data_bad] = "undetermined"
     # An odds mapping may carry per-row explanations (advisor.model.inference.ModelOdds.notes).
     return Decisions(features, dict(targets), verdict, candidates, rule_eval, rules, site,
-                     dict(getattr(odds, "notes", None) or {}), dict(getattr(odds, "extrapolated", None) or {}),
-                     dict(getattr(odds, "extrapolation", None) or {}))
+                     dict(getattr(odds, "notes", None) or {}), best,
+                     model_extrapolated=dict(getattr(odds, "extrapolated", None) or {}),
+                     model_extrapolation=dict(getattr(odds, "extrapolation", None) or {}))
 
 
 def _odds_text(p: float) -> str:
@@ -177,16 +203,37 @@ def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     reasons = []
     age = row["data_age_min"]
     if not np.isfinite(age):
-        reasons.append(Reason("data", "both", "block", "No good weather sample at or before this time."))
+        reasons.append(Reason(DATA_BLOCK, "both", "block", "No good weather sample at or before this time."))
     elif age > site.feed.max_feed_age_min:
         age_text = f"{age:.0f} min" if age < 120 else f"{age / 60:.1f} h"
-        reasons.append(Reason("data", "both", "block",
+        reasons.append(Reason(DATA_BLOCK, "both", "block",
                               f"Last good weather sample is {age_text} old (limit {site.feed.max_feed_age_min:.0f} min): "
                               "the feed looks stale; the figures below are from that sample."))
     if not reasons:
-        reasons.append(Reason("data", "both", "block",
+        reasons.append(Reason(DATA_BLOCK, "both", "block",
                               "The latest weather sample is implausible or incomplete; no call is made on bad data."))
     return reasons
+
+
+def _requirement_text(targets: Mapping[str, float]) -> str:
+    return f"λ/{targets['surface_requirement_fraction']:g} = {targets['required_surface_rms_um']:.0f} µm"
+
+
+def _rms_for_efficiency(efficiency: float, freq_ghz: float) -> float:
+    """The surface rms that gives ``efficiency`` at ``freq_ghz`` (inverse Ruze) [µm]."""
+    wavelength_um = 299_792_458.0 / (freq_ghz * 1e9) * 1e6
+    return float(wavelength_um / (4.0 * np.pi) * np.sqrt(-np.log(efficiency)))
+
+
+def _unreachable_reason(decisions: Decisions) -> Reason:
+    t, th = decisions.targets, decisions.site.thresholds
+    best = min(decisions.best_surface_rms_um.values())
+    eta = float(ruze_efficiency(best, t["freq_ghz"]))
+    need = _rms_for_efficiency(th.min_ruze_efficiency, t["freq_ghz"])
+    return Reason(UNREACHABLE_BLOCK, "both", "block",
+                  f"Not reachable at {t['freq_ghz']:g} GHz: the best either method can leave is {best:.0f} µm "
+                  f"(η {eta:.2f}), and the site minimum η {th.min_ruze_efficiency:.2f} needs ≤ {need:.0f} µm. "
+                  "No weather changes that: observe at a lower frequency.")
 
 
 def explain(decisions: Decisions, i: int) -> Call:
@@ -195,36 +242,41 @@ def explain(decisions: Decisions, i: int) -> Call:
     row = f.iloc[i]
     site = decisions.site
     th = site.thresholds
+    targets = decisions.targets
     verdict = str(decisions.verdict[i])
     values = {k: (bool(v) if isinstance(v, (bool, np.bool_)) else v) for k, v in row.items()
               if k not in ("time", "source_row")}
-    values.update(decisions.targets)
+    values.update(targets)
     reasons: list[Reason] = []
     if verdict == "undetermined":
         reasons.extend(_data_reasons(row, site))
+    unreachable = all(UNREACHABLE_BLOCK in decisions.candidates[m].blocks for m in METHODS)
+    if unreachable and verdict != "no_correction":
+        reasons.append(_unreachable_reason(decisions))
     for rule in decisions.rules:
         if decisions.rule_eval.fired[rule.id][i]:
-            effect = rule.effect
-            message = format_message(rule.message, values)
+            message = rule.message_for(values)
             if rule.error is not None:
                 term = decisions.rule_eval.error_um[rule.id][i]
                 message = f"{message} (+{term:.0f} µm in quadrature)"
-            reasons.append(Reason(rule.id, rule.applies_to, effect, message))
-    freq = float(decisions.targets["freq_ghz"])
-    req = float(decisions.targets["required_surface_rms_um"])
+            reasons.append(Reason(rule.id, rule.applies_to, rule.effect, message))
+    freq = float(targets["freq_ghz"])
     cands = {}
     for method in METHODS:
         c = decisions.candidates[method]
         rms, eta, p = float(c.surface_rms_um[i]), float(c.ruze_efficiency[i]), float(c.p_usable[i])
         label = METHOD_LABEL[method]
         if np.isfinite(rms):
+            meets = "meets" if rms <= targets["required_surface_rms_um"] else "misses"
             msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq:g} GHz "
-                   f"(λ/16 = {req:.0f} µm)")
-            if np.isfinite(rms) and eta < th.min_ruze_efficiency:
-                msg += f"; below the site minimum {th.min_ruze_efficiency:.2f}"
-            reasons.append(Reason(f"budget.{method}", method, "info", msg))
+                   f"({meets} {_requirement_text(targets)})")
+            blocked_low = EFFICIENCY_BLOCK in c.blocks and c.blocks[EFFICIENCY_BLOCK][i]
+            if blocked_low:
+                msg += f"; below the site minimum η {th.min_ruze_efficiency:.2f}"
+            reasons.append(Reason(EFFICIENCY_BLOCK if blocked_low else f"budget.{method}", method,
+                                  "block" if blocked_low else "info", msg))
         if np.isfinite(p) and p < th.min_p_usable:
-            reasons.append(Reason(f"model.{method}", method, "block",
+            reasons.append(Reason(model_block(method), method, "block",
                                   f"{label}: site model gives only {_odds_text(p)} odds of a usable result "
                                   f"(threshold {th.min_p_usable:.0%})"))
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
@@ -238,43 +290,55 @@ def explain(decisions: Decisions, i: int) -> Call:
             "feasible": bool(c.feasible[i]) and verdict != "undetermined",
             "surface_rms_um": None if not np.isfinite(rms) else round(rms, 1),
             "ruze_efficiency": None if not np.isfinite(eta) else round(eta, 4),
+            "meets_requirement": bool(c.meets_requirement[i]) if np.isfinite(rms) else None,
+            "requirement_margin_um": None if not np.isfinite(rms) else round(targets["required_surface_rms_um"] - rms, 1),
             "p_usable": None if not np.isfinite(p) else round(p, 4),
             "extrapolated": bool(extrapolated[i]) if extrapolated is not None and np.isfinite(p) else False,
             "duration_min": c.duration_min,
             "blocked_by": decisions.blocked_by(method, i),
         }
     reasons.extend(_choice_reasons(verdict, cands, site))
-    headline = _headline(verdict, cands, row)
+    headline = _headline(verdict, cands, row, decisions)
     return Call(verdict=verdict, time_utc=row["time"], freq_ghz=freq, reasons=reasons, features=values,
                 candidates=cands, calibrator_name=str(row.get("calibrator_name", "")), headline=headline)
 
 
 def _choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
-    """Why the chosen method won over the other one, when both were feasible."""
+    """Why the chosen method won over the other one, when both were feasible (figures as shown)."""
     scan, astro = cands["scan"], cands["astronomical"]
-    if not (scan["feasible"] and astro["feasible"]):
+    if not (scan["feasible"] and astro["feasible"]) or verdict not in METHODS:
         return []
     margin = site.thresholds.laser_preference_efficiency
-    gap = astro["ruze_efficiency"] - scan["ruze_efficiency"]
+    gap = round(astro["ruze_efficiency"], 2) - round(scan["ruze_efficiency"], 2)
     if verdict == "scan":
-        text = (f"Both methods are feasible; the laser is preferred: its efficiency is within {margin:.2f} of "
-                f"holography's ({gap:+.2f}) and it takes {scan['duration_min']:.0f} min instead of "
-                f"{astro['duration_min']:.0f} min of telescope time.")
+        text = (f"Both methods are feasible; the laser is preferred: holography's efficiency is {gap:+.2f} "
+                f"against it, within the {margin:.2f} that favours the laser, and the laser takes "
+                f"{scan['duration_min']:.0f} min instead of {astro['duration_min']:.0f} min of telescope time.")
     else:
         text = (f"Both methods are feasible; holography's efficiency is {gap:.2f} better, more than the "
-                f"{margin:.2f} margin that favours the quicker laser scan.")
-    return [Reason("choice", "both", "info", text)]
+                f"{margin:.2f} that favours the quicker laser scan.")
+    return [Reason("choice", "both", "info", text.replace("+-", "-"))]
 
 
-def _headline(verdict: str, cands: dict, row: pd.Series) -> str:
-    if verdict == "scan":
-        c = cands["scan"]
-        return f"Scan the reflector now: laser correction expected to leave {c['surface_rms_um']:.0f} µm rms (η {c['ruze_efficiency']:.2f})."
-    if verdict == "astronomical":
-        c = cands["astronomical"]
+def _headline(verdict: str, cands: dict, row: pd.Series, decisions: Decisions) -> str:
+    targets = decisions.targets
+    requirement = _requirement_text(targets)
+    if verdict in METHODS:
+        c = cands[verdict]
+        fit = ("within " if c["meets_requirement"] else "which misses ") + requirement
+        if verdict == "scan":
+            return (f"Scan the reflector now: laser correction expected to leave {c['surface_rms_um']:.0f} µm rms "
+                    f"(η {c['ruze_efficiency']:.2f}), {fit}.")
         cal = row.get("calibrator_name") or "a calibrator"
         return (f"Use the astronomical method on {cal}: expected {c['surface_rms_um']:.0f} µm rms "
-                f"(η {c['ruze_efficiency']:.2f}); take a fresh reference scan afterwards if the laser can see.")
+                f"(η {c['ruze_efficiency']:.2f}), {fit}; take a fresh reference scan afterwards if the laser can see.")
+    if verdict == "no_correction":
+        return (f"No correction needed at {targets['freq_ghz']:g} GHz: the uncorrected surface "
+                f"({decisions.site.astronomical.uncorrected_surface_rms_um:.0f} µm) already meets {requirement}.")
     if verdict == "postpone":
+        if all(UNREACHABLE_BLOCK in decisions.candidates[m].blocks for m in METHODS):
+            best = min(decisions.best_surface_rms_um.values())
+            return (f"Not reachable at {targets['freq_ghz']:g} GHz: the best correction leaves {best:.0f} µm; "
+                    f"no weather makes this frequency worthwhile.")
         return "Postpone: neither method can deliver a useful surface for this session now."
     return "Undetermined: the weather data cannot support a call. Do not scan on this advice."

@@ -18,15 +18,20 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, wavelength_mm
+from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, root_sum_square, wavelength_mm
+from advisor.physics.laser import reference_mismatch_um_per_c
+from advisor.vocabulary import METHODS
 from advisor.physics.sky import elevation_and_minutes_above
 from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG, hours_since_sunrise, hours_since_sunset, solar_position
 from advisor.io.references import Registry, reference_in_force
 from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, ROW_FEATURES, FeatureSpec  # noqa: F401 (re-exported)
 from advisor.io.site import Site
 
-WIND_WINDOW = "10min"
+#: Averaging period of the wind statistics for a feed of one sample a minute or faster [min].
+WIND_WINDOW_MIN = 10.0
 TEMP_RATE_WINDOW_MIN = 60.0
+#: Fewest part of its window a statistic's samples must cover (count × cadence / window).
+MIN_WINDOW_COVERAGE = 0.5
 #: Feed history a row's features read before its time (10-min wind, 1-h temperature rate): what a
 #: chunk of an archive must include before its first row.
 LOOKBACK = pd.Timedelta(hours=2)
@@ -41,7 +46,8 @@ FEATURE_SOURCE_MODULES = (
     "advisor.units", "advisor.errors",
     "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
     "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
-    "advisor.io.bundled",
+    "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary", "advisor.physics.ephemeris",
+    "advisor.io.feedfile", "advisor.io.times", "advisor.io.encoding", "advisor.text",
 )
 
 def _ns(times) -> np.ndarray:
@@ -55,23 +61,56 @@ def _ns(times) -> np.ndarray:
     return np.asarray(times, dtype="datetime64[ns]").astype(np.int64)
 
 
-def _rolling(good: pd.DataFrame) -> pd.DataFrame:
-    """10-minute wind statistics and the one-hour temperature rate at each good sample."""
+def sample_cadence_min(time_ns: np.ndarray, kind: np.ndarray) -> np.ndarray:
+    """Each good sample's cadence: the median interval between samples of its kind [min].
+
+    Observations and forecast rows have their own cadence (a 1-minute mast and an hourly
+    forecast in one frame); NaN for a kind with fewer than two samples.
+    """
+    out = np.full(len(time_ns), np.nan)
+    if len(time_ns) < 2:
+        return out
+    dt_prev = np.diff(time_ns, prepend=time_ns[0]) / 6e10
+    for k in np.unique(kind):
+        mine = kind == k
+        intervals = dt_prev[mine][1:]
+        if len(intervals):
+            out[mine] = float(np.median(intervals))
+    return out
+
+
+def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
+    """Wind statistics over :data:`WIND_WINDOW_MIN` and the one-hour temperature rate at each good sample.
+
+    A statistic counts only when its samples cover at least :data:`MIN_WINDOW_COVERAGE` of its
+    window, each sample covering one interval of its feed's cadence (never the silence before
+    it).  So a single calm row after 14 silent minutes never stands for ten minutes of wind: the
+    statistic is NaN and the row is not good.  A slower feed's sample (hourly) covers the whole
+    window and stands for it.
+    """
     series = good.set_index("time")
     out = pd.DataFrame(index=series.index)
+    window = pd.Timedelta(minutes=WIND_WINDOW_MIN)
+    t_ns = _ns(series.index)
+    dt_prev = np.diff(t_ns, prepend=t_ns[0] - int(WIND_WINDOW_MIN * 6e10)) / 6e10
+    covers = np.minimum(np.minimum(dt_prev, cadence_min), WIND_WINDOW_MIN)  # NaN cadence: covers nothing
+    covers = np.where(np.isfinite(covers), covers, 0.0)
+    coverage = pd.Series(covers, index=series.index).rolling(window).sum().to_numpy()
+    covered = coverage >= MIN_WINDOW_COVERAGE * WIND_WINDOW_MIN - 1e-9
     # pandas' rolling mean is an online sum, so its last bits depend on where the series starts;
     # rounding to 1e-6 m/s (far below any anemometer's resolution) makes a row's value the same
     # however the frame was cut (check, outlook and replay chunks agree to the bit).
-    out["wind_mean_ms"] = series["wind_mean_ms"].rolling(WIND_WINDOW).mean().round(6)
-    out["wind_gust_ms"] = series["wind_gust_ms"].rolling(WIND_WINDOW).max()
-    t_ns = _ns(series.index)
+    mean = series["wind_mean_ms"].rolling(window).mean().round(6).to_numpy()
+    gust = series["wind_gust_ms"].rolling(window).max().to_numpy()
+    out["wind_mean_ms"] = np.where(covered, mean, np.nan)
+    out["wind_gust_ms"] = np.where(covered, gust, np.nan)
     temp = series["air_temp_c"].to_numpy()
     back = np.searchsorted(t_ns, t_ns - int(TEMP_RATE_WINDOW_MIN * 60e9), side="left")
     dt_h = (t_ns - t_ns[back]) / 3.6e12
     with np.errstate(invalid="ignore", divide="ignore"):
         rate = (temp - temp[back]) / dt_h
     # need at least half the window of history for a meaningful rate
-    out["air_temp_rate_c_per_h"] = np.where(dt_h >= 0.5 * TEMP_RATE_WINDOW_MIN / 60.0, rate, np.nan)
+    out["air_temp_rate_c_per_h"] = np.where(dt_h >= MIN_WINDOW_COVERAGE * TEMP_RATE_WINDOW_MIN / 60.0, rate, np.nan)
     return out
 
 
@@ -96,7 +135,9 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     pos = np.searchsorted(good_ns, t_ns, side="right") - 1
     has = pos >= 0
     safe = np.clip(pos, 0, None)
-    rolled = _rolling(good) if len(good) else None
+    kinds = good["kind"].to_numpy() if "kind" in good else np.full(len(good), "observed", dtype=object)
+    cadence = sample_cadence_min(good_ns, kinds)
+    rolled = _rolling(good, cadence) if len(good) else None
 
     def take(values: np.ndarray) -> np.ndarray:
         if len(values) == 0:
@@ -115,6 +156,7 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     # --- data quality --------------------------------------------------------------------
     age_min = np.where(has, (t_ns - good_ns[safe]) / 6e10, np.nan) if len(good_ns) else np.full(n, np.nan)
     out["data_age_min"] = age_min
+    out["feed_cadence_min"] = take(cadence)
     latest = np.searchsorted(all_ns, t_ns, side="right") - 1
     latest_ok = np.where(latest >= 0, good_mask[np.clip(latest, 0, None)] if len(good_mask) else False, False)
     out["data_ok"] = has & (age_min <= site.feed.max_feed_age_min) & latest_ok & np.isfinite(out["wind_mean_ms"])
@@ -171,6 +213,14 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
 
     out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
 
+    out["reference_mismatch_um"] = mismatch_um_per_c(site) * out["reference_temp_delta_c"]
+
+    # --- expected surface of each method (before rule error terms) ---------------------------
+    out["scan_surface_rms_um"] = laser_surface_rms_um(site, out["wind_gust_ms"], out["reference_age_h"],
+                                                      out["reference_temp_delta_c"])
+    out["astronomical_surface_rms_um"] = astronomical_surface_rms_um(site, out["wind_gust_ms"],
+                                                                     out["air_temp_rate_c_per_h"])
+
     columns = {"time": times_index}
     for name in ROW_FEATURES:
         values = out[name]
@@ -218,13 +268,64 @@ def feature_source_paths() -> list[Path]:
     return paths
 
 
+def mismatch_um_per_c(site: Site) -> float:
+    """The laser's error per °C between the air now and at the reference scan [µm/°C].
+
+    The site's measured ``reference_mismatch_um_per_c`` when it gives one, else the air path and
+    mount figures through :func:`advisor.physics.laser.reference_mismatch_um_per_c`.
+    """
+    s = site.scan
+    if s.reference_mismatch_um_per_c is not None:
+        return float(s.reference_mismatch_um_per_c)
+    pressure = 1013.25 * np.exp(-site.elevation_m / 8400.0)  # isothermal scale height ~8.4 km
+    return reference_mismatch_um_per_c(s.air_path_m, s.refraction_compensated_fraction, s.mount_um_per_c,
+                                       pressure_hpa=pressure, temp_c=5.0)
+
+
+def laser_surface_rms_um(site: Site, wind_gust_ms, reference_age_h, reference_temp_delta_c) -> np.ndarray:
+    """Expected surface rms after a laser correction [µm]; NaN without a reference.
+
+    σ = √(σ_astro² + σ_scan² + σ_age²), with σ_scan = √(noise² + (k·gust²)²) (vibration grows with
+    wind pressure ∝ v²) and σ_age = √((ageing · age_days)² + (mismatch · |ΔT|)²): the surface the
+    reference scan was taken on, the scan's own error, and the reference's decay with age and
+    with the air-temperature difference (air path and mount, :func:`mismatch_um_per_c`).
+    Independent terms add in quadrature.
+    """
+    s = site.scan
+    gust = np.asarray(wind_gust_ms, dtype=float)
+    scan_term = root_sum_square(s.noise_um_at_calm, s.wind_term_um_per_ms2 * gust**2)
+    age_term = root_sum_square(s.reference_ageing_um_per_day * np.asarray(reference_age_h, dtype=float) / 24.0,
+                               mismatch_um_per_c(site) * np.asarray(reference_temp_delta_c, dtype=float))
+    return np.asarray(root_sum_square(site.astronomical.surface_rms_um, scan_term, age_term), dtype=float)
+
+
+def astronomical_surface_rms_um(site: Site, wind_gust_ms, air_temp_rate_c_per_h) -> np.ndarray:
+    """Expected surface rms after an out-of-focus holography correction [µm].
+
+    σ = √(σ_astro² + (k·gust²)² + (drift · |dT/dt| · duration)²): the site's holography figure,
+    wind deformation during the measurement, and thermal drift over its longer duration.
+    """
+    a = site.astronomical
+    gust = np.asarray(wind_gust_ms, dtype=float)
+    rate = np.nan_to_num(np.abs(np.asarray(air_temp_rate_c_per_h, dtype=float)), nan=0.0)
+    drift = a.thermal_drift_um_per_c * rate * a.duration_min / 60.0
+    return np.asarray(root_sum_square(a.surface_rms_um, a.wind_term_um_per_ms2 * gust**2, drift), dtype=float)
+
+
+def best_surface_rms_um(site: Site) -> dict[str, float]:
+    """The least surface rms each method can leave in any weather (calm, fresh reference) [µm]."""
+    return {"scan": float(laser_surface_rms_um(site, 0.0, 0.0, 0.0)),
+            "astronomical": float(astronomical_surface_rms_um(site, 0.0, 0.0))}
+
+
 def target_features(site: Site, freq_ghz: float) -> dict[str, float]:
     """The target-scope features: one number each, fixed by the target frequency and the site."""
     th = site.thresholds
     return {
         "freq_ghz": float(freq_ghz),
         "wavelength_mm": float(wavelength_mm(freq_ghz)),
-        "required_surface_rms_um": float(required_surface_rms_um(freq_ghz)),
+        "surface_requirement_fraction": float(th.surface_requirement_fraction),
+        "required_surface_rms_um": float(required_surface_rms_um(freq_ghz, th.surface_requirement_fraction)),
         "beam_fwhm_arcsec": float(beam_fwhm_arcsec(freq_ghz, site.dish_diameter_m)),
         "hf_wind_limit_ms": float(th.high_frequency_wind_limit_ms),
         "high_frequency_min_ghz": float(th.high_frequency_min_ghz),
@@ -237,6 +338,9 @@ def with_target(rows: pd.DataFrame, targets: dict[str, float]) -> pd.DataFrame:
     """Row features plus the ``target_row`` ones (row values that depend on the target)."""
     out = rows.copy(deep=False)
     out["pointing_beam_fraction"] = rows["wind_pointing_error_arcsec"].to_numpy() / targets["beam_fwhm_arcsec"]
+    for method in METHODS:
+        out[f"{method}_surface_margin_um"] = (targets["required_surface_rms_um"]
+                                              - rows[f"{method}_surface_rms_um"].to_numpy())
     return out
 
 

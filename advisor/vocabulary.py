@@ -45,6 +45,9 @@ _VERDICT_LIST = (
             "postpone"),
     Verdict("undetermined", "U", "UNDETERMINED", "bold white on red", 12,
             'data missing, stale or implausible (never "scan")', "undetermined (data bad)"),
+    Verdict("no_correction", "N", "NO CORRECTION NEEDED", "bold black on white", 13,
+            "the site's uncorrected surface already meets the requirement at this frequency",
+            "no correction needed"),
 )
 VERDICT: dict[str, Verdict] = {v.name: v for v in _VERDICT_LIST}
 VERDICTS: tuple[str, ...] = tuple(VERDICT)
@@ -59,8 +62,9 @@ APPLIES_TO: tuple[str, ...] = ("scan", "astronomical", "both")
 EFFECTS: tuple[str, ...] = ("block", "warn", "add_error")
 #: Effects a reason can carry: a rule's effect, or ``info`` for figures and notes.
 REASON_EFFECTS: tuple[str, ...] = (*EFFECTS, "info")
-#: How the screen words each effect.
-EFFECT_LABEL: dict[str, str] = {"block": "against", "warn": "caution", "add_error": "error term", "info": "note"}
+#: How every view words each effect: the same words as the rule files and the JSON, so an
+#: operator reading the screen, staff editing a rule and a script reading JSON share one vocabulary.
+EFFECT_LABEL: dict[str, str] = {effect: effect for effect in REASON_EFFECTS}
 
 #: Shown on every view whenever the invented demo site or its data are in use.
 DEMO_BANNER = "DEMO DATA — invented site and weather, for trying the tool."

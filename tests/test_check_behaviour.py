@@ -68,11 +68,20 @@ def test_old_reference_goes_astronomical(call_for):
     assert "reference_too_old" in call.candidates["scan"]["blocked_by"]
 
 
-def test_thermally_mismatched_reference_goes_astronomical(call_for):
+def test_thermally_mismatched_reference_degrades_the_laser_instead_of_blocking_it(call_for):
+    """8 °C from the reference: the laser's ranges through air and its mount add an error term
+    (Edlén 1966 / Ciddor 1996: dn/dT ≈ -0.9 ppm/K), so holography wins on efficiency; the laser is
+    not blocked and no reason claims the difference map would be wrong."""
     table = weather_table()
+    matched = call_for(table, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=3), table["air_temp_c"].iloc[-1]))
     call = call_for(table, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=3), table["air_temp_c"].iloc[-1] + 8))
     assert call.verdict == "astronomical"
-    assert "reference_thermal_mismatch" in call.candidates["scan"]["blocked_by"]
+    assert call.candidates["scan"]["feasible"] and "reference_thermal_mismatch" not in call.candidates["scan"]["blocked_by"]
+    mismatch = next(r for r in call.reasons if r.rule == "reference_thermal_mismatch")
+    assert mismatch.effect == "warn" and "refractive index" in mismatch.message
+    assert "difference map would mix" not in mismatch.message
+    assert call.features["reference_mismatch_um"] > 100.0
+    assert call.candidates["scan"]["surface_rms_um"] > matched.candidates["scan"]["surface_rms_um"] + 50.0
 
 
 def test_stale_feed_is_undetermined_never_scan(call_for):

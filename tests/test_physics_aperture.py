@@ -71,3 +71,47 @@ def test_root_sum_square_of_independent_terms():
     np.testing.assert_allclose(out[1], [np.sqrt(89.0), np.nan, np.sqrt(116.0)])
     with pytest.raises(TypeError):
         aperture.root_sum_square()
+
+
+def test_pointing_efficiency_of_a_gaussian_beam():
+    """Gaussian main beam (Wilson, Rohlfs & Huettemeister, Tools of Radio Astronomy): gain
+    exp(-4 ln2 (sigma/theta)^2); by the definition of the half-power width it is exactly 0.5
+    at an offset of theta/2; at theta/10 (the common-practice pointing limit) 0.97265
+    (exp(-0.0277259)); 1 on the source; vectorised and NaN-propagating."""
+    assert aperture.pointing_efficiency(0.0, 8.6) == 1.0
+    assert aperture.pointing_efficiency(4.3, 8.6) == pytest.approx(0.5, rel=1e-12)
+    assert aperture.pointing_efficiency(0.86, 8.6) == pytest.approx(0.972655, abs=1e-6)
+    beam = aperture.beam_fwhm_arcsec(np.array([22.0, 86.0, 116.0]), 100.0)
+    eff = aperture.pointing_efficiency(2.0, beam)
+    assert eff.shape == (3,) and np.all(np.diff(eff) < 0.0)  # the same error costs more at higher f
+    assert np.isnan(aperture.pointing_efficiency(np.nan, 8.6))
+    # Averaging exp(-4 ln2 r^2/theta^2) over a circular Gaussian jitter with per-axis rms s gives
+    # 1/(1 + 8 ln2 s^2/theta^2) (the docstring's closed form, checked by Monte Carlo); radial rms
+    # sigma^2 = 2 s^2 that is 1/(1 + 4 ln2 sigma^2/theta^2) >= exp(-4 ln2 sigma^2/theta^2).
+    rng = np.random.default_rng(1)
+    s_axis, theta = 1.5, 8.6
+    offsets = rng.normal(0.0, s_axis, (200000, 2))
+    jitter_mean = aperture.pointing_efficiency(np.hypot(offsets[:, 0], offsets[:, 1]), theta).mean()
+    assert jitter_mean == pytest.approx(1.0 / (1.0 + 8.0 * np.log(2.0) * (s_axis / theta) ** 2), abs=2e-3)
+    assert aperture.pointing_efficiency(np.sqrt(2.0) * s_axis, theta) < jitter_mean < aperture.pointing_efficiency(s_axis, theta)
+
+
+def test_gravity_residual_against_the_definition():
+    """Definition (each mode a sin E + b cos E + c, orthonormal modes in quadrature; Nikolic,
+    Hills & Richer 2007, A&A 465, 679), values by hand:
+    - one mode, a = 100 um, b = 0, corrected at 30 deg, used at 90 deg: 100 (1 - 0.5) = 50 um;
+    - one mode a = 100, b = 200 um, 30 -> 90 deg: |50 + 200 (0 - 0.8660254)| = 123.205 um;
+    - two modes (a, b) = (100, 0) and (0, 200): sqrt(50^2 + 173.205^2) = 180.278 um;
+    - the same elevation leaves nothing; the residual is symmetric in E1, E2."""
+    assert aperture.gravity_residual_um(30.0, 90.0, 100.0, 0.0) == pytest.approx(50.0)
+    assert aperture.gravity_residual_um(30.0, 90.0, 100.0, 200.0) == pytest.approx(123.2051, abs=1e-4)
+    assert aperture.gravity_residual_um(30.0, 90.0, [100.0, 0.0], [0.0, 200.0]) == pytest.approx(180.2776, abs=1e-4)
+    assert aperture.gravity_residual_um(47.0, 47.0, [100.0, 30.0], [200.0, -50.0]) == 0.0
+    el_cal = np.array([[20.0], [45.0], [80.0]])
+    el_session = np.array([30.0, 60.0])
+    out = aperture.gravity_residual_um(el_cal, el_session, [120.0, 40.0], [-80.0, 60.0])
+    assert out.shape == (3, 2)
+    np.testing.assert_allclose(out, aperture.gravity_residual_um(el_session[None, :], el_cal, [120.0, 40.0], [-80.0, 60.0]))
+    assert isinstance(aperture.gravity_residual_um(30.0, 60.0, 100.0, 100.0), float)
+    with pytest.raises(ValueError):
+        aperture.gravity_residual_um(30.0, 60.0, [[1.0, 2.0]], [[1.0, 2.0]])

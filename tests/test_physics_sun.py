@@ -203,17 +203,23 @@ def test_sunset_matches_astropy_crossing():
         assert abs(ref_minute) <= 2.0, (evening[i], ref_minute)
 
 
-def test_polar_day_and_night_give_nan():
+def test_polar_day_and_night_with_a_short_lookback_give_nan():
     """Geometry (Meeus ch. 15): at 78 N the sun's lowest elevation at the June solstice is
     dec - (90 - lat) = 23.4 - 12 = +11 deg (no sunset for weeks), and at the December
-    solstice its highest is -11 deg (no sunrise); nothing within 2 days -> NaN."""
+    solstice its highest is -11 deg (no sunrise); with a 2-day lookback there is no event to
+    find -> NaN.  The default lookback (a year) finds the events weeks back (see
+    test_physics_sun_polar.py for those times against astropy)."""
     june = np.array(["2024-06-21T12:00"], dtype="datetime64[m]")
     december = np.array(["2024-12-21T12:00"], dtype="datetime64[m]")
-    assert np.isnan(sun.hours_since_sunset(june, 78.0, 15.0)).all()
-    assert np.isnan(sun.hours_since_sunrise(december, 78.0, 15.0)).all()
-    assert np.isnan(sun.hours_since_sunset(december, 78.0, 15.0)).all()
+    assert np.isnan(sun.hours_since_sunset(june, 78.0, 15.0, max_lookback_days=2.0)).all()
+    assert np.isnan(sun.hours_since_sunrise(december, 78.0, 15.0, max_lookback_days=2.0)).all()
+    assert np.isnan(sun.hours_since_sunset(december, 78.0, 15.0, max_lookback_days=2.0)).all()
+    assert (sun.hours_since_sunset(june, 78.0, 15.0) > 24.0 * 30).all()     # weeks of midnight sun
+    assert (sun.hours_since_sunrise(december, 78.0, 15.0) > 24.0 * 30).all()  # weeks of polar night
     # the site itself always has both events
-    assert np.isfinite(sun.hours_since_sunset(june, SITE_LAT_DEG, SITE_LON_DEG)).all()
+    assert np.isfinite(sun.hours_since_sunset(june, SITE_LAT_DEG, SITE_LON_DEG, max_lookback_days=2.0)).all()
+    with pytest.raises(ValueError):
+        sun.hours_since_sunset(june, 78.0, 15.0, max_lookback_days=0.0)
 
 
 def test_hours_since_sunset_types_and_continuity():

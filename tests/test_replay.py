@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from advisor.vocabulary import VERDICTS
 from advisor.commands.main import main
 from advisor.evaluation.replay import Attempts, compare_rule_sets, hours_by, score_attempts, step_hours
 from advisor.rules.ruleset import RuleEvaluation
@@ -30,7 +31,8 @@ def test_step_hours_counts_nothing_across_a_gap():
 def test_hours_by_sums_and_keeps_every_verdict_column():
     verdict = np.array(["scan", "scan", "postpone", "scan"], dtype=object)
     table = hours_by(verdict, np.full(4, 0.5), ["a", "b", "a", "a"])
-    assert list(table.columns) == ["scan", "astronomical", "postpone", "undetermined"]
+    assert list(table.columns) == list(VERDICTS)
+    assert {"scan", "astronomical", "postpone", "undetermined"} <= set(table.columns)
     assert table.loc["a", "scan"] == 1.0 and table.loc["a", "postpone"] == 0.5 and table.loc["b", "scan"] == 0.5
 
 
@@ -145,7 +147,7 @@ def test_replay_csv_export(tmp_path, sample_args):
     scanned = table[table["verdict"] == "scan"]
     assert len(scanned) and (scanned["blocked_by_scan"] == "").all()
     tokens = {t for cell in table["blocked_by_scan"] for t in cell.split(";") if t}
-    assert tokens and tokens <= {*_rule_ids(), "efficiency_minimum", "site_model", "data"}
+    assert tokens and tokens <= {*_rule_ids(), "efficiency.min", "target.unreachable", "model.scan", "data"}
 
 
 def _rule_ids() -> set[str]:

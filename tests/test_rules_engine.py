@@ -41,10 +41,10 @@ def _random_columns(n: int, seed: int) -> dict[str, np.ndarray]:
 TARGETS = [
     {"freq_ghz": 22.0, "wavelength_mm": 13.6, "required_surface_rms_um": 850.0, "beam_fwhm_arcsec": 40.0,
      "hf_wind_limit_ms": 6.0, "high_frequency_min_ghz": 70.0, "scan_duration_min": 45.0,
-     "astronomical_duration_min": 40.0},
+     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0},
     {"freq_ghz": 115.0, "wavelength_mm": 2.6, "required_surface_rms_um": 163.0, "beam_fwhm_arcsec": 8.0,
      "hf_wind_limit_ms": 6.0, "high_frequency_min_ghz": 70.0, "scan_duration_min": 45.0,
-     "astronomical_duration_min": 40.0},
+     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0},
 ]
 
 

@@ -165,7 +165,7 @@ def _completion_feed(args, site, history):
 
 
 def cmd_train(args: argparse.Namespace) -> int:
-    from advisor.io.fileio import atomic_write_text
+    from advisor.io.fileio import atomic_write_text, refuse_overwrite
     from advisor.io.references import Registry, read_registry
     from advisor.io.site import load_site
     from advisor.model import training
@@ -176,6 +176,7 @@ def cmd_train(args: argparse.Namespace) -> int:
                          field="--usable-below-um")
     history_path = _history_path(args, site)
     out = _out_path(args, site)
+    refuse_overwrite(out, {"--history": history_path, "--feed": args.feed, "--site": args.site}, "--out")
     change = _site_change(args, out)       # with --install, a site file that cannot be edited stops here
     history = training.read_history(history_path, args.usable_below_um)
     terms = training.site_terms(site)

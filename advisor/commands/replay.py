@@ -20,6 +20,7 @@ from advisor.commands import session
 from advisor.errors import UsageError
 from advisor.io import featurecache
 from advisor.io.feed import check_whole_read, read_feed
+from advisor.io.fileio import refuse_overwrite
 from advisor.io.history import read_history
 from advisor.vocabulary import VERDICTS
 from advisor.evaluation.evaluate import Scenario
@@ -75,6 +76,8 @@ def cmd_replay(args: argparse.Namespace) -> int:
     from_option = session.parse_time(args.time_from, "--from")
     to_option = session.parse_time(args.time_to, "--to")
     inputs = session.load_inputs(request, read=None)
+    refuse_overwrite(args.csv, {"--feed": inputs.feed_path, "--history": args.history, "--site": request.site_path,
+                                "--references": inputs.registry_path, "--rules": request.rule_files}, "--csv")
     zone = inputs.site.time_zone
     t_from = from_option.resolve(zone) if from_option is not None else None
     t_to = to_option.resolve(zone) if to_option is not None else None
@@ -111,23 +114,23 @@ def cmd_replay(args: argparse.Namespace) -> int:
         "attempts": None,
         "comparison": None,
     }
-    attempts = None
+    attempts, scores = None, None
     if args.history:
         attempts = attempts_from_history(read_history(args.history))
-        summary["attempts"] = _score(base, attempts, inputs)
+        scores = summary["attempts"] = _score(base, attempts, inputs)
     if other is not None:
         comparison = compare_rule_sets(base.verdict, other.verdict, base.rule_eval, other.rule_eval, hours)
         comparison["hours_b"] = _hours_dict(other.verdict, hours)
         if attempts is not None:
             comparison["attempts_b"] = _score(other, attempts, inputs)
         summary["comparison"] = comparison
-    summary["warnings"] = coverage_warnings(
-        times, hours, features, inputs.registry, attempts,
-        summary["attempts"]["attempts_covered"] if summary["attempts"] else None)
+    warnings = coverage_warnings(times, hours, features, inputs.registry, attempts,
+                                 scores["attempts_covered"] if scores else None)
+    summary["warnings"] = warnings
     if args.csv:
         _write_csv(args.csv, step_table(base, other))
     if args.json:
-        for warning in summary["warnings"]:
+        for warning in warnings:
             print(f"advisor: warning: {warning}", file=sys.stderr)
         print(json.dumps(summary, indent=2, allow_nan=False))
     else:

@@ -24,7 +24,7 @@ from advisor.io.site import Site, load_site
 from advisor.rules.condition import (Call, Compare, Convert, Name, Node, Number, Unary, condition_parts, evaluate_row,
                                      names_in)
 from advisor.rules.loader import lint_files
-from advisor.rules.ruleset import MESSAGE_EXTRAS, RuleSet, format_message
+from advisor.rules.ruleset import RuleSet
 from advisor.vocabulary import DEMO_BANNER, METHODS, VERDICT
 
 #: How a unit of the catalogue is shown next to a number.
@@ -259,7 +259,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
             out.line("       values: " + ", ".join(f"{n} = {_quantity(row.get(n), _catalogue_unit(n))}"
                                                   for n in sorted(used)), indent=15)
         if fired:
-            out.line(f"       says: {format_message(rule.message, row)}", indent=13)
+            out.line(f"       says: {rule.message_for(row)}", indent=13)
     return 0
 
 
@@ -292,8 +292,8 @@ def cmd_features(args: argparse.Namespace) -> int:
     out.line(f"{len(FEATURES)} features a condition or a message may use (name, unit, meaning):")
     for spec in FEATURES:
         out.line(f"  {spec.name:<{width}}  {spec.unit:<{unit_width}}  {spec.meaning}", indent=width + unit_width + 6)
-    extras = ", ".join(MESSAGE_EXTRAS)
-    out.line(f"Messages may also name: {extras} (text).")
+    out.line("Messages may also name: calibrator_name (text), and {limit}, {limit_2}, ... - the condition's own "
+             "numbers as written, so a message never shows a threshold the condition no longer uses.")
     out.line("A number written with a unit converts into the feature's unit (wind_gust_ms > 16 kn); "
              "a bare number is in the feature's unit. See docs/rules.md.")
     return 0

@@ -93,8 +93,11 @@ def cmd_tick(args) -> int:
             previous, warning = statedir.read_state(state_dir, now, advisory.parse_state)
             if warning:
                 _warn(warning)
+            blocked_by = {m: c.get("blocked_by", []) for m, c in call.candidates.items()}
             change = advisory.track_change(previous, call.verdict, advisory.reason_set(call.reasons),
-                                           advisory.utc_text(now), site.tick.dead_feed_ticks, args.notify_on_reasons)
+                                           advisory.utc_text(now), site.tick.dead_feed_ticks, args.notify_on_reasons,
+                                           at_once=advisory.switches_at_once(previous, call.verdict, blocked_by),
+                                           confirm=advisory.Confirm(site.tick.confirm_ticks, site.tick.confirm_min))
             ctx = with_note(result.ctx, advisory.dead_feed_note(change))
             doc = advisory_json(to_json_dict(call, ctx, result.status), change)
             text = issued_line(change) + "\n" + render_plain(call, ctx)

@@ -2,8 +2,10 @@
 
     previous = parse_state(text)                     the stored state (ValueError when invalid)
     change = track_change(previous, verdict, reason_set(call.reasons), utc_text(now),
-                          dead_feed_ticks, notify_on_reasons)
+                          dead_feed_ticks, notify_on_reasons,
+                          at_once=switches_at_once(previous, verdict, blocked_by), confirm=Confirm(3, 15.0))
     change.kind                                      first | verdict | reasons | dead_feed | None
+    change.state.pending                             a new call waiting to be confirmed (or None)
     change.headline                                  the one-line announcement
     change.state.as_dict()                           the state to store for the next run
     dead_feed_note(change)                           a line for the advisory while the feed looks dead
@@ -23,7 +25,9 @@ from datetime import datetime, timezone
 from advisor.io.history import WEATHER_COLUMNS
 from advisor.vocabulary import METHODS, VERDICT, VERDICTS
 
-STATE_SCHEMA = 1
+STATE_SCHEMA = 2
+#: Block ids that change a call without making a method unsafe: such a change waits to be confirmed.
+_SOFT_BLOCKS = ("efficiency.min",)
 
 
 def utc_text(moment: datetime) -> str:
@@ -42,25 +46,64 @@ def _label(verdict: str) -> str:
 
 @dataclass(frozen=True)
 class TickState:
-    """What the previous tick left: its verdict, reason set and counters."""
+    """What the previous tick left: the announced verdict, reason set, counters and a pending call.
+
+    ``verdict`` is the call last announced; ``pending`` a different call seen since
+    ``pending_since_utc`` for ``pending_ticks`` ticks, not yet confirmed (see :class:`Confirm`).
+    """
 
     verdict: str
     reasons: tuple[str, ...]
     since_utc: str
     issued_utc: str
     undetermined_ticks: int
+    pending: str | None = None
+    pending_since_utc: str | None = None
+    pending_ticks: int = 0
 
     def as_dict(self) -> dict:
         return {"schema": STATE_SCHEMA, "verdict": self.verdict, "reasons": list(self.reasons),
                 "since_utc": self.since_utc, "issued_utc": self.issued_utc,
-                "undetermined_ticks": self.undetermined_ticks}
+                "undetermined_ticks": self.undetermined_ticks, "pending": self.pending,
+                "pending_since_utc": self.pending_since_utc, "pending_ticks": self.pending_ticks}
+
+
+@dataclass(frozen=True)
+class Confirm:
+    """How long a new call must hold before it is announced: ``ticks`` ticks or ``minutes``, whichever first."""
+
+    ticks: int = 3
+    minutes: float = 15.0
+
+    def confirmed(self, ticks: int, since_utc: str, now_utc: str) -> bool:
+        held_min = (_parse_utc(now_utc) - _parse_utc(since_utc)).total_seconds() / 60.0
+        return ticks >= self.ticks or held_min >= self.minutes
+
+
+def _parse_utc(text: str) -> datetime:
+    return datetime.fromisoformat(text[:-1]).replace(tzinfo=timezone.utc)
+
+
+def switches_at_once(previous: TickState | None, verdict: str, blocked_by: dict[str, list[str]]) -> bool:
+    """Whether a change from the announced call to ``verdict`` is announced without confirmation.
+
+    At once: the first call, bad data (or data back after it), and a block that makes the
+    announced method unsafe or impossible (any block but a shortfall of efficiency or odds).
+    A change of preference between two feasible methods, or back to one after a lull, waits.
+    """
+    if previous is None or verdict == "undetermined" or previous.verdict == "undetermined":
+        return True
+    old = previous.verdict
+    if old in blocked_by:
+        return any(not (b in _SOFT_BLOCKS or b.startswith("model.")) for b in blocked_by[old])
+    return False
 
 
 def parse_state(text: str) -> TickState:
     """The state a previous run stored (``state.json``); ValueError when it is not one."""
     doc = json.loads(text)
-    if not isinstance(doc, dict) or doc.get("schema") != STATE_SCHEMA:
-        raise ValueError("not a tick state object of schema 1")
+    if not isinstance(doc, dict) or doc.get("schema") not in (1, STATE_SCHEMA):
+        raise ValueError(f"not a tick state object of schema {STATE_SCHEMA}")
     verdict, reasons, ticks = doc.get("verdict"), doc.get("reasons"), doc.get("undetermined_ticks")
     if verdict not in VERDICTS:
         raise ValueError(f"unknown verdict {verdict!r}")
@@ -73,7 +116,17 @@ def parse_state(text: str) -> TickState:
         if not isinstance(value, str) or not value.endswith("Z"):
             raise ValueError(f"{key} is not a UTC time")
         datetime.fromisoformat(value[:-1])
-    return TickState(verdict, tuple(reasons), doc["since_utc"], doc["issued_utc"], ticks)
+    pending, pending_since, pending_ticks = doc.get("pending"), doc.get("pending_since_utc"), doc.get("pending_ticks", 0)
+    if pending is not None:
+        if pending not in VERDICTS or not isinstance(pending_since, str) or not pending_since.endswith("Z"):
+            raise ValueError("pending is not a verdict with a UTC time")
+        datetime.fromisoformat(pending_since[:-1])
+        if isinstance(pending_ticks, bool) or not isinstance(pending_ticks, int) or pending_ticks < 0:
+            raise ValueError("pending_ticks is not a count")
+    else:
+        pending_since, pending_ticks = None, 0
+    return TickState(verdict, tuple(reasons), doc["since_utc"], doc["issued_utc"], ticks,
+                     pending, pending_since, pending_ticks)
 
 
 # --- change tracking (pure) ---------------------------------------------------------------
@@ -95,11 +148,25 @@ def reason_set(reasons) -> tuple[str, ...]:
 
 
 def track_change(previous: TickState | None, verdict: str, reasons: tuple[str, ...], issued_utc: str,
-                 dead_feed_ticks: int, notify_on_reasons: bool) -> Change:
-    """Compare this tick with the previous state; the new state and what to announce."""
+                 dead_feed_ticks: int, notify_on_reasons: bool, at_once: bool = True,
+                 confirm: Confirm | None = None) -> Change:
+    """Compare this tick with the previous state; the new state and what to announce.
+
+    A different call is announced at once when ``at_once`` (see :func:`switches_at_once`),
+    otherwise once it has held as ``confirm`` says; until then it is kept as ``pending``.
+    """
     label = _label(verdict)
     undetermined = (previous.undetermined_ticks if previous else 0) + 1 if verdict == "undetermined" else 0
     dead = verdict == "undetermined" and undetermined >= dead_feed_ticks
+    if previous is not None and previous.verdict != verdict and not at_once and confirm is not None:
+        if previous.pending == verdict and previous.pending_since_utc is not None:
+            ticks, pending_since = previous.pending_ticks + 1, previous.pending_since_utc
+        else:
+            ticks, pending_since = 1, issued_utc
+        if not confirm.confirmed(ticks, pending_since, issued_utc):
+            state = TickState(previous.verdict, reasons, previous.since_utc, issued_utc, undetermined,
+                              verdict, pending_since, ticks)
+            return Change(None, "", state, previous.verdict, dead)
     if previous is None:
         since, kind = issued_utc, "first"
         headline = f"advisor tick: first advisory in this state dir: {label}"

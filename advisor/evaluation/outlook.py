@@ -36,6 +36,7 @@ from advisor.evaluation.evaluate import OddsFunction, evaluate
 from advisor.io.references import Registry
 from advisor.rules.ruleset import RuleSet
 from advisor.io.site import Site
+from advisor.evaluation.stability import changes_at_once, stabilise
 from advisor.evaluation.windows import find_windows, next_window
 
 #: How far ``check`` looks ahead for the next window when its feed carries future rows [h].
@@ -265,7 +266,13 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     beyond &= ~gap                                                  # a gap has no row to date
     verdict = decisions.verdict.copy()
     verdict[gap] = "undetermined"
-    category = np.where(gap, "gap", verdict).astype(object)
+    # Spans: a change of preference must hold for the site's confirmation time (as tick announces
+    # it); a change forced by a block or by bad data shows at once.
+    hard = {m: np.logical_or.reduce([mask for rid, mask in decisions.blocking(m).items()
+                                     if rid != "efficiency.min" and not rid.startswith("model.")] or
+                                    [np.zeros(n, dtype=bool)]) for m in METHODS}
+    stable = stabilise(times, verdict, changes_at_once(verdict, hard) | gap, site.tick.confirm_min)
+    category = np.where(gap, "gap", stable).astype(object)
 
     steps = pd.DataFrame({"time": times, "verdict": verdict, "gap": gap, "beyond_horizon": beyond,
                           "source": np.where(gap, "none", src_kind).astype(object)})
@@ -310,6 +317,9 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     if n_beyond:
         notes.append(f"{n_beyond} step(s) lie more than {fs.horizon_h:g} h after the forecast's issue time: "
                      "flagged (lower-case letters), less reliable.")
+    if all("target.unreachable" in decisions.candidates[m].blocks for m in METHODS):
+        notes.append(f"Not reachable at {freq_ghz:g} GHz whatever the weather: neither method can bring the surface "
+                     "to the site's minimum efficiency, so no window will open; the postpones below are not a wait.")
     n_gap = int(gap.sum())
     if n_gap:
         notes.append(f"{n_gap} step(s) have no forecast row (gaps): shown as '{GAP_LETTER}', counted as unknown, "

@@ -14,17 +14,17 @@ Pure summaries over the vectorised decisions of every archive row:
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
 from advisor.decision import Decisions
-from advisor.vocabulary import METHODS, VERDICTS
 from advisor.evaluation.evaluate import Scenario
 from advisor.features import row_features_chunked
 from advisor.io.history import History
 from advisor.rules.ruleset import RuleEvaluation
-
+from advisor.vocabulary import METHODS, VERDICTS
 
 
 @dataclass(frozen=True)
@@ -136,7 +136,7 @@ def score_attempts(times_utc: pd.DatetimeIndex, verdict: np.ndarray, rule_eval: 
             go = of_method & (advice == method)
         false_go = go & ~attempts.usable
         missed = of_method & ~go & attempts.usable
-        per_rule = []
+        per_rule: list[dict[str, Any]] = []
         for rule_id, fired in rule_eval.fired.items():
             if applies is not None and applies.get(rule_id, "both") not in (method, "both"):
                 continue
@@ -183,7 +183,7 @@ def compare_rule_sets(verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: Rule
             mask = changed & (verdict_a == a) & (verdict_b == b)
             if mask.any():
                 transitions.append({"from": a, "to": b, "hours": round(float(hours[mask].sum()), 2)})
-    by_rule = []
+    by_rule: list[dict[str, Any]] = []
     none = np.zeros(len(verdict_a), dtype=bool)
     for rule_id in sorted(set(eval_a.fired) | set(eval_b.fired)):
         differs = eval_a.fired.get(rule_id, none) != eval_b.fired.get(rule_id, none)

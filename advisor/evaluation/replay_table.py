@@ -3,10 +3,10 @@
     table = step_table(replayed, compared)          # one row per step: verdict, blocked-by, odds, key features
     warnings = coverage_warnings(times, hours, rows, registry, attempts)
 
-``blocked_by_<method>`` lists, separated by ``;``, the blocking rules that fired against the
-method, ``efficiency_minimum`` (its Ruze efficiency below the site's minimum),
-``site_model`` (the site model's odds below the site's threshold) and ``data`` (no good
-weather: undetermined).  Flags are written ``true``/``false``.  The strings are built once per
+``blocked_by_<method>`` lists, separated by ``;``, everything that blocks the method, with the
+ids ``check --json`` uses in ``blocked_by``: the blocking rules that fired, ``efficiency.min``,
+``target.unreachable``, ``model.<method>`` (the site model's odds below the site's threshold)
+and ``data`` (no good weather: undetermined).  Flags are written ``true``/``false``.  The strings are built once per
 distinct combination of blocks, not once per row.
 """
 
@@ -39,18 +39,12 @@ def _joined(masks: list[tuple[str, np.ndarray]], n: int) -> np.ndarray:
 
 
 def blocked_by(replayed: Replayed, method: str) -> np.ndarray:
-    """Per row, what rules ``method`` out (see the module docstring)."""
+    """Per row, everything that rules ``method`` out (:meth:`advisor.decision.Decisions.blocking`)."""
     d = replayed.decisions
     n = len(replayed.verdict)
     if d is None:
         return np.full(n, "", dtype=object)
-    th = d.site.thresholds
-    c = d.candidates[method]
-    masks = [(rule_id, np.asarray(mask, dtype=bool)) for rule_id, mask in d.blocking(method).items()]
-    with np.errstate(invalid="ignore"):
-        masks.append(("efficiency_minimum", np.isfinite(c.ruze_efficiency) & (c.ruze_efficiency < th.min_ruze_efficiency)))
-        masks.append(("site_model", np.isfinite(c.p_usable) & (c.p_usable < th.min_p_usable)))
-    masks.append(("data", ~d.features["data_ok"].to_numpy(dtype=bool)))
+    masks = [(block_id, np.asarray(mask, dtype=bool)) for block_id, mask in d.blocking(method).items()]
     return _joined(masks, n)
 
 

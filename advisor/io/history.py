@@ -23,11 +23,21 @@ import numpy as np
 import pandas as pd
 
 from advisor.errors import AdvisorError
-from advisor.io.fileio import atomic_write_text, locked, regular_file_size
+from advisor.io.fileio import (
+    KINDS,
+    atomic_write_text,
+    encoding_error,
+    locked,
+    open_regular,
+    read_text_bounded,
+    repeated_csv_column,
+    sniff_encoding_problem,
+)
 from advisor.io.site import CANONICAL_COLUMNS, REQUIRED_COLUMNS
+from advisor.io.times import parse_time_column
 from advisor.vocabulary import METHOD_LABEL, METHODS
 
-MAX_HISTORY_BYTES = 200_000_000
+MAX_HISTORY_BYTES = KINDS["history"].max_bytes
 USABLE_WORDS = {**dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),
                 **dict.fromkeys(("no", "n", "false", "0", "unusable", "failed", "fail"), 0.0), "": np.nan}
 
@@ -43,8 +53,6 @@ REQUIRED_WEATHER = (*REQUIRED_COLUMNS, "air_temp_rate_c_per_h")
 COLUMNS = ("time", "method", "usable", "residual_rms_um", *WEATHER_COLUMNS, "note")
 #: Two attempts of one method closer than this are the same attempt recorded twice.
 DUPLICATE_WITHIN = pd.Timedelta(minutes=1)
-
-_OFFSET = re.compile(r"(?:Z|[+-]\d\d:?\d\d)$", re.IGNORECASE)
 
 
 class HistoryError(AdvisorError):
@@ -73,15 +81,28 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
     """Read and validate a history CSV (see the module docstring for its columns)."""
     path = Path(path)
     source = str(path)
-    regular_file_size(path, HistoryError, "history file", max_bytes=MAX_HISTORY_BYTES,
-                      empty_hint="expected a header line and one row per attempt")
-    try:
-        table = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8")
-    except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        m = re.search(r"line (\d+)", msg)
-        raise HistoryError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
-                           hint="save the history as comma-separated UTF-8 text") from None
+    with open_regular(path, HistoryError, KINDS["history"],
+                      empty_hint="expected a header line and one row per attempt") as (fh, _size):
+        head = fh.read(4096)
+        problem = sniff_encoding_problem(head)
+        if problem is not None:
+            raise encoding_error(problem, HistoryError, "history file", source, expected="CSV text")
+        fh.seek(0)
+        header = fh.readline(65_536)
+        fh.seek(0)
+        try:
+            table = pd.read_csv(fh, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8")
+        except pd.errors.EmptyDataError:
+            raise HistoryError("history file has no header", source=source) from None
+        except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
+            msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+            m = re.search(r"line (\d+)", msg)
+            raise HistoryError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
+                               hint="save the history as comma-separated UTF-8 text") from None
+    repeated = repeated_csv_column(header)
+    if repeated:
+        raise HistoryError(f"column {repeated!r} appears twice in the header", source=source, line=1,
+                           hint="keep one; the advisor will not guess which is meant")
     table = table.rename(columns=lambda c: str(c).strip())
     if len(table) == 0:
         raise HistoryError("history has a header but no attempts", source=source)
@@ -95,17 +116,8 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
     def line_of(mask) -> int:
         return int(np.flatnonzero(np.asarray(mask))[0]) + 2
 
-    text_time = table["time"].str.strip()
-    no_offset = ~text_time.str.contains(_OFFSET)
-    if no_offset.any():
-        i = line_of(no_offset)
-        raise HistoryError(f"time {table['time'].iloc[i - 2]!r} has no UTC offset", source=source, line=i, field="time",
-                           hint="write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z")
-    times = pd.to_datetime(text_time, utc=True, format="ISO8601", errors="coerce")
-    if times.isna().any():
-        i = line_of(times.isna())
-        raise HistoryError(f"cannot read time {table['time'].iloc[i - 2]!r}", source=source, line=i, field="time",
-                           hint="write ISO 8601, e.g. 2026-01-15T09:00:00Z")
+    times = parse_time_column(table["time"], source=source, field="time", line_offset=2, error_type=HistoryError,
+                              require_offset=True)
     method = table["method"].str.strip().str.lower()
     bad = ~method.isin(list(METHODS))
     if bad.any():
@@ -231,10 +243,7 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
                                    hint="nothing was added; give the time of a different attempt, or correct "
                                         "that line")
             times = pd.DatetimeIndex(frame["time"])
-            try:
-                text = path.read_text(encoding="utf-8")
-            except (OSError, UnicodeDecodeError) as exc:
-                raise HistoryError(f"cannot read the history: {exc}", source=source) from None
+            text = read_text_bounded(path, HistoryError, "history") or ""   # a UTF-8 BOM is dropped here
             header, texts, rows = _records(text, source)
             if len(rows) != len(times):  # pragma: no cover - read_history and csv agree on rows
                 raise HistoryError("the history's rows could not be matched up; nothing was added", source=source)
@@ -261,9 +270,18 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
 
 def _numeric(table: pd.DataFrame, name: str, source: str) -> np.ndarray:
     raw = table[name].str.strip()
-    values = pd.to_numeric(raw.replace({"": None, "NaN": None, "nan": None, "NA": None}), errors="coerce")
-    bad = values.isna() & ~raw.isin(["", "NaN", "nan", "NA"])
+    blank = raw.isin(["", "NaN", "nan", "NA"])
+    values = pd.to_numeric(raw.where(~blank, None), errors="coerce")
+    bad = values.isna() & ~blank
     if bad.any():
         i = int(np.flatnonzero(bad.to_numpy())[0])
         raise HistoryError(f"{name} {table[name].iloc[i]!r} is not a number", source=source, line=i + 2, field=name)
-    return values.to_numpy(dtype=float)
+    numbers = values.to_numpy(dtype=float)
+    huge = ~np.isnan(numbers) & ~(np.abs(numbers) < 1e15)
+    if huge.any():
+        i = int(np.flatnonzero(huge)[0])
+        shown = str(table[name].iloc[i]).strip()
+        shown = shown if len(shown) <= 24 else f"{shown[:12]}… ({len(shown)} characters)"
+        raise HistoryError(f"{name} {shown} is not a finite number of plausible size", source=source, line=i + 2,
+                           field=name)
+    return numbers

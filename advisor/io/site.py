@@ -27,6 +27,7 @@ from advisor.errors import SiteError
 from advisor.io.bundled import demo_site_path
 from advisor.io.sitemodel import ModelTermSetting, model_terms
 from advisor.io.yamlio import load_yaml
+from advisor.text import clean_text
 
 CANONICAL_COLUMNS = (
     "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",
@@ -68,6 +69,7 @@ class FeedLayout:
     columns: tuple[ColumnMap, ...] = ()
     max_feed_age_min: float = 15.0
     max_gap_min: float = 10.0
+    time_unit: str | None = None   # None: ISO 8601 text (or epoch seconds); "iso", "epoch_s", "epoch_ms"
 
 
 @dataclass(frozen=True)
@@ -77,7 +79,13 @@ class ScanFigures:
     noise_um_at_calm: float = 80.0
     wind_term_um_per_ms2: float = 4.0
     reference_ageing_um_per_day: float = 15.0
-    reference_mismatch_um_per_c: float = 20.0
+    # |ΔT| from the reference scan's air temperature: the air's refractive index along the beam
+    # and the mount's thermal motion (advisor.physics.laser); a site may instead give the
+    # combined coefficient it has measured (reference_mismatch_um_per_c).
+    air_path_m: float = 60.0
+    refraction_compensated_fraction: float = 0.7
+    mount_um_per_c: float = 10.0
+    reference_mismatch_um_per_c: float | None = None
     duration_min: float = 12.0
 
 
@@ -89,6 +97,7 @@ class AstronomicalFigures:
     wind_term_um_per_ms2: float = 3.0
     thermal_drift_um_per_c: float = 25.0
     duration_min: float = 45.0
+    uncorrected_surface_rms_um: float | None = None   # the surface with no fresh correction (optional)
     min_calibrator_elevation_deg: float = 25.0
     max_calibrator_elevation_deg: float = 80.0
 
@@ -99,6 +108,7 @@ class Thresholds:
 
     high_frequency_wind_limit_ms: float = 4.0
     high_frequency_min_ghz: float = 30.0
+    surface_requirement_fraction: float = 16.0   # the surface must reach λ/N (Ruze η 0.54 at λ/16)
     min_ruze_efficiency: float = 0.30
     laser_preference_efficiency: float = 0.08
     min_p_usable: float = 0.5
@@ -145,12 +155,16 @@ class TickConfig:
     notify_format: str = "text"          # text | json, what the notify command reads on stdin
     history_max_bytes: int = 5_000_000   # history.jsonl is rotated to history.jsonl.1 above this
     dead_feed_ticks: int = 6             # consecutive undetermined ticks before "the feed looks dead"
+    # A new call is announced once it has held for confirm_ticks ticks or confirm_min minutes
+    # (whichever comes first); a call forced by a block (fog, rain, wind, bad data) at once.
+    confirm_ticks: int = 3
+    confirm_min: float = 15.0
 
 
 def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
     path = ("tick",)
     section = reader.section(path, {"notify_command", "notify_timeout_s", "notify_format",
-                                    "history_max_bytes", "dead_feed_ticks"})
+                                    "history_max_bytes", "dead_feed_ticks", "confirm_ticks", "confirm_min"})
     argv = section.get("notify_command") or []
     if not isinstance(argv, list) or not all(isinstance(a, str) and a for a in argv):
         raise reader.fail(path + ("notify_command",), f"expected a list of non-empty strings, got {argv!r}",
@@ -159,7 +173,8 @@ def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
     if argv and "/" in argv[0] and not Path(argv[0]).expanduser().is_absolute():
         argv = [str(base / argv[0]), *argv[1:]]
     ints = {}
-    for name, lo, hi in (("history_max_bytes", 1000, 1e12), ("dead_feed_ticks", 1, 100_000)):
+    for name, lo, hi in (("history_max_bytes", 1000, 1e12), ("dead_feed_ticks", 1, 100_000),
+                         ("confirm_ticks", 1, 100_000)):
         value = reader.number(path + (name,), default=getattr(TickConfig, name), lo=lo, hi=hi)
         if value != int(value):
             raise reader.fail(path + (name,), f"expected a whole number, got {value:g}")
@@ -169,6 +184,7 @@ def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
         raise reader.fail(path + ("notify_format",), f"unknown format {fmt!r}", hint="use text or json")
     return TickConfig(notify_command=tuple(argv), notify_format=fmt,
                       notify_timeout_s=reader.number(path + ("notify_timeout_s",), default=30.0, lo=0.1, hi=3600),
+                      confirm_min=reader.number(path + ("confirm_min",), default=TickConfig.confirm_min, lo=0, hi=1440),
                       **ints)
 
 
@@ -265,6 +281,9 @@ class _Reader:
             if key not in known:
                 import difflib
 
+                if clean_text(key) != str(key):
+                    raise self.fail(path + (key,), "unknown key: it contains control characters or escape sequences",
+                                    hint="retype the key; known keys: " + ", ".join(sorted(known)))
                 close = difflib.get_close_matches(str(key), sorted(known), n=1)
                 hint = f"did you mean '{close[0]}'?" if close else f"known keys: {', '.join(sorted(known))}"
                 raise self.fail(path + (key,), "unknown key", hint=hint)
@@ -290,7 +309,10 @@ class _Reader:
             return float(default)
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise self.fail(path, f"expected a number, got {value!r}", hint="write a plain number, e.g. 4.0")
-        value = float(value)
+        try:
+            value = float(value)
+        except OverflowError:
+            raise self.fail(path, "number too large", hint="write a plain number, e.g. 4.0") from None
         if value != value:
             raise self.fail(path, "expected a number, got NaN")
         if (lo is not None and value < lo) or (hi is not None and value > hi):
@@ -324,13 +346,31 @@ def _figures(reader: _Reader, path: tuple, cls: type, bounds: dict[str, tuple[fl
     return cls(**values)
 
 
+TIME_UNITS = ("iso", "epoch_s", "epoch_ms")
+
+
 def _time_zone(reader: _Reader, path: tuple, value: str | None) -> str | None:
+    """An IANA time zone name, checked by loading it; a region folder such as ``America`` is refused."""
     if value is None:
         return None
+    hint = "use an IANA name such as America/Denver or Europe/Madrid, or UTC"
+    if not value or len(value) > 64 or any(not (ch.isalnum() or ch in "/_+-") for ch in value):
+        raise reader.fail(path, f"unknown time zone {value!r}", hint=hint)
     try:
         ZoneInfo(value)
-    except (ZoneInfoNotFoundError, ValueError):
-        raise reader.fail(path, f"unknown time zone {value!r}", hint="use an IANA name such as America/Denver") from None
+    except IsADirectoryError:
+        raise reader.fail(path, f"{value!r} is a region, not a time zone",
+                          hint=f"name a zone within it, e.g. {value}/<City>; {hint}") from None
+    except (ZoneInfoNotFoundError, ValueError, OSError, UnicodeError):
+        raise reader.fail(path, f"unknown time zone {value!r}", hint=hint) from None
+    return value
+
+
+def _time_unit(reader: _Reader) -> str | None:
+    value = reader.text(("feed", "time_unit"))
+    if value is not None and value not in TIME_UNITS:
+        raise reader.fail(("feed", "time_unit"), f"unknown time unit {value!r}",
+                          hint="use iso (ISO 8601 text), epoch_s (seconds since 1970) or epoch_ms (milliseconds)")
     return value
 
 
@@ -350,7 +390,8 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     tz = _time_zone(r, ("site", "time_zone"), r.text(("site", "time_zone"), default="UTC"))
     dish = r.number(("site", "dish_diameter_m"), lo=1, hi=1000, required=True)
 
-    feed_section = r.section(("feed",), {"path", "time_column", "time_zone", "columns", "max_feed_age_min", "max_gap_min"})
+    feed_section = r.section(("feed",), {"path", "time_column", "time_zone", "time_unit", "columns",
+                                         "max_feed_age_min", "max_gap_min"})
     columns = []
     col_section = feed_section.get("columns") or {}
     if not isinstance(col_section, dict):
@@ -378,6 +419,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         columns=tuple(columns),
         max_feed_age_min=r.number(("feed", "max_feed_age_min"), default=15.0, lo=0.5, hi=1440),
         max_gap_min=r.number(("feed", "max_gap_min"), default=10.0, lo=0.5, hi=1440),
+        time_unit=_time_unit(r),
     )
 
     r.section(("references",), {"path"})
@@ -387,16 +429,18 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     scan = _figures(r, ("methods", "scan"), ScanFigures, {
         "noise_um_at_calm": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
         "reference_ageing_um_per_day": (0, 5000), "reference_mismatch_um_per_c": (0, 5000),
+        "air_path_m": (0, 1000), "refraction_compensated_fraction": (0, 1), "mount_um_per_c": (0, 5000),
         "duration_min": (0.1, 1440)})
     astro = _figures(r, ("methods", "astronomical"), AstronomicalFigures, {
         "surface_rms_um": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
-        "thermal_drift_um_per_c": (0, 5000), "duration_min": (0.1, 1440),
+        "thermal_drift_um_per_c": (0, 5000), "duration_min": (0.1, 1440), "uncorrected_surface_rms_um": (0, 100000),
         "min_calibrator_elevation_deg": (0, 90), "max_calibrator_elevation_deg": (0, 90)})
     if astro.min_calibrator_elevation_deg >= astro.max_calibrator_elevation_deg:
         raise r.fail(("methods", "astronomical", "max_calibrator_elevation_deg"),
                      "must be above min_calibrator_elevation_deg")
     thresholds = _figures(r, ("thresholds",), Thresholds, {
         "high_frequency_wind_limit_ms": (0, 100), "high_frequency_min_ghz": (0, 2000),
+        "surface_requirement_fraction": (1, 1000),
         "min_ruze_efficiency": (0, 1), "laser_preference_efficiency": (0, 1),
         "min_p_usable": (0, 1), "fog_spread_c": (0, 20), "fog_rel_humidity_pct": (0, 100),
         "fog_visibility_m": (0, 100000), "precip_mm_h": (0, 1000),

@@ -302,3 +302,17 @@ class SiteModel:
             extrapolation[method] = ExtrapolationNotes(method, m, term_values,
                                                        outside & np.isfinite(p)[:, None])
         return ModelOdds(odds, notes, extrapolated, extrapolation)
+
+
+#: Names of the model file's reader and writer (:mod:`advisor.model.modelfile`), still importable
+#: from here for callers written before the file format had its own module.
+_MODEL_FILE_NAMES = ("FORMAT", "SCHEMA_VERSION", "READABLE_VERSIONS", "MAX_MODEL_BYTES", "RETRAIN_HINT",
+                     "load_model", "parse_model", "dumps_model", "model_to_dict")
+
+
+def __getattr__(name: str):
+    if name in _MODEL_FILE_NAMES:
+        from advisor.model import modelfile
+
+        return getattr(modelfile, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -13,12 +13,14 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 
 import numpy as np
 
 from advisor.catalogue import CATALOGUE
 from advisor.errors import ModelError
+from advisor.io.fileio import FileKind, decode_text, read_bytes_bounded, sniff_encoding_problem, stat_regular
 from advisor.model.inference import DIRECTIONS, MAX_TERMS, METHOD_LABELS, TRANSFORMS, MethodModel, SiteModel, Term
 
 FORMAT = "advisor-site-model"
@@ -36,9 +38,9 @@ def model_to_dict(model: SiteModel) -> dict:
     for method, m in model.methods.items():
         terms = []
         for t in m.terms:
-            entry = {"name": t.name, "feature": t.feature, "transform": t.transform, "unit": t.unit,
-                     "direction": t.direction}
-            if t.transform == "shortfall":
+            entry: dict[str, object] = {"name": t.name, "feature": t.feature, "transform": t.transform,
+                                        "unit": t.unit, "direction": t.direction}
+            if t.transform == "shortfall" and t.knot is not None:
                 entry["knot"] = float(t.knot)
             terms.append(entry)
         lo = m.feature_min if m.feature_min is not None else np.full(len(m.terms), -np.inf)
@@ -71,32 +73,53 @@ def dumps_model(model: SiteModel) -> str:
 # --- strict reading -----------------------------------------------------------------------
 
 def load_model(path: Path | str) -> SiteModel:
-    """Read and validate a model file; every problem is a :class:`ModelError`."""
-    path = Path(path)
+    """Read and validate a model file; every problem is a :class:`ModelError`.
+
+    The file is read with the bounded reader (a regular file of at most
+    :data:`MAX_MODEL_BYTES`; FIFOs and devices are refused without blocking); UTF-8 with or
+    without a byte-order mark.
+    """
     source = str(path)
+    kind = FileKind("model file", MAX_MODEL_BYTES, "a site model is a few kB of JSON; is this the right file?")
     try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise ModelError("model file not found", source=source,
-                         hint="check --model or model.path in the site file, or train one with 'advisor train'") from None
-    except OSError as exc:
-        raise ModelError(f"cannot read model file: {exc.strerror}", source=source) from None
-    if path.is_dir():
-        raise ModelError("is a directory, expected a JSON model file", source=source)
-    if size > MAX_MODEL_BYTES:
-        raise ModelError(f"model file is {size:,} bytes, above the {MAX_MODEL_BYTES:,}-byte limit", source=source,
-                         hint="a site model is a few kB of JSON; is this the right file?")
-    try:
-        with path.open("rb") as fh:
-            raw = fh.read(MAX_MODEL_BYTES + 1)
-        text = raw.decode("utf-8")
-    except OSError as exc:
-        raise ModelError(f"cannot read model file: {exc.strerror}", source=source) from None
-    except UnicodeDecodeError:
-        raise ModelError("not UTF-8 text", source=source, hint="a model file is JSON; " + RETRAIN_HINT) from None
-    if len(raw) > MAX_MODEL_BYTES:
-        raise ModelError(f"model file is above the {MAX_MODEL_BYTES:,}-byte limit", source=source)
+        stat_regular(path, ModelError, kind)
+    except ModelError as exc:
+        if exc.message == "model file not found":
+            exc.hint = "check --model or model.path in the site file, or train one with 'advisor train'"
+        raise
+    raw = read_bytes_bounded(path, ModelError, kind, empty_ok=True) or b""
+    problem = sniff_encoding_problem(raw[:4096])
+    if problem == "binary" or (problem is None and b"\x00" in raw):
+        raise ModelError("not UTF-8 text (binary content)", source=source,
+                         hint="a model file is JSON; " + RETRAIN_HINT)
+    text = decode_text(raw, ModelError, "model file", source, expected="a JSON model file")
     return parse_model(text, source)
+
+
+#: Deepest nesting of arrays and objects in a model file (a valid one is 5 deep).
+MAX_JSON_DEPTH = 32
+#: Longest integer literal read exactly; longer ones become floats (and so fail the finite check
+#: when they overflow), never an OverflowError or Python's 4300-digit conversion limit.
+MAX_INT_DIGITS = 16
+_STRING = re.compile(r'"(?:[^"\\]|\\.)*"')
+
+
+def _json_depth(text: str) -> int:
+    """Deepest bracket nesting of JSON ``text`` (strings ignored), in one vectorised pass."""
+    bare = _STRING.sub('""', text)
+    codes = np.frombuffer(bare.encode("utf-8", "replace"), dtype=np.uint8)
+    step = np.zeros(len(codes), dtype=np.int32)
+    step[(codes == ord("[")) | (codes == ord("{"))] = 1
+    step[(codes == ord("]")) | (codes == ord("}"))] = -1
+    return int(np.cumsum(step).max()) if len(step) else 0
+
+
+class _LongInteger(str):
+    """An integer literal too long to be a model number, kept as written for the message."""
+
+
+def _bounded_int(text: str):
+    return int(text) if len(text.lstrip("-")) <= MAX_INT_DIGITS else _LongInteger(text)
 
 
 def _reject_constant(name: str):
@@ -116,14 +139,19 @@ def parse_model(text: str, source: str = "<model>") -> SiteModel:
     """Validate the JSON ``text`` of a model file into a :class:`SiteModel`."""
     if not text.strip():
         raise ModelError("model file is empty", source=source, hint=RETRAIN_HINT)
+    depth = _json_depth(text)
+    if depth > MAX_JSON_DEPTH:
+        raise ModelError(f"JSON nested {depth} levels deep; a model file is at most {MAX_JSON_DEPTH}", source=source,
+                         hint="the file is damaged or not a model; " + RETRAIN_HINT)
     try:
-        doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_reject_constant)
+        doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_reject_constant,
+                         parse_int=_bounded_int)
     except json.JSONDecodeError as exc:
         at_end = exc.pos >= len(text.rstrip()) or exc.msg.startswith("Unterminated string")
         what = "truncated JSON" if at_end else f"invalid JSON: {exc.msg}"
         raise ModelError(what, source=source, line=exc.lineno, column=exc.colno,
                          hint="the file is damaged; " + RETRAIN_HINT) from None
-    except ValueError as exc:
+    except (ValueError, RecursionError) as exc:
         raise ModelError(f"invalid JSON: {exc}", source=source, hint=RETRAIN_HINT) from None
     return _Validator(source).model(doc)
 
@@ -136,7 +164,7 @@ class _Validator:
     def fail(self, where: str, message: str, hint: str | None = RETRAIN_HINT) -> ModelError:
         return ModelError(message, source=self.source, field=where or None, hint=hint)
 
-    def mapping(self, value, where: str, required: set, optional: set = frozenset()) -> dict:
+    def mapping(self, value, where: str, required: set, optional: set | frozenset = frozenset()) -> dict:
         if not isinstance(value, dict):
             raise self.fail(where, f"expected an object, got {type(value).__name__}")
         missing = sorted(required - set(value))
@@ -148,9 +176,14 @@ class _Validator:
         return value
 
     def number(self, value, where: str) -> float:
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        if isinstance(value, _LongInteger):
+            raise self.fail(where, f"number {value[:12]}… ({len(value)} digits) is too large to be a model number")
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise self.fail(where, f"expected a finite number, got {value!r}")
-        return float(value)
+        number = float(value)
+        if not math.isfinite(number):
+            raise self.fail(where, f"expected a finite number, got {value!r}")
+        return number
 
     def numbers(self, value, where: str, n: int) -> np.ndarray:
         if not isinstance(value, list):
@@ -197,7 +230,7 @@ class _Validator:
             raise self.fail("features", "expected a non-empty list of {name, unit}")
         if len(value) > MAX_TERMS:
             raise self.fail("features", f"{len(value)} features, more than the {MAX_TERMS} a site model may read")
-        out = []
+        out: list[tuple[str, str]] = []
         for k, entry in enumerate(value):
             where = f"features[{k}]"
             self.mapping(entry, where, {"name", "unit"})

@@ -6,6 +6,8 @@
     source_altaz_deg(times, ra, dec, lat, lon) -> (elevation, azimuth), shape (n_times, n_sources)
     source_elevation_deg(...)                -> elevation only
     minutes_above_elevation(..., min_elevation_deg) -> minutes until the source drops below
+    angular_separation_deg(ra1, dec1, ra2, dec2)   great-circle angle between two directions
+    sun_separation_deg(times, ra, dec)       angle from the sun, shape (n_times, n_sources)
 
 Geometric positions: nutation, aberration, refraction and parallax are ignored (together
 < 0.01 deg for sources outside the solar system, refraction aside).  Longitude east-positive.
@@ -15,7 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from advisor.physics.sun import _days_since_j2000, _finish, _gmst_deg_from_days, _altaz_from_hour_angle
+from advisor.physics.ephemeris import _altaz_from_hour_angle, _days_since_j2000, _finish, _gmst_deg_from_days, _sun_equatorial_fast
 
 __all__ = [
     "SIDEREAL_RATE_DEG_PER_H",
@@ -25,6 +27,8 @@ __all__ = [
     "source_altaz_deg",
     "source_elevation_deg",
     "minutes_above_elevation",
+    "angular_separation_deg",
+    "sun_separation_deg",
 ]
 
 #: Rate of change of hour angle of a fixed star [deg/h] (360.98564736629 deg per UT day,
@@ -297,3 +301,84 @@ def elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longit
     minutes[elevation < limit] = f32(0.0)
     minutes[np.isnan(elevation)] = np.nan
     return elevation, minutes
+
+
+def angular_separation_deg(ra1_deg, dec1_deg, ra2_deg, dec2_deg):
+    """Great-circle angle between two directions on the sky, elementwise (broadcasting).
+
+    Parameters
+    ----------
+    ra1_deg, dec1_deg : numeric
+        Right ascension and declination (or longitude and latitude) of the first. [deg]
+    ra2_deg, dec2_deg : numeric
+        The same for the second, in the same frame. [deg]
+
+    Returns
+    -------
+    ndarray (float for scalar input)
+        Separation, 0..180. [deg]
+
+    Notes
+    -----
+    Vincenty's form, accurate at every separation (no loss near 0 or 180 deg):
+    atan2(sqrt((cos d2 sin da)^2 + (cos d1 sin d2 - sin d1 cos d2 cos da)^2),
+    sin d1 sin d2 + cos d1 cos d2 cos da).
+
+    References
+    ----------
+    Vincenty, T. (1975). Direct and inverse solutions of geodesics on the ellipsoid with
+    application of nested equations. Survey Review 23(176), 88-93 (the spherical case).
+    """
+    a1, d1, a2, d2 = (np.radians(np.asarray(x, dtype=float)) for x in (ra1_deg, dec1_deg, ra2_deg, dec2_deg))
+    da = a2 - a1
+    sin_d1, cos_d1, sin_d2, cos_d2 = np.sin(d1), np.cos(d1), np.sin(d2), np.cos(d2)
+    num = np.hypot(cos_d2 * np.sin(da), cos_d1 * sin_d2 - sin_d1 * cos_d2 * np.cos(da))
+    den = sin_d1 * sin_d2 + cos_d1 * cos_d2 * np.cos(da)
+    return _finish(np.degrees(np.arctan2(num, den)))
+
+
+def sun_separation_deg(times_utc, ra_deg, dec_deg):
+    """Angle between the sun and J2000 sources, for every time and source.
+
+    Parameters
+    ----------
+    times_utc : datetime64 array, pandas DatetimeIndex/Series or scalar
+        Times, UTC; shape (n,) (a scalar counts as n = 1).
+    ra_deg, dec_deg : numeric
+        J2000.0 right ascension and declination of the sources; shape (m,). [deg]
+
+    Returns
+    -------
+    ndarray, shape (n, m)
+        Separation from the sun's centre [deg]; NaN where the time is NaT.  Geocentric: the
+        sun's parallax (< 9 arcsec) is left out.
+
+    Notes
+    -----
+    The sun's apparent place of date (Meeus ch. 25) against the source precessed to the mean
+    equinox of date (Meeus ch. 21; once per whole day, < 0.2 arcsec a day); nutation and the
+    source's annual aberration are left out (each < 0.006 deg; 0.015 deg at most against
+    astropy), far below any sun-avoidance limit (sites use 15 to over 40 deg; common practice).
+
+    References
+    ----------
+    Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 17, 21, 25.
+    """
+    days = np.atleast_1d(_days_since_j2000(times_utc)).ravel()
+    ra = np.atleast_1d(np.asarray(ra_deg, dtype=float)).ravel()[None, :]
+    dec = np.atleast_1d(np.asarray(dec_deg, dtype=float)).ravel()[None, :]
+    finite = np.isfinite(days)
+    whole_days, inverse = np.unique(np.floor(np.where(finite, days, 0.0)), return_inverse=True)
+    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)          # (d, m)
+    sun_ra, sun_dec, _r, _eqeq = _sun_equatorial_fast(days)
+    inverse = inverse.ravel()
+    d_sun, d_src = np.radians(sun_dec)[:, None], np.radians(dec_day)
+    # cos(sep) = sin d1 sin d2 + cos d1 cos d2 cos(a1 - a2): one cosine per (time, source);
+    # in float64 arccos keeps ~1e-6 deg even at a separation of 0.01 deg
+    cos_sep = np.cos(np.radians(sun_ra)[:, None] - np.radians(ra_day)[inverse])
+    cos_sep *= np.cos(d_sun) * np.cos(d_src)[inverse]
+    cos_sep += np.sin(d_sun) * np.sin(d_src)[inverse]
+    np.clip(cos_sep, -1.0, 1.0, out=cos_sep)
+    out = np.degrees(np.arccos(cos_sep, out=cos_sep), out=cos_sep)
+    out[~finite] = np.nan
+    return out

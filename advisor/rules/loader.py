@@ -39,7 +39,7 @@ from advisor.errors import RulesError
 from advisor.io.bundled import default_rule_files
 from advisor.io.yamlio import load_yaml, parse_yaml_text
 from advisor.rules.lint import Field, LintReport, Problem, ValueLint, close_match, did_you_mean, sorted_problems
-from advisor.rules.ruleset import MAX_RULES, REQUIRED_KEYS, RULE_KEYS, Rule, RuleSet
+from advisor.rules.ruleset import MAX_RULES, REQUIRED_KEYS, RULE_KEYS, Rule, RuleSet, limit_texts
 from advisor.vocabulary import EFFECTS
 
 __all__ = ["load_rules", "lint_files", "lint_texts", "rule_layers", "default_rule_files", "RulesRejected"]
@@ -83,12 +83,25 @@ class _Merged:
     enabled: bool = True
 
 
+#: Target features that are site limits: a message showing one should read it in its condition.
+_SITE_LIMITS = ("hf_wind_limit_ms", "high_frequency_min_ghz", "required_surface_rms_um")
+#: A number followed by a unit in a message's literal text ("4.0 m/s", "5 °C", "72 h").
+_NUMBER_WITH_UNIT = re.compile(r"(?<![\w.{])(-?\d+(?:\.\d+)?)\s?(?:m/s|kn|°C/h|°C|degC|km|mm/h|µm|um|GHz|W/m²|W/m2|"
+                               r"%|h\b|min\b|m\b)")
+
+
+def _number(text: str) -> float:
+    match = re.match(r"\s*(-?\d+(?:\.\d+)?(?:[eE][-+]?\d+)?)", text)
+    return float(match.group(1)) if match else float("nan")
+
+
 class _Loader:
     """Reads documents into entries, layers them by id and builds the rule set."""
 
     def __init__(self, catalogue: Mapping[str, FeatureSpec],
                  domains: Mapping[str, tuple[float, float, str]] | None) -> None:
         self.lint = ValueLint(catalogue, domains)
+        self.catalogue = catalogue
         self.add = self.lint.add
         self.at_field = self.lint.at_field
         self.merged: dict[str, _Merged] = {}
@@ -230,10 +243,45 @@ class _Loader:
                     err = None
             if not all(f.ok for f in m.fields.values()):
                 continue
+            self.check_message_thresholds(m)
             rules.append(self.build(m, err))
         if any(p.severity == "error" for p in self.lint.problems):
             return None
         return RuleSet(tuple(rules), tuple(self.files), tuple(disabled))
+
+    def check_message_thresholds(self, m: _Merged) -> None:
+        """A merged rule's message against its condition: no threshold the condition does not use.
+
+        ``{limit_k}`` beyond the condition's numbers is an error; a site limit named in the message
+        but not read by the condition, or a number with a unit written into the message that the
+        condition does not contain, is a warning (an override of the condition would leave it stale).
+        """
+        rid, message, cond = m.rid, m.fields["message"], m.fields["condition"].compiled
+        if cond is None or not isinstance(message.value, str):
+            return
+        text = message.value
+        limits = limit_texts(cond)
+        for match in re.finditer(r"\{(limit(?:_(\d+))?)[:}]", text):
+            k = int(match.group(2) or 1)
+            if k > len(limits):
+                self.at_field("error", message, rid, f"'{{{match.group(1)}}}' but the condition has "
+                              f"{len(limits)} number(s)", "number the condition's thresholds from {limit}",
+                              offset=match.start())
+        read = cond.names
+        for match in re.finditer(r"\{([a-z_][a-z0-9_]*)[:}]", text):
+            name = match.group(1)
+            spec = self.catalogue.get(name)
+            if spec is not None and spec.scope == "target" and name in _SITE_LIMITS and name not in read:
+                self.at_field("warning", message, rid, f"the message shows {name}, which the condition does not "
+                              "read: it can state a limit the rule no longer uses",
+                              "write {limit} for the condition's own threshold", offset=match.start())
+        numbers = {_number(t) for t in limits}
+        literal = re.sub(r"\{[^{}]*\}", lambda mt: " " * len(mt.group(0)), text)
+        for match in _NUMBER_WITH_UNIT.finditer(literal):
+            if float(match.group(1)) not in numbers:
+                self.at_field("warning", message, rid, f"the message says '{match.group(0).strip()}', a number the "
+                              "condition does not contain", "write {limit} (the condition's first number) so "
+                              "the message follows the condition", offset=match.start())
 
     def build(self, m: _Merged, err: Field | None) -> Rule:
         f = m.fields
@@ -261,7 +309,7 @@ def lint_files(files: Iterable[tuple[Path | str, str]], catalogue: Mapping[str, 
     for path, layer in files:
         source = str(path)
         try:
-            load_yaml(path, RulesError)          # size, encoding, tabs, tags, aliases, syntax
+            load_yaml(path, RulesError, duplicate_keys=False)  # size, encoding, tabs, tags, aliases, syntax
             text = Path(path).read_text(encoding="utf-8")
         except RulesError as exc:
             linter.files.append(source)
@@ -282,7 +330,7 @@ def lint_texts(documents: Iterable[tuple[str, str, str]], catalogue: Mapping[str
     linter = _Loader(catalogue, domains)
     for text, source, layer in documents:
         try:
-            parse_yaml_text(text, source, RulesError)
+            parse_yaml_text(text, source, RulesError, duplicate_keys=False)
         except RulesError as exc:
             linter.files.append(source)
             linter.add("error", exc.message, source, exc.line, exc.column, exc.field, exc.hint)

@@ -26,6 +26,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from advisor.rules.compiler import Compiled
+from advisor.rules.nodes import Number, iter_nodes
 
 __all__ = ["Rule", "RuleSet", "RuleEvaluation", "format_message", "message_fields",
            "RULE_KEYS", "REQUIRED_KEYS", "MAX_RULES", "MESSAGE_EXTRAS"]
@@ -36,8 +37,25 @@ RULE_KEYS = ("id", "applies_to", "condition", "effect", "error_um", "message", "
 REQUIRED_KEYS = ("id", "applies_to", "condition", "effect", "message")
 #: Most rules in one file.
 MAX_RULES = 2000
+#: Most thresholds a message can name: ``{limit}`` (the condition's first number, as written),
+#: ``{limit_2}`` ... ``{limit_9}``.
+MAX_LIMITS = 9
+LIMIT_FIELDS = ("limit", *(f"limit_{k}" for k in range(2, MAX_LIMITS + 1)))
 #: Non-feature values a message may name.
-MESSAGE_EXTRAS = ("calibrator_name",)
+MESSAGE_EXTRAS = ("calibrator_name", *LIMIT_FIELDS)
+_UNIT_WORDS = (("delta_degC", "°C"), ("degC/h", "°C/h"), ("degC", "°C"), ("degF", "°F"), ("deg", "°"), ("um", "µm"))
+
+
+def limit_texts(condition: Compiled) -> tuple[str, ...]:
+    """The numbers of a condition as written, in reading order ("8 m/s", "2 °C/h", "97 %")."""
+    numbers = sorted((n for n in iter_nodes(condition.ast) if isinstance(n, Number)), key=lambda n: n.start)
+    texts = []
+    for node in numbers:
+        text = " ".join(node.text_in(condition.source).split())
+        for word, shown in _UNIT_WORDS:
+            text = re.sub(rf"(?<![A-Za-z_/]){re.escape(word)}(?![A-Za-z_])", shown, text)
+        texts.append(text)
+    return tuple(texts)
 
 
 @dataclass(frozen=True)
@@ -62,6 +80,15 @@ class Rule:
     def applies(self, method: str) -> bool:
         """Whether the rule concerns ``method`` (``scan`` or ``astronomical``)."""
         return self.applies_to in (method, "both")
+
+    def limit_values(self) -> dict[str, str]:
+        """``{limit}``, ``{limit_2}``, ... of the message: the condition's numbers as written, so a
+        message can never show a threshold the condition no longer uses."""
+        return dict(zip(LIMIT_FIELDS, limit_texts(self.condition)))
+
+    def message_for(self, values: Mapping[str, Any]) -> str:
+        """The message filled with one row's values and the rule's own thresholds."""
+        return format_message(self.message, {**values, **self.limit_values()})
 
 
 @dataclass(frozen=True)

@@ -11,8 +11,11 @@ from advisor.catalogue import CATALOGUE
 from advisor.decision import Call
 from advisor.views.context import CAUTIONS, Context
 
-#: 2: every candidate carries ``extrapolated`` (the site model's odds lie outside its training range).
-SCHEMA_VERSION = 2
+#: 2: verdict ``no_correction`` (exit 13); candidates carry ``meets_requirement`` and
+#: ``requirement_margin_um``; ``blocked_by`` lists every block (rules, efficiency.min, target.unreachable,
+#: model.<method>, data).
+#: 3: every candidate carries ``extrapolated`` (the site model's odds lie outside its training range).
+SCHEMA_VERSION = 3
 
 
 def json_number(value, digits: int = 4):
