@@ -398,3 +398,12 @@ def test_a_long_feed_is_read_from_its_tail_only_when_the_tail_covers_the_time(mo
         got = attempts.weather_at(feed.frame, pd.DatetimeIndex([at]), site)
         want = attempts.weather_at(whole.frame, pd.DatetimeIndex([at]), site)
         pd.testing.assert_frame_equal(got, want)
+
+
+def test_model_show_never_draws_over_the_model(capsys, tmp_path):
+    model = tmp_path / "model.json"
+    shutil.copy(DEMO / "larch_basin_model.json", model)
+    before = model.read_bytes()
+    status, out, err = run_cli(capsys, "model", "show", model, "--svg", model)
+    _one_error_line(status, out, err, "--svg", "would destroy the input")
+    assert model.read_bytes() == before

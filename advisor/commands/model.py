@@ -296,9 +296,10 @@ def cmd_model_show(args: argparse.Namespace) -> int:
         lines.extend(_coefficient_lines(m))
         lines.extend(_dropped_lines(m.metrics))
     if args.svg:
-        from advisor.io.fileio import atomic_write_text
+        from advisor.io.fileio import atomic_write_text, refuse_overwrite
         from advisor.views.model_svg import model_svg
 
+        refuse_overwrite(args.svg, {"MODEL.json": args.path}, "--svg")
         try:
             atomic_write_text(Path(args.svg), model_svg(model, title=Path(args.path).name))
         except OSError as exc:
