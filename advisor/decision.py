@@ -74,6 +74,10 @@ class Decisions:
     site: Site
     model_notes: dict[str, list] = field(default_factory=dict)
     best_surface_rms_um: dict[str, float] = field(default_factory=dict)
+    #: method → per-row mask: the site model's odds are extrapolated (a term outside its training range)
+    model_extrapolated: dict[str, np.ndarray] = field(default_factory=dict)
+    #: method → per-row sentence naming what lies outside the training range (None inside)
+    model_extrapolation: dict[str, list] = field(default_factory=dict)
 
     def blocking(self, method: str) -> dict[str, np.ndarray]:
         """Block id → mask of the rows where it blocks ``method``: rules first, then the others."""
@@ -178,7 +182,8 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
 
     ``odds`` is the seam for the site classifier: method → probability of a usable result per
     row (NaN where unknown), optionally with ``notes`` (method → per-row text naming what pushed
-    the odds most), which become ``Decisions.model_notes``.  Without it, candidates carry
+    the odds most), which become ``Decisions.model_notes``, and ``extrapolated``/``extrapolation``
+    (method → per-row mask and sentence: the odds lie outside what the model was trained on).  Without it, candidates carry
     ``p_usable = NaN`` and the decision rests on rules and the error budget alone.
     """
     n = len(features)
@@ -226,7 +231,9 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
     verdict[data_bad] = "undetermined"
     # An odds mapping may carry per-row explanations (advisor.model.inference.ModelOdds.notes).
     return Decisions(features, dict(targets), verdict, candidates, rule_eval, rules, site,
-                     dict(getattr(odds, "notes", None) or {}), best)
+                     dict(getattr(odds, "notes", None) or {}), best,
+                     model_extrapolated=dict(getattr(odds, "extrapolated", None) or {}),
+                     model_extrapolation=dict(getattr(odds, "extrapolation", None) or {}))
 
 
 def _odds_text(p: float) -> str:
@@ -322,6 +329,10 @@ def explain(decisions: Decisions, i: int) -> Call:
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
             if note:
                 reasons.append(Reason(f"model.{method}", method, "info", note))
+        for warning in decisions.model_extrapolation.get(method, [])[i:i + 1]:
+            if warning:
+                reasons.append(Reason(f"model.{method}", method, "warn", warning))
+        extrapolated = decisions.model_extrapolated.get(method)
         cands[method] = {
             "feasible": bool(c.feasible[i]) and verdict != "undetermined",
             "surface_rms_um": None if not np.isfinite(rms) else round(rms, 1),
@@ -329,6 +340,7 @@ def explain(decisions: Decisions, i: int) -> Call:
             "meets_requirement": bool(c.meets_requirement[i]) if np.isfinite(rms) else None,
             "requirement_margin_um": None if not np.isfinite(rms) else round(targets["required_surface_rms_um"] - rms, 1),
             "p_usable": None if not np.isfinite(p) else round(p, 4),
+            "extrapolated": bool(extrapolated[i]) if extrapolated is not None and np.isfinite(p) else False,
             "duration_min": c.duration_min,
             "blocked_by": decisions.blocked_by(method, i),
         }

@@ -32,7 +32,8 @@ COMMANDS = readme_commands()
 
 def test_readme_shows_the_everyday_commands():
     shown = " ".join(COMMANDS)
-    for sub in ("check", "reference add", "reference list", "outlook", "replay", "train", "model show",
+    for sub in ("check", "reference add", "reference list", "attempt add", "attempt list", "outlook", "replay",
+                "train", "model show",
                 "rules lint", "rules show", "rules explain", "rules features"):
         assert f"advisor {sub}" in shown, sub
 
@@ -45,10 +46,14 @@ def test_readme_command_runs(command, monkeypatch, tmp_path, capsys):
     if ">" in argv:  # shell redirection: keep the command, drop the target
         argv = argv[: argv.index(">")]
     if "--svg" in argv:
-        argv[argv.index("--svg") + 1] = str(tmp_path / "outlook.svg")
+        argv[argv.index("--svg") + 1] = str(tmp_path / "picture.svg")
     if argv[:2] == ["model", "show"]:
         assert main(["train", "--history", "example_weather/larch_basin_history.csv",
                      "--out", str(tmp_path / "model.json")]) == 0
+    if argv[:2] == ["attempt", "list"]:
+        assert main(["attempt", "add", "--history", str(tmp_path / "attempts.csv"), "--method", "scan",
+                     "--feed", "example_weather/larch_basin_mast.csv", "--usable", "yes",
+                     "--time", "2026-11-30T03:10:00Z"]) == 0
     if argv[:2] == ["reference", "list"]:
         main(["reference", "add", "--references", str(tmp_path / "refs.csv"), "--time", "2026-11-30T03:10:00Z",
               "--air-temp-c", "-3.2"])

@@ -26,12 +26,16 @@ def cmd_check(args: argparse.Namespace) -> int:
     from advisor.views.plain import render_plain
 
     result = session.run_check(session.request_from(args))
-    if args.json:
-        print(json.dumps(to_json_dict(result.call, result.ctx, result.status), indent=2, allow_nan=False))
-    elif session.want_color(sys.stdout):
-        from rich.console import Console
 
-        Console().print(render_panel(result.call, result.ctx))
-    else:
-        sys.stdout.write(render_plain(result.call, result.ctx))
+    def write() -> None:
+        if args.json:
+            print(json.dumps(to_json_dict(result.call, result.ctx, result.status), indent=2, allow_nan=False))
+        elif session.want_color(sys.stdout):
+            from rich.console import Console
+
+            Console().print(render_panel(result.call, result.ctx))
+        else:
+            sys.stdout.write(render_plain(result.call, result.ctx))
+
+    session.emit(write)  # the exit status is the call's whatever happens to stdout
     return result.status

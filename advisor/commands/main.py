@@ -33,6 +33,7 @@ class Command(NamedTuple):
 COMMANDS = (
     Command("check", "check", "the call for one instant (default: now)"),
     Command("reference", "reference", "the reference-scan registry"),
+    Command("attempt", "attempt", "record and list the site's attempts (outcome and the weather at the time)"),
     Command("rules", "rules", "lint, show and explain the rule set"),
     Command("replay", "replay", "replay an archive: hours per verdict, scores against attempts, rule-set changes"),
     Command("tick", "tick", "one cron/timer run: keep the advisory in a state dir, speak only on change"),

@@ -179,7 +179,42 @@ def missing_action(parser: argparse.ArgumentParser) -> int:
 
 def want_color(stream) -> bool:
     """Colour only on a terminal, and never with ``NO_COLOR`` set."""
-    return stream.isatty() and "NO_COLOR" not in os.environ
+    try:
+        return stream.isatty() and "NO_COLOR" not in os.environ
+    except (ValueError, OSError, AttributeError):  # a closed stdout (None when the shell closed it)
+        return False
+
+
+def emit(write) -> bool:
+    """Run ``write()`` (which prints the command's output); False when stdout could not take it.
+
+    A closed pipe (``check ... | true``), a closed or full stdout never changes a command's exit
+    status: the call's status is what scripts rely on.  A closed pipe is silent; any other
+    failure to write says so on stderr.  Stdout is then pointed at the null device so that
+    Python's final flush cannot fail again.
+    """
+    import sys
+
+    if sys.stdout is None:  # started with stdout closed: nothing can be written
+        return False
+    try:
+        write()
+        sys.stdout.flush()
+        return True
+    except BrokenPipeError:
+        pass
+    except (OSError, ValueError) as exc:
+        try:
+            print(f"advisor: warning: could not write to stdout ({exc}); the exit status still gives the call",
+                  file=sys.stderr)
+        except (OSError, ValueError):
+            pass
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):
+        pass
+    return False
 
 
 # --------------------------------------------------------------------------- the request
@@ -262,7 +297,7 @@ def model_for(choice: str | None, site: Site, notes: list[str],
     path = Path(choice) if choice is not None else site.model_path
     if path is None:
         return None
-    from advisor.model.inference import load_model
+    from advisor.model.modelfile import load_model
 
     try:
         model = load_model(path)

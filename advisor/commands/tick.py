@@ -115,7 +115,7 @@ def cmd_tick(args) -> int:
                       "exit_status": result.status, "change": change.kind, "reasons": list(change.state.reasons),
                       "data_age_min": doc["data_quality"].get("data_age_min"),
                       "target_freq_ghz": call.freq_ghz, "undetermined_ticks": change.state.undetermined_ticks,
-                      "pid": os.getpid()}
+                      **advisory.conditions(call), "pid": os.getpid()}
             for warning in statedir.publish(state_dir, files, record, site.tick.history_max_bytes):
                 _warn(warning)
     except statedir.Busy as exc:

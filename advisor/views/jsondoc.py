@@ -14,9 +14,10 @@ from advisor.views.context import CAUTIONS, Context
 #: 2: verdict ``no_correction`` (exit 13); candidates carry ``meets_requirement`` and
 #: ``requirement_margin_um``; ``blocked_by`` lists every block (rules, efficiency.min, target.unreachable,
 #: model.<method>, data).
-#: 3: ``look_ahead`` (session length, how long each correction holds, until when a postpone lasts, the
+#: 3: every candidate carries ``extrapolated`` (the site model's odds lie outside its training range).
+#: 4: ``look_ahead`` (session length, how long each correction holds, until when a postpone lasts, the
 #: forecast against the latest observation); the choice between methods follows the session's economics.
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 
 
 def json_number(value, digits: int = 4):
