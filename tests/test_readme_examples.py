@@ -34,7 +34,7 @@ def test_readme_shows_the_everyday_commands():
     shown = " ".join(COMMANDS)
     for sub in ("check", "reference add", "reference list", "attempt add", "attempt list", "outlook", "replay",
                 "train", "model show",
-                "rules lint", "rules show", "rules explain", "rules features"):
+                "rules lint", "rules show", "rules explain", "rules features", "plan"):
         assert f"advisor {sub}" in shown, sub
 
 
