@@ -90,7 +90,7 @@ class Correction:
 class Alternative:
     """One way to spend the session, priced like the plan."""
 
-    key: str                                  # plan | <method>_now | wait_<method> | no_correction
+    key: str                                  # plan | optional | <method>_now | wait_<method> | no_correction
     label: str
     corrections: tuple[tuple[str, pd.Timestamp], ...]
     efficiency: float | None                  # √(expected mean of η² over the session); None: not possible
@@ -237,7 +237,9 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
         rows[np.arange(n)[None, :] < (end - 1)[:, None]] = 0.0                          # before the correction
         gain[state_index(m, 0, n) + end] = rows
 
-    problem = Problem(gain, start_ok, p_success, steps_of, tail, min_gain=MIN_GAIN_MIN / (n * step_min))
+    # a step observed below the site's minimum efficiency is not worth observing: it counts as lost
+    problem = Problem(gain, start_ok, p_success, steps_of, tail, min_gain=MIN_GAIN_MIN / (n * step_min),
+                      lost_below=site.thresholds.min_ruze_efficiency ** 2)
     policy = solve(problem)
     actions, states = success_path(problem, policy)
     uncorrected_known = uncorrected is not None
@@ -253,11 +255,13 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
 
     tz = ZoneInfo(site.time_zone)
     if verdict == "no_correction":
-        best = price("plan", "the plan (no correction needed)", [], np.full_like(policy, NO_ACTION))
+        # the requirement is met without a correction; the best schedule is still priced, as an option
+        alternatives = [price("plan", "the plan (no correction needed)", [], np.full_like(policy, NO_ACTION))]
+        if actions:
+            alternatives.append(price("optional", "optional: the best schedule", [], policy))
         actions, states = [], np.zeros(n, dtype=np.int64)
     else:
-        best = price("plan", "the plan", [], policy)
-    alternatives = [best]
+        alternatives = [price("plan", "the plan", [], policy)]
     for m, method in enumerate(METHODS):
         label = PLAN_LABEL[method]
         if start_ok[m, 0]:
@@ -382,9 +386,16 @@ def _headline(verdict, corrections, alternatives, decisions, targets, site, time
     if verdict == "undetermined":
         return "No plan: the weather data cannot support one for this session (missing, stale or implausible)."
     if verdict == "no_correction":
-        return (f"No correction needed at {freq:g} GHz for the whole session: the uncorrected surface "
+        text = (f"No correction needed at {freq:g} GHz for the whole session: the uncorrected surface "
                 f"({site.astronomical.uncorrected_surface_rms_um:.0f} µm) meets λ/{targets['surface_requirement_fraction']:g}"
                 f" = {targets['required_surface_rms_um']:.0f} µm.")
+        option = next((a for a in alternatives if a.key == "optional"), None)
+        if option is not None and option.efficiency and best.efficiency:
+            first_method, first_time = option.corrections[0]
+            text += (f" Optional: {PLAN_LABEL[first_method]} at {first_time.tz_convert(tz):%H:%M} would raise the "
+                     f"session efficiency from {best.efficiency:.2f} to {option.efficiency:.2f} "
+                     f"({(best.efficiency / option.efficiency) ** 2:.2f}× the integration time).")
+        return text
     if verdict == "not_possible":
         blocks: dict[str, int] = {}
         for method in METHODS:

@@ -60,6 +60,8 @@ class Problem:
         Fraction of its last step left for observing (steps − duration/step).
     min_gain : float
         Least gain in value for which an action is taken.
+    lost_below : float
+        A step observed with a gain at or below this counts as lost time (not worth observing).
     """
 
     gain: np.ndarray
@@ -68,6 +70,7 @@ class Problem:
     steps: np.ndarray
     tail: np.ndarray
     min_gain: float = 0.0
+    lost_below: float = 0.0
 
     @property
     def n(self) -> int:
@@ -83,7 +86,7 @@ class Outcome:
     """Expected figures of a policy."""
 
     value: float               # expected mean of the gains over the session
-    lost_steps: float          # expected steps without useful observing (correcting, or no gain)
+    lost_steps: float          # expected steps without useful observing (correcting, or gain <= lost_below)
     corrections: float         # expected number of corrections started
 
 
@@ -126,7 +129,7 @@ def evaluate(problem: Problem, policy: np.ndarray, initial_state: int = 0) -> Ou
         mass = prob[i]
         watch = (policy[i] == NO_ACTION) & (mass > 0)
         value += float(mass[watch] @ g[watch, i])
-        lost += float(mass[watch] @ (problem.gain[watch, i] <= 0))
+        lost += float(mass[watch] @ (problem.gain[watch, i] <= problem.lost_below))
         prob[i + 1, watch] += mass[watch]
         for m in range(problem.methods):
             sel = (policy[i] == m) & (mass > 0)
@@ -136,8 +139,8 @@ def evaluate(problem: Problem, policy: np.ndarray, initial_state: int = 0) -> Ou
             p, f = float(problem.p_success[m, i]), float(problem.tail[m])
             total = float(mass[sel].sum())
             value += p * total * f * g[target, end - 1] + (1.0 - p) * f * float(mass[sel] @ g[sel, end - 1])
-            idle_tail = p * total * (problem.gain[target, end - 1] <= 0) + (1.0 - p) * float(
-                mass[sel] @ (problem.gain[sel, end - 1] <= 0))
+            idle_tail = p * total * (problem.gain[target, end - 1] <= problem.lost_below) + (1.0 - p) * float(
+                mass[sel] @ (problem.gain[sel, end - 1] <= problem.lost_below))
             lost += total * (int(problem.steps[m]) - f) + f * idle_tail
             corrections += total
             prob[end, target] += p * total
