@@ -323,3 +323,26 @@ def test_bad_plan_options_are_one_line_exit_2(capsys, bad):
     status, out, err = run_cli(capsys, "plan", *bad)
     assert status == 2 and out == ""
     assert err.startswith("advisor: error:") and len(err.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("start", ["2026-12-01T03:00:00Z", "2026-12-01T09:00:00Z", "2026-12-01T15:00:00Z",
+                                   "2026-12-01T20:00:00Z", "2026-12-01T23:00:00Z", "2026-12-02T06:00:00Z"])
+def test_demo_plans_at_several_times_of_day_beat_every_simple_alternative(start):
+    """On the demo forecast (invented): whatever the time of day, the plan is at least as good as
+    each alternative priced the same way, and only plans corrections where the method can be done."""
+    from advisor.commands import session
+
+    request = session.Request()
+    inputs = session.load_inputs(request, read="whole")
+    frame, _ = session.with_site_forecast(inputs, request, [])
+    plan = compute_plan(frame, pd.Timestamp(start), 6.0, inputs.site, inputs.registry, inputs.rules, 86.0,
+                        odds=inputs.odds)
+    best = plan.alternatives[0]
+    one_minute = 1.0 / (len(plan.steps) * plan.step_min)               # the least gain an action must bring
+    for alternative in plan.alternatives[1:]:
+        if alternative.efficiency is not None:
+            assert best.efficiency**2 >= alternative.efficiency**2 - 2 * one_minute, alternative.label
+    steps = plan.steps.set_index("time")
+    for c in plan.corrections:
+        assert steps.loc[c.start_utc, f"{c.method}_can_start"]
+        assert c.end_utc <= plan.end_utc
