@@ -23,6 +23,7 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
+from advisor.fmt import duration_text, freq_text, odds_text
 from advisor.vocabulary import EXIT_CODES, METHOD_LABEL, METHODS, VERDICTS  # noqa: F401 (re-exported)
 from advisor.physics.aperture import root_sum_square, ruze_efficiency
 from advisor.rules.ruleset import RuleEvaluation, RuleSet, format_message
@@ -157,15 +158,6 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
                      dict(getattr(odds, "notes", None) or {}))
 
 
-def _odds_text(p: float) -> str:
-    """A probability as a percentage that never rounds to a misleading 0 % or 100 %."""
-    if p < 0.01:
-        return "<1%"
-    if p > 0.99:
-        return ">99%"
-    return f"{p:.0%}"
-
-
 def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     """Why the data cannot support a call."""
     reasons = []
@@ -173,9 +165,9 @@ def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     if not np.isfinite(age):
         reasons.append(Reason("data", "both", "block", "No good weather sample at or before this time."))
     elif age > site.feed.max_feed_age_min:
-        age_text = f"{age:.0f} min" if age < 120 else f"{age / 60:.1f} h"
         reasons.append(Reason("data", "both", "block",
-                              f"Last good weather sample is {age_text} old (limit {site.feed.max_feed_age_min:.0f} min): "
+                              f"Last good weather sample is {duration_text(age)} old "
+                              f"(limit {duration_text(site.feed.max_feed_age_min)}): "
                               "the feed looks stale; the figures below are from that sample."))
     if not reasons:
         reasons.append(Reason("data", "both", "block",
@@ -211,15 +203,18 @@ def explain(decisions: Decisions, i: int) -> Call:
         c = decisions.candidates[method]
         rms, eta, p = float(c.surface_rms_um[i]), float(c.ruze_efficiency[i]), float(c.p_usable[i])
         label = METHOD_LABEL[method]
-        if np.isfinite(rms):
-            msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq:g} GHz "
-                   f"(λ/16 = {req:.0f} µm)")
-            if np.isfinite(rms) and eta < th.min_ruze_efficiency:
-                msg += f"; below the site minimum {th.min_ruze_efficiency:.2f}"
-            reasons.append(Reason(f"budget.{method}", method, "info", msg))
+        if np.isfinite(rms) and eta < th.min_ruze_efficiency:    # infeasible: says so first
+            reasons.append(Reason(f"budget.{method}", method, "block",
+                                  f"{label}: Ruze efficiency {eta:.2f} is below the site minimum "
+                                  f"{th.min_ruze_efficiency:.2f} (expected {rms:.0f} µm rms at {freq_text(freq)}; "
+                                  f"λ/16 = {req:.0f} µm)"))
+        elif np.isfinite(rms):
+            reasons.append(Reason(f"budget.{method}", method, "info",
+                                  f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at "
+                                  f"{freq_text(freq)} (λ/16 = {req:.0f} µm)"))
         if np.isfinite(p) and p < th.min_p_usable:
             reasons.append(Reason(f"model.{method}", method, "block",
-                                  f"{label}: site model gives only {_odds_text(p)} odds of a usable result "
+                                  f"{label}: site model gives only {odds_text(p)} odds of a usable result "
                                   f"(threshold {th.min_p_usable:.0%})"))
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
             if note:

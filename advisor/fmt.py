@@ -29,7 +29,7 @@ import pandas as pd
 
 __all__ = ["sig", "fixed", "freq_text", "wavelength_text", "freq_wave_text", "duration_text", "hours_text",
            "plural", "percent", "odds_text", "local_utc", "span_text", "utc_iso", "tz_abbrev", "NBSP",
-           "C_LIGHT_M_S", "keep_units", "wrap"]
+           "C_LIGHT_M_S", "keep_units", "wrap", "no_minus_zero", "same_local_day"]
 
 #: A non-breaking space: keeps a number and its unit on one line in wrapped text and HTML.
 NBSP = "\u00a0"
@@ -49,6 +49,14 @@ def _unsigned_zero(text: str) -> str:
     if text.startswith("-") and text[1:].replace(".", "").replace("0", "") == "":
         return text[1:]
     return text
+
+
+_MINUS_ZERO = re.compile(r"(?<![\d.])-(0(?:\.0+)?)(?![\d.])")
+
+
+def no_minus_zero(text: str) -> str:
+    """Every ``-0``/``-0.0`` in ``text`` without its sign (``spread ≥ -0.0 °C`` → ``spread ≥ 0.0 °C``)."""
+    return _MINUS_ZERO.sub(r"\1", text)
 
 
 def fixed(value, decimals: int = 1, missing: str = "n/a") -> str:
@@ -177,6 +185,12 @@ def local_utc(ts: pd.Timestamp, tz: str, with_date: bool = True, year: bool = Fa
     return f"{head} {local:%Z} ({utc_part} UTC)"
 
 
+def same_local_day(a: pd.Timestamp, b: pd.Timestamp, tz: str) -> bool:
+    """Whether ``a`` and ``b`` fall on the same calendar day in ``tz``."""
+    zone = ZoneInfo(tz)
+    return pd.Timestamp(a).tz_convert(zone).date() == pd.Timestamp(b).tz_convert(zone).date()
+
+
 def span_text(start: pd.Timestamp, end: pd.Timestamp, tz: str) -> str:
     """A period in local time with UTC beside: ``1 Dec 10:00 → 11:50 MST (17:00 → 18:50 UTC)``,
     ``30 Nov 20:00 → 1 Dec 00:20 MST (03:00 → 07:20 UTC)``; dates only where they change."""
@@ -199,9 +213,13 @@ _UNIT_AFTER_NUMBER = re.compile(
     r"(?<=\d) (?=(?:µm|m/s|°C/h|°C|GHz|MHz|mm/h|mm|cm|min|h|d|km|m|%|hPa|W/m²|arcsec|s|UTC|[A-Z]{3,4})(?=[\s,;:.)\]]|$))")
 
 
+_DURATION_PARTS = re.compile(r"(?<=\d[\u00a0 ][dh]) (?=\d+[\u00a0 ](?:h|min)\b)")
+
+
 def keep_units(text: str) -> str:
-    """``text`` with a non-breaking space between each number and its unit (``199\u00a0µm``)."""
-    return _UNIT_AFTER_NUMBER.sub(NBSP, text)
+    """``text`` with a non-breaking space between each number and its unit (``199\u00a0µm``) and
+    within durations (``4 h 15 min``)."""
+    return _DURATION_PARTS.sub(NBSP, _UNIT_AFTER_NUMBER.sub(NBSP, text))
 
 
 def wrap(text: str, width: int, indent: str = "", first_indent: str = "") -> list[str]:

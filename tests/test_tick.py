@@ -117,10 +117,13 @@ def test_first_tick_writes_every_file_and_announces(capsys, site, state):
 def test_unchanged_verdict_is_silent_and_keeps_changed_since(capsys, site, state):
     tick(capsys, site, state)
     first = json.loads((state / "advisory.json").read_text())
-    status, out, err = tick(capsys, site, state)
+    later = (pd.Timestamp(AT) + pd.Timedelta(minutes=5)).strftime("%Y-%m-%dT%H:%M:%SZ")
+    status, out, err = tick(capsys, site, state, at=later)
     assert (status, out, err) == (0, "", "")
     doc = json.loads((state / "advisory.json").read_text())
-    assert doc["changed_since"] == first["changed_since"] and doc["issued_utc"] > first["issued_utc"]
+    # --at drives the advisory's clocks: issued is the evaluation time, since stays at the first run's
+    assert doc["changed_since"] == first["changed_since"] == first["issued_utc"] == AT.replace("Z", ".000Z")
+    assert doc["issued_utc"] == later.replace("Z", ".000Z")
     assert [h["change"] for h in history(state)] == ["first", None]
 
 
@@ -303,8 +306,8 @@ def test_history_rotates_at_the_configured_size(capsys, tmp_path, state):
     assert rotated and current
     assert (state / "history.jsonl").stat().st_size <= 1000
     assert (state / "history.jsonl.1").stat().st_size <= 1000
-    issued = [h["issued_utc"] for h in rotated + current]
-    assert issued == sorted(issued) and len(set(issued)) == len(issued)
+    written = [h["written_utc"] for h in rotated + current]   # the machine's clock (issued is --at's)
+    assert written == sorted(written) and len(set(written)) == len(written)
 
 
 def test_partial_history_line_from_a_crash_is_cut_and_reported(capsys, site, state):

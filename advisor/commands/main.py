@@ -27,7 +27,7 @@ from advisor.io.feed import CHECK_TAIL_BYTES, Feed, read_feed
 from advisor.evaluation.evaluate import evaluate
 from advisor.io.references import append_reference, parse_time_utc, read_registry
 from advisor.rules.ruleset import RuleSet, RulesRejected, default_rule_files, load_rules
-from advisor.io.site import Site, load_site
+from advisor.io.site import Site, is_demo_file, load_site
 
 EXIT_HELP = """exit status:
   0   scan            take a laser scan now
@@ -97,11 +97,12 @@ class Inputs:
     rules: RuleSet
     registry_path: Path | None
     freq_ghz: float
-    is_demo: bool
+    is_demo: bool                 # the demo site, feed or registry is in use (however named): show the banner
     notes: tuple[str, ...]
     model: object = None          # advisor.model.inference.SiteModel, or None: rules and error budget only
     feed_path: Path | None = None
     feed_layout: object = None    # advisor.io.site.FeedLayout used to read feed_path
+    demo_feed: bool = False       # the feed is the bundled demo feed: evaluate at its last sample by default
 
     @property
     def odds(self):
@@ -130,26 +131,27 @@ def load_inputs(args: argparse.Namespace, tail_bytes: int | None = None, read: b
     else:
         raise UsageError("no feed given and the site file names none", field="--feed",
                          hint="pass --feed FILE or set feed.path in the site file")
-    is_demo = site.is_demo and args.feed is None
+    registry_path = Path(args.references) if args.references else site.references_path
+    demo_feed = is_demo_file(feed_path)
+    is_demo = site.is_demo or demo_feed or is_demo_file(registry_path)
     layout = site.feed
-    if site.is_demo and args.feed is not None:
+    if site.is_demo and not demo_feed:
         # The demo logger's local time zone must not be guessed onto someone else's feed.
         layout = replace(layout, time_zone=None)
     feed = read_feed(feed_path, layout, tail_bytes=tail_bytes,
                      issue_time_column=site.forecast.issue_time_column) if read else None
-    registry_path = Path(args.references) if args.references else site.references_path
     rules = load_ruleset(site, args.rules)
     from advisor.commands.model import model_for_check
     model = model_for_check(getattr(args, "model", None), site, notes,
-                            demo_model_on_other_feed=site.is_demo and not is_demo)
-    return Inputs(site, feed, rules, registry_path, freq, is_demo, tuple(notes), model, feed_path, layout)
+                            demo_model_on_other_feed=site.is_demo and not demo_feed)
+    return Inputs(site, feed, rules, registry_path, freq, is_demo, tuple(notes), model, feed_path, layout, demo_feed)
 
 
 def _evaluation_time(args, inputs: Inputs) -> pd.Timestamp:
     at = parse_at(args.at)
     if at is not None:
         return at
-    if inputs.is_demo:
+    if inputs.demo_feed:
         observed = inputs.feed.frame[inputs.feed.frame["kind"] == "observed"]
         return observed["time"].iloc[-1]
     now = pd.Timestamp.now(tz="UTC")
@@ -212,14 +214,16 @@ def cmd_check(args: argparse.Namespace) -> int:
     from advisor.views.plain import render_plain
 
     result = run_check(args)
+    details = getattr(args, "details", False)
     if args.json:
         print(json.dumps(to_json_dict(result.call, result.ctx, result.status), indent=2, allow_nan=False))
     elif _want_color(sys.stdout):
         from rich.console import Console
 
-        Console().print(render_panel(result.call, result.ctx))
+        console = Console()
+        console.print(render_panel(result.call, result.ctx, console.width, console.height, details, result.status))
     else:
-        sys.stdout.write(render_plain(result.call, result.ctx))
+        sys.stdout.write(render_plain(result.call, result.ctx, details=details, status=result.status))
     return result.status
 
 
@@ -309,6 +313,9 @@ def build_parser() -> argparse.ArgumentParser:
                            epilog=EXIT_HELP, formatter_class=HelpFormatter)
     _add_evaluation_options(check)
     check.add_argument("--json", action="store_true", help="print one JSON object (stable schema, see README)")
+    check.add_argument("--details", action="store_true",
+                       help="every reason in full with its rule id, every key condition (default: a compact screen "
+                            "that fits 80x24)")
     check.set_defaults(func=cmd_check)
 
     ref = sub.add_parser("reference", help="the reference-scan registry",

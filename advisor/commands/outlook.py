@@ -118,7 +118,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
         frame = combine_frames(frame, fc.frame)
         sources.append(fc.source)
     if start is None:
-        if inputs.is_demo:
+        if getattr(inputs, "demo_feed", inputs.is_demo):
             observed = frame[frame["kind"] == "observed"]
             start = observed["time"].iloc[-1] if len(observed) else frame["time"].iloc[0]
         else:

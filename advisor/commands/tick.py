@@ -18,6 +18,9 @@ from pathlib import Path
 
 from advisor.commands.helpformat import HelpFormatter
 
+#: The notify command's output, in the state dir (never tick's own output: cron would mail it).
+NOTIFY_LOG = "notify.log"
+
 EXIT_HELP = """exit status:
   0   scan            take a laser scan now
   10  astronomical    use the astronomical method
@@ -29,7 +32,8 @@ EXIT_HELP = """exit status:
   1   internal error
 
 stdout is empty unless the advice changed (or --always), so cron mails only changes; warnings
-and errors go to stderr.  Advisory only - not a safety system."""
+and errors go to stderr; the notify command's output goes to DIR/notify.log.  Advisory only -
+not a safety system."""
 
 
 def add_parser(sub, add_evaluation_options) -> argparse.ArgumentParser:
@@ -91,8 +95,11 @@ def _without_feed(args, error):
     call = replace(call, reasons=[why] + [r for r in call.reasons if r.rule != "data"])
     quality = feed.quality.as_dict()
     quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
-    inputs = Inputs(site, feed, rules, registry_path, freq, False, ())
-    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=source, is_demo=False,
+    from advisor.io.site import is_demo_file
+
+    is_demo = site.is_demo or is_demo_file(args.feed) or is_demo_file(registry_path)
+    inputs = Inputs(site, feed, rules, registry_path, freq, is_demo, ())
+    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=source, is_demo=is_demo,
                   data_quality=quality, notes=())
     return CheckResult(call, ctx, EXIT_CODES[call.verdict], inputs)
 
@@ -136,7 +143,8 @@ def cmd_tick(args) -> int:
                 _warn(f"{state_dir}: removed {len(leftovers)} temp file(s) left by an interrupted run")
             result = _evaluate(args)
             call, site = result.call, result.inputs.site
-            now = datetime.now(timezone.utc)
+            # --at drives every clock the advisory shows: issued, since, and the state kept for the next run
+            now = call.time_utc.to_pydatetime() if args.at is not None else datetime.now(timezone.utc)
             previous, warning = statedir.read_state(state_dir, now, advisory.parse_state)
             if warning:
                 _warn(warning)
@@ -158,6 +166,7 @@ def cmd_tick(args) -> int:
                       "exit_status": result.status, "change": change.kind, "reasons": list(change.state.reasons),
                       "data_age_min": doc["data_quality"].get("data_age_min"),
                       "target_freq_ghz": call.freq_ghz, "undetermined_ticks": change.state.undetermined_ticks,
+                      "written_utc": advisory.utc_text(datetime.now(timezone.utc)),  # the machine's clock
                       "pid": os.getpid()}
             for warning in statedir.publish(state_dir, files, record, site.tick.history_max_bytes):
                 _warn(warning)
@@ -191,7 +200,8 @@ def cmd_tick(args) -> int:
         env = {"ADVISOR_VERDICT": call.verdict, "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
                "ADVISOR_CHANGE": change.kind, "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
                "ADVISOR_STATE_DIR": str(state_dir.resolve())}
-        problem = notify.run_notify(argv, payload, site.tick.notify_timeout_s, env)
+        problem = notify.run_notify(argv, payload, site.tick.notify_timeout_s, env,
+                                    log_path=state_dir / NOTIFY_LOG, issued=change.state.issued_utc)
         if problem:
             _warn(problem)
     return result.status

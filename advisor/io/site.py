@@ -8,6 +8,8 @@ line, and say what is expected) and returns a frozen :class:`Site`.  Paths insid
 
 from __future__ import annotations
 
+import functools
+import hashlib
 import re
 from dataclasses import dataclass, field
 import importlib
@@ -205,6 +207,44 @@ def demo_dir() -> Path:
 def demo_site_path() -> Path:
     """Path of the bundled demo site file."""
     return demo_dir() / "larch_basin.yaml"
+
+
+@functools.lru_cache(maxsize=1)
+def _demo_files() -> dict[int, tuple[Path, ...]]:
+    """The bundled demo files by size [bytes] (a copy is recognised by size, then by content)."""
+    by_size: dict[int, list[Path]] = {}
+    folder = demo_dir()
+    for path in sorted(folder.iterdir()) if folder.is_dir() else ():
+        if path.is_file() and path.suffix in (".yaml", ".csv", ".jsonl", ".json"):
+            by_size.setdefault(path.stat().st_size, []).append(path.resolve())
+    return {size: tuple(paths) for size, paths in by_size.items()}
+
+
+def is_demo_file(path: Path | str | None) -> bool:
+    """Whether ``path`` is one of the bundled invented demo files, however it is named: the file
+    itself (by resolved path, through any link) or a byte-identical copy of it."""
+    if path is None:
+        return False
+    try:
+        target = Path(path).resolve()
+        size = target.stat().st_size
+    except OSError:
+        return False
+    candidates = _demo_files().get(size, ())
+    if target in candidates:
+        return True
+    if not candidates:
+        return False
+    digest = _sha256(target)
+    return any(_sha256(c) == digest for c in candidates)
+
+
+def _sha256(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
 
 
 _ANGLE_HMS = re.compile(r"^\s*([+-]?\d+)[h:\s]\s*(\d+)[m:\s]\s*(\d+(?:\.\d*)?)s?\s*$")
@@ -446,7 +486,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
 
 def load_site(path: Path | str | None = None) -> Site:
     """Load and validate a site file; ``None`` loads the bundled demo site."""
-    is_demo = path is None
     path = demo_site_path() if path is None else Path(path)
+    is_demo = is_demo_file(path)
     data, lines = load_yaml(path, SiteError)
     return parse_site(data, lines, str(path), path.resolve().parent, is_demo=is_demo)

@@ -9,9 +9,12 @@ import numpy as np
 
 from advisor.catalogue import CATALOGUE
 from advisor.decision import Call
+from advisor.views.callparts import blocked_ids
 from advisor.views.context import CAUTIONS, Context
 
-SCHEMA_VERSION = 1
+#: 2: ``candidates[m].blocked_by`` lists every blocking reason against the method (rule ids and
+#: the decision's own ``data``, ``feed``, ``model.<m>``, ``budget.<m>``), not only blocking rules.
+SCHEMA_VERSION = 2
 
 
 def json_number(value, digits: int = 4):
@@ -38,7 +41,7 @@ def to_json_dict(call: Call, ctx: Context, exit_status: int) -> dict:
         "reasons": [r.as_dict() for r in call.reasons],
         "features": features,
         "calibrator": call.calibrator_name or None,
-        "candidates": call.candidates,
+        "candidates": {m: {**c, "blocked_by": blocked_ids(call, m)} for m, c in call.candidates.items()},
         "data_quality": ctx.data_quality,
         "next_window": ctx.next_window,
         "notes": list(ctx.notes),
