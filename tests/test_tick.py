@@ -376,3 +376,24 @@ def test_track_change_rules():
     assert later.kind is None and later.feed_looks_dead
     first_dead = track_change(None, "undetermined", (), now, 1, False)
     assert first_dead.kind == "first" and "feed looks dead" in first_dead.headline
+
+
+def test_notify_output_goes_to_its_own_log_not_into_cron_mail(capfd, tmp_path, state):
+    code = "import sys; sys.stdin.read(); print('NOTIFY-OUT'); print('NOTIFY-ERR', file=sys.stderr)"
+    site = make_site(tmp_path, tick=f"tick:\n  notify_command: [{json.dumps(sys.executable)}, '-c', {json.dumps(code)}]\n")
+    assert main(tick_argv(site, state)) == 0
+    out, err = capfd.readouterr()                  # what cron would mail: the advisory once, nothing of notify's
+    assert "NOTIFY" not in out + err and out.count("VERDICT: SCAN NOW") == 2   # verdict first and last line
+    log = (state / "notify.log").read_text()
+    assert log.startswith("--- 2026-01-16T04:00:00.000Z ") and "NOTIFY-OUT" in log and "NOTIFY-ERR" in log
+
+
+def test_at_drives_the_advisory_clocks(capsys, tmp_path, state):
+    site = make_site(tmp_path)
+    tick(capsys, site, state, at="2026-01-16T03:00:00Z")
+    tick(capsys, site, state, "--freq", "300", at="2026-01-16T03:30:00Z")   # the verdict changes here
+    tick(capsys, site, state, "--freq", "300", at="2026-01-16T04:00:00Z")
+    doc = json.loads((state / "advisory.json").read_text())
+    assert doc["issued_utc"] == "2026-01-16T04:00:00.000Z" and doc["changed_since"] == "2026-01-16T03:30:00.000Z"
+    text = (state / "advisory.txt").read_text()
+    assert text.startswith("Issued 2026-01-16 04:00:00 UTC") and "since 2026-01-16 03:30:00 UTC" in text

@@ -124,7 +124,7 @@ def cmd_tick(args) -> int:
     from advisor.commands.main import _want_color
     from advisor.evaluation import advisory
     from advisor.io import notify, statedir
-    from advisor.views.advisory import advisory_html, advisory_json, advisory_title, issued_line
+    from advisor.views.advisory import advisory_html, advisory_json, issued_line
     from advisor.views.context import with_note
     from advisor.views.jsondoc import to_json_dict
     from advisor.views.panel import render_panel
@@ -152,14 +152,13 @@ def cmd_tick(args) -> int:
                                            advisory.utc_text(now), site.tick.dead_feed_ticks, args.notify_on_reasons)
             ctx = with_note(result.ctx, advisory.dead_feed_note(change))
             doc = advisory_json(to_json_dict(call, ctx, result.status), change)
-            text = issued_line(change) + "\n" + render_plain(call, ctx)
-            panel = render_panel(call, ctx)
-            title = advisory_title(call.verdict, site.name)
-            html_panel = render_panel(call, result.ctx)  # the page shows the dead-feed note as a banner
+            text = issued_line(change) + "\n" + render_plain(call, ctx, status=result.status)
+            full_text = issued_line(change) + "\n" + render_plain(call, ctx, details=True, status=result.status)
             files = {
                 "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
-                "advisory.txt": text,
-                "advisory.html": advisory_html(html_panel, change, title, site.feed.max_feed_age_min),
+                "advisory.txt": full_text,
+                # the page shows the dead-feed note as a banner of its own
+                "advisory.html": advisory_html(call, result.ctx, change, site.feed.max_feed_age_min),
                 "state.json": json.dumps(change.state.as_dict(), indent=2) + "\n",
             }
             record = {"issued_utc": change.state.issued_utc, "time_utc": doc["time_utc"], "verdict": call.verdict,
@@ -187,7 +186,8 @@ def cmd_tick(args) -> int:
             from rich.console import Console
 
             print(headline)
-            Console().print(panel)
+            console = Console()
+            console.print(render_panel(call, ctx, console.width, console.height, status=result.status))
         else:
             sys.stdout.write(headline + "\n" + text)
         sys.stdout.flush()

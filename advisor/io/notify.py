@@ -18,8 +18,8 @@ def _open_log(log_path: Path | None, argv: tuple[str, ...], issued: str):
     try:
         if log_path.exists() and log_path.stat().st_size > LOG_MAX_BYTES:
             os.replace(log_path, log_path.with_name(log_path.name + ".1"))
-        log = open(log_path, "ab")
-        log.write(f"--- {issued} {' '.join(argv)}\n".encode("utf-8"))
+        log = open(log_path, "ab")  # noqa: SIM115 (handed to the child; closed by run_notify)
+        log.write(f"--- {issued} {' '.join(argv)}\n".encode())
         log.flush()
         return log
     except OSError:

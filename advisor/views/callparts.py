@@ -79,7 +79,7 @@ def blockers(call: Call, method: str) -> list[Reason]:
 def reason_name(rule: str) -> str:
     """A reason's id as words for a table cell: ``gusts_shake_structure`` → ``gusts shake structure``."""
     head = rule.split(".", 1)[0]
-    return _OWN_REASON_WORDS.get(head) if head in _OWN_REASON_WORDS else rule.replace("_", " ")
+    return _OWN_REASON_WORDS.get(head, rule.replace("_", " "))
 
 
 def blocked_names(call: Call, method: str) -> list[str]:

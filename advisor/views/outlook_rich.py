@@ -9,10 +9,20 @@ import os
 
 from advisor.evaluation.outlook import Outlook
 from advisor.views.context import CAUTIONS, Context
-from advisor.views.outlook_parts import (WIDE_TABLE_MIN, WINDOW_HEADERS, header_lines, next_window_lines,
-                                         span_lines, sun_text, tz_abbrev, window_list_lines, window_rows,
-                                         windows_heading)
+from advisor.views.outlook_parts import (
+    WIDE_TABLE_MIN,
+    WINDOW_HEADERS,
+    header_lines,
+    next_window_lines,
+    span_lines,
+    sun_text,
+    tz_abbrev,
+    window_list_lines,
+    window_rows,
+    windows_heading,
+)
 from advisor.views.outlook_strip import LABEL_W, legend_entries, strip_lines, wrap_entries
+from advisor.views.panel import feed_title
 from advisor.vocabulary import DEMO_BANNER, METHOD_LABEL
 
 #: Columns of the window table that hold numbers (right-aligned).
@@ -77,15 +87,72 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
     return Panel(Group(*parts), title=f"advisor outlook · {outlook.freq_ghz:g} GHz", title_align="left",
                  border_style="blue",
-                 subtitle=f"feed: {ctx.feed_source}", subtitle_align="left", width=width)
+                 subtitle=feed_title(ctx.feed_source, width), subtitle_align="left", width=width)
+
+
+#: The SVG around rich's drawing: the text area only (no imitation window, no title bar) and
+#: fonts the viewer already has (no font loaded from the network: control rooms are often offline).
+SVG_TEMPLATE = """<svg class="advisor-outlook" viewBox="0 0 {terminal_width} {terminal_height}" \
+xmlns="http://www.w3.org/2000/svg">
+<title>{title}</title>
+<style>
+.{unique_id}-matrix {{
+    font-family: "DejaVu Sans Mono", Menlo, Consolas, "Liberation Mono", monospace;
+    font-size: {char_height}px;
+    line-height: {line_height}px;
+    font-variant-east-asian: full-width;
+}}
+{styles}
+</style>
+<defs>
+<clipPath id="{unique_id}-clip-terminal">
+  <rect x="0" y="0" width="{terminal_width}" height="{terminal_height}" />
+</clipPath>
+{lines}
+</defs>
+<rect x="0" y="0" width="{terminal_width}" height="{terminal_height}" fill="{background}" />
+<g clip-path="url(#{unique_id}-clip-terminal)">
+{backgrounds}
+<g class="{unique_id}-matrix">
+{matrix}
+</g>
+</g>
+</svg>
+"""
 
 
 def outlook_svg(outlook: Outlook, ctx: Context) -> str:
-    """The coloured outlook as an SVG picture, wide enough for the whole strip on one row (100..200 columns)."""
+    """The coloured outlook as a self-contained SVG picture, wide enough for the whole strip on one
+    row (100..200 columns): the text area alone, in fonts the viewer has."""
+    import html
+
     from rich.console import Console
+    from rich.terminal_theme import SVG_EXPORT_THEME
 
     width = int(min(200, max(100, LABEL_W + len(outlook.steps) + 4)))
     with open(os.devnull, "w") as sink:
         console = Console(record=True, width=width, file=sink, force_terminal=True, color_system="truecolor")
         console.print(outlook_renderable(outlook, ctx, width))
-    return console.export_svg(title=f"advisor outlook · {ctx.site_name}")
+    title = html.escape(f"advisor outlook · {ctx.site_name}").replace("{", "{{").replace("}", "}}")
+    template = SVG_TEMPLATE.replace("{title}", title).replace("{background}", SVG_EXPORT_THEME.background_color.hex)
+    svg = console.export_svg(theme=SVG_EXPORT_THEME, code_format=template)
+    return _with_margin(svg, SVG_MARGIN_PX)
+
+
+#: Space around the drawing [px], so the panel's border is not flush with the picture's edge.
+SVG_MARGIN_PX = 12
+
+
+def _with_margin(svg: str, margin: float) -> str:
+    """The picture with ``margin`` pixels of background on every side (view box and background grown)."""
+    import re
+
+    match = re.search(r'viewBox="0 0 ([\d.]+) ([\d.]+)"', svg)
+    if not match:
+        return svg
+    w, h = (float(v) for v in match.groups())
+    box = f'{-margin:g} {-margin:g} {w + 2 * margin:g} {h + 2 * margin:g}'
+    svg = svg.replace(match.group(0), f'viewBox="{box}"', 1)
+    return svg.replace(f'<rect x="0" y="0" width="{match.group(1)}" height="{match.group(2)}" fill=',
+                       f'<rect x="{-margin:g}" y="{-margin:g}" width="{w + 2 * margin:g}" '
+                       f'height="{h + 2 * margin:g}" fill=', 1)

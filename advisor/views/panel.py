@@ -7,6 +7,7 @@ rich is imported only when a panel is drawn, so piped output stays light.
 
 from __future__ import annotations
 
+import contextlib
 import os
 from pathlib import PurePath
 from typing import TYPE_CHECKING
@@ -27,10 +28,8 @@ def short_path(path: str, max_len: int) -> str:
     """``path`` within ``max_len`` characters: relative to the working folder when below it, whole
     when it fits, else ``…/`` and as many trailing folders as fit
     (``…/example_weather/larch_basin_mast.csv``), else the file name's end."""
-    try:
+    with contextlib.suppress(ValueError):
         path = str(PurePath(path).relative_to(os.getcwd()))
-    except ValueError:
-        pass
     if len(path) <= max_len:
         return path
     parts = PurePath(path).parts
@@ -41,7 +40,7 @@ def short_path(path: str, max_len: int) -> str:
     return "…" + path[-(max_len - 1):]
 
 
-def _feed_title(source: str, width: int) -> str:
+def feed_title(source: str, width: int) -> str:
     """The bottom border's feed note (one or several sources joined by ' + ')."""
     sources = source.split(" + ")
     room = max(12, (width - 12) // len(sources) - 3)
@@ -63,5 +62,5 @@ def render_panel(call: Call, ctx: Context, width: int = 80, height: int = 24, de
             for line in lines]
     verdict = VERDICT[call.verdict]
     return Panel(Group(*body), title=f"advisor · {ctx.site_name}", title_align="left",
-                 border_style=verdict.style.split()[-1], subtitle=_feed_title(ctx.feed_source, width),
+                 border_style=verdict.style.split()[-1], subtitle=feed_title(ctx.feed_source, width),
                  subtitle_align="left", width=width)

@@ -10,7 +10,7 @@ from __future__ import annotations
 from advisor.decision import Call
 from advisor.views.context import Context
 from advisor.views.panel import short_path
-from advisor.views.screen import COMPACT_LINES, DETAILS_HINT, plain_text, screen_lines
+from advisor.views.screen import COMPACT_LINES, DETAILS_HINT, Line, plain_text, screen_lines
 
 
 def render_plain(call: Call, ctx: Context, width: int = 80, details: bool = False, status: int | None = None,
@@ -18,7 +18,7 @@ def render_plain(call: Call, ctx: Context, width: int = 80, details: bool = Fals
     """The call as text folded to ``width`` columns; the compact default fits 80×24."""
     lines = screen_lines(call, ctx, width, max_lines=COMPACT_LINES, details=details, status=status, hint=hint,
                          plain=True)
-    title = [(f"advisor · {ctx.site_name}", None)]
-    feed = [] if details else [[("feed: " + " + ".join(short_path(s, width - 8) for s in ctx.feed_source.split(" + ")),
-                                 None)]]
+    title: Line = [(f"advisor · {ctx.site_name}", None)]
+    sources = " + ".join(short_path(s, width - 8) for s in ctx.feed_source.split(" + "))
+    feed: list[Line] = [] if details else [[(f"feed: {sources}", None)]]
     return plain_text([title, *lines[:-1], *feed, lines[-1]])

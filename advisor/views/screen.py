@@ -22,9 +22,22 @@ from __future__ import annotations
 
 from advisor import fmt
 from advisor.decision import Call
-from advisor.views.callparts import (METHOD_LABEL, Section, blocked_ids, blocked_names, candidate_rows, cause_line,
-                                     conditions_line, data_age_text, effect_word, key_features, next_window_text,
-                                     sections, target_text, when_text)
+from advisor.views.callparts import (
+    METHOD_LABEL,
+    Section,
+    blocked_ids,
+    blocked_names,
+    candidate_rows,
+    cause_line,
+    conditions_line,
+    data_age_text,
+    effect_word,
+    key_features,
+    next_window_text,
+    sections,
+    target_text,
+    when_text,
+)
 from advisor.views.context import CAUTION_SHORT, CAUTIONS, Context
 from advisor.vocabulary import DEMO_BANNER, VERDICT
 
