@@ -33,7 +33,7 @@ COMMANDS = readme_commands()
 def test_readme_shows_the_everyday_commands():
     shown = " ".join(COMMANDS)
     for sub in ("check", "reference add", "reference list", "outlook", "replay", "train", "model show",
-                "rules lint", "rules show", "rules explain", "rules features"):
+                "rules lint", "rules show", "rules explain", "rules features", "demo copy"):
         assert f"advisor {sub}" in shown, sub
 
 
@@ -52,7 +52,14 @@ def test_readme_command_runs(command, monkeypatch, tmp_path, capsys):
     if argv[:2] == ["reference", "list"]:
         main(["reference", "add", "--references", str(tmp_path / "refs.csv"), "--time", "2026-11-30T03:10:00Z",
               "--air-temp-c", "-3.2"])
-    status = main(argv)
-    out, err = capsys.readouterr()
-    assert status in (0, 10, 11, 12), (command, err)
-    assert "error" not in err.lower(), err
+    # "advisor a && advisor b": each in turn, in the same folder
+    chain = [argv]
+    while "&&" in chain[-1]:
+        k = chain[-1].index("&&")
+        assert chain[-1][k + 1] == "advisor", command
+        chain[-1:] = [chain[-1][:k], chain[-1][k + 2:]]
+    for part in chain:
+        status = main(part)
+        out, err = capsys.readouterr()
+        assert status in (0, 10, 11, 12), (command, err)
+        assert "error" not in err.lower(), err

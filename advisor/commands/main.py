@@ -341,6 +341,7 @@ def build_parser() -> argparse.ArgumentParser:
     from advisor.commands import tick as cli_tick; cli_tick.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     from advisor.commands import model as cli_model; cli_model.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     from advisor.commands import outlook as cli_outlook; cli_outlook.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
+    from advisor.commands import demo as cli_demo; cli_demo.add_parser(sub, _add_evaluation_options)  # noqa: E702 (one line)
     return parser
 
 

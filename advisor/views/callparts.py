@@ -136,7 +136,7 @@ def cause_line(call: Call, limit: int = 2) -> str:
     bits = [cause_text(r) + "." for r in blocks[:limit]]
     more = len(blocks) - limit
     if more > 0:
-        bits[-1] = bits[-1][:-1] + f" (and {fmt.plural(more, 'more reason')})."
+        bits.append(f"+{fmt.plural(more, 'more reason')}.")
     if call.verdict == "undetermined":
         bits.append("Do not scan on this advice.")
     return " ".join(bits)

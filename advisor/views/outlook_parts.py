@@ -166,7 +166,7 @@ def header_lines(outlook: Outlook, ctx: Context) -> list[str]:
     tz = outlook.site.time_zone
     tzname = tz_abbrev(outlook.start_utc, tz)
     s, e = outlook.start_utc, outlook.end_utc
-    lines = [f"advisor outlook · {ctx.site_name} · {outlook.freq_ghz:g} GHz",
+    lines = [f"advisor outlook · {ctx.site_name} · {fmt.freq_wave_text(outlook.freq_ghz)}",
              f"{fmt_local(s, tz)} → {fmt_local(e, tz)} {tzname} ({fmt_utc(s)} → {fmt_utc(e)} UTC), "
              f"{len(outlook.steps)} steps of {outlook.step_min:g} min"]
     if outlook.issued_utc:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from advisor import fmt
 from advisor.evaluation.outlook import Outlook
 from advisor.views.context import CAUTIONS, Context
+from advisor.views.panel import short_path
 from advisor.views.outlook_parts import (
     WIDE_TABLE_MIN,
     WINDOW_HEADERS,
@@ -75,6 +76,6 @@ def render_plain_outlook(outlook: Outlook, ctx: Context, width: int = 100) -> st
     for line in span_lines(outlook):
         add(line, "    ")
     lines.append("")
-    add(f"feed: {ctx.feed_source}", "  ")
+    add("feed: " + " + ".join(short_path(source, width - 8) for source in ctx.feed_source.split(" + ")), "  ")
     add("Cautions: " + " ".join(CAUTIONS), "  ")
     return "\n".join(lines) + "\n"

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import os
 
+from advisor import fmt
 from advisor.evaluation.outlook import Outlook
 from advisor.views.context import CAUTIONS, Context
 from advisor.views.outlook_parts import (
@@ -85,7 +86,7 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
         parts.append(Text(line))
     parts.append(Text(""))
     parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
-    return Panel(Group(*parts), title=f"advisor outlook · {outlook.freq_ghz:g} GHz", title_align="left",
+    return Panel(Group(*parts), title=f"advisor outlook · {fmt.freq_wave_text(outlook.freq_ghz)}", title_align="left",
                  border_style="blue",
                  subtitle=feed_title(ctx.feed_source, width), subtitle_align="left", width=width)
 
