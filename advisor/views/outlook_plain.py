@@ -5,7 +5,6 @@ from __future__ import annotations
 from advisor import fmt
 from advisor.evaluation.outlook import Outlook
 from advisor.views.context import CAUTIONS, Context
-from advisor.views.panel import short_path
 from advisor.views.outlook_parts import (
     WIDE_TABLE_MIN,
     WINDOW_HEADERS,
@@ -19,6 +18,7 @@ from advisor.views.outlook_parts import (
     windows_heading,
 )
 from advisor.views.outlook_strip import legend_entries, strip_lines, wrap_entries
+from advisor.views.panel import short_path
 from advisor.vocabulary import DEMO_BANNER
 
 
