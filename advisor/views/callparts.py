@@ -47,6 +47,8 @@ COMPACT_FEATURES = ("wind_mean_ms", "wind_gust_ms", "dew_point_spread_c", "preci
 _COMPACT_LABEL = {"wind_mean_ms": "wind", "wind_gust_ms": "gusts", "dew_point_spread_c": "spread",
                   "precip_mm_h": "rain", "visibility_m": "vis"}
 # Statistical asides that mean nothing to an operator: "(+1.0 log-odds vs. ...)", "(+0.5)".
+#: A reason's lead clause shorter than this [characters] is shown with the rest of its message.
+SHORT_CAUSE_CHARS = 40
 _JARGON = re.compile(r"\s*\((?:[^()]*log-odds[^()]*|[+−-]\d+(?:\.\d+)?)\)")
 
 
@@ -115,7 +117,9 @@ def cause_text(reason: Reason) -> str:
         if depth == 0 and text.startswith((": ", "; "), k):
             cut = k
             break
-    return text[:cut].rstrip(" .")
+    lead = text[:cut].rstrip(" .")
+    # a bare lead ("Precipitation 1.6 mm/h") says too little: keep what follows it
+    return lead if len(lead) >= SHORT_CAUSE_CHARS else text.rstrip(" .")
 
 
 def _who(reason: Reason) -> str:

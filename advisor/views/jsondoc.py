@@ -9,11 +9,12 @@ import numpy as np
 
 from advisor.catalogue import CATALOGUE
 from advisor.decision import Call
-from advisor.views.callparts import blocked_ids
+from advisor.views.callparts import blocked_ids, cause_line
 from advisor.views.context import CAUTIONS, Context
 
 #: 2: ``candidates[m].blocked_by`` lists every blocking reason against the method (rule ids and
-#: the decision's own ``data``, ``feed``, ``model.<m>``, ``budget.<m>``), not only blocking rules.
+#: the decision's own ``data``, ``feed``, ``model.<m>``, ``budget.<m>``), not only blocking rules;
+#: ``cause`` is the screen's line under the verdict.
 SCHEMA_VERSION = 2
 
 
@@ -34,6 +35,7 @@ def to_json_dict(call: Call, ctx: Context, exit_status: int) -> dict:
         "schema_version": SCHEMA_VERSION,
         "verdict": call.verdict,
         "headline": call.headline,
+        "cause": cause_line(call),
         "time_utc": call.time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
         "target_freq_ghz": call.freq_ghz,
         "site": ctx.site_name,

@@ -62,6 +62,17 @@ def _wrapped(text: str, width: int, style: str | None = None, indent: str = "", 
     return [[(r, style)] for r in rows]
 
 
+def _joined(parts: list[str], width: int, style: str | None = None, sep: str = " · ") -> list[Line]:
+    """``parts`` joined by ``sep`` and folded only between parts (each part stays whole when it fits)."""
+    rows: list[str] = []
+    for part in parts:
+        if rows and len(rows[-1]) + len(sep) + len(part) <= width:
+            rows[-1] += sep + part
+        else:
+            rows.extend(fmt.wrap(part, width) if len(part) > width else [part])
+    return [[(r, style)] for r in rows]
+
+
 def _badge(call: Call, plain: bool) -> Segment:
     v = VERDICT[call.verdict]
     return (f"VERDICT: {v.label} —", None) if plain else (f" {v.label} ", v.style)
@@ -149,7 +160,7 @@ def _section_lines(section: Section, width: int, details: bool, limit: int | Non
 
 def _conditions(call: Call, width: int, details: bool) -> list[Line]:
     if not details:
-        return _wrapped(conditions_line(call), width, "dim")
+        return _joined(conditions_line(call).split(" · "), width, "dim")
     cells = key_features(call.features)
     if call.calibrator_name:
         cells.append(("best calibrator", call.calibrator_name))
@@ -199,7 +210,7 @@ def screen_lines(call: Call, ctx: Context, width: int = 76, max_lines: int = COM
 def _compose(call, ctx, width, details, groups, limits, show_conditions, head_rows, status, hint,
              plain) -> list[Line]:
     lines: list[Line] = _head(call, width, head_rows, plain)
-    lines += _wrapped(f"{when_text(call, ctx)} · {target_text(call)} · {data_age_text(call)}", width)
+    lines += _joined([when_text(call, ctx), target_text(call), data_age_text(call)], width)
     if ctx.is_demo:
         lines += _wrapped(DEMO_BANNER, width, "bold magenta")
     for note in ctx.notes:
