@@ -63,3 +63,12 @@ def test_readme_command_runs(command, monkeypatch, tmp_path, capsys):
         out, err = capsys.readouterr()
         assert status in (0, 10, 11, 12), (command, err)
         assert "error" not in err.lower(), err
+
+
+def test_readme_shows_the_real_check_screen(monkeypatch, capsys):
+    """The piped `advisor check` output pasted in README.md is what the demo prints today."""
+    monkeypatch.chdir(ROOT)
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    pasted = next(b for b in re.findall(r"```\n(.*?)```", text, flags=re.S) if b.startswith("advisor · "))
+    assert main(["check"]) == 0
+    assert capsys.readouterr().out == pasted
