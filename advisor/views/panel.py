@@ -9,10 +9,11 @@ from __future__ import annotations
 
 import contextlib
 import os
-from pathlib import PurePath
+from pathlib import Path, PurePath
 from typing import TYPE_CHECKING
 
 from advisor.decision import Call
+from advisor.io.site import demo_dir
 from advisor.views.context import Context
 from advisor.views.screen import COMPACT_LINES, DETAILS_HINT, screen_lines
 from advisor.vocabulary import VERDICT
@@ -25,9 +26,11 @@ PANEL_FRAME = 4
 
 
 def short_path(path: str, max_len: int) -> str:
-    """``path`` within ``max_len`` characters: relative to the working folder when below it, whole
-    when it fits, else ``…/`` and as many trailing folders as fit
-    (``…/example_weather/larch_basin_mast.csv``), else the file name's end."""
+    """``path`` within ``max_len`` characters: ``bundled demo: larch_basin_mast.csv`` for the demo's
+    own files, relative to the working folder when below it, whole when it fits, else ``…/`` and
+    as many trailing folders as fit (``…/weather/mast_feed.csv``), else the file name's end."""
+    with contextlib.suppress(ValueError, OSError):
+        return f"bundled demo: {Path(path).resolve().relative_to(demo_dir().resolve())}"
     with contextlib.suppress(ValueError):
         path = str(PurePath(path).relative_to(os.getcwd()))
     if len(path) <= max_len:
