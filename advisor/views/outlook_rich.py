@@ -32,6 +32,15 @@ NUMERIC_WINDOW_HEADERS = ("length", "wind max", "gust max", "spread min", "mean 
 METHOD_STYLE = {"scan": "green", "astronomical": "cyan"}
 
 
+def _folded(text: str, inner: int, style: str = "", indent: str = "  "):
+    """``text`` folded here (never between a number and its unit), so rich does not fold it again."""
+    from rich.text import Text
+
+    lead = text[:len(text) - len(text.lstrip())]
+    rows = fmt.wrap(text.lstrip(), inner, indent=lead + indent, first_indent=lead) if len(text) > inner else [text]
+    return Text("\n".join(rows), style=style, no_wrap=True, overflow="ellipsis")
+
+
 def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     """The rich view: a panel with the coloured strip, the windows table and the next windows."""
     from rich import box
@@ -40,29 +49,29 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     from rich.table import Table
     from rich.text import Text
 
-    head = header_lines(outlook, ctx)
-    parts: list[RenderableType] = [Text(ctx.site_name, style="bold"), *(Text(line) for line in head[1:])]
-    if ctx.is_demo:
-        parts.append(Text(DEMO_BANNER, style="bold magenta"))
-    for note in (*ctx.notes, *outlook.notes):
-        parts.append(Text(note, style="italic"))
-    parts.append(Text(""))
     inner = max(40, width - 4)
+    head = header_lines(outlook, ctx)
+    parts: list[RenderableType] = [Text(ctx.site_name, style="bold"), *(_folded(line, inner) for line in head[1:])]
+    if ctx.is_demo:
+        parts.append(_folded(DEMO_BANNER, inner, "bold magenta"))
+    for note in (*ctx.notes, *outlook.notes):
+        parts.append(_folded(note, inner, "italic"))
+    parts.append(Text(""))
     for segs in strip_lines(outlook, inner):
         parts.append(Text.assemble(*[(t, s) if s else t for t, s in segs], no_wrap=True, overflow="crop"))
     for segs in wrap_entries(legend_entries(outlook), inner, plain=False):
         parts.append(Text.assemble(*[(t, s) if s else t for t, s in segs]))
     sun = sun_text(outlook)
     if sun:
-        parts.append(Text(sun, style="dim"))
+        parts.append(_folded(sun, inner, "dim"))
     parts.append(Text(""))
-    parts.append(Text(windows_heading(outlook), style="bold underline"))
+    parts.append(_folded(windows_heading(outlook), inner, "bold underline"))
     rows = window_rows(outlook)
     if rows and width < WIDE_TABLE_MIN:
         for line in window_list_lines(outlook):
             lead = line.lstrip()
             style = next((METHOD_STYLE[m] for m, label in METHOD_LABEL.items() if lead.startswith(label)), "dim")
-            parts.append(Text(line, style=style))
+            parts.append(_folded(line, inner, style))
     elif rows:
         table = Table(box=box.SIMPLE_HEAD, pad_edge=False, expand=False)
         for h in WINDOW_HEADERS:
@@ -78,14 +87,14 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     parts.append(Text(f"Next window (local time {tz_abbrev(outlook.start_utc, outlook.site.time_zone)})",
                       style="bold underline"))
     for line in next_window_lines(outlook):
-        parts.append(Text(line, style="bold"))
+        parts.append(_folded(line, inner, "bold"))
     parts.append(Text(""))
     parts.append(Text(f"Verdict spans (local time {tz_abbrev(outlook.start_utc, outlook.site.time_zone)})",
                       style="bold underline"))
     for line in span_lines(outlook):
-        parts.append(Text(line))
+        parts.append(_folded(line, inner, indent="    "))
     parts.append(Text(""))
-    parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
+    parts.append(_folded(" ".join(CAUTIONS), inner, "dim italic", indent=""))
     return Panel(Group(*parts), title=f"advisor outlook · {fmt.freq_wave_text(outlook.freq_ghz)}", title_align="left",
                  border_style="blue",
                  subtitle=feed_title(ctx.feed_source, width), subtitle_align="left", width=width)
