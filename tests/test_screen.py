@@ -173,3 +173,16 @@ def test_demo_banner_and_flag_however_the_demo_site_is_named(capsys, tmp_path):
         assert '"demo_data": true' in out
         main(["check", "--site", site])
         assert "DEMO DATA" in capsys.readouterr().out
+
+
+def test_tick_says_demo_data_for_the_demo_site_named_explicitly(capsys, tmp_path):
+    import json
+
+    from advisor.io.site import demo_dir
+
+    status = main(["tick", "--site", str(demo_dir() / "larch_basin.yaml"), "--state-dir", str(tmp_path / "state"),
+                   "--at", "2026-12-01T03:00:00Z"])
+    assert status == 0
+    doc = json.loads((tmp_path / "state" / "advisory.json").read_text())
+    assert doc["demo_data"] is True and "DEMO DATA" in capsys.readouterr().out
+    assert "DEMO DATA" in (tmp_path / "state" / "advisory.html").read_text()
