@@ -50,6 +50,8 @@ EFFECT_STYLE = {"block": "red", "warn": "yellow", "add_error": "magenta", "info"
 #: line and the next prompt.
 COMPACT_LINES = 20
 DETAILS_HINT = "every reason and condition: add --details"
+#: The last line's hint while the demo is in use: what to try next.
+DEMO_HINT = "next: --details · advisor outlook · advisor demo copy DIR"
 
 
 def _wrapped(text: str, width: int, style: str | None = None, indent: str = "", first: str = "",
@@ -236,7 +238,10 @@ def _compose(call, ctx, width, details, groups, limits, show_conditions, head_ro
         elif groups:
             lines.append([("", None)])
         lines += _wrapped(CAUTION_SHORT, width, "dim italic")
-    tail = f"exit status {status}" if status is not None and details else hint if not details else ""
+    if details:
+        tail = f"exit status {status}" if status is not None else ""
+    else:
+        tail = DEMO_HINT if ctx.is_demo and hint == DETAILS_HINT else hint
     badge = _badge(call, plain)
     lines.append([(badge[0].rstrip(" —"), badge[1]), ("  " + tail if tail else "", "dim")])
     return lines
