@@ -213,14 +213,15 @@ _UNIT_AFTER_NUMBER = re.compile(
     r"(?<=\d) (?=(?:µm|m/s|°C/h|°C|GHz|MHz|mm/h|mm|cm|min|h|d|km|m|%|hPa|W/m²|arcsec|s|UTC|[A-Z]{3,4})(?=[\s,;:.)\]]|$))")
 
 
-_EQUALS_NUMBER = re.compile(r"(?<=\S) = (?=[-+]?\d)")
+_EQUALS_NUMBER = re.compile(r"(?<=\S) = (?=[-+]?\d)|(?<=[ησλΔ]) (?=[-+]?\d)")
 _DURATION_PARTS = re.compile(r"(?<=\d[\u00a0 ][dh]) (?=\d+[\u00a0 ](?:h|min)\b)")
 
 
 def keep_units(text: str) -> str:
     """``text`` with a non-breaking space between each number and its unit (``199\u00a0µm``),
-    within durations (``4 h 15 min``) and around ``=`` before a number (``λ/16 = 218 µm``)."""
-    text = _EQUALS_NUMBER.sub(f"{NBSP}={NBSP}", text)
+    within durations (``4 h 15 min``), around ``=`` before a number (``λ/16 = 218 µm``) and after a
+    symbol (``η 0.60``)."""
+    text = _EQUALS_NUMBER.sub(lambda m: m.group(0).replace(" ", NBSP), text)
     return _DURATION_PARTS.sub(NBSP, _UNIT_AFTER_NUMBER.sub(NBSP, text))
 
 

@@ -76,7 +76,7 @@ body.stale #verdict { opacity: 0.35; text-decoration: line-through; }
 .alarm { background: #b00020; color: #fff; font-weight: bold; padding: 0.3rem 0.6rem; margin: 0 0 0.5rem; }
 main { display: grid; grid-template-columns: minmax(0, 1.15fr) minmax(0, 1fr); gap: 0.4rem 2.5rem; }
 #now, #reasons { min-width: 0; }
-#top { grid-column: 1 / -1; }
+#top { grid-column: 1 / -1; display: flex; flex-wrap: wrap; align-items: center; gap: 0.3rem 1.2rem; }
 #verdict { display: inline-block; font-weight: 800; letter-spacing: 0.02em; line-height: 1.05; white-space: nowrap;
            font-size: min(calc((100vw - 3rem) / (var(--chars) * 0.82 + 0.7)), 14vh, 15rem);
            padding: 0.04em 0.3em; border-radius: 0.12em;
@@ -86,7 +86,7 @@ main { display: grid; grid-template-columns: minmax(0, 1.15fr) minmax(0, 1fr); g
 #age { font-size: 1.15rem; }
 #age .ago { font-weight: bold; }
 .demo { color: #ff79c6; font-weight: bold; margin: 0.2rem 0; }
-#top .demo { display: inline-block; vertical-align: middle; max-width: 30rem; margin-left: 1.2rem; }
+#top .demo { max-width: 30rem; margin: 0; }
 .note { font-style: italic; margin: 0.2rem 0; }
 #next { font-size: 1.1rem; font-weight: 600; margin: 0.4rem 0; padding: 0.3rem 0.6rem;
         border-left: 0.3rem solid var(--verdict-bg); background: #1d2128; }
@@ -110,7 +110,7 @@ footer { grid-column: 1 / -1; font-size: 0.85rem; color: #9aa4b2; margin-top: 0.
   body { padding: 0.5rem 0.6rem; }
   main { grid-template-columns: minmax(0, 1fr); }
   #cause { font-size: 1.15rem; }
-  #top .demo { display: block; margin: 0.3rem 0 0; max-width: none; }
+  #top .demo { max-width: none; }
   #age, #next { font-size: 1rem; }
   dl { grid-template-columns: max-content minmax(max-content, 1fr); }
 }
@@ -213,7 +213,7 @@ def advisory_html(call: Call, ctx: Context, change: Change, stale_after_min: flo
 <section id="now">
 <p id="cause">{_nowrap_units(cause_line(call))}</p>
 <p id="age"><span id="ago" class="ago">issued {_esc(issued_local)}</span> · <span class="nowrap">{_esc(data_age_text(call))}</span>
-· {_esc(verdict.words)} since <span class="nowrap">{_esc(since_local)}</span></p>
+· {_esc(call.verdict)} since <span class="nowrap">{_esc(since_local)}</span></p>
 <noscript><p class="alarm">Scripts are off: check the issued time ({_esc(issued_local)}) yourself.</p></noscript>
 <p id="next">{_nowrap_units(nxt)}</p>
 <div id="methods">
