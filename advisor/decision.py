@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 
 from advisor.features import best_surface_rms_um
+from advisor.fmt import duration_text, freq_text, odds_text
 from advisor.io.site import Site
 from advisor.physics.aperture import root_sum_square, ruze_efficiency
 from advisor.rules.ruleset import RuleEvaluation, RuleSet
@@ -189,15 +190,6 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
                      model_extrapolation=dict(getattr(odds, "extrapolation", None) or {}))
 
 
-def _odds_text(p: float) -> str:
-    """A probability as a percentage that never rounds to a misleading 0 % or 100 %."""
-    if p < 0.01:
-        return "<1%"
-    if p > 0.99:
-        return ">99%"
-    return f"{p:.0%}"
-
-
 def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     """Why the data cannot support a call."""
     reasons = []
@@ -205,9 +197,9 @@ def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     if not np.isfinite(age):
         reasons.append(Reason(DATA_BLOCK, "both", "block", "No good weather sample at or before this time."))
     elif age > site.feed.max_feed_age_min:
-        age_text = f"{age:.0f} min" if age < 120 else f"{age / 60:.1f} h"
         reasons.append(Reason(DATA_BLOCK, "both", "block",
-                              f"Last good weather sample is {age_text} old (limit {site.feed.max_feed_age_min:.0f} min): "
+                              f"Last good weather sample is {duration_text(age)} old "
+                              f"(limit {duration_text(site.feed.max_feed_age_min)}): "
                               "the feed looks stale; the figures below are from that sample."))
     if not reasons:
         reasons.append(Reason(DATA_BLOCK, "both", "block",
@@ -268,7 +260,7 @@ def explain(decisions: Decisions, i: int) -> Call:
         label = METHOD_LABEL[method]
         if np.isfinite(rms):
             meets = "meets" if rms <= targets["required_surface_rms_um"] else "misses"
-            msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq:g} GHz "
+            msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq_text(freq)} "
                    f"({meets} {_requirement_text(targets)})")
             blocked_low = EFFICIENCY_BLOCK in c.blocks and c.blocks[EFFICIENCY_BLOCK][i]
             if blocked_low:
@@ -277,7 +269,7 @@ def explain(decisions: Decisions, i: int) -> Call:
                                   "block" if blocked_low else "info", msg))
         if np.isfinite(p) and p < th.min_p_usable:
             reasons.append(Reason(model_block(method), method, "block",
-                                  f"{label}: site model gives only {_odds_text(p)} odds of a usable result "
+                                  f"{label}: site model gives only {odds_text(p)} odds of a usable result "
                                   f"(threshold {th.min_p_usable:.0%})"))
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
             if note:
@@ -310,14 +302,17 @@ def _choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
         return []
     margin = site.thresholds.laser_preference_efficiency
     gap = round(astro["ruze_efficiency"], 2) - round(scan["ruze_efficiency"], 2)
-    if verdict == "scan":
-        text = (f"Both methods are feasible; the laser is preferred: holography's efficiency is {gap:+.2f} "
-                f"against it, within the {margin:.2f} that favours the laser, and the laser takes "
-                f"{scan['duration_min']:.0f} min instead of {astro['duration_min']:.0f} min of telescope time.")
+    if verdict == "scan" and gap <= 0:
+        text = (f"Both methods are feasible; the laser's efficiency is as good or better, and it takes "
+                f"{scan['duration_min']:.0f} min, not {astro['duration_min']:.0f} min.")
+    elif verdict == "scan":
+        text = (f"Both methods are feasible; holography is only {gap:.2f} better (within the {margin:.2f} that "
+                f"favours the laser), and the laser takes {scan['duration_min']:.0f} min, not "
+                f"{astro['duration_min']:.0f} min.")
     else:
         text = (f"Both methods are feasible; holography's efficiency is {gap:.2f} better, more than the "
                 f"{margin:.2f} that favours the quicker laser scan.")
-    return [Reason("choice", "both", "info", text.replace("+-", "-"))]
+    return [Reason("choice", "both", "info", text)]
 
 
 def _headline(verdict: str, cands: dict, row: pd.Series, decisions: Decisions) -> str:

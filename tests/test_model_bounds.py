@@ -146,7 +146,7 @@ def test_extrapolated_odds_reach_the_reasons_and_json():
     warn = [r for r in call.reasons if r.rule == "model.scan" and r.effect == "warn"]
     assert len(warn) == 1 and "extrapolated" in warn[0].message and "+4.0 °C/h" in warn[0].message
     doc = to_json_dict(call, Context("test", "UTC", "test feed", False, {}), 0)
-    assert SCHEMA_VERSION == 3 and doc["candidates"]["scan"]["extrapolated"] is True
+    assert SCHEMA_VERSION >= 3 and doc["candidates"]["scan"]["extrapolated"] is True
     json.dumps(doc, allow_nan=False)
     calm = _call(weather_table(temp_rate_c_per_h=-0.4), model)
     assert calm.candidates["scan"]["extrapolated"] is False

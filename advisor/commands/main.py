@@ -40,6 +40,7 @@ COMMANDS = (
     Command("train", "model", "fit the site model on the site's past attempts"),
     Command("model", "model", "inspect a site model file"),
     Command("outlook", "outlook", "the call at every forecast step and the next window for each method"),
+    Command("demo", "demo", "copy the invented demo site, feed, registry and rules to a folder to edit"),
 )
 
 
