@@ -223,9 +223,9 @@ def _unreachable_reason(decisions: Decisions) -> Reason:
     eta = float(ruze_efficiency(best, t["freq_ghz"]))
     need = _rms_for_efficiency(th.min_ruze_efficiency, t["freq_ghz"])
     return Reason(UNREACHABLE_BLOCK, "both", "block",
-                  f"Not reachable at {t['freq_ghz']:g} GHz: the best either method can leave is {best:.0f} µm "
-                  f"(η {eta:.2f}), and the site minimum η {th.min_ruze_efficiency:.2f} needs ≤ {need:.0f} µm. "
-                  "No weather changes that: observe at a lower frequency.")
+                  f"Not reachable at {t['freq_ghz']:g} GHz: the best surface, {best:.0f} µm, gives η {eta:.2f}; "
+                  f"the site minimum η {th.min_ruze_efficiency:.2f} needs ≤ {need:.0f} µm. No weather changes that: "
+                  "observe at a lower frequency.")
 
 
 def explain(decisions: Decisions, i: int) -> Call:

@@ -41,7 +41,8 @@ _EFFECT_ORDER = {effect: k for k, effect in enumerate(SEVERITY)}
 METHOD_PHRASE = {"scan": "the laser scan", "astronomical": "the astronomical method"}
 #: Reasons the decision itself gives (not a rule of the rule set), as words for a table cell.
 _OWN_REASON_WORDS = {"data": "stale or bad data", "feed": "feed unreadable", "model": "site model odds",
-                     "budget": "efficiency below minimum", "choice": "the other is better"}
+                     "budget": "efficiency below minimum", "efficiency": "efficiency below minimum",
+                     "target": "frequency out of reach", "choice": "the other is better"}
 #: The conditions the compact screen shows on one line, in this order.
 COMPACT_FEATURES = ("wind_mean_ms", "wind_gust_ms", "dew_point_spread_c", "precip_mm_h", "visibility_m")
 _COMPACT_LABEL = {"wind_mean_ms": "wind", "wind_gust_ms": "gusts", "dew_point_spread_c": "spread",
