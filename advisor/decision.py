@@ -24,13 +24,15 @@ requirement the call is ``no_correction``.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Mapping
 
 import numpy as np
 import pandas as pd
 
+from advisor import fmt
 from advisor.features import best_surface_rms_um
+from advisor.fmt import duration_text, freq_text, odds_text
 from advisor.io.site import Site
 from advisor.physics.aperture import root_sum_square, ruze_efficiency
 from advisor.rules.ruleset import RuleEvaluation, RuleSet
@@ -236,15 +238,6 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
                      model_extrapolation=dict(getattr(odds, "extrapolation", None) or {}))
 
 
-def _odds_text(p: float) -> str:
-    """A probability as a percentage that never rounds to a misleading 0 % or 100 %."""
-    if p < 0.01:
-        return "<1%"
-    if p > 0.99:
-        return ">99%"
-    return f"{p:.0%}"
-
-
 def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     """Why the data cannot support a call."""
     reasons = []
@@ -252,9 +245,9 @@ def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     if not np.isfinite(age):
         reasons.append(Reason(DATA_BLOCK, "both", "block", "No good weather sample at or before this time."))
     elif age > site.feed.max_feed_age_min:
-        age_text = f"{age:.0f} min" if age < 120 else f"{age / 60:.1f} h"
         reasons.append(Reason(DATA_BLOCK, "both", "block",
-                              f"Last good weather sample is {age_text} old (limit {site.feed.max_feed_age_min:.0f} min): "
+                              f"Last good weather sample is {duration_text(age)} old "
+                              f"(limit {duration_text(site.feed.max_feed_age_min)}): "
                               "the feed looks stale; the figures below are from that sample."))
     if not reasons:
         reasons.append(Reason(DATA_BLOCK, "both", "block",
@@ -278,9 +271,9 @@ def _unreachable_reason(decisions: Decisions) -> Reason:
     eta = float(ruze_efficiency(best, t["freq_ghz"]))
     need = _rms_for_efficiency(th.min_ruze_efficiency, t["freq_ghz"])
     return Reason(UNREACHABLE_BLOCK, "both", "block",
-                  f"Not reachable at {t['freq_ghz']:g} GHz: the best either method can leave is {best:.0f} µm "
-                  f"(η {eta:.2f}), and the site minimum η {th.min_ruze_efficiency:.2f} needs ≤ {need:.0f} µm. "
-                  "No weather changes that: observe at a lower frequency.")
+                  f"Not reachable at {t['freq_ghz']:g} GHz: the best surface, {best:.0f} µm, gives η {eta:.2f}; "
+                  f"the site minimum η {th.min_ruze_efficiency:.2f} needs ≤ {need:.0f} µm. No weather changes that: "
+                  "observe at a lower frequency.")
 
 
 def explain(decisions: Decisions, i: int) -> Call:
@@ -315,7 +308,7 @@ def explain(decisions: Decisions, i: int) -> Call:
         label = METHOD_LABEL[method]
         if np.isfinite(rms):
             meets = "meets" if rms <= targets["required_surface_rms_um"] else "misses"
-            msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq:g} GHz "
+            msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq_text(freq)} "
                    f"({meets} {_requirement_text(targets)})")
             blocked_low = EFFICIENCY_BLOCK in c.blocks and c.blocks[EFFICIENCY_BLOCK][i]
             if blocked_low:
@@ -324,7 +317,7 @@ def explain(decisions: Decisions, i: int) -> Call:
                                   "block" if blocked_low else "info", msg))
         if np.isfinite(p) and p < th.min_p_usable:
             reasons.append(Reason(model_block(method), method, "block",
-                                  f"{label}: site model gives only {_odds_text(p)} odds of a usable result "
+                                  f"{label}: site model gives only {odds_text(p)} odds of a usable result "
                                   f"(threshold {th.min_p_usable:.0%})"))
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
             if note:
@@ -353,7 +346,7 @@ def explain(decisions: Decisions, i: int) -> Call:
 def _minutes_text(minutes: float) -> str:
     """A duration to the nearest 10 min: 'about 80 min', 'about 2 h 10 min'."""
     m = int(round(minutes / 10.0) * 10)
-    return f"about {m} min" if m < 120 else f"about {m // 60} h {m % 60:02d} min".replace(" 00 min", "")
+    return f"about {m} min" if m < 120 else f"about {fmt.duration_text(m)}"
 
 
 def _choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
@@ -376,24 +369,26 @@ def _choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
     if alt["p_usable"] is not None and chosen["p_usable"] is not None:
         figures += f", odds {alt['p_usable']:.0%} against {chosen['p_usable']:.0%}"
     extra = alt["duration_min"] - chosen["duration_min"]
-    head = f"Both methods are feasible; {label[verdict]} is preferred for a {site.thresholds.session_hours:g} h session"
+    session = f"{site.thresholds.session_hours:g} h session"
     g_chosen, g_alt = per_minute(chosen), per_minute(alt)
     if g_chosen >= g_alt and extra >= 0:
-        text = (f"{head}: it is quicker ({chosen['duration_min']:.0f} min against {alt['duration_min']:.0f} min) "
-                f"and {label[other]}'s surface would not shorten the integration ({figures}).")
+        text = (f"{label[verdict].capitalize()} is quicker ({chosen['duration_min']:.0f} min, not "
+                f"{alt['duration_min']:.0f} min) and {label[other]}'s surface would not shorten the integration "
+                f"over the {session} ({figures}).")
     elif g_chosen > g_alt:   # better per minute, and longer: its extra minutes pay back
         ratio = g_chosen / g_alt if g_alt > 0 else float("inf")
         payback = -extra / (ratio - 1.0) if np.isfinite(ratio) else 0.0
-        text = (f"{head}: with {label[other]}'s surface ({figures.replace('against', 'instead of', 1)}) the session "
-                f"would need {ratio:.2f}× the integration time, and the extra {-extra:.0f} min pay back after "
-                f"{_minutes_text(payback)} of observing.")
+        text = (f"Over the {session} {label[verdict]}'s extra {-extra:.0f} min pay back after "
+                f"{_minutes_text(payback)} of observing: with {label[other]}'s surface "
+                f"({figures.replace('against', 'instead of', 1)}) the session would need {ratio:.2f}× the "
+                "integration time.")
     else:                    # the other is better per minute but takes longer: not paid back in this session
         ratio = g_alt / g_chosen if g_chosen > 0 else float("inf")
         payback = extra / (ratio - 1.0) if ratio > 1.0 else float("inf")
         saving = 1.0 - 1.0 / ratio if ratio > 0 else 0.0
-        when = f"after {_minutes_text(payback)} of observing" if np.isfinite(payback) else "never"
-        text = (f"{head}: {label[other]}'s surface ({figures}) would save {saving:.0%} of the integration time, "
-                f"which pays back its extra {extra:.0f} min only {when}, more than the session leaves.")
+        when = f"only after {_minutes_text(payback)} of observing" if np.isfinite(payback) else "never"
+        text = (f"{label[other].capitalize()}'s extra {extra:.0f} min would pay back {when}, more than the "
+                f"{session} leaves: its surface would save {saving:.0%} of the integration time ({figures}).")
     return [Reason("choice", "both", "info", text)]
 
 
@@ -402,14 +397,17 @@ def _margin_choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason
     scan, astro = cands["scan"], cands["astronomical"]
     margin = site.thresholds.laser_preference_efficiency
     gap = round(astro["ruze_efficiency"], 2) - round(scan["ruze_efficiency"], 2)
-    if verdict == "scan":
-        text = (f"Both methods are feasible; the laser is preferred: holography's efficiency is {gap:+.2f} "
-                f"against it, within the {margin:.2f} that favours the laser, and the laser takes "
-                f"{scan['duration_min']:.0f} min instead of {astro['duration_min']:.0f} min of telescope time.")
+    if verdict == "scan" and gap <= 0:
+        text = (f"Both methods are feasible; the laser's efficiency is as good or better, and it takes "
+                f"{scan['duration_min']:.0f} min, not {astro['duration_min']:.0f} min.")
+    elif verdict == "scan":
+        text = (f"Both methods are feasible; holography is only {gap:.2f} better (within the {margin:.2f} that "
+                f"favours the laser), and the laser takes {scan['duration_min']:.0f} min, not "
+                f"{astro['duration_min']:.0f} min.")
     else:
         text = (f"Both methods are feasible; holography's efficiency is {gap:.2f} better, more than the "
                 f"{margin:.2f} that favours the quicker laser scan.")
-    return [Reason("choice", "both", "info", text.replace("+-", "-"))]
+    return [Reason("choice", "both", "info", text)]
 
 
 def _headline(verdict: str, cands: dict, row: pd.Series, decisions: Decisions) -> str:

@@ -63,10 +63,16 @@ def registry_at(time_utc, air_temp_c) -> Registry:
 
 @pytest.fixture()
 def call_for(demo_site, default_rules):
-    """Evaluate a canonical table at ``at`` for the demo site and return the explained call."""
+    """Evaluate a canonical table at ``at`` for the demo site and return the explained call.
+
+    Without ``site``: the demo site for a 2-hour session, so that on the calm synthetic night the
+    quick laser scan is the call (holography's better surface pays back only in longer sessions;
+    tests of that choice pass a site with their own ``session_hours``).
+    """
+    short_session = replace(demo_site, thresholds=replace(demo_site.thresholds, session_hours=2.0))
 
     def run(table, at=NIGHT_UTC, registry=None, freq_ghz=86.0, site=None, layout=None):
-        site = site or demo_site
+        site = site or short_session
         feed = canonical_frame(table, layout or FeedLayout(max_feed_age_min=site.feed.max_feed_age_min))
         if registry is None:
             registry = registry_at(pd.Timestamp(at) - pd.Timedelta(hours=2), table["air_temp_c"].iloc[-1] + 0.8)

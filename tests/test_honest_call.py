@@ -197,7 +197,7 @@ def test_holography_pays_back_its_extra_minutes_in_a_long_enough_session(call_fo
     short = call_for(table, registry=registry, freq_ghz=100.0, site=replace(
         site, thresholds=replace(site.thresholds, session_hours=2.0)))
     assert short.verdict == "scan"
-    assert "more than the session leaves" in next(r for r in short.reasons if r.rule == "choice").message
+    assert "more than the 2 h session leaves" in next(r for r in short.reasons if r.rule == "choice").message
 
 
 # --------------------------------------------------------------------------- messages follow their rule

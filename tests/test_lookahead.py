@@ -185,7 +185,7 @@ def check_json(capsys, site, *extra):
 def test_check_says_how_long_the_correction_holds_and_for_what_session(capsys, tmp_path):
     site = make_site(tmp_path, forecast_rows(NIGHT_UTC))
     status, doc, _ = check_json(capsys, site, "--session-hours", "2")
-    assert doc["schema_version"] == 4 and status == 0 and doc["verdict"] == "scan"
+    assert doc["schema_version"] == 5 and status == 0 and doc["verdict"] == "scan"
     ahead = doc["look_ahead"]
     assert ahead["session_hours"] == 2.0 and ahead["forecast_source"].endswith("forecast.csv")
     assert ahead["holds"]["scan"]["basis"] == "forecast"

@@ -34,7 +34,7 @@ def test_readme_shows_the_everyday_commands():
     shown = " ".join(COMMANDS)
     for sub in ("check", "reference add", "reference list", "attempt add", "attempt list", "outlook", "replay",
                 "train", "model show",
-                "rules lint", "rules show", "rules explain", "rules features", "plan"):
+                "rules lint", "rules show", "rules explain", "rules features", "demo copy", "plan"):
         assert f"advisor {sub}" in shown, sub
 
 
@@ -57,7 +57,23 @@ def test_readme_command_runs(command, monkeypatch, tmp_path, capsys):
     if argv[:2] == ["reference", "list"]:
         main(["reference", "add", "--references", str(tmp_path / "refs.csv"), "--time", "2026-11-30T03:10:00Z",
               "--air-temp-c", "-3.2"])
-    status = main(argv)
-    out, err = capsys.readouterr()
-    assert status in (0, 10, 11, 12), (command, err)
-    assert "error" not in err.lower(), err
+    # "advisor a && advisor b": each in turn, in the same folder
+    chain = [argv]
+    while "&&" in chain[-1]:
+        k = chain[-1].index("&&")
+        assert chain[-1][k + 1] == "advisor", command
+        chain[-1:] = [chain[-1][:k], chain[-1][k + 2:]]
+    for part in chain:
+        status = main(part)
+        out, err = capsys.readouterr()
+        assert status in (0, 10, 11, 12), (command, err)
+        assert "error" not in err.lower(), err
+
+
+def test_readme_shows_the_real_check_screen(monkeypatch, capsys):
+    """The piped `advisor check` output pasted in README.md is what the demo prints today."""
+    monkeypatch.chdir(ROOT)
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    pasted = next(b for b in re.findall(r"```\n(.*?)```", text, flags=re.S) if b.startswith("advisor · "))
+    assert main(["check"]) == 0
+    assert capsys.readouterr().out == pasted

@@ -17,6 +17,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from advisor.io.bundled import is_bundled
 from advisor.commands import session
 from advisor.errors import FeedError, UsageError
 from advisor.vocabulary import METHOD_LABEL, METHODS
@@ -59,7 +60,7 @@ def _where(p: argparse.ArgumentParser) -> None:
 def _history_path(args, site) -> Path:
     if args.history:
         return Path(args.history)
-    if site.is_demo:
+    if is_bundled(site.source):
         raise UsageError("no history given", field="--history",
                          hint="pass --site SITE.yaml (with history: {path: attempts.csv}) or --history FILE; "
                               "the bundled demo history is read-only")
@@ -105,7 +106,7 @@ def cmd_attempt_add(args: argparse.Namespace) -> int:
                          hint="record an attempt once it has been made")
     if args.feed:
         feed_path = Path(args.feed)
-    elif site.is_demo:
+    elif is_bundled(site.source):
         raise UsageError("no feed to take the weather from", field="--feed",
                          hint="pass --site SITE.yaml (its feed) or --feed FILE; the demo's invented weather is never "
                               "recorded unasked")

@@ -41,6 +41,7 @@ COMMANDS = (
     Command("model", "model", "inspect a site model file"),
     Command("outlook", "outlook", "the call at every forecast step and the next window for each method"),
     Command("plan", "plan", "plan a session: which correction when, when to re-correct, against the simple choices"),
+    Command("demo", "demo", "copy the invented demo site, feed, registry and rules to a folder to edit"),
 )
 
 

@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
+from advisor.io.bundled import is_bundled
 from advisor.catalogue import CATALOGUE, unit_text
 from advisor.commands import session
 from advisor.errors import AdvisorError, UsageError
@@ -157,7 +158,7 @@ def _completion_feed(args, site, history):
 
     if args.feed:
         return read_feed(Path(args.feed), session.feed_layout(site, named_on_command_line=True))
-    if site.is_demo:            # never complete a history with the invented demo weather unasked
+    if is_bundled(site.source):  # never complete a history with the invented demo weather unasked
         return None
     if own_weather(history.frame).all() or site.feed.path is None or not Path(site.feed.path).exists():
         return None

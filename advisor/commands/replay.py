@@ -138,7 +138,8 @@ def cmd_replay(args: argparse.Namespace) -> int:
 
         from advisor.views.replay import replay_renderable
 
-        Console(highlight=False).print(replay_renderable(summary, dominant_by_month_hour(base.verdict, hours, local)))
+        console = Console(highlight=False)
+        console.print(replay_renderable(summary, dominant_by_month_hour(base.verdict, hours, local), console.width))
     return 0
 
 

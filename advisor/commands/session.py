@@ -35,6 +35,7 @@ from zoneinfo import ZoneInfo
 import pandas as pd
 
 from advisor.errors import AdvisorError, FeedError, ModelError, UsageError
+from advisor.io.bundled import is_demo_file
 from advisor.io.feed import CHECK_TAIL_BYTES, Feed, FeedQuality, read_feed
 from advisor.io.references import Registry, parse_time_utc, read_registry
 from advisor.io.site import FeedLayout, Site, load_site
@@ -324,9 +325,10 @@ class Inputs:
     registry: Registry
     registry_path: Path | None
     freq_ghz: float
-    is_demo: bool
+    is_demo: bool                   # the demo site, feed or registry is in use (however named): the banner shows
     notes: tuple[str, ...]
     model: SiteModel | None = None  # None: rules and error budget only
+    demo_feed: bool = False         # the feed is the bundled demo feed: evaluate at its last sample by default
 
     def require_feed(self) -> Feed:
         """The feed as read (``load_inputs`` with ``read="tail"`` or ``"whole"``)."""
@@ -362,19 +364,20 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     else:
         raise UsageError("no feed given and the site file names none", field="--feed",
                          hint="pass --feed FILE or set feed.path in the site file")
-    is_demo = site.is_demo and request.feed_path is None
-    layout = feed_layout(site, request.feed_path is not None)
+    registry_path = request.references_path or site.references_path
+    demo_feed = is_demo_file(path)
+    is_demo = site.is_demo or demo_feed or is_demo_file(registry_path)
+    layout = feed_layout(site, request.feed_path is not None and not demo_feed)
     feed = None
     if read is not None:
         feed = read_feed(path, layout, tail_bytes=CHECK_TAIL_BYTES if read == "tail" else None,
                          issue_time_column=site.forecast.issue_time_column)
-    registry_path = request.references_path or site.references_path
     registry = read_registry(registry_path)
     rules = load_ruleset(site, request.rule_files)
-    model = model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not is_demo) \
+    model = model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not demo_feed) \
         if with_model else None
     return Inputs(site, feed, path, layout, rules, registry, registry_path, request.freq_ghz, is_demo,
-                  tuple(notes), model)
+                  tuple(notes), model, demo_feed)
 
 
 def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame | None = None) -> pd.Timestamp:
@@ -389,7 +392,7 @@ def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame |
         frame = inputs.feed.frame
     times = frame["time"] if frame is not None else pd.Series([], dtype="datetime64[ns, UTC]")
     observed = times[frame["kind"] == "observed"] if frame is not None else times
-    if inputs.is_demo and len(times):
+    if inputs.demo_feed and len(times):
         return pd.Timestamp(observed.iloc[-1] if len(observed) else times.iloc[0])
     now = pd.Timestamp.now(tz="UTC")
     if len(observed) and pd.Timestamp(observed.iloc[-1]) > now + FUTURE_TOLERANCE:
@@ -470,6 +473,9 @@ def run_check(request: Request) -> CheckResult:
                                inputs.odds, forecast_source=forecast_source)
     if instant.next_window_in_hindsight:
         notes.append("Next window found in observations after the evaluation time (hindsight).")
+    postpone = (instant.look_ahead or {}).get("postpone") or {}
+    if postpone and postpone.get("until") != "window":     # no next-window line says until when: a note does
+        notes.extend(r.message for r in instant.call.reasons if r.rule == "postpone.until")
     ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone,
                   feed_source=feed.source + (f" + {forecast_source}" if forecast_source else ""),
                   is_demo=inputs.is_demo, data_quality=_quality(inputs, instant.call),

@@ -24,6 +24,7 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 
+from advisor import fmt
 from advisor.io.site import Site
 from advisor.physics.aperture import wavelength_mm
 from advisor.physics.sun import solar_position
@@ -151,10 +152,9 @@ def trend_rows(at_utc: pd.Timestamp, features: dict, site: Site, hours: float = 
 
 def duration_text(minutes: float) -> str:
     """'about 1 h 40 min', 'about 50 min' (to the nearest 10 min)."""
-    m = int(round(minutes / 10.0) * 10)
-    if m < 60:
-        return f"about {max(m, 10)} min" if minutes >= 5 else "less than 10 min"
-    return f"about {m // 60} h" + (f" {m % 60} min" if m % 60 else "")
+    if minutes < 5:
+        return "less than 10 min"
+    return "about " + fmt.duration_text(max(int(round(minutes / 10.0) * 10), 10))
 
 
 def correction_holds(frame: pd.DataFrame, at_utc: pd.Timestamp, candidates: dict, features: dict,

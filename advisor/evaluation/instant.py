@@ -54,7 +54,11 @@ def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, regi
         next_window = next_windows_after(frame, at_utc, site, registry, rules, freq_ghz, odds=odds)
         hindsight = bool(next_window) and bool(((frame["kind"] == "observed") & (frame["time"] > at_utc)).any())
     ahead = look_ahead(frame, at_utc, call, next_window, site, forecast_source)
-    call = replace(call, reasons=[*call.reasons, *ahead.reasons])
+    reasons = list(call.reasons)
+    for reason in ahead.reasons:    # how long it holds goes right after the chosen method's figures
+        after = [k for k, r in enumerate(reasons) if r.rule == f"budget.{call.verdict}"]
+        reasons.insert(after[0] + 1 if reason.rule.startswith("holds.") and after else len(reasons), reason)
+    call = replace(call, reasons=reasons)
     return Instant(decisions, call, next_window, hindsight, ahead.doc)
 
 

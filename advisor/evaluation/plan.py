@@ -32,6 +32,7 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 
+from advisor import fmt
 from advisor.errors import FeedError
 from advisor.evaluation.decay import first_exceedance, holding_limit_um, structure_temperature_c
 from advisor.evaluation.evaluate import OddsFunction, Scenario
@@ -126,8 +127,7 @@ class Plan:
 
 def _span_text(minutes: float) -> str:
     """'40 min', '1 h 20 min' (to the nearest 10 min)."""
-    m = int(round(minutes / 10.0) * 10)
-    return f"{m} min" if m < 60 else f"{m // 60} h" + (f" {m % 60} min" if m % 60 else "")
+    return fmt.duration_text(int(round(minutes / 10.0) * 10))
 
 
 def _ns(times) -> np.ndarray:

@@ -16,6 +16,8 @@ Two sections concern the site model:
 
 from __future__ import annotations
 
+import functools
+import hashlib
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -24,7 +26,7 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from advisor import units
 from advisor.errors import SiteError
-from advisor.io.bundled import demo_site_path
+from advisor.io.bundled import demo_site_path, is_demo_file
 from advisor.io.sitemodel import ModelTermSetting, model_terms
 from advisor.io.yamlio import load_yaml
 from advisor.text import clean_text
@@ -513,7 +515,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
 
 def load_site(path: Path | str | None = None) -> Site:
     """Load and validate a site file; ``None`` loads the bundled demo site."""
-    is_demo = path is None
     path = demo_site_path() if path is None else Path(path)
+    is_demo = is_demo_file(path)
     data, lines = load_yaml(path, SiteError)
     return parse_site(data, lines, str(path), path.resolve().parent, is_demo=is_demo)

@@ -7,14 +7,15 @@
 
 from __future__ import annotations
 
-import textwrap
 from zoneinfo import ZoneInfo
 
 import numpy as np
 import pandas as pd
 
+from advisor import fmt
 from advisor.evaluation.plan import PLAN_LABEL, Plan
 from advisor.views.context import CAUTIONS, Context
+from advisor.views.panel import short_path
 from advisor.vocabulary import DEMO_BANNER
 
 ALTERNATIVE_HEADERS = ("alternative", "corrections", "session η", "time lost", "integration time")
@@ -34,10 +35,7 @@ def _clock(ts: pd.Timestamp, plan: Plan) -> str:
 
 def minutes_text(minutes: float | None) -> str:
     """'54 min', '2 h 10 min'; '—' for None."""
-    if minutes is None:
-        return "—"
-    m = int(round(minutes))
-    return f"{m} min" if m < 60 else f"{m // 60} h {m % 60:02d} min"
+    return "—" if minutes is None else fmt.duration_text(int(round(minutes)))
 
 
 def session_line(plan: Plan) -> str:
@@ -55,7 +53,7 @@ def schedule_lines(plan: Plan) -> list[str]:
     """One line per correction: times, method, surface and η, odds, how long it holds, the fallback."""
     lines = []
     for c in plan.corrections:
-        odds = "" if c.p_usable is None else f", odds {c.p_usable:.0%}"
+        odds = "" if c.p_usable is None else f", odds {fmt.odds_text(c.p_usable)}"
         holds = ("holds to the session's end" if c.holds_until_utc is None
                  else f"holds until about {_clock(c.holds_until_utc, plan)}")
         fallback = "" if c.if_fails is None else (
@@ -98,8 +96,7 @@ def efficiency_line(plan: Plan) -> str:
 
 
 def _wrap(text: str, width: int, indent: str = "  ") -> list[str]:
-    return textwrap.wrap(text, width=max(40, width), subsequent_indent=indent, break_long_words=False,
-                         break_on_hyphens=False) or [""]
+    return fmt.wrap(text, max(40, width), indent) or [""]
 
 
 def render_plain_plan(plan: Plan, ctx: Context, width: int = 100) -> str:
@@ -133,7 +130,8 @@ def render_plain_plan(plan: Plan, ctx: Context, width: int = 100) -> str:
     lines.append("")
     for note in (*ctx.notes, *plan.notes):
         lines.extend(_wrap(note, width))
-    lines.append(f"feed: {ctx.feed_source}")
+    lines.extend(_wrap("feed: " + " + ".join(short_path(source, width - 8) for source in ctx.feed_source.split(" + ")),
+                       width))
     lines.extend(_wrap("Cautions: " + " ".join(CAUTIONS), width))
     return "\n".join(lines) + "\n"
 

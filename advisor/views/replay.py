@@ -1,7 +1,7 @@
 """The ``advisor replay`` summary for the terminal: hours per verdict, per month, a heat strip,
 scores against recorded attempts and the rule-set comparison.
 
-    replay_renderable(summary, dominant)
+    replay_renderable(summary, dominant, width)
 
 ``summary`` is the dict ``replay --json`` prints; ``dominant`` is
 :func:`advisor.evaluation.replay.dominant_by_month_hour`.  rich is imported only when drawn.
@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import pandas as pd
 
+from advisor import fmt
+from advisor.fmt import plural
 from advisor.vocabulary import METHOD_LABEL, VERDICT, VERDICTS
 
 #: Shown in the heat strip where a month has no hours at that hour of day.
@@ -50,7 +52,7 @@ def _attempt_parts(attempts: dict) -> list:
 
     parts: list = [
         Text("Against recorded attempts", style="bold underline"),
-        f"  {attempts['attempts_covered']} of {attempts['attempts']} attempts fall in the replayed period.",
+        f"  {attempts['attempts_covered']} of {plural(attempts['attempts'], 'attempt')} fall in the replayed period.",
         "  go: the advice allowed the method (its call, or feasible with the other preferred); false go: go, and "
         "the attempt failed; missed: the advice ruled the method out, and the attempt was usable.",
     ]
@@ -90,7 +92,7 @@ def _comparison_parts(comparison: dict, attempts: dict | None) -> list:
     return parts
 
 
-def replay_renderable(summary: dict, dominant: pd.DataFrame):
+def replay_renderable(summary: dict, dominant: pd.DataFrame, width: int = 80):
     """The summary as one rich renderable (print it with a Console; markup in plain strings is rich's)."""
     from rich import box
     from rich.console import Group
@@ -98,8 +100,9 @@ def replay_renderable(summary: dict, dominant: pd.DataFrame):
     from rich.text import Text
 
     total = sum(summary["hours"].values()) or 1.0
-    line = Text("Hours per verdict: ")
-    line.append(", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS))
+    hours = ", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS)
+    # folded here, never between a number and its unit, so a pipe shows the same as a terminal
+    line = Text("\n".join(fmt.wrap(f"Hours per verdict: {hours}", width, indent="  ")), no_wrap=True)
     parts: list = [f"Replay of {summary['feed']}",
                    f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
                    f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules",
