@@ -108,10 +108,13 @@ def plan_svg(plan: Plan, ctx: Context) -> str:
 
     local = pd.DatetimeIndex(steps["time"]).tz_convert(zone)
     hour = local.floor("h")
+    last_label_x = -1e9
     for k in (int(i) for i in np.flatnonzero(np.concatenate(([True], hour[1:] != hour[:-1])))):
         x = _x(k, n)
         parts.append(f'<line x1="{x:.1f}" y1="{BOTTOM}" x2="{x:.1f}" y2="{BOTTOM + 4}" stroke="#444444"/>')
-        parts.append(_text(x, BOTTOM + 16, f"{local[k]:%H:%M}", 10, "middle"))
+        if x - last_label_x >= 40:                 # labels never overlap
+            parts.append(_text(x, BOTTOM + 16, f"{local[k]:%H:%M}", 10, "middle"))
+            last_label_x = x
     parts.append(_text((LEFT + WIDTH - RIGHT) / 2, BOTTOM + 32, f"local time ({local[0]:%Z})", 11, "middle"))
 
     for c in plan.corrections:
