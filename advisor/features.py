@@ -189,7 +189,9 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
 
     Columns: ``time``, every ``row`` feature of the catalogue, ``calibrator_name`` and
     ``source_row`` (position in ``frame`` of the weather sample each row reads, -1 if none).
-    This is what a replay caches: it does not depend on the target.
+    This is what a replay caches: it does not depend on the target frequency.  It depends on the
+    site, including the session's elevation (``site.session``: the calibrator choice and its
+    gravity residual), which a replay's cache key therefore includes.
     """
     t_ns = _ns(times_utc)
     n = len(t_ns)

@@ -56,6 +56,20 @@ def test_a_row_does_not_depend_on_the_other_rows():
         assert alone[0] == pytest.approx(whole[i], rel=1e-12, abs=0)
 
 
+def test_scattered_states_take_the_same_nodes(monkeypatch):
+    """Widely scattered states are interpolated from the cells in use instead of the whole box of
+    nodes around them; the nodes are the same, so are the values (each row against itself alone)."""
+    from advisor.physics import opacity
+
+    monkeypatch.setattr(opacity, "_BOX_MAX_NODES", 0)
+    pressure, temp, rho, pwv = _states(60, 4)
+    pwv[:3] = [1e-4, 1e-3, 80.0]  # a wide range of ln V: the water nodes by use, too
+    together = zenith_opacity_series_nepers(86.0, pressure, temp, rho, pwv, SITE_HEIGHT_M)
+    alone = np.array([zenith_opacity_series_nepers(86.0, pressure[i], temp[i], rho[i], pwv[i], SITE_HEIGHT_M)[0]
+                      for i in range(60)])
+    np.testing.assert_allclose(together, alone, rtol=1e-12, atol=0)
+
+
 def test_against_itur_20_to_120_ghz():
     """Reference library: itur gaseous_attenuation_slant_path (ITU-R P.676-12 Annex 2, approx
     mode, el = 90 deg, V_t = 2 km x rho, h = 1.05 km) at three surface states, 20-120 GHz every

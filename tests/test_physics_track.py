@@ -101,6 +101,10 @@ def test_minutes_above_is_the_skys():
     el, minutes = sky.elevation_and_minutes_above(times, RA, DEC, 47.12, -114.0, 25.0)
     np.testing.assert_allclose(got.elevation_deg, el, atol=1e-4)
     np.testing.assert_allclose(got.minutes_above, minutes, atol=1e-3)
+    order = np.random.default_rng(1).permutation(len(times))  # out of order: the same per time
+    shuffled = track.source_track(times[order], RA, DEC, 47.12, -114.0, DURATION_MIN, 25.0)
+    for name in ("elevation_deg", "minutes_above", "mid_elevation_deg", "lowest_elevation_deg", "highest_elevation_deg"):
+        np.testing.assert_array_equal(getattr(shuffled, name), getattr(got, name)[order], err_msg=name)
 
 
 @pytest.mark.filterwarnings("ignore")
@@ -131,6 +135,28 @@ def test_closest_approach_to_the_sun_over_the_measurement_matches_astropy():
     assert np.max(np.abs(got - ref)) <= 0.02
 
 
+def test_closest_approach_interpolation_against_minute_sampling():
+    """The hourly nodes and the linear interpolation between them against the separation itself
+    (advisor.physics.sky.sun_separation_deg, checked against astropy) sampled every minute over each
+    measurement: 3000 starts across 2026 and the day 3C 279 passes the Sun, within 0.002 deg; a
+    start's value does not depend on the other starts."""
+    ra, dec = RA, DEC
+    rng = np.random.default_rng(11)
+    base = np.datetime64("2026-01-01T00:00", "s")
+    random = base + rng.integers(0, 365 * 86400, 3000).astype("timedelta64[s]")
+    october = np.datetime64("2026-10-08T12:00", "s") + np.arange(0, 86400, 97).astype("timedelta64[s]")
+    for starts in (np.sort(random), october):
+        got = track.sun_separation_over_deg(starts, ra, dec, DURATION_MIN)
+        sampled = np.min([sky.sun_separation_deg(starts + np.timedelta64(k, "m"), ra, dec) for k in range(46)], axis=0)
+        assert np.max(np.abs(got - sampled)) <= 0.002
+    one = track.sun_separation_over_deg(october[500], ra, dec, DURATION_MIN)
+    np.testing.assert_allclose(one[0], track.sun_separation_over_deg(october, ra, dec, DURATION_MIN)[500], atol=1e-6)
+    times = np.array(["2026-06-01T00:00", "NaT"], dtype="datetime64[ns]")
+    assert np.isnan(track.sun_separation_over_deg(times, ra, dec, DURATION_MIN)[1]).all()
+
+
 def test_bad_duration_is_refused():
     with pytest.raises(ValueError):
         track.source_track(np.datetime64("2026-01-01T00:00"), 0.0, 0.0, 0.0, 0.0, -1.0, 25.0)
+    with pytest.raises(ValueError):
+        track.sun_separation_over_deg(np.datetime64("2026-01-01T00:00"), 0.0, 0.0, -1.0)
