@@ -209,3 +209,39 @@ def test_replay_cache_is_keyed_by_the_sessions_elevation(capsys):
         docs[label] = json.loads(out)["hours"]
     assert docs["high"] == docs["high_fresh"]
     assert docs["low"] != docs["high"]  # the elevation changes the call (gravity term), so a stale cache would show
+
+
+def test_a_year_at_19_north_never_points_near_the_sun(demo_site):
+    """The issue's year at 19 N with the demo calibrators, every 10 min of 2026: the choice before
+    ("longest above the limit" among the calibrators inside the limits now) had the Sun within 5 deg
+    of its calibrator for about 70 h of daylight and sent the dish above 80 deg during hundreds of
+    hours of measurements; now every chosen calibrator stays 30 deg or more from the Sun and inside
+    25..80 deg for the whole measurement (geometry: advisor.physics.sky / track, checked against
+    astropy in their own tests)."""
+    from advisor.features import choose_calibrator
+    from advisor.physics.sky import elevation_and_minutes_above, sun_separation_deg
+    from advisor.physics.sun import solar_position
+
+    site = replace(demo_site, latitude_deg=19.0, longitude_deg=100.0)
+    times = pd.date_range("2026-01-01", "2027-01-01", freq="10min", tz="UTC", inclusive="left")
+    ra = np.array([c.ra_deg for c in site.calibrators])
+    dec = np.array([c.dec_deg for c in site.calibrators])
+    rows = np.arange(len(times))
+    el, minutes = elevation_and_minutes_above(times, ra, dec, 19.0, 100.0, 25.0)
+    usable_now = (el >= 25.0) & (el <= 80.0)
+    old = np.argmax(np.where(usable_now, minutes, -1.0), axis=1)
+    old_ok = usable_now[rows, old] & (minutes[rows, old] >= 45.0)
+    old_sep = sun_separation_deg(times, ra, dec)[rows, old]
+    sun_up = solar_position(times, 19.0, 100.0)[0] > 0.0
+    assert (old_ok & sun_up & (old_sep < 5.0)).sum() / 6.0 > 40.0          # hours
+    track, _ = _tracks(site, times)
+    assert (old_ok & (track.highest_elevation_deg[rows, old] > 80.0)).sum() / 6.0 > 200.0
+
+    out: dict = {}
+    names = np.asarray(choose_calibrator(times, site, out)).astype(str)
+    chosen = out["calibrator_available"]
+    assert chosen.mean() > 0.99
+    assert np.nanmin(out["calibrator_sun_separation_deg"]) >= 30.0
+    index = np.array([[c.name for c in site.calibrators].index(n) if n else 0 for n in names])
+    assert np.all(track.highest_elevation_deg[rows, index][chosen] <= 80.0)
+    assert np.all(track.lowest_elevation_deg[rows, index][chosen] >= 25.0)
