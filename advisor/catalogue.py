@@ -300,6 +300,8 @@ FEATURES: tuple[FeatureSpec, ...] = (
     _F("data_age_min", "min", "age of the last good weather sample", "data age", "{:.1f} min",
        domain=_never_negative("the last good sample is never later than the evaluation time"), key=True),
     _F("data_ok", "flag", "weather data fresh, plausible and complete"),
+    _F("feed_cadence_min", "min", "cadence of the sample in use: median interval between samples of its kind "
+       "(observed or forecast)", "feed cadence", "{:.0f} min", domain=_never_negative("it is an interval")),
 )
 
 #: name → spec.

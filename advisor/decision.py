@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 
 from advisor.features import best_surface_rms_um
+from advisor.fmt import duration_text, freq_text, odds_text
 from advisor.io.site import Site
 from advisor.physics.aperture import root_sum_square, ruze_efficiency
 from advisor.rules.ruleset import RuleEvaluation, RuleSet
@@ -72,6 +73,10 @@ class Decisions:
     site: Site
     model_notes: dict[str, list] = field(default_factory=dict)
     best_surface_rms_um: dict[str, float] = field(default_factory=dict)
+    #: method → per-row mask: the site model's odds are extrapolated (a term outside its training range)
+    model_extrapolated: dict[str, np.ndarray] = field(default_factory=dict)
+    #: method → per-row sentence naming what lies outside the training range (None inside)
+    model_extrapolation: dict[str, list] = field(default_factory=dict)
 
     def blocking(self, method: str) -> dict[str, np.ndarray]:
         """Block id → mask of the rows where it blocks ``method``: rules first, then the others."""
@@ -138,7 +143,8 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
 
     ``odds`` is the seam for the site classifier: method → probability of a usable result per
     row (NaN where unknown), optionally with ``notes`` (method → per-row text naming what pushed
-    the odds most), which become ``Decisions.model_notes``.  Without it, candidates carry
+    the odds most), which become ``Decisions.model_notes``, and ``extrapolated``/``extrapolation``
+    (method → per-row mask and sentence: the odds lie outside what the model was trained on).  Without it, candidates carry
     ``p_usable = NaN`` and the decision rests on rules and the error budget alone.
     """
     n = len(features)
@@ -179,16 +185,9 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
     verdict[data_bad] = "undetermined"
     # An odds mapping may carry per-row explanations (advisor.model.inference.ModelOdds.notes).
     return Decisions(features, dict(targets), verdict, candidates, rule_eval, rules, site,
-                     dict(getattr(odds, "notes", None) or {}), best)
-
-
-def _odds_text(p: float) -> str:
-    """A probability as a percentage that never rounds to a misleading 0 % or 100 %."""
-    if p < 0.01:
-        return "<1%"
-    if p > 0.99:
-        return ">99%"
-    return f"{p:.0%}"
+                     dict(getattr(odds, "notes", None) or {}), best,
+                     model_extrapolated=dict(getattr(odds, "extrapolated", None) or {}),
+                     model_extrapolation=dict(getattr(odds, "extrapolation", None) or {}))
 
 
 def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
@@ -198,9 +197,9 @@ def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     if not np.isfinite(age):
         reasons.append(Reason(DATA_BLOCK, "both", "block", "No good weather sample at or before this time."))
     elif age > site.feed.max_feed_age_min:
-        age_text = f"{age:.0f} min" if age < 120 else f"{age / 60:.1f} h"
         reasons.append(Reason(DATA_BLOCK, "both", "block",
-                              f"Last good weather sample is {age_text} old (limit {site.feed.max_feed_age_min:.0f} min): "
+                              f"Last good weather sample is {duration_text(age)} old "
+                              f"(limit {duration_text(site.feed.max_feed_age_min)}): "
                               "the feed looks stale; the figures below are from that sample."))
     if not reasons:
         reasons.append(Reason(DATA_BLOCK, "both", "block",
@@ -224,9 +223,9 @@ def _unreachable_reason(decisions: Decisions) -> Reason:
     eta = float(ruze_efficiency(best, t["freq_ghz"]))
     need = _rms_for_efficiency(th.min_ruze_efficiency, t["freq_ghz"])
     return Reason(UNREACHABLE_BLOCK, "both", "block",
-                  f"Not reachable at {t['freq_ghz']:g} GHz: the best either method can leave is {best:.0f} µm "
-                  f"(η {eta:.2f}), and the site minimum η {th.min_ruze_efficiency:.2f} needs ≤ {need:.0f} µm. "
-                  "No weather changes that: observe at a lower frequency.")
+                  f"Not reachable at {t['freq_ghz']:g} GHz: the best surface, {best:.0f} µm, gives η {eta:.2f}; "
+                  f"the site minimum η {th.min_ruze_efficiency:.2f} needs ≤ {need:.0f} µm. No weather changes that: "
+                  "observe at a lower frequency.")
 
 
 def explain(decisions: Decisions, i: int) -> Call:
@@ -261,7 +260,7 @@ def explain(decisions: Decisions, i: int) -> Call:
         label = METHOD_LABEL[method]
         if np.isfinite(rms):
             meets = "meets" if rms <= targets["required_surface_rms_um"] else "misses"
-            msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq:g} GHz "
+            msg = (f"{label}: expected {rms:.0f} µm rms → Ruze efficiency {eta:.2f} at {freq_text(freq)} "
                    f"({meets} {_requirement_text(targets)})")
             blocked_low = EFFICIENCY_BLOCK in c.blocks and c.blocks[EFFICIENCY_BLOCK][i]
             if blocked_low:
@@ -270,11 +269,15 @@ def explain(decisions: Decisions, i: int) -> Call:
                                   "block" if blocked_low else "info", msg))
         if np.isfinite(p) and p < th.min_p_usable:
             reasons.append(Reason(model_block(method), method, "block",
-                                  f"{label}: site model gives only {_odds_text(p)} odds of a usable result "
+                                  f"{label}: site model gives only {odds_text(p)} odds of a usable result "
                                   f"(threshold {th.min_p_usable:.0%})"))
         for note in decisions.model_notes.get(method, [])[i:i + 1]:
             if note:
                 reasons.append(Reason(f"model.{method}", method, "info", note))
+        for warning in decisions.model_extrapolation.get(method, [])[i:i + 1]:
+            if warning:
+                reasons.append(Reason(f"model.{method}", method, "warn", warning))
+        extrapolated = decisions.model_extrapolated.get(method)
         cands[method] = {
             "feasible": bool(c.feasible[i]) and verdict != "undetermined",
             "surface_rms_um": None if not np.isfinite(rms) else round(rms, 1),
@@ -282,6 +285,7 @@ def explain(decisions: Decisions, i: int) -> Call:
             "meets_requirement": bool(c.meets_requirement[i]) if np.isfinite(rms) else None,
             "requirement_margin_um": None if not np.isfinite(rms) else round(targets["required_surface_rms_um"] - rms, 1),
             "p_usable": None if not np.isfinite(p) else round(p, 4),
+            "extrapolated": bool(extrapolated[i]) if extrapolated is not None and np.isfinite(p) else False,
             "duration_min": c.duration_min,
             "blocked_by": decisions.blocked_by(method, i),
         }
@@ -298,14 +302,17 @@ def _choice_reasons(verdict: str, cands: dict, site: Site) -> list[Reason]:
         return []
     margin = site.thresholds.laser_preference_efficiency
     gap = round(astro["ruze_efficiency"], 2) - round(scan["ruze_efficiency"], 2)
-    if verdict == "scan":
-        text = (f"Both methods are feasible; the laser is preferred: holography's efficiency is {gap:+.2f} "
-                f"against it, within the {margin:.2f} that favours the laser, and the laser takes "
-                f"{scan['duration_min']:.0f} min instead of {astro['duration_min']:.0f} min of telescope time.")
+    if verdict == "scan" and gap <= 0:
+        text = (f"Both methods are feasible; the laser's efficiency is as good or better, and it takes "
+                f"{scan['duration_min']:.0f} min, not {astro['duration_min']:.0f} min.")
+    elif verdict == "scan":
+        text = (f"Both methods are feasible; holography is only {gap:.2f} better (within the {margin:.2f} that "
+                f"favours the laser), and the laser takes {scan['duration_min']:.0f} min, not "
+                f"{astro['duration_min']:.0f} min.")
     else:
         text = (f"Both methods are feasible; holography's efficiency is {gap:.2f} better, more than the "
                 f"{margin:.2f} that favours the quicker laser scan.")
-    return [Reason("choice", "both", "info", text.replace("+-", "-"))]
+    return [Reason("choice", "both", "info", text)]
 
 
 def _headline(verdict: str, cands: dict, row: pd.Series, decisions: Decisions) -> str:

@@ -11,6 +11,12 @@ and exits with status 2.  ``InsufficientData`` is the one exception that means
 
 from __future__ import annotations
 
+from advisor.text import clean_text, shorten
+
+#: Longest file name / field [characters] and message / hint shown in one error line.
+MAX_SOURCE_CHARS = 160
+MAX_MESSAGE_CHARS = 400
+
 
 class AdvisorError(Exception):
     """Base class: a problem with the user's input, reported on one line."""
@@ -34,20 +40,27 @@ class AdvisorError(Exception):
         self.hint = hint
 
     def location(self) -> str:
-        """``file:line:column`` (the parts that are known), or ``''``."""
+        """``file:line:column`` (the parts that are known), or ``''``; a very long path is elided."""
         parts = [str(p) for p in (self.source, self.line, self.column) if p is not None]
+        if self.source is not None:
+            parts[0] = shorten(clean_text(self.source), MAX_SOURCE_CHARS)
         return ":".join(parts)
 
     def one_line(self) -> str:
-        """The whole error as a single line, without the ``advisor: error:`` prefix."""
-        text = self.message
+        """The whole error as a single line, without the ``advisor: error:`` prefix.
+
+        Control characters and escape sequences (which may come from the files being read) are
+        removed, and over-long parts are elided in the middle, so the line is safe for a
+        terminal or cron mail.
+        """
+        text = shorten(clean_text(self.message), MAX_MESSAGE_CHARS)
         if self.field:
-            text = f"{self.field}: {text}"
+            text = f"{shorten(clean_text(self.field), MAX_SOURCE_CHARS)}: {text}"
         loc = self.location()
         if loc:
             text = f"{loc}: {text}"
         if self.hint:
-            text = f"{text} ({self.hint})"
+            text = f"{text} ({shorten(clean_text(self.hint), MAX_MESSAGE_CHARS)})"
         return " ".join(text.split())
 
     def __str__(self) -> str:  # pragma: no cover - trivial

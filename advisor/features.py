@@ -54,8 +54,11 @@ from advisor.physics.sun import (
 from advisor.physics.track import source_track, sun_separation_over_deg
 from advisor.vocabulary import METHODS
 
-WIND_WINDOW = "10min"
+#: Averaging period of the wind statistics for a feed of one sample a minute or faster [min].
+WIND_WINDOW_MIN = 10.0
 TEMP_RATE_WINDOW_MIN = 60.0
+#: Fewest part of its window a statistic's samples must cover (count × cadence / window).
+MIN_WINDOW_COVERAGE = 0.5
 #: Feed history a row's features read before its time (10-min wind, 1-h temperature rate): what a
 #: chunk of an archive must include before its first row.
 LOOKBACK = pd.Timedelta(hours=2)
@@ -66,12 +69,14 @@ FEATURES_VERSION = 3
 #: Every module whose code decides the row features.  A replay's feature cache hashes their
 #: source; tests/test_featurecache.py fails when the import closure of this module grows beyond it.
 FEATURE_SOURCE_MODULES = (
-    "advisor.features", "advisor.catalogue", "advisor.units", "advisor.errors",
+    "advisor.features", "advisor.catalogue", "advisor.vocabulary", "advisor.io.sitemodel",
+    "advisor.units", "advisor.errors",
     "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
     "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
     "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary", "advisor.physics.ephemeris",
     "advisor.physics.atmosphere", "advisor.physics.absorption", "advisor.physics.p676_tables",
     "advisor.physics.opacity", "advisor.physics.track",
+    "advisor.io.feedfile", "advisor.io.times", "advisor.io.encoding", "advisor.text",
 )
 
 def _ns(times) -> np.ndarray:
@@ -85,23 +90,56 @@ def _ns(times) -> np.ndarray:
     return np.asarray(times, dtype="datetime64[ns]").astype(np.int64)
 
 
-def _rolling(good: pd.DataFrame) -> pd.DataFrame:
-    """10-minute wind statistics and the one-hour temperature rate at each good sample."""
+def sample_cadence_min(time_ns: np.ndarray, kind: np.ndarray) -> np.ndarray:
+    """Each good sample's cadence: the median interval between samples of its kind [min].
+
+    Observations and forecast rows have their own cadence (a 1-minute mast and an hourly
+    forecast in one frame); NaN for a kind with fewer than two samples.
+    """
+    out = np.full(len(time_ns), np.nan)
+    if len(time_ns) < 2:
+        return out
+    dt_prev = np.diff(time_ns, prepend=time_ns[0]) / 6e10
+    for k in np.unique(kind):
+        mine = kind == k
+        intervals = dt_prev[mine][1:]
+        if len(intervals):
+            out[mine] = float(np.median(intervals))
+    return out
+
+
+def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
+    """Wind statistics over :data:`WIND_WINDOW_MIN` and the one-hour temperature rate at each good sample.
+
+    A statistic counts only when its samples cover at least :data:`MIN_WINDOW_COVERAGE` of its
+    window, each sample covering one interval of its feed's cadence (never the silence before
+    it).  So a single calm row after 14 silent minutes never stands for ten minutes of wind: the
+    statistic is NaN and the row is not good.  A slower feed's sample (hourly) covers the whole
+    window and stands for it.
+    """
     series = good.set_index("time")
     out = pd.DataFrame(index=series.index)
+    window = pd.Timedelta(minutes=WIND_WINDOW_MIN)
+    t_ns = _ns(series.index)
+    dt_prev = np.diff(t_ns, prepend=t_ns[0] - int(WIND_WINDOW_MIN * 6e10)) / 6e10
+    covers = np.minimum(np.minimum(dt_prev, cadence_min), WIND_WINDOW_MIN)  # NaN cadence: covers nothing
+    covers = np.where(np.isfinite(covers), covers, 0.0)
+    coverage = pd.Series(covers, index=series.index).rolling(window).sum().to_numpy()
+    covered = coverage >= MIN_WINDOW_COVERAGE * WIND_WINDOW_MIN - 1e-9
     # pandas' rolling mean is an online sum, so its last bits depend on where the series starts;
     # rounding to 1e-6 m/s (far below any anemometer's resolution) makes a row's value the same
     # however the frame was cut (check, outlook and replay chunks agree to the bit).
-    out["wind_mean_ms"] = series["wind_mean_ms"].rolling(WIND_WINDOW).mean().round(6)
-    out["wind_gust_ms"] = series["wind_gust_ms"].rolling(WIND_WINDOW).max()
-    t_ns = _ns(series.index)
+    mean = series["wind_mean_ms"].rolling(window).mean().round(6).to_numpy()
+    gust = series["wind_gust_ms"].rolling(window).max().to_numpy()
+    out["wind_mean_ms"] = np.where(covered, mean, np.nan)
+    out["wind_gust_ms"] = np.where(covered, gust, np.nan)
     temp = series["air_temp_c"].to_numpy()
     back = np.searchsorted(t_ns, t_ns - int(TEMP_RATE_WINDOW_MIN * 60e9), side="left")
     dt_h = (t_ns - t_ns[back]) / 3.6e12
     with np.errstate(invalid="ignore", divide="ignore"):
         rate = (temp - temp[back]) / dt_h
     # need at least half the window of history for a meaningful rate
-    out["air_temp_rate_c_per_h"] = np.where(dt_h >= 0.5 * TEMP_RATE_WINDOW_MIN / 60.0, rate, np.nan)
+    out["air_temp_rate_c_per_h"] = np.where(dt_h >= MIN_WINDOW_COVERAGE * TEMP_RATE_WINDOW_MIN / 60.0, rate, np.nan)
     return out
 
 
@@ -207,7 +245,9 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     pos = np.searchsorted(good_ns, t_ns, side="right") - 1
     has = pos >= 0
     safe = np.clip(pos, 0, None)
-    rolled = _rolling(good) if len(good) else None
+    kinds = good["kind"].to_numpy() if "kind" in good else np.full(len(good), "observed", dtype=object)
+    cadence = sample_cadence_min(good_ns, kinds)
+    rolled = _rolling(good, cadence) if len(good) else None
 
     def take(values: np.ndarray) -> np.ndarray:
         if len(values) == 0:
@@ -226,6 +266,7 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     # --- data quality --------------------------------------------------------------------
     age_min = np.where(has, (t_ns - good_ns[safe]) / 6e10, np.nan) if len(good_ns) else np.full(n, np.nan)
     out["data_age_min"] = age_min
+    out["feed_cadence_min"] = take(cadence)
     latest = np.searchsorted(all_ns, t_ns, side="right") - 1
     latest_ok = np.where(latest >= 0, good_mask[np.clip(latest, 0, None)] if len(good_mask) else False, False)
     out["data_ok"] = has & (age_min <= site.feed.max_feed_age_min) & latest_ok & np.isfinite(out["wind_mean_ms"])

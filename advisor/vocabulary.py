@@ -14,7 +14,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 __all__ = ["METHODS", "VERDICTS", "Verdict", "VERDICT", "EXIT_CODES", "LETTERS", "METHOD_LABEL",
-           "APPLIES_TO", "EFFECTS", "REASON_EFFECTS", "EFFECT_LABEL", "DEMO_BANNER"]
+           "APPLIES_TO", "EFFECTS", "REASON_EFFECTS", "EFFECT_LABEL", "DEMO_BANNER", "MODEL_TRANSFORMS",
+           "MODEL_DIRECTIONS"]
 
 #: The two ways to measure and correct the surface.
 METHODS: tuple[str, ...] = ("scan", "astronomical")
@@ -67,3 +68,12 @@ EFFECT_LABEL: dict[str, str] = {effect: effect for effect in REASON_EFFECTS}
 
 #: Shown on every view whenever the invented demo site or its data are in use.
 DEMO_BANNER = "DEMO DATA — invented site and weather, for trying the tool."
+
+#: How a site-model term is made from its feature x: x, x², |x|, or max(0, knot - x).
+MODEL_TRANSFORMS: tuple[str, ...] = ("identity", "square", "abs", "shortfall")
+#: Which way a site-model term may push the odds of a usable result as the term grows.
+MODEL_DIRECTIONS: dict[str, str] = {
+    "lowers": "can only lower the odds",
+    "raises": "can only raise the odds",
+    "free": "may push the odds either way",
+}

@@ -57,14 +57,14 @@ def main(argv=None) -> int:
     from rich.console import Console
 
     from advisor.commands.session import load_ruleset
-    from advisor.io.feed import canonical_frame
     from advisor.evaluation.outlook import compute_outlook
+    from advisor.io.feed import canonical_frame
     from advisor.io.references import read_registry
+    from advisor.io.site import load_site
     from advisor.views.context import Context
     from advisor.views.outlook_data import outlook_csv_frame, outlook_json
     from advisor.views.outlook_plain import render_plain_outlook
     from advisor.views.outlook_rich import outlook_renderable
-    from advisor.io.site import load_site
 
     md = _make_demo()
     site = load_site(None)
@@ -75,7 +75,7 @@ def main(argv=None) -> int:
     frame = canonical_frame(table, site.feed).frame
     frame["issued_utc"] = start
     registry = read_registry(site.references_path)
-    rules = load_ruleset(site, None)
+    rules = load_ruleset(site, ())
     ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source="benchmark", is_demo=True,
                   data_quality={})
 

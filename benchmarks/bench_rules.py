@@ -25,9 +25,6 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from advisor.features import CATALOGUE, FEATURES  # noqa: E402
-from advisor.rules.loader import default_rule_files, load_rules  # noqa: E402
-
 ROWS = 525_600
 RULES = 50
 BUDGET_S = 1.0
@@ -48,7 +45,7 @@ TEMPLATES = (
 
 
 def site_rules_yaml(count: int) -> str:
-    """``count`` generated rules as a rule file."""
+    """``count`` generated rules as a rule file (also used by run.py's 1000-rule replay)."""
     lines = ["rules:"]
     for i in range(count):
         cond, effect, error = TEMPLATES[i % len(TEMPLATES)]
@@ -63,6 +60,8 @@ def site_rules_yaml(count: int) -> str:
 
 def feature_columns(n: int, seed: int = 1) -> dict[str, np.ndarray]:
     """Synthetic columns for every feature: numbers with some NaN, flags as booleans."""
+    from advisor.features import FEATURES
+
     rng = np.random.default_rng(seed)
     columns = {}
     for spec in FEATURES:
@@ -79,6 +78,9 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeat", type=int, default=5, help="timed repetitions (default 5)")
     args = parser.parse_args(argv)
+    from advisor.features import CATALOGUE
+    from advisor.rules.loader import default_rule_files, load_rules
+
     defaults = [(p, "default") for p in default_rule_files()]
     with tempfile.TemporaryDirectory() as tmp:
         base = load_rules(defaults, CATALOGUE)

@@ -8,6 +8,8 @@ status and a phrase the message must contain.
 from __future__ import annotations
 
 import hashlib
+import os
+import signal
 from pathlib import Path
 
 import pytest
@@ -58,6 +60,18 @@ CASES = [
     ("feed_bad_json.jsonl", check_feed, 2, "invalid json"),
     ("feed_json_array.jsonl", check_feed, 2, "expected a json object"),
     ("does_not_exist.csv", check_feed, 2, "not found"),
+    ("feed_epoch_ms.csv", check_feed, 2, "set feed.time_unit: epoch_ms"),
+    ("feed_year_2300.csv", check_feed, 2, ":21: time: time '2300-01-16t03:50:00z' is outside the years"),
+    ("feed_truncated_time.csv", check_feed, 2, ":21: time: timestamp '2026-01-16t03:5' is incomplete"),
+    ("feed_malformed_offset.csv", check_feed, 2, ":2: time: utc offset '+5:30'"),
+    ("feed_utf16.csv", check_feed, 2, "utf-16 text, not utf-8 (re-save it as utf-8"),
+    ("feed_huge_number.csv", check_feed, 2, ":21: wind_mean_ms: a number too large"),
+    ("feed_duplicate_column.csv", check_feed, 2, ":1: column 'wind_gust_ms' appears twice"),
+    ("feed_no_complete_line.csv", check_feed, 2, "no line ends with a newline"),
+    ("feed_jsonl_true.jsonl", check_feed, 2, ":30: wind_mean_ms: true where a number is expected"),
+    ("feed_jsonl_huge_int.jsonl", check_feed, 2, ":30: wind_gust_ms: value 999999999999… (400 digits)"),
+    ("feed_jsonl_duplicate_key.jsonl", check_feed, 2, ":30: invalid json: key 'wind_mean_ms' given twice"),
+    ("feed_jsonl_deep.jsonl", check_feed, 2, ":30: json nested too deeply"),
     # site files
     ("site_syntax_error.yaml", check_site, 2, "yaml syntax error"),
     ("site_tab_indent.yaml", check_site, 2, "tab"),
@@ -70,9 +84,15 @@ CASES = [
     ("site_bad_calibrator.yaml", check_site, 2, "ra out of range"),
     ("site_no_site_section.yaml", check_site, 2, "missing section"),
     ("site_top_is_list.yaml", check_site, 2, "expected a mapping"),
-    ("site_empty.yaml", check_site, 2, "expected a mapping"),
+    ("site_empty.yaml", check_site, 2, "site file is empty"),
     ("site_latitude_out_of_range.yaml", check_site, 2, "outside -90..90"),
     ("site_min_above_max_elevation.yaml", check_site, 2, "must be above min_calibrator_elevation_deg"),
+    ("site_time_zone_folder.yaml", check_site, 2, ":6: site.time_zone: 'america' is a region, not a time zone"),
+    ("site_duplicate_key.yaml", check_site, 2, ":10:3: key 'high_frequency_wind_limit_ms' given twice (first at line 8)"),
+    ("site_huge_number.yaml", check_site, 2, ":5:20: number 999999999999…999999 (400 digits) is too large"),
+    ("site_bad_time_unit.yaml", check_site, 2, "feed.time_unit: unknown time unit 'unix'"),
+    ("site_utf16.yaml", check_site, 2, "site file is utf-16 text"),
+    ("site_terminal_escape.yaml", check_site, 2, "unknown key: it contains control characters"),
     # rule files
     ("rules_syntax_error.yaml", check_rules, 2, "yaml syntax error"),
     ("rules_unknown_feature.yaml", check_rules, 2, "wind_mean_ms"),
@@ -87,6 +107,9 @@ CASES = [
     ("rules_duplicate_ids.yaml", check_rules, 2, "duplicate"),
     ("rules_not_a_list.yaml", check_rules, 2, "list"),
     ("rules_python_tag.yaml", check_rules, 2, "tag not allowed"),
+    ("rules_empty.yaml", check_rules, 2, "rule file is empty (a truncated or unsaved file looks the same"),
+    ("rules_huge_number.yaml", check_rules, 2, ":6:15: number 111111111111…111111 (400 digits) is too large"),
+    ("rules_utf16.yaml", check_rules, 2, "rule file is utf-16 text"),
     # model files (check falls back to rules only with a note; `model show` refuses them)
     ("model_truncated.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "truncated json"),
     ("model_not_json.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "invalid json"),
@@ -94,10 +117,18 @@ CASES = [
     ("model_wrong_schema.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "schema version 99"),
     ("model_unknown_feature.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "unknown feature"),
     ("model_wrong_unit.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "'kn' in the model"),
+    ("model_deep.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "json nested 100000 levels deep"),
+    ("model_huge_int.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "(400 digits) is too large"),
+    ("model_duplicate_key.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "duplicate key 'format'"),
+    ("model_utf16.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "model file is utf-16 text"),
     # reference registries
     ("refs_bad_time.csv", check_refs, 2, "time"),
     ("refs_missing_column.csv", check_refs, 2, "missing column"),
     ("refs_bad_temperature.csv", check_refs, 2, "not a number"),
+    ("refs_year_2300.csv", check_refs, 2, ":2: time: time '2300-01-15t09:00:00z' is outside the years"),
+    ("refs_utf16.csv", check_refs, 2, "reference registry is utf-16 text"),
+    ("refs_huge_number.csv", check_refs, 2, ":2: air_temp_c: air_temp_c 111111111111… (400 characters)"),
+    ("refs_duplicate_column.csv", check_refs, 2, ":1: column 'time' appears twice"),
 ]
 
 ARG_CASES = [
@@ -106,6 +137,10 @@ ARG_CASES = [
     (["check", "--freq", "eighty-six"], "cannot read frequency"),
     (["check", "--at", "yesterday-ish"], "cannot read time"),
     (["check", "--at", "2026-01-15T09:00"], "--at"),
+    (["check", "--at", "9999-12-31T23:59:59Z"], "--at"),
+    (["check", "--at", "2300-01-01T00:00:00Z"], "--at"),
+    (["check", "--at", "1768534260000"], "--at"),
+    (["check", "--at", "2026-01-16T03:3Z"], "--at"),
     (["check", "--no-such-option"], "unrecognized arguments"),
     (["no-such-command"], "invalid choice"),
     (["reference", "add", "--references", "/tmp/x.csv", "--time", "soon", "--air-temp-c", "1"], "--time"),
@@ -194,3 +229,49 @@ def test_broken_model_makes_check_fall_back_to_rules_only(capsys):
     assert all(c["p_usable"] is None for c in doc["candidates"].values())
     assert any("rests on rules and the error budget only" in note for note in doc["notes"])
     assert "falling back to rules only" in err
+
+
+# --- paths that are not regular files, or cannot name one --------------------------------
+
+def _special(kind: str, where: Path) -> str:
+    if kind == "fifo":
+        path = where / "input.fifo"
+        os.mkfifo(path)
+        return str(path)
+    return {"device": "/dev/zero", "directory": str(where), "nul": "input\0.csv",
+            "path_too_long": "/x" * 3000, "name_too_long": "/tmp/" + "n" * 300}[kind]
+
+
+SPECIAL_KINDS = {"fifo": "named pipe (fifo)", "device": "character device", "directory": "is a directory",
+                 "nul": "nul character", "path_too_long": "above the system's limit", "name_too_long": "a name in the"}
+FILE_OPTIONS = {
+    "--feed": lambda p: ["check", "--feed", p, "--at", AT],
+    "--site": lambda p: ["check", "--site", p, "--feed", GOOD_FEED, "--at", AT],
+    "--rules": lambda p: ["check", "--feed", GOOD_FEED, "--at", AT, "--rules", p],
+    "--references": lambda p: ["check", "--feed", GOOD_FEED, "--at", AT, "--references", p],
+    "model show": lambda p: ["model", "show", p],
+    "train --history": lambda p: ["train", "--history", p, "--out", "/nonexistent-folder/model.json"],
+}
+
+
+@pytest.mark.parametrize("option", FILE_OPTIONS)
+@pytest.mark.parametrize("kind", SPECIAL_KINDS)
+def test_special_files_and_impossible_paths_give_one_line_without_blocking(capsys, tmp_path, kind, option):
+    """A FIFO is never opened for a blocking read (the alarm turns a hang into a failure)."""
+    path = _special(kind, tmp_path)
+    signal.signal(signal.SIGALRM, _hung)
+    signal.alarm(60)
+    try:
+        status = main(FILE_OPTIONS[option](path))
+    finally:
+        signal.alarm(0)
+    out, err = capsys.readouterr()
+    lines = err.strip().splitlines()
+    assert status == 2 and out == "", (out, err)
+    assert len(lines) == 1 and lines[0].startswith("advisor: error: "), err
+    assert SPECIAL_KINDS[kind] in lines[0].lower(), lines[0]
+    assert len(lines[0]) < 800 and "\0" not in lines[0]
+
+
+def _hung(*_):
+    raise AssertionError("the command blocked on a pipe or device")

@@ -35,7 +35,9 @@ def test_demo_check_runs_and_is_labelled(capsys):
     status, out, err = run(capsys, "check")
     assert status in (0, 10, 11, 12)
     assert "DEMO DATA" in out
-    assert "VERDICT:" in out and "Cautions:" in out
+    assert "VERDICT:" in out and "Advisory only" in out
+    status, out, err = run(capsys, "check", "--details")
+    assert "VERDICT:" in out and "Stow the antenna" in out and "[budget.scan]" in out
     assert err == ""
 
 

@@ -15,7 +15,7 @@ ROOT = Path(__file__).resolve().parents[1]
 PACKAGE = ROOT / "advisor"
 
 #: Modules that compute or read and write files: none may import a view or rich.
-BELOW_VIEWS = ("errors.py", "units.py", "vocabulary.py", "catalogue.py", "physics", "io", "features.py",
+BELOW_VIEWS = ("errors.py", "text.py", "units.py", "fmt.py", "vocabulary.py", "catalogue.py", "physics", "io", "features.py",
                "rules", "model", "decision.py", "evaluation")
 FORBIDDEN_BELOW_VIEWS = ("advisor.views", "rich")
 

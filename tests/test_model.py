@@ -16,11 +16,11 @@ import pytest
 
 from advisor.decision import explain
 from advisor.errors import ModelError
-from advisor.io.feed import canonical_frame
-from advisor.model.inference import (MAX_MODEL_BYTES, MethodModel, SiteModel, Term, dumps_model, load_model,
-                           model_to_dict, parse_model, term_matrix)
 from advisor.evaluation.evaluate import evaluate
+from advisor.io.feed import canonical_frame
 from advisor.io.site import FeedLayout
+from advisor.model.inference import MethodModel, SiteModel, Term, term_matrix
+from advisor.model.modelfile import MAX_MODEL_BYTES, dumps_model, load_model, model_to_dict, parse_model
 
 from .conftest import NIGHT_UTC, registry_at, weather_table
 
@@ -48,15 +48,14 @@ def bundled_doc() -> dict:
 
 # --- inference ------------------------------------------------------------------------------
 
-def test_numpy_inference_equals_sklearn_predict_proba():
-    """The exported JSON, read back and applied with numpy, reproduces the fitted scikit-learn
-    pipeline's predict_proba (the reference implementation) to 1e-9."""
+def test_numpy_inference_equals_the_fitted_model():
+    """The exported JSON, read back and applied with numpy, reproduces the fit's own odds to 1e-9."""
     from advisor.io.site import load_site
     from advisor.model.training import history_features, read_history, train
 
     site = load_site(None)
     history = read_history(ROOT / "example_weather" / "larch_basin_history.csv")
-    features = history_features(history, site)
+    features = history_features(history, site).features
     result = train(history, features)
     model = parse_model(dumps_model(result.model), "round-trip")
     rng = np.random.default_rng(3)
@@ -64,9 +63,35 @@ def test_numpy_inference_equals_sklearn_predict_proba():
                           "air_temp_rate_c_per_h": rng.uniform(-4, 4, 500)})
     for frame in (features[features["data_ok"]], probe):
         for method, fit in result.fits.items():
-            expected = fit.pipeline.predict_proba(term_matrix(frame, fit.terms))[:, 1]
+            expected = fit.predict_terms(term_matrix(frame, fit.terms))
             got = model.methods[method].predict(frame)
             np.testing.assert_allclose(got, expected, rtol=0, atol=1e-9)
+
+
+def test_unbounded_fit_is_scikit_learns_logistic_regression():
+    """With every term free, the fit minimises scikit-learn's L2 objective: the same coefficients
+    as ``StandardScaler`` + ``LogisticRegression(C=10)`` (the reference implementation) to 1e-6."""
+    from sklearn.linear_model import LogisticRegression
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+
+    from advisor.io.site import load_site
+    from advisor.model.logistic import fit_logistic
+    from advisor.model.training import DEFAULT_TERMS, history_features, read_history
+
+    site = load_site(None)
+    history = read_history(ROOT / "example_weather" / "larch_basin_history.csv")
+    features = history_features(history, site).features
+    for method in ("scan", "astronomical"):
+        rows = (history.frame["method"] == method).to_numpy()
+        X = term_matrix(features[rows], DEFAULT_TERMS[method])
+        y = history.frame["usable"].to_numpy()[rows].astype(int)
+        ours = fit_logistic(X, y, 10.0)
+        pipe = make_pipeline(StandardScaler(), LogisticRegression(C=10.0, tol=1e-12, max_iter=100_000)).fit(X, y)
+        reference = pipe.named_steps["logisticregression"]
+        np.testing.assert_allclose(ours.coef, reference.coef_[0], rtol=0, atol=1e-6)
+        assert ours.intercept == pytest.approx(reference.intercept_[0], abs=1e-6)
+        np.testing.assert_allclose(ours.predict(X), pipe.predict_proba(X)[:, 1], rtol=0, atol=1e-7)
 
 
 def test_prediction_follows_the_logistic_formula():
@@ -104,9 +129,9 @@ def test_json_round_trip_is_exact():
 def _evaluate(model, **weather):
     table = weather_table(**weather)
     feed = canonical_frame(table, FeedLayout(max_feed_age_min=15))
-    from advisor.rules.loader import default_rule_files, load_rules
     from advisor.features import CATALOGUE
     from advisor.io.site import load_site
+    from advisor.rules.loader import default_rule_files, load_rules
 
     rules = load_rules([(p, "default") for p in default_rule_files()], CATALOGUE)
     site = load_site(None)
@@ -179,21 +204,27 @@ def _mutate(doc: dict, path: str, value):
 _DELETE = object()
 
 BAD_DOCS = [
-    ("schema_version", 2, "schema version 2 is not supported"),
+    ("schema_version", 3, "schema version 3 is not supported"),
     ("schema_version", "1", "expected an integer"),
     ("format", "something-else", "not an advisor site model"),
     ("features.0.name", "wind_gusts_ms", "unknown feature 'wind_gusts_ms'"),
     ("features.0.unit", "kn", "is in 'kn' in the model but in 'm/s'"),
-    ("methods.scan.logistic.coef", [1.0, 2.0], "expected 3 numbers (one per term), got 2"),
+    ("methods.astronomical.logistic.coef", [-1.0, -2.0], "expected 3 numbers (one per term), got 2"),
     ("methods.scan.logistic.intercept", True, "expected a finite number"),
     ("methods.scan.logistic.intercept", "2.5", "expected a finite number"),
-    ("methods.scan.scaler.scale", [1.0, 0.0, 1.0], "every scale must be positive"),
+    ("methods.astronomical.scaler.scale", [1.0, 0.0, 1.0], "every scale must be positive"),
     ("methods.scan.terms.0.transform", "exp", "unknown transform 'exp'"),
     ("methods.scan.terms.0.name", "gust_sq", "does not match its definition"),
     ("methods.scan.terms.0.unit", "m/s", "does not match '(m/s)^2'"),
     ("methods.scan.terms.1.knot", _DELETE, "a shortfall term needs a 'knot'"),
     ("methods.scan.terms.0.feature", "air_temp_c", "not in the model's feature list"),
     ("methods.scan.pickle", "x", "unknown key 'pickle'"),
+    ("methods.scan.terms.0.direction", "down", "unknown direction 'down'"),
+    ("methods.scan.terms.0.direction", _DELETE, "missing key 'direction'"),
+    ("methods.scan.logistic.coef.0", 0.5, "contradicts its declared direction (lowers)"),
+    ("methods.scan.feature_range", _DELETE, "missing key 'feature_range'"),
+    ("methods.scan.feature_range.min", [0.0], "expected a list of 2 numbers or nulls"),
+    ("methods.scan.feature_range.max.0", -5.0, "a minimum is above its maximum"),
     ("methods.holography", {}, "unknown method"),
     ("features", [], "expected a non-empty list"),
     ("methods", {}, "expected an object with 'scan' and/or 'astronomical'"),

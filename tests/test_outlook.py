@@ -186,7 +186,7 @@ def test_csv_has_one_row_per_step_with_iso_utc_time_and_verdict(capsys, files):
     assert times[0] == NIGHT_UTC and (np.diff(times.as_unit("s").asi8) == 600).all()
     assert {r[1] for r in rows} <= set(VERDICTS)
     gap_col = header.index("gap")
-    assert [r[1] for r in rows if r[gap_col] == "True"] == ["undetermined", "undetermined"]
+    assert [r[1] for r in rows if r[gap_col] == "true"] == ["undetermined", "undetermined"]   # CSV booleans: true/false
 
 
 def test_json_carries_steps_windows_and_next_window(capsys, files):

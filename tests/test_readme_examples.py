@@ -32,8 +32,9 @@ COMMANDS = readme_commands()
 
 def test_readme_shows_the_everyday_commands():
     shown = " ".join(COMMANDS)
-    for sub in ("check", "reference add", "reference list", "outlook", "replay", "train", "model show",
-                "rules lint", "rules show", "rules explain", "rules features"):
+    for sub in ("check", "reference add", "reference list", "attempt add", "attempt list", "outlook", "replay",
+                "train", "model show",
+                "rules lint", "rules show", "rules explain", "rules features", "demo copy"):
         assert f"advisor {sub}" in shown, sub
 
 
@@ -45,14 +46,34 @@ def test_readme_command_runs(command, monkeypatch, tmp_path, capsys):
     if ">" in argv:  # shell redirection: keep the command, drop the target
         argv = argv[: argv.index(">")]
     if "--svg" in argv:
-        argv[argv.index("--svg") + 1] = str(tmp_path / "outlook.svg")
+        argv[argv.index("--svg") + 1] = str(tmp_path / "picture.svg")
     if argv[:2] == ["model", "show"]:
         assert main(["train", "--history", "example_weather/larch_basin_history.csv",
                      "--out", str(tmp_path / "model.json")]) == 0
+    if argv[:2] == ["attempt", "list"]:
+        assert main(["attempt", "add", "--history", str(tmp_path / "attempts.csv"), "--method", "scan",
+                     "--feed", "example_weather/larch_basin_mast.csv", "--usable", "yes",
+                     "--time", "2026-11-30T03:10:00Z"]) == 0
     if argv[:2] == ["reference", "list"]:
         main(["reference", "add", "--references", str(tmp_path / "refs.csv"), "--time", "2026-11-30T03:10:00Z",
               "--air-temp-c", "-3.2"])
-    status = main(argv)
-    out, err = capsys.readouterr()
-    assert status in (0, 10, 11, 12), (command, err)
-    assert "error" not in err.lower(), err
+    # "advisor a && advisor b": each in turn, in the same folder
+    chain = [argv]
+    while "&&" in chain[-1]:
+        k = chain[-1].index("&&")
+        assert chain[-1][k + 1] == "advisor", command
+        chain[-1:] = [chain[-1][:k], chain[-1][k + 2:]]
+    for part in chain:
+        status = main(part)
+        out, err = capsys.readouterr()
+        assert status in (0, 10, 11, 12), (command, err)
+        assert "error" not in err.lower(), err
+
+
+def test_readme_shows_the_real_check_screen(monkeypatch, capsys):
+    """The piped `advisor check` output pasted in README.md is what the demo prints today."""
+    monkeypatch.chdir(ROOT)
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    pasted = next(b for b in re.findall(r"```\n(.*?)```", text, flags=re.S) if b.startswith("advisor · "))
+    assert main(["check"]) == 0
+    assert capsys.readouterr().out == pasted

@@ -37,6 +37,7 @@ def test_hours_by_sums_and_keeps_every_verdict_column():
 
 
 def test_false_go_and_missed_against_attempts():
+    """Without feasibility masks, 'go' is the call naming the method."""
     times = _times(6)
     verdict = np.array(["scan", "scan", "astronomical", "astronomical", "scan", "postpone"], dtype=object)
     fired = {"windy": np.array([False, True, True, False, False, False])}
@@ -46,13 +47,39 @@ def test_false_go_and_missed_against_attempts():
         usable=np.array([True, False, True, True, False]),
         source="test")
     score = score_attempts(times, verdict, RuleEvaluation(fired, {}), attempts, max_age_min=15)
-    assert score["scan_attempts"] == 4
-    assert score["scan_advised_at_attempts"] == 2          # rows 0 and 1
-    assert score["false_go"] == 1 and score["false_go_rate"] == 0.5   # row 1 failed
-    assert score["usable_scans_not_advised"] == 1 and score["missed_rate"] == 0.5  # row 2
-    windy = next(r for r in score["per_rule"] if r["rule"] == "windy")
-    assert windy == {"rule": "windy", "scan_attempts_when_fired": 2, "failed_when_fired": 1,
+    scan = score["methods"]["scan"]
+    assert scan["attempts"] == 4 and scan["usable"] == 2
+    assert scan["allowed"] == scan["advised"] == 2                 # rows 0 and 1
+    assert scan["false_go"] == 1 and scan["false_go_rate"] == 0.5   # row 1 failed
+    assert scan["missed"] == 1 and scan["missed_rate"] == 0.5       # row 2
+    windy = next(r for r in scan["per_rule"] if r["rule"] == "windy")
+    assert windy == {"rule": "windy", "attempts_when_fired": 2, "failed_when_fired": 1,
                      "false_go_when_fired": 1, "missed_when_fired": 1}
+    astro = score["methods"]["astronomical"]
+    assert astro["attempts"] == 1 and astro["allowed"] == 1 and astro["false_go"] == 0 and astro["missed"] == 0
+    assert astro["per_rule"] == []                                  # 'windy' did not fire at row 3
+
+
+def test_both_methods_are_scored_by_what_the_advice_allowed():
+    """With feasibility masks, a method is 'go' wherever it was feasible, even when the other was
+    the call; each method's per-rule table lists only the rules that concern it."""
+    times = _times(4)
+    verdict = np.array(["scan", "scan", "astronomical", "postpone"], dtype=object)
+    feasible = {"scan": np.array([True, True, True, False]),          # row 2: scan feasible, not the call
+                "astronomical": np.array([True, False, True, False])}
+    fired = {"fog": np.array([False, True, False, True]), "calibrator_low": np.array([False, True, False, True])}
+    attempts = Attempts(times_utc=times + pd.Timedelta(minutes=1),
+                        method=np.array(["astronomical", "astronomical", "scan", "scan"]),
+                        usable=np.array([False, True, True, True]), source="test")
+    score = score_attempts(times, verdict, RuleEvaluation(fired, {}), attempts, 15, feasible,
+                           {"fog": "scan", "calibrator_low": "astronomical"})
+    scan, astro = score["methods"]["scan"], score["methods"]["astronomical"]
+    assert (scan["allowed"], scan["advised"], scan["false_go"], scan["missed"]) == (1, 0, 0, 1)
+    assert scan["missed_rate"] == 0.5 and scan["false_go_rate"] == 0.0
+    assert (astro["allowed"], astro["false_go"], astro["missed"]) == (1, 1, 1)
+    assert astro["false_go_rate"] == 1.0 and astro["missed_rate"] == 1.0
+    assert [r["rule"] for r in scan["per_rule"]] == ["fog"]
+    assert [r["rule"] for r in astro["per_rule"]] == ["calibrator_low"]
 
 
 def test_attempts_outside_the_archive_are_not_scored():
@@ -60,7 +87,7 @@ def test_attempts_outside_the_archive_are_not_scored():
     attempts = Attempts(pd.DatetimeIndex([times[-1] + pd.Timedelta(hours=5)]), np.array(["scan"]),
                         np.array([True]), "test")
     score = score_attempts(times, np.array(["scan"] * 3, dtype=object), RuleEvaluation({}, {}), attempts)
-    assert score["attempts_covered"] == 0 and score["missed_rate"] is None
+    assert score["attempts_covered"] == 0 and score["methods"]["scan"]["missed_rate"] is None
 
 
 def test_compare_attributes_changes_to_the_rule_that_differs():
@@ -105,10 +132,29 @@ def test_replay_compare_rules_disabling_fog_rule(capsys, tmp_path, sample_args):
 def test_replay_csv_export(tmp_path, sample_args):
     out = tmp_path / "steps.csv"
     assert main(sample_args + ["--csv", str(out), "--json"]) == 0
-    table = pd.read_csv(out)
-    assert list(table.columns) == ["time", "verdict"]
+    table = pd.read_csv(out, dtype=str, keep_default_na=False)
+    for column in ("time", "verdict", "blocked_by_scan", "blocked_by_astronomical", "p_usable_scan",
+                   "surface_rms_um_astronomical", "odds_extrapolated_scan", "wind_gust_ms", "dew_point_spread_c",
+                   "reference_age_h", "fog", "data_ok"):
+        assert column in table.columns, column
     assert set(table["verdict"]) <= {"scan", "astronomical", "postpone", "undetermined"}
     assert table["time"].str.endswith("Z").all()
+    for flag in ("fog", "data_ok", "has_reference", "odds_extrapolated_scan"):
+        assert set(table[flag]) <= {"true", "false"}, flag
+    # a method is blocked exactly where the replay found it infeasible for a stated reason
+    postponed = table[table["verdict"] == "postpone"]
+    assert len(postponed) and (postponed["blocked_by_scan"] != "").all()
+    scanned = table[table["verdict"] == "scan"]
+    assert len(scanned) and (scanned["blocked_by_scan"] == "").all()
+    tokens = {t for cell in table["blocked_by_scan"] for t in cell.split(";") if t}
+    assert tokens and tokens <= {*_rule_ids(), "efficiency.min", "target.unreachable", "model.scan", "data"}
+
+
+def _rule_ids() -> set[str]:
+    from advisor.features import CATALOGUE
+    from advisor.rules.loader import default_rule_files, load_rules
+
+    return {r.id for r in load_rules([(p, "default") for p in default_rule_files()], CATALOGUE)}
 
 
 def test_replay_without_feed_is_usage_error(capsys):
@@ -117,23 +163,57 @@ def test_replay_without_feed_is_usage_error(capsys):
 
 
 def test_replay_scores_the_demo_history(capsys):
-    """The history file that trains the model is the same one replay scores against."""
+    """The history file that trains the model is the same one replay scores against: both methods."""
     argv = ["replay", "--site", str(DEMO / "larch_basin.yaml"), "--feed", str(DEMO / "larch_basin_archive_sample.csv"),
             "--references", str(DEMO / "larch_basin_archive_references.csv"),
             "--history", str(DEMO / "larch_basin_history.csv"), "--json"]
     assert main(argv) == 0
     attempts = json.loads(capsys.readouterr().out)["attempts"]
-    assert attempts["scan_attempts"] > 0
-    assert attempts["false_go"] <= attempts["scan_advised_at_attempts"]
-    assert 0.0 <= (attempts["missed_rate"] or 0.0) <= 1.0
+    history = pd.read_csv(DEMO / "larch_basin_history.csv")
+    in_period = history[(history["time"] >= "2026-01-01") & (history["time"] < "2026-03-01T00:05")]
+    assert attempts["attempts_covered"] == len(in_period)
+    for method in ("scan", "astronomical"):
+        m = attempts["methods"][method]
+        assert m["attempts"] == int((in_period["method"] == method).sum()) > 0
+        assert m["usable"] == int(((in_period["method"] == method) & (in_period["usable"] == "yes")).sum())
+        assert m["false_go"] <= m["allowed"] <= m["attempts"]
+        assert 0.0 <= (m["missed_rate"] or 0.0) <= 1.0
+
+
+def test_replay_warns_when_the_registry_does_not_cover_the_period(capsys, sample_args):
+    """The demo week's registry starts in November 2026: replaying January with it leaves the
+    laser without a reference the whole time, and replay says so instead of a silent 'scan 0 h'."""
+    argv = [a for a in sample_args]
+    argv[argv.index("--references") + 1] = str(DEMO / "references.csv")
+    assert main(argv + ["--json"]) == 0
+    captured = capsys.readouterr()
+    doc = json.loads(captured.out)
+    assert doc["hours"]["scan"] == 0.0
+    assert len(doc["warnings"]) == 1 and "no reference scan is in force" in doc["warnings"][0]
+    assert "(100%)" in doc["warnings"][0] and "advisor: warning:" in captured.err
+    assert main(sample_args + ["--json"]) == 0                     # the archive's own registry covers it
+    assert json.loads(capsys.readouterr().out)["warnings"] == []
+
+
+def test_replay_warns_when_the_history_does_not_cover_the_period(capsys, sample_args, tmp_path):
+    history = tmp_path / "attempts.csv"
+    history.write_text("time,method,usable\n2026-01-19T03:00:00Z,scan,yes\n2026-01-19T05:00:00Z,astronomical,no\n")
+    assert main(sample_args + ["--history", str(history), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert any("have no attempt to score against" in w and "2 attempts only" in w for w in doc["warnings"])
+    late = tmp_path / "late.csv"
+    late.write_text("time,method,usable\n2026-06-19T03:00:00Z,scan,yes\n")
+    assert main(sample_args + ["--history", str(late), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert any("falls in the replayed period" in w and "nothing to score" in w for w in doc["warnings"])
 
 
 def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules, tmp_path):
     """--compare-rules computes the features once; the verdicts must equal separate replays."""
     from advisor.commands.session import load_ruleset
+    from advisor.evaluation.replay import replay_rule_sets, replay_verdicts
     from advisor.io.feed import read_feed
     from advisor.io.references import read_registry
-    from advisor.evaluation.replay import replay_rule_sets, replay_verdicts
     from advisor.io.site import load_site
 
     site = load_site(DEMO / "larch_basin.yaml")

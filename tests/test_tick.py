@@ -117,10 +117,13 @@ def test_first_tick_writes_every_file_and_announces(capsys, site, state):
 def test_unchanged_verdict_is_silent_and_keeps_changed_since(capsys, site, state):
     tick(capsys, site, state)
     first = json.loads((state / "advisory.json").read_text())
-    status, out, err = tick(capsys, site, state)
+    later = (pd.Timestamp(AT) + pd.Timedelta(minutes=5)).strftime("%Y-%m-%dT%H:%M:%SZ")
+    status, out, err = tick(capsys, site, state, at=later)
     assert (status, out, err) == (0, "", "")
     doc = json.loads((state / "advisory.json").read_text())
-    assert doc["changed_since"] == first["changed_since"] and doc["issued_utc"] > first["issued_utc"]
+    # --at drives the advisory's clocks: issued is the evaluation time, since stays at the first run's
+    assert doc["changed_since"] == first["changed_since"] == first["issued_utc"] == AT.replace("Z", ".000Z")
+    assert doc["issued_utc"] == later.replace("Z", ".000Z")
     assert [h["change"] for h in history(state)] == ["first", None]
 
 
@@ -303,8 +306,8 @@ def test_history_rotates_at_the_configured_size(capsys, tmp_path, state):
     assert rotated and current
     assert (state / "history.jsonl").stat().st_size <= 1000
     assert (state / "history.jsonl.1").stat().st_size <= 1000
-    issued = [h["issued_utc"] for h in rotated + current]
-    assert issued == sorted(issued) and len(set(issued)) == len(issued)
+    written = [h["written_utc"] for h in rotated + current]   # the machine's clock (issued is --at's)
+    assert written == sorted(written) and len(set(written)) == len(written)
 
 
 def test_partial_history_line_from_a_crash_is_cut_and_reported(capsys, site, state):
@@ -373,3 +376,24 @@ def test_track_change_rules():
     assert later.kind is None and later.feed_looks_dead
     first_dead = track_change(None, "undetermined", (), now, 1, False)
     assert first_dead.kind == "first" and "feed looks dead" in first_dead.headline
+
+
+def test_notify_output_goes_to_its_own_log_not_into_cron_mail(capfd, tmp_path, state):
+    code = "import sys; sys.stdin.read(); print('NOTIFY-OUT'); print('NOTIFY-ERR', file=sys.stderr)"
+    site = make_site(tmp_path, tick=f"tick:\n  notify_command: [{json.dumps(sys.executable)}, '-c', {json.dumps(code)}]\n")
+    assert main(tick_argv(site, state)) == 0
+    out, err = capfd.readouterr()                  # what cron would mail: the advisory once, nothing of notify's
+    assert "NOTIFY" not in out + err and out.count("VERDICT: SCAN NOW") == 2   # verdict first and last line
+    log = (state / "notify.log").read_text()
+    assert log.startswith("--- 2026-01-16T04:00:00.000Z ") and "NOTIFY-OUT" in log and "NOTIFY-ERR" in log
+
+
+def test_at_drives_the_advisory_clocks(capsys, tmp_path, state):
+    site = make_site(tmp_path)
+    tick(capsys, site, state, at="2026-01-16T03:00:00Z")
+    tick(capsys, site, state, "--freq", "300", at="2026-01-16T03:30:00Z")   # the verdict changes here
+    tick(capsys, site, state, "--freq", "300", at="2026-01-16T04:00:00Z")
+    doc = json.loads((state / "advisory.json").read_text())
+    assert doc["issued_utc"] == "2026-01-16T04:00:00.000Z" and doc["changed_since"] == "2026-01-16T03:30:00.000Z"
+    text = (state / "advisory.txt").read_text()
+    assert text.startswith("Issued 2026-01-16 04:00:00 UTC") and "since 2026-01-16 03:30:00 UTC" in text

@@ -33,12 +33,14 @@ class Command(NamedTuple):
 COMMANDS = (
     Command("check", "check", "the call for one instant (default: now)"),
     Command("reference", "reference", "the reference-scan registry"),
+    Command("attempt", "attempt", "record and list the site's attempts (outcome and the weather at the time)"),
     Command("rules", "rules", "lint, show and explain the rule set"),
     Command("replay", "replay", "replay an archive: hours per verdict, scores against attempts, rule-set changes"),
     Command("tick", "tick", "one cron/timer run: keep the advisory in a state dir, speak only on change"),
     Command("train", "model", "fit the site model on the site's past attempts"),
     Command("model", "model", "inspect a site model file"),
     Command("outlook", "outlook", "the call at every forecast step and the next window for each method"),
+    Command("demo", "demo", "copy the invented demo site, feed, registry and rules to a folder to edit"),
 )
 
 

@@ -77,7 +77,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
     from advisor.evaluation.outlook import combine_frames, compute_outlook
     from advisor.io.feed import read_feed
     from advisor.views.context import Context
-    from advisor.views.outlook_data import outlook_csv_frame, outlook_json
+    from advisor.views.outlook_data import outlook_csv_text, outlook_json
     from advisor.views.outlook_plain import render_plain_outlook
     from advisor.views.outlook_rich import outlook_renderable, outlook_svg
 
@@ -115,7 +115,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(outlook_json(outlook, ctx), indent=2, allow_nan=False))
     elif args.csv:
-        outlook_csv_frame(outlook).to_csv(sys.stdout, index=False, lineterminator="\n")
+        sys.stdout.write(outlook_csv_text(outlook))
     elif session.want_color(sys.stdout):
         from rich.console import Console
 

@@ -1,4 +1,8 @@
-"""``advisor reference add|list``: the registry of reference scans (taken right after an astronomical correction)."""
+"""``advisor reference add|list``: the registry of reference scans (taken right after an astronomical correction).
+
+``add`` takes the air temperature at the scan from ``--air-temp-c``, or else from the feed (the
+site's, or ``--feed``) at the scan's time, computed as ``check`` computes it, and says so.
+"""
 
 from __future__ import annotations
 
@@ -21,10 +25,12 @@ def add_parser(sub, name: str, help: str) -> None:
     actions = ref.add_subparsers(dest="action", metavar="ACTION")
     add = actions.add_parser("add", help="record a reference scan")
     add.add_argument("--time", required=True, metavar="TIME", help=session.time_help("when it was taken"))
-    add.add_argument("--air-temp-c", required=True, metavar="DEGC", help="air temperature at the scan [°C]")
+    add.add_argument("--air-temp-c", metavar="DEGC",
+                     help="air temperature at the scan [°C] (default: the feed's at that time)")
     add.add_argument("--note", help="free text, e.g. 'after holography on 3C 84'")
-    add.add_argument("--site", metavar="SITE.yaml", help="use the site's registry")
+    add.add_argument("--site", metavar="SITE.yaml", help="use the site's registry and feed")
     add.add_argument("--references", metavar="REFS.csv", help="registry file (created if absent)")
+    add.add_argument("--feed", metavar="FEED", help="feed to read the air temperature from (default: the site's)")
     add.set_defaults(func=cmd_reference_add)
     lst = actions.add_parser("list", help="show the registry with ages")
     lst.add_argument("--site", metavar="SITE.yaml")
@@ -55,19 +61,48 @@ def _resolve(option: session.TimeOption | None, request: session.Request) -> pd.
     return option.resolve(load_site(request.site_path).time_zone if option.days_back is not None else None)
 
 
+def _feed_temperature(request: session.Request, time: pd.Timestamp) -> tuple[float, str]:
+    """The air temperature at ``time`` from the feed, as ``check`` computes it, and where it came from."""
+    from advisor.errors import FeedError
+    from advisor.model.attempts import not_covered, read_feed_for, weather_at
+
+    if request.site_path is None and request.feed_path is None:
+        raise UsageError("no air temperature given and no feed to read it from", field="--air-temp-c",
+                         hint="give --air-temp-c DEGC, or --site SITE.yaml / --feed FILE to take it from the feed")
+    site = load_site(request.site_path)
+    path = request.feed_path or site.feed.path
+    if path is None:
+        raise UsageError("no air temperature given and the site file names no feed", field="--air-temp-c",
+                         hint="give --air-temp-c DEGC or --feed FILE")
+    feed = read_feed_for(path, session.feed_layout(site, named_on_command_line=request.feed_path is not None), [time])
+    weather = weather_at(feed.frame, pd.DatetimeIndex([time]), site)
+    why = not_covered(weather, 0, feed.frame, site)
+    temp = float(weather["air_temp_c"].iloc[0])
+    if not math.isfinite(temp) or (why is not None and "temperature rate" not in why):
+        raise FeedError(f"no air temperature at the scan: {why or 'the feed gives none'}", source=feed.source,
+                        field="--time", hint="nothing was added; give --air-temp-c DEGC")
+    sample = weather["sample_time"].iloc[0]
+    return temp, f"from the feed {feed.source} (sample of {sample:%Y-%m-%dT%H:%M:%SZ})"
+
+
 def cmd_reference_add(args: argparse.Namespace) -> int:
     request = session.request_from(args)
     path = _registry_path(request)
     time = _resolve(session.parse_time(args.time, "--time"), request)
-    try:
-        temp = float(args.air_temp_c)
-    except ValueError:
-        raise UsageError(f"air temperature {args.air_temp_c!r} is not a number", field="--air-temp-c",
-                         hint="give °C, e.g. 3.5") from None
-    if math.isnan(temp):
-        raise UsageError("air temperature is NaN", field="--air-temp-c")
+    if args.air_temp_c is None:
+        temp, origin = _feed_temperature(request, time)
+    else:
+        try:
+            temp = float(args.air_temp_c)
+        except ValueError:
+            raise UsageError(f"air temperature {args.air_temp_c!r} is not a number", field="--air-temp-c",
+                             hint="give °C, e.g. 3.5") from None
+        if math.isnan(temp):
+            raise UsageError("air temperature is NaN", field="--air-temp-c")
+        origin = "as given"
     registry = append_reference(path, time, temp, args.note or "")
-    print(f"added reference scan at {time:%Y-%m-%dT%H:%M:%SZ} ({temp:.1f} °C) to {path}; {len(registry)} in registry")
+    print(f"added reference scan at {time:%Y-%m-%dT%H:%M:%SZ} ({temp:.1f} °C, {origin}) to {path}; "
+          f"{len(registry)} in registry")
     return 0
 
 

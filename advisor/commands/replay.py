@@ -1,4 +1,9 @@
-"""``advisor replay``: evaluate every row of an archive and report hours, scores and rule changes."""
+"""``advisor replay``: evaluate every row of an archive and report hours, scores and rule changes.
+
+Scores both methods against recorded attempts (``--history``), writes one row per step with
+what blocked each method and the key features (``--csv``), and warns when the reference
+registry or the history does not cover the replayed period (stderr, and ``warnings`` in JSON).
+"""
 
 from __future__ import annotations
 
@@ -15,11 +20,13 @@ from advisor.commands import session
 from advisor.errors import UsageError
 from advisor.io import featurecache
 from advisor.io.feed import check_whole_read, read_feed
+from advisor.io.fileio import refuse_overwrite
 from advisor.io.history import read_history
 from advisor.vocabulary import VERDICTS
 from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import (attempts_from_history, compare_rule_sets, dominant_by_month_hour, hours_by,
                                        month_keys, replay_features, replay_from_features, score_attempts, step_hours)
+from advisor.evaluation.replay_table import coverage_warnings, step_table
 from advisor.features import FEATURES_VERSION, feature_source_paths
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
@@ -34,13 +41,15 @@ def add_parser(sub, name: str, help: str) -> None:
                     "advice against recorded attempts, and compare two rule sets.")
     session.add_evaluation_options(p, with_at=False)
     p.add_argument("--history", metavar="ATTEMPTS.csv",
-                   help="recorded attempts: time, method (scan|astronomical), usable (yes/no)")
+                   help="recorded attempts: time, method (scan|astronomical), usable (yes/no); both methods are "
+                        "scored")
     p.add_argument("--compare-rules", metavar="FILE.yaml", nargs="+", action="extend",
                    help="a second rule set (layered like --rules) to compare with")
     p.add_argument("--from", dest="time_from", metavar="TIME", help=session.time_help("first instant"))
     p.add_argument("--to", dest="time_to", metavar="TIME", help=session.time_help("last instant"))
     p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
-    p.add_argument("--csv", metavar="FILE", help="write one row per evaluated time: time, verdict")
+    p.add_argument("--csv", metavar="FILE", help="write one row per evaluated time: time, verdict, what blocked "
+                   "each method, its expected surface and odds, the key features and flags (true/false)")
     p.add_argument("--no-cache", action="store_true",
                    help="recompute the archive's features instead of reusing them from an earlier replay "
                         "(cache: $ADVISOR_CACHE_DIR, default ~/.cache/advisor/replay)")
@@ -67,6 +76,8 @@ def cmd_replay(args: argparse.Namespace) -> int:
     from_option = session.parse_time(args.time_from, "--from")
     to_option = session.parse_time(args.time_to, "--to")
     inputs = session.load_inputs(request, read=None)
+    refuse_overwrite(args.csv, {"--feed": inputs.feed_path, "--history": args.history, "--site": request.site_path,
+                                "--references": inputs.registry_path, "--rules": request.rule_files}, "--csv")
     zone = inputs.site.time_zone
     t_from = from_option.resolve(zone) if from_option is not None else None
     t_to = to_option.resolve(zone) if to_option is not None else None
@@ -104,27 +115,32 @@ def cmd_replay(args: argparse.Namespace) -> int:
         "attempts": None,
         "comparison": None,
     }
+    attempts, scores = None, None
     if args.history:
         attempts = attempts_from_history(read_history(args.history))
-        summary["attempts"] = score_attempts(times, base.verdict, base.rule_eval, attempts,
-                                             inputs.site.feed.max_feed_age_min)
+        scores = summary["attempts"] = _score(base, attempts, inputs)
     if other is not None:
         comparison = compare_rule_sets(base.verdict, other.verdict, base.rule_eval, other.rule_eval, hours)
         comparison["hours_b"] = _hours_dict(other.verdict, hours)
-        if args.history:
-            comparison["attempts_b"] = score_attempts(times, other.verdict, other.rule_eval, attempts,
-                                                      inputs.site.feed.max_feed_age_min)
+        if attempts is not None:
+            comparison["attempts_b"] = _score(other, attempts, inputs)
         summary["comparison"] = comparison
+    warnings = coverage_warnings(times, hours, features, inputs.registry, attempts,
+                                 scores["attempts_covered"] if scores else None)
+    summary["warnings"] = warnings
     if args.csv:
-        _write_csv(args.csv, times, base.verdict, other.verdict if other is not None else None)
+        _write_csv(args.csv, step_table(base, other))
     if args.json:
+        for warning in warnings:
+            print(f"advisor: warning: {warning}", file=sys.stderr)
         print(json.dumps(summary, indent=2, allow_nan=False))
     else:
         from rich.console import Console
 
         from advisor.views.replay import replay_renderable
 
-        Console(highlight=False).print(replay_renderable(summary, dominant_by_month_hour(base.verdict, hours, local)))
+        console = Console(highlight=False)
+        console.print(replay_renderable(summary, dominant_by_month_hour(base.verdict, hours, local), console.width))
     return 0
 
 
@@ -158,14 +174,18 @@ def _table_dict(table: pd.DataFrame) -> dict:
     return {str(k): {v: round(float(table.loc[k, v]), 2) for v in table.columns} for k in table.index}
 
 
-def _write_csv(path: str, times: pd.DatetimeIndex, verdict: np.ndarray, verdict_b) -> None:
+def _score(replayed, attempts, inputs) -> dict:
+    """Both methods scored against the attempts; per-rule tables only for rules that concern the method."""
+    applies = {r.id: r.applies_to for r in replayed.decisions.rules} if replayed.decisions is not None else None
+    return score_attempts(replayed.times_utc, replayed.verdict, replayed.rule_eval, attempts,
+                          inputs.site.feed.max_feed_age_min, replayed.feasible, applies)
+
+
+def _write_csv(path: str, table: pd.DataFrame) -> None:
     from advisor.io.fileio import atomic_write_text
 
-    out = pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ"), "verdict": verdict})
-    if verdict_b is not None:
-        out["verdict_compared"] = verdict_b
     try:
-        atomic_write_text(path, out.to_csv(index=False))
+        atomic_write_text(path, table.to_csv(index=False, lineterminator="\n"))
     except OSError as exc:
         raise UsageError(f"cannot write {path}: {exc.strerror}", field="--csv") from None
 

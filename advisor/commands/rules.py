@@ -20,6 +20,8 @@ import numpy as np
 
 from advisor.commands import session
 from advisor.features import CATALOGUE, FEATURES
+from advisor.fmt import freq_wave_text
+from advisor.rules.loader import default_rule_files
 from advisor.io.site import Site, load_site
 from advisor.rules.condition import (Call, Compare, Convert, Name, Node, Number, Unary, condition_parts, evaluate_row,
                                      names_in)
@@ -135,9 +137,26 @@ def _part_numbers(part: Node, row: dict) -> str:
     return ""
 
 
-def _where(rule) -> str:
+def _place(source: str, layer: str, site: Site | None) -> str:
+    """Where a rule file is, as a person finds it: ``default rules: wind.yaml`` (in the package),
+    ``site rules: extra.yaml`` (beside the site file), else relative to the working folder."""
+    path = Path(source)
+    defaults = default_rule_files()
+    bases = [("default rules", defaults[0].parent)] if defaults else []
+    if site is not None and site.source and not site.source.startswith("<"):
+        bases.append(("site rules", Path(site.source).resolve().parent))
+    for word, base in bases:
+        if layer in word:
+            try:
+                return f"{word}: {path.resolve().relative_to(base.resolve())}"
+            except ValueError:
+                pass
+    return f"{layer} {_display_path(path)}"
+
+
+def _where(rule, site: Site | None = None) -> str:
     line = f":{rule.line}" if rule.line else ""
-    return f"{rule.layer} {_display_path(rule.source)}{line}"
+    return f"{_place(rule.source, rule.layer, site)}{line}"
 
 
 def _effect(rule) -> str:
@@ -188,7 +207,7 @@ def _load(args: argparse.Namespace) -> tuple[Site, RuleSet]:
 
 def cmd_show(args: argparse.Namespace) -> int:
     """The effective rule table after layering."""
-    _, ruleset = _load(args)
+    site, ruleset = _load(args)
     out = _Out()
     rules = [r for r in ruleset if args.method is None or r.applies(args.method)]
     scope = f" for {args.method}" if args.method else ""
@@ -201,14 +220,14 @@ def cmd_show(args: argparse.Namespace) -> int:
         out.line("")
         out.line(f"{rule.id}  [{rule.applies_to} · {_effect(rule)}]")
         out.line(f"    when {rule.condition_text}", indent=9)
-        out.line(f"    from {_where(rule)}", indent=9)
+        out.line(f"    from {_where(rule, site)}", indent=9)
         for source, line, layer in rule.overrides:
-            out.line(f"    overrides {layer} {_display_path(source)}" + (f":{line}" if line else ""))
+            out.line(f"    overrides {_place(source, layer, site)}" + (f":{line}" if line else ""))
     if ruleset.disabled:
         out.line("")
         out.line("disabled:")
         for rid, source, line, layer in ruleset.disabled:
-            out.line(f"  {rid}  by {layer} {_display_path(source)}" + (f":{line}" if line else ""))
+            out.line(f"  {rid}  by {_place(source, layer, site)}" + (f":{line}" if line else ""))
     return 0
 
 
@@ -225,7 +244,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     columns = {name: np.asarray([row[name]]) for name in CATALOGUE if name in row}
     out = _Out()
     when = call.time_utc.strftime("%Y-%m-%d %H:%M UTC")
-    out.line(f"rules at {when} · {result.ctx.site_name} · {call.freq_ghz:g} GHz")
+    out.line(f"rules at {when} · {result.ctx.site_name} · {freq_wave_text(call.freq_ghz)}")
     out.line(f"verdict: {VERDICT[call.verdict].label} — {call.headline}")
     if result.inputs.is_demo:
         out.line(DEMO_BANNER)
@@ -236,7 +255,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
         out.line("")
         mark = "TRUE " if fired else "false"
         out.line(f"{mark}  {rule.id}  [{rule.applies_to} · {rule.effect}]")
-        out.line(f"       from {_where(rule)}", indent=12)
+        out.line(f"       from {_where(rule, result.inputs.site)}", indent=12)
         out.line(f"       when {rule.condition_text}", indent=12)
         for part in condition_parts(rule.condition.ast, keep_not=True):
             text = " ".join(part.text_in(rule.condition.source).split())

@@ -33,6 +33,7 @@ from zoneinfo import ZoneInfo
 import pandas as pd
 
 from advisor.errors import AdvisorError, FeedError, ModelError, UsageError
+from advisor.io.bundled import is_demo_file
 from advisor.io.feed import CHECK_TAIL_BYTES, Feed, FeedQuality, read_feed
 from advisor.io.references import Registry, parse_time_utc, read_registry
 from advisor.io.site import FeedLayout, Site, load_site
@@ -176,7 +177,42 @@ def missing_action(parser: argparse.ArgumentParser) -> int:
 
 def want_color(stream) -> bool:
     """Colour only on a terminal, and never with ``NO_COLOR`` set."""
-    return stream.isatty() and "NO_COLOR" not in os.environ
+    try:
+        return stream.isatty() and "NO_COLOR" not in os.environ
+    except (ValueError, OSError, AttributeError):  # a closed stdout (None when the shell closed it)
+        return False
+
+
+def emit(write) -> bool:
+    """Run ``write()`` (which prints the command's output); False when stdout could not take it.
+
+    A closed pipe (``check ... | true``), a closed or full stdout never changes a command's exit
+    status: the call's status is what scripts rely on.  A closed pipe is silent; any other
+    failure to write says so on stderr.  Stdout is then pointed at the null device so that
+    Python's final flush cannot fail again.
+    """
+    import sys
+
+    if sys.stdout is None:  # started with stdout closed: nothing can be written
+        return False
+    try:
+        write()
+        sys.stdout.flush()
+        return True
+    except BrokenPipeError:
+        pass
+    except (OSError, ValueError) as exc:
+        try:
+            print(f"advisor: warning: could not write to stdout ({exc}); the exit status still gives the call",
+                  file=sys.stderr)
+        except (OSError, ValueError):
+            pass
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):
+        pass
+    return False
 
 
 # --------------------------------------------------------------------------- the request
@@ -260,7 +296,7 @@ def model_for(choice: str | None, site: Site, notes: list[str],
     path = Path(choice) if choice is not None else site.model_path
     if path is None:
         return None
-    from advisor.model.inference import load_model
+    from advisor.model.modelfile import load_model
 
     try:
         model = load_model(path)
@@ -287,9 +323,10 @@ class Inputs:
     registry: Registry
     registry_path: Path | None
     freq_ghz: float
-    is_demo: bool
+    is_demo: bool                   # the demo site, feed or registry is in use (however named): the banner shows
     notes: tuple[str, ...]
     model: SiteModel | None = None  # None: rules and error budget only
+    demo_feed: bool = False         # the feed is the bundled demo feed: evaluate at its last sample by default
 
     def require_feed(self) -> Feed:
         """The feed as read (``load_inputs`` with ``read="tail"`` or ``"whole"``)."""
@@ -325,19 +362,20 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     else:
         raise UsageError("no feed given and the site file names none", field="--feed",
                          hint="pass --feed FILE or set feed.path in the site file")
-    is_demo = site.is_demo and request.feed_path is None
-    layout = feed_layout(site, request.feed_path is not None)
+    registry_path = request.references_path or site.references_path
+    demo_feed = is_demo_file(path)
+    is_demo = site.is_demo or demo_feed or is_demo_file(registry_path)
+    layout = feed_layout(site, request.feed_path is not None and not demo_feed)
     feed = None
     if read is not None:
         feed = read_feed(path, layout, tail_bytes=CHECK_TAIL_BYTES if read == "tail" else None,
                          issue_time_column=site.forecast.issue_time_column)
-    registry_path = request.references_path or site.references_path
     registry = read_registry(registry_path)
     rules = load_ruleset(site, request.rule_files)
-    model = model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not is_demo) \
+    model = model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not demo_feed) \
         if with_model else None
     return Inputs(site, feed, path, layout, rules, registry, registry_path, request.freq_ghz, is_demo,
-                  tuple(notes), model)
+                  tuple(notes), model, demo_feed)
 
 
 def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame | None = None) -> pd.Timestamp:
@@ -352,7 +390,7 @@ def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame |
         frame = inputs.feed.frame
     times = frame["time"] if frame is not None else pd.Series([], dtype="datetime64[ns, UTC]")
     observed = times[frame["kind"] == "observed"] if frame is not None else times
-    if inputs.is_demo and len(times):
+    if inputs.demo_feed and len(times):
         return pd.Timestamp(observed.iloc[-1] if len(observed) else times.iloc[0])
     now = pd.Timestamp.now(tz="UTC")
     if len(observed) and pd.Timestamp(observed.iloc[-1]) > now + FUTURE_TOLERANCE:

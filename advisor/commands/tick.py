@@ -19,6 +19,9 @@ from advisor.commands import session
 from advisor.commands.helpformat import HelpFormatter
 from advisor.errors import FeedError, InsufficientData, UsageError
 
+#: The notify command's output, in the state dir (never tick's own output: cron would mail it).
+NOTIFY_LOG = "notify.log"
+
 EXIT_HELP = """exit status:
   0   scan            take a laser scan now
   10  astronomical    use the astronomical method
@@ -30,7 +33,8 @@ EXIT_HELP = """exit status:
   1   internal error
 
 stdout is empty unless the advice changed (or --always), so cron mails only changes; warnings
-and errors go to stderr.  Advisory only - not a safety system."""
+and errors go to stderr; the notify command's output goes to DIR/notify.log.  Advisory only -
+not a safety system."""
 
 
 def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
@@ -71,7 +75,7 @@ def cmd_tick(args) -> int:
 
     from advisor.evaluation import advisory
     from advisor.io import notify, statedir
-    from advisor.views.advisory import advisory_html, advisory_json, advisory_title, issued_line
+    from advisor.views.advisory import advisory_html, advisory_json, issued_line
     from advisor.views.context import with_note
     from advisor.views.jsondoc import to_json_dict
     from advisor.views.panel import render_panel
@@ -89,7 +93,8 @@ def cmd_tick(args) -> int:
                 _warn(f"{state_dir}: removed {len(leftovers)} temp file(s) left by an interrupted run")
             result = _evaluate(request)
             call, site = result.call, result.inputs.site
-            now = datetime.now(timezone.utc)
+            # --at drives every clock the advisory shows: issued, since, and the state kept for the next run
+            now = call.time_utc.to_pydatetime() if args.at is not None else datetime.now(timezone.utc)
             previous, warning = statedir.read_state(state_dir, now, advisory.parse_state)
             if warning:
                 _warn(warning)
@@ -100,20 +105,21 @@ def cmd_tick(args) -> int:
                                            confirm=advisory.Confirm(site.tick.confirm_ticks, site.tick.confirm_min))
             ctx = with_note(result.ctx, advisory.dead_feed_note(change))
             doc = advisory_json(to_json_dict(call, ctx, result.status), change)
-            text = issued_line(change) + "\n" + render_plain(call, ctx)
-            panel = render_panel(call, ctx)
-            title = advisory_title(call.verdict, site.name)
-            html_panel = render_panel(call, result.ctx)  # the page shows the dead-feed note as a banner
+            text = issued_line(change) + "\n" + render_plain(call, ctx, status=result.status)
+            full_text = issued_line(change) + "\n" + render_plain(call, ctx, details=True, status=result.status)
             files = {
                 "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
-                "advisory.txt": text,
-                "advisory.html": advisory_html(html_panel, change, title, site.feed.max_feed_age_min),
+                "advisory.txt": full_text,
+                # the page shows the dead-feed note as a banner of its own
+                "advisory.html": advisory_html(call, result.ctx, change, site.feed.max_feed_age_min),
                 "state.json": json.dumps(change.state.as_dict(), indent=2) + "\n",
             }
             record = {"issued_utc": change.state.issued_utc, "time_utc": doc["time_utc"], "verdict": call.verdict,
                       "exit_status": result.status, "change": change.kind, "reasons": list(change.state.reasons),
                       "data_age_min": doc["data_quality"].get("data_age_min"),
                       "target_freq_ghz": call.freq_ghz, "undetermined_ticks": change.state.undetermined_ticks,
+                      **advisory.conditions(call),
+                      "written_utc": advisory.utc_text(datetime.now(timezone.utc)),  # the machine's clock
                       "pid": os.getpid()}
             for warning in statedir.publish(state_dir, files, record, site.tick.history_max_bytes):
                 _warn(warning)
@@ -134,7 +140,8 @@ def cmd_tick(args) -> int:
             from rich.console import Console
 
             print(headline)
-            Console().print(panel)
+            console = Console()
+            console.print(render_panel(call, ctx, console.width, console.height, status=result.status))
         else:
             sys.stdout.write(headline + "\n" + text)
         sys.stdout.flush()
@@ -147,7 +154,8 @@ def cmd_tick(args) -> int:
         env = {"ADVISOR_VERDICT": call.verdict, "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
                "ADVISOR_CHANGE": change.kind or "", "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
                "ADVISOR_STATE_DIR": str(state_dir.resolve())}
-        problem = notify.run_notify(argv, payload, site.tick.notify_timeout_s, env)
+        problem = notify.run_notify(argv, payload, site.tick.notify_timeout_s, env,
+                                    log_path=state_dir / NOTIFY_LOG, issued=change.state.issued_utc)
         if problem:
             _warn(problem)
     return result.status

@@ -9,6 +9,7 @@
     change.headline                                  the one-line announcement
     change.state.as_dict()                           the state to store for the next run
     dead_feed_note(change)                           a line for the advisory while the feed looks dead
+    conditions(call)                                 the weather and the model's odds for the history line
 
 Pure: no files, no clock (the caller gives the time); the state folder is
 :mod:`advisor.io.statedir`, the advisory's pages are :mod:`advisor.views.advisory`.
@@ -17,10 +18,12 @@ Pure: no files, no clock (the caller gives the time); the state folder is
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import dataclass
 from datetime import datetime, timezone
 
-from advisor.vocabulary import VERDICT, VERDICTS
+from advisor.io.history import WEATHER_COLUMNS
+from advisor.vocabulary import METHODS, VERDICT, VERDICTS
 
 STATE_SCHEMA = 2
 #: Block ids that change a call without making a method unsafe: such a change waits to be confirmed.
@@ -199,3 +202,22 @@ def dead_feed_note(change: Change) -> str | None:
         return None
     return (f"THE FEED LOOKS DEAD: {change.state.undetermined_ticks} consecutive undetermined ticks since "
             f"{short_utc(change.state.since_utc)}. Check the weather logger and its link.")
+
+
+def _number(value, digits: int = 4):
+    if value is None or isinstance(value, bool):
+        return value
+    value = float(value)
+    return round(value, digits) if math.isfinite(value) else None
+
+
+def conditions(call) -> dict:
+    """What a tick's history line keeps besides the verdict: the weather at the call, in the
+    attempt history's columns (:data:`advisor.io.history.WEATHER_COLUMNS`, so a line can be joined
+    to a recorded outcome or train the model), and per method the site model's odds and whether
+    they were extrapolated (None without a model)."""
+    weather = {name: _number(call.features.get(name)) for name in WEATHER_COLUMNS}
+    odds = {m: _number((call.candidates.get(m) or {}).get("p_usable")) for m in METHODS}
+    extrapolated = {m: bool((call.candidates.get(m) or {}).get("extrapolated", False)) for m in METHODS}
+    return {"weather": weather, "p_usable": odds, "odds_extrapolated": extrapolated,
+            "data_ok": bool(call.features.get("data_ok", False))}

@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from advisor.fmt import hours_text, plural
 from advisor.catalogue import STEP_FEATURES
 from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG
 from advisor.vocabulary import METHODS
@@ -315,19 +316,19 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
                      f"{fs.horizon_h:g} h horizon could not be checked.")
     n_beyond = int(beyond.sum())
     if n_beyond:
-        notes.append(f"{n_beyond} step(s) lie more than {fs.horizon_h:g} h after the forecast's issue time: "
-                     "flagged (lower-case letters), less reliable.")
+        notes.append(f"{plural(n_beyond, 'step')} {'lies' if n_beyond == 1 else 'lie'} more than "
+                     f"{fs.horizon_h:g} h after the forecast's issue time: flagged (lower-case letters), less reliable.")
     if all("target.unreachable" in decisions.candidates[m].blocks for m in METHODS):
         notes.append(f"Not reachable at {freq_ghz:g} GHz whatever the weather: neither method can bring the surface "
                      "to the site's minimum efficiency, so no window will open; the postpones below are not a wait.")
     n_gap = int(gap.sum())
     if n_gap:
-        notes.append(f"{n_gap} step(s) have no forecast row (gaps): shown as '{GAP_LETTER}', counted as unknown, "
-                     "never good; they split windows.")
+        notes.append(f"{plural(n_gap, 'step')} {'has' if n_gap == 1 else 'have'} no forecast row (gaps): shown as "
+                     f"'{GAP_LETTER}', counted as unknown, never good; they split windows.")
     covered_h = n * step_min / 60.0
     if covered_h < hours - 1e-9:
         notes.append(f"The forecast ends at {times[-1] + pd.Timedelta(minutes=step_min):%Y-%m-%d %H:%M} UTC: "
-                     f"the outlook covers {covered_h:.1f} h of the {hours:g} h asked for.")
+                     f"the outlook covers {hours_text(covered_h)} of the {hours_text(hours)} asked for.")
     return Outlook(site=site, freq_ghz=float(freq_ghz), requested_from_utc=start_utc, requested_hours=float(hours),
                    step_min=float(step_min), steps=steps, windows=windows, min_window_min=min_window,
                    next_window=nxt, sun_events=_sun_events(times, f["sun_elevation_deg"].to_numpy(), step_min),

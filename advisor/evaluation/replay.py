@@ -5,24 +5,26 @@ Pure summaries over the vectorised decisions of every archive row:
 * :func:`step_hours` — how many hours each row stands for (gaps count for nothing);
 * :func:`hours_by` — hours per verdict, per month or per local hour of day;
 * :func:`dominant_by_month_hour` — the verdict with most hours at each local hour of each month;
-* :func:`score_attempts` — against recorded attempts: false go (scan advised, scan failed) and
-  missed (usable scan while the advice was not scan), overall and per rule that fired;
+* :func:`score_attempts` — against recorded attempts of both methods: false go (the advice
+  allowed the method, the attempt failed) and missed (a usable attempt while the advice ruled
+  the method out), per method and per rule that fired;
 * :func:`compare_rule_sets` — hours that change verdict between two rule sets, by rule.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from advisor.vocabulary import VERDICTS
+from advisor.decision import Decisions
 from advisor.evaluation.evaluate import Scenario
 from advisor.features import row_features_chunked
 from advisor.io.history import History
 from advisor.rules.ruleset import RuleEvaluation
-
+from advisor.vocabulary import METHODS, VERDICTS
 
 
 @dataclass(frozen=True)
@@ -110,39 +112,56 @@ def _advice_at(times_utc: pd.DatetimeIndex, verdict: np.ndarray, at: pd.Datetime
 
 
 def score_attempts(times_utc: pd.DatetimeIndex, verdict: np.ndarray, rule_eval: RuleEvaluation,
-                   attempts: Attempts, max_age_min: float = 15.0) -> dict:
-    """False-go and missed rates of the advice against recorded attempts, overall and per rule."""
+                   attempts: Attempts, max_age_min: float = 15.0, feasible: dict[str, np.ndarray] | None = None,
+                   applies: dict[str, str] | None = None) -> dict:
+    """False-go and missed rates of the advice against recorded attempts, per method and per rule.
+
+    For each method, the advice at an attempt *allowed* it ("go") when the method was feasible
+    there (``feasible[method]``: it was the call, or both were feasible and the other preferred);
+    without ``feasible``, when the call was that method.  False go: allowed, and the attempt
+    failed.  Missed: ruled out, and the attempt gave a usable map.  Attempts with no replayed row
+    within ``max_age_min`` before them are not scored.  ``applies`` (rule id → scan |
+    astronomical | both) limits each method's per-rule table to the rules that concern it.
+    """
     advice = _advice_at(times_utc, verdict, attempts.times_utc, max_age_min)
     t = times_utc.as_unit("ns").asi8
     pos = np.clip(np.searchsorted(t, attempts.times_utc.as_unit("ns").asi8, side="right") - 1, 0, None)
     covered = advice != ""
-    scan = (attempts.method == "scan") & covered
-    advised_scan = scan & (advice == "scan")
-    false_go = advised_scan & ~attempts.usable
-    missed = scan & (advice != "scan") & attempts.usable
-    result = {
-        "attempts": int(len(attempts)),
-        "attempts_covered": int(covered.sum()),
-        "scan_attempts": int(scan.sum()),
-        "scan_advised_at_attempts": int(advised_scan.sum()),
-        "false_go": int(false_go.sum()),
-        "false_go_rate": _rate(false_go.sum(), advised_scan.sum()),
-        "usable_scans_not_advised": int(missed.sum()),
-        "missed_rate": _rate(missed.sum(), (scan & attempts.usable).sum()),
-        "per_rule": [],
-    }
-    for rule_id, fired in rule_eval.fired.items():
-        at_attempt = fired[pos] & scan
-        if not at_attempt.any():
-            continue
-        result["per_rule"].append({
-            "rule": rule_id,
-            "scan_attempts_when_fired": int(at_attempt.sum()),
-            "failed_when_fired": int((at_attempt & ~attempts.usable).sum()),
-            "false_go_when_fired": int((at_attempt & false_go).sum()),
-            "missed_when_fired": int((at_attempt & missed).sum()),
-        })
-    result["per_rule"].sort(key=lambda r: -r["scan_attempts_when_fired"])
+    result: dict = {"attempts": int(len(attempts)), "attempts_covered": int(covered.sum()), "methods": {}}
+    for method in METHODS:
+        of_method = (attempts.method == method) & covered
+        if feasible is not None and method in feasible and len(t):
+            go = of_method & np.asarray(feasible[method], dtype=bool)[pos]
+        else:
+            go = of_method & (advice == method)
+        false_go = go & ~attempts.usable
+        missed = of_method & ~go & attempts.usable
+        per_rule: list[dict[str, Any]] = []
+        for rule_id, fired in rule_eval.fired.items():
+            if applies is not None and applies.get(rule_id, "both") not in (method, "both"):
+                continue
+            at_attempt = fired[pos] & of_method if len(t) else np.zeros(len(attempts), dtype=bool)
+            if not at_attempt.any():
+                continue
+            per_rule.append({
+                "rule": rule_id,
+                "attempts_when_fired": int(at_attempt.sum()),
+                "failed_when_fired": int((at_attempt & ~attempts.usable).sum()),
+                "false_go_when_fired": int((at_attempt & false_go).sum()),
+                "missed_when_fired": int((at_attempt & missed).sum()),
+            })
+        per_rule.sort(key=lambda r: -r["attempts_when_fired"])
+        result["methods"][method] = {
+            "attempts": int(of_method.sum()),
+            "usable": int((of_method & attempts.usable).sum()),
+            "advised": int((of_method & (advice == method)).sum()),
+            "allowed": int(go.sum()),
+            "false_go": int(false_go.sum()),
+            "false_go_rate": _rate(false_go.sum(), go.sum()),
+            "missed": int(missed.sum()),
+            "missed_rate": _rate(missed.sum(), (of_method & attempts.usable).sum()),
+            "per_rule": per_rule,
+        }
     return result
 
 
@@ -164,7 +183,7 @@ def compare_rule_sets(verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: Rule
             mask = changed & (verdict_a == a) & (verdict_b == b)
             if mask.any():
                 transitions.append({"from": a, "to": b, "hours": round(float(hours[mask].sum()), 2)})
-    by_rule = []
+    by_rule: list[dict[str, Any]] = []
     none = np.zeros(len(verdict_a), dtype=bool)
     for rule_id in sorted(set(eval_a.fired) | set(eval_b.fired)):
         differs = eval_a.fired.get(rule_id, none) != eval_b.fired.get(rule_id, none)
@@ -177,11 +196,19 @@ def compare_rule_sets(verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: Rule
 
 @dataclass(frozen=True)
 class Replayed:
-    """Verdicts and rule firings at every evaluated time."""
+    """Verdicts and rule firings at every evaluated time (and the decisions behind them)."""
 
     times_utc: pd.DatetimeIndex
     verdict: np.ndarray
     rule_eval: RuleEvaluation
+    decisions: Decisions | None = None
+
+    @property
+    def feasible(self) -> dict[str, np.ndarray] | None:
+        """method → per-row mask: the advice allowed the method (None without decisions)."""
+        if self.decisions is None:
+            return None
+        return {m: c.feasible & (self.verdict != "undetermined") for m, c in self.decisions.candidates.items()}
 
 
 def replay_verdicts(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rules, freq_ghz: float,
@@ -210,4 +237,4 @@ def replay_features(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, scenario: 
 def replay_from_features(rows: pd.DataFrame, scenario: Scenario, rule_sets=None) -> list[Replayed]:
     """Verdicts and rule firings under each rule set (default: the scenario's), from row features."""
     times = pd.DatetimeIndex(rows["time"])
-    return [Replayed(times, d.verdict, d.rule_eval) for d in scenario.decide(rows, rule_sets)]
+    return [Replayed(times, d.verdict, d.rule_eval, d) for d in scenario.decide(rows, rule_sets)]

@@ -1,20 +1,17 @@
 """Weather feed reader: a logger's CSV or JSON Lines file → the canonical frame.
 
 ``read_feed(path, layout)`` returns a :class:`Feed`: a frame sorted by UTC time with the
-canonical columns of DESIGN §4 in SI units, a ``kind`` column (``observed``/``forecast``), per-row
+canonical columns in SI units, a ``kind`` column (``observed``/``forecast``), per-row
 quality flags (``q_implausible``, ``q_gap_before``, ``q_missing``) and a :class:`FeedQuality`
 summary.  Duplicate timestamps are dropped (first kept) and out-of-order rows are sorted, both
 counted.  Implausible values are set to NaN and their row flagged, so no statistic ever uses
 them.  ``canonical_frame(df, layout)`` does the same for an in-memory table (tests, forecasts).
+The file itself is read by :mod:`advisor.io.feedfile` (bounded, complete lines only) and its
+times by :mod:`advisor.io.times` (strict ISO 8601 or epoch numbers, range-checked).
 """
 
 from __future__ import annotations
 
-import contextlib
-import io
-import json
-import re
-import warnings
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -24,16 +21,18 @@ import pandas as pd
 from advisor import units
 from advisor.catalogue import PLAUSIBLE_RANGE
 from advisor.errors import FeedError
-from advisor.io.fileio import regular_file_size
-from advisor.physics.moisture import dew_point_c
+from advisor.io.feedfile import MAX_FULL_READ_BYTES, check_whole_read, open_feed
 from advisor.io.site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
+from advisor.io.times import EPOCH_UNITS, check_time_range, epoch_times, parse_time_column
+from advisor.physics.moisture import dew_point_c
 
-MAX_FULL_READ_BYTES = 600_000_000   # whole-file reads (replay, outlook); bounded memory
+__all__ = ["CHECK_TAIL_BYTES", "MAX_FULL_READ_BYTES", "Feed", "FeedQuality", "canonical_frame",
+           "check_whole_read", "read_feed"]
+
 CHECK_TAIL_BYTES = 16_000_000       # an instant's call reads at most this much of a big feed
 MAX_OUT_OF_ORDER_FRACTION = 0.01
-
-#: Physically plausible range of each canonical column [its SI unit] (DESIGN §4).
-
+#: Largest magnitude read as a feed value; beyond it a cell is corrupt, not a measurement.
+MAX_FEED_NUMBER = 1e15
 
 
 @dataclass(frozen=True)
@@ -48,6 +47,7 @@ class FeedQuality:
     n_missing: int
     first_time_utc: pd.Timestamp | None
     last_time_utc: pd.Timestamp | None
+    partial_last_line: bool = False   # the file's last line had no newline: ignored as still being written
 
     def as_dict(self) -> dict:
         return {
@@ -79,128 +79,45 @@ def _issue_times(table: pd.DataFrame, column: str, source: str, line_offset: int
     """The issue-time column as UTC times (NaT where empty); every given time needs an offset."""
     if column not in table.columns:
         return pd.Series(pd.NaT, index=table.index, dtype="datetime64[ns, UTC]")
-    values = table[column].astype("string").str.strip()
-    present = (values.notna() & (values != "")).to_numpy()
-    texts = values.fillna("").to_numpy(dtype=object)
-    parsed = pd.to_datetime(values.where(present), utc=True, format="ISO8601", errors="coerce")
-    bad = present & (parsed.isna().to_numpy() | ~_has_utc_offset(texts))
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise FeedError(f"cannot read issue time {values.iloc[i]!r}", source=source, line=i + line_offset,
-                        field=column, hint="write ISO 8601 with Z or an offset, e.g. 2026-12-01T03:00:00Z")
-    return pd.Series(pd.DatetimeIndex(parsed).as_unit("ns"), index=table.index)
-
-
-def check_whole_read(path: Path, size: int | None = None) -> None:
-    """Refuse, before touching its content, a feed too big to read whole in bounded memory."""
-    size = regular_file_size(Path(path), FeedError, "feed file") if size is None else size
-    if size > MAX_FULL_READ_BYTES:
-        raise FeedError(f"feed is {size / 1e6:.0f} MB; whole-file commands read at most "
-                        f"{MAX_FULL_READ_BYTES / 1e6:.0f} MB", source=str(path),
-                        hint="split the archive by month and process each part")
-
-
-def _tail_text(path: Path, tail_bytes: int, is_jsonl: bool) -> tuple[str, int]:
-    """Header (CSV) plus the last ``tail_bytes`` of the file, cut at a line start; and the 1-based
-    line number of the first data line kept (counted in the skipped part, in bounded memory)."""
-    size = path.stat().st_size
-    start = size - tail_bytes
-    with path.open("rb") as fh:
-        header = b"" if is_jsonl else fh.readline()
-        fh.seek(max(start, len(header)))
-        fh.readline()  # drop the partial line
-        cut = fh.tell()
-        body = fh.read()
-        fh.seek(0)
-        newlines, done = 0, 0
-        while done < cut:
-            block = fh.read(min(1 << 24, cut - done))
-            newlines += block.count(b"\n")
-            done += len(block)
-    text = (header + body).decode("utf-8", errors="strict")
-    return text, newlines + 1
-
-
-def _read_table(path: Path, tail_bytes: int | None = None) -> tuple[pd.DataFrame, int]:
-    """The raw table and the file line of its first data row."""
-    source = str(path)
-    size = regular_file_size(path, FeedError, "feed file", empty_hint="expected a header line and data rows")
-    tail = tail_bytes is not None and size > 2 * tail_bytes
-    if not tail:
-        check_whole_read(path, size)
-    with path.open("rb") as fh:
-        head = fh.read(4096)
-    if b"\x00" in head:
-        raise FeedError("binary content (NUL bytes)", source=source, hint="expected CSV or JSON Lines text")
-    try:
-        head.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        if exc.start < len(head) - 4:
-            raise FeedError("not UTF-8 text", source=source, hint="save the feed as UTF-8 CSV") from None
-    is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or head.lstrip().startswith(b"{")
-    try:
-        if tail:
-            text, first_line = _tail_text(path, tail_bytes, is_jsonl)
-            if is_jsonl:
-                return _read_jsonl(path, text.splitlines(), first_line), first_line
-            return _read_csv(io.StringIO(text)), first_line
-        if is_jsonl:
-            return _read_jsonl(path), 1
-        return _read_csv(path), 2
-    except FeedError:
-        raise
-    except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        m = re.search(r"line (\d+)", msg)
-        raise FeedError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
-                        hint="check delimiters and quoting") from None
-    except pd.errors.EmptyDataError:
-        raise FeedError("feed has no header or rows", source=source) from None
-
-
-def _read_csv(source) -> pd.DataFrame:
-    """pandas' C parser in its fast (chunked) mode; a column of mixed types is coerced later anyway."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", pd.errors.DtypeWarning)
-        return pd.read_csv(source)
-
-
-def _nullcontext(value):
-    return contextlib.nullcontext(value)
-
-
-def _read_jsonl(path: Path, lines=None, first_line: int = 1) -> pd.DataFrame:
-    rows = []
-    with (path.open("r", encoding="utf-8") if lines is None else _nullcontext(lines)) as fh:
-        for number, raw in enumerate(fh, start=first_line):
-            if not raw.strip():
-                continue
-            try:
-                obj = json.loads(raw)
-            except json.JSONDecodeError as exc:
-                raise FeedError(f"invalid JSON: {exc.msg}", source=str(path), line=number,
-                                column=exc.colno, hint="one JSON object per line") from None
-            if not isinstance(obj, dict):
-                raise FeedError("expected a JSON object on each line", source=str(path), line=number)
-            rows.append(obj)
-    if not rows:
-        raise FeedError("feed has no rows", source=str(path))
-    return pd.DataFrame(rows).astype(object)
+    return parse_time_column(table[column], source=source, field=column, line_offset=line_offset,
+                             error_type=FeedError, require_offset=True, allow_empty=True)
 
 
 def _numeric(raw: pd.Series, column: str, source: str, line_offset: int) -> np.ndarray:
-    """A feed column as floats; a non-empty value that is not a number is an error."""
-    if pd.api.types.is_float_dtype(raw) or pd.api.types.is_integer_dtype(raw):
-        return raw.to_numpy(dtype=float)
+    """A feed column as floats; a non-empty value that is not a finite number is an error.
+
+    ``true``/``false`` (a JSON boolean, or a word in a CSV cell) is never read as 1 or 0.
+    """
     if pd.api.types.is_bool_dtype(raw):
-        raise FeedError("true/false where a number is expected", source=source, line=line_offset, field=column)
-    values = pd.to_numeric(raw, errors="coerce")
-    bad = values.isna() & raw.notna() & (raw.astype(str).str.strip() != "")
-    if bad.any():
-        i = int(np.flatnonzero(bad.to_numpy())[0])
-        raise FeedError(f"{raw.iloc[i]!r} is not a number", source=source, line=i + line_offset, field=column,
+        raise FeedError("true/false where a number is expected", source=source, line=line_offset, field=column,
+                        hint="write the measured value; leave the cell empty for a missing value")
+    if pd.api.types.is_float_dtype(raw) or pd.api.types.is_integer_dtype(raw):
+        values = raw.to_numpy(dtype=float)
+        text = None
+    else:
+        text = raw.astype(object).where(raw.notna(), "").astype(str).str.strip()
+        values = pd.to_numeric(text.where(text != "", None), errors="coerce").to_numpy(dtype=float)
+        bad = np.isnan(values) & (text != "").to_numpy() & ~text.str.lower().isin(["nan", "na", "n/a", "null"]).to_numpy()
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            word = text.iloc[i]
+            if word.lower() in ("true", "false"):
+                raise FeedError(f"{word} where a number is expected", source=source, line=i + line_offset,
+                                field=column, hint="write the measured value; leave the cell empty for a missing value")
+            shown = repr(word) if len(word) <= 40 else repr(word[:30] + "…")
+            raise FeedError(f"{shown} is not a number", source=source, line=i + line_offset, field=column,
+                            hint="leave the cell empty for a missing value")
+    huge = ~np.isnan(values) & ~(np.abs(values) < MAX_FEED_NUMBER)
+    if huge.any():
+        i = int(np.flatnonzero(huge)[0])
+        if text is not None:
+            shown = text.iloc[i] if len(text.iloc[i]) <= 24 else f"{text.iloc[i][:12]}… ({len(text.iloc[i])} digits)"
+            what = f"value {shown} is not a finite number of plausible size"
+        else:
+            what = f"a number too large to be a measurement (read as {values[i]:g})"
+        raise FeedError(what, source=source, line=i + line_offset, field=column,
                         hint="leave the cell empty for a missing value")
-    return values.to_numpy(dtype=float)
+    return values
 
 
 def _refuse_mixed_humidity(values: np.ndarray, column: str, source: str, line_offset: int) -> None:
@@ -216,99 +133,63 @@ def _refuse_mixed_humidity(values: np.ndarray, column: str, source: str, line_of
 
 
 def _is_number(text) -> bool:
+    if isinstance(text, bool):
+        return False
     try:
         float(text)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         return False
     return True
 
 
-def _has_utc_offset(texts: np.ndarray) -> np.ndarray:
-    """Vectorised: does each ISO 8601 text end in ``Z``, ``±HH:MM`` or ``±HHMM`` after a time?"""
-    texts = np.asarray(texts, dtype=object)
-    try:  # ASCII bytes are five times cheaper to build than unicode arrays
-        arr = texts.astype("S")
-        codes = arr.view(np.uint8).reshape(len(arr), arr.dtype.itemsize)
-    except (UnicodeEncodeError, ValueError, TypeError):
-        arr = np.asarray(texts.astype(str))
-        codes = arr.view(np.uint32).reshape(len(arr), arr.dtype.itemsize // 4)
-    width = codes.shape[1]
-    length = np.strings.str_len(arr)
-    rows = np.arange(len(arr))
-
-    def char_at(offset_from_end: int) -> np.ndarray:
-        idx = length - offset_from_end
-        ok = idx >= 0
-        return np.where(ok, codes[rows, np.clip(idx, 0, width - 1)], 0)
-
-    sign6, colon3, sign5 = char_at(6), char_at(3), char_at(5)
-    plus_minus = (ord("+"), ord("-"))
-    zulu = np.isin(char_at(1), (ord("Z"), ord("z")))
-    hh_mm = np.isin(sign6, plus_minus) & (colon3 == ord(":"))
-    hhmm = np.isin(sign5, plus_minus) & np.all([(char_at(k) >= ord("0")) & (char_at(k) <= ord("9")) for k in (1, 2, 3, 4)], axis=0)
-    has_time = np.strings.find(arr, b":" if arr.dtype.kind == "S" else ":") >= 0
-    return has_time & (zulu | hh_mm | hhmm)
-
-
 def _parse_times(raw: pd.Series, layout: FeedLayout, source: str, line_offset: int) -> pd.Series:
-    """Timestamps (ISO 8601 with offset, or naive in ``layout.time_zone``, or epoch s) → UTC."""
-    values = raw if raw.dtype == object else raw.astype(object)
-    empty = values.isna()
+    """Timestamps → UTC: ISO 8601 (with an offset, or naive in ``layout.time_zone``) or epoch numbers.
+
+    ``layout.time_unit`` says which; unset, numbers are read as epoch seconds and a value that
+    cannot be one (e.g. epoch milliseconds) is refused with a message naming the setting.
+    """
+    field = layout.time_column
+    if isinstance(raw.dtype, pd.DatetimeTZDtype):   # an in-memory table with real times
+        times = raw.dt.tz_convert("UTC").reset_index(drop=True)
+        if times.isna().any():
+            i = int(np.flatnonzero(times.isna().to_numpy())[0])
+            raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field)
+        check_time_range(times, source=source, field=field, line_offset=line_offset, error_type=FeedError)
+        return pd.Series(pd.DatetimeIndex(times).as_unit("ns"))
+    if pd.api.types.is_datetime64_dtype(raw):       # naive in-memory times: local wall clock
+        raw = raw.dt.strftime("%Y-%m-%dT%H:%M:%S.%f").where(raw.notna(), None)
+    values = raw.reset_index(drop=True).astype(object)
+    empty = values.isna().to_numpy()
     if empty.any():
-        i = int(np.flatnonzero(empty.to_numpy())[0])
-        raise FeedError("empty timestamp", source=source, line=i + line_offset,
-                        field=layout.time_column, hint="every row needs a time")
-    if pd.api.types.is_numeric_dtype(raw) or _is_number(values.iloc[0]):
-        numeric = pd.to_numeric(values, errors="coerce")
-        if numeric.isna().any():
-            i = int(np.flatnonzero(numeric.isna().to_numpy())[0])
-            raise FeedError(f"cannot read timestamp {values.iloc[i]!r} as epoch seconds", source=source,
-                            line=i + line_offset, field=layout.time_column,
-                            hint="write every time the same way: epoch seconds or ISO 8601")
-        return pd.to_datetime(numeric.astype(float), unit="s", utc=True)
-    has_offset = pd.Series(_has_utc_offset(values.to_numpy(dtype=object)), index=values.index)
-    if has_offset.all():
-        try:
-            return pd.to_datetime(values, utc=True, format="ISO8601")
-        except (ValueError, TypeError):
-            pass
-    elif not has_offset.any():
-        if layout.time_zone is None:
-            raise FeedError("timestamps carry no UTC offset and no time zone is declared",
-                            source=source, line=line_offset, field=layout.time_column,
-                            hint="write times like 2026-01-15T09:00:00Z, or set feed.time_zone in the site file")
-        try:
-            naive = pd.to_datetime(values, format="ISO8601")
-            local = naive.dt.tz_localize(layout.time_zone, ambiguous="NaT", nonexistent="NaT")
-        except (ValueError, TypeError):
-            local = None
-        if local is not None:
-            bad = local.isna()
-            if bad.any():
-                i = int(np.flatnonzero(bad.to_numpy())[0])
-                raise FeedError(f"local time {values.iloc[i]!r} is ambiguous or does not exist in {layout.time_zone}",
-                                source=source, line=i + line_offset, field=layout.time_column,
-                                hint="log in UTC or with an offset to avoid daylight-saving changes")
-            return local.dt.tz_convert("UTC")
-    else:
-        i = int(np.flatnonzero(~has_offset.to_numpy())[0])
-        try:
-            pd.Timestamp(values.iloc[i])
-        except (ValueError, TypeError):
-            raise FeedError(f"cannot read timestamp {values.iloc[i]!r}", source=source, line=i + line_offset,
-                            field=layout.time_column, hint="use ISO 8601, e.g. 2026-01-15T09:00:00Z") from None
-        raise FeedError(f"timestamp {values.iloc[i]!r} has no UTC offset while others do",
-                        source=source, line=i + line_offset, field=layout.time_column,
-                        hint="write every time with an offset or Z")
-    # Find the first unparseable value for the message.
-    for i, text in enumerate(values):
-        try:
-            pd.Timestamp(text)
-        except (ValueError, TypeError):
-            raise FeedError(f"cannot read timestamp {text!r}", source=source, line=i + line_offset,
-                            field=layout.time_column, hint="use ISO 8601, e.g. 2026-01-15T09:00:00Z") from None
-    raise FeedError("cannot read timestamps", source=source, field=layout.time_column,
-                    hint="use ISO 8601, e.g. 2026-01-15T09:00:00Z")
+        i = int(np.flatnonzero(empty)[0])
+        raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field,
+                        hint="every row needs a time")
+    unit = layout.time_unit
+    looks_numeric = (pd.api.types.is_numeric_dtype(raw) and not pd.api.types.is_bool_dtype(raw)) or \
+        _is_number(values.iloc[0])
+    if unit in EPOCH_UNITS or (unit is None and looks_numeric):
+        unit_name = unit or "epoch_s"
+        numbers = pd.to_numeric(values.astype(str).str.strip(), errors="coerce").to_numpy(dtype=float)
+        bad = np.isnan(numbers)
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            if not str(values.iloc[i]).strip():
+                raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field,
+                                hint="every row needs a time")
+            raise FeedError(f"cannot read timestamp {values.iloc[i]!r} as "
+                            f"{'epoch seconds' if unit_name == 'epoch_s' else 'epoch milliseconds'}",
+                            source=source, line=i + line_offset, field=field,
+                            hint="write every time the same way, and set feed.time_unit (iso, epoch_s or epoch_ms) "
+                                 "in the site file to match")
+        return epoch_times(numbers, unit_name, guessed=unit is None, texts=values.astype(str).to_numpy(),
+                           source=source, field=field, line_offset=line_offset, error_type=FeedError)
+    if looks_numeric:   # unit == "iso"
+        raise FeedError(f"numeric timestamp {values.iloc[0]!r} where feed.time_unit is iso", source=source,
+                        line=line_offset, field=field,
+                        hint="set feed.time_unit: epoch_s or epoch_ms in the site file, or write ISO 8601 times")
+    return parse_time_column(values, source=source, field=field, line_offset=line_offset, error_type=FeedError,
+                             time_zone=layout.time_zone, require_offset=False,
+                             no_zone_hint="write times like 2026-01-15T09:00:00Z, or set feed.time_zone in the site file")
 
 
 def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<feed>",
@@ -433,9 +314,16 @@ def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = Non
     """Read a CSV or JSON Lines feed file and return its canonical :class:`Feed`.
 
     With ``tail_bytes``, a file larger than twice that is read only from its last
-    ``tail_bytes`` (plus the header): enough for an instant's call, in bounded memory.
+    ``tail_bytes`` (plus the header): enough for an instant's call, in bounded memory.  A last
+    line without its newline is ignored (a logger is still writing it) and noted in the quality.
     """
     path = Path(path)
-    table, first_line = _read_table(path, tail_bytes)
-    return canonical_frame(table, layout, source=str(path), line_offset=first_line,
-                           issue_time_column=issue_time_column)
+    with open_feed(path, tail_bytes) as raw:
+        try:
+            feed = canonical_frame(raw.table, layout, source=str(path), line_offset=raw.first_line,
+                                   issue_time_column=issue_time_column)
+        except FeedError as exc:
+            raise raw.relocate(exc) from None
+    if raw.partial:
+        feed = replace(feed, quality=replace(feed.quality, partial_last_line=True))
+    return feed

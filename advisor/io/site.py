@@ -2,12 +2,22 @@
 
 ``load_site(path)`` reads a site YAML file, validates every key (errors name the key path and
 line, and say what is expected) and returns a frozen :class:`Site`.  Paths inside the file
-(feed, reference registry, extra rule files) are resolved relative to the file's folder.
-``demo_site_path()`` (from :mod:`advisor.io.bundled`) is the bundled invented demo site.
+(feed, reference registry, attempt history, model, extra rule files) are resolved relative to the
+file's folder.  ``demo_site_path()`` (from :mod:`advisor.io.bundled`) is the bundled invented demo site.
+
+Two sections concern the site model:
+
+* ``history: {path: attempts.csv}`` — the site's record of past attempts: ``advisor attempt add``
+  appends to it, ``advisor train`` learns from it (see :mod:`advisor.io.history`);
+* ``model: {path: model.json, terms: [...]}`` — the model file ``check`` applies, and the terms
+  ``advisor train`` fits, each with the way it may push the odds (validated in
+  :mod:`advisor.io.sitemodel`).
 """
 
 from __future__ import annotations
 
+import functools
+import hashlib
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -16,8 +26,10 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from advisor import units
 from advisor.errors import SiteError
-from advisor.io.bundled import demo_site_path
+from advisor.io.bundled import demo_site_path, is_demo_file
+from advisor.io.sitemodel import ModelTermSetting, model_terms
 from advisor.io.yamlio import load_yaml
+from advisor.text import clean_text
 
 CANONICAL_COLUMNS = (
     "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",
@@ -59,6 +71,7 @@ class FeedLayout:
     columns: tuple[ColumnMap, ...] = ()
     max_feed_age_min: float = 15.0
     max_gap_min: float = 10.0
+    time_unit: str | None = None   # None: ISO 8601 text (or epoch seconds); "iso", "epoch_s", "epoch_ms"
 
 
 @dataclass(frozen=True)
@@ -233,6 +246,8 @@ class Site:
     references_path: Path | None = None
     rule_paths: tuple[Path, ...] = ()
     model_path: Path | None = None
+    model_terms: tuple[ModelTermSetting, ...] = ()   # empty: training's default terms
+    history_path: Path | None = None                  # the site's record of past attempts
     tick: TickConfig = field(default_factory=TickConfig)
     forecast: ForecastSettings = field(default_factory=ForecastSettings)
     atmosphere: AtmosphereFigures = field(default_factory=AtmosphereFigures)
@@ -308,6 +323,9 @@ class _Reader:
             if key not in known:
                 import difflib
 
+                if clean_text(key) != str(key):
+                    raise self.fail(path + (key,), "unknown key: it contains control characters or escape sequences",
+                                    hint="retype the key; known keys: " + ", ".join(sorted(known)))
                 close = difflib.get_close_matches(str(key), sorted(known), n=1)
                 hint = f"did you mean '{close[0]}'?" if close else f"known keys: {', '.join(sorted(known))}"
                 raise self.fail(path + (key,), "unknown key", hint=hint)
@@ -333,7 +351,10 @@ class _Reader:
             return float(default)
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise self.fail(path, f"expected a number, got {value!r}", hint="write a plain number, e.g. 4.0")
-        value = float(value)
+        try:
+            value = float(value)
+        except OverflowError:
+            raise self.fail(path, "number too large", hint="write a plain number, e.g. 4.0") from None
         if value != value:
             raise self.fail(path, "expected a number, got NaN")
         if (lo is not None and value < lo) or (hi is not None and value > hi):
@@ -367,13 +388,31 @@ def _figures(reader: _Reader, path: tuple, cls: type, bounds: dict[str, tuple[fl
     return cls(**values)
 
 
+TIME_UNITS = ("iso", "epoch_s", "epoch_ms")
+
+
 def _time_zone(reader: _Reader, path: tuple, value: str | None) -> str | None:
+    """An IANA time zone name, checked by loading it; a region folder such as ``America`` is refused."""
     if value is None:
         return None
+    hint = "use an IANA name such as America/Denver or Europe/Madrid, or UTC"
+    if not value or len(value) > 64 or any(not (ch.isalnum() or ch in "/_+-") for ch in value):
+        raise reader.fail(path, f"unknown time zone {value!r}", hint=hint)
     try:
         ZoneInfo(value)
-    except (ZoneInfoNotFoundError, ValueError):
-        raise reader.fail(path, f"unknown time zone {value!r}", hint="use an IANA name such as America/Denver") from None
+    except IsADirectoryError:
+        raise reader.fail(path, f"{value!r} is a region, not a time zone",
+                          hint=f"name a zone within it, e.g. {value}/<City>; {hint}") from None
+    except (ZoneInfoNotFoundError, ValueError, OSError, UnicodeError):
+        raise reader.fail(path, f"unknown time zone {value!r}", hint=hint) from None
+    return value
+
+
+def _time_unit(reader: _Reader) -> str | None:
+    value = reader.text(("feed", "time_unit"))
+    if value is not None and value not in TIME_UNITS:
+        raise reader.fail(("feed", "time_unit"), f"unknown time unit {value!r}",
+                          hint="use iso (ISO 8601 text), epoch_s (seconds since 1970) or epoch_ms (milliseconds)")
     return value
 
 
@@ -383,8 +422,8 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         raise SiteError("expected a mapping at the top of the site file", source=source, line=1,
                         hint="start with 'site:'")
     r = _Reader(data, lines, source)
-    r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators", "tick", "forecast",
-                   "atmosphere", "session"})
+    r.section((), {"site", "feed", "references", "rules", "model", "history", "methods", "thresholds", "calibrators",
+                   "tick", "forecast", "atmosphere", "session"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
     name = r.text(("site", "name"), required=True)
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
@@ -393,7 +432,8 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     tz = _time_zone(r, ("site", "time_zone"), r.text(("site", "time_zone"), default="UTC"))
     dish = r.number(("site", "dish_diameter_m"), lo=1, hi=1000, required=True)
 
-    feed_section = r.section(("feed",), {"path", "time_column", "time_zone", "columns", "max_feed_age_min", "max_gap_min"})
+    feed_section = r.section(("feed",), {"path", "time_column", "time_zone", "time_unit", "columns",
+                                         "max_feed_age_min", "max_gap_min"})
     columns = []
     col_section = feed_section.get("columns") or {}
     if not isinstance(col_section, dict):
@@ -421,10 +461,12 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         columns=tuple(columns),
         max_feed_age_min=r.number(("feed", "max_feed_age_min"), default=15.0, lo=0.5, hi=1440),
         max_gap_min=r.number(("feed", "max_gap_min"), default=10.0, lo=0.5, hi=1440),
+        time_unit=_time_unit(r),
     )
 
     r.section(("references",), {"path"})
-    r.section(("model",), {"path"})
+    r.section(("model",), {"path", "terms"})
+    r.section(("history",), {"path"})
     r.section(("methods",), {"scan", "astronomical"})
     scan = _figures(r, ("methods", "scan"), ScanFigures, {
         "noise_um_at_calm": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
@@ -481,6 +523,8 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         references_path=r.path_value(("references", "path"), base),
         rule_paths=rule_paths,
         model_path=r.path_value(("model", "path"), base),
+        model_terms=model_terms(r),
+        history_path=r.path_value(("history", "path"), base),
         tick=_tick_config(r, base),
         forecast=_forecast_settings(r, base),
         atmosphere=atmosphere, session=session,
@@ -490,7 +534,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
 
 def load_site(path: Path | str | None = None) -> Site:
     """Load and validate a site file; ``None`` loads the bundled demo site."""
-    is_demo = path is None
     path = demo_site_path() if path is None else Path(path)
+    is_demo = is_demo_file(path)
     data, lines = load_yaml(path, SiteError)
     return parse_site(data, lines, str(path), path.resolve().parent, is_demo=is_demo)

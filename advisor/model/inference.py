@@ -1,8 +1,8 @@
 """The site model: one small logistic classifier per method, read from plain JSON, applied with numpy.
 
-    model = load_model(path)          # strict validation; anything odd is a ModelError
+    model = load_model(path)          # advisor.model.modelfile: strict validation; anything odd is a ModelError
     odds = model.odds(features)        # {"scan": p, "astronomical": p}; odds.notes: method -> per-row text
-    text = dumps_model(model)          # the JSON document `advisor train` writes
+    odds.extrapolated                  # method -> per-row mask: a term's feature outside its training range
 
 For a method with terms ``t_k`` (each a named feature, squared, made absolute, or its shortfall
 below a knot), the probability of a usable surface map is::
@@ -10,36 +10,44 @@ below a knot), the probability of a usable surface map is::
     p_usable = 1 / (1 + exp(-(b + sum_k w_k * (t_k - m_k) / s_k)))
 
 with ``m_k, s_k`` the training mean and standard deviation of each term (the scaler) and
-``w_k, b`` the fitted logistic coefficients.  A model file holds only names and numbers: it is
-never unpickled, and nothing in it is executed.  This module imports numpy only (the training
-side, :mod:`advisor.model.training`, is the one that needs scikit-learn).
+``w_k, b`` the fitted logistic coefficients.  Each term declares the way it may push the odds
+(``direction``: ``lowers`` means ``w_k <= 0``: more gust can never make a usable map likelier),
+and each method keeps the range of every term's feature over the attempts it was trained on:
+odds computed outside that range are *extrapolated*, and say so (:attr:`ModelOdds.extrapolated`).
+The model file (plain JSON, strictly read) is :mod:`advisor.model.modelfile`.  This module
+imports numpy only (the training side, :mod:`advisor.model.training`, is the one that
+needs scikit-learn and scipy).
 """
 
 from __future__ import annotations
 
-import json
-import math
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from advisor.errors import ModelError
 from advisor.catalogue import CATALOGUE, unit_text
-from advisor.vocabulary import METHOD_LABEL
+from advisor.vocabulary import METHOD_LABEL, MODEL_DIRECTIONS, MODEL_TRANSFORMS
 
-FORMAT = "advisor-site-model"
-SCHEMA_VERSION = 1
-MAX_MODEL_BYTES = 1_000_000
 MAX_TERMS = 32
 METHOD_LABELS = METHOD_LABEL
-TRANSFORMS = ("identity", "square", "abs", "shortfall")
-RETRAIN_HINT = "retrain it with 'advisor train --history HISTORY.csv --out MODEL.json'"
+TRANSFORMS = MODEL_TRANSFORMS
+DIRECTIONS = tuple(MODEL_DIRECTIONS)
 
-#: How a feature reads in a sentence: (words, format of its value with unit).
+#: Odds are extrapolated when a term lies outside the values it was trained on by more than this
+#: fraction of its training standard deviation (closer than that counts as seen: gusts of
+#: 0.9 m/s after training down to 1.1 m/s change gust² by a few hundredths of its spread).
+EXTRAPOLATION_TOLERANCE_SD = 0.1
+
+
+def value_text(name: str, value: float) -> str:
+    """``7.8 m/s``: a feature's value with its unit, as the screen formats it (never ``-0.0``)."""
+    text = CATALOGUE[name].display_format.format(value)
+    if re.match(r"-0(\.0*)?(\D|$)", text):   # no "-0.0 °C" for a value that rounds to zero
+        text = text[1:]
+    return text
 
 
 def feature_phrase(name: str, value: float) -> str:
@@ -47,11 +55,7 @@ def feature_phrase(name: str, value: float) -> str:
     spec = CATALOGUE[name]
     if spec.unit == "flag":
         return name.replace("_", " ") if bool(value) else f"no {name.replace('_', ' ')}"
-    words, fmt = spec.phrase, spec.display_format
-    text = fmt.format(value)
-    if re.match(r"-0(\.0*)?(\D|$)", text):   # no "-0.0 °C" for a value that rounds to zero
-        text = text[1:]
-    return f"{words} {text}".rstrip()
+    return f"{spec.phrase} {value_text(name, value)}".rstrip()
 
 
 @dataclass(frozen=True)
@@ -59,12 +63,20 @@ class Term:
     """One model input computed from a feature [unit of the feature, squared for ``square``].
 
     ``transform`` is ``identity`` (x), ``square`` (x²), ``abs`` (|x|) or ``shortfall``
-    (max(0, knot - x), how far x falls short of ``knot``).
+    (max(0, knot - x), how far x falls short of ``knot``).  ``direction`` is the way a larger
+    term may push the odds of a usable result: ``lowers`` (coefficient <= 0), ``raises`` (>= 0)
+    or ``free``.
     """
 
     feature: str
     transform: str = "identity"
     knot: float | None = None
+    direction: str = "free"
+
+    @property
+    def sign(self) -> int:
+        """-1 for ``lowers``, +1 for ``raises``, 0 for ``free``."""
+        return {"lowers": -1, "raises": 1}.get(self.direction, 0)
 
     @property
     def name(self) -> str:
@@ -92,6 +104,15 @@ class Term:
             return f"{words} short of {self.knot:g} {unit_text(CATALOGUE[self.feature].unit)}".rstrip()
         return words
 
+    def value_range(self, lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(lowest, highest) value of the term while its feature stays within [lo, hi]."""
+        lo, hi = np.asarray(lo, dtype=float), np.asarray(hi, dtype=float)
+        a, b = self.values(lo), self.values(hi)
+        low, high = np.minimum(a, b), np.maximum(a, b)
+        if self.transform in ("square", "abs"):      # the minimum is at zero when the range spans it
+            low = np.where((lo < 0) & (hi > 0), 0.0, low)
+        return low, high
+
     def values(self, x: np.ndarray) -> np.ndarray:
         """The term from feature values ``x`` (NaN stays NaN)."""
         x = np.asarray(x, dtype=float)
@@ -113,7 +134,11 @@ def term_matrix(features: pd.DataFrame, terms: Sequence[Term]) -> np.ndarray:
 
 @dataclass(frozen=True)
 class MethodModel:
-    """The standardised logistic model of one method."""
+    """The standardised logistic model of one method.
+
+    ``feature_min``/``feature_max`` [unit of each term's feature] bound the values of every
+    term's feature over the attempts the model was trained on (None: not recorded).
+    """
 
     terms: tuple[Term, ...]
     mean: np.ndarray
@@ -121,6 +146,26 @@ class MethodModel:
     coef: np.ndarray
     intercept: float
     metrics: dict = field(default_factory=dict, compare=False)
+    feature_min: np.ndarray | None = field(default=None, compare=False)
+    feature_max: np.ndarray | None = field(default=None, compare=False)
+
+    def outside(self, features: pd.DataFrame) -> np.ndarray:
+        """(n_rows, n_terms) mask: the term lies outside the values it was trained on (NaN is not outside).
+
+        A term's trained values are those its transform takes over the feature's training range;
+        a margin of :data:`EXTRAPOLATION_TOLERANCE_SD` of the term's training sd counts as inside.
+        """
+        n = len(features)
+        if self.feature_min is None or self.feature_max is None:
+            return np.zeros((n, len(self.terms)), dtype=bool)
+        t = term_matrix(features, self.terms)
+        low = np.empty(len(self.terms))
+        high = np.empty(len(self.terms))
+        for k, term in enumerate(self.terms):
+            low[k], high[k] = term.value_range(self.feature_min[k], self.feature_max[k])
+        margin = EXTRAPOLATION_TOLERANCE_SD * self.scale
+        with np.errstate(invalid="ignore"):
+            return (t < low - margin) | (t > high + margin)
 
     def contributions(self, terms: np.ndarray) -> np.ndarray:
         """Log-odds each term adds against a past attempt at the training means [log-odds]."""
@@ -139,11 +184,48 @@ class MethodModel:
 
 
 class ModelOdds(dict):
-    """``method → p_usable`` array, with ``notes``: method → per-row explanation text."""
+    """``method → p_usable`` array, with ``notes``: method → per-row explanation text,
+    ``extrapolated``: method → per-row mask (odds outside the training range of a term), and
+    ``extrapolation``: method → per-row sentence saying which value lies outside (None inside)."""
 
-    def __init__(self, odds: dict, notes: dict):
+    def __init__(self, odds: dict, notes: dict, extrapolated: dict | None = None,
+                 extrapolation: dict | None = None):
         super().__init__(odds)
         self.notes = notes
+        self.extrapolated = extrapolated or {}
+        self.extrapolation = extrapolation or {}
+
+
+class ExtrapolationNotes(Sequence):
+    """Per row: None inside the training range, else a sentence naming the value outside it."""
+
+    def __init__(self, method: str, model: MethodModel, values: np.ndarray, outside: np.ndarray):
+        self.method, self.model, self.values, self.outside = method, model, values, outside
+        self.any: np.ndarray = np.asarray(outside.any(axis=1), dtype=bool)
+
+    def __len__(self) -> int:
+        return len(self.any)
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return [self[k] for k in range(*i.indices(len(self)))]
+        if i < 0:
+            i += len(self)
+        if not 0 <= i < len(self):
+            raise IndexError(i)
+        if not self.any[i]:
+            return None
+        parts, seen = [], set()
+        for k in np.flatnonzero(self.outside[i]):
+            feature = self.model.terms[k].feature
+            if feature in seen:
+                continue
+            seen.add(feature)
+            lo, hi = self.model.feature_min[k], self.model.feature_max[k]
+            parts.append(f"{feature_phrase(feature, self.values[i, k])} is outside the range it was trained on "
+                         f"({value_text(feature, lo)} .. {value_text(feature, hi)})")
+        return (f"{METHOD_LABELS[self.method]}: the site model's odds are extrapolated: " + "; ".join(parts)
+                + ". Nothing like this is in the site's record: treat the odds with caution.")
 
 
 class OddsNotes(Sequence):
@@ -202,8 +284,9 @@ class SiteModel:
     source: str = "<model>"
 
     def odds(self, features: pd.DataFrame) -> ModelOdds:
-        """The seam of :func:`advisor.evaluation.evaluate.evaluate`: ``p_usable`` and notes per method."""
-        odds, notes = {}, {}
+        """The seam of :func:`advisor.evaluation.evaluate.evaluate`: ``p_usable``, notes and
+        extrapolation per method."""
+        odds, notes, extrapolated, extrapolation = {}, {}, {}, {}
         for method, m in self.methods.items():
             p = m.predict(features)
             names = list(dict.fromkeys(t.feature for t in m.terms))
@@ -211,229 +294,25 @@ class SiteModel:
             pushes = np.column_stack([contrib[:, np.array([t.feature == f for t in m.terms])].sum(axis=1)
                                       for f in names])
             values = np.column_stack([features[f].to_numpy(dtype=float) for f in names])
+            outside = m.outside(features)
+            term_values = np.column_stack([features[t.feature].to_numpy(dtype=float) for t in m.terms])
             odds[method] = p
             notes[method] = OddsNotes(method, p, names, values, pushes)
-        return ModelOdds(odds, notes)
+            extrapolated[method] = outside.any(axis=1) & np.isfinite(p)
+            extrapolation[method] = ExtrapolationNotes(method, m, term_values,
+                                                       outside & np.isfinite(p)[:, None])
+        return ModelOdds(odds, notes, extrapolated, extrapolation)
 
 
-# --- JSON: export -------------------------------------------------------------------------
-
-def model_to_dict(model: SiteModel) -> dict:
-    """The JSON document of ``model`` (schema :data:`SCHEMA_VERSION`)."""
-    methods = {}
-    for method, m in model.methods.items():
-        terms = []
-        for t in m.terms:
-            entry = {"name": t.name, "feature": t.feature, "transform": t.transform, "unit": t.unit}
-            if t.transform == "shortfall":
-                entry["knot"] = float(t.knot)
-            terms.append(entry)
-        methods[method] = {
-            "terms": terms,
-            "scaler": {"mean": [float(v) for v in m.mean], "scale": [float(v) for v in m.scale]},
-            "logistic": {"coef": [float(v) for v in m.coef], "intercept": float(m.intercept)},
-            "metrics": m.metrics,
-        }
-    return {
-        "format": FORMAT,
-        "schema_version": SCHEMA_VERSION,
-        "features": [{"name": n, "unit": u} for n, u in model.features],
-        "methods": methods,
-        "training": model.training,
-    }
+#: Names of the model file's reader and writer (:mod:`advisor.model.modelfile`), still importable
+#: from here for callers written before the file format had its own module.
+_MODEL_FILE_NAMES = ("FORMAT", "SCHEMA_VERSION", "READABLE_VERSIONS", "MAX_MODEL_BYTES", "RETRAIN_HINT",
+                     "load_model", "parse_model", "dumps_model", "model_to_dict")
 
 
-def dumps_model(model: SiteModel) -> str:
-    """``model`` as JSON text (finite numbers only; floats round-trip exactly)."""
-    return json.dumps(model_to_dict(model), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+def __getattr__(name: str):
+    if name in _MODEL_FILE_NAMES:
+        from advisor.model import modelfile
 
-
-# --- JSON: strict reading -----------------------------------------------------------------
-
-def load_model(path: Path | str) -> SiteModel:
-    """Read and validate a model file; every problem is a :class:`ModelError`."""
-    path = Path(path)
-    source = str(path)
-    try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise ModelError("model file not found", source=source,
-                         hint="check --model or model.path in the site file, or train one with 'advisor train'") from None
-    except OSError as exc:
-        raise ModelError(f"cannot read model file: {exc.strerror}", source=source) from None
-    if path.is_dir():
-        raise ModelError("is a directory, expected a JSON model file", source=source)
-    if size > MAX_MODEL_BYTES:
-        raise ModelError(f"model file is {size:,} bytes, above the {MAX_MODEL_BYTES:,}-byte limit", source=source,
-                         hint="a site model is a few kB of JSON; is this the right file?")
-    try:
-        with path.open("rb") as fh:
-            raw = fh.read(MAX_MODEL_BYTES + 1)
-        text = raw.decode("utf-8")
-    except OSError as exc:
-        raise ModelError(f"cannot read model file: {exc.strerror}", source=source) from None
-    except UnicodeDecodeError:
-        raise ModelError("not UTF-8 text", source=source, hint="a model file is JSON; " + RETRAIN_HINT) from None
-    if len(raw) > MAX_MODEL_BYTES:
-        raise ModelError(f"model file is above the {MAX_MODEL_BYTES:,}-byte limit", source=source)
-    return parse_model(text, source)
-
-
-def _reject_constant(name: str):
-    raise ValueError(f"non-finite number {name}")
-
-
-def _unique_keys(pairs):
-    out = {}
-    for key, value in pairs:
-        if key in out:
-            raise ValueError(f"duplicate key {key!r}")
-        out[key] = value
-    return out
-
-
-def parse_model(text: str, source: str = "<model>") -> SiteModel:
-    """Validate the JSON ``text`` of a model file into a :class:`SiteModel`."""
-    if not text.strip():
-        raise ModelError("model file is empty", source=source, hint=RETRAIN_HINT)
-    try:
-        doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_reject_constant)
-    except json.JSONDecodeError as exc:
-        at_end = exc.pos >= len(text.rstrip()) or exc.msg.startswith("Unterminated string")
-        what = "truncated JSON" if at_end else f"invalid JSON: {exc.msg}"
-        raise ModelError(what, source=source, line=exc.lineno, column=exc.colno,
-                         hint="the file is damaged; " + RETRAIN_HINT) from None
-    except ValueError as exc:
-        raise ModelError(f"invalid JSON: {exc}", source=source, hint=RETRAIN_HINT) from None
-    return _Validator(source).model(doc)
-
-
-class _Validator:
-    def __init__(self, source: str):
-        self.source = source
-
-    def fail(self, where: str, message: str, hint: str | None = RETRAIN_HINT) -> ModelError:
-        return ModelError(message, source=self.source, field=where or None, hint=hint)
-
-    def mapping(self, value, where: str, required: set, optional: set = frozenset()) -> dict:
-        if not isinstance(value, dict):
-            raise self.fail(where, f"expected an object, got {type(value).__name__}")
-        missing = sorted(required - set(value))
-        if missing:
-            raise self.fail(where, f"missing key {missing[0]!r}")
-        unknown = sorted(set(value) - required - set(optional))
-        if unknown:
-            raise self.fail(where, f"unknown key {unknown[0]!r}")
-        return value
-
-    def number(self, value, where: str) -> float:
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            raise self.fail(where, f"expected a finite number, got {value!r}")
-        return float(value)
-
-    def numbers(self, value, where: str, n: int) -> np.ndarray:
-        if not isinstance(value, list):
-            raise self.fail(where, f"expected a list of {n} numbers")
-        if len(value) != n:
-            raise self.fail(where, f"expected {n} numbers (one per term), got {len(value)}")
-        return np.array([self.number(v, f"{where}[{k}]") for k, v in enumerate(value)], dtype=float)
-
-    def text(self, value, where: str) -> str:
-        if not isinstance(value, str):
-            raise self.fail(where, f"expected text, got {value!r}")
-        return value
-
-    def model(self, doc) -> SiteModel:
-        if not isinstance(doc, dict):
-            raise self.fail("", "expected a JSON object at the top of the model file")
-        if doc.get("format") != FORMAT:
-            raise self.fail("format", f"not an advisor site model (format {doc.get('format')!r}, expected {FORMAT!r})")
-        version = doc.get("schema_version")
-        if isinstance(version, bool) or not isinstance(version, int):
-            raise self.fail("schema_version", f"expected an integer, got {version!r}")
-        if version != SCHEMA_VERSION:
-            raise self.fail("schema_version", f"schema version {version} is not supported (this advisor reads "
-                            f"version {SCHEMA_VERSION})", hint="use the advisor release that wrote it, or " + RETRAIN_HINT)
-        self.mapping(doc, "", {"format", "schema_version", "features", "methods"}, {"training"})
-        features = self.features(doc["features"])
-        methods_doc = doc["methods"]
-        if not isinstance(methods_doc, dict) or not methods_doc:
-            raise self.fail("methods", "expected an object with 'scan' and/or 'astronomical'")
-        methods = {}
-        for method, body in methods_doc.items():
-            if method not in METHOD_LABELS:
-                raise self.fail(f"methods.{method}", "unknown method", hint="methods are 'scan' and 'astronomical'")
-            methods[method] = self.method(body, f"methods.{method}", dict(features))
-        training = doc.get("training", {})
-        if not isinstance(training, dict):
-            raise self.fail("training", "expected an object")
-        return SiteModel(tuple(features), methods, training, self.source)
-
-    def features(self, value) -> list[tuple[str, str]]:
-        if not isinstance(value, list) or not value:
-            raise self.fail("features", "expected a non-empty list of {name, unit}")
-        if len(value) > MAX_TERMS:
-            raise self.fail("features", f"{len(value)} features, more than the {MAX_TERMS} a site model may read")
-        out = []
-        for k, entry in enumerate(value):
-            where = f"features[{k}]"
-            self.mapping(entry, where, {"name", "unit"})
-            name, unit = self.text(entry["name"], where + ".name"), self.text(entry["unit"], where + ".unit")
-            spec = CATALOGUE.get(name)
-            if spec is None:
-                raise self.fail(where + ".name", f"unknown feature {name!r}: this advisor computes no such feature",
-                                hint="the model was trained for other features; " + RETRAIN_HINT)
-            if unit != spec.unit:
-                raise self.fail(where + ".unit", f"feature {name} is in {unit!r} in the model but in {spec.unit!r} "
-                                "in this advisor", hint="the model does not match these features; " + RETRAIN_HINT)
-            if name in dict(out):
-                raise self.fail(where + ".name", f"feature {name} is listed twice")
-            out.append((name, unit))
-        return out
-
-    def method(self, body, where: str, features: dict) -> MethodModel:
-        self.mapping(body, where, {"terms", "scaler", "logistic"}, {"metrics"})
-        terms_doc = body["terms"]
-        if not isinstance(terms_doc, list) or not terms_doc:
-            raise self.fail(where + ".terms", "expected a non-empty list of terms")
-        if len(terms_doc) > MAX_TERMS:
-            raise self.fail(where + ".terms", f"{len(terms_doc)} terms, more than {MAX_TERMS}")
-        terms = tuple(self.term(t, f"{where}.terms[{k}]", features) for k, t in enumerate(terms_doc))
-        n = len(terms)
-        scaler = self.mapping(body["scaler"], where + ".scaler", {"mean", "scale"})
-        mean = self.numbers(scaler["mean"], where + ".scaler.mean", n)
-        scale = self.numbers(scaler["scale"], where + ".scaler.scale", n)
-        if np.any(scale <= 0):
-            raise self.fail(where + ".scaler.scale", "every scale must be positive")
-        logistic = self.mapping(body["logistic"], where + ".logistic", {"coef", "intercept"})
-        coef = self.numbers(logistic["coef"], where + ".logistic.coef", n)
-        intercept = self.number(logistic["intercept"], where + ".logistic.intercept")
-        metrics = body.get("metrics", {})
-        if not isinstance(metrics, dict):
-            raise self.fail(where + ".metrics", "expected an object")
-        return MethodModel(terms, mean, scale, coef, intercept, metrics)
-
-    def term(self, entry, where: str, features: dict) -> Term:
-        self.mapping(entry, where, {"name", "feature", "transform", "unit"}, {"knot"})
-        feature = self.text(entry["feature"], where + ".feature")
-        if feature not in features:
-            raise self.fail(where + ".feature", f"feature {feature!r} is not in the model's feature list")
-        transform = self.text(entry["transform"], where + ".transform")
-        if transform not in TRANSFORMS:
-            raise self.fail(where + ".transform", f"unknown transform {transform!r}",
-                            hint=f"one of {', '.join(TRANSFORMS)}")
-        if features[feature] == "flag" and transform != "identity":
-            raise self.fail(where + ".transform", f"flag {feature} can only enter as itself (identity)")
-        knot = None
-        if transform == "shortfall":
-            if "knot" not in entry:
-                raise self.fail(where, "a shortfall term needs a 'knot'")
-            knot = self.number(entry["knot"], where + ".knot")
-        elif "knot" in entry:
-            raise self.fail(where + ".knot", f"only shortfall terms have a knot, not {transform}")
-        term = Term(feature, transform, knot)
-        if entry["name"] != term.name:
-            raise self.fail(where + ".name", f"term name {entry['name']!r} does not match its definition ({term.name!r})")
-        if entry["unit"] != term.unit:
-            raise self.fail(where + ".unit", f"term unit {entry['unit']!r} does not match {term.unit!r}")
-        return term
+        return getattr(modelfile, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

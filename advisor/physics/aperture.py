@@ -57,7 +57,7 @@ def wavelength_mm(freq_ghz):
 
 
 def ruze_efficiency(surface_rms_um, freq_ghz):
-    """Aperture efficiency factor due to random surface errors (Ruze loss).
+    """Ruze surface efficiency: the factor of the aperture efficiency lost to random surface errors.
 
     Parameters
     ----------

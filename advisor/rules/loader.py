@@ -309,7 +309,7 @@ def lint_files(files: Iterable[tuple[Path | str, str]], catalogue: Mapping[str, 
     for path, layer in files:
         source = str(path)
         try:
-            load_yaml(path, RulesError)          # size, encoding, tabs, tags, aliases, syntax
+            load_yaml(path, RulesError, duplicate_keys=False)  # size, encoding, tabs, tags, aliases, syntax
             text = Path(path).read_text(encoding="utf-8")
         except RulesError as exc:
             linter.files.append(source)
@@ -330,7 +330,7 @@ def lint_texts(documents: Iterable[tuple[str, str, str]], catalogue: Mapping[str
     linter = _Loader(catalogue, domains)
     for text, source, layer in documents:
         try:
-            parse_yaml_text(text, source, RulesError)
+            parse_yaml_text(text, source, RulesError, duplicate_keys=False)
         except RulesError as exc:
             linter.files.append(source)
             linter.add("error", exc.message, source, exc.line, exc.column, exc.field, exc.hint)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
-__all__ = ["CAUTIONS", "Context", "with_note"]
+__all__ = ["CAUTIONS", "CAUTION_SHORT", "Context", "with_note"]
 
 CAUTIONS = (
     "Advisory only — not a safety system.",
@@ -15,6 +15,8 @@ CAUTIONS = (
     "people off the structure during scans and surface moves.",
     "Defer to local rules and the site's responsible staff.",
 )
+#: The cautions in one line, for the compact screen (the full text is in --details, JSON and HTML).
+CAUTION_SHORT = "Advisory only — not a safety system; site procedures come first."
 
 
 @dataclass(frozen=True)

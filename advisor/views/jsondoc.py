@@ -9,12 +9,15 @@ import numpy as np
 
 from advisor.catalogue import CATALOGUE
 from advisor.decision import Call
+from advisor.views.callparts import blocked_ids, cause_line
 from advisor.views.context import CAUTIONS, Context
 
 #: 2: verdict ``no_correction`` (exit 13); candidates carry ``meets_requirement`` and
 #: ``requirement_margin_um``; ``blocked_by`` lists every block (rules, efficiency.min, target.unreachable,
 #: model.<method>, data).
-SCHEMA_VERSION = 2
+#: 3: every candidate carries ``extrapolated`` (the site model's odds lie outside its training range).
+#: 4: ``cause``, the screen's line under the verdict (what decides the call, in words).
+SCHEMA_VERSION = 4
 
 
 def json_number(value, digits: int = 4):
@@ -34,6 +37,7 @@ def to_json_dict(call: Call, ctx: Context, exit_status: int) -> dict:
         "schema_version": SCHEMA_VERSION,
         "verdict": call.verdict,
         "headline": call.headline,
+        "cause": cause_line(call),
         "time_utc": call.time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
         "target_freq_ghz": call.freq_ghz,
         "site": ctx.site_name,
@@ -41,7 +45,7 @@ def to_json_dict(call: Call, ctx: Context, exit_status: int) -> dict:
         "reasons": [r.as_dict() for r in call.reasons],
         "features": features,
         "calibrator": call.calibrator_name or None,
-        "candidates": call.candidates,
+        "candidates": {m: {**c, "blocked_by": blocked_ids(call, m)} for m, c in call.candidates.items()},
         "data_quality": ctx.data_quality,
         "next_window": ctx.next_window,
         "notes": list(ctx.notes),

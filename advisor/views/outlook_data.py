@@ -1,6 +1,6 @@
 """The outlook as data: the ``outlook --json`` object and the ``outlook --csv`` frame.
 
-The JSON object is a contract: bump :data:`OUTLOOK_SCHEMA_VERSION` when a key changes meaning or
+``outlook_csv_text`` writes the frame with ``true``/``false`` booleans.  The JSON object is a contract: bump :data:`OUTLOOK_SCHEMA_VERSION` when a key changes meaning or
 goes away.
 """
 
@@ -41,6 +41,16 @@ def outlook_csv_frame(outlook: Outlook) -> pd.DataFrame:
             out[f"{method}_{suffix}"] = steps[f"{method}_{suffix}"].to_numpy()
         out[f"in_{method}_window"] = steps[f"in_{method}_window"].to_numpy()
     return out.round(4)
+
+
+def outlook_csv_text(outlook: Outlook) -> str:
+    """The CSV of :func:`outlook_csv_frame`, booleans written ``true``/``false``, empty cells where
+    a value is missing."""
+    frame = outlook_csv_frame(outlook)
+    for name in frame.columns:
+        if frame[name].dtype == bool:
+            frame[name] = np.where(frame[name].to_numpy(), "true", "false")
+    return frame.to_csv(index=False, lineterminator="\n")
 
 
 def outlook_json(outlook: Outlook, ctx: Context) -> dict:

@@ -1,6 +1,6 @@
 """Text pieces of an :class:`advisor.evaluation.outlook.Outlook` that the plain and rich views share.
 
-    fmt_local / fmt_utc / tz_abbrev / length_text / when_text      times and durations as text
+    fmt_local / fmt_utc / tz_abbrev / length_text / when_text      times and durations (advisor.fmt)
     header_lines(outlook, ctx)       title, period and forecast issue
     windows_heading / window_rows / window_list_lines              the windows, as a table or a list
     next_window_lines(outlook)       the first window of each method
@@ -12,13 +12,16 @@ Nothing is computed here beyond formatting: the outlook is finished before it is
 
 from __future__ import annotations
 
-from typing import Any, Iterator
+from collections.abc import Iterator
+from typing import Any
 from zoneinfo import ZoneInfo
 
 import numpy as np
 import pandas as pd
 
+from advisor import fmt
 from advisor.evaluation.outlook import GAP_LETTER, Outlook
+from advisor.views.callparts import reason_name
 from advisor.views.context import Context
 from advisor.vocabulary import METHOD_LABEL, METHODS, VERDICT
 
@@ -44,16 +47,12 @@ def fmt_utc(ts: pd.Timestamp, with_date: bool = True) -> str:
     return f"{ts.day} {ts:%b %H:%M}" if with_date else f"{ts:%H:%M}"
 
 
-def tz_abbrev(ts: pd.Timestamp, tz: str) -> str:
-    """The time zone's abbreviation at ``ts`` (``MST``)."""
-    return ts.tz_convert(ZoneInfo(tz)).strftime("%Z")
+tz_abbrev = fmt.tz_abbrev
 
 
 def length_text(minutes: float) -> str:
-    """``1 h 15 min`` or ``45 min``."""
-    minutes = int(round(minutes))
-    h, m = divmod(minutes, 60)
-    return f"{h} h {m:02d} min" if h else f"{m} min"
+    """``1 h 15 min``, ``1 h`` or ``45 min`` (:func:`advisor.fmt.duration_text`)."""
+    return fmt.duration_text(minutes)
 
 
 def sun_text(outlook: Outlook) -> str:
@@ -113,13 +112,13 @@ def window_list_lines(outlook: Outlook) -> list[str]:
 
 
 def when_text(start: pd.Timestamp, end: pd.Timestamp, tz: str) -> str:
-    """``30 Nov 20:00 → 1 Dec 00:20 (03:00–07:20 UTC)``: local times with dates, then UTC."""
-    return f"{fmt_local(start, tz)} → {fmt_local(end, tz)} ({start:%H:%M}–{end:%H:%M} UTC)"
+    """``30 Nov 20:00 → 1 Dec 00:20 MST (1 Dec 03:00 → 07:20 UTC)`` (:func:`advisor.fmt.span_text`)."""
+    return fmt.span_text(start, end, tz)
 
 
-def _num(value, fmt: str) -> str:
-    """``fmt`` of a finite number, ``n/a`` otherwise."""
-    return "n/a" if value is None or not np.isfinite(value) else fmt.format(value)
+def _num(value, pattern: str) -> str:
+    """``pattern`` of a finite number (never ``-0.0``), ``n/a`` otherwise."""
+    return "n/a" if value is None or not np.isfinite(value) else fmt.no_minus_zero(pattern.format(value))
 
 
 def next_window_lines(outlook: Outlook) -> list[str]:
@@ -153,12 +152,12 @@ def span_lines(outlook: Outlook, limit: int = 12) -> list[str]:
             for method in METHODS:
                 ids = getattr(row, f"{method}_blocked_by")
                 if ids:
-                    why.append(f"{METHOD_LABEL[method]} blocked by {', '.join(ids)}")
+                    why.append(f"{METHOD_LABEL[method]} blocked by {', '.join(reason_name(i) for i in ids)}")
         same_day = row.start_utc.tz_convert(ZoneInfo(tz)).date() == row.end_utc.tz_convert(ZoneInfo(tz)).date()
         out.append(f"  {fmt_local(row.start_utc, tz)} → {fmt_local(row.end_utc, tz, with_date=not same_day)}  "
                    f"{letter} {what}" + (f" — {'; '.join(why)}" if why else ""))
     if len(sp) > limit:
-        out.append(f"  … {len(sp) - limit} more spans (see --json)")
+        out.append(f"  … {fmt.plural(len(sp) - limit, 'more span')} (see --json)")
     return out
 
 
@@ -167,7 +166,7 @@ def header_lines(outlook: Outlook, ctx: Context) -> list[str]:
     tz = outlook.site.time_zone
     tzname = tz_abbrev(outlook.start_utc, tz)
     s, e = outlook.start_utc, outlook.end_utc
-    lines = [f"advisor outlook · {ctx.site_name} · {outlook.freq_ghz:g} GHz",
+    lines = [f"advisor outlook · {ctx.site_name} · {fmt.freq_wave_text(outlook.freq_ghz)}",
              f"{fmt_local(s, tz)} → {fmt_local(e, tz)} {tzname} ({fmt_utc(s)} → {fmt_utc(e)} UTC), "
              f"{len(outlook.steps)} steps of {outlook.step_min:g} min"]
     if outlook.issued_utc:

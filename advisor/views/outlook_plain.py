@@ -2,14 +2,23 @@
 
 from __future__ import annotations
 
-import textwrap
-
+from advisor import fmt
 from advisor.evaluation.outlook import Outlook
 from advisor.views.context import CAUTIONS, Context
-from advisor.views.outlook_parts import (WIDE_TABLE_MIN, WINDOW_HEADERS, header_lines, next_window_lines,
-                                         span_lines, sun_text, tz_abbrev, window_list_lines, window_rows,
-                                         windows_heading)
-from advisor.views.outlook_strip import strip_lines, legend_entries, wrap_entries
+from advisor.views.outlook_parts import (
+    WIDE_TABLE_MIN,
+    WINDOW_HEADERS,
+    header_lines,
+    next_window_lines,
+    span_lines,
+    sun_text,
+    tz_abbrev,
+    window_list_lines,
+    window_rows,
+    windows_heading,
+)
+from advisor.views.outlook_strip import legend_entries, strip_lines, wrap_entries
+from advisor.views.panel import short_path
 from advisor.vocabulary import DEMO_BANNER
 
 
@@ -18,12 +27,12 @@ def _plain_segments(segs) -> str:
 
 
 def _wrap(text: str, width: int, indent: str = "") -> list[str]:
-    """``text`` folded at word boundaries to ``width`` columns; continuation lines get ``indent``."""
+    """``text`` folded at word boundaries to ``width`` columns (never between a number and its
+    unit); continuation lines get ``indent``."""
     if len(text) <= width:
         return [text]
     lead = text[:len(text) - len(text.lstrip())]
-    return textwrap.wrap(text, width=max(40, width), subsequent_indent=lead + indent,
-                         break_long_words=False, break_on_hyphens=False) or [""]
+    return fmt.wrap(text.lstrip(), max(40, width), indent=lead + indent, first_indent=lead)
 
 
 def render_plain_outlook(outlook: Outlook, ctx: Context, width: int = 100) -> str:
@@ -67,6 +76,6 @@ def render_plain_outlook(outlook: Outlook, ctx: Context, width: int = 100) -> st
     for line in span_lines(outlook):
         add(line, "    ")
     lines.append("")
-    add(f"feed: {ctx.feed_source}", "  ")
+    add("feed: " + " + ".join(short_path(source, width - 8) for source in ctx.feed_source.split(" + ")), "  ")
     add("Cautions: " + " ".join(CAUTIONS), "  ")
     return "\n".join(lines) + "\n"

@@ -1,79 +1,69 @@
-"""The terminal view of one :class:`advisor.decision.Call`: a rich panel, verdict first.
+"""The terminal view of one :class:`advisor.decision.Call`: a rich panel, verdict first and last.
 
+The lines are :func:`advisor.views.screen.screen_lines`; this module only draws them in a panel
+whose top border names the site and whose bottom border names the feed (shortened, not cut).
 rich is imported only when a panel is drawn, so piped output stays light.
 """
 
 from __future__ import annotations
 
+import contextlib
+import os
+from pathlib import Path, PurePath
 from typing import TYPE_CHECKING
 
 from advisor.decision import Call
-from advisor.views.callparts import (CANDIDATE_HEADERS, NUMERIC_HEADERS, candidate_rows, key_features,
-                                     next_window_text, ordered_reasons, when_text)
-from advisor.views.context import CAUTIONS, Context
-from advisor.vocabulary import DEMO_BANNER, EFFECT_LABEL, VERDICT
+from advisor.io.bundled import demo_dir
+from advisor.views.context import Context
+from advisor.views.screen import COMPACT_LINES, DETAILS_HINT, screen_lines
+from advisor.vocabulary import VERDICT
 
 if TYPE_CHECKING:
     from rich.panel import Panel
 
-#: Colour of each effect's word in the reasons table.
-EFFECT_STYLE = {"block": "red", "warn": "yellow", "add_error": "magenta", "info": "cyan"}
+#: Columns the panel's borders and padding take.
+PANEL_FRAME = 4
 
 
-def render_panel(call: Call, ctx: Context) -> Panel:
-    """The terminal view: verdict first, then candidates, reasons, key features, cautions."""
-    from rich import box
-    from rich.console import Group, RenderableType
+def short_path(path: str, max_len: int) -> str:
+    """``path`` within ``max_len`` characters: ``bundled demo: larch_basin_mast.csv`` for the demo's
+    own files, relative to the working folder when below it, whole when it fits, else ``…/`` and
+    as many trailing folders as fit (``…/weather/mast_feed.csv``), else the file name's end."""
+    with contextlib.suppress(ValueError, OSError):
+        return f"bundled demo: {Path(path).resolve().relative_to(demo_dir().resolve())}"
+    with contextlib.suppress(ValueError):
+        path = str(PurePath(path).relative_to(os.getcwd()))
+    if len(path) <= max_len:
+        return path
+    parts = PurePath(path).parts
+    for k in range(len(parts) - 1, 0, -1):
+        tail = "…/" + "/".join(parts[-k:])
+        if len(tail) <= max_len:
+            return tail
+    return "…" + path[-(max_len - 1):]
+
+
+def feed_title(source: str, width: int) -> str:
+    """The bottom border's feed note (one or several sources joined by ' + ')."""
+    sources = source.split(" + ")
+    room = max(12, (width - 12) // len(sources) - 3)
+    return "feed: " + " + ".join(short_path(s, room) for s in sources)
+
+
+def render_panel(call: Call, ctx: Context, width: int = 80, height: int = 24, details: bool = False,
+                 status: int | None = None, hint: str = DETAILS_HINT) -> Panel:
+    """The terminal view, ``width`` columns wide; the compact default fits ``height`` lines."""
+    from rich.console import Group
     from rich.panel import Panel
-    from rich.table import Table
     from rich.text import Text
 
+    inner = max(40, width - PANEL_FRAME)
+    # a taller terminal shows more of the reasons; the borders, the command and the prompt take four lines
+    lines = screen_lines(call, ctx, inner, max_lines=max(COMPACT_LINES, height - 4), details=details,
+                         status=status, hint=hint)
+    body = [Text.assemble(*[(t, s) if s else t for t, s in line], no_wrap=True, overflow="ellipsis")
+            for line in lines]
     verdict = VERDICT[call.verdict]
-    parts: list[RenderableType] = []
-    head = Text()
-    head.append(f" {verdict.label} ", style=verdict.style)
-    head.append(f"  {call.headline}")
-    parts.append(head)
-    parts.append(Text(f"{when_text(call, ctx)} · target {call.freq_ghz:g} GHz", style="bold"))
-    if ctx.is_demo:
-        parts.append(Text(DEMO_BANNER, style="bold magenta"))
-    for note in ctx.notes:
-        parts.append(Text(note, style="italic"))
-
-    table = Table(box=box.SIMPLE_HEAD, expand=False, pad_edge=False)
-    for h in CANDIDATE_HEADERS[:-1]:  # blocking rules are listed under Reasons
-        table.add_column(h, justify="right" if h in NUMERIC_HEADERS else "left", no_wrap=True)
-    for row in candidate_rows(call):
-        table.add_row(*row[:-1], style="green" if row[1] == "yes" else "dim")
-    parts.append(table)
-
-    reasons = Table(box=None, show_header=False, pad_edge=False, expand=False)
-    reasons.add_column("effect", style="bold", no_wrap=True)
-    reasons.add_column("message")
-    for r in ordered_reasons(call):
-        message = Text(r.message)
-        message.append(f"  [{r.rule} · {r.applies_to}]", style="dim")
-        reasons.add_row(Text(EFFECT_LABEL.get(r.effect, r.effect), style=EFFECT_STYLE.get(r.effect, "")), message)
-    parts.append(Text("Reasons", style="bold underline"))
-    parts.append(reasons)
-
-    feats = Table(box=None, show_header=False, pad_edge=False, expand=False)
-    for _ in range(2):
-        feats.add_column(style="dim")
-        feats.add_column(justify="right")
-    cells = key_features(call.features)
-    if call.calibrator_name:
-        cells.append(("best calibrator", call.calibrator_name))
-    for k in range(0, len(cells), 2):
-        pair = cells[k:k + 2] + [("", "")] * (2 - len(cells[k:k + 2]))
-        feats.add_row(pair[0][0], pair[0][1], "  " + pair[1][0], pair[1][1])
-    parts.append(Text(""))
-    parts.append(Text("Key conditions", style="bold underline"))
-    parts.append(feats)
-    if ctx.next_window:
-        parts.append(Text(""))
-        parts.append(Text(next_window_text(ctx.next_window, ctx.time_zone), style="bold"))
-    parts.append(Text(""))
-    parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
-    return Panel(Group(*parts), title=f"advisor · {ctx.site_name}", title_align="left",
-                 border_style=verdict.style.split()[-1], subtitle=f"feed: {ctx.feed_source}", subtitle_align="left")
+    return Panel(Group(*body), title=f"advisor · {ctx.site_name}", title_align="left",
+                 border_style=verdict.style.split()[-1], subtitle=feed_title(ctx.feed_source, width),
+                 subtitle_align="left", width=width)

@@ -1,40 +1,24 @@
-"""Plain text of one :class:`advisor.decision.Call`, for pipes, logs and ``advisory.txt``."""
+"""Plain text of one :class:`advisor.decision.Call`, for pipes, logs, mail and ``advisory.txt``.
+
+The same lines as the panel (:func:`advisor.views.screen.screen_lines`) without colour or
+borders: a title line, the verdict as ``VERDICT: ...`` (easy to grep), ..., the feed, and the
+verdict again on the last line.
+"""
 
 from __future__ import annotations
 
 from advisor.decision import Call
-from advisor.views.callparts import (CANDIDATE_HEADERS, candidate_rows, key_features, next_window_text,
-                                     ordered_reasons, when_text)
-from advisor.views.context import CAUTIONS, Context
-from advisor.vocabulary import DEMO_BANNER, EFFECT_LABEL, VERDICT
+from advisor.views.context import Context
+from advisor.views.panel import short_path
+from advisor.views.screen import COMPACT_LINES, DETAILS_HINT, Line, plain_text, screen_lines
 
 
-def render_plain(call: Call, ctx: Context) -> str:
-    """The call as text: verdict line, candidate table, reasons, key conditions, next window, cautions."""
-    lines = [f"advisor · {ctx.site_name} · {when_text(call, ctx)} · {call.freq_ghz:g} GHz",
-             f"VERDICT: {VERDICT[call.verdict].label} — {call.headline}"]
-    if ctx.is_demo:
-        lines.append(DEMO_BANNER)
-    lines.extend(ctx.notes)
-    lines.append("")
-    rows = [CANDIDATE_HEADERS, *candidate_rows(call)]
-    widths = [max(len(str(r[k])) for r in rows) for k in range(len(CANDIDATE_HEADERS))]
-    for r in rows:
-        lines.append("  ".join(str(v).ljust(w) for v, w in zip(r, widths)).rstrip())
-    lines.append("")
-    lines.append("Reasons:")
-    for r in ordered_reasons(call):
-        lines.append(f"  - {EFFECT_LABEL.get(r.effect, r.effect)} [{r.rule}, {r.applies_to}]: {r.message}")
-    lines.append("")
-    lines.append("Key conditions:")
-    for label, text in key_features(call.features):
-        lines.append(f"  {label}: {text}")
-    if call.calibrator_name:
-        lines.append(f"  best calibrator: {call.calibrator_name}")
-    if ctx.next_window:
-        lines.append("")
-        lines.append(next_window_text(ctx.next_window, ctx.time_zone))
-    lines.append("")
-    lines.append(f"feed: {ctx.feed_source}")
-    lines.append("Cautions: " + " ".join(CAUTIONS))
-    return "\n".join(lines) + "\n"
+def render_plain(call: Call, ctx: Context, width: int = 80, details: bool = False, status: int | None = None,
+                 hint: str = DETAILS_HINT) -> str:
+    """The call as text folded to ``width`` columns; the compact default fits 80×24."""
+    lines = screen_lines(call, ctx, width, max_lines=COMPACT_LINES, details=details, status=status, hint=hint,
+                         plain=True)
+    title: Line = [(f"advisor · {ctx.site_name}", None)]
+    sources = " + ".join(short_path(s, width - 8) for s in ctx.feed_source.split(" + "))
+    feed: list[Line] = [] if details else [[(f"feed: {sources}", None)]]
+    return plain_text([title, *lines[:-1], *feed, lines[-1]])

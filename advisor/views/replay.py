@@ -1,7 +1,7 @@
 """The ``advisor replay`` summary for the terminal: hours per verdict, per month, a heat strip,
 scores against recorded attempts and the rule-set comparison.
 
-    replay_renderable(summary, dominant)
+    replay_renderable(summary, dominant, width)
 
 ``summary`` is the dict ``replay --json`` prints; ``dominant`` is
 :func:`advisor.evaluation.replay.dominant_by_month_hour`.  rich is imported only when drawn.
@@ -11,7 +11,9 @@ from __future__ import annotations
 
 import pandas as pd
 
-from advisor.vocabulary import VERDICT, VERDICTS
+from advisor import fmt
+from advisor.fmt import plural
+from advisor.vocabulary import METHOD_LABEL, VERDICT, VERDICTS
 
 #: Shown in the heat strip where a month has no hours at that hour of day.
 NO_HOURS_LETTER = "·"
@@ -50,18 +52,26 @@ def _attempt_parts(attempts: dict) -> list:
 
     parts: list = [
         Text("Against recorded attempts", style="bold underline"),
-        f"  {attempts['scan_attempts']} scan attempts covered by the archive; scan advised at "
-        f"{attempts['scan_advised_at_attempts']}",
-        f"  false go (scan advised, scan failed): {attempts['false_go']} (rate {pct(attempts['false_go_rate'])})",
-        f"  missed (usable scan, advice not scan): {attempts['usable_scans_not_advised']} "
-        f"(rate {pct(attempts['missed_rate'])})",
+        f"  {attempts['attempts_covered']} of {plural(attempts['attempts'], 'attempt')} fall in the replayed period.",
+        "  go: the advice allowed the method (its call, or feasible with the other preferred); false go: go, and "
+        "the attempt failed; missed: the advice ruled the method out, and the attempt was usable.",
     ]
-    if attempts["per_rule"]:
-        rules = Table(box=box.SIMPLE_HEAD)
-        for h in ("rule", "scans when fired", "failed", "false go", "missed"):
+    table = Table(box=box.SIMPLE_HEAD)
+    for h in ("method", "attempts", "usable", "go", "false go", "missed"):
+        table.add_column(h, justify="left" if h == "method" else "right", no_wrap=True)
+    for method, m in attempts["methods"].items():
+        table.add_row(METHOD_LABEL[method], str(m["attempts"]), str(m["usable"]), str(m["allowed"]),
+                      f"{m['false_go']} ({pct(m['false_go_rate'])})", f"{m['missed']} ({pct(m['missed_rate'])})")
+    parts.append(table)
+    for method, m in attempts["methods"].items():
+        if not m["per_rule"]:
+            continue
+        rules = Table(title=f"{METHOD_LABEL[method]}: rules that fired at its attempts", box=box.SIMPLE_HEAD,
+                      title_justify="left")
+        for h in ("rule", "fired at", "failed", "false go", "missed"):
             rules.add_column(h, justify="left" if h == "rule" else "right", no_wrap=True)
-        for r in attempts["per_rule"]:
-            rules.add_row(r["rule"], str(r["scan_attempts_when_fired"]), str(r["failed_when_fired"]),
+        for r in m["per_rule"]:
+            rules.add_row(r["rule"], str(r["attempts_when_fired"]), str(r["failed_when_fired"]),
                           str(r["false_go_when_fired"]), str(r["missed_when_fired"]))
         parts.append(rules)
     return parts
@@ -75,13 +85,14 @@ def _comparison_parts(comparison: dict, attempts: dict | None) -> list:
     parts += [f"    {t['from']} → {t['to']}: {t['hours']:.1f} h" for t in comparison["transitions"]]
     parts += [f"    by {r['rule']}: {r['hours_changed']:.1f} h" for r in comparison["by_rule"]]
     if "attempts_b" in comparison and attempts:
-        b = comparison["attempts_b"]
-        parts.append(f"  false-go rate {pct(attempts['false_go_rate'])} → {pct(b['false_go_rate'])}; "
-                     f"missed rate {pct(attempts['missed_rate'])} → {pct(b['missed_rate'])}")
+        for method, a in attempts["methods"].items():
+            b = comparison["attempts_b"]["methods"][method]
+            parts.append(f"  {METHOD_LABEL[method]}: false-go rate {pct(a['false_go_rate'])} → "
+                         f"{pct(b['false_go_rate'])}; missed rate {pct(a['missed_rate'])} → {pct(b['missed_rate'])}")
     return parts
 
 
-def replay_renderable(summary: dict, dominant: pd.DataFrame):
+def replay_renderable(summary: dict, dominant: pd.DataFrame, width: int = 80):
     """The summary as one rich renderable (print it with a Console; markup in plain strings is rich's)."""
     from rich import box
     from rich.console import Group
@@ -89,12 +100,15 @@ def replay_renderable(summary: dict, dominant: pd.DataFrame):
     from rich.text import Text
 
     total = sum(summary["hours"].values()) or 1.0
-    line = Text("Hours per verdict: ")
-    line.append(", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS))
+    hours = ", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS)
+    # folded here, never between a number and its unit, so a pipe shows the same as a terminal
+    line = Text("\n".join(fmt.wrap(f"Hours per verdict: {hours}", width, indent="  ")), no_wrap=True)
     parts: list = [f"Replay of {summary['feed']}",
                    f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
                    f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules",
                    line]
+    for warning in summary.get("warnings") or []:
+        parts.append(Text(f"Warning: {warning}", style="bold yellow"))
 
     months = Table(title="Hours per month (site local time)", box=box.SIMPLE_HEAD, title_justify="left")
     months.add_column("month")
