@@ -63,6 +63,9 @@ class FeatureSpec:
         The feature in a sentence ("gusts 7.8 m/s lowered the odds"); defaults to the label.
     key : bool
         Shown among the screen's key conditions.
+    key_when : str
+        With ``key``: the name of a flag feature; the key condition is shown only where it is
+        true (the frost-point spread when the air is below freezing).
     step : bool
         Shown per step in the outlook's tables.
     """
@@ -77,6 +80,7 @@ class FeatureSpec:
     scope: str = "row"
     words: str = ""
     key: bool = False
+    key_when: str = ""
     step: bool = False
 
     def __post_init__(self) -> None:
@@ -110,7 +114,8 @@ class FeatureSpec:
 
 
 #: Units as people write them.
-_UNIT_TEXT = {"degC": "°C", "delta_degC": "°C", "degC/h": "°C/h", "deg": "°", "um": "µm", "1": "", "flag": ""}
+_UNIT_TEXT = {"degC": "°C", "delta_degC": "°C", "degC/h": "°C/h", "deg": "°", "um": "µm", "g/m3": "g/m³", "1": "",
+              "flag": ""}
 
 
 def unit_text(unit: str) -> str:
@@ -162,15 +167,51 @@ FEATURES: tuple[FeatureSpec, ...] = (
        plausible=(300.0, 1100.0), domain=_measured(300.0, 1100.0)),
     _F("solar_wm2", "W/m2", "global irradiance (NaN if the feed has none)", "irradiance", "{:.0f} W/m²",
        plausible=(-20.0, 1500.0), domain=_measured(-20.0, 1500.0)),
-    _F("fog", "flag", "fog likely: small dew-point spread with high RH, or visibility below the site limit"),
+    _F("below_freezing", "flag", "air temperature below 0 °C (humidity then counts over ice)"),
+    _F("frost_point_c", "degC", "frost point: where the air's water vapour saturates over ice (Alduchov & Eskridge "
+       "1996 ice form); where the dew point is 0 °C or above, the dew point (dew forms first and freezes on a "
+       "surface below 0 °C)", "frost point", "{:.1f} °C",
+       domain=(-80.0, 60.0, "it is the dew point, or between the dew point and 0 °C")),
+    _F("frost_point_spread_c", "delta_degC", "air temperature minus frost point: at 0 the air is saturated over ice "
+       "and frost grows on surfaces at air temperature; panels under a clear night sky run a few °C colder",
+       "frost-point spread", "{:.1f} °C", key=True, key_when="below_freezing"),
+    _F("rel_humidity_ice_pct", "%", "relative humidity over ice below 0 °C, from the hygrometer's RH over water "
+       "(WMO-No. 8 ch. 4; above 100 %: supersaturated over ice); NaN at or above 0 °C", "RH over ice", "{:.0f} %",
+       domain=_never_negative("it is a ratio of vapour pressures")),
+    _F("fog", "flag", "fog likely: spread to saturation below the site limit with high RH (over water at or above "
+       "0 °C, over ice below), or visibility below the site limit"),
     _F("precipitation", "flag", "precipitation at or above the site threshold"),
+    # atmosphere
+    _F("water_vapour_density_gm3", "g/m3", "water-vapour density of the surface air, 216.7 e / T (ITU-R P.676)",
+       "water vapour", "{:.1f} g/m³", domain=_never_negative("it is a density")),
+    _F("pwv_mm", "mm", "precipitable water vapour above the site: surface water-vapour density times the site's "
+       "scale height (ITU-R P.835 exponential profile)", "PWV", "{:.1f} mm", words="precipitable water",
+       domain=_never_negative("it is a column of water"), key=True, step=True),
+    _F("zenith_opacity", "1", "zenith opacity at the target frequency [nepers], oxygen and water vapour (ITU-R P.676 "
+       "Annex 2; NaN outside 1-350 GHz)", "zenith opacity", "{:.2f} Np", words="zenith opacity",
+       domain=_never_negative("it is an optical depth"), scope="target_row", key=True),
+    _F("transmission", "1", "fraction of a source's power the atmosphere lets through at the session's elevation, "
+       "exp(-tau A)", "transmission", "{:.2f}", domain=(0.0, 1.0, "it is a fraction of power"), scope="target_row"),
+    _F("system_temp_k", "K", "system temperature referred to above the atmosphere, T_sys* = (T_rx + T_atm (1 - "
+       "e^-tau A)) / e^-tau A, at the session's elevation", "T_sys*", "{:.0f} K", scope="target_row"),
+    _F("integration_time_factor", "1", "integration time for the same sensitivity relative to the site's dry "
+       "reference night, (T_sys* / T_sys*_ref)^2 (the atmosphere only)", "time vs a dry night", "{:.1f}×",
+       words="integration-time factor", domain=_never_negative("it is a ratio of times"), scope="target_row",
+       key=True),
+    _F("pointing_efficiency", "1", "the session's gain left after the wind pointing error, exp(-4 ln2 "
+       "(sigma/theta)^2) for a Gaussian beam, whichever method corrects the surface", "session pointing efficiency",
+       "{:.2f}", words="pointing efficiency", domain=(0.0, 1.0, "it is a fraction of the gain"), scope="target_row",
+       key=True),
     # thermal state
     _F("sun_elevation_deg", "deg", "apparent sun elevation", "sun elevation", "{:.1f}°", domain=_ELEVATION,
        key=True, step=True),
     _F("sun_azimuth_deg", "deg", "sun azimuth, clockwise from north", "sun azimuth", "{:.0f}°",
        domain=(0.0, 360.0, "azimuth is counted 0..360 deg from north")),
-    _F("is_night", "flag", "between sunset and sunrise (sun centre below -0.833 deg, refraction included)"),
-    _F("sun_transition", "flag", "sun between -6 and +15 deg: the structure deforms fastest"),
+    _F("sun_state", "1", "the sun today: 2 polar day (up all day), 1 up, -1 down, -2 polar night (down all day)",
+       "sun", "{:+.0f}", domain=(-2.0, 2.0, "it is one of -2, -1, 1, 2 (0 only for an unknown time)")),
+    _F("is_night", "flag", "between sunset and sunrise (sun centre below -0.833 deg, refraction included), "
+       "polar night included, polar day excluded"),
+    _F("sun_transition", "flag", "sun between -6 and +15 deg on a day it rises or sets: the structure deforms fastest"),
     _F("hours_since_sunset", "h", "hours since the most recent sunset", "since sunset", "{:.1f} h", words="time since sunset",
        domain=_never_negative("it counts hours since the most recent sunset"), key=True),
     _F("hours_since_sunrise", "h", "hours since the most recent sunrise", "since sunrise", "{:.1f} h",
@@ -198,11 +239,27 @@ FEATURES: tuple[FeatureSpec, ...] = (
        "surface requirement minus holography's expected surface (negative: misses it)",
        "holography: margin to the requirement", "{:+.0f} µm", scope="target_row"),
     # calibrators
-    _F("calibrator_elevation_deg", "deg", "elevation of the best calibrator now (NaN if none usable)",
+    _F("calibrator_elevation_deg", "deg", "elevation of the chosen calibrator now (NaN if none usable)",
        "best calibrator elevation", "{:.0f}°", domain=_ELEVATION, key=True),
-    _F("calibrator_minutes_up", "min", "minutes the best calibrator stays above the minimum elevation",
+    _F("calibrator_mid_elevation_deg", "deg", "elevation of the chosen calibrator halfway through the measurement, "
+       "where holography corrects the surface (NaN if none usable)", "calibrator elevation mid-measurement",
+       "{:.0f}°", domain=_ELEVATION),
+    _F("calibrator_minutes_up", "min", "minutes the chosen calibrator stays above the minimum elevation (0 if none)",
        "calibrator stays up", "{:.0f} min", domain=_never_negative("it is a duration"), key=True),
-    _F("calibrator_available", "flag", "a calibrator stays usable for the whole astronomical measurement"),
+    _F("calibrator_sun_separation_deg", "deg", "closest the chosen calibrator comes to the Sun during the "
+       "measurement (NaN if none usable)", "calibrator from the Sun", "{:.0f}°",
+       domain=(0.0, 180.0, "an angle on the sky is 0..180 deg"), key=True, key_when="calibrator_available"),
+    _F("calibrators_sun_blocked", "1", "calibrators inside the elevation limits for the whole measurement but "
+       "within the site's sun-avoidance limit of the Sun", "calibrators too near the Sun", "{:.0f}",
+       domain=_never_negative("it is a count")),
+    _F("calibrators_sun_closest_deg", "deg", "closest any calibrator inside the elevation limits for the whole "
+       "measurement comes to the Sun during it (NaN if none is inside them)", "closest calibrator to the Sun",
+       "{:.1f}°", domain=(0.0, 180.0, "an angle on the sky is 0..180 deg")),
+    _F("calibrator_gravity_residual_um", "um", "gravity deformation a correction at the calibrator's elevation "
+       "leaves at the session's (site figures; NaN if no calibrator)", "gravity residual (holography)",
+       "{:.0f} µm", domain=_never_negative("it is an rms")),
+    _F("calibrator_available", "flag", "a calibrator stays inside the elevation limits and clear of the Sun for the "
+       "whole astronomical measurement"),
     # target and site figures (scalars: the same for every row of one evaluation)
     _F("freq_ghz", "GHz", "target observing frequency", "target frequency", "{:g} GHz",
        domain=_never_negative("it is a frequency"), scope="target"),
@@ -223,6 +280,22 @@ FEATURES: tuple[FeatureSpec, ...] = (
        domain=_never_negative("it is a duration"), scope="target"),
     _F("astronomical_duration_min", "min", "duration of an astronomical measurement (site figure)",
        "astronomical duration", "{:.0f} min", domain=_never_negative("it is a duration"), scope="target"),
+    _F("session_elevation_deg", "deg", "elevation the session observes at (--elevation, else the site's "
+       "session.elevation_deg, 45 deg by default)", "session elevation", "{:.0f}°",
+       domain=(5.0, 90.0, "the session's elevation is 5..90 deg"), scope="target"),
+    _F("calibrator_min_elevation_deg", "deg", "site's lowest calibrator elevation during a measurement",
+       "calibrator minimum elevation", "{:.0f}°", domain=_ELEVATION, scope="target"),
+    _F("calibrator_max_elevation_deg", "deg", "site's highest calibrator elevation during a measurement",
+       "calibrator maximum elevation", "{:.0f}°", domain=_ELEVATION, scope="target"),
+    _F("sun_avoidance_deg", "deg", "site's sun-avoidance limit: no calibrator closer to the Sun than this",
+       "sun-avoidance limit", "{:.0f}°", domain=(0.0, 90.0, "the site's limit is 0..90 deg"), scope="target"),
+    _F("site_height_m", "m", "site height above sea level", "site height", "{:.0f} m", scope="target"),
+    _F("receiver_temp_k", "K", "receiver noise temperature used for T_sys* (site figure)", "receiver temperature",
+       "{:.0f} K", scope="target"),
+    _F("reference_pwv_mm", "mm", "PWV of the site's dry reference night (site figure)", "reference PWV",
+       "{:.1f} mm", domain=_never_negative("it is a column of water"), scope="target"),
+    _F("reference_system_temp_k", "K", "T_sys* on the dry reference night at the target frequency and the session's "
+       "elevation", "reference T_sys*", "{:.0f} K", scope="target"),
     # data quality
     _F("data_age_min", "min", "age of the last good weather sample", "data age", "{:.1f} min",
        domain=_never_negative("the last good sample is never later than the evaluation time"), key=True),
@@ -233,6 +306,9 @@ FEATURES: tuple[FeatureSpec, ...] = (
 
 #: name → spec.
 CATALOGUE: dict[str, FeatureSpec] = {f.name: f for f in FEATURES}
+for _spec in FEATURES:
+    if _spec.key_when and (_spec.key_when not in CATALOGUE or CATALOGUE[_spec.key_when].unit != "flag"):
+        raise ValueError(f"feature {_spec.name}: key_when must name a flag feature, not {_spec.key_when!r}")
 FLAG_NAMES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.unit == "flag")
 #: Features that vary with the evaluation time (computed per row, cached by replay).
 ROW_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.scope == "row")

@@ -18,14 +18,41 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from advisor.physics.aperture import beam_fwhm_arcsec, required_surface_rms_um, root_sum_square, wavelength_mm
-from advisor.physics.laser import reference_mismatch_um_per_c
-from advisor.vocabulary import METHODS
-from advisor.physics.sky import elevation_and_minutes_above
-from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG, hours_since_sunrise, hours_since_sunset, solar_position
-from advisor.io.references import Registry, reference_in_force
 from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, ROW_FEATURES, FeatureSpec  # noqa: F401 (re-exported)
+from advisor.io.references import Registry, reference_in_force
 from advisor.io.site import Site
+from advisor.physics.aperture import (
+    beam_fwhm_arcsec,
+    gravity_residual_um,
+    pointing_efficiency,
+    required_surface_rms_um,
+    root_sum_square,
+    wavelength_mm,
+)
+from advisor.physics.atmosphere import (
+    atmosphere_temperature_k,
+    precipitable_water_mm,
+    standard_pressure_hpa,
+    system_temperature_above_atmosphere_k,
+    transmission,
+    water_vapour_density_from_dew_point_gm3,
+)
+from advisor.physics.laser import reference_mismatch_um_per_c
+from advisor.physics.moisture import (
+    frost_point_from_dew_point_c,
+    saturation_vapour_pressure_hpa,
+    saturation_vapour_pressure_ice_hpa,
+)
+from advisor.physics.opacity import zenith_opacity_series_nepers
+from advisor.physics.sun import (
+    SUNRISE_SUNSET_ALTITUDE_DEG,
+    hours_since_sunrise,
+    hours_since_sunset,
+    solar_position,
+    sun_state,
+)
+from advisor.physics.track import source_track, sun_separation_over_deg
+from advisor.vocabulary import METHODS
 
 #: Averaging period of the wind statistics for a feed of one sample a minute or faster [min].
 WIND_WINDOW_MIN = 10.0
@@ -38,7 +65,7 @@ LOOKBACK = pd.Timedelta(hours=2)
 
 #: Version of the row features' definition; raise it when their meaning changes without a change
 #: in the source of :data:`FEATURE_SOURCE_MODULES` (e.g. a changed data file they read).
-FEATURES_VERSION = 2
+FEATURES_VERSION = 3
 #: Every module whose code decides the row features.  A replay's feature cache hashes their
 #: source; tests/test_featurecache.py fails when the import closure of this module grows beyond it.
 FEATURE_SOURCE_MODULES = (
@@ -47,6 +74,8 @@ FEATURE_SOURCE_MODULES = (
     "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
     "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
     "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary", "advisor.physics.ephemeris",
+    "advisor.physics.atmosphere", "advisor.physics.absorption", "advisor.physics.p676_tables",
+    "advisor.physics.opacity", "advisor.physics.track",
     "advisor.io.feedfile", "advisor.io.times", "advisor.io.encoding", "advisor.text",
 )
 
@@ -114,12 +143,93 @@ def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
     return out
 
 
+def moisture_features(air_temp_c, dew_point_c, rel_humidity_pct, visibility_m, site: Site) -> dict[str, np.ndarray]:
+    """Dew and frost: spreads to saturation, humidity over ice, and the fog flag.
+
+    Relative humidity is over water at every temperature, as hygrometers report it (WMO-No. 8,
+    ch. 4); below 0 °C the air is buffered near saturation over ice, which is RH_w = 100 e_i/e_w
+    (86 % at -15 °C), so the fog test uses the frost-point spread and RH over ice there, with the
+    site's same thresholds.  The frost point comes from the dew point (the same vapour pressure;
+    forecast rows carry their dew-point margin); where the dew point is 0 °C or above, dew forms
+    first (and freezes on a surface below 0 °C), so the dew point stands in for it.
+    """
+    th = site.thresholds
+    temp = np.asarray(air_temp_c, dtype=float)
+    dew = np.asarray(dew_point_c, dtype=float)
+    below = temp < 0.0
+    with np.errstate(invalid="ignore"):
+        frost = np.where(dew < 0.0, np.asarray(frost_point_from_dew_point_c(dew), dtype=float), dew)
+        rh_ice = np.where(below, 100.0 * np.asarray(saturation_vapour_pressure_hpa(dew))
+                          / np.asarray(saturation_vapour_pressure_ice_hpa(temp)), np.nan)
+    dew_spread = temp - dew
+    frost_spread = temp - frost
+    humid = np.where(below, (frost_spread < th.fog_spread_c) & (rh_ice >= th.fog_rel_humidity_pct),
+                     (dew_spread < th.fog_spread_c) & (np.asarray(rel_humidity_pct) >= th.fog_rel_humidity_pct))
+    return {"dew_point_spread_c": dew_spread, "below_freezing": below, "frost_point_c": frost,
+            "frost_point_spread_c": frost_spread, "rel_humidity_ice_pct": rh_ice,
+            "fog": humid | (np.asarray(visibility_m) < th.fog_visibility_m)}
+
+
+def choose_calibrator(times_index: pd.DatetimeIndex, site: Site, out: dict[str, np.ndarray]) -> pd.Categorical:
+    """The calibrator for a measurement starting at each time; fills the ``calibrator_*`` columns of ``out``.
+
+    A calibrator is eligible when it stays within the site's [min, max] elevation for the whole
+    measurement and never comes closer to the Sun than ``sun_avoidance_deg``.  Among the eligible
+    the one whose elevation halfway through is nearest the session's is chosen: holography corrects
+    the surface at the calibrator's elevation, the session uses it at its own, and gravity deforms
+    the dish in between (``calibrator_gravity_residual_um``).  Returns the names (a categorical
+    whose last category, ``""``, means none).
+    """
+    astro = site.astronomical
+    n = len(times_index)
+    names = list(dict.fromkeys([c.name for c in site.calibrators] + [""]))
+    if not site.calibrators:
+        for name in ("calibrator_elevation_deg", "calibrator_mid_elevation_deg", "calibrator_sun_separation_deg",
+                     "calibrators_sun_closest_deg", "calibrator_gravity_residual_um"):
+            out[name] = np.full(n, np.nan)
+        out["calibrator_minutes_up"] = np.zeros(n)
+        out["calibrators_sun_blocked"] = np.zeros(n)
+        out["calibrator_available"] = np.zeros(n, dtype=bool)
+        return pd.Categorical.from_codes(np.zeros(n, dtype=int), categories=[""])
+    name_code = np.array([names.index(c.name) for c in site.calibrators])
+    ra = np.array([c.ra_deg for c in site.calibrators])
+    dec = np.array([c.dec_deg for c in site.calibrators])
+    track = source_track(times_index, ra, dec, site.latitude_deg, site.longitude_deg, astro.duration_min,
+                         astro.min_calibrator_elevation_deg)
+    sun_sep = sun_separation_over_deg(times_index, ra, dec, astro.duration_min)
+    in_limits = ((track.lowest_elevation_deg >= astro.min_calibrator_elevation_deg)
+                 & (track.highest_elevation_deg <= astro.max_calibrator_elevation_deg))
+    clear_of_sun = sun_sep >= astro.sun_avoidance_deg
+    eligible = in_limits & clear_of_sun
+    session_el = site.session.elevation_deg
+    best = np.argmin(np.where(eligible, np.abs(track.mid_elevation_deg - session_el), np.inf), axis=1)
+    chosen = eligible.any(axis=1)
+    rows = np.arange(n)
+
+    def pick(values: np.ndarray, none: float = np.nan) -> np.ndarray:
+        return np.where(chosen, values[rows, best].astype(float), none)
+
+    out["calibrator_elevation_deg"] = pick(track.elevation_deg)
+    out["calibrator_mid_elevation_deg"] = pick(track.mid_elevation_deg)
+    out["calibrator_minutes_up"] = pick(track.minutes_above, 0.0)
+    out["calibrator_sun_separation_deg"] = pick(sun_sep)
+    out["calibrators_sun_blocked"] = (in_limits & ~clear_of_sun).sum(axis=1).astype(float)
+    out["calibrators_sun_closest_deg"] = np.where(in_limits, sun_sep, np.inf).min(axis=1)
+    out["calibrators_sun_closest_deg"][~in_limits.any(axis=1)] = np.nan
+    out["calibrator_available"] = chosen
+    out["calibrator_gravity_residual_um"] = np.asarray(gravity_residual_um(
+        out["calibrator_mid_elevation_deg"], session_el, astro.gravity_sin_um, astro.gravity_cos_um), dtype=float)
+    return pd.Categorical.from_codes(np.where(chosen, name_code[best], len(names) - 1), categories=names)
+
+
 def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry) -> pd.DataFrame:
     """The row-scope features at each of ``times_utc`` (independent of the target frequency).
 
     Columns: ``time``, every ``row`` feature of the catalogue, ``calibrator_name`` and
     ``source_row`` (position in ``frame`` of the weather sample each row reads, -1 if none).
-    This is what a replay caches: it does not depend on the target.
+    This is what a replay caches: it does not depend on the target frequency.  It depends on the
+    site, including the session's elevation (``site.session``: the calibrator choice and its
+    gravity residual), which a replay's cache key therefore includes.
     """
     t_ns = _ns(times_utc)
     n = len(t_ns)
@@ -162,10 +272,13 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["data_ok"] = has & (age_min <= site.feed.max_feed_age_min) & latest_ok & np.isfinite(out["wind_mean_ms"])
 
     # --- moisture ------------------------------------------------------------------------
-    out["dew_point_spread_c"] = out["air_temp_c"] - out["dew_point_c"]
-    out["fog"] = ((out["dew_point_spread_c"] < th.fog_spread_c) & (out["rel_humidity_pct"] >= th.fog_rel_humidity_pct)) | (
-        out["visibility_m"] < th.fog_visibility_m)
+    out.update(moisture_features(out["air_temp_c"], out["dew_point_c"], out["rel_humidity_pct"],
+                                 out["visibility_m"], site))
     out["precipitation"] = out["precip_mm_h"] >= th.precip_mm_h
+    out["water_vapour_density_gm3"] = np.asarray(water_vapour_density_from_dew_point_gm3(out["air_temp_c"],
+                                                                                         out["dew_point_c"]))
+    out["pwv_mm"] = np.asarray(precipitable_water_mm(out["water_vapour_density_gm3"],
+                                                     site.atmosphere.water_scale_height_km))
 
     # --- sun and thermal state -----------------------------------------------------------
     sun_el, sun_az = solar_position(times_index, site.latitude_deg, site.longitude_deg)
@@ -173,12 +286,15 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["sun_azimuth_deg"] = np.asarray(sun_az, dtype=float)
     out["hours_since_sunset"] = np.asarray(hours_since_sunset(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
     out["hours_since_sunrise"] = np.asarray(hours_since_sunrise(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
-    # Night: the most recent of the two events was a sunset (same definition as the event times);
-    # where there is none within two days (polar), fall back to the elevation.
-    known = np.isfinite(out["hours_since_sunset"]) & np.isfinite(out["hours_since_sunrise"])
-    out["is_night"] = np.where(known, out["hours_since_sunset"] < out["hours_since_sunrise"],
-                               out["sun_elevation_deg"] < SUNRISE_SUNSET_ALTITUDE_DEG)
-    out["sun_transition"] = (out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0)
+    # Night: the sun is below the standard altitude (the same crossing table as the event times, so
+    # polar day and polar night are right); the elevation decides only for a time it cannot place.
+    state = np.asarray(sun_state(times_index, site.latitude_deg, site.longitude_deg), dtype=np.int8).reshape(n)
+    out["sun_state"] = state.astype(float)
+    out["is_night"] = np.where(state != 0, state < 0, out["sun_elevation_deg"] < SUNRISE_SUNSET_ALTITUDE_DEG)
+    # Fastest deformation while the sun rises or sets through the low band: not on a polar day or
+    # night, when it stays up (or down) and its heating changes slowly.
+    out["sun_transition"] = ((out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0)
+                             & (np.abs(state) != 2))
 
     # --- reference scan ------------------------------------------------------------------
     ref_ns, ref_temp = reference_in_force(registry, t_ns)
@@ -187,29 +303,7 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["reference_temp_delta_c"] = np.abs(out["air_temp_c"] - ref_temp)
 
     # --- calibrators ---------------------------------------------------------------------
-    astro = site.astronomical
-    # Calibrator names as a categorical (codes into the site's list; the last category is "none").
-    names = list(dict.fromkeys([c.name for c in site.calibrators] + [""]))
-    name_code = np.array([names.index(c.name) for c in site.calibrators] + [len(names) - 1])
-    if site.calibrators:
-        ra = np.array([c.ra_deg for c in site.calibrators])
-        dec = np.array([c.dec_deg for c in site.calibrators])
-        el, mins = elevation_and_minutes_above(times_index, ra, dec, site.latitude_deg, site.longitude_deg,
-                                               astro.min_calibrator_elevation_deg)
-        el, mins = np.asarray(el).reshape(n, -1), np.asarray(mins).reshape(n, -1)
-        usable = (el >= astro.min_calibrator_elevation_deg) & (el <= astro.max_calibrator_elevation_deg)
-        score = np.where(usable, mins, -1.0)
-        best = np.argmax(score, axis=1)
-        any_usable = usable.any(axis=1)
-        rows = np.arange(n)
-        out["calibrator_elevation_deg"] = np.where(any_usable, el[rows, best], np.nan)
-        out["calibrator_minutes_up"] = np.where(any_usable, mins[rows, best], 0.0)
-        cal_name = pd.Categorical.from_codes(np.where(any_usable, name_code[best], len(names) - 1), categories=names)
-    else:
-        out["calibrator_elevation_deg"] = np.full(n, np.nan)
-        out["calibrator_minutes_up"] = np.zeros(n)
-        cal_name = pd.Categorical.from_codes(np.zeros(n, dtype=int), categories=[""])
-    out["calibrator_available"] = out["calibrator_minutes_up"] >= astro.duration_min
+    cal_name = choose_calibrator(times_index, site, out)
 
     out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
 
@@ -219,7 +313,8 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["scan_surface_rms_um"] = laser_surface_rms_um(site, out["wind_gust_ms"], out["reference_age_h"],
                                                       out["reference_temp_delta_c"])
     out["astronomical_surface_rms_um"] = astronomical_surface_rms_um(site, out["wind_gust_ms"],
-                                                                     out["air_temp_rate_c_per_h"])
+                                                                     out["air_temp_rate_c_per_h"],
+                                                                     out["calibrator_gravity_residual_um"])
 
     columns = {"time": times_index}
     for name in ROW_FEATURES:
@@ -299,29 +394,37 @@ def laser_surface_rms_um(site: Site, wind_gust_ms, reference_age_h, reference_te
     return np.asarray(root_sum_square(site.astronomical.surface_rms_um, scan_term, age_term), dtype=float)
 
 
-def astronomical_surface_rms_um(site: Site, wind_gust_ms, air_temp_rate_c_per_h) -> np.ndarray:
+def astronomical_surface_rms_um(site: Site, wind_gust_ms, air_temp_rate_c_per_h, gravity_residual_um=0.0) -> np.ndarray:
     """Expected surface rms after an out-of-focus holography correction [µm].
 
-    σ = √(σ_astro² + (k·gust²)² + (drift · |dT/dt| · duration)²): the site's holography figure,
-    wind deformation during the measurement, and thermal drift over its longer duration.
+    σ = √(σ_astro² + (k·gust²)² + (drift · |dT/dt| · duration)² + σ_g²): the site's holography
+    figure, wind deformation during the measurement, thermal drift over its longer duration, and
+    the gravity residual σ_g of a correction made at the calibrator's elevation and used at the
+    session's (:func:`advisor.physics.aperture.gravity_residual_um`; 0 where no calibrator is
+    chosen, when the method is blocked anyway).  The laser scans at the session's elevation and
+    carries no such term.
     """
     a = site.astronomical
     gust = np.asarray(wind_gust_ms, dtype=float)
     rate = np.nan_to_num(np.abs(np.asarray(air_temp_rate_c_per_h, dtype=float)), nan=0.0)
     drift = a.thermal_drift_um_per_c * rate * a.duration_min / 60.0
-    return np.asarray(root_sum_square(a.surface_rms_um, a.wind_term_um_per_ms2 * gust**2, drift), dtype=float)
+    gravity = np.nan_to_num(np.asarray(gravity_residual_um, dtype=float), nan=0.0)
+    return np.asarray(root_sum_square(a.surface_rms_um, a.wind_term_um_per_ms2 * gust**2, drift, gravity),
+                      dtype=float)
 
 
 def best_surface_rms_um(site: Site) -> dict[str, float]:
-    """The least surface rms each method can leave in any weather (calm, fresh reference) [µm]."""
+    """The least surface rms each method can leave in any weather (calm, fresh reference, a calibrator at
+    the session's elevation) [µm]."""
     return {"scan": float(laser_surface_rms_um(site, 0.0, 0.0, 0.0)),
             "astronomical": float(astronomical_surface_rms_um(site, 0.0, 0.0))}
 
 
 def target_features(site: Site, freq_ghz: float) -> dict[str, float]:
     """The target-scope features: one number each, fixed by the target frequency and the site."""
-    th = site.thresholds
-    return {
+    th, astro, atm = site.thresholds, site.astronomical, site.atmosphere
+    session_el = float(site.session.elevation_deg)
+    targets = {
         "freq_ghz": float(freq_ghz),
         "wavelength_mm": float(wavelength_mm(freq_ghz)),
         "surface_requirement_fraction": float(th.surface_requirement_fraction),
@@ -330,14 +433,60 @@ def target_features(site: Site, freq_ghz: float) -> dict[str, float]:
         "hf_wind_limit_ms": float(th.high_frequency_wind_limit_ms),
         "high_frequency_min_ghz": float(th.high_frequency_min_ghz),
         "scan_duration_min": float(site.scan.duration_min),
-        "astronomical_duration_min": float(site.astronomical.duration_min),
+        "astronomical_duration_min": float(astro.duration_min),
+        "session_elevation_deg": session_el,
+        "calibrator_min_elevation_deg": float(astro.min_calibrator_elevation_deg),
+        "calibrator_max_elevation_deg": float(astro.max_calibrator_elevation_deg),
+        "sun_avoidance_deg": float(astro.sun_avoidance_deg),
+        "site_height_m": float(site.elevation_m),
+        "receiver_temp_k": float(atm.receiver_temp_k),
+        "reference_pwv_mm": float(atm.reference_pwv_mm),
     }
+    # The dry reference night: the site's standard pressure, the reference PWV and air temperature.
+    ref_rho = atm.reference_pwv_mm / atm.water_scale_height_km
+    ref_tau = _zenith_opacity(targets, standard_pressure_hpa(site.elevation_m), atm.reference_air_temp_c, ref_rho,
+                              atm.reference_pwv_mm)
+    targets["reference_system_temp_k"] = float(_system_temp_k(targets, ref_tau, atm.reference_air_temp_c)[0])
+    return targets
+
+
+def _zenith_opacity(targets: dict[str, float], pressure_hpa, temp_c, rho_gm3, pwv_mm) -> np.ndarray:
+    """Zenith opacity at the target frequency [nepers] (NaN outside 1-350 GHz)."""
+    return zenith_opacity_series_nepers(targets["freq_ghz"], pressure_hpa, temp_c, rho_gm3, pwv_mm,
+                                        min(max(targets["site_height_m"], 0.0), 4000.0))
+
+
+def _system_temp_k(targets: dict[str, float], tau, temp_c) -> np.ndarray:
+    """T_sys* at the session's elevation [K]; inf where the sky is opaque."""
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        return np.atleast_1d(np.asarray(system_temperature_above_atmosphere_k(
+            targets["receiver_temp_k"], tau, targets["session_elevation_deg"],
+            atmosphere_temperature_k(temp_c)), dtype=float))
 
 
 def with_target(rows: pd.DataFrame, targets: dict[str, float]) -> pd.DataFrame:
-    """Row features plus the ``target_row`` ones (row values that depend on the target)."""
+    """Row features plus the ``target_row`` ones (row values that depend on the target).
+
+    The atmosphere at the target frequency: zenith opacity from the surface air (the feed's
+    pressure, else the site's standard pressure), transmission and T_sys* at the session's
+    elevation, and the integration-time factor against the site's dry reference night; the
+    session's pointing efficiency on the target's beam; each method's margin to the requirement.
+    """
     out = rows.copy(deep=False)
-    out["pointing_beam_fraction"] = rows["wind_pointing_error_arcsec"].to_numpy() / targets["beam_fwhm_arcsec"]
+    pointing = rows["wind_pointing_error_arcsec"].to_numpy()
+    out["pointing_beam_fraction"] = pointing / targets["beam_fwhm_arcsec"]
+    out["pointing_efficiency"] = np.asarray(pointing_efficiency(pointing, targets["beam_fwhm_arcsec"]), dtype=float)
+    temp = rows["air_temp_c"].to_numpy(dtype=float)
+    pressure = rows["pressure_hpa"].to_numpy(dtype=float)
+    pressure = np.where(np.isfinite(pressure), pressure, standard_pressure_hpa(targets["site_height_m"]))
+    tau = _zenith_opacity(targets, pressure, temp, rows["water_vapour_density_gm3"].to_numpy(dtype=float),
+                          rows["pwv_mm"].to_numpy(dtype=float))
+    tsys = _system_temp_k(targets, tau, temp)
+    out["zenith_opacity"] = tau
+    out["transmission"] = np.asarray(transmission(tau, targets["session_elevation_deg"]), dtype=float).reshape(-1)
+    out["system_temp_k"] = tsys
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        out["integration_time_factor"] = (tsys / targets["reference_system_temp_k"]) ** 2
     for method in METHODS:
         out[f"{method}_surface_margin_um"] = (targets["required_surface_rms_um"]
                                               - rows[f"{method}_surface_rms_um"].to_numpy())

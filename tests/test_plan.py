@@ -210,7 +210,7 @@ def test_a_morning_session_re_corrects_as_the_sun_rises(demo_site, default_rules
     assert np.diff(t_struct)[-6:].mean() > 3 * max(np.diff(t_struct)[:6].mean(), 0.01)
     by_key = {a.key: a for a in plan.alternatives}
     best_single = max(by_key[k].efficiency for k in ("scan_now", "astronomical_now") if by_key[k].efficiency)
-    assert by_key["plan"].efficiency > best_single + 0.02
+    assert by_key["plan"].efficiency > 1.03 * best_single
     assert by_key["plan"].expected_corrections >= 2
 
 
@@ -241,9 +241,11 @@ def test_waiting_forty_minutes_for_holography_beats_the_laser_now(demo_site, def
     wait = by_key["wait_astronomical"]
     assert (wait.corrections[0][1] - start) == pd.Timedelta(minutes=40)
     assert wait.efficiency > by_key["scan_now"].efficiency + 0.05      # waiting beats the laser now
+    # the plan uses the laser while it waits, and takes holography once the calibrator is up (a
+    # little later than its first minute: higher up, it leaves less gravity residual at the session's 45°)
     holography = [c for c in plan.corrections if c.method == "astronomical"]
-    assert holography and holography[0].start_utc - start == pd.Timedelta(minutes=40), plan.headline
-    assert "holography at 21:40" in plan.headline                      # 04:40 UTC in MST
+    assert holography, plan.headline
+    assert pd.Timedelta(minutes=40) <= holography[0].start_utc - start <= pd.Timedelta(minutes=70), plan.headline
     assert by_key["plan"].efficiency >= wait.efficiency
 
 

@@ -37,14 +37,18 @@ def _random_columns(n: int, seed: int) -> dict[str, np.ndarray]:
     return out
 
 
+#: Site figures among the target features (the same for both targets).
+_SITE = {"session_elevation_deg": 50.0, "calibrator_min_elevation_deg": 25.0, "calibrator_max_elevation_deg": 80.0,
+         "sun_avoidance_deg": 30.0, "site_height_m": 1000.0, "receiver_temp_k": 60.0, "reference_pwv_mm": 4.0,
+         "reference_system_temp_k": 120.0}
 #: Two targets: one below and one above the high-frequency threshold of the default rules.
 TARGETS = [
     {"freq_ghz": 22.0, "wavelength_mm": 13.6, "required_surface_rms_um": 850.0, "beam_fwhm_arcsec": 40.0,
      "hf_wind_limit_ms": 6.0, "high_frequency_min_ghz": 70.0, "scan_duration_min": 45.0,
-     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0},
+     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0, **_SITE},
     {"freq_ghz": 115.0, "wavelength_mm": 2.6, "required_surface_rms_um": 163.0, "beam_fwhm_arcsec": 8.0,
      "hf_wind_limit_ms": 6.0, "high_frequency_min_ghz": 70.0, "scan_duration_min": 45.0,
-     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0},
+     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0, **_SITE},
 ]
 
 

@@ -38,8 +38,6 @@ def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
                    "start of the session (default: now; the demo feed's last sample for the demo)"))
     p.add_argument("--hours", metavar="H", help="length of the session [h] (default: the site's "
                    "thresholds.session_hours)")
-    p.add_argument("--elevation", metavar="DEG", help="elevation the session observes at [deg] (for the "
-                   "atmosphere term; default 45)")
     p.add_argument("--forecast", metavar="FILE", help="forecast file read beside the feed, in the feed's format "
                    "(default: the site's forecast.path when the site's own feed is read)")
     p.add_argument("--json", action="store_true", help="print one JSON object: corrections, alternatives, steps")
@@ -67,7 +65,6 @@ def cmd_plan(args: argparse.Namespace) -> int:
     from advisor.views.plan_text import render_plain_plan
 
     hours = session.parse_hours(args.hours, "--hours", 0.5, MAX_PLAN_HOURS)
-    elevation = session.parse_hours(args.elevation, "--elevation", 5.0, 90.0)
     svg = _svg_target(args.svg)
     start_option = session.parse_time(args.start, "--start")
     request = session.request_from(args)
@@ -81,7 +78,7 @@ def cmd_plan(args: argparse.Namespace) -> int:
     start = session.evaluation_time(inputs, start_option, frame)
     sources = " + ".join([feed.source, *([forecast_source] if forecast_source else [])])
     plan = compute_plan(frame, start, hours, site, inputs.registry, inputs.rules, inputs.freq_ghz,
-                        odds=inputs.odds, elevation_deg=elevation, source=sources)
+                        odds=inputs.odds, source=sources)
     quality = feed.quality.as_dict()
     quality["source"] = feed.source
     ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=sources, is_demo=inputs.is_demo,

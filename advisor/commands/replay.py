@@ -89,7 +89,8 @@ def cmd_replay(args: argparse.Namespace) -> int:
         rule_sets.append(session.load_ruleset(inputs.site, [*request.rule_files, *args.compare_rules]))
     check_whole_read(inputs.feed_path)  # before hashing it for the cache
     key = featurecache.key_for(inputs.feed_path, Path(inputs.site.source), inputs.registry_path, {
-        "from": t_from, "to": t_to, "time_zone": inputs.feed_layout.time_zone},
+        "from": t_from, "to": t_to, "time_zone": inputs.feed_layout.time_zone,
+        "session_elevation_deg": inputs.site.session.elevation_deg},  # the calibrator choice depends on it
         code_paths=feature_source_paths(), features_version=FEATURES_VERSION)
     features = None if args.no_cache else featurecache.load(key)
     if features is None:

@@ -61,6 +61,22 @@ _FREQ_UNITS_GHZ = {"": 1.0, "ghz": 1.0, "mhz": 1e-3, "thz": 1e3}
 _WAVE_UNITS_MM = {"mm": 1.0, "cm": 10.0, "um": 1e-3, "µm": 1e-3, "m": 1000.0}
 
 
+ELEVATION_RANGE_DEG = (5.0, 90.0)
+
+
+def parse_elevation_deg(text: str, field: str = "--elevation") -> float:
+    """``45``, ``45deg`` or ``45°`` → the session's elevation [deg], within 5..90."""
+    m = re.match(r"^\s*([0-9]*\.?[0-9]+)\s*(deg|°)?\s*$", str(text))
+    if not m:
+        raise UsageError(f"cannot read elevation {text!r}", field=field, hint="write degrees, e.g. 45 or 45deg")
+    value = float(m.group(1))
+    lo, hi = ELEVATION_RANGE_DEG
+    if not lo <= value <= hi:
+        raise UsageError(f"elevation {value:g} deg is outside {lo:g}..{hi:g} deg", field=field,
+                         hint="give the elevation the session observes at, e.g. 45")
+    return value
+
+
 def parse_frequency_ghz(text: str, field: str = "--freq") -> float:
     """``86``, ``86GHz``, ``86 GHz`` or a wavelength like ``3.5mm`` → frequency [GHz]."""
     m = _FREQ.match(str(text))
@@ -144,6 +160,9 @@ def add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) -> 
     if with_at:
         p.add_argument("--at", metavar="TIME", help=time_help(
             "evaluation time (default: now; the last sample for the demo feed)"))
+    p.add_argument("--elevation", metavar="DEG", help="elevation the session observes at, 5..90 deg (default: the "
+                   "site's session.elevation_deg, 45 if it gives none): where the laser corrects the surface, the "
+                   "calibrator is preferred near it, and the atmosphere's transmission is taken")
     p.add_argument("--references", metavar="REFS.csv", help="reference-scan registry (default: the site's)")
     p.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
                    help="extra rule files layered over the defaults and the site's")
@@ -233,6 +252,7 @@ class Request:
     rule_files: tuple[Path, ...] = ()    # layered over the defaults and the site's
     model: str | None = None             # MODEL.json, 'none'/'off', or None: the site's
     session_hours: float | None = None   # None: the site's thresholds.session_hours
+    elevation_deg: float | None = None   # None: the site's session.elevation_deg
 
 
 def request_from(args: argparse.Namespace) -> Request:
@@ -242,6 +262,7 @@ def request_from(args: argparse.Namespace) -> Request:
         return Path(value) if value else None
 
     freq = getattr(args, "freq", None)
+    elevation = getattr(args, "elevation", None)
     return Request(
         site_path=path("site"),
         feed_path=path("feed"),
@@ -251,6 +272,7 @@ def request_from(args: argparse.Namespace) -> Request:
         rule_files=tuple(Path(p) for p in (getattr(args, "rules", None) or ())),
         model=getattr(args, "model", None),
         session_hours=parse_hours(getattr(args, "session_hours", None), "--session-hours", 0.0, 24.0 * 7),
+        elevation_deg=parse_elevation_deg(elevation) if elevation is not None else None,
     )
 
 
@@ -354,6 +376,8 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     site = load_site(request.site_path)
     if request.session_hours is not None:
         site = replace(site, thresholds=replace(site.thresholds, session_hours=request.session_hours))
+    if request.elevation_deg is not None:  # the session's elevation for this command line
+        site = replace(site, session=replace(site.session, elevation_deg=request.elevation_deg))
     notes: list[str] = []
     if request.feed_path is not None:
         path = request.feed_path

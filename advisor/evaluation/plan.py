@@ -1,7 +1,6 @@
 """Plan the session: which correction to make when, and when to make it again.
 
-    plan = compute_plan(frame, start_utc, hours, site, registry, rules, freq_ghz, odds=None,
-                        elevation_deg=None, source="<feed>")
+    plan = compute_plan(frame, start_utc, hours, site, registry, rules, freq_ghz, odds=None, source="<feed>")
 
 Over a grid of :data:`PLAN_STEP_MIN` steps (the forecast's own spacing when coarser) the
 session is evaluated through the one evaluation path (:class:`advisor.evaluation.evaluate.Scenario`)
@@ -13,8 +12,9 @@ leave its expected surface with its odds of success.
 Observing a step earns the square of its efficiency (integration time to a given sensitivity
 scales as 1/η²): Ruze for the surface, which decays after a correction as the structure's
 temperature moves (:mod:`advisor.evaluation.decay`), times the pointing loss in the wind
-(Gaussian beam), times the atmosphere's transmission where the features carry the zenith opacity
-(:func:`atmosphere_factor`, a seam until they do).  Correcting earns nothing while it lasts; a
+(Gaussian beam), divided by the atmosphere's integration-time factor at the session's elevation
+(``integration_time_factor``: (T_sys*/T_sys*_ref)² against the site's dry reference night, so a
+step is worth (η / T_sys*)² relative to it; :func:`atmosphere_factor`).  Correcting earns nothing while it lasts; a
 correction that fails leaves the surface as it was.  Before the first correction the surface is
 the site's ``uncorrected_surface_rms_um`` when it gives one, else nothing observed counts.
 
@@ -51,22 +51,19 @@ from advisor.evaluation.schedule import (
 from advisor.io.references import Registry
 from advisor.io.site import Site
 from advisor.physics.aperture import pointing_efficiency, ruze_efficiency
-from advisor.physics.atmosphere import transmission
 from advisor.physics.thermal import drifted_surface_rms_um
 from advisor.rules.ruleset import RuleSet
 from advisor.vocabulary import METHODS
 
-__all__ = ["PLAN_STEP_MIN", "MAX_PLAN_HOURS", "DEFAULT_ELEVATION_DEG", "ATMOSPHERE_FEATURE", "PLAN_LABEL",
+__all__ = ["PLAN_STEP_MIN", "MAX_PLAN_HOURS", "ATMOSPHERE_FEATURE", "PLAN_LABEL",
            "Correction", "Alternative", "Plan", "atmosphere_factor", "compute_plan"]
 
 #: Step of the plan's grid [min] (the forecast's own spacing when that is coarser).
 PLAN_STEP_MIN = 10.0
 #: Longest session planned [h].
 MAX_PLAN_HOURS = 48.0
-#: Session elevation when none is given [deg]: used by the atmosphere term only.
-DEFAULT_ELEVATION_DEG = 45.0
-#: The feature that gives the atmosphere term (zenith opacity [nepers]) once the features carry it.
-ATMOSPHERE_FEATURE = "zenith_opacity_nepers"
+#: The feature that gives the atmosphere term: integration time relative to the site's dry reference night.
+ATMOSPHERE_FEATURE = "integration_time_factor"
 #: A correction by each method in a sentence.
 PLAN_LABEL = {"scan": "laser scan", "astronomical": "holography"}
 #: An action must gain at least this much observing at η = 1 to be taken [min].
@@ -141,16 +138,19 @@ def _utc(ns) -> pd.DatetimeIndex:
     return pd.DatetimeIndex(np.asarray(ns, dtype=np.int64).astype("datetime64[ns]")).tz_localize("UTC")
 
 
-def atmosphere_factor(features: pd.DataFrame, elevation_deg: float) -> np.ndarray | None:
-    """The atmosphere's transmission at the session's elevation, or None while the features lack it.
+def atmosphere_factor(features: pd.DataFrame) -> np.ndarray | None:
+    """The weight the atmosphere gives each step's η², or None when the features do not carry it.
 
-    The seam for the atmosphere term: when the features carry :data:`ATMOSPHERE_FEATURE` (the
-    zenith opacity), each step's efficiency is multiplied by exp(−τ A(elevation)).
+    1 / ``integration_time_factor``: the integration time to a given sensitivity scales as
+    (T_sys*/η)², so a step under a sky that needs k times the integration time of the site's dry
+    reference night is worth η²/k (ITU-R P.676 opacity, T_sys* referred to above the atmosphere;
+    :mod:`advisor.physics.atmosphere`).  A missing factor (no humidity, say) counts as the reference.
     """
     if ATMOSPHERE_FEATURE not in features:
         return None
-    tau = features[ATMOSPHERE_FEATURE].to_numpy(dtype=float)
-    return np.asarray(transmission(tau, elevation_deg), dtype=float)
+    factor = features[ATMOSPHERE_FEATURE].to_numpy(dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(np.isfinite(factor) & (factor > 0), 1.0 / factor, 1.0)
 
 
 def _plan_grid(used: pd.DataFrame, start_utc: pd.Timestamp, hours: float, source: str):
@@ -180,12 +180,11 @@ def _runs_ok(feasible: np.ndarray, length: int) -> np.ndarray:
 
 
 def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, site: Site, registry: Registry,
-                 rules: RuleSet, freq_ghz: float, odds: OddsFunction | None = None, elevation_deg: float | None = None,
-                 source: str = "<feed>") -> Plan:
+                 rules: RuleSet, freq_ghz: float, odds: OddsFunction | None = None, source: str = "<feed>") -> Plan:
     """The best schedule of corrections for a session and the simple alternatives to it (pure)."""
     start_utc = pd.Timestamp(start_utc).tz_convert("UTC")
     fs = site.forecast
-    elevation = DEFAULT_ELEVATION_DEG if elevation_deg is None else float(elevation_deg)
+    elevation = float(site.session.elevation_deg)
     disagreement = compare_with_forecast(frame, site)
     used, hindsight = select_rows(frame, start_utc)
     times, step_min = _plan_grid(used, start_utc, hours, source)
@@ -201,8 +200,8 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
     usable = f["data_ok"].to_numpy(dtype=bool) & ~gap
     pointing = np.nan_to_num(np.asarray(pointing_efficiency(f["wind_pointing_error_arcsec"].to_numpy(dtype=float),
                                                             targets["beam_fwhm_arcsec"]), dtype=float))
-    atmosphere = atmosphere_factor(f, elevation)
-    weight = np.where(usable, (pointing * (1.0 if atmosphere is None else np.nan_to_num(atmosphere))) ** 2, 0.0)
+    atmosphere = atmosphere_factor(f)
+    weight = np.where(usable, pointing**2 * (1.0 if atmosphere is None else atmosphere), 0.0)
 
     durations = np.array([site.scan.duration_min, site.astronomical.duration_min])
     ends_ns = t_ns[None, :] + np.round(durations * 6e10).astype(np.int64)[:, None]      # (M, n)
@@ -291,7 +290,7 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
     corrections = tuple(planned)
     steps = _steps_frame(times, decisions, usable, gap, start_ok, states, gain, t_struct, pointing, f)
     notes = _notes(disagreement, fs, used, hindsight, start_utc, n, step_min, hours, usable, atmosphere, odds,
-                   uncorrected_known, elevation_deg)
+                   uncorrected_known, elevation)
     headline = _headline(verdict, corrections, alternatives, decisions, targets, site, times, usable, start_ok, tz)
     return Plan(site=site, freq_ghz=float(freq_ghz), start_utc=times[0], requested_hours=float(hours),
                 step_min=float(step_min), elevation_deg=elevation, required_surface_rms_um=targets["required_surface_rms_um"],
@@ -352,7 +351,7 @@ def _steps_frame(times, decisions, usable, gap, start_ok, states, gain, t_struct
 
 
 def _notes(disagreement, fs, used, hindsight, start_utc, n, step_min, hours, usable, atmosphere, odds,
-           uncorrected_known, elevation_deg) -> list[str]:
+           uncorrected_known, elevation_deg: float) -> list[str]:
     notes = []
     if disagreement is not None:
         notes.append(disagreement.text())
@@ -368,10 +367,11 @@ def _notes(disagreement, fs, used, hindsight, start_utc, n, step_min, hours, usa
         notes.append(f"{unknown} step(s) have no usable weather (gaps, stale or implausible rows): nothing observed "
                      "there counts, and no correction is planned in them.")
     if atmosphere is None:
-        notes.append(f"Atmosphere not counted: the features carry no '{ATMOSPHERE_FEATURE}' yet "
+        notes.append(f"Atmosphere not counted: the features carry no '{ATMOSPHERE_FEATURE}' "
                      "(advisor.evaluation.plan.atmosphere_factor); efficiencies are surface × pointing.")
-    elif elevation_deg is None:
-        notes.append(f"Atmosphere counted at {DEFAULT_ELEVATION_DEG:g}° elevation (give --elevation for the session's).")
+    else:
+        notes.append(f"Session efficiency counts the atmosphere at {elevation_deg:g}° elevation: η / √(integration-time "
+                     "factor), the factor against the site's dry reference night (--elevation for another).")
     if odds is None:
         notes.append("No site model: every correction is taken to succeed.")
     if not uncorrected_known:

@@ -102,6 +102,44 @@ class AstronomicalFigures:
     uncorrected_surface_rms_um: float | None = None   # the surface with no fresh correction (optional)
     min_calibrator_elevation_deg: float = 25.0
     max_calibrator_elevation_deg: float = 80.0
+    # Never point at a calibrator closer to the Sun than this over the measurement [deg]: sites set
+    # 15 to over 40 deg (receivers, subreflector and panel heating; common practice); 30 is on the
+    # careful side of that range for a site that has not set its own.
+    sun_avoidance_deg: float = 30.0
+    # Gravity deformation of the dish, rms per unit sin E and cos E [um] (one orthonormal mode,
+    # z(E) = a sin E + b cos E + c): what a holography correction made at the calibrator's elevation
+    # leaves at the session's (advisor.physics.aperture.gravity_residual_um).  0 = not known: no term.
+    gravity_sin_um: float = 0.0
+    gravity_cos_um: float = 0.0
+
+
+@dataclass(frozen=True)
+class AtmosphereFigures:
+    """``atmosphere:`` — the water-vapour column above the site and the reference night.
+
+    ``water_scale_height_km``: PWV = surface water-vapour density x this (ITU-R P.835-6's reference
+    atmosphere has 2 km; fit it to radiometer or GNSS PWV where the site has them).  The
+    integration-time factor compares the sky now with a dry reference night: ``reference_pwv_mm``
+    at ``reference_air_temp_c``, the site's standard pressure, the same frequency and elevation,
+    and a receiver of ``receiver_temp_k``.
+    """
+
+    water_scale_height_km: float = 2.0
+    reference_pwv_mm: float = 4.0
+    reference_air_temp_c: float = 0.0
+    receiver_temp_k: float = 60.0
+
+
+@dataclass(frozen=True)
+class SessionSettings:
+    """``session:`` — the high-frequency session the call is for (``--elevation`` overrides).
+
+    ``elevation_deg``: the elevation the session observes at (the site's typical, 45 deg if it
+    says nothing): the laser corrects the surface there, holography at the calibrator's; the
+    atmosphere's transmission is taken there.
+    """
+
+    elevation_deg: float = 45.0
 
 
 @dataclass(frozen=True)
@@ -235,6 +273,8 @@ class Site:
     tick: TickConfig = field(default_factory=TickConfig)
     forecast: ForecastSettings = field(default_factory=ForecastSettings)
     structure: StructureFigures = field(default_factory=StructureFigures)
+    atmosphere: AtmosphereFigures = field(default_factory=AtmosphereFigures)
+    session: SessionSettings = field(default_factory=SessionSettings)
     source: str = "<built-in>"
     is_demo: bool = False
     extra: dict = field(default_factory=dict, compare=False)
@@ -406,7 +446,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
                         hint="start with 'site:'")
     r = _Reader(data, lines, source)
     r.section((), {"site", "feed", "references", "rules", "model", "history", "methods", "thresholds", "calibrators",
-                   "tick", "forecast", "structure"})
+                   "tick", "forecast", "atmosphere", "session", "structure"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
     name = r.text(("site", "name"), required=True)
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
@@ -459,10 +499,15 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     astro = _figures(r, ("methods", "astronomical"), AstronomicalFigures, {
         "surface_rms_um": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
         "thermal_drift_um_per_c": (0, 5000), "duration_min": (0.1, 1440), "uncorrected_surface_rms_um": (0, 100000),
-        "min_calibrator_elevation_deg": (0, 90), "max_calibrator_elevation_deg": (0, 90)})
+        "min_calibrator_elevation_deg": (0, 90), "max_calibrator_elevation_deg": (0, 90),
+        "sun_avoidance_deg": (0, 90), "gravity_sin_um": (-5000, 5000), "gravity_cos_um": (-5000, 5000)})
     if astro.min_calibrator_elevation_deg >= astro.max_calibrator_elevation_deg:
         raise r.fail(("methods", "astronomical", "max_calibrator_elevation_deg"),
                      "must be above min_calibrator_elevation_deg")
+    atmosphere = _figures(r, ("atmosphere",), AtmosphereFigures, {
+        "water_scale_height_km": (0.1, 10), "reference_pwv_mm": (0.1, 100), "reference_air_temp_c": (-60, 40),
+        "receiver_temp_k": (1, 5000)})
+    session = _figures(r, ("session",), SessionSettings, {"elevation_deg": (5, 90)})
     thresholds = _figures(r, ("thresholds",), Thresholds, {
         "high_frequency_wind_limit_ms": (0, 100), "high_frequency_min_ghz": (0, 2000),
         "surface_requirement_fraction": (1, 1000),
@@ -509,6 +554,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         tick=_tick_config(r, base),
         forecast=_forecast_settings(r, base),
         structure=structure,
+        atmosphere=atmosphere, session=session,
         source=source, is_demo=is_demo,
     )
 

@@ -253,9 +253,12 @@ def feature_text(name: str, fmt_pattern: str, features: dict) -> str:
 
 
 def key_features(features: dict) -> list[tuple[str, str]]:
-    """(label, text) pairs of the key conditions; hours since sunrise by day, since sunset by night."""
+    """(label, text) pairs of the key conditions; hours since sunrise by day, since sunset by night;
+    a condition with ``key_when`` only where that flag is true."""
     rows = []
     for spec in KEY_FEATURES:
+        if spec.key_when and not features.get(spec.key_when):
+            continue
         if spec.name == "hours_since_sunset" and not features.get("is_night", True):
             spec = CATALOGUE["hours_since_sunrise"]
         rows.append((spec.label, feature_text(spec.name, spec.display_format, features)))

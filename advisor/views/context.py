@@ -9,6 +9,8 @@ __all__ = ["CAUTIONS", "CAUTION_SHORT", "Context", "with_note"]
 CAUTIONS = (
     "Advisory only — not a safety system.",
     "Stow the antenna at the site's wind limits regardless of this tool.",
+    "Keep the dish away from the Sun by the site's own limits and interlocks: the calibrator choice "
+    "avoids the Sun, but does not replace them.",
     "Laser scanners can be hazardous to eyes: follow the site's laser-safety procedure and keep "
     "people off the structure during scans and surface moves.",
     "Defer to local rules and the site's responsible staff.",
