@@ -91,7 +91,11 @@ def cmd_replay(args: argparse.Namespace) -> int:
     base, *rest = replay_from_features(features, scenario, rule_sets)
     other = rest[0] if rest else None
     times = base.times_utc
-    hours = step_hours(times, inputs.site.feed.max_gap_min)
+    cadence = features["feed_cadence_min"].to_numpy(dtype=float)
+    cadence_min = float(np.nanmedian(cadence)) if np.isfinite(cadence).any() else None
+    layout = inputs.site.feed
+    hours = step_hours(times, float(layout.gap_limit_min(cadence_min)))
+    age_limit = float(layout.age_limit_min(cadence_min))
     local = times.tz_convert(ZoneInfo(inputs.site.time_zone))
     summary = {
         "feed": str(inputs.feed_path),
@@ -109,13 +113,13 @@ def cmd_replay(args: argparse.Namespace) -> int:
     if args.history:
         attempts = attempts_from_history(read_history(args.history))
         summary["attempts"] = score_attempts(times, base.verdict, base.rule_eval, attempts,
-                                             inputs.site.feed.max_feed_age_min)
+                                             age_limit)
     if other is not None:
         comparison = compare_rule_sets(base.verdict, other.verdict, base.rule_eval, other.rule_eval, hours)
         comparison["hours_b"] = _hours_dict(other.verdict, hours)
         if args.history:
             comparison["attempts_b"] = score_attempts(times, other.verdict, other.rule_eval, attempts,
-                                                      inputs.site.feed.max_feed_age_min)
+                                                      age_limit)
         summary["comparison"] = comparison
     if args.csv:
         _write_csv(args.csv, times, base.verdict, other.verdict if other is not None else None)

@@ -229,13 +229,22 @@ def cmd_explain(args: argparse.Namespace) -> int:
     out.line(f"verdict: {VERDICT[call.verdict].label} — {call.headline}")
     if result.inputs.is_demo:
         out.line(DEMO_BANNER)
+    unknown_of = decisions.rule_eval.unknown
     evaluated = [(rule, bool(fired_of[rule.id][0])) for rule in decisions.rules]
+    undecided = {rule.id for rule, _ in evaluated if rule.id in unknown_of and unknown_of[rule.id][0]}
     n_fired = sum(f for _, f in evaluated)
-    out.line(f"{len(evaluated)} rules: {n_fired} true, {len(evaluated) - n_fired} false (true ones first)")
-    for rule, fired in sorted(evaluated, key=lambda rf: not rf[1]):
+    split = f"{n_fired} true, {len(evaluated) - n_fired - len(undecided)} false"
+    if undecided:
+        split += f", {len(undecided)} unknown"
+    out.line(f"{len(evaluated)} rules: {split} (true ones first)")
+    for rule, fired in sorted(evaluated, key=lambda rf: (not rf[1], rf[0].id not in undecided)):
         out.line("")
-        mark = "TRUE " if fired else "false"
+        mark = "TRUE " if fired else ("?    " if rule.id in undecided else "false")
         out.line(f"{mark}  {rule.id}  [{rule.applies_to} · {rule.effect}]")
+        if rule.id in undecided:
+            needs = ", ".join(sorted(rule.condition.needs_inputs))
+            out.line(f"       unknown: it needs {needs}, not seen at this time; it neither fired nor cleared",
+                     indent=12)
         out.line(f"       from {_where(rule)}", indent=12)
         out.line(f"       when {rule.condition_text}", indent=12)
         for part in condition_parts(rule.condition.ast, keep_not=True):

@@ -107,7 +107,8 @@ def cmd_tick(args) -> int:
             files = {
                 "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
                 "advisory.txt": text,
-                "advisory.html": advisory_html(html_panel, change, title, site.feed.max_feed_age_min),
+                "advisory.html": advisory_html(html_panel, change, title,
+                                               float(site.feed.age_limit_min(call.features.get("feed_cadence_min")))),
                 "state.json": json.dumps(change.state.as_dict(), indent=2) + "\n",
             }
             record = {"issued_utc": change.state.issued_utc, "time_utc": doc["time_utc"], "verdict": call.verdict,
