@@ -266,6 +266,8 @@ def explain(decisions: Decisions, i: int) -> Call:
             if rule.error is not None:
                 term = decisions.rule_eval.error_um[rule.id][i]
                 message = f"{message} (+{term:.0f} µm in quadrature)"
+            if values.get("gust_estimated") and rule.condition.names & GUST_FEATURES:
+                message = f"{message} (gusts estimated: the station has no gust sensor)"
             reasons.append(Reason(rule.id, rule.applies_to, rule.effect, message))
     unseen = unseen_inputs(values)
     if verdict != "undetermined":
@@ -309,6 +311,10 @@ def explain(decisions: Decisions, i: int) -> Call:
                 unseen_inputs=unseen)
 
 
+#: Features computed from the gusts: a reason reading them says when the gusts are estimated.
+GUST_FEATURES = frozenset({"wind_gust_ms", "gust_factor", "wind_pointing_error_arcsec", "pointing_beam_fraction",
+                           "scan_surface_rms_um", "astronomical_surface_rms_um", "scan_surface_margin_um",
+                           "astronomical_surface_margin_um"})
 #: The optional inputs a call can be made without, as the reasons name them.
 OPTIONAL_INPUT_WORDS = {"visibility_m": "visibility", "precip_mm_h": "precipitation", "pressure_hpa": "pressure",
                         "solar_wm2": "irradiance"}

@@ -35,7 +35,7 @@ def _add_train(sub, name: str, help: str) -> None:
     train.add_argument("--history", required=True, metavar="HISTORY.csv", help="past attempts, one per row")
     train.add_argument("--feed", metavar="ARCHIVE.csv",
                        help="weather archive to compute the features from (default: the history's weather columns)")
-    train.add_argument("--site", metavar="SITE.yaml", help="site file (default: the bundled invented demo site)")
+    train.add_argument("--site", metavar="SITE.yaml", help=session.SITE_HELP)
     train.add_argument("--out", required=True, metavar="MODEL.json", help="where to write the model")
     train.add_argument("--method", choices=tuple(METHOD_LABELS), action="append",
                        help="train only this method (repeatable; default: both)")
@@ -93,7 +93,7 @@ def cmd_train(args: argparse.Namespace) -> int:
     from advisor.model import training
 
     refuse_overwrite(args.out, {"--history": args.history, "--feed": args.feed, "--site": args.site}, "--out")
-    site = load_site(args.site)
+    site = load_site(session.site_location(args.site)[0])
     if args.usable_below_um is not None and not (np.isfinite(args.usable_below_um) and args.usable_below_um > 0):
         raise UsageError(f"--usable-below-um {args.usable_below_um!r} must be a positive number of µm",
                          field="--usable-below-um")

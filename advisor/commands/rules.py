@@ -151,7 +151,7 @@ def _effect(rule) -> str:
 
 def cmd_lint(args: argparse.Namespace) -> int:
     """Lint the defaults, the site's files and FILE... layered in that order."""
-    site = load_site(args.site)
+    site = load_site(session.site_location(args.site)[0])
     files = rule_files(site, None)
     known = {Path(p).resolve() for p, _ in files}
     for name in args.files:
@@ -332,7 +332,7 @@ def add_parser(sub, name: str, help: str) -> None:
     show = actions.add_parser("show", help="the effective rule table after layering",
                               description="Print every rule in effect: id, applies to, effect, condition, "
                                           "and the file and layer it came from.")
-    show.add_argument("--site", metavar="SITE.yaml", help="site file (default: the bundled invented demo site)")
+    show.add_argument("--site", metavar="SITE.yaml", help=session.SITE_HELP)
     show.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
                       help="extra rule files layered over the defaults and the site's")
     show.add_argument("--for", dest="method", choices=METHODS, help="only the rules that apply to this method")

@@ -57,6 +57,7 @@ class FeedQuality:
     #: Canonical column → rows where its value was implausible (range or step test).
     implausible_by_column: dict = field(default_factory=dict)
     gust_estimated: bool = False      # gusts are gust_factor × mean wind (no gust sensor)
+    columns_read: tuple[str, ...] = ()  # canonical columns the file carries (gusts and dew point may be made)
     n_dropouts: int = 0               # rows where an optional sensor that was reporting fell silent
 
     def as_dict(self) -> dict:
@@ -223,6 +224,7 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         raise FeedError("feed has a header but no data rows", source=source)
     times, time_field = feed_times(table, layout, source, line_offset)
     out, coded_cells, coded_rows, coded_bits = _read_values(table, layout, source, line_offset)
+    read = set(out)
 
     frame = pd.DataFrame(out)
     frame.insert(0, "time", pd.DatetimeIndex(times).as_unit("ns"))
@@ -292,6 +294,7 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         last_time_utc=frame["time"].iloc[-1] if len(frame) else None,
         cadence_min=cadence, coded_cells=coded_cells, rows_with_codes=int(coded_rows.sum()),
         implausible_by_column=implausible_counts, gust_estimated=layout.gust_factor is not None,
+        columns_read=tuple(n for n in CANONICAL_COLUMNS if n in read and not (n == "wind_gust_ms" and layout.gust_factor)),
         n_dropouts=int((frame["q_bits_dropout"] != 0).sum()),
     )
     return Feed(frame=frame, quality=quality, source=source)

@@ -40,7 +40,7 @@ from advisor.io.sitereader import Reader
 
 __all__ = ["CANONICAL_COLUMNS", "REQUIRED_COLUMNS", "OPTIONAL_COLUMNS", "CANONICAL_UNITS", "DEFAULT_MAX_CHANGE_PER_MIN",
            "TIME_LABELS", "TIME_UNITS", "ColumnMap", "FeedLayout", "parse_feed_section", "parse_time_zone",
-           "fixed_offset_minutes"]
+           "fixed_offset_minutes", "zone_label"]
 
 CANONICAL_COLUMNS = (
     "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",
@@ -203,6 +203,16 @@ def parse_time_zone(value: str, allow_fractional_offset: bool = True) -> str:
     except (ZoneInfoNotFoundError, ValueError, OSError, UnicodeError):
         raise ValueError(f"unknown time zone {value!r}") from None
     return text
+
+
+def zone_label(name: str | None) -> str:
+    """A zone as people write it: ``Etc/GMT+5`` → ``UTC-05:00`` (IANA's sign is inverted)."""
+    if name is None:
+        return "UTC"
+    m = re.fullmatch(r"Etc/GMT([+-])(\d{1,2})", name)
+    if m:
+        return f"UTC{'-' if m.group(1) == '+' else '+'}{int(m.group(2)):02d}:00"
+    return name
 
 
 ZONE_HINT = "use an IANA name such as America/Denver or Europe/Madrid, UTC, or a fixed offset such as UTC-05:00"

@@ -82,8 +82,8 @@ def _localise(naive: pd.Series, texts: pd.Series, layout: FeedLayout, source: st
         i = int(np.flatnonzero(lost)[0])
         raise FeedError(f"local time {texts.iloc[i]!r} is ambiguous or does not exist in {layout.time_zone}",
                         source=source, line=i + line_offset, field=field,
-                        hint="log in UTC or standard time (a fixed offset such as UTC-05:00) to avoid "
-                             "daylight-saving changes")
+                        hint="a logger that keeps standard time all year needs its fixed offset as "
+                             "feed.time_zone (e.g. UTC-05:00); else log in UTC")
     return pd.Series(pd.DatetimeIndex(local.dt.tz_convert("UTC")).as_unit("ns"))
 
 

@@ -35,13 +35,36 @@ def when_text(call: Call, ctx: Context) -> str:
     return f"{call.time_utc:%Y-%m-%d %H:%M} UTC ({local:%H:%M %Z} local)"
 
 
+def _window_text(minutes) -> str | None:
+    """'1-h', '3-h', '30-min' for a statistic's window; None for the catalogue's own 10 minutes."""
+    if minutes is None or not math.isfinite(minutes) or abs(minutes - 10.0) < 1e-9:
+        return None
+    if minutes >= 60 and abs(minutes / 60 - round(minutes / 60)) < 1e-9:
+        return f"{minutes / 60:g}-h"
+    return f"{minutes:g}-min"
+
+
+def feature_label(name: str, features: dict) -> str:
+    """A feature's screen label for this call: the wind statistics say the window they were
+    computed over ("wind (1-h mean)" on hourly data) and estimated gusts say so."""
+    label = CATALOGUE[name].label
+    if name == "wind_gust_ms" and features.get("gust_estimated"):
+        return "gusts (estimated)"
+    window = _window_text(features.get("wind_window_min"))
+    if window and name == "wind_mean_ms":
+        return f"wind ({window} mean)"
+    if window and name == "wind_gust_ms":
+        return f"gusts ({window} max)"
+    return label
+
+
 def key_features(features: dict) -> list[tuple[str, str]]:
     """(label, text) pairs of the key conditions; hours since sunrise by day, since sunset by night."""
     rows = []
     for spec in KEY_FEATURES:
         if spec.name == "hours_since_sunset" and not features.get("is_night", True):
             spec = CATALOGUE["hours_since_sunrise"]
-        rows.append((spec.label, feature_text(spec.name, spec.display_format, features)))
+        rows.append((feature_label(spec.name, features), feature_text(spec.name, spec.display_format, features)))
     return rows
 
 
