@@ -39,6 +39,8 @@ COMMANDS = (
     Command("train", "model", "fit the site model on the site's past attempts"),
     Command("model", "model", "inspect a site model file"),
     Command("outlook", "outlook", "the call at every forecast step and the next window for each method"),
+    Command("feed", "feed", "inspect a weather feed file the way the advisor reads it"),
+    Command("site", "site", "draft a commented site file for a new station from its feed"),
 )
 
 

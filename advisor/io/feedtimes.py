@@ -27,9 +27,10 @@ from advisor.errors import FeedError
 from advisor.io.feedlayout import FeedLayout, fixed_offset_minutes
 from advisor.io.times import EPOCH_UNITS, check_time_range, epoch_times, parse_time_column
 
-__all__ = ["feed_times", "zone_object", "start_label_shift"]
+__all__ = ["MIDNIGHT_24", "feed_times", "zone_object", "start_label_shift"]
 
-_MIDNIGHT_24 = re.compile(r"(?<!\d)24:00(?::00)?(?!\d)")
+#: An hour of 24 (24:00 or 24:00:00) where a time of day starts: after the date's space or T.
+MIDNIGHT_24 = re.compile(r"(?:^|(?<=[\sTt]))24:00(?::00)?(?![\d:])")
 
 
 def zone_object(name: str | None):
@@ -101,12 +102,12 @@ def _formatted_times(raw: pd.Series, layout: FeedLayout, source: str, field: str
         raise FeedError(f"times written as {fmt!r} carry no UTC offset and no time zone is declared",
                         source=source, line=line_offset, field=field,
                         hint="set feed.time_zone in the site file (e.g. UTC, UTC-05:00 or America/Chicago)")
-    midnight = texts.str.contains(_MIDNIGHT_24).to_numpy()
+    midnight = texts.str.contains(MIDNIGHT_24).to_numpy()
     if midnight.any() and layout.time_label != "end":
         i = int(np.flatnonzero(midnight)[0])
         raise FeedError(f"timestamp {texts.iloc[i]!r} says 24:00", source=source, line=i + line_offset, field=field,
                         hint="a stamp of 24:00 ends a period: set feed.time_label: end in the site file")
-    readable = texts.str.replace(_MIDNIGHT_24, "00:00", regex=True) if midnight.any() else texts
+    readable = texts.str.replace(MIDNIGHT_24, "00:00", regex=True) if midnight.any() else texts
     parsed = pd.to_datetime(readable, format=fmt, errors="coerce")
     bad = parsed.isna().to_numpy()
     if bad.any():
@@ -168,7 +169,7 @@ def _standard_times(raw: pd.Series, layout: FeedLayout, source: str, field: str,
                                               "site file")
     except FeedError as exc:
         i = (exc.line - line_offset) if exc.line is not None else -1
-        if 0 <= i < len(values) and _MIDNIGHT_24.search(str(values.iloc[i])):
+        if 0 <= i < len(values) and MIDNIGHT_24.search(str(values.iloc[i])):
             exc.hint = ("ISO 8601 times here use 00:00 of the next day; for an export that writes 24:00, "
                         "set feed.time_format and feed.time_label: end")
         raise
@@ -176,7 +177,7 @@ def _standard_times(raw: pd.Series, layout: FeedLayout, source: str, field: str,
 
 def start_label_shift(times: pd.Series) -> pd.Timedelta:
     """How far period-start stamps move to their period's end: the median interval between times."""
-    t = np.unique(pd.DatetimeIndex(times).asi8)
+    t = np.unique(pd.DatetimeIndex(times).as_unit("ns").asi8)
     if len(t) < 2:
         return pd.Timedelta(0)
     return pd.Timedelta(int(np.median(np.diff(t))), unit="ns")

@@ -228,12 +228,25 @@ def _figures(reader: Reader, path: tuple, cls: type, bounds: dict[str, tuple[flo
     return cls(**values)
 
 
+def _refuse_todos(reader: Reader, node: Any, path: tuple) -> None:
+    """A value still saying TODO (a draft of ``advisor site new``) is refused, naming its key."""
+    if isinstance(node, dict):
+        for key, value in node.items():
+            _refuse_todos(reader, value, path + (key,))
+    elif isinstance(node, list):
+        for i, value in enumerate(node):
+            _refuse_todos(reader, value, path + (i,))
+    elif isinstance(node, str) and node.strip().upper() == "TODO":
+        raise reader.fail(path, "still says TODO", hint="fill in what the comment beside it asks for")
+
+
 def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = False) -> Site:
     """Validate parsed YAML ``data`` into a :class:`Site`."""
     if not isinstance(data, dict):
         raise SiteError("expected a mapping at the top of the site file", source=source, line=1,
                         hint="start with 'site:'")
     r = Reader(data, lines, source)
+    _refuse_todos(r, data, ())
     r.section((), {"site", "feed", "references", "rules", "model", "methods", "thresholds", "calibrators", "tick", "forecast"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
     name = r.text(("site", "name"), required=True)
