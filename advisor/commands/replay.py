@@ -20,7 +20,8 @@ from advisor.io.history import read_history
 from advisor.vocabulary import VERDICTS
 from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import (attempts_from_history, compare_rule_sets, dominant_by_month_hour, hours_by,
-                                       month_keys, replay_features, replay_from_features, score_attempts, step_hours)
+                                       month_keys, replay_features, replay_from_features, score_attempts, step_hours,
+                                       weather_hours)
 from advisor.features import FEATURES_VERSION, feature_source_paths
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
@@ -109,6 +110,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
         "by_local_hour": _table_dict(hours_by(base.verdict, hours, local.hour)),
         "attempts": None,
         "comparison": None,
+        **weather_hours(features, base.verdict, hours, inputs.site.thresholds.high_frequency_wind_limit_ms),
     }
     if args.history:
         attempts = attempts_from_history(read_history(args.history))
@@ -137,6 +139,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
 def _compute_features(inputs, scenario, t_from, t_to) -> pd.DataFrame:
     """Read the archive and compute the features of every observed row in the period."""
     feed = read_feed(inputs.feed_path, inputs.feed_layout)
+    session.check_feed_zone(feed, inputs.site, inputs.feed_layout)
     frame = feed.frame[feed.frame["kind"] == "observed"]
     times = pd.DatetimeIndex(frame["time"]).as_unit("ns")
     keep = np.ones(len(times), dtype=bool)

@@ -58,8 +58,10 @@ def cmd_new(args: argparse.Namespace) -> int:
         raise UsageError(f"{out} exists; nothing written", field="--out",
                          hint="choose another name, or remove the file first")
     guess = guess_layout(feed)
-    relative = os.path.relpath(feed.resolve(), (out.parent if str(out.parent) else Path(".")).resolve())
-    _write_new(out, draft_site_file(guess, relative, feed.name))
+    shown = os.path.relpath(feed.resolve(), (out.parent if str(out.parent) else Path(".")).resolve())
+    if shown.startswith(os.pardir + os.sep + os.pardir + os.sep + os.pardir):
+        shown = str(feed.resolve())   # far away: the absolute path reads better
+    _write_new(out, draft_site_file(guess, shown, feed.name))
     todos = ["site.name", "site.latitude_deg", "site.longitude_deg", "site.elevation_m", "site.time_zone",
              "site.dish_diameter_m", *(f"feed.{k}" if k.startswith(("time", "gust")) else f"feed.columns.{k}"
                                        for k in guess.todos), "calibrators"]

@@ -75,7 +75,8 @@ def draft_site_file(guess: Guess, feed_path_text: str, source_name: str) -> str:
         *_line(2, "dish_diameter_m", "TODO", "the reflector's diameter"),
         "",
         "feed:",
-        *_line(2, "path", _quote(feed_path_text), "relative to this file"),
+        *_line(2, "path", _quote(feed_path_text), "relative to this file" if not feed_path_text.startswith("/")
+               else ""),
     ]
     for line in guess.skipped_lines[:3]:
         out.append(f"  # above the header: {line[:58]}")
