@@ -383,6 +383,8 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
         note = check_feed_zone(feed, site, layout)
         if note:
             notes.append(note)
+        layout = layout.as_read(feed.quality.sources)       # messages name the columns actually read
+        site = replace(site, feed=layout)
     registry_path = request.references_path or site.references_path
     registry = read_registry(registry_path)
     rules = load_ruleset(site, request.rule_files)

@@ -58,6 +58,8 @@ class FeedQuality:
     implausible_by_column: dict = field(default_factory=dict)
     gust_estimated: bool = False      # gusts are gust_factor × mean wind (no gust sensor)
     columns_read: tuple[str, ...] = ()  # canonical columns the file carries (gusts and dew point may be made)
+    #: Canonical column → the logger column it was read from.
+    sources: dict = field(default_factory=dict)
     n_dropouts: int = 0               # rows where an optional sensor that was reporting fell silent
 
     def as_dict(self) -> dict:
@@ -125,11 +127,13 @@ def _read_values(table: pd.DataFrame, layout: FeedLayout, source: str, line_offs
     coded_cells: dict[str, int] = {}
     coded_rows = np.zeros(len(table), dtype=bool)
     coded_bits = np.zeros(len(table), dtype=np.int32)
+    sources: dict[str, str] = {}
     for k, name in enumerate(CANONICAL_COLUMNS):
         found = _source_column(table, name, mapping.get(name), layout, source, line_offset)
         if found is None:
             continue
         column, spec = found
+        sources[name] = column
         values, coded = numeric_column(table[column], column, (*layout.missing, *spec.missing), source, line_offset)
         unit = spec.unit
         if spec.is_depth:
@@ -154,7 +158,7 @@ def _read_values(table: pd.DataFrame, layout: FeedLayout, source: str, line_offs
         out[name] = np.asarray(units.convert(values, unit, CANONICAL_UNITS[name]), dtype=float)
     if layout.gust_factor is not None:
         out["wind_gust_ms"] = layout.gust_factor * out["wind_mean_ms"]
-    return out, coded_cells, coded_rows, coded_bits
+    return out, coded_cells, coded_rows, coded_bits, sources
 
 
 def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarray, dict[str, int]]:
@@ -223,7 +227,7 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
     if len(table) == 0:
         raise FeedError("feed has a header but no data rows", source=source)
     times, time_field = feed_times(table, layout, source, line_offset)
-    out, coded_cells, coded_rows, coded_bits = _read_values(table, layout, source, line_offset)
+    out, coded_cells, coded_rows, coded_bits, sources = _read_values(table, layout, source, line_offset)
     read = set(out)
 
     frame = pd.DataFrame(out)
@@ -295,6 +299,7 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         cadence_min=cadence, coded_cells=coded_cells, rows_with_codes=int(coded_rows.sum()),
         implausible_by_column=implausible_counts, gust_estimated=layout.gust_factor is not None,
         columns_read=tuple(n for n in CANONICAL_COLUMNS if n in read and not (n == "wind_gust_ms" and layout.gust_factor)),
+        sources=sources,
         n_dropouts=int((frame["q_bits_dropout"] != 0).sum()),
     )
     return Feed(frame=frame, quality=quality, source=source)

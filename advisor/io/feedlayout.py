@@ -147,6 +147,16 @@ class FeedLayout:
         ``dropout_min``, else max(60 min, 3 × the cadence)."""
         return _limit(self.dropout_min, cadence_min, DROPOUT_FLOOR_MIN, DROPOUT_CADENCES)
 
+    def as_read(self, sources: dict[str, str]) -> FeedLayout:
+        """This layout with each column mapped as it was actually read (``FeedQuality.sources``): a
+        canonical name the file carried itself replaces a mapping to a column it lacks."""
+        from dataclasses import replace
+
+        kept = [c for c in self.columns if sources.get(c.canonical) in (None, c.source_column)]
+        mapped = {c.canonical for c in kept}
+        own = [ColumnMap(n, col, CANONICAL_UNITS[n]) for n, col in sources.items() if n not in mapped and col == n]
+        return replace(self, columns=tuple(kept + own))
+
     def source_of(self, canonical: str) -> str:
         """The logger column a canonical column is read from (its own name when unmapped)."""
         for c in self.columns:
