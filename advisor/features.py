@@ -250,7 +250,7 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["astronomical_surface_rms_um"] = astronomical_surface_rms_um(site, out["wind_gust_ms"],
                                                                      out["air_temp_rate_c_per_h"])
 
-    columns = {"time": times_index}
+    columns: dict[str, object] = {"time": times_index}
     for name in ROW_FEATURES:
         values = out[name]
         columns[name] = np.asarray(values, dtype=bool) if CATALOGUE[name].unit == "flag" else np.asarray(values, dtype=float)

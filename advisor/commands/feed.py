@@ -43,6 +43,8 @@ def cmd_inspect(args: argparse.Namespace) -> int:
     path = Path(args.file)
     check_whole_read(path)
     guess = None
+    lat: float | None
+    lon: float | None
     if args.site:
         site = load_site(args.site)
         layout = replace(site.feed, path=path)

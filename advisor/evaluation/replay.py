@@ -15,6 +15,7 @@ Pure summaries over the vectorised decisions of every archive row:
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -122,7 +123,7 @@ def score_attempts(times_utc: pd.DatetimeIndex, verdict: np.ndarray, rule_eval: 
     advised_scan = scan & (advice == "scan")
     false_go = advised_scan & ~attempts.usable
     missed = scan & (advice != "scan") & attempts.usable
-    result = {
+    result: dict[str, Any] = {
         "attempts": int(len(attempts)),
         "attempts_covered": int(covered.sum()),
         "scan_attempts": int(scan.sum()),
@@ -166,7 +167,7 @@ def compare_rule_sets(verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: Rule
             mask = changed & (verdict_a == a) & (verdict_b == b)
             if mask.any():
                 transitions.append({"from": a, "to": b, "hours": round(float(hours[mask].sum()), 2)})
-    by_rule = []
+    by_rule: list[dict[str, Any]] = []
     none = np.zeros(len(verdict_a), dtype=bool)
     for rule_id in sorted(set(eval_a.fired) | set(eval_b.fired)):
         differs = eval_a.fired.get(rule_id, none) != eval_b.fired.get(rule_id, none)

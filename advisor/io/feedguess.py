@@ -26,8 +26,8 @@ import numpy as np
 import pandas as pd
 
 from advisor import units
-from advisor.errors import FeedError
 from advisor.catalogue import PLAUSIBLE_RANGE
+from advisor.errors import FeedError
 from advisor.io.feedlayout import CANONICAL_UNITS, ColumnMap, FeedLayout
 from advisor.io.feedtimes import MIDNIGHT_24
 from advisor.io.fileio import FileKind, open_regular

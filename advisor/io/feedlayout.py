@@ -281,8 +281,8 @@ def _column(reader: Reader, canonical: str) -> ColumnMap:
                           hint=f"did you mean '{close[0]}'?" if close else f"one of {', '.join(CANONICAL_COLUMNS)}")
     keys = {"from", "unit", "missing"} | ({"over_hours", "over_hours_from"} if canonical == "precip_mm_h" else set())
     reader.section(cpath, keys)
-    src = reader.text(cpath + ("from",), required=True)
-    unit = reader.text(cpath + ("unit",), default=CANONICAL_UNITS[canonical])
+    src = reader.text(cpath + ("from",), required=True) or ""
+    unit = reader.text(cpath + ("unit",), default=CANONICAL_UNITS[canonical]) or CANONICAL_UNITS[canonical]
     over_hours = reader.number(cpath + ("over_hours",), lo=1e-3, hi=24 * 366) \
         if reader.get_raw(cpath + ("over_hours",)) is not None else None
     over_from = reader.text(cpath + ("over_hours_from",))

@@ -70,7 +70,7 @@ def _raw_time_text(table: pd.DataFrame, layout: FeedLayout, source: str, line_of
                         hint=f"feed.time_column names [date, time]; columns found: "
                              f"{', '.join(map(str, table.columns[:8]))}")
     parts = [table[n].astype(object).where(table[n].notna(), "").astype(str).str.strip() for n in names]
-    joined = parts[0].str.cat(parts[1:], sep=" ").str.strip()
+    joined = (parts[0] + " " + parts[1]).str.strip()
     return joined.where((parts[0] != "") & (parts[1] != ""), ""), layout.time_field
 
 

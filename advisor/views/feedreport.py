@@ -47,7 +47,7 @@ def _number(v: float | None) -> str:
 
 
 def _table(report: FeedReport) -> list[str]:
-    head = ("input", "logger column", "unit", "values", "codes", "bad", "drops", "range")
+    head = ("input", "logger column", "in", "values", "codes", "bad", "drops", "range (SI)")
     rows = []
     for c in report.columns:
         drops = f"{c.dropouts:,}" if c.canonical in OPTIONAL_COLUMNS else "—"
@@ -82,14 +82,15 @@ def render_feed_report(report: FeedReport, how: str, guess: Guess | None = None)
     lines += _wrap(f"gaps: {report.gaps:,} longer than {_minutes(report.gap_limit_min)} (longest "
                    f"{_minutes(report.longest_gap_min)}) · out of order: {report.out_of_order:,} sorted in · "
                    f"duplicates: {report.duplicates:,}")
-    lines += _wrap(f"limits: a call needs a good sample at most {_minutes(report.age_limit_min)} old; "
-                   f"a gap is a step over {_minutes(report.gap_limit_min)}")
+    lines += _wrap(f"limits: a call needs a sample ≤ {_minutes(report.age_limit_min)} old; steps over "
+                   f"{_minutes(report.gap_limit_min)} are gaps")
     if report.partial_last_line:
         lines.append("last line: no newline yet — ignored as still being written")
     lines.append("")
     lines += _table(report)
-    lines.append("values: usable values · codes: missing-value codes · bad: implausible (range")
-    lines.append("or step) · drops: an optional sensor that fell silent after reporting steadily")
+    lines += _wrap("in: the logger's unit · values: usable · codes: missing-value codes · bad: implausible "
+                   "(range or step) · drops: an optional sensor fell silent after reporting steadily · range: "
+                   "m/s, °C, %, hPa, mm/h, m, W/m²")
     if report.absent:
         lines += _wrap("not in the feed: " + ", ".join(SHORT[a] for a in report.absent)
                        + " (never read as fine: calls name them as not seen)")
