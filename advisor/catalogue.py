@@ -188,8 +188,10 @@ FEATURES: tuple[FeatureSpec, ...] = (
        domain=_never_negative("it counts hours since the most recent sunset"), key=True),
     _F("hours_since_sunrise", "h", "hours since the most recent sunrise", "since sunrise", "{:.1f} h",
        domain=_never_negative("it counts hours since the most recent sunrise")),
-    _F("air_temp_rate_c_per_h", "degC/h", "air-temperature change over the last hour", "temperature rate",
-       "{:+.1f} °C/h", words="temperature change", key=True),
+    _F("air_temp_rate_c_per_h", "degC/h", "air-temperature change over the last hour (or the feed's cadence where "
+       "it is coarser)", "temperature rate", "{:+.1f} °C/h", words="temperature change", key=True),
+    _F("temp_rate_window_min", "min", "window of the temperature rate: 60 minutes, or the feed's cadence where it "
+       "is coarser", "temperature-rate window", "{:.0f} min", domain=_never_negative("it is a duration")),
     # reference scan
     _F("has_reference", "flag", "a reference scan is in force"),
     _F("reference_age_h", "h", "age of the reference scan in force (NaN without one)", "reference age", "{:.1f} h",

@@ -124,6 +124,7 @@ def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
     out["wind_mean_ms"] = mean
     out["wind_gust_ms"] = gust
     out["wind_window_min"] = wind_window
+    out["temp_rate_window_min"] = temp_window
     temp = series["air_temp_c"].to_numpy()
     back = np.searchsorted(t_ns, t_ns - (temp_window * 60e9).astype(np.int64), side="left")
     dt_h = (t_ns - t_ns[back]) / 3.6e12
@@ -168,7 +169,7 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
                  "pressure_hpa", "solar_wm2"):
         col = good[name].to_numpy(dtype=float) if name in good else np.array([])
         out[name] = take(col) if len(col) else np.full(n, np.nan)
-    for name in ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h", "wind_window_min"):
+    for name in ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h", "wind_window_min", "temp_rate_window_min"):
         out[name] = take(rolled[name].to_numpy(dtype=float)) if rolled is not None else np.full(n, np.nan)
     estimated = good["gust_estimated"].to_numpy(dtype=bool) if "gust_estimated" in good else np.zeros(len(good), bool)
     out["gust_estimated"] = take(estimated.astype(float)) == 1.0

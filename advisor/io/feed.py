@@ -25,7 +25,7 @@ from advisor.io.feedfile import MAX_FULL_READ_BYTES, check_whole_read, open_feed
 from advisor.io.feedlayout import (CANONICAL_COLUMNS, CANONICAL_UNITS, OPTIONAL_COLUMNS, REQUIRED_COLUMNS, ColumnMap,
                                    FeedLayout)
 from advisor.io.feedtimes import feed_times
-from advisor.io.feedvalues import (MAX_FEED_NUMBER, column_bit, depth_rate, dropout_mask, numeric_column,
+from advisor.io.feedvalues import (MAX_FEED_NUMBER, column_bit, depth_rate, dropout_mask, kind_rows, numeric_column,
                                    refuse_mixed_humidity, step_outliers)
 from advisor.io.times import parse_time_column
 from advisor.physics.moisture import dew_point_c
@@ -171,7 +171,7 @@ def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarr
     bits = np.zeros(n, dtype=np.int32)
     counts: dict[str, int] = {}
     t_ns = pd.DatetimeIndex(frame["time"]).asi8
-    kind = frame["kind"].to_numpy(dtype=object)
+    groups = kind_rows(frame["kind"].to_numpy(dtype=object))
     limits = layout.step_limits()
     for k, name in enumerate(CANONICAL_COLUMNS):
         if name not in frame:
@@ -180,7 +180,7 @@ def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarr
         lo, hi = PLAUSIBLE_RANGE.get(name, (-np.inf, np.inf))
         bad = (col < lo) | (col > hi)
         if name in limits and not (name == "wind_gust_ms" and layout.gust_factor is not None):
-            bad |= step_outliers(np.where(bad, np.nan, col), t_ns, kind, limits[name])
+            bad |= step_outliers(np.where(bad, np.nan, col), t_ns, groups, limits[name])
         if name == "wind_gust_ms":
             bad |= col < frame["wind_mean_ms"].to_numpy(dtype=float) - 0.5
         if bad.any():
@@ -199,10 +199,12 @@ def _dropouts(frame: pd.DataFrame, layout: FeedLayout, cadence_min: float | None
     bits = np.zeros(len(frame), dtype=np.int32)
     t_ns = pd.DatetimeIndex(frame["time"]).asi8
     kind = frame["kind"].to_numpy(dtype=object)
+    groups = kind_rows(kind)
+    observed = kind == "observed"
     hold = layout.dropout_limit_min(cadence_min)
     for name in OPTIONAL_COLUMNS:
         if name in frame:
-            mask = dropout_mask(frame[name].to_numpy(dtype=float), t_ns, kind, hold) & (kind == "observed")
+            mask = dropout_mask(frame[name].to_numpy(dtype=float), t_ns, groups, hold) & observed
             bits |= np.where(mask, column_bit(CANONICAL_COLUMNS.index(name)), 0).astype(np.int32)
     return bits
 

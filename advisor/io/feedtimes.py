@@ -137,7 +137,7 @@ def _standard_times(raw: pd.Series, layout: FeedLayout, source: str, field: str,
     if pd.api.types.is_datetime64_dtype(raw):       # naive in-memory times: local wall clock
         raw = raw.dt.strftime("%Y-%m-%dT%H:%M:%S.%f").where(raw.notna(), None)
     values = raw.reset_index(drop=True).astype(object)
-    empty = values.isna().to_numpy() | (values.astype(str).str.strip() == "").to_numpy()
+    empty = values.isna().to_numpy()
     if empty.any():
         i = int(np.flatnonzero(empty)[0])
         raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field,

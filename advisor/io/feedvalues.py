@@ -17,7 +17,7 @@ import pandas as pd
 from advisor.errors import FeedError
 
 __all__ = ["MAX_FEED_NUMBER", "numeric_column", "depth_rate", "step_outliers", "dropout_mask",
-           "refuse_mixed_humidity", "column_bit", "REPORTING_RUN"]
+           "refuse_mixed_humidity", "column_bit", "kind_rows", "REPORTING_RUN"]
 
 #: Largest magnitude read as a feed value; beyond it a cell is corrupt, not a measurement.
 MAX_FEED_NUMBER = 1e15
@@ -107,24 +107,31 @@ def depth_rate(depth_mm: np.ndarray, hours) -> np.ndarray:
         return np.where(np.isfinite(hours) & (hours > 0), depth_mm / np.where(hours > 0, hours, 1.0), np.nan)
 
 
-def _previous_same_kind(time_ns: np.ndarray, kind: np.ndarray) -> np.ndarray:
+def kind_rows(kind: np.ndarray) -> list[np.ndarray]:
+    """The row positions of each kind (observed, forecast), by hashing (never sorting the texts)."""
+    codes, uniques = pd.factorize(np.asarray(kind, dtype=object))
+    if len(uniques) <= 1:
+        return [np.arange(len(codes))]
+    return [np.flatnonzero(codes == k) for k in range(len(uniques))]
+
+
+def _previous_same_kind(groups: list[np.ndarray], n: int) -> np.ndarray:
     """Index of the previous row of the same kind (-1 for the first of its kind); rows are time-sorted."""
-    n = len(time_ns)
     prev = np.full(n, -1, dtype=np.int64)
-    for k in np.unique(kind):
-        rows = np.flatnonzero(kind == k)
+    for rows in groups:
         prev[rows[1:]] = rows[:-1]
     return prev
 
 
-def step_outliers(values: np.ndarray, time_ns: np.ndarray, kind: np.ndarray, limit_per_min: float) -> np.ndarray:
+def step_outliers(values: np.ndarray, time_ns: np.ndarray, groups: list[np.ndarray], limit_per_min: float) -> np.ndarray:
     """Rows whose value changed from the previous sample of their kind by more than
     ``limit_per_min`` × the minutes between them (at least one minute) — a step test.
+    ``groups`` are the row positions of each kind (:func:`kind_rows`).
 
     Past-only, so a live check and a replay flag the same rows: a spike is flagged, and so is
     the sample that returns from it; a lasting step is flagged once and then compared with itself.
     """
-    prev = _previous_same_kind(time_ns, kind)
+    prev = _previous_same_kind(groups, len(values))
     has = prev >= 0
     before = np.where(has, values[np.clip(prev, 0, None)], np.nan)
     minutes = np.where(has, (time_ns - time_ns[np.clip(prev, 0, None)]) / 6e10, np.nan)
@@ -132,7 +139,7 @@ def step_outliers(values: np.ndarray, time_ns: np.ndarray, kind: np.ndarray, lim
         return np.abs(values - before) > limit_per_min * np.maximum(minutes, 1.0)
 
 
-def dropout_mask(values: np.ndarray, time_ns: np.ndarray, kind: np.ndarray, hold_min) -> np.ndarray:
+def dropout_mask(values: np.ndarray, time_ns: np.ndarray, groups: list[np.ndarray], hold_min) -> np.ndarray:
     """Rows where an optional input is missing although its sensor was just reporting.
 
     A row is a dropout when the value is missing, the last value of its kind was at most
@@ -144,14 +151,14 @@ def dropout_mask(values: np.ndarray, time_ns: np.ndarray, kind: np.ndarray, hold
     out = np.zeros(n, dtype=bool)
     present = np.isfinite(values)
     hold = np.broadcast_to(np.asarray(hold_min, dtype=float), (n,))
-    for k in np.unique(kind):
-        rows = np.flatnonzero(kind == k)
+    for rows in groups:
         p = present[rows]
         t = time_ns[rows]
         idx = np.where(p, np.arange(len(rows)), -1)
         last = np.maximum.accumulate(idx) if len(idx) else idx
-        group = np.cumsum(~p)
-        run = pd.Series(p.astype(np.int64)).groupby(group).cumsum().to_numpy()
+        # length of the run of reports ending at each row: a running count reset at every gap
+        count = np.cumsum(p)
+        run = count - np.maximum.accumulate(np.where(p, 0, count))
         safe = np.clip(last, 0, None)
         recent = (last >= 0) & ((t - t[safe]) <= hold[rows] * 6e10)
         out[rows] = ~p & recent & (run[safe] >= REPORTING_RUN)

@@ -55,6 +55,10 @@ def feature_label(name: str, features: dict) -> str:
         return f"wind ({window} mean)"
     if window and name == "wind_gust_ms":
         return f"gusts ({window} max)"
+    rate_window = features.get("temp_rate_window_min")
+    if name == "air_temp_rate_c_per_h" and rate_window is not None and math.isfinite(rate_window) \
+            and rate_window > 60:
+        return f"temperature rate (over {_window_text(rate_window)})"
     return label
 
 
