@@ -261,3 +261,17 @@ def test_site_new_drafts_a_file_refused_until_its_todos_are_filled(tmp_path):
     assert status in (10, 11) and json.loads(out)["features"]["gust_estimated"] is True, err
     status, _, err = run("site", "new", "--feed", TMY3, "--out", out_file)     # never overwritten
     assert status == 2 and "exists" in err and out_file.read_text() == text
+
+
+def test_the_second_file_fits_its_own_zone_and_a_wrong_one_is_refused(tmp_path):
+    """pvlib 0.16.1 data/723170TYA.CSV: metadata line gives 36.100 N, 79.950 W, UTC-05:00."""
+    base = (SITE.read_text().replace(f"latitude_deg: {LAT}", "latitude_deg: 36.100")
+            .replace(f"longitude_deg: {LON}", "longitude_deg: -79.950").replace("UTC-09:00", "UTC-05:00"))
+    right, wrong = tmp_path / "right.yaml", tmp_path / "wrong.yaml"
+    right.write_text(base)
+    wrong.write_text(base.replace("  time_zone: UTC-05:00            # local standard time all year",
+                                  "  time_zone: UTC-08:00"))
+    status, out, err = run("feed", "inspect", TMY3_OTHER, "--site", right)
+    assert status == 0 and "time zone: ok" in out, err
+    status, _, err = run("replay", "--site", wrong, "--feed", TMY3_OTHER, "--json", "--no-cache")
+    assert status == 2 and "UTC-05:00, not UTC-08:00" in err

@@ -240,6 +240,9 @@ def guess_layout(path: Path | str) -> Guess:
         raise FeedError(f"cannot read the file's first lines: {str(exc).splitlines()[0]}", source=str(path),
                         hint="is it a comma-separated or JSON Lines file?") from None
     table = table.rename(columns=lambda c: str(c).strip())
+    if len(table.columns) == 1 and any(ch in str(table.columns[0]) for ch in ";\t|"):
+        raise FeedError("the file seems to use another delimiter than ','", source=str(path), line=skip + 1,
+                        hint="save it as comma-separated (CSV) or JSON Lines")
     if len(table) == 0:
         raise FeedError("no data rows in the file's first lines", source=str(path), hint="expected data rows")
     guess = Guess(FeedLayout(), [str(c) for c in table.columns], skipped_lines=lines[:skip])
