@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from advisor import units
 
 __all__ = ["FeatureSpec", "FEATURES", "CATALOGUE", "FLAG_NAMES", "KEY_FEATURES", "STEP_FEATURES",
-           "PLAUSIBLE_RANGE", "FEATURE_DOMAINS", "ROW_FEATURES", "TARGET_ROW_FEATURES", "TARGET_FEATURES", "SCOPES",
+           "PLAUSIBLE_RANGE", "FEATURE_DOMAINS", "NEEDS", "ROW_FEATURES", "TARGET_ROW_FEATURES", "TARGET_FEATURES", "SCOPES",
            "unit_text"]
 
 _INF = math.inf
@@ -68,6 +68,10 @@ class FeatureSpec:
         true (the frost-point spread when the air is below freezing).
     step : bool
         Shown per step in the outlook's tables.
+    needs : tuple of str
+        Optional inputs of the feed this feature cannot be known without: where any of them is
+        missing (NaN), a condition reading the feature is unknown there, never "clear"
+        (:mod:`advisor.rules.compiler`).  A measured optional input needs itself.
     """
 
     name: str
@@ -82,6 +86,7 @@ class FeatureSpec:
     key: bool = False
     key_when: str = ""
     step: bool = False
+    needs: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         if (not isinstance(self.name, str) or not _NAME_RE.match(self.name)
@@ -141,6 +146,11 @@ FEATURES: tuple[FeatureSpec, ...] = (
        words="mean wind", plausible=(0.0, 75.0), domain=_measured(0.0, 75.0), key=True, step=True),
     _F("wind_gust_ms", "m/s", "highest gust over the last 10 minutes", "gusts (10-min max)", "{:.1f} m/s",
        words="gusts", plausible=(0.0, 100.0), domain=_measured(0.0, 100.0), key=True, step=True),
+    _F("wind_window_min", "min", "window of the wind statistics: 10 minutes, or the feed's cadence where it is "
+       "coarser (an hourly feed gives 1-h means and maxima)", "wind window", "{:.0f} min",
+       domain=_never_negative("it is a duration")),
+    _F("gust_estimated", "flag", "the station has no gust sensor: gusts are the site's gust factor times the mean "
+       "wind (feed.gust_factor), an estimate"),
     _F("gust_factor", "1", "gust divided by mean wind (turbulence); NaN below 0.5 m/s mean", "gust factor",
        "{:.2f}", domain=_never_negative("it is a ratio of two speeds")),
     _F("wind_pointing_error_arcsec", "arcsec",
@@ -160,13 +170,14 @@ FEATURES: tuple[FeatureSpec, ...] = (
     _F("dew_point_spread_c", "delta_degC", "air temperature minus dew point", "dew-point spread", "{:.1f} °C",
        key=True, step=True),
     _F("visibility_m", "m", "visibility (NaN if the feed has none)", "visibility", "{:.0f} m",
-       plausible=(0.0, 1_000_000.0), domain=_measured(0.0, 1_000_000.0), key=True, step=True),
+       plausible=(0.0, 1_000_000.0), domain=_measured(0.0, 1_000_000.0), key=True, step=True,
+       needs=("visibility_m",)),
     _F("precip_mm_h", "mm/h", "precipitation rate (NaN if the feed has none)", "precipitation", "{:.1f} mm/h",
-       plausible=(0.0, 500.0), domain=_measured(0.0, 500.0), key=True, step=True),
+       plausible=(0.0, 500.0), domain=_measured(0.0, 500.0), key=True, step=True, needs=("precip_mm_h",)),
     _F("pressure_hpa", "hPa", "station pressure (NaN if the feed has none)", "pressure", "{:.0f} hPa",
-       plausible=(300.0, 1100.0), domain=_measured(300.0, 1100.0)),
+       plausible=(300.0, 1100.0), domain=_measured(300.0, 1100.0), needs=("pressure_hpa",)),
     _F("solar_wm2", "W/m2", "global irradiance (NaN if the feed has none)", "irradiance", "{:.0f} W/m²",
-       plausible=(-20.0, 1500.0), domain=_measured(-20.0, 1500.0)),
+       plausible=(-20.0, 1500.0), domain=_measured(-20.0, 1500.0), needs=("solar_wm2",)),
     _F("below_freezing", "flag", "air temperature below 0 °C (humidity then counts over ice)"),
     _F("frost_point_c", "degC", "frost point: where the air's water vapour saturates over ice (Alduchov & Eskridge "
        "1996 ice form); where the dew point is 0 °C or above, the dew point (dew forms first and freezes on a "
@@ -179,8 +190,10 @@ FEATURES: tuple[FeatureSpec, ...] = (
        "(WMO-No. 8 ch. 4; above 100 %: supersaturated over ice); NaN at or above 0 °C", "RH over ice", "{:.0f} %",
        domain=_never_negative("it is a ratio of vapour pressures")),
     _F("fog", "flag", "fog likely: spread to saturation below the site limit with high RH (over water at or above "
-       "0 °C, over ice below), or visibility below the site limit"),
-    _F("precipitation", "flag", "precipitation at or above the site threshold"),
+       "0 °C, over ice below), or visibility below the site limit (from the spread alone where the feed has no "
+       "visibility)"),
+    _F("precipitation", "flag", "precipitation at or above the site threshold (unknown where the feed has no "
+       "precipitation)", needs=("precip_mm_h",)),
     # atmosphere
     _F("water_vapour_density_gm3", "g/m3", "water-vapour density of the surface air, 216.7 e / T (ITU-R P.676)",
        "water vapour", "{:.1f} g/m³", domain=_never_negative("it is a density")),
@@ -216,8 +229,10 @@ FEATURES: tuple[FeatureSpec, ...] = (
        domain=_never_negative("it counts hours since the most recent sunset"), key=True),
     _F("hours_since_sunrise", "h", "hours since the most recent sunrise", "since sunrise", "{:.1f} h",
        domain=_never_negative("it counts hours since the most recent sunrise")),
-    _F("air_temp_rate_c_per_h", "degC/h", "air-temperature change over the last hour", "temperature rate",
-       "{:+.1f} °C/h", words="temperature change", key=True),
+    _F("air_temp_rate_c_per_h", "degC/h", "air-temperature change over the last hour (or the feed's cadence where "
+       "it is coarser)", "temperature rate", "{:+.1f} °C/h", words="temperature change", key=True),
+    _F("temp_rate_window_min", "min", "window of the temperature rate: 60 minutes, or the feed's cadence where it "
+       "is coarser", "temperature-rate window", "{:.0f} min", domain=_never_negative("it is a duration")),
     # reference scan
     _F("has_reference", "flag", "a reference scan is in force"),
     _F("reference_age_h", "h", "age of the reference scan in force (NaN without one)", "reference age", "{:.1f} h",
@@ -300,6 +315,8 @@ FEATURES: tuple[FeatureSpec, ...] = (
     _F("data_age_min", "min", "age of the last good weather sample", "data age", "{:.1f} min",
        domain=_never_negative("the last good sample is never later than the evaluation time"), key=True),
     _F("data_ok", "flag", "weather data fresh, plausible and complete"),
+    _F("input_dropout", "flag", "an optional sensor that was reporting (visibility, precipitation, pressure, "
+       "irradiance) fell silent at the sample in use: no scan until it reports again or the dropout limit passes"),
     _F("feed_cadence_min", "min", "cadence of the sample in use: median interval between samples of its kind "
        "(observed or forecast)", "feed cadence", "{:.0f} min", domain=_never_negative("it is an interval")),
 )
@@ -324,3 +341,5 @@ STEP_FEATURES: tuple[str, ...] = tuple(f.name for f in FEATURES if f.step)
 PLAUSIBLE_RANGE: dict[str, tuple[float, float]] = {f.name: f.plausible for f in FEATURES if f.plausible}
 #: Feature → (lowest, highest, why) it can take when present (lint's "can never be true").
 FEATURE_DOMAINS: dict[str, tuple[float, float, str]] = {f.name: f.domain for f in FEATURES if f.domain}
+#: Feature → the optional inputs it cannot be known without (conditions reading it are unknown there).
+NEEDS: dict[str, tuple[str, ...]] = {f.name: f.needs for f in FEATURES if f.needs}

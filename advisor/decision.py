@@ -12,7 +12,13 @@ quadrature.  A method is feasible when nothing blocks it:
 * ``efficiency.min`` — its Ruze efficiency is below the site's minimum in this weather;
 * ``target.unreachable`` — no weather could bring it to the site's minimum at this frequency;
 * ``model.<method>`` — the site model's odds of a usable result are below the site's threshold;
-* ``data`` — the weather data cannot support a call (the row is ``undetermined``, never ``scan``).
+* ``data`` — the weather data cannot support a call (the row is ``undetermined``, never ``scan``);
+* ``data.dropout`` (laser only) — an optional sensor that was reporting (visibility,
+  precipitation, ...) fell silent at the sample in use: fog or rain cannot be ruled out.
+
+A rule whose condition needs an optional input that is missing neither fires nor clears
+(:class:`advisor.rules.ruleset.RuleEvaluation` ``unknown``); the call is made on what is known
+and its reasons say which rules could not be checked and which inputs were not seen.
 
 Between two feasible methods the one worth more over the session wins (:func:`session_value`:
 η² × (session − duration) / session × odds, with the figures as displayed), so holography's extra
@@ -33,13 +39,16 @@ import pandas as pd
 from advisor import fmt
 from advisor.features import best_surface_rms_um
 from advisor.fmt import duration_text, freq_text, odds_text
-from advisor.io.site import Site
+from advisor.io.site import CANONICAL_COLUMNS, Site
 from advisor.physics.aperture import root_sum_square, ruze_efficiency
 from advisor.rules.ruleset import RuleEvaluation, RuleSet
 from advisor.vocabulary import EXIT_CODES, METHOD_LABEL, METHODS, VERDICTS  # noqa: F401 (re-exported)
 
 #: Ids of the blocks that are not rules (they appear in ``blocked_by`` like rule ids).
 DATA_BLOCK = "data"
+DROPOUT_BLOCK = "data.dropout"
+#: Id of the reason listing the optional inputs not seen at the sample in use.
+UNSEEN_REASON = "data.unseen"
 EFFICIENCY_BLOCK = "efficiency.min"
 UNREACHABLE_BLOCK = "target.unreachable"
 
@@ -115,6 +124,7 @@ class Call:
     candidates: dict[str, dict]
     calibrator_name: str
     headline: str
+    unseen_inputs: tuple[str, ...] = ()   # optional inputs (canonical names) missing at the sample in use
 
 
 def _rule_error_terms(rule_eval: RuleEvaluation, rules: RuleSet, method: str, n: int) -> np.ndarray:
@@ -193,6 +203,7 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
     required = float(targets["required_surface_rms_um"])
     th = site.thresholds
     data_bad = ~features["data_ok"].to_numpy(dtype=bool)
+    dropout = features["input_dropout"].to_numpy(dtype=bool) if "input_dropout" in features else np.zeros(n, bool)
     best = best_surface_rms_um(site)
     durations = {"scan": site.scan.duration_min, "astronomical": site.astronomical.duration_min}
     candidates = {}
@@ -208,6 +219,8 @@ def decide(features: pd.DataFrame, targets: Mapping[str, float], rule_eval: Rule
             model_block(method): np.isfinite(p) & (p < th.min_p_usable),
             DATA_BLOCK: data_bad,
         }
+        if method == "scan":
+            blocks[DROPOUT_BLOCK] = dropout & ~data_bad
         blocked = _rule_blocked(rule_eval, rules, method, n)
         for mask in blocks.values():
             blocked = blocked | mask
@@ -242,12 +255,13 @@ def _data_reasons(row: pd.Series, site: Site) -> list[Reason]:
     """Why the data cannot support a call."""
     reasons = []
     age = row["data_age_min"]
+    limit = float(site.feed.age_limit_min(row.get("feed_cadence_min", np.nan)))
     if not np.isfinite(age):
         reasons.append(Reason(DATA_BLOCK, "both", "block", "No good weather sample at or before this time."))
-    elif age > site.feed.max_feed_age_min:
+    elif age > limit:
         reasons.append(Reason(DATA_BLOCK, "both", "block",
                               f"Last good weather sample is {duration_text(age)} old "
-                              f"(limit {duration_text(site.feed.max_feed_age_min)}): "
+                              f"(limit {duration_text(limit)}): "
                               "the feed looks stale; the figures below are from that sample."))
     if not reasons:
         reasons.append(Reason(DATA_BLOCK, "both", "block",
@@ -299,7 +313,12 @@ def explain(decisions: Decisions, i: int) -> Call:
             if rule.error is not None:
                 term = decisions.rule_eval.error_um[rule.id][i]
                 message = f"{message} (+{term:.0f} µm in quadrature)"
+            if values.get("gust_estimated") and rule.condition.names & GUST_FEATURES:
+                message = f"{message} (gusts estimated: the station has no gust sensor)"
             reasons.append(Reason(rule.id, rule.applies_to, rule.effect, message))
+    unseen = unseen_inputs(values)
+    if verdict != "undetermined":
+        reasons.extend(_input_reasons(decisions, i, values, unseen))
     freq = float(targets["freq_ghz"])
     cands = {}
     for method in METHODS:
@@ -340,7 +359,67 @@ def explain(decisions: Decisions, i: int) -> Call:
     reasons.extend(_choice_reasons(verdict, cands, site))
     headline = _headline(verdict, cands, row, decisions)
     return Call(verdict=verdict, time_utc=row["time"], freq_ghz=freq, reasons=reasons, features=values,
-                candidates=cands, calibrator_name=str(row.get("calibrator_name", "")), headline=headline)
+                candidates=cands, calibrator_name=str(row.get("calibrator_name", "")), headline=headline,
+                unseen_inputs=unseen)
+
+
+#: Features computed from the gusts: a reason reading them says when the gusts are estimated.
+GUST_FEATURES = frozenset({"wind_gust_ms", "gust_factor", "wind_pointing_error_arcsec", "pointing_beam_fraction",
+                           "scan_surface_rms_um", "astronomical_surface_rms_um", "scan_surface_margin_um",
+                           "astronomical_surface_margin_um"})
+#: The optional inputs a call can be made without, as the reasons name them.
+OPTIONAL_INPUT_WORDS = {"visibility_m": "visibility", "precip_mm_h": "precipitation", "pressure_hpa": "pressure",
+                        "solar_wm2": "irradiance"}
+
+
+def unseen_inputs(values: Mapping) -> tuple[str, ...]:
+    """The optional inputs missing (NaN) in a row's features, canonical names."""
+    out = []
+    for name in OPTIONAL_INPUT_WORDS:
+        value = values.get(name)
+        if value is None or (isinstance(value, (float, np.floating)) and not np.isfinite(value)):
+            out.append(name)
+    return tuple(out)
+
+
+def _named(names, site: Site) -> str:
+    """'visibility ('Hvis (m)'), precipitation' — the inputs with the logger column each is read from."""
+    parts = []
+    for name in names:
+        column = site.feed.source_of(name)
+        word = OPTIONAL_INPUT_WORDS.get(name, name)
+        parts.append(word if column == name else f"{word} ('{column}')")
+    return ", ".join(parts)
+
+
+def _input_reasons(decisions: Decisions, i: int, values: Mapping, unseen: tuple[str, ...]) -> list[Reason]:
+    """A sensor dropout, the inputs not seen, and the rules that could not be checked without them."""
+    site = decisions.site
+    reasons = []
+    bits = int(decisions.features["dropout_bits"].iloc[i]) if "dropout_bits" in decisions.features else 0
+    dropped = [n for n in OPTIONAL_INPUT_WORDS if bits & (1 << CANONICAL_COLUMNS.index(n))]
+    if values.get("input_dropout") and dropped:
+        reasons.append(Reason(DROPOUT_BLOCK, "scan", "block",
+                              f"{_named(dropped, site)} stopped reporting at the sample in use after reporting "
+                              "steadily: a sensor dropout; no laser scan until it reports again (fog or rain cannot "
+                              "be ruled out)."))
+    if unseen:
+        fog_note = " Fog is judged from the dew-point spread alone." if "visibility_m" in unseen else ""
+        reasons.append(Reason(UNSEEN_REASON, "both", "info",
+                              f"Not seen at this time: {_named(unseen, site)}. The call rests on the other "
+                              f"inputs.{fog_note}"))
+    for rule in decisions.rules:
+        undecided = decisions.rule_eval.unknown.get(rule.id)
+        if undecided is None or not undecided[i]:
+            continue
+        missing = [n for n in sorted(rule.condition.needs_inputs) if n in unseen]
+        words = ", ".join(OPTIONAL_INPUT_WORDS.get(n, n) for n in missing) or "an optional input"
+        would = {"block": "block", "warn": "warn about", "add_error": "add an error to"}.get(rule.effect, "affect")
+        applies = "both methods" if rule.applies_to == "both" else METHOD_LABEL.get(rule.applies_to, rule.applies_to)
+        reasons.append(Reason(rule.id, rule.applies_to, "warn" if rule.effect == "block" else "info",
+                              f"Not checked: needs {words}, not seen at this time; this rule could {would} "
+                              f"{applies} and cannot be ruled out."))
+    return reasons
 
 
 def _minutes_text(minutes: float) -> str:

@@ -77,6 +77,7 @@ FEATURE_SOURCE_MODULES = (
     "advisor.physics.atmosphere", "advisor.physics.absorption", "advisor.physics.p676_tables",
     "advisor.physics.opacity", "advisor.physics.track",
     "advisor.io.feedfile", "advisor.io.times", "advisor.io.encoding", "advisor.text",
+    "advisor.io.feedlayout", "advisor.io.feedtimes", "advisor.io.feedvalues", "advisor.io.sitereader",
 )
 
 def _ns(times) -> np.ndarray:
@@ -108,38 +109,59 @@ def sample_cadence_min(time_ns: np.ndarray, kind: np.ndarray) -> np.ndarray:
     return out
 
 
+def statistic_windows_min(cadence_min: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The windows the wind statistics and the temperature rate are computed over [min].
+
+    :data:`WIND_WINDOW_MIN` and :data:`TEMP_RATE_WINDOW_MIN`, or the feed's cadence where it is
+    coarser: an hourly sample's mean wind is a 1-h mean and its gust a 1-h maximum, and the
+    temperature rate of a 3-hourly feed is over 3 h.  NaN cadence (too few samples): the defaults.
+    """
+    cadence = np.where(np.isfinite(cadence_min), cadence_min, 0.0)
+    return np.maximum(WIND_WINDOW_MIN, cadence), np.maximum(TEMP_RATE_WINDOW_MIN, cadence)
+
+
 def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
-    """Wind statistics over :data:`WIND_WINDOW_MIN` and the one-hour temperature rate at each good sample.
+    """Wind statistics and the temperature rate at each good sample, over windows that adapt to
+    the cadence (:func:`statistic_windows_min`).
 
     A statistic counts only when its samples cover at least :data:`MIN_WINDOW_COVERAGE` of its
     window, each sample covering one interval of its feed's cadence (never the silence before
     it).  So a single calm row after 14 silent minutes never stands for ten minutes of wind: the
-    statistic is NaN and the row is not good.  A slower feed's sample (hourly) covers the whole
-    window and stands for it.
+    statistic is NaN and the row is not good.  A slower feed's sample (hourly) covers its own
+    interval and stands for it.
     """
     series = good.set_index("time")
     out = pd.DataFrame(index=series.index)
-    window = pd.Timedelta(minutes=WIND_WINDOW_MIN)
+    wind_window, temp_window = statistic_windows_min(cadence_min)
     t_ns = _ns(series.index)
-    dt_prev = np.diff(t_ns, prepend=t_ns[0] - int(WIND_WINDOW_MIN * 6e10)) / 6e10
-    covers = np.minimum(np.minimum(dt_prev, cadence_min), WIND_WINDOW_MIN)  # NaN cadence: covers nothing
-    covers = np.where(np.isfinite(covers), covers, 0.0)
-    coverage = pd.Series(covers, index=series.index).rolling(window).sum().to_numpy()
-    covered = coverage >= MIN_WINDOW_COVERAGE * WIND_WINDOW_MIN - 1e-9
-    # pandas' rolling mean is an online sum, so its last bits depend on where the series starts;
-    # rounding to 1e-6 m/s (far below any anemometer's resolution) makes a row's value the same
-    # however the frame was cut (check, outlook and replay chunks agree to the bit).
-    mean = series["wind_mean_ms"].rolling(window).mean().round(6).to_numpy()
-    gust = series["wind_gust_ms"].rolling(window).max().to_numpy()
-    out["wind_mean_ms"] = np.where(covered, mean, np.nan)
-    out["wind_gust_ms"] = np.where(covered, gust, np.nan)
+    mean = np.full(len(series), np.nan)
+    gust = np.full(len(series), np.nan)
+    for window_min in np.unique(wind_window):          # one pass per cadence (observed, forecast)
+        rows = wind_window == window_min
+        window = pd.Timedelta(minutes=float(window_min))
+        dt_prev = np.diff(t_ns, prepend=t_ns[0] - int(window_min * 6e10)) / 6e10
+        covers = np.minimum(np.minimum(dt_prev, cadence_min), window_min)  # NaN cadence: covers nothing
+        covers = np.where(np.isfinite(covers), covers, 0.0)
+        coverage = pd.Series(covers, index=series.index).rolling(window).sum().to_numpy()
+        covered = coverage >= MIN_WINDOW_COVERAGE * window_min - 1e-9
+        # pandas' rolling mean is an online sum, so its last bits depend on where the series
+        # starts; rounding to 1e-6 m/s (far below any anemometer's resolution) makes a row's
+        # value the same however the frame was cut (check, outlook and replay chunks agree).
+        rolled_mean = series["wind_mean_ms"].rolling(window).mean().round(6).to_numpy()
+        rolled_gust = series["wind_gust_ms"].rolling(window).max().to_numpy()
+        mean[rows] = np.where(covered, rolled_mean, np.nan)[rows]
+        gust[rows] = np.where(covered, rolled_gust, np.nan)[rows]
+    out["wind_mean_ms"] = mean
+    out["wind_gust_ms"] = gust
+    out["wind_window_min"] = wind_window
+    out["temp_rate_window_min"] = temp_window
     temp = series["air_temp_c"].to_numpy()
-    back = np.searchsorted(t_ns, t_ns - int(TEMP_RATE_WINDOW_MIN * 60e9), side="left")
+    back = np.searchsorted(t_ns, t_ns - (temp_window * 60e9).astype(np.int64), side="left")
     dt_h = (t_ns - t_ns[back]) / 3.6e12
     with np.errstate(invalid="ignore", divide="ignore"):
         rate = (temp - temp[back]) / dt_h
     # need at least half the window of history for a meaningful rate
-    out["air_temp_rate_c_per_h"] = np.where(dt_h >= MIN_WINDOW_COVERAGE * TEMP_RATE_WINDOW_MIN / 60.0, rate, np.nan)
+    out["air_temp_rate_c_per_h"] = np.where(dt_h >= MIN_WINDOW_COVERAGE * temp_window / 60.0, rate, np.nan)
     return out
 
 
@@ -258,8 +280,10 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
                  "pressure_hpa", "solar_wm2"):
         col = good[name].to_numpy(dtype=float) if name in good else np.array([])
         out[name] = take(col) if len(col) else np.full(n, np.nan)
-    for name in ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h"):
+    for name in ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h", "wind_window_min", "temp_rate_window_min"):
         out[name] = take(rolled[name].to_numpy(dtype=float)) if rolled is not None else np.full(n, np.nan)
+    estimated = good["gust_estimated"].to_numpy(dtype=bool) if "gust_estimated" in good else np.zeros(len(good), bool)
+    out["gust_estimated"] = take(estimated.astype(float)) == 1.0
     with np.errstate(invalid="ignore", divide="ignore"):
         out["gust_factor"] = np.where(out["wind_mean_ms"] >= 0.5, out["wind_gust_ms"] / out["wind_mean_ms"], np.nan)
 
@@ -269,7 +293,14 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["feed_cadence_min"] = take(cadence)
     latest = np.searchsorted(all_ns, t_ns, side="right") - 1
     latest_ok = np.where(latest >= 0, good_mask[np.clip(latest, 0, None)] if len(good_mask) else False, False)
-    out["data_ok"] = has & (age_min <= site.feed.max_feed_age_min) & latest_ok & np.isfinite(out["wind_mean_ms"])
+    age_limit = site.feed.age_limit_min(out["feed_cadence_min"])
+    out["data_ok"] = has & (age_min <= age_limit) & latest_ok & np.isfinite(out["wind_mean_ms"])
+    # An optional sensor that was reporting and fell silent at the sample in use never allows a
+    # scan (advisor.decision); one the station lacks, or reports now and then, is merely "not seen".
+    dropout_bits = good["q_bits_dropout"].to_numpy(dtype=np.int64) if "q_bits_dropout" in good else \
+        np.zeros(len(good), dtype=np.int64)
+    dropout_bits = np.where(has, dropout_bits[safe], 0) if len(dropout_bits) else np.zeros(n, dtype=np.int64)
+    out["input_dropout"] = dropout_bits != 0
 
     # --- moisture ------------------------------------------------------------------------
     out.update(moisture_features(out["air_temp_c"], out["dew_point_c"], out["rel_humidity_pct"],
@@ -316,13 +347,15 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
                                                                      out["air_temp_rate_c_per_h"],
                                                                      out["calibrator_gravity_residual_um"])
 
-    columns = {"time": times_index}
+    columns: dict[str, object] = {"time": times_index}
     for name in ROW_FEATURES:
         values = out[name]
         columns[name] = np.asarray(values, dtype=bool) if CATALOGUE[name].unit == "flag" else np.asarray(values, dtype=float)
     columns["calibrator_name"] = cal_name
     good_rows = np.flatnonzero(good_mask)
     columns["source_row"] = np.where(has, good_rows[safe] if len(good_rows) else -1, -1).astype(np.int64)
+    columns["latest_row"] = np.asarray(latest, dtype=np.int64)
+    columns["dropout_bits"] = np.asarray(dropout_bits, dtype=np.int64)
     return pd.DataFrame(columns)
 
 
@@ -342,8 +375,9 @@ def row_features_chunked(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site:
         lo = np.searchsorted(frame_ns, t_ns[start] - LOOKBACK.value, side="left")
         hi = np.searchsorted(frame_ns, t_ns[min(start + chunk_rows, len(t_ns)) - 1], side="right")
         part = row_features(frame.iloc[lo:hi], chunk, site, registry)
-        source = part["source_row"].to_numpy()
-        part["source_row"] = np.where(source >= 0, source + lo, -1)
+        for column in ("source_row", "latest_row"):
+            rows = part[column].to_numpy()
+            part[column] = np.where(rows >= 0, rows + lo, -1)
         parts.append(part)
         if on_chunk:
             on_chunk(min(start + chunk_rows, len(t_ns)), len(t_ns))

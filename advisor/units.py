@@ -67,6 +67,8 @@ _add("d", "time", 24.0, aliases=("day", "days"))
 _add("m", "length", 1.0)
 _add("km", "length", 1000.0)
 _add("mm", "length", 1e-3)
+_add("cm", "length", 1e-2)
+_add("in", "length", 0.0254, aliases=("inch", "inches"))   # international inch (definition)
 _add("um", "length", 1e-6, aliases=("µm", "micron", "microns"))
 # angle → degrees
 _add("deg", "angle", 1.0, aliases=("°", "degree", "degrees"))

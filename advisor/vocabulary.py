@@ -67,7 +67,8 @@ REASON_EFFECTS: tuple[str, ...] = (*EFFECTS, "info")
 EFFECT_LABEL: dict[str, str] = {effect: effect for effect in REASON_EFFECTS}
 
 #: Shown on every view whenever the invented demo site or its data are in use.
-DEMO_BANNER = "DEMO DATA — invented site and weather, for trying the tool."
+DEMO_BANNER = ("DEMO DATA — invented site and weather, for trying the tool (no site configured: --site, "
+               "$ADVISOR_SITE or ~/.config/advisor/site.yaml).")
 
 #: How a site-model term is made from its feature x: x, x², |x|, or max(0, knot - x).
 MODEL_TRANSFORMS: tuple[str, ...] = ("identity", "square", "abs", "shortfall")

@@ -94,8 +94,11 @@ def site_with(demo_site):
 
 @pytest.fixture(autouse=True)
 def _replay_cache_in_tmp(tmp_path_factory, monkeypatch):
-    """Tests never write to the user's ~/.cache: the replay feature cache lives in a temp folder."""
+    """Tests never write to the user's ~/.cache: the replay feature cache lives in a temp folder;
+    and never read the user's site: no $ADVISOR_SITE, an empty configuration folder."""
     monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path_factory.getbasetemp() / "advisor-cache"))
+    monkeypatch.delenv("ADVISOR_SITE", raising=False)
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path_factory.getbasetemp() / "no-config"))
 
 
 def run_cli(capsys, *argv):

@@ -42,6 +42,8 @@ COMMANDS = (
     Command("outlook", "outlook", "the call at every forecast step and the next window for each method"),
     Command("plan", "plan", "plan a session: which correction when, when to re-correct, against the simple choices"),
     Command("demo", "demo", "copy the invented demo site, feed, registry and rules to a folder to edit"),
+    Command("feed", "feed", "inspect a weather feed file the way the advisor reads it"),
+    Command("site", "site", "draft a commented site file for a new station from its feed"),
 )
 
 

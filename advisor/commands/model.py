@@ -51,7 +51,7 @@ def _add_train(sub, name: str, help: str) -> None:
                        help="past attempts, one per row (default: the site's history.path)")
     train.add_argument("--feed", metavar="ARCHIVE.csv",
                        help="weather archive for the rows that carry no weather (default: the site's feed)")
-    train.add_argument("--site", metavar="SITE.yaml", help="site file (default: the bundled invented demo site)")
+    train.add_argument("--site", metavar="SITE.yaml", help=session.SITE_HELP)
     train.add_argument("--out", metavar="MODEL.json",
                        help="where to write the model (with --install: default a dated file beside the site file)")
     train.add_argument("--install", action="store_true",
@@ -171,7 +171,7 @@ def cmd_train(args: argparse.Namespace) -> int:
     from advisor.io.site import load_site
     from advisor.model import training
 
-    site = load_site(args.site)
+    site = load_site(session.site_location(args.site)[0])
     if args.usable_below_um is not None and not (np.isfinite(args.usable_below_um) and args.usable_below_um > 0):
         raise UsageError(f"--usable-below-um {args.usable_below_um!r} must be a positive number of µm",
                          field="--usable-below-um")

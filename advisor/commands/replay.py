@@ -25,7 +25,8 @@ from advisor.io.history import read_history
 from advisor.vocabulary import VERDICTS
 from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import (attempts_from_history, compare_rule_sets, dominant_by_month_hour, hours_by,
-                                       month_keys, replay_features, replay_from_features, score_attempts, step_hours)
+                                       month_keys, replay_features, replay_from_features, score_attempts, step_hours,
+                                       weather_hours)
 from advisor.evaluation.replay_table import coverage_warnings, step_table
 from advisor.features import FEATURES_VERSION, feature_source_paths
 
@@ -100,7 +101,11 @@ def cmd_replay(args: argparse.Namespace) -> int:
     base, *rest = replay_from_features(features, scenario, rule_sets)
     other = rest[0] if rest else None
     times = base.times_utc
-    hours = step_hours(times, inputs.site.feed.max_gap_min)
+    cadence = features["feed_cadence_min"].to_numpy(dtype=float)
+    cadence_min = float(np.nanmedian(cadence)) if np.isfinite(cadence).any() else None
+    layout = inputs.site.feed
+    hours = step_hours(times, float(layout.gap_limit_min(cadence_min)))
+    age_limit = float(layout.age_limit_min(cadence_min))
     local = times.tz_convert(ZoneInfo(inputs.site.time_zone))
     summary = {
         "feed": str(inputs.feed_path),
@@ -114,16 +119,17 @@ def cmd_replay(args: argparse.Namespace) -> int:
         "by_local_hour": _table_dict(hours_by(base.verdict, hours, local.hour)),
         "attempts": None,
         "comparison": None,
+        **weather_hours(features, base.verdict, hours, inputs.site.thresholds.high_frequency_wind_limit_ms),
     }
     attempts, scores = None, None
     if args.history:
         attempts = attempts_from_history(read_history(args.history))
-        scores = summary["attempts"] = _score(base, attempts, inputs)
+        scores = summary["attempts"] = _score(base, attempts, inputs, age_limit)
     if other is not None:
         comparison = compare_rule_sets(base.verdict, other.verdict, base.rule_eval, other.rule_eval, hours)
         comparison["hours_b"] = _hours_dict(other.verdict, hours)
         if attempts is not None:
-            comparison["attempts_b"] = _score(other, attempts, inputs)
+            comparison["attempts_b"] = _score(other, attempts, inputs, age_limit)
         summary["comparison"] = comparison
     warnings = coverage_warnings(times, hours, features, inputs.registry, attempts,
                                  scores["attempts_covered"] if scores else None)
@@ -147,6 +153,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
 def _compute_features(inputs, scenario, t_from, t_to) -> pd.DataFrame:
     """Read the archive and compute the features of every observed row in the period."""
     feed = read_feed(inputs.feed_path, inputs.feed_layout)
+    session.check_feed_zone(feed, inputs.site, inputs.feed_layout)
     frame = feed.frame[feed.frame["kind"] == "observed"]
     times = pd.DatetimeIndex(frame["time"]).as_unit("ns")
     keep = np.ones(len(times), dtype=bool)
@@ -174,11 +181,11 @@ def _table_dict(table: pd.DataFrame) -> dict:
     return {str(k): {v: round(float(table.loc[k, v]), 2) for v in table.columns} for k in table.index}
 
 
-def _score(replayed, attempts, inputs) -> dict:
+def _score(replayed, attempts, inputs, age_limit: float) -> dict:
     """Both methods scored against the attempts; per-rule tables only for rules that concern the method."""
     applies = {r.id: r.applies_to for r in replayed.decisions.rules} if replayed.decisions is not None else None
     return score_attempts(replayed.times_utc, replayed.verdict, replayed.rule_eval, attempts,
-                          inputs.site.feed.max_feed_age_min, replayed.feasible, applies)
+                          age_limit, replayed.feasible, applies)
 
 
 def _write_csv(path: str, table: pd.DataFrame) -> None:

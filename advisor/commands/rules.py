@@ -170,7 +170,7 @@ def _effect(rule) -> str:
 
 def cmd_lint(args: argparse.Namespace) -> int:
     """Lint the defaults, the site's files and FILE... layered in that order."""
-    site = load_site(args.site)
+    site = load_site(session.site_location(args.site)[0])
     files = rule_files(site, None)
     known = {Path(p).resolve() for p, _ in files}
     for name in args.files:
@@ -248,13 +248,22 @@ def cmd_explain(args: argparse.Namespace) -> int:
     out.line(f"verdict: {VERDICT[call.verdict].label} — {call.headline}")
     if result.inputs.is_demo:
         out.line(DEMO_BANNER)
+    unknown_of = decisions.rule_eval.unknown
     evaluated = [(rule, bool(fired_of[rule.id][0])) for rule in decisions.rules]
+    undecided = {rule.id for rule, _ in evaluated if rule.id in unknown_of and unknown_of[rule.id][0]}
     n_fired = sum(f for _, f in evaluated)
-    out.line(f"{len(evaluated)} rules: {n_fired} true, {len(evaluated) - n_fired} false (true ones first)")
-    for rule, fired in sorted(evaluated, key=lambda rf: not rf[1]):
+    split = f"{n_fired} true, {len(evaluated) - n_fired - len(undecided)} false"
+    if undecided:
+        split += f", {len(undecided)} unknown"
+    out.line(f"{len(evaluated)} rules: {split} (true ones first)")
+    for rule, fired in sorted(evaluated, key=lambda rf: (not rf[1], rf[0].id not in undecided)):
         out.line("")
-        mark = "TRUE " if fired else "false"
+        mark = "TRUE " if fired else ("?    " if rule.id in undecided else "false")
         out.line(f"{mark}  {rule.id}  [{rule.applies_to} · {rule.effect}]")
+        if rule.id in undecided:
+            needs = ", ".join(sorted(rule.condition.needs_inputs))
+            out.line(f"       unknown: it needs {needs}, not seen at this time; it neither fired nor cleared",
+                     indent=12)
         out.line(f"       from {_where(rule, result.inputs.site)}", indent=12)
         out.line(f"       when {rule.condition_text}", indent=12)
         for part in condition_parts(rule.condition.ast, keep_not=True):
@@ -342,7 +351,7 @@ def add_parser(sub, name: str, help: str) -> None:
     show = actions.add_parser("show", help="the effective rule table after layering",
                               description="Print every rule in effect: id, applies to, effect, condition, "
                                           "and the file and layer it came from.")
-    show.add_argument("--site", metavar="SITE.yaml", help="site file (default: the bundled invented demo site)")
+    show.add_argument("--site", metavar="SITE.yaml", help=session.SITE_HELP)
     show.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
                       help="extra rule files layered over the defaults and the site's")
     show.add_argument("--for", dest="method", choices=METHODS, help="only the rules that apply to this method")

@@ -5,8 +5,13 @@ Each boundary rule of the command line is written here and only here:
 
 * how a frequency and a time are read from the command line (:func:`parse_frequency_ghz`,
   :func:`parse_time`; messages name the option that was wrong);
+* which site: ``--site``, else ``$ADVISOR_SITE``, else the site file in the configuration folder
+  (``$XDG_CONFIG_HOME/advisor/site.yaml``, by default ``~/.config/advisor/site.yaml``), else the
+  bundled invented demo, which says so (:func:`site_location`);
 * which feed is read and how: the site's feed unless ``--feed`` names one, and a file named on
   the command line is never read with the demo logger's local time zone (:func:`feed_layout`);
+  a feed whose irradiance contradicts the computed sun is refused or warned about
+  (:func:`check_feed_zone`);
 * rule layering: defaults → the site's files → ``--rules`` files (:func:`rule_files`);
 * which site model gives the odds (:func:`model_for`);
 * the default evaluation time: the demo feed's last observation for the demo, else now — and
@@ -154,7 +159,7 @@ def time_help(what: str) -> str:
 def add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) -> None:
     """The options every evaluating command shares (``check`` and those that say "options as for check")."""
     p.add_argument("--feed", metavar="FEED", help="weather feed, CSV or JSON Lines (default: the site's feed)")
-    p.add_argument("--site", metavar="SITE.yaml", help="site file (default: the bundled invented demo site)")
+    p.add_argument("--site", metavar="SITE.yaml", help=SITE_HELP)
     p.add_argument("--freq", default="86", metavar="FREQ",
                    help="target frequency: 86, 86GHz, or a wavelength like 3.5mm (default 86 GHz)")
     if with_at:
@@ -240,11 +245,41 @@ def emit(write) -> bool:
 # --------------------------------------------------------------------------- the request
 
 
+SITE_ENV = "ADVISOR_SITE"
+SITE_HELP = ("site file (default: $ADVISOR_SITE, else ~/.config/advisor/site.yaml, else the bundled invented "
+             "demo site)")
+
+
+def config_site_path() -> Path:
+    """Where the operator's site file is looked for when neither --site nor $ADVISOR_SITE is given."""
+    base = os.environ.get("XDG_CONFIG_HOME") or str(Path.home() / ".config")
+    return Path(base) / "advisor" / "site.yaml"
+
+
+def site_location(option: str | None) -> tuple[Path | None, str]:
+    """The site file to use and where that choice came from: ``--site``, ``$ADVISOR_SITE``, the
+    configuration folder's ``site.yaml``, or ``(None, "demo")`` for the bundled demo site."""
+    if option:
+        return Path(option), "--site"
+    named = os.environ.get(SITE_ENV, "").strip()
+    if named:
+        path = Path(named).expanduser()
+        if not path.exists():
+            raise UsageError(f"{SITE_ENV} names {named}, which does not exist", field=SITE_ENV,
+                             hint="point it at your site file, or unset it to use the configuration folder or the demo")
+        return path, SITE_ENV
+    config = config_site_path()
+    if config.exists():
+        return config, str(config)
+    return None, "demo"
+
+
 @dataclass(frozen=True)
 class Request:
     """The shared options of one command line, parsed and checked once."""
 
     site_path: Path | None = None        # None: the bundled demo site
+    site_origin: str = "demo"            # --site, ADVISOR_SITE, the configuration file's path, or demo
     feed_path: Path | None = None        # None: the site's feed
     freq_ghz: float = DEFAULT_FREQ_GHZ
     at: TimeOption | None = None         # None: the default evaluation time
@@ -263,8 +298,10 @@ def request_from(args: argparse.Namespace) -> Request:
 
     freq = getattr(args, "freq", None)
     elevation = getattr(args, "elevation", None)
+    site_path, site_origin = site_location(getattr(args, "site", None))
     return Request(
-        site_path=path("site"),
+        site_path=site_path,
+        site_origin=site_origin,
         feed_path=path("feed"),
         freq_ghz=parse_frequency_ghz(freq) if freq is not None else DEFAULT_FREQ_GHZ,
         at=parse_time(getattr(args, "at", None), "--at"),
@@ -382,7 +419,8 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     if request.feed_path is not None:
         path = request.feed_path
         if request.site_path is None:
-            notes.append("No --site given: using the demo site's location and figures.")
+            notes.append(f"No site given (--site, ${SITE_ENV} or {config_site_path()}): using the demo site's "
+                         "location and figures.")
     elif site.feed.path is not None:
         path = site.feed.path
     else:
@@ -396,12 +434,38 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     if read is not None:
         feed = read_feed(path, layout, tail_bytes=CHECK_TAIL_BYTES if read == "tail" else None,
                          issue_time_column=site.forecast.issue_time_column)
+        note = check_feed_zone(feed, site, layout)
+        if note:
+            notes.append(note)
+        layout = layout.as_read(feed.quality.sources)       # messages name the columns actually read
+        site = replace(site, feed=layout)
     registry = read_registry(registry_path)
     rules = load_ruleset(site, request.rule_files)
     model = model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not demo_feed) \
         if with_model else None
     return Inputs(site, feed, path, layout, rules, registry, registry_path, request.freq_ghz, is_demo,
                   tuple(notes), model, demo_feed)
+
+
+def check_feed_zone(feed: Feed, site: Site, layout: FeedLayout) -> str | None:
+    """The feed's irradiance against the computed sun (:func:`advisor.evaluation.feedcheck.check_time_zone`).
+
+    A clear contradiction that another time zone resolves is refused (exit 2, naming the zone
+    that fits); a weaker one is a warning on stderr and a note in the call.
+    """
+    from advisor.evaluation.feedcheck import check_time_zone
+
+    zone = check_time_zone(feed.frame, site.latitude_deg, site.longitude_deg, layout.time_label,
+                           layout.time_zone if layout.time_zone is not None else None)
+    if zone.status == "refuse":
+        raise FeedError(f"the feed's irradiance contradicts the computed sun: {zone.message}", source=feed.source,
+                        field="time zone", hint="fix feed.time_zone in the site file (or the logger's clock); "
+                                                "'advisor feed inspect' shows the check")
+    if zone.status == "warn":
+        text = f"Time zone doubtful: {zone.message}."
+        print(f"advisor: warning: {feed.source}: {text}", file=sys.stderr)
+        return text
+    return None
 
 
 def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame | None = None) -> pd.Timestamp:
@@ -447,7 +511,8 @@ def _quality(inputs: Inputs, call: Call) -> dict:
     age = call.features.get("data_age_min")
     quality.update({"source": feed.source,
                     "data_age_min": None if age is None or math.isnan(age) else round(float(age), 2),
-                    "ok": bool(call.features.get("data_ok"))})
+                    "ok": bool(call.features.get("data_ok")),
+                    "inputs_not_seen": list(call.unseen_inputs)})
     return quality
 
 

@@ -112,7 +112,7 @@ def cmd_tick(args) -> int:
                 "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
                 "advisory.txt": full_text,
                 # the page shows the dead-feed note as a banner of its own
-                "advisory.html": advisory_html(call, result.ctx, change, site.feed.max_feed_age_min),
+                "advisory.html": advisory_html(call, result.ctx, change, float(site.feed.age_limit_min(call.features.get("feed_cadence_min")))),
                 "state.json": json.dumps(change.state.as_dict(), indent=2) + "\n",
             }
             record = {"issued_utc": change.state.issued_utc, "time_utc": doc["time_utc"], "verdict": call.verdict,

@@ -14,6 +14,7 @@ from dataclasses import dataclass, replace
 import pandas as pd
 
 from advisor.decision import Call, Decisions, Reason, explain
+from advisor.evaluation.feedcheck import sample_problems
 from advisor.evaluation.evaluate import OddsFunction, evaluate
 from advisor.evaluation.lookahead import look_ahead
 from advisor.io.references import Registry
@@ -43,7 +44,7 @@ def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, regi
     """
     observed = frame[(frame["kind"] == "observed") & (frame["time"] <= at_utc)]
     decisions = evaluate(observed, pd.DatetimeIndex([at_utc]), site, registry, rules, freq_ghz, odds)
-    call = explain(decisions, 0)
+    call = _named_data_problems(explain(decisions, 0), decisions, observed, site)
     next_window = None
     hindsight = False
     if int((frame["time"] > at_utc).sum()) >= 2:
@@ -74,3 +75,24 @@ def evaluate_without_weather(empty_frame: pd.DataFrame, at_utc: pd.Timestamp, si
     reason = Reason("feed", "both", "block", why)
     call = replace(call, reasons=[reason] + [r for r in call.reasons if r.rule != "data"])
     return Instant(decisions, call, None, False)
+
+
+def _named_data_problems(call: Call, decisions: Decisions, observed: pd.DataFrame, site: Site) -> Call:
+    """An undetermined call's generic "implausible or incomplete" reason, replaced by what is
+    wrong with the latest sample: the logger column and the value."""
+    if call.verdict != "undetermined" or "latest_row" not in decisions.features:
+        return call
+    latest = int(decisions.features["latest_row"].iloc[0])
+    if latest < 0 or bool(observed["good"].iloc[latest]):
+        return call
+    problems = sample_problems(observed, latest, site.feed)
+    if not problems:
+        return call
+    when = pd.Timestamp(observed["time"].iloc[latest]).strftime("%Y-%m-%d %H:%M UTC")
+    named = Reason("data", "both", "block", f"The latest weather sample ({when}) is not usable: "
+                                            f"{'; '.join(problems)}. No call is made on bad data.")
+    generic = [r for r in call.reasons if r.rule == "data" and "implausible or incomplete" in r.message]
+    reasons = [named if r is (generic[0] if generic else None) else r for r in call.reasons]
+    if not generic:
+        reasons.insert(0, named)
+    return replace(call, reasons=reasons)

@@ -8,7 +8,9 @@ Pure summaries over the vectorised decisions of every archive row:
 * :func:`score_attempts` — against recorded attempts of both methods: false go (the advice
   allowed the method, the attempt failed) and missed (a usable attempt while the advice ruled
   the method out), per method and per rule that fired;
-* :func:`compare_rule_sets` — hours that change verdict between two rule sets, by rule.
+* :func:`compare_rule_sets` — hours that change verdict between two rule sets, by rule;
+* :func:`weather_hours` — hours of the conditions behind the verdicts (wind above the limit,
+  fog, precipitation, night) and of each optional input not seen, with the scan hours among them.
 """
 
 from __future__ import annotations
@@ -238,3 +240,41 @@ def replay_from_features(rows: pd.DataFrame, scenario: Scenario, rule_sets=None)
     """Verdicts and rule firings under each rule set (default: the scenario's), from row features."""
     times = pd.DatetimeIndex(rows["time"])
     return [Replayed(times, d.verdict, d.rule_eval, d) for d in scenario.decide(rows, rule_sets)]
+
+
+#: Optional inputs counted when not seen (canonical feature names).
+NOT_SEEN_INPUTS = ("precip_mm_h", "visibility_m", "pressure_hpa", "solar_wm2")
+
+
+def weather_hours(features: pd.DataFrame, verdict: np.ndarray, hours: np.ndarray, wind_limit_ms: float) -> dict:
+    """Hours of the weather behind the verdicts, and of the optional inputs the calls could not see.
+
+    ``weather``: mean wind above ``wind_limit_ms``, fog likely, precipitation at or above the
+    site threshold (where it was seen), night, gusts estimated, an optional sensor's dropout.
+    ``not_seen``: per optional input, the hours it was missing at the sample in use, and how many
+    of those hours the advice was scan (each such call names the input as not seen).
+    """
+    ok = features["data_ok"].to_numpy(dtype=bool)
+
+    def total(mask) -> float:
+        return round(float(hours[np.asarray(mask, dtype=bool) & ok].sum()), 2)
+
+    wind = features["wind_mean_ms"].to_numpy(dtype=float)
+    weather = {
+        "wind_above_limit": total(wind > wind_limit_ms),
+        "fog": total(features["fog"]),
+        "precipitation": total(features["precipitation"]),
+        "night": total(features["is_night"]),
+    }
+    if "gust_estimated" in features:
+        weather["gusts_estimated"] = total(features["gust_estimated"])
+    if "input_dropout" in features:
+        weather["sensor_dropout"] = total(features["input_dropout"])
+    scan = np.asarray(verdict) == "scan"
+    not_seen = {}
+    for name in NOT_SEEN_INPUTS:
+        if name in features:
+            missing = ~np.isfinite(features[name].to_numpy(dtype=float))
+            if (missing & ok).any():
+                not_seen[name] = {"hours": total(missing), "scan_hours": total(missing & scan)}
+    return {"weather": weather, "not_seen": not_seen}

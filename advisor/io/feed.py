@@ -12,7 +12,7 @@ times by :mod:`advisor.io.times` (strict ISO 8601 or epoch numbers, range-checke
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -22,17 +22,19 @@ from advisor import units
 from advisor.catalogue import PLAUSIBLE_RANGE
 from advisor.errors import FeedError
 from advisor.io.feedfile import MAX_FULL_READ_BYTES, check_whole_read, open_feed
-from advisor.io.site import CANONICAL_COLUMNS, CANONICAL_UNITS, REQUIRED_COLUMNS, FeedLayout
-from advisor.io.times import EPOCH_UNITS, check_time_range, epoch_times, parse_time_column
+from advisor.io.feedlayout import (CANONICAL_COLUMNS, CANONICAL_UNITS, OPTIONAL_COLUMNS, REQUIRED_COLUMNS, ColumnMap,
+                                   FeedLayout)
+from advisor.io.feedtimes import feed_times
+from advisor.io.feedvalues import (MAX_FEED_NUMBER, column_bit, depth_rate, dropout_mask, kind_rows, numeric_column,
+                                   refuse_mixed_humidity, step_outliers)
+from advisor.io.times import parse_time_column
 from advisor.physics.moisture import dew_point_c
 
-__all__ = ["CHECK_TAIL_BYTES", "MAX_FULL_READ_BYTES", "Feed", "FeedQuality", "canonical_frame",
-           "check_whole_read", "read_feed"]
+__all__ = ["CHECK_TAIL_BYTES", "MAX_FEED_NUMBER", "MAX_FULL_READ_BYTES", "Feed", "FeedQuality", "canonical_frame",
+           "check_whole_read", "read_feed", "column_names"]
 
 CHECK_TAIL_BYTES = 16_000_000       # an instant's call reads at most this much of a big feed
 MAX_OUT_OF_ORDER_FRACTION = 0.01
-#: Largest magnitude read as a feed value; beyond it a cell is corrupt, not a measurement.
-MAX_FEED_NUMBER = 1e15
 
 
 @dataclass(frozen=True)
@@ -48,6 +50,17 @@ class FeedQuality:
     first_time_utc: pd.Timestamp | None
     last_time_utc: pd.Timestamp | None
     partial_last_line: bool = False   # the file's last line had no newline: ignored as still being written
+    cadence_min: float | None = None  # median interval between observed rows
+    #: Logger column → cells holding one of the site's missing-value codes.
+    coded_cells: dict = field(default_factory=dict)
+    rows_with_codes: int = 0
+    #: Canonical column → rows where its value was implausible (range or step test).
+    implausible_by_column: dict = field(default_factory=dict)
+    gust_estimated: bool = False      # gusts are gust_factor × mean wind (no gust sensor)
+    columns_read: tuple[str, ...] = ()  # canonical columns the file carries (gusts and dew point may be made)
+    #: Canonical column → the logger column it was read from.
+    sources: dict = field(default_factory=dict)
+    n_dropouts: int = 0               # rows where an optional sensor that was reporting fell silent
 
     def as_dict(self) -> dict:
         return {
@@ -59,6 +72,12 @@ class FeedQuality:
             "missing_rows": self.n_missing,
             "first_time_utc": _iso(self.first_time_utc),
             "last_time_utc": _iso(self.last_time_utc),
+            "cadence_min": None if self.cadence_min is None else round(self.cadence_min, 3),
+            "missing_codes": dict(self.coded_cells),
+            "rows_with_missing_codes": self.rows_with_codes,
+            "implausible_by_column": dict(self.implausible_by_column),
+            "gust_estimated": self.gust_estimated,
+            "optional_dropout_rows": self.n_dropouts,
         }
 
 
@@ -83,113 +102,116 @@ def _issue_times(table: pd.DataFrame, column: str, source: str, line_offset: int
                              error_type=FeedError, require_offset=True, allow_empty=True)
 
 
-def _numeric(raw: pd.Series, column: str, source: str, line_offset: int) -> np.ndarray:
-    """A feed column as floats; a non-empty value that is not a finite number is an error.
+def _source_column(table: pd.DataFrame, name: str, spec: ColumnMap | None, layout: FeedLayout,
+                   source: str, line_offset: int) -> tuple[str, ColumnMap] | None:
+    """The logger column a canonical column is read from, and how; None when the feed has none."""
+    if spec is not None and spec.source_column in table.columns:
+        return spec.source_column, spec
+    if name in table.columns:  # canonical names are always read as SI
+        return name, ColumnMap(name, name, CANONICAL_UNITS[name])
+    required = name in REQUIRED_COLUMNS and not (name == "wind_gust_ms" and layout.gust_factor is not None)
+    if required:
+        wanted = f"'{spec.source_column}' (mapped to {name})" if spec else name
+        hint = (f"columns found: {', '.join(map(str, table.columns[:10]))}; map the logger's column in the site "
+                "file under feed.columns")
+        if name == "wind_gust_ms":
+            hint += ", or set feed.gust_factor if the station has no gust sensor"
+        raise FeedError(f"missing required column {wanted}", source=source, line=max(1, line_offset - 1), hint=hint)
+    return None   # an optional input the feed lacks: "not seen" in every call (feed inspect names the mapping)
 
-    ``true``/``false`` (a JSON boolean, or a word in a CSV cell) is never read as 1 or 0.
+
+def _read_values(table: pd.DataFrame, layout: FeedLayout, source: str, line_offset: int):
+    """Every canonical column the feed has, in canonical units; and cells coded missing per logger column."""
+    mapping = {c.canonical: c for c in layout.columns}
+    out: dict[str, np.ndarray] = {}
+    coded_cells: dict[str, int] = {}
+    coded_rows = np.zeros(len(table), dtype=bool)
+    coded_bits = np.zeros(len(table), dtype=np.int32)
+    sources: dict[str, str] = {}
+    for k, name in enumerate(CANONICAL_COLUMNS):
+        found = _source_column(table, name, mapping.get(name), layout, source, line_offset)
+        if found is None:
+            continue
+        column, spec = found
+        sources[name] = column
+        values, coded = numeric_column(table[column], column, (*layout.missing, *spec.missing), source, line_offset)
+        unit = spec.unit
+        if spec.is_depth:
+            hours: np.ndarray | float | None = spec.over_hours
+            if spec.over_hours_from is not None:
+                if spec.over_hours_from not in table.columns:
+                    raise FeedError(f"no column '{spec.over_hours_from}' (the hours of {column})", source=source,
+                                    line=max(1, line_offset - 1), hint=f"fix feed.columns.{name}.over_hours_from in the site file")
+                hours, hours_coded = numeric_column(table[spec.over_hours_from], spec.over_hours_from,
+                                                    (*layout.missing, *spec.missing), source, line_offset)
+                if hours_coded.any():
+                    coded_cells[spec.over_hours_from] = int(hours_coded.sum())
+                coded = coded | hours_coded
+            values = depth_rate(np.asarray(units.convert(values, unit, "mm"), dtype=float), hours)
+            unit = "mm/h"
+        if name == "rel_humidity_pct" and unit == "%":
+            refuse_mixed_humidity(values, column, source, line_offset)
+        if coded.any():
+            coded_cells[column] = coded_cells.get(column, 0) + int(coded.sum())
+            coded_rows |= coded
+            coded_bits |= np.where(coded, column_bit(k), 0).astype(np.int32)
+        out[name] = np.asarray(units.convert(values, unit, CANONICAL_UNITS[name]), dtype=float)
+    if layout.gust_factor is not None:
+        out["wind_gust_ms"] = layout.gust_factor * out["wind_mean_ms"]
+    return out, coded_cells, coded_rows, coded_bits, sources
+
+
+def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarray, dict[str, int]]:
+    """Set implausible values to NaN (kept as ``raw_<name>``); the per-row mask of columns affected.
+
+    Implausible: outside the catalogue's plausible range, a gust below the mean wind, or a change
+    from the previous sample larger than the step limit (:func:`advisor.io.feedvalues.step_outliers`).
     """
-    if pd.api.types.is_bool_dtype(raw):
-        raise FeedError("true/false where a number is expected", source=source, line=line_offset, field=column,
-                        hint="write the measured value; leave the cell empty for a missing value")
-    if pd.api.types.is_float_dtype(raw) or pd.api.types.is_integer_dtype(raw):
-        values = raw.to_numpy(dtype=float)
-        text = None
-    else:
-        text = raw.astype(object).where(raw.notna(), "").astype(str).str.strip()
-        values = pd.to_numeric(text.where(text != "", None), errors="coerce").to_numpy(dtype=float)
-        bad = np.isnan(values) & (text != "").to_numpy() & ~text.str.lower().isin(["nan", "na", "n/a", "null"]).to_numpy()
+    n = len(frame)
+    bits = np.zeros(n, dtype=np.int32)
+    counts: dict[str, int] = {}
+    t_ns = pd.DatetimeIndex(frame["time"]).asi8
+    groups = kind_rows(frame["kind"].to_numpy(dtype=object))
+    limits = layout.step_limits()
+    for k, name in enumerate(CANONICAL_COLUMNS):
+        if name not in frame:
+            continue
+        col = frame[name].to_numpy(dtype=float)
+        lo, hi = PLAUSIBLE_RANGE.get(name, (-np.inf, np.inf))
+        bad = (col < lo) | (col > hi)
+        if name in limits and not (name == "wind_gust_ms" and layout.gust_factor is not None):
+            bad |= step_outliers(np.where(bad, np.nan, col), t_ns, groups, limits[name])
+        if name == "wind_gust_ms":
+            bad |= col < frame["wind_mean_ms"].to_numpy(dtype=float) - 0.5
         if bad.any():
-            i = int(np.flatnonzero(bad)[0])
-            word = text.iloc[i]
-            if word.lower() in ("true", "false"):
-                raise FeedError(f"{word} where a number is expected", source=source, line=i + line_offset,
-                                field=column, hint="write the measured value; leave the cell empty for a missing value")
-            shown = repr(word) if len(word) <= 40 else repr(word[:30] + "…")
-            raise FeedError(f"{shown} is not a number", source=source, line=i + line_offset, field=column,
-                            hint="leave the cell empty for a missing value")
-    huge = ~np.isnan(values) & ~(np.abs(values) < MAX_FEED_NUMBER)
-    if huge.any():
-        i = int(np.flatnonzero(huge)[0])
-        if text is not None:
-            shown = text.iloc[i] if len(text.iloc[i]) <= 24 else f"{text.iloc[i][:12]}… ({len(text.iloc[i])} digits)"
-            what = f"value {shown} is not a finite number of plausible size"
-        else:
-            what = f"a number too large to be a measurement (read as {values[i]:g})"
-        raise FeedError(what, source=source, line=i + line_offset, field=column,
-                        hint="leave the cell empty for a missing value")
-    return values
+            counts[name] = int(bad.sum())
+            bits |= np.where(bad, column_bit(k), 0).astype(np.int32)
+            frame[f"raw_{name}"] = np.where(bad, col, np.nan)
+            col = np.where(bad, np.nan, col)
+        if name == "rel_humidity_pct":
+            col = np.minimum(col, 100.0)
+        frame[name] = col
+    return bits, counts
 
 
-def _refuse_mixed_humidity(values: np.ndarray, column: str, source: str, line_offset: int) -> None:
-    """RH in percent with some rows written as fractions (0..1) is ambiguous: refuse it."""
-    finite = np.isfinite(values)
-    looks_fraction = finite & (values > 0) & (values <= 1.0)
-    looks_percent = finite & (values > 1.5)
-    if looks_fraction.sum() >= 3 and looks_percent.any():
-        i = int(np.flatnonzero(looks_fraction)[0])
-        raise FeedError("relative humidity looks like a fraction in some rows and percent in others",
-                        source=source, line=i + line_offset, field=column,
-                        hint="write RH the same way in every row; map it with unit: fraction if it is 0..1")
+def _dropouts(frame: pd.DataFrame, layout: FeedLayout, cadence_min: float | None) -> np.ndarray:
+    """Per-row mask of the optional columns whose sensor fell silent just now (see ``dropout_mask``)."""
+    bits = np.zeros(len(frame), dtype=np.int32)
+    t_ns = pd.DatetimeIndex(frame["time"]).asi8
+    kind = frame["kind"].to_numpy(dtype=object)
+    groups = kind_rows(kind)
+    observed = kind == "observed"
+    hold = layout.dropout_limit_min(cadence_min)
+    for name in OPTIONAL_COLUMNS:
+        if name in frame:
+            mask = dropout_mask(frame[name].to_numpy(dtype=float), t_ns, groups, hold) & observed
+            bits |= np.where(mask, column_bit(CANONICAL_COLUMNS.index(name)), 0).astype(np.int32)
+    return bits
 
 
-def _is_number(text) -> bool:
-    if isinstance(text, bool):
-        return False
-    try:
-        float(text)
-    except (TypeError, ValueError, OverflowError):
-        return False
-    return True
-
-
-def _parse_times(raw: pd.Series, layout: FeedLayout, source: str, line_offset: int) -> pd.Series:
-    """Timestamps → UTC: ISO 8601 (with an offset, or naive in ``layout.time_zone``) or epoch numbers.
-
-    ``layout.time_unit`` says which; unset, numbers are read as epoch seconds and a value that
-    cannot be one (e.g. epoch milliseconds) is refused with a message naming the setting.
-    """
-    field = layout.time_column
-    if isinstance(raw.dtype, pd.DatetimeTZDtype):   # an in-memory table with real times
-        times = raw.dt.tz_convert("UTC").reset_index(drop=True)
-        if times.isna().any():
-            i = int(np.flatnonzero(times.isna().to_numpy())[0])
-            raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field)
-        check_time_range(times, source=source, field=field, line_offset=line_offset, error_type=FeedError)
-        return pd.Series(pd.DatetimeIndex(times).as_unit("ns"))
-    if pd.api.types.is_datetime64_dtype(raw):       # naive in-memory times: local wall clock
-        raw = raw.dt.strftime("%Y-%m-%dT%H:%M:%S.%f").where(raw.notna(), None)
-    values = raw.reset_index(drop=True).astype(object)
-    empty = values.isna().to_numpy()
-    if empty.any():
-        i = int(np.flatnonzero(empty)[0])
-        raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field,
-                        hint="every row needs a time")
-    unit = layout.time_unit
-    looks_numeric = (pd.api.types.is_numeric_dtype(raw) and not pd.api.types.is_bool_dtype(raw)) or \
-        _is_number(values.iloc[0])
-    if unit in EPOCH_UNITS or (unit is None and looks_numeric):
-        unit_name = unit or "epoch_s"
-        numbers = pd.to_numeric(values.astype(str).str.strip(), errors="coerce").to_numpy(dtype=float)
-        bad = np.isnan(numbers)
-        if bad.any():
-            i = int(np.flatnonzero(bad)[0])
-            if not str(values.iloc[i]).strip():
-                raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field,
-                                hint="every row needs a time")
-            raise FeedError(f"cannot read timestamp {values.iloc[i]!r} as "
-                            f"{'epoch seconds' if unit_name == 'epoch_s' else 'epoch milliseconds'}",
-                            source=source, line=i + line_offset, field=field,
-                            hint="write every time the same way, and set feed.time_unit (iso, epoch_s or epoch_ms) "
-                                 "in the site file to match")
-        return epoch_times(numbers, unit_name, guessed=unit is None, texts=values.astype(str).to_numpy(),
-                           source=source, field=field, line_offset=line_offset, error_type=FeedError)
-    if looks_numeric:   # unit == "iso"
-        raise FeedError(f"numeric timestamp {values.iloc[0]!r} where feed.time_unit is iso", source=source,
-                        line=line_offset, field=field,
-                        hint="set feed.time_unit: epoch_s or epoch_ms in the site file, or write ISO 8601 times")
-    return parse_time_column(values, source=source, field=field, line_offset=line_offset, error_type=FeedError,
-                             time_zone=layout.time_zone, require_offset=False,
-                             no_zone_hint="write times like 2026-01-15T09:00:00Z, or set feed.time_zone in the site file")
+def _cadence(frame: pd.DataFrame) -> float | None:
+    t = pd.DatetimeIndex(frame.loc[frame["kind"] == "observed", "time"]).asi8
+    return float(np.median(np.diff(t)) / 6e10) if len(t) >= 2 else None
 
 
 def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<feed>",
@@ -197,40 +219,18 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
     """Map, convert, sort and flag a logger table into a canonical :class:`Feed`.
 
     With ``issue_time_column``, the frame also carries ``issued_utc``: each forecast row's issue
-    time (NaT where the column is absent or the cell empty).
+    time (NaT where the column is absent or the cell empty).  Besides the canonical columns the
+    frame has ``kind``, ``gust_estimated``, the flags ``q_implausible``, ``q_missing``,
+    ``q_gap_before``, ``good``, and per-row masks of canonical columns (bit ``k`` for
+    ``CANONICAL_COLUMNS[k]``): ``q_bits_implausible``, ``q_bits_coded`` (a missing-value code),
+    ``q_bits_dropout`` (an optional sensor that was reporting fell silent).
     """
     table = table.rename(columns=lambda c: str(c).strip())
     if len(table) == 0:
         raise FeedError("feed has a header but no data rows", source=source)
-    time_col = layout.time_column if layout.time_column in table.columns else (
-        "time" if "time" in table.columns else None)
-    if time_col is None:
-        hint = f"map it with feed.time_column in the site file; columns found: {', '.join(map(str, table.columns[:8]))}"
-        if len(table.columns) == 1 and any(ch in str(table.columns[0]) for ch in ";\t|"):
-            hint = "the file seems to use another delimiter than ','; save it as comma-separated"
-        raise FeedError(f"no time column '{layout.time_column}'", source=source, line=1, hint=hint)
-    times = _parse_times(table[time_col], replace(layout, time_column=time_col), source, line_offset)
-
-    mapping = {c.canonical: c for c in layout.columns}
-    out = {}
-    for name in CANONICAL_COLUMNS:
-        spec = mapping.get(name)
-        if spec is not None and spec.source_column in table.columns:
-            raw, unit = table[spec.source_column], spec.unit
-        elif name in table.columns:  # canonical names are always read as SI
-            raw, unit = table[name], CANONICAL_UNITS[name]
-        elif name in REQUIRED_COLUMNS:
-            wanted = f"'{spec.source_column}' (mapped to {name})" if spec else name
-            raise FeedError(f"missing required column {wanted}", source=source, line=1,
-                            hint=f"columns found: {', '.join(map(str, table.columns[:10]))}; "
-                                 "map the logger's column in the site file under feed.columns")
-        else:
-            continue
-        column = spec.source_column if spec is not None and spec.source_column in table.columns else name
-        values = _numeric(raw, column, source, line_offset)
-        if name == "rel_humidity_pct" and unit == "%":
-            _refuse_mixed_humidity(values, column, source, line_offset)
-        out[name] = np.asarray(units.convert(values, unit, CANONICAL_UNITS[name]), dtype=float)
+    times, time_field = feed_times(table, layout, source, line_offset)
+    out, coded_cells, coded_rows, coded_bits, sources = _read_values(table, layout, source, line_offset)
+    read = set(out)
 
     frame = pd.DataFrame(out)
     frame.insert(0, "time", pd.DatetimeIndex(times).as_unit("ns"))
@@ -246,31 +246,8 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         frame["kind"] = "observed"
     if issue_time_column is not None:
         frame["issued_utc"] = _issue_times(table, issue_time_column, source, line_offset)
-
-    # Implausible values → NaN, row flagged (DESIGN §4 ranges).
-    implausible = np.zeros(len(frame), dtype=bool)
-    for name, (lo, hi) in PLAUSIBLE_RANGE.items():
-        if name in frame:
-            col = frame[name].to_numpy()
-            bad = (col < lo) | (col > hi)
-            implausible |= bad
-            col = np.where(bad, np.nan, col)
-            if name == "rel_humidity_pct":
-                col = np.minimum(col, 100.0)
-            frame[name] = col
-    gust_below_mean = frame["wind_gust_ms"].to_numpy() < frame["wind_mean_ms"].to_numpy() - 0.5
-    implausible |= gust_below_mean
-    for name in ("wind_mean_ms", "wind_gust_ms"):
-        frame.loc[gust_below_mean, name] = np.nan
-    frame["q_implausible"] = implausible
-    frame["q_missing"] = frame[list(REQUIRED_COLUMNS)].isna().any(axis=1).to_numpy() & ~implausible
-
-    # Derived dew point where the feed has none.
-    derived = dew_point_c(frame["air_temp_c"].to_numpy(), frame["rel_humidity_pct"].to_numpy())
-    if "dew_point_c" in frame:
-        frame["dew_point_c"] = frame["dew_point_c"].fillna(pd.Series(derived))
-    else:
-        frame["dew_point_c"] = derived
+    frame["gust_estimated"] = layout.gust_factor is not None
+    frame["q_bits_coded"] = coded_bits
 
     # Order and duplicates: a few late rows are sorted in, exact repeats dropped (both counted);
     # a feed running backwards or repeating a time with other values is refused.
@@ -291,13 +268,29 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
             when = conflicting[conflicting].index[0]
             i = int(np.flatnonzero(t == when.value)[1])
             raise FeedError(f"time {_iso(when)} appears twice with different values", source=source,
-                            line=i + line_offset, field=time_col,
+                            line=i + line_offset, field=time_field,
                             hint="remove the duplicate rows; the advisor will not guess which is right")
     n_duplicates = int(dup.sum())
     frame = frame[~dup].reset_index(drop=True)
+
+    # Implausible values → NaN (range and step tests, after sorting), row flagged; required
+    # inputs missing; dew point derived where the feed has none.
+    implausible_bits, implausible_counts = _flag_implausible(frame, layout)
+    implausible = implausible_bits != 0
+    frame["q_bits_implausible"] = implausible_bits
+    frame["q_implausible"] = implausible
+    frame["q_missing"] = frame[list(REQUIRED_COLUMNS)].isna().any(axis=1).to_numpy() & ~implausible
+    derived = dew_point_c(frame["air_temp_c"].to_numpy(), frame["rel_humidity_pct"].to_numpy())
+    if "dew_point_c" in frame:
+        frame["dew_point_c"] = frame["dew_point_c"].fillna(pd.Series(derived))
+    else:
+        frame["dew_point_c"] = derived
+
+    cadence = _cadence(frame)
     dt_min = frame["time"].diff().dt.total_seconds().to_numpy() / 60.0
-    frame["q_gap_before"] = np.nan_to_num(dt_min, nan=0.0) > layout.max_gap_min
+    frame["q_gap_before"] = np.nan_to_num(dt_min, nan=0.0) > layout.gap_limit_min(cadence)
     frame["good"] = ~(frame["q_implausible"] | frame["q_missing"]).to_numpy()
+    frame["q_bits_dropout"] = _dropouts(frame, layout, cadence)
 
     quality = FeedQuality(
         n_rows=len(frame), n_duplicates=n_duplicates, n_out_of_order=n_out_of_order,
@@ -305,6 +298,11 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         n_missing=int(frame["q_missing"].sum()),
         first_time_utc=frame["time"].iloc[0] if len(frame) else None,
         last_time_utc=frame["time"].iloc[-1] if len(frame) else None,
+        cadence_min=cadence, coded_cells=coded_cells, rows_with_codes=int(coded_rows.sum()),
+        implausible_by_column=implausible_counts, gust_estimated=layout.gust_factor is not None,
+        columns_read=tuple(n for n in CANONICAL_COLUMNS if n in read and not (n == "wind_gust_ms" and layout.gust_factor)),
+        sources=sources,
+        n_dropouts=int((frame["q_bits_dropout"] != 0).sum()),
     )
     return Feed(frame=frame, quality=quality, source=source)
 
@@ -318,7 +316,7 @@ def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = Non
     line without its newline is ignored (a logger is still writing it) and noted in the quality.
     """
     path = Path(path)
-    with open_feed(path, tail_bytes) as raw:
+    with open_feed(path, tail_bytes, skip_lines=layout.skip_lines) as raw:
         try:
             feed = canonical_frame(raw.table, layout, source=str(path), line_offset=raw.first_line,
                                    issue_time_column=issue_time_column)
@@ -327,3 +325,8 @@ def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = Non
     if raw.partial:
         feed = replace(feed, quality=replace(feed.quality, partial_last_line=True))
     return feed
+
+
+def column_names(bits: int) -> list[str]:
+    """The canonical columns of a per-row column mask (``q_bits_*``), in catalogue order."""
+    return [name for k, name in enumerate(CANONICAL_COLUMNS) if int(bits) & column_bit(k)]

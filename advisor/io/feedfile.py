@@ -49,20 +49,25 @@ class RawFeed:
     fh: BinaryIO
     cut: int = 0           # byte offset where the read part starts (0: whole file)
     is_jsonl: bool = False
+    skip: int = 0          # lines above the header (feed.skip_lines)
 
     def relocate(self, error: FeedError) -> FeedError:
         """``error`` with its line turned into a file line (see :func:`_relocate`)."""
-        return _relocate(error, self.fh, self.cut, self.is_jsonl)
+        return _relocate(error, self.fh, self.cut, self.is_jsonl, self.skip)
 
 
-def _relocate(error: FeedError, fh: BinaryIO, cut: int, is_jsonl: bool) -> FeedError:
+def _relocate(error: FeedError, fh: BinaryIO, cut: int, is_jsonl: bool, skip: int = 0) -> FeedError:
     """Turn the line of ``error`` (counted in the part read from byte ``cut``) into a file line.
 
     Lines before the cut are counted only now that a message needs them, and only up to
     :data:`MAX_LINE_COUNT_BYTES`; beyond that the message says where the line is instead.
+    In a tail, line 1 is the header, which lies below ``skip`` lines of the file.
     """
     line = error.line
-    if line is None or cut == 0 or (line == 1 and not is_jsonl):
+    if line is None or cut == 0:
+        return error
+    if line == 1 and not is_jsonl:
+        error.line = 1 + skip
         return error
     before = _count_newlines(fh, cut)
     if before is None:
@@ -159,11 +164,13 @@ def _first_bad_utf8(fh: BinaryIO, end: int, source: str) -> FeedError | None:
     return None
 
 
-def _read_csv(stream) -> pd.DataFrame:
-    """pandas' C parser in its fast (chunked) mode; a column of mixed types is coerced later anyway."""
+def _read_csv(stream, skip: int = 0) -> pd.DataFrame:
+    """pandas' C parser in its fast (chunked) mode; a column of mixed types is coerced later anyway.
+
+    ``skip`` lines above the header are passed over (a logger's metadata line)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", pd.errors.DtypeWarning)
-        return pd.read_csv(stream, encoding="utf-8")
+        return pd.read_csv(stream, encoding="utf-8", skiprows=skip or None)
 
 
 def _unique_keys(pairs):
@@ -232,15 +239,18 @@ def check_whole_read(path: Path, size: int | None = None) -> None:
 
 
 @contextmanager
-def open_feed(path: Path | str, tail_bytes: int | None = None) -> Iterator[RawFeed]:
-    """Read a CSV or JSON Lines feed into a :class:`RawFeed` (the file stays open for line counts)."""
+def open_feed(path: Path | str, tail_bytes: int | None = None, skip_lines: int = 0) -> Iterator[RawFeed]:
+    """Read a CSV or JSON Lines feed into a :class:`RawFeed` (the file stays open for line counts).
+
+    ``skip_lines`` lines above the header (or above the first JSON line) are passed over."""
     path = Path(path)
     source = str(path)
     with open_regular(path, FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (fh, size):
         head = fh.read(4096)
         _refuse_bad_head(head, source)
         body_head = head[3:] if head.startswith(codecs.BOM_UTF8) else head
-        is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or body_head.lstrip().startswith(b"{")
+        is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or (
+            skip_lines == 0 and body_head.lstrip().startswith(b"{"))
         tail_part = tail_bytes if tail_bytes is not None and size > 2 * tail_bytes else None
         if tail_part is None:
             check_whole_read(path, size)
@@ -254,8 +264,8 @@ def open_feed(path: Path | str, tail_bytes: int | None = None) -> Iterator[RawFe
                             hint="a logger's line in progress is ignored until its newline is written; "
                                  "is this a CSV or JSON Lines feed?")
         try:
-            raw = (_whole(fh, end, is_jsonl, source) if tail_part is None
-                   else _tail(fh, end, tail_part, is_jsonl, source))
+            raw = (_whole(fh, end, is_jsonl, source, skip_lines) if tail_part is None
+                   else _tail(fh, end, tail_part, is_jsonl, source, skip_lines))
         except UnicodeDecodeError:
             raise (_first_bad_utf8(fh, end, source) or FeedError("not UTF-8 text", source=source,
                                                                  hint="save the feed as UTF-8 CSV")) from None
@@ -265,10 +275,12 @@ def open_feed(path: Path | str, tail_bytes: int | None = None) -> Iterator[RawFe
             raise _parse_error(exc, source) from None
         if not is_jsonl:
             fh.seek(0)
+            for _ in range(skip_lines):
+                fh.readline(MAX_HEADER_BYTES)
             repeated = repeated_csv_column(fh.readline(MAX_HEADER_BYTES))
             if repeated:
-                raise FeedError(f"column {repeated!r} appears twice in the header", source=source, line=1,
-                                hint="keep one; the advisor will not guess which is meant")
+                raise FeedError(f"column {repeated!r} appears twice in the header", source=source,
+                                line=1 + skip_lines, hint="keep one; the advisor will not guess which is meant")
         raw.partial = end < size
         if len(raw.table) == 0 and raw.partial:
             raise FeedError("feed has no complete data row: its last line has no newline at the end", source=source,
@@ -277,26 +289,31 @@ def open_feed(path: Path | str, tail_bytes: int | None = None) -> Iterator[RawFe
         yield raw
 
 
-def _whole(fh: BinaryIO, end: int, is_jsonl: bool, source: str) -> RawFeed:
+def _whole(fh: BinaryIO, end: int, is_jsonl: bool, source: str, skip: int = 0) -> RawFeed:
     stream = io.BufferedReader(_Window(fh, 0, end), buffer_size=_BLOCK)
     if is_jsonl:
         text = io.TextIOWrapper(stream, encoding="utf-8-sig", newline=None)
-        return RawFeed(_jsonl_rows(text, source, 1), 1, False, fh, 0, True)
-    return RawFeed(_read_csv(stream), 2, False, fh, 0, False)
+        for _ in range(skip):
+            text.readline()
+        return RawFeed(_jsonl_rows(text, source, 1 + skip), 1 + skip, False, fh, 0, True, skip)
+    return RawFeed(_read_csv(stream, skip), 2 + skip, False, fh, 0, False, skip)
 
 
-def _tail(fh: BinaryIO, end: int, tail_bytes: int, is_jsonl: bool, source: str) -> RawFeed:
+def _tail(fh: BinaryIO, end: int, tail_bytes: int, is_jsonl: bool, source: str, skip: int = 0) -> RawFeed:
     """Header (CSV) plus the complete lines of the last ``tail_bytes`` before ``end``."""
     fh.seek(0)
     header = b""
+    for _ in range(skip):
+        fh.readline(MAX_HEADER_BYTES)
     if not is_jsonl:
         header = fh.readline(MAX_HEADER_BYTES + 1)
         if len(header) > MAX_HEADER_BYTES or not header.endswith(b"\n"):
-            raise FeedError(f"the header line is longer than {MAX_HEADER_BYTES:,} bytes", source=source, line=1,
+            raise FeedError(f"the header line is longer than {MAX_HEADER_BYTES:,} bytes", source=source, line=1 + skip,
                             hint="is this a CSV feed? expected a header line of column names")
-    start = max(end - tail_bytes, len(header))
+    body_start = fh.tell()   # after the skipped lines and the header
+    start = max(end - tail_bytes, body_start)
     fh.seek(start)
-    if start > len(header):
+    if start > body_start:
         fh.readline(tail_bytes)   # the line the cut fell into; `end` ends a line, so this stops there
     cut = fh.tell()
     body = fh.read(max(0, end - cut))
@@ -309,12 +326,12 @@ def _tail(fh: BinaryIO, end: int, tail_bytes: int, is_jsonl: bool, source: str) 
         except UnicodeDecodeError as exc:
             raise _not_utf8(data, exc.start, source, 0) from None
         if is_jsonl:
-            return RawFeed(_jsonl_rows(text.splitlines(), source, 1), 1, False, fh, cut, True)
+            return RawFeed(_jsonl_rows(text.splitlines(), source, 1), 1, False, fh, cut, True, skip)
         try:
-            return RawFeed(_read_csv(io.StringIO(text)), 2, False, fh, cut, False)
+            return RawFeed(_read_csv(io.StringIO(text)), 2, False, fh, cut, False, skip)
         except pd.errors.EmptyDataError:
             raise FeedError("feed has no header or rows", source=source, hint=_EMPTY_HINT) from None
         except (pd.errors.ParserError, ValueError) as exc:
             raise _parse_error(exc, source) from None
     except FeedError as exc:
-        raise _relocate(exc, fh, cut, is_jsonl) from None
+        raise _relocate(exc, fh, cut, is_jsonl, skip) from None

@@ -22,25 +22,24 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
-from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from advisor import units
 from advisor.errors import SiteError
 from advisor.io.bundled import demo_site_path, is_demo_file
-from advisor.io.sitemodel import ModelTermSetting, model_terms
-from advisor.io.yamlio import load_yaml
-from advisor.text import clean_text
-
-CANONICAL_COLUMNS = (
-    "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",
-    "dew_point_c", "pressure_hpa", "precip_mm_h", "visibility_m", "solar_wm2",
+from advisor.io.feedlayout import (  # noqa: F401 (re-exported)
+    CANONICAL_COLUMNS,
+    CANONICAL_UNITS,
+    OPTIONAL_COLUMNS,
+    REQUIRED_COLUMNS,
+    TIME_UNITS,
+    ColumnMap,
+    FeedLayout,
+    parse_feed_section,
+    zone_value,
 )
-REQUIRED_COLUMNS = ("wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct")
-CANONICAL_UNITS = {
-    "wind_mean_ms": "m/s", "wind_gust_ms": "m/s", "air_temp_c": "degC",
-    "rel_humidity_pct": "%", "dew_point_c": "degC", "pressure_hpa": "hPa",
-    "precip_mm_h": "mm/h", "visibility_m": "m", "solar_wm2": "W/m2",
-}
+from advisor.io.sitemodel import ModelTermSetting, model_terms
+from advisor.text import clean_text
+from advisor.io.sitereader import Reader
+from advisor.io.yamlio import load_yaml
 
 
 @dataclass(frozen=True)
@@ -50,28 +49,6 @@ class Calibrator:
     name: str
     ra_deg: float
     dec_deg: float
-
-
-@dataclass(frozen=True)
-class ColumnMap:
-    """One canonical column read from a logger column in a given unit."""
-
-    canonical: str
-    source_column: str
-    unit: str
-
-
-@dataclass(frozen=True)
-class FeedLayout:
-    """How to read the site's weather logger."""
-
-    path: Path | None = None
-    time_column: str = "time"
-    time_zone: str | None = None
-    columns: tuple[ColumnMap, ...] = ()
-    max_feed_age_min: float = 15.0
-    max_gap_min: float = 10.0
-    time_unit: str | None = None   # None: ISO 8601 text (or epoch seconds); "iso", "epoch_s", "epoch_ms"
 
 
 @dataclass(frozen=True)
@@ -191,7 +168,7 @@ class ForecastSettings:
     trust_observation_h: float = 2.0
 
 
-def _forecast_settings(reader: "_Reader", base: Path) -> ForecastSettings:
+def _forecast_settings(reader: Reader, base: Path) -> ForecastSettings:
     path = ("forecast",)
     reader.section(path, {"path", "issue_time_column", "horizon_h", "wind_margin_pct", "dew_point_margin_c",
                           "settling_min", "trust_observation_h"})
@@ -223,7 +200,7 @@ class TickConfig:
     confirm_min: float = 15.0
 
 
-def _tick_config(reader: "_Reader", base: Path) -> TickConfig:
+def _tick_config(reader: Reader, base: Path) -> TickConfig:
     path = ("tick",)
     section = reader.section(path, {"notify_command", "notify_timeout_s", "notify_format",
                                     "history_max_bytes", "dead_feed_ticks", "confirm_ticks", "confirm_min"})
@@ -319,90 +296,7 @@ def parse_dec_deg(value: Any) -> float:
     return dec
 
 
-class _Reader:
-    """Walks the YAML data with key paths, turning every problem into a SiteError."""
-
-    def __init__(self, data: dict, lines: dict, source: str) -> None:
-        self.data, self.lines, self.source = data, lines, source
-
-    def fail(self, path: tuple, message: str, hint: str | None = None) -> SiteError:
-        line = None
-        for n in range(len(path), -1, -1):
-            if path[:n] in self.lines:
-                line = self.lines[path[:n]]
-                break
-        dotted = ".".join(str(p) for p in path) or "<top>"
-        return SiteError(message, source=self.source, line=line, field=dotted, hint=hint)
-
-    def section(self, path: tuple, known: set[str], required: bool = False) -> dict:
-        value = self.get_raw(path)
-        if value is None:
-            if required:
-                raise self.fail(path, "missing section", hint=f"add '{path[-1]}:' with {sorted(known)}")
-            return {}
-        if not isinstance(value, dict):
-            raise self.fail(path, f"expected a mapping, got {type(value).__name__}")
-        for key in value:
-            if key not in known:
-                import difflib
-
-                if clean_text(key) != str(key):
-                    raise self.fail(path + (key,), "unknown key: it contains control characters or escape sequences",
-                                    hint="retype the key; known keys: " + ", ".join(sorted(known)))
-                close = difflib.get_close_matches(str(key), sorted(known), n=1)
-                hint = f"did you mean '{close[0]}'?" if close else f"known keys: {', '.join(sorted(known))}"
-                raise self.fail(path + (key,), "unknown key", hint=hint)
-        return value
-
-    def get_raw(self, path: tuple) -> Any:
-        node: Any = self.data
-        for key in path:
-            if isinstance(node, dict) and key in node:
-                node = node[key]
-            elif isinstance(node, list) and isinstance(key, int) and key < len(node):
-                node = node[key]
-            else:
-                return None
-        return node
-
-    def number(self, path: tuple, default: float | None = None, lo: float | None = None,
-               hi: float | None = None, required: bool = False) -> float:
-        value = self.get_raw(path)
-        if value is None:
-            if required or default is None:
-                raise self.fail(path, "missing value", hint="add a number")
-            return float(default)
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise self.fail(path, f"expected a number, got {value!r}", hint="write a plain number, e.g. 4.0")
-        try:
-            value = float(value)
-        except OverflowError:
-            raise self.fail(path, "number too large", hint="write a plain number, e.g. 4.0") from None
-        if value != value:
-            raise self.fail(path, "expected a number, got NaN")
-        if (lo is not None and value < lo) or (hi is not None and value > hi):
-            raise self.fail(path, f"{value:g} is outside {lo:g}..{hi:g}")
-        return value
-
-    def text(self, path: tuple, default: str | None = None, required: bool = False) -> str | None:
-        value = self.get_raw(path)
-        if value is None:
-            if required:
-                raise self.fail(path, "missing value", hint="add a text value")
-            return default
-        if not isinstance(value, str):
-            raise self.fail(path, f"expected text, got {value!r}", hint="quote the value")
-        return value
-
-    def path_value(self, path: tuple, base: Path) -> Path | None:
-        value = self.text(path)
-        if value is None:
-            return None
-        p = Path(value).expanduser()
-        return p if p.is_absolute() else (base / p)
-
-
-def _figures(reader: _Reader, path: tuple, cls: type, bounds: dict[str, tuple[float, float]]):
+def _figures(reader: Reader, path: tuple, cls: type, bounds: dict[str, tuple[float, float]]):
     section = reader.section(path, set(bounds))
     values = {}
     for name, (lo, hi) in bounds.items():
@@ -411,32 +305,16 @@ def _figures(reader: _Reader, path: tuple, cls: type, bounds: dict[str, tuple[fl
     return cls(**values)
 
 
-TIME_UNITS = ("iso", "epoch_s", "epoch_ms")
-
-
-def _time_zone(reader: _Reader, path: tuple, value: str | None) -> str | None:
-    """An IANA time zone name, checked by loading it; a region folder such as ``America`` is refused."""
-    if value is None:
-        return None
-    hint = "use an IANA name such as America/Denver or Europe/Madrid, or UTC"
-    if not value or len(value) > 64 or any(not (ch.isalnum() or ch in "/_+-") for ch in value):
-        raise reader.fail(path, f"unknown time zone {value!r}", hint=hint)
-    try:
-        ZoneInfo(value)
-    except IsADirectoryError:
-        raise reader.fail(path, f"{value!r} is a region, not a time zone",
-                          hint=f"name a zone within it, e.g. {value}/<City>; {hint}") from None
-    except (ZoneInfoNotFoundError, ValueError, OSError, UnicodeError):
-        raise reader.fail(path, f"unknown time zone {value!r}", hint=hint) from None
-    return value
-
-
-def _time_unit(reader: _Reader) -> str | None:
-    value = reader.text(("feed", "time_unit"))
-    if value is not None and value not in TIME_UNITS:
-        raise reader.fail(("feed", "time_unit"), f"unknown time unit {value!r}",
-                          hint="use iso (ISO 8601 text), epoch_s (seconds since 1970) or epoch_ms (milliseconds)")
-    return value
+def _refuse_todos(reader: Reader, node: Any, path: tuple) -> None:
+    """A value still saying TODO (a draft of ``advisor site new``) is refused, naming its key."""
+    if isinstance(node, dict):
+        for key, value in node.items():
+            _refuse_todos(reader, value, path + (key,))
+    elif isinstance(node, list):
+        for i, value in enumerate(node):
+            _refuse_todos(reader, value, path + (i,))
+    elif isinstance(node, str) and node.strip().upper() == "TODO":
+        raise reader.fail(path, "still says TODO", hint="fill in what the comment beside it asks for")
 
 
 def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = False) -> Site:
@@ -444,7 +322,8 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     if not isinstance(data, dict):
         raise SiteError("expected a mapping at the top of the site file", source=source, line=1,
                         hint="start with 'site:'")
-    r = _Reader(data, lines, source)
+    r = Reader(data, lines, source)
+    _refuse_todos(r, data, ())
     r.section((), {"site", "feed", "references", "rules", "model", "history", "methods", "thresholds", "calibrators",
                    "tick", "forecast", "atmosphere", "session", "structure"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
@@ -452,40 +331,11 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
     lon = r.number(("site", "longitude_deg"), lo=-180, hi=180, required=True)
     elev = r.number(("site", "elevation_m"), default=0.0, lo=-500, hi=9000)
-    tz = _time_zone(r, ("site", "time_zone"), r.text(("site", "time_zone"), default="UTC"))
+    tz = zone_value(r, ("site", "time_zone"), r.text(("site", "time_zone"), default="UTC"),
+                    allow_fractional_offset=False) or "UTC"
     dish = r.number(("site", "dish_diameter_m"), lo=1, hi=1000, required=True)
 
-    feed_section = r.section(("feed",), {"path", "time_column", "time_zone", "time_unit", "columns",
-                                         "max_feed_age_min", "max_gap_min"})
-    columns = []
-    col_section = feed_section.get("columns") or {}
-    if not isinstance(col_section, dict):
-        raise r.fail(("feed", "columns"), "expected a mapping of canonical name → {from, unit}")
-    for canonical, spec in col_section.items():
-        cpath = ("feed", "columns", canonical)
-        if canonical not in CANONICAL_COLUMNS:
-            import difflib
-
-            close = difflib.get_close_matches(str(canonical), CANONICAL_COLUMNS, n=1)
-            raise r.fail(cpath, "not a canonical column",
-                         hint=f"did you mean '{close[0]}'?" if close else f"one of {', '.join(CANONICAL_COLUMNS)}")
-        r.section(cpath, {"from", "unit"})
-        src = r.text(cpath + ("from",), required=True)
-        unit = r.text(cpath + ("unit",), default=CANONICAL_UNITS[canonical])
-        try:
-            units.convert(1.0, unit, CANONICAL_UNITS[canonical])
-        except units.UnitError as exc:
-            raise r.fail(cpath + ("unit",), str(exc), hint=f"use a unit convertible to {CANONICAL_UNITS[canonical]}") from None
-        columns.append(ColumnMap(canonical, src, unit))
-    feed = FeedLayout(
-        path=r.path_value(("feed", "path"), base),
-        time_column=r.text(("feed", "time_column"), default="time"),
-        time_zone=_time_zone(r, ("feed", "time_zone"), r.text(("feed", "time_zone"))),
-        columns=tuple(columns),
-        max_feed_age_min=r.number(("feed", "max_feed_age_min"), default=15.0, lo=0.5, hi=1440),
-        max_gap_min=r.number(("feed", "max_gap_min"), default=10.0, lo=0.5, hi=1440),
-        time_unit=_time_unit(r),
-    )
+    feed = parse_feed_section(r, base)
 
     r.section(("references",), {"path"})
     r.section(("model",), {"path", "terms"})

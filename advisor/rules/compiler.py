@@ -21,7 +21,8 @@ import pandas as pd
 
 from advisor import units
 from advisor.catalogue import FeatureSpec
-from advisor.rules.nodes import Binary, Bool, Call, Compare, Convert, Logical, Name, Node, Number, Unary
+from advisor.rules.nodes import (Binary, Bool, Call, Compare, Convert, Logical, Name, Node, Number, Unary, children,
+                                 iter_nodes)
 from advisor.rules.typecheck import check_text
 
 __all__ = ["Compiled", "compile_condition", "compile_expression"]
@@ -94,6 +95,62 @@ def _build(node: Node, flag_missing: set[str]) -> tuple[_Fn, bool]:
     raise TypeError(f"cannot compile {type(node).__name__}")  # pragma: no cover
 
 
+def _tested_inputs(node: Node, needs: Mapping[str, tuple[str, ...]]) -> set[str]:
+    """Inputs the condition tests with ``missing(...)``: it says itself what to do without them."""
+    found: set[str] = set()
+    for n in iter_nodes(node):
+        if isinstance(n, Call) and n.func == "missing" and isinstance(n.args[0], Name):
+            found.update(needs.get(n.args[0].name, ()))
+    return found
+
+
+def _build_unknown(node: Node, seeds: Mapping[str, tuple[str, ...]]) -> _Fn | None:
+    """A closure giving where ``node`` is unknown (Kleene's three-valued logic), or None if never.
+
+    A feature of ``seeds`` is unknown where any of its inputs is NaN; arithmetic and comparisons
+    are unknown where an operand is; ``a and b`` is unknown where an operand is unknown and none
+    is known false, ``a or b`` where an operand is unknown and none is known true; ``missing(x)``
+    is always known.
+    """
+    if isinstance(node, Name):
+        inputs = seeds.get(node.name)
+        if not inputs:
+            return None
+        keys = [("needs", k) for k in inputs]
+        return lambda env: _any_nan(env, keys)
+    if isinstance(node, (Number, Bool)) or (isinstance(node, Call) and node.func == "missing"):
+        return None
+    if isinstance(node, Logical):
+        parts = [(_build(o, set())[0], _build_unknown(o, seeds)) for o in node.operands]
+        if all(u is None for _, u in parts):
+            return None
+        want_true = node.op == "or"
+
+        def logical(env: dict) -> Any:
+            unknown: Any = np.False_
+            decided: Any = np.False_
+            for value, unknown_of in parts:
+                u = unknown_of(env) if unknown_of is not None else np.False_
+                v = np.asarray(value(env), dtype=bool)
+                unknown = unknown | u
+                decided = decided | ((v if want_true else ~v) & ~u)
+            return unknown & ~decided
+
+        return logical
+    fns = [u for u in (_build_unknown(c, seeds) for c in children(node)) if u is not None]
+    if not fns:
+        return None
+    return _reduce(np.logical_or, fns) if len(fns) > 1 else fns[0]
+
+
+def _any_nan(env: dict, keys: list) -> Any:
+    out: Any = np.False_
+    for key in keys:
+        if key in env:
+            out = out | np.isnan(env[key])
+    return out
+
+
 def _pair(ufunc, left: _Fn, right: _Fn) -> _Fn:
     return lambda env: ufunc(left(env), right(env))
 
@@ -155,10 +212,11 @@ class Compiled:
         evaluates it.
     """
 
-    __slots__ = ("source", "names", "kind", "unit", "ast", "_fn", "_kinds", "_flag_missing")
+    __slots__ = ("source", "names", "kind", "unit", "ast", "_fn", "_kinds", "_flag_missing", "_unknown",
+                 "needs_inputs")
 
     def __init__(self, source: str, ast: Node, kind: str, unit: str | None,
-                 kinds: dict[str, str]) -> None:
+                 kinds: dict[str, str], needs: Mapping[str, tuple[str, ...]] | None = None) -> None:
         self.source = source
         self.ast = ast
         self.kind = kind
@@ -167,6 +225,13 @@ class Compiled:
         self._kinds = kinds
         self._flag_missing: set[str] = set()
         self._fn, _ = _build(ast, self._flag_missing)
+        needs = {k: v for k, v in (needs or {}).items() if k in kinds}
+        tested = _tested_inputs(ast, needs)
+        seeds = {k: tuple(i for i in v if i not in tested) for k, v in needs.items()}
+        seeds = {k: v for k, v in seeds.items() if v}
+        #: The optional inputs whose absence can leave this condition unknown.
+        self.needs_inputs: frozenset[str] = frozenset(i for v in seeds.values() for i in v)
+        self._unknown = _build_unknown(ast, seeds) if seeds else None
 
     def __repr__(self) -> str:
         return f"Compiled({self.source!r}, kind={self.kind!r}, unit={self.unit!r})"
@@ -196,6 +261,13 @@ class Compiled:
             env[name] = values
             if name in self._flag_missing:
                 env[(name, "missing")] = missing if missing is not None else np.False_
+        if self._unknown is not None:
+            for name in sorted(self.needs_inputs):
+                try:
+                    column = columns[name]
+                except (KeyError, IndexError, TypeError):
+                    continue  # not given: nothing says it is missing
+                env[("needs", name)] = _float_column(column, name)
         return env, n
 
     def values_used(self, columns: Any) -> dict[str, np.ndarray]:
@@ -226,6 +298,21 @@ class Compiled:
         return out
 
 
+    def unknown(self, columns: Any = None, *, length: int | None = None) -> np.ndarray | None:
+        """Rows where the condition is unknown because an optional input it needs is missing
+        (three-valued logic, see :func:`_build_unknown`); None when it needs no optional input."""
+        if self._unknown is None:
+            return None
+        env, n = self._prepare(columns, length)
+        with np.errstate(all="ignore"):
+            out = np.asarray(self._unknown(env), dtype=bool)
+        if out.ndim == 0:
+            if n is None:
+                n = _length_of(columns)
+            return np.full(n, out.item(), dtype=bool)
+        return out
+
+
 def _length_of(columns: Any) -> int:
     """The length of the first column that is not a scalar."""
     if isinstance(columns, pd.DataFrame):
@@ -249,7 +336,12 @@ def compile_condition(text: str, catalogue: Mapping[str, FeatureSpec]) -> Compil
         For bad syntax, unknown names or units, type or unit mismatches, or a number result.
     """
     checked = check_text(text, catalogue, "flag")
-    return Compiled(text, checked.node, checked.kind, checked.unit, checked.kinds)
+    needs = {}
+    for name in checked.kinds:
+        spec = catalogue.get(name)
+        if isinstance(spec, FeatureSpec) and spec.needs:
+            needs[name] = spec.needs
+    return Compiled(text, checked.node, checked.kind, checked.unit, checked.kinds, needs)
 
 
 def compile_expression(text: str, catalogue: Mapping[str, FeatureSpec]) -> Compiled:

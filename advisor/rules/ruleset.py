@@ -93,10 +93,15 @@ class Rule:
 
 @dataclass(frozen=True)
 class RuleEvaluation:
-    """Per-rule boolean ``fired`` arrays and ``error_um`` arrays (0 where not fired)."""
+    """Per-rule boolean ``fired`` arrays and ``error_um`` arrays (0 where not fired).
+
+    ``unknown`` holds, for the rules that have any, the rows where the condition could not be
+    decided because an optional input it needs was missing: such a rule neither fired nor cleared.
+    """
 
     fired: dict[str, np.ndarray]
     error_um: dict[str, np.ndarray]
+    unknown: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -124,13 +129,18 @@ class RuleSet:
         """
         fired: dict[str, np.ndarray] = {}
         errors: dict[str, np.ndarray] = {}
+        unknown: dict[str, np.ndarray] = {}
         for rule in self.rules:
             mask = np.asarray(rule.condition.evaluate(columns, length=n), dtype=bool)
+            undecided = rule.condition.unknown(columns, length=n)
+            if undecided is not None and undecided.any():
+                unknown[rule.id] = undecided
+                mask = mask & ~undecided   # an undecided rule neither fires nor clears
             fired[rule.id] = mask
             if rule.error is not None:
                 value = np.asarray(rule.error.evaluate(columns, length=n), dtype=float) * rule.error_scale
                 errors[rule.id] = np.where(mask, np.nan_to_num(value, nan=0.0), 0.0)
-        return RuleEvaluation(fired, errors)
+        return RuleEvaluation(fired, errors, unknown)
 
 
 def message_fields(template: str) -> list[str]:

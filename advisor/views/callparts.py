@@ -63,6 +63,33 @@ def target_text(call: Call) -> str:
     return fmt.freq_wave_text(call.freq_ghz)
 
 
+def _window_text(minutes) -> str | None:
+    """'1-h', '3-h', '30-min' for a statistic's window; None for the catalogue's own 10 minutes."""
+    if minutes is None or not math.isfinite(minutes) or abs(minutes - 10.0) < 1e-9:
+        return None
+    if minutes >= 60 and abs(minutes / 60 - round(minutes / 60)) < 1e-9:
+        return f"{minutes / 60:g}-h"
+    return f"{minutes:g}-min"
+
+
+def feature_label(name: str, features: dict) -> str:
+    """A feature's screen label for this call: the wind statistics say the window they were
+    computed over ("wind (1-h mean)" on hourly data) and estimated gusts say so."""
+    label = CATALOGUE[name].label
+    if name == "wind_gust_ms" and features.get("gust_estimated"):
+        return "gusts (estimated)"
+    window = _window_text(features.get("wind_window_min"))
+    if window and name == "wind_mean_ms":
+        return f"wind ({window} mean)"
+    if window and name == "wind_gust_ms":
+        return f"gusts ({window} max)"
+    rate_window = features.get("temp_rate_window_min")
+    if name == "air_temp_rate_c_per_h" and rate_window is not None and math.isfinite(rate_window) \
+            and rate_window > 60:
+        return f"temperature rate (over {_window_text(rate_window)})"
+    return label
+
+
 # --- reasons ------------------------------------------------------------------------------
 
 def ordered_reasons(call: Call) -> list[Reason]:
@@ -261,7 +288,7 @@ def key_features(features: dict) -> list[tuple[str, str]]:
             continue
         if spec.name == "hours_since_sunset" and not features.get("is_night", True):
             spec = CATALOGUE["hours_since_sunrise"]
-        rows.append((spec.label, feature_text(spec.name, spec.display_format, features)))
+        rows.append((feature_label(spec.name, features), feature_text(spec.name, spec.display_format, features)))
     return rows
 
 
@@ -271,7 +298,8 @@ def conditions_line(call: Call) -> str:
     for name in COMPACT_FEATURES:
         text = feature_text(name, CATALOGUE[name].display_format, call.features)
         if text != "n/a":
-            bits.append(f"{_COMPACT_LABEL[name]} {text}")
+            label = feature_label(name, call.features)   # "wind (1-h mean)", "gusts (estimated)" when so
+            bits.append(f"{_COMPACT_LABEL[name] if label == CATALOGUE[name].label else label} {text}")
     return " · ".join(bits)
 
 

@@ -92,6 +92,24 @@ def _comparison_parts(comparison: dict, attempts: dict | None) -> list:
     return parts
 
 
+_WEATHER_WORDS = {"wind_above_limit": "mean wind above the limit", "fog": "fog likely", "precipitation": "precipitation",
+                  "night": "night", "gusts_estimated": "gusts estimated", "sensor_dropout": "sensor dropout"}
+_INPUT_WORDS = {"precip_mm_h": "precipitation", "visibility_m": "visibility", "pressure_hpa": "pressure",
+                "solar_wm2": "irradiance"}
+
+
+def _weather_parts(summary: dict) -> list:
+    """Hours of the weather behind the verdicts and of the inputs not seen (never silently fine)."""
+    weather, not_seen = summary.get("weather"), summary.get("not_seen")
+    if not weather:
+        return []
+    parts: list = ["Weather hours: " + " · ".join(f"{_WEATHER_WORDS.get(k, k)} {v:.1f} h" for k, v in weather.items())]
+    for name, h in (not_seen or {}).items():
+        parts.append(f"Not seen: {_INPUT_WORDS.get(name, name)} {h['hours']:.1f} h (scan advised in "
+                     f"{h['scan_hours']:.1f} h of them; each such call names it as not seen)")
+    return parts
+
+
 def replay_renderable(summary: dict, dominant: pd.DataFrame, width: int = 80):
     """The summary as one rich renderable (print it with a Console; markup in plain strings is rich's)."""
     from rich import box
@@ -117,6 +135,7 @@ def replay_renderable(summary: dict, dominant: pd.DataFrame, width: int = 80):
     for month, row in summary["by_month"].items():
         months.add_row(month, *(f"{row[v]:.1f}" for v in VERDICTS))
     parts += [months, heat_strip(dominant)]
+    parts += _weather_parts(summary)
     if summary["attempts"]:
         parts += _attempt_parts(summary["attempts"])
     if summary["comparison"]:
