@@ -385,7 +385,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
             dec = parse_dec_deg(r.get_raw(cpath + ("dec",)))
         except ValueError as exc:
             raise r.fail(cpath + ("dec",), str(exc)) from None
-        calibrators.append(Calibrator(cname, ra, dec))
+        calibrators.append(Calibrator(str(cname), ra, dec))
 
     rule_list = r.get_raw(("rules",)) or []
     if not isinstance(rule_list, list) or not all(isinstance(x, str) for x in rule_list):
@@ -393,7 +393,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     rule_paths = tuple((base / Path(p)).resolve() if not Path(p).is_absolute() else Path(p) for p in rule_list)
 
     return Site(
-        name=name, latitude_deg=lat, longitude_deg=lon, elevation_m=elev, time_zone=tz,
+        name=str(name), latitude_deg=lat, longitude_deg=lon, elevation_m=elev, time_zone=tz,
         dish_diameter_m=dish, feed=feed, scan=scan, astronomical=astro, thresholds=thresholds,
         calibrators=tuple(calibrators),
         references_path=r.path_value(("references", "path"), base),

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import difflib
 from pathlib import Path
-from typing import Any
+from typing import Any, overload
 
 from advisor.errors import SiteError
 from advisor.text import clean_text
@@ -72,6 +72,11 @@ class Reader:
         if (lo is not None and value < lo) or (hi is not None and value > hi):
             raise self.fail(path, f"{value:g} is outside {lo:g}..{hi:g}")
         return value
+
+    @overload
+    def text(self, path: tuple, default: str, required: bool = False) -> str: ...
+    @overload
+    def text(self, path: tuple, default: None = None, required: bool = False) -> str | None: ...
 
     def text(self, path: tuple, default: str | None = None, required: bool = False) -> str | None:
         value = self.get_raw(path)
