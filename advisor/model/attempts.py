@@ -72,7 +72,8 @@ def not_covered(weather: pd.DataFrame, i: int, frame: pd.DataFrame, site: Site) 
     if t < first:
         return f"{when} is before the feed starts ({span})"
     age = float(weather["data_age_min"].iloc[i])
-    limit = float(site.feed.age_limit_min(weather["feed_cadence_min"].iloc[i]))
+    cadence = weather["feed_cadence_min"].iloc[i] if "feed_cadence_min" in weather else None
+    limit = float(site.feed.age_limit_min(cadence))
     if t > last + pd.Timedelta(minutes=limit):
         return f"{when} is after the feed ends ({span})"
     if not np.isfinite(age) or age > limit:
