@@ -34,7 +34,8 @@ import pandas as pd
 
 from advisor.errors import AdvisorError, FeedError, ModelError, UsageError
 from advisor.io.feed import CHECK_TAIL_BYTES, Feed, FeedQuality, read_feed
-from advisor.io.references import Registry, parse_time_utc, read_registry
+from advisor.io.references import Registry, read_registry
+from advisor.io.times import parse_time_arg
 from advisor.io.site import FeedLayout, Site, load_site
 
 if TYPE_CHECKING:
@@ -106,25 +107,50 @@ class TimeOption:
         return pd.Timestamp(dt.datetime.combine(day, dt.time(0), tzinfo=zone)).tz_convert("UTC")
 
 
+_WORDS_HINT = "; or now, today, yesterday"
+_CUT_SHORT = "the line may have been cut short while it was written; "   # said for a file's line
+_EPOCH = re.compile(r"[+-]?\d+(?:\.\d*)?")
+
+
 def parse_time(text: str | None, field: str) -> TimeOption | None:
     """A time option (``--at``, ``--from``, ``--to``, ``--time``); ``None`` stays None.
 
-    Accepts ISO 8601 with ``Z`` or an offset, ``now``, ``today`` or ``yesterday``; anything else
-    is a :class:`UsageError` naming ``field``.
+    Accepts ISO 8601 with ``Z`` or an offset (read strictly by
+    :func:`advisor.io.times.parse_time_arg`: range-checked, ``+00`` and lower-case ``t``/``z``
+    allowed), ``now``, ``today`` or ``yesterday``; anything else is a :class:`UsageError` naming
+    ``field`` and saying what is wrong (a bare number names the epoch unit it looks like).
     """
     if text is None:
         return None
     word = str(text).strip().lower()
-    if word == "now":
-        return TimeOption(field, text, instant_utc=pd.Timestamp.now(tz="UTC"))
     if word in DAY_WORDS:
         return TimeOption(field, text, days_back=DAY_WORDS[word])
+    if _EPOCH.fullmatch(word):
+        what, hint = _epoch_message(word)
+        raise UsageError(what, field=field, hint=hint)
     try:
-        return TimeOption(field, text, instant_utc=parse_time_utc(text))
-    except Exception:  # noqa: BLE001 - pandas raises several types for garbage
-        raise UsageError(f"cannot read time {text!r}", field=field,
-                         hint="write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z, "
-                              "or now, today, yesterday") from None
+        return TimeOption(field, text, instant_utc=parse_time_arg(text, field))
+    except UsageError as exc:  # an option was typed, not cut short while being written
+        hint = (exc.hint or "").replace(_CUT_SHORT, "")
+        if "ISO 8601" in hint:
+            hint += _WORDS_HINT
+        exc.hint = hint or None
+        raise
+
+
+def _epoch_message(text: str) -> tuple[str, str]:
+    """``(what, hint)`` for a bare number given as a time: name the epoch unit it looks like, if any."""
+    from advisor.io.times import TIME_RANGE_UTC
+
+    digits = len(text.lstrip("+-").split(".")[0])
+    value = float(text) if digits < 40 else float("inf")
+    lo, hi = (t.value / 1e9 for t in TIME_RANGE_UTC)
+    for unit, seconds, width in (("seconds", value, (9, 10)), ("milliseconds", value / 1e3, (12, 13))):
+        if width[0] <= digits <= width[1] and lo <= seconds < hi:
+            iso = pd.Timestamp(seconds, unit="s", tz="UTC").strftime("%Y-%m-%dT%H:%M:%SZ")
+            return (f"{text!r} is a number, not a time (as epoch {unit} it would be {iso})",
+                    f"write the time in ISO 8601, e.g. {iso}")
+    return f"{text!r} is a number, not a time", "write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z"
 
 
 def time_help(what: str) -> str:
