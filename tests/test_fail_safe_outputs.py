@@ -79,3 +79,42 @@ def test_check_with_an_overflowing_model_rests_on_rules_and_prints_no_warning(ca
     assert not any("not available" in n for n in notes)   # the old, untrue note
     status_rules_only, out2, _ = run_cli(capsys, "check", "--site", site, "--at", AT, "--model", "none", "--json")
     assert status == status_rules_only and json.loads(out2)["verdict"] == doc["verdict"]
+
+
+# --- message formats ------------------------------------------------------------------------
+
+def _rule_file(folder: Path, message: str) -> Path:
+    path = folder / "extra.yaml"
+    path.write_text("rules:\n  - id: loud\n    applies_to: both\n    condition: wind_mean_ms >= 0\n"
+                    f"    effect: warn\n    message: {json.dumps(message)}\n")
+    return path
+
+
+@pytest.mark.parametrize("spec, words", [
+    (">1000000", "format width 1000000 is above 40"),
+    ("^41", "format width 41 is above 40"),
+    (".500f", "format precision 500 is above 12"),
+    ("x<" + "9" * 5000 + ".1f", "(5000 digits) is above 40"),
+])
+def test_lint_refuses_message_formats_that_would_print_megabytes(capsys, tmp_path, spec, words):
+    rules = _rule_file(tmp_path, "Wind {wind_mean_ms:" + spec + "} now.")
+    status, out, err = run_cli(capsys, "rules", "lint", rules)
+    assert status == 2 and words in out, out
+    status, out, err = run_cli(capsys, "check", "--at", AT, "--rules", rules)
+    assert status == 2 and out == "" and len(err.splitlines()) == 1 and words in err
+
+
+@pytest.mark.parametrize("spec", [">40", "^40.12f", "+.3f", ",.0f", "0>8.2f"])
+def test_reasonable_formats_pass_lint(capsys, tmp_path, spec):
+    status, out, _ = run_cli(capsys, "rules", "lint", _rule_file(tmp_path, "Wind {wind_mean_ms:" + spec + "} now."))
+    assert status == 0, out
+
+
+def test_format_message_bounds_its_output_even_past_lint():
+    from advisor.rules.ruleset import MAX_MESSAGE_CHARS, format_message
+
+    assert format_message("Wind {w:>1000000} m/s", {"w": 1.5}) == "Wind 1.5 m/s"   # width ignored
+    assert format_message("{w:.99999f}", {"w": 1.5}) == "1.5"
+    huge = format_message("x" * 3_000_000 + "{w:.1f}", {"w": 1.5})
+    assert len(huge) <= MAX_MESSAGE_CHARS and huge.endswith("1.5")
+    assert format_message("Fog\x1b[2J\x1b]0;pwned\x07 ahead {w:.1f}\r\n", {"w": 2.0}) == "Fog ahead 2.0 "

@@ -35,8 +35,8 @@ import pandas as pd
 from advisor.errors import AdvisorError, FeedError, ModelError, UsageError
 from advisor.io.feed import CHECK_TAIL_BYTES, Feed, FeedQuality, read_feed
 from advisor.io.references import Registry, read_registry
-from advisor.io.times import parse_time_arg
 from advisor.io.site import FeedLayout, Site, load_site
+from advisor.io.times import parse_time_arg
 
 if TYPE_CHECKING:
     from advisor.decision import Call, Decisions
