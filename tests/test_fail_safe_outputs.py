@@ -7,6 +7,8 @@ The weather is synthetic (tests/conftest.py) and only puts the call in a known s
 from __future__ import annotations
 
 import json
+import re
+import sys
 import warnings
 from pathlib import Path
 
@@ -118,3 +120,87 @@ def test_format_message_bounds_its_output_even_past_lint():
     huge = format_message("x" * 3_000_000 + "{w:.1f}", {"w": 1.5})
     assert len(huge) <= MAX_MESSAGE_CHARS and huge.endswith("1.5")
     assert format_message("Fog\x1b[2J\x1b]0;pwned\x07 ahead {w:.1f}\r\n", {"w": 2.0}) == "Fog ahead 2.0 "
+
+
+# --- terminal control characters from files ---------------------------------------------------
+
+EVIL = "\x1b]0;owned\x07\x1b[2J\x9b31m\u202e\r"
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+
+
+def _hostile_site(folder: Path) -> tuple[Path, Path]:
+    """A site whose name, calibrator names, rule message and feed path all carry escape sequences."""
+    from .test_tick import make_site
+
+    site = make_site(folder, name=f"Larch{EVIL} Basin [/bold] (invented)")
+    text = site.read_text()
+    text = text.replace('"3C 84"', json.dumps(f"3C{EVIL} 84")).replace('"0716+714"', json.dumps(f"0716{EVIL}+714"))
+    (folder / "extra.yaml").write_text(
+        "rules:\n  - id: noisy\n    applies_to: both\n    condition: wind_mean_ms >= 0\n    effect: warn\n"
+        f"    message: {json.dumps('Look' + EVIL + ' out {calibrator_name} {wind_mean_ms:.1f} m/s')}\n")
+    site.write_text(text + "rules:\n  - extra.yaml\n")
+    feed = folder / f"feed{EVIL.replace(chr(0), '')}.csv".replace("/", "")
+    (folder / "feed.csv").rename(feed)
+    return site, feed
+
+
+def _assert_clean(text: str, where: str) -> None:
+    found = _CONTROL.findall(text.replace("\n", "").replace("\t", ""))
+    assert not found, f"{where}: control characters {found!r} in {text[:300]!r}"
+
+
+def test_no_control_character_from_a_file_reaches_any_output(capsys, tmp_path):
+    site, feed = _hostile_site(tmp_path)
+    model = tmp_path / f"gone{EVIL}.json"
+    base = ["--site", site, "--feed", feed, "--at", AT, "--model", model]
+    status, out, err = run_cli(capsys, "check", *base)
+    assert status in (0, 10, 11, 12), err
+    assert "Larch Basin [/bold] (invented)" in out and "Look out 0716+714" in out
+    _assert_clean(out, "check (plain)")
+    status, out, err = run_cli(capsys, "check", *base, "--json")
+    _assert_clean(out, "check --json")       # JSON escapes would be printed raw by the next tool
+    doc = json.loads(out)
+    for text in [doc["site"], *(r["message"] for r in doc["reasons"]), *doc["notes"], doc["data_quality"]["source"]]:
+        _assert_clean(text, "check --json string")
+    status, out, err = run_cli(capsys, "rules", "explain", *base)
+    _assert_clean(out, "rules explain")
+    status, out, err = run_cli(capsys, "outlook", "--site", site, "--feed", feed, "--from", "2026-01-16T01:00:00Z",
+                               "--hours", "2")
+    assert status == 0 and "Larch Basin [/bold] (invented)" in out, err
+    _assert_clean(out + err, "outlook")
+
+
+def test_tick_files_stdout_and_notify_payload_carry_no_control_characters(capsys, tmp_path):
+    site, feed = _hostile_site(tmp_path)
+    record = tmp_path / "record.py"
+    record.write_text("import sys, pathlib\npathlib.Path(sys.argv[1]).write_text(sys.stdin.read())\n")
+    payload = tmp_path / "payload.txt"
+    site.write_text(site.read_text() + f"tick:\n  notify_command: [{json.dumps(sys.executable)}, "
+                    f"{json.dumps(str(record))}, {json.dumps(str(payload))}]\n")
+    state = tmp_path / "state"
+    status, out, err = run_cli(capsys, "tick", "--site", site, "--feed", feed, "--at", AT, "--state-dir", state)
+    assert status in (0, 10, 11, 12), err
+    _assert_clean(out, "tick stdout")
+    _assert_clean(payload.read_text(), "notify payload")
+    for name in ("advisory.txt", "advisory.json", "advisory.html", "history.jsonl"):
+        _assert_clean((state / name).read_text(), name)
+    page = (state / "advisory.html").read_text()
+    assert "Larch Basin [/bold] (invented)" in page and "<title>" in page
+
+
+def test_rich_markup_in_a_site_name_is_shown_as_written_on_a_terminal(tmp_path):
+    """A name with [brackets] once crashed the panel (a rich markup error); it is plain text."""
+    import io
+
+    from rich.console import Console
+
+    from advisor.commands import session
+    from advisor.views.panel import render_panel
+
+    from .test_tick import make_site
+
+    site = make_site(tmp_path, name="Bad [/bold] name [red]x (invented)")
+    result = session.run_check(session.Request(site_path=site, at=session.parse_time(AT, "--at")))
+    console = Console(file=io.StringIO(), width=120, color_system=None, force_terminal=True)
+    console.print(render_panel(result.call, result.ctx))
+    assert "Bad [/bold] name [red]x (invented)" in console.file.getvalue()

@@ -72,6 +72,13 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     return parser
 
 
+def internal_error_text(exc: BaseException) -> str:
+    """``Type: message`` of an unexpected exception on one line: no control characters, elided if long."""
+    from advisor.text import clean_text, shorten
+
+    return shorten(" ".join(clean_text(f"{type(exc).__name__}: {exc}").split()), 300)
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     named = _command_named(argv)
@@ -99,7 +106,7 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # pragma: no cover - the last line of defence
         if os.environ.get("ADVISOR_DEBUG"):
             raise
-        print(f"advisor: internal error: {type(exc).__name__}: {exc} (set ADVISOR_DEBUG=1 for a traceback)",
+        print(f"advisor: internal error: {internal_error_text(exc)} (set ADVISOR_DEBUG=1 for a traceback)",
               file=sys.stderr)
         return 1
 

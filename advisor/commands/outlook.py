@@ -76,7 +76,6 @@ def _svg_target(text: str | None) -> Path | None:
 def cmd_outlook(args: argparse.Namespace) -> int:
     from advisor.evaluation.outlook import combine_frames, compute_outlook
     from advisor.io.feed import read_feed
-    from advisor.views.context import Context
     from advisor.views.outlook_data import outlook_csv_frame, outlook_json
     from advisor.views.outlook_plain import render_plain_outlook
     from advisor.views.outlook_rich import outlook_renderable, outlook_svg
@@ -108,8 +107,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
                               odds=inputs.odds, min_duration_min=min_dur, source=" + ".join(sources))
     quality = feed.quality.as_dict()
     quality["source"] = feed.source
-    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=" + ".join(sources),
-                  is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
+    ctx = session.make_context(site, " + ".join(sources), inputs.is_demo, quality, notes=inputs.notes)
 
     svg_text = outlook_svg(outlook, ctx) if svg is not None else None
     if args.json:

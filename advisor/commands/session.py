@@ -424,10 +424,26 @@ def _quality(inputs: Inputs, call: Call) -> dict:
     return quality
 
 
+def make_context(site: Site, feed_source: str, is_demo: bool, data_quality: dict,
+                 next_window: dict | None = None, notes=()) -> Context:
+    """The rendering context of a result, with every text from a file or argument made safe to print.
+
+    Site names, feed paths, notes (which may quote a file) and the data-quality texts pass
+    through :func:`advisor.text.clean_text`: no escape sequence or control character from a
+    file reaches a terminal, a page or cron mail.
+    """
+    from advisor.text import clean_text
+    from advisor.views.context import Context
+
+    quality = {k: clean_text(v) if isinstance(v, str) else v for k, v in data_quality.items()}
+    return Context(site_name=clean_text(site.name), time_zone=site.time_zone, feed_source=clean_text(feed_source),
+                   is_demo=is_demo, data_quality=quality, next_window=next_window,
+                   notes=tuple(clean_text(n) for n in notes))
+
+
 def run_check(request: Request) -> CheckResult:
     """Load the inputs, evaluate at the evaluation time and explain (``check``, ``tick``, ``rules explain``)."""
     from advisor.evaluation.instant import evaluate_instant
-    from advisor.views.context import Context
     from advisor.vocabulary import EXIT_CODES
 
     inputs = load_inputs(request, read="tail")
@@ -438,9 +454,8 @@ def run_check(request: Request) -> CheckResult:
     notes = inputs.notes
     if instant.next_window_in_hindsight:
         notes = (*notes, "Next window found in observations after the evaluation time (hindsight).")
-    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=feed.source,
-                  is_demo=inputs.is_demo, data_quality=_quality(inputs, instant.call),
-                  next_window=instant.next_window, notes=notes)
+    ctx = make_context(inputs.site, feed.source, inputs.is_demo, _quality(inputs, instant.call),
+                       instant.next_window, notes)
     return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)
 
 
@@ -462,7 +477,6 @@ def check_without_feed(request: Request, error: AdvisorError) -> CheckResult:
     command); the site model is not consulted, since there is no weather to give odds on.
     """
     from advisor.evaluation.instant import evaluate_without_weather
-    from advisor.views.context import Context
     from advisor.vocabulary import EXIT_CODES
 
     located = load_inputs(request, read=None, with_model=False)
@@ -474,6 +488,5 @@ def check_without_feed(request: Request, error: AdvisorError) -> CheckResult:
                                        inputs.freq_ghz, f"The weather feed cannot be read: {error.one_line()}")
     quality = feed.quality.as_dict()
     quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
-    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=source, is_demo=False,
-                  data_quality=quality, notes=())
+    ctx = make_context(inputs.site, source, False, quality)
     return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)

@@ -71,6 +71,7 @@ def cmd_tick(args) -> int:
 
     from advisor.evaluation import advisory
     from advisor.io import notify, statedir
+    from advisor.text import clean_text
     from advisor.views.advisory import advisory_html, advisory_json, advisory_title, issued_line
     from advisor.views.context import with_note
     from advisor.views.jsondoc import to_json_dict
@@ -100,9 +101,9 @@ def cmd_tick(args) -> int:
                                            confirm=advisory.Confirm(site.tick.confirm_ticks, site.tick.confirm_min))
             ctx = with_note(result.ctx, advisory.dead_feed_note(change))
             doc = advisory_json(to_json_dict(call, ctx, result.status), change)
-            text = issued_line(change) + "\n" + render_plain(call, ctx)
+            text = clean_text(issued_line(change) + "\n" + render_plain(call, ctx), keep_newlines=True)
             panel = render_panel(call, ctx)
-            title = advisory_title(call.verdict, site.name)
+            title = advisory_title(call.verdict, ctx.site_name)
             html_panel = render_panel(call, result.ctx)  # the page shows the dead-feed note as a banner
             files = {
                 "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",

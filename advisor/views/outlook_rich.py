@@ -77,7 +77,7 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
     return Panel(Group(*parts), title=f"advisor outlook · {outlook.freq_ghz:g} GHz", title_align="left",
                  border_style="blue",
-                 subtitle=f"feed: {ctx.feed_source}", subtitle_align="left", width=width)
+                 subtitle=Text(f"feed: {ctx.feed_source}"), subtitle_align="left", width=width)
 
 
 def outlook_svg(outlook: Outlook, ctx: Context) -> str:

@@ -75,5 +75,7 @@ def render_panel(call: Call, ctx: Context) -> Panel:
         parts.append(Text(next_window_text(ctx.next_window, ctx.time_zone), style="bold"))
     parts.append(Text(""))
     parts.append(Text(" ".join(CAUTIONS), style="dim italic"))
-    return Panel(Group(*parts), title=f"advisor · {ctx.site_name}", title_align="left",
-                 border_style=verdict.style.split()[-1], subtitle=f"feed: {ctx.feed_source}", subtitle_align="left")
+    # Text, not markup: a site name or path with [brackets] is shown as written, never parsed.
+    return Panel(Group(*parts), title=Text(f"advisor · {ctx.site_name}"), title_align="left",
+                 border_style=verdict.style.split()[-1], subtitle=Text(f"feed: {ctx.feed_source}"),
+                 subtitle_align="left")
