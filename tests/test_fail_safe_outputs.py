@@ -18,7 +18,7 @@ import pytest
 
 from advisor.model.inference import parse_model
 
-from .conftest import NIGHT_UTC, run_cli, weather_table
+from .conftest import run_cli
 
 ROOT = Path(__file__).resolve().parent.parent
 BUNDLED_MODEL = ROOT / "example_weather" / "larch_basin_model.json"

@@ -20,7 +20,7 @@ from typing import NamedTuple
 
 from advisor import __version__
 from advisor.commands.helpformat import EXIT_HELP, HelpFormatter
-from advisor.errors import AdvisorError, InsufficientData
+from advisor.errors import AdvisorError, InsufficientData, internal_error_text
 
 
 class Command(NamedTuple):
@@ -70,13 +70,6 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
         else:
             sub.add_parser(command.name, help=command.help)  # listed in --help; never run
     return parser
-
-
-def internal_error_text(exc: BaseException) -> str:
-    """``Type: message`` of an unexpected exception on one line: no control characters, elided if long."""
-    from advisor.text import clean_text, shorten
-
-    return shorten(" ".join(clean_text(f"{type(exc).__name__}: {exc}").split()), 300)
 
 
 def main(argv: list[str] | None = None) -> int:
