@@ -139,8 +139,9 @@ class MethodModel:
 
     def plain_coefficients(self) -> tuple[float, np.ndarray]:
         """(intercept at all terms zero, log-odds per unit of each term) — the model in plain units."""
-        per_unit = self.coef / self.scale
-        return float(self.intercept - np.sum(per_unit * self.mean)), per_unit
+        with np.errstate(all="ignore"):  # a model that overflows shows inf / nan here, said as such
+            per_unit = self.coef / self.scale
+            return float(self.intercept - np.sum(per_unit * self.mean)), per_unit
 
 
 class ModelOdds(dict):
