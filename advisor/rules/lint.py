@@ -28,8 +28,9 @@ from __future__ import annotations
 import difflib
 import math
 import re
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
-from typing import Any, Iterable, Mapping
+from typing import Any
 
 import yaml
 
@@ -39,8 +40,14 @@ from advisor.errors import ConditionError, RulesError
 from advisor.rules.compiler import Compiled, compile_condition, compile_expression
 from advisor.rules.interpret import evaluate_row
 from advisor.rules.nodes import Number
-from advisor.rules.ruleset import (MAX_FORMAT_PRECISION, MAX_FORMAT_WIDTH, MESSAGE_EXTRAS, RuleSet,
-                                   format_spec_problem, message_fields)
+from advisor.rules.ruleset import (
+    MAX_FORMAT_PRECISION,
+    MAX_FORMAT_WIDTH,
+    MESSAGE_EXTRAS,
+    RuleSet,
+    format_spec_problem,
+    message_fields,
+)
 from advisor.rules.thresholds import threshold_findings
 from advisor.text import shorten
 from advisor.vocabulary import APPLIES_TO, EFFECTS
