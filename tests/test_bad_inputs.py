@@ -312,6 +312,13 @@ def test_escape_sequences_in_files_never_reach_the_output(capsys, argv):
     assert "Larch Basin [/bold] (invented)" in out or "Look out" in out
 
 
+def test_escape_sequences_in_a_model_file_never_reach_model_show(capsys):
+    assert main(["model", "show", str(CORPUS / "model_escape_in_training.json")]) == 0
+    out = capsys.readouterr().out
+    assert "site: Larch Basin (invented)" in out and "history: history.csv" in out
+    assert not _CONTROL.findall(out.replace("\n", ""))
+
+
 def test_escape_sequences_never_reach_the_tick_pages(capsys, tmp_path):
     state = tmp_path / "state"
     status = main(["tick", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT,

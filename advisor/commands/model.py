@@ -130,6 +130,8 @@ def cmd_train(args: argparse.Namespace) -> int:
 # --- model show ----------------------------------------------------------------------------
 
 def cmd_model_show(args: argparse.Namespace) -> int:
+    from advisor.text import clean_text
+
     model = load_model(args.path)
     t = model.training
     lines = [f"site model {args.path} (schema {SCHEMA_VERSION})"]
@@ -158,5 +160,5 @@ def cmd_model_show(args: argparse.Namespace) -> int:
             lines.append(f"{METHOD_LABELS[method]}: (no metrics recorded)")
         lines.append("  p_usable = 1 / (1 + exp(-(intercept + Σ coefficient × term))):")
         lines.extend(_coefficient_lines(m))
-    print("\n".join(lines))
+    print(clean_text("\n".join(lines), keep_newlines=True))   # the training texts come from the file
     return 0

@@ -91,7 +91,9 @@ def _safe_backup(backup) -> bool:
 
 
 class Staged:
-    """Temp files written and fsynced in the state dir, renamed into place only by :meth:`commit`."""
+    """Temp files written and fsynced in the state dir, then backed up and journalled
+    (:meth:`journal`), renamed into place (:meth:`rename_all`) and committed (:meth:`commit`);
+    :meth:`roll_back` undoes the renames."""
 
     def __init__(self, state_dir: Path) -> None:
         self.state_dir = state_dir
@@ -288,11 +290,8 @@ def publish(state_dir: Path, files: dict[str, str], history_record: dict, histor
     try:
         warnings = append_line_locked(state_dir / HISTORY_FILE, line, StateDirError, "history",
                                       rotate_above=history_max_bytes, repair_partial=True)
-    except StateDirError as exc:
-        problems = _roll_back(state_dir, [(n, b, False) for n, b in reversed(staged.renamed)])
-        staged.renamed = []
-        staged.backups = {}
-        fsync_folder(state_dir)
+    except StateDirError as exc:   # no line for files that will not stand: they are put back
+        problems = staged.roll_back()
         raise StateDirError(exc.message, source=exc.source, hint=_after_rollback(problems)) from None
     staged.tidy()
     return warnings
