@@ -114,6 +114,7 @@ CASES = [
     ("rules_format_width.yaml", check_rules, 2, ":6:20: rule wide_message.message: bad format '>1000000' for "
      "'wind_mean_ms': format width 1000000 is above 40"),
     ("rules_format_precision.yaml", check_rules, 2, "format precision 99999 is above 12"),
+    ("rules_escape_in_key.yaml", check_rules, 2, ":7:5: rule fine: unknown key 'severity'"),
     # model files (check falls back to rules only with a note; `model show` refuses them)
     ("model_truncated.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "truncated json"),
     ("model_not_json.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "invalid json"),
@@ -310,6 +311,15 @@ def test_escape_sequences_in_files_never_reach_the_output(capsys, argv):
     assert status in (0, 10, 11, 12), err
     assert not _CONTROL.findall(out.replace("\n", "")) and not _CONTROL.findall(err.replace("\n", ""))
     assert "Larch Basin [/bold] (invented)" in out or "Look out" in out
+
+
+def test_escape_sequences_in_a_rule_file_never_reach_lint_or_show(capsys):
+    rules = str(CORPUS / "rules_escape_in_message.yaml")
+    for argv in (["rules", "lint", str(CORPUS / "rules_escape_in_key.yaml")], ["rules", "show", "--rules", rules],
+                 ["rules", "lint", rules]):
+        main(argv)
+        out, err = capsys.readouterr()
+        assert not _CONTROL.findall((out + err).replace("\n", "")), argv
 
 
 def test_escape_sequences_in_a_model_file_never_reach_model_show(capsys):

@@ -49,7 +49,7 @@ from advisor.rules.ruleset import (
     message_fields,
 )
 from advisor.rules.thresholds import threshold_findings
-from advisor.text import shorten
+from advisor.text import clean_text, shorten
 from advisor.vocabulary import APPLIES_TO, EFFECTS
 
 __all__ = ["Problem", "LintReport", "Field", "ValueLint", "did_you_mean", "close_match", "sorted_problems"]
@@ -82,7 +82,7 @@ class Problem:
         if self.hint:
             text = f"{text} ({self.hint})"
         loc = self.location()
-        return " ".join(f"{loc + ': ' if loc else ''}{self.severity}: {text}".split())
+        return " ".join(clean_text(f"{loc + ': ' if loc else ''}{self.severity}: {text}").split())
 
 
 @dataclass(frozen=True)
