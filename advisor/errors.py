@@ -100,3 +100,8 @@ class ModelError(AdvisorError):
 
 class InsufficientData(AdvisorError):
     """Input is well formed but too little or too poor to support a call (exit 12)."""
+
+
+def internal_error_text(exc: BaseException) -> str:
+    """``Type: message`` of an unexpected exception on one line: no control characters, elided if long."""
+    return shorten(" ".join(clean_text(f"{type(exc).__name__}: {exc}").split()), 300)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import hashlib
 import os
+import re
 import signal
 from pathlib import Path
 
@@ -119,6 +120,10 @@ CASES = [
     ("rules_empty.yaml", check_rules, 2, "rule file is empty (a truncated or unsaved file looks the same"),
     ("rules_huge_number.yaml", check_rules, 2, ":6:15: number 111111111111…111111 (400 digits) is too large"),
     ("rules_utf16.yaml", check_rules, 2, "rule file is utf-16 text"),
+    ("rules_format_width.yaml", check_rules, 2, ":6:20: rule wide_message.message: bad format '>1000000' for "
+     "'wind_mean_ms': format width 1000000 is above 40"),
+    ("rules_format_precision.yaml", check_rules, 2, "format precision 99999 is above 12"),
+    ("rules_escape_in_key.yaml", check_rules, 2, ":7:5: rule fine: unknown key 'severity'"),
     # model files (check falls back to rules only with a note; `model show` refuses them)
     ("model_truncated.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "truncated json"),
     ("model_not_json.json", lambda n: ["model", "show", str(CORPUS / n)], 2, "invalid json"),
@@ -146,10 +151,20 @@ ARG_CASES = [
     (["check", "--freq", "eighty-six"], "cannot read frequency"),
     (["check", "--at", "yesterday-ish"], "cannot read time"),
     (["check", "--at", "2026-01-15T09:00"], "--at"),
-    (["check", "--at", "9999-12-31T23:59:59Z"], "--at"),
-    (["check", "--at", "2300-01-01T00:00:00Z"], "--at"),
-    (["check", "--at", "1768534260000"], "--at"),
-    (["check", "--at", "2026-01-16T03:3Z"], "--at"),
+    (["check", "--at", "9999-12-31T23:59:59Z"], "--at: time '9999-12-31T23:59:59Z' is outside the years 1900..2199"),
+    (["check", "--at", "2300-01-01T00:00:00Z"], "--at: time '2300-01-01T00:00:00Z' is outside the years"),
+    (["check", "--at", "1768534260000"], "--at: '1768534260000' is a number, not a time (as epoch milliseconds it "
+                                         "would be 2026-01-16T03:31:00Z)"),
+    (["check", "--at", "1768534260"], "as epoch seconds it would be 2026-01-16T03:31:00Z"),
+    (["check", "--at", "2026-01-16T03:3Z"], "--at: timestamp '2026-01-16T03:3Z' is incomplete"),
+    (["check", "--at", "2026-01-16T03:30:00+5:30"], "--at: UTC offset '+5:30' of timestamp"),
+    (["check", "--at", "2026-01-16"], "--at: timestamp '2026-01-16' has a date but no time of day"),
+    (["replay", "--feed", "x.csv", "--from", "2026-01-16T03:30:00 UTC"], "--from: timestamp '2026-01-16T03:30:00 "
+                                                                           "UTC' names its zone as 'UTC'"),
+    (["tick", "--state-dir", "/x" * 3000], "above the system's limit"),
+    (["tick", "--state-dir", "/tmp/" + "/".join(["d" * 200] * 20) + "/" + "x" * 35],
+     "--state-dir: the state dir path is 4,060 bytes long"),
+    (["tick", "--state-dir", "state\0dir"], "the state dir path contains a NUL character"),
     (["check", "--no-such-option"], "unrecognized arguments"),
     (["no-such-command"], "invalid choice"),
     (["reference", "add", "--references", "/tmp/x.csv", "--time", "soon", "--air-temp-c", "1"], "--time"),
@@ -190,7 +205,8 @@ def test_bad_input_gives_one_clear_line(capsys, tmp_path, monkeypatch, name, arg
     assert not PWNED.exists()                   # no code ran
 
 
-@pytest.mark.parametrize("argv, phrase", ARG_CASES, ids=[" ".join(a) for a, _ in ARG_CASES])
+@pytest.mark.parametrize("argv, phrase", ARG_CASES,
+                         ids=[" ".join(a)[:70].replace("\0", "\\0") for a, _ in ARG_CASES])
 def test_bad_arguments_give_one_line_exit_2(capsys, argv, phrase):
     with pytest.raises(SystemExit) if argv[0] == "no-such-command" or "--no-such-option" in argv else _null():
         status = main(argv)
@@ -284,3 +300,126 @@ def test_special_files_and_impossible_paths_give_one_line_without_blocking(capsy
 
 def _hung(*_):
     raise AssertionError("the command blocked on a pipe or device")
+
+
+# --- text from files that reaches a terminal or mail ---------------------------------------
+
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+
+
+@pytest.mark.parametrize("argv", [
+    ["check", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT],
+    ["check", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT, "--json"],
+    ["check", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml"), "--details"],
+    ["check", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml"), "--json"],
+    ["rules", "explain", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml")],
+], ids=["site-plain", "site-json", "rule-plain", "rule-json", "rules-explain"])
+def test_escape_sequences_in_files_never_reach_the_output(capsys, argv):
+    status = main(argv)
+    out, err = capsys.readouterr()
+    assert status in (0, 10, 11, 12), err
+    assert not _CONTROL.findall(out.replace("\n", "")) and not _CONTROL.findall(err.replace("\n", ""))
+    assert "Larch Basin [/bold] (invented)" in out or "Look out" in out
+
+
+def test_escape_sequences_in_a_rule_file_never_reach_lint_or_show(capsys):
+    rules = str(CORPUS / "rules_escape_in_message.yaml")
+    for argv in (["rules", "lint", str(CORPUS / "rules_escape_in_key.yaml")], ["rules", "show", "--rules", rules],
+                 ["rules", "lint", rules]):
+        main(argv)
+        out, err = capsys.readouterr()
+        assert not _CONTROL.findall((out + err).replace("\n", "")), argv
+
+
+def test_escape_sequences_in_a_model_file_never_reach_model_show(capsys):
+    assert main(["model", "show", str(CORPUS / "model_escape_in_training.json")]) == 0
+    out = capsys.readouterr().out
+    assert "site: Larch Basin (invented)" in out and "history: history.csv" in out
+    assert not _CONTROL.findall(out.replace("\n", ""))
+
+
+def test_escape_sequences_never_reach_the_tick_pages(capsys, tmp_path):
+    state = tmp_path / "state"
+    status = main(["tick", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT,
+                   "--rules", str(CORPUS / "rules_escape_in_message.yaml"), "--state-dir", str(state)])
+    out, err = capsys.readouterr()
+    assert status in (0, 10, 11, 12), err
+    for text in [out, *((state / n).read_text() for n in ("advisory.txt", "advisory.json", "advisory.html"))]:
+        assert not _CONTROL.findall(text.replace("\n", ""))
+    assert "Larch Basin [/bold] (invented)" in (state / "advisory.html").read_text()
+
+
+# --- model arithmetic ------------------------------------------------------------------------
+
+def test_a_model_that_overflows_leaves_the_call_to_the_rules_and_says_so(capsys, tmp_path):
+    import json
+
+    from .test_tick import make_site
+
+    site = make_site(tmp_path)             # three hours of feed: every input of the model is there
+    argv = ["check", "--site", str(site), "--at", AT, "--json"]
+    status = main([*argv, "--model", str(CORPUS / "model_overflow.json")])
+    out, err = capsys.readouterr()
+    doc = json.loads(out)
+    assert err == ""                                        # no numpy warnings
+    assert status == main([*argv, "--model", "none"]) and all(c["p_usable"] is None for c in doc["candidates"].values())
+    notes = [r["message"] for r in doc["reasons"] if r["rule"].startswith("model.")]
+    assert notes and all("arithmetic failed (overflow) for these inputs: rules only" in n for n in notes)
+    capsys.readouterr()
+    assert main(["model", "show", str(CORPUS / "model_overflow.json")]) == 0
+    assert "Warning" not in capsys.readouterr().err
+
+
+# --- tick: bad input never leaves an old scan standing ----------------------------------------
+
+@pytest.mark.parametrize("option, name, status", [
+    ("--site", "site_syntax_error.yaml", 2),
+    ("--rules", "rules_syntax_error.yaml", 2),
+    ("--rules", "rules_format_width.yaml", 2),
+    ("--references", "refs_bad_time.csv", 2),
+    ("--feed", "feed_epoch_ms.csv", 12),
+    ("--feed", "feed_binary.csv", 12),
+])
+def test_tick_on_bad_input_replaces_a_scan_with_an_undetermined_advisory(capsys, tmp_path, option, name, status):
+    import json
+
+    from .test_tick import make_site, tick_argv
+
+    site = make_site(tmp_path)
+    state = tmp_path / "state"
+    assert main(tick_argv(site, state)) == 0
+    assert json.loads((state / "advisory.json").read_text())["verdict"] == "scan"
+    capsys.readouterr()
+    argv = tick_argv(CORPUS / name if option == "--site" else site, state)
+    if option != "--site":
+        argv += [option, str(CORPUS / name)]
+    got = main(argv)
+    out, err = capsys.readouterr()
+    assert got == status, err
+    doc = json.loads((state / "advisory.json").read_text())
+    assert doc["verdict"] == "undetermined" and name in doc["reasons"][0]["message"]
+    if status == 2:
+        assert len(err.strip().splitlines()) == 1 and err.startswith("advisor: error: ") and name in err
+
+
+# --- a 10 GB feed ----------------------------------------------------------------------------
+
+def test_check_on_a_ten_gigabyte_sparse_feed_reads_its_tail_and_finishes(capsys, tmp_path):
+    """Most of the file is a hole: check reads the end only and counts no lines (no timing here)."""
+    feed = tmp_path / "huge.csv"
+    head = "time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n" + "".join(
+        f"2026-01-10T00:{m:02d}:00Z,1.5,2.5,2.0,70\n" for m in range(60)) * 4
+    tail = "".join(f"2026-01-16T{3 + m // 60:02d}:{m % 60:02d}:00Z,1.5,2.5,2.0,70\n" for m in range(61))
+    with feed.open("wb") as fh:
+        fh.write(head.encode())
+        fh.seek(10 * 1024**3 - len(tail))
+        fh.write(tail.encode())
+    status = main(["check", "--feed", str(feed), "--at", AT])
+    out, err = capsys.readouterr()
+    assert status in (0, 10, 11, 12) and "VERDICT" in out, err
+    hole = tmp_path / "hole.csv"
+    with hole.open("wb") as fh:
+        fh.truncate(10 * 1024**3)
+    status = main(["check", "--feed", str(hole), "--at", AT])
+    out, err = capsys.readouterr()
+    assert status == 2 and out == "" and len(err.strip().splitlines()) == 1 and "hole.csv" in err

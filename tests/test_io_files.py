@@ -21,10 +21,10 @@ import pytest
 from advisor.commands.main import main
 from advisor.errors import AdvisorError, FeedError, RegistryError, RulesError, SiteError, UsageError
 from advisor.io import fileio
+from advisor.io.appendfile import append_line_locked
 from advisor.io.fileio import (
     KINDS,
     FileKind,
-    append_line_locked,
     check_path,
     decode_text,
     locked,

@@ -112,8 +112,8 @@ def test_first_tick_writes_every_file_and_announces(capsys, site, state):
     assert line["verdict"] == "scan" and line["change"] == "first" and line["issued_utc"] == doc["issued_utc"]
     st = json.loads((state / "state.json").read_text())
     assert st["verdict"] == "scan" and st["issued_utc"] == doc["issued_utc"]
-    assert sorted(p.name for p in state.iterdir()) == [
-        "advisory.html", "advisory.json", "advisory.txt", "history.jsonl", "lock", "state.json"]
+    assert sorted(p.name for p in state.iterdir()) == [   # .history.jsonl.lock: the history writers' lock
+        ".history.jsonl.lock", "advisory.html", "advisory.json", "advisory.txt", "history.jsonl", "lock", "state.json"]
 
 
 def test_unchanged_verdict_is_silent_and_keeps_changed_since(capsys, site, state):
@@ -347,7 +347,8 @@ def test_bad_tick_section_is_a_one_line_site_error(capsys, tmp_path, state, sect
     site = make_site(tmp_path, tick=section)
     status, out, err = tick(capsys, site, state)
     assert status == 2 and err.startswith("advisor: error: ") and expected in err and err.count("\n") == 1
-    assert not state.exists() or not (state / "advisory.json").exists()
+    doc = json.loads((state / "advisory.json").read_text())   # never an old call left standing
+    assert doc["verdict"] == "undetermined" and expected in doc["reasons"][0]["message"]
 
 
 def test_relative_notify_program_is_resolved_against_the_site_folder(tmp_path):

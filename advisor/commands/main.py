@@ -20,7 +20,7 @@ from typing import NamedTuple
 
 from advisor import __version__
 from advisor.commands.helpformat import EXIT_HELP, HelpFormatter
-from advisor.errors import AdvisorError, InsufficientData
+from advisor.errors import AdvisorError, InsufficientData, internal_error_text
 
 
 class Command(NamedTuple):
@@ -104,7 +104,7 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # pragma: no cover - the last line of defence
         if os.environ.get("ADVISOR_DEBUG"):
             raise
-        print(f"advisor: internal error: {type(exc).__name__}: {exc} (set ADVISOR_DEBUG=1 for a traceback)",
+        print(f"advisor: internal error: {internal_error_text(exc)} (set ADVISOR_DEBUG=1 for a traceback)",
               file=sys.stderr)
         return 1
 

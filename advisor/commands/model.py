@@ -266,6 +266,8 @@ def _say_how_to_use(args, out: Path, change) -> None:
 # --- model show ----------------------------------------------------------------------------
 
 def cmd_model_show(args: argparse.Namespace) -> int:
+    from advisor.text import clean_text
+
     model = load_model(args.path)
     t = model.training
     lines = [f"site model {args.path} (schema {SCHEMA_VERSION})"]
@@ -306,5 +308,5 @@ def cmd_model_show(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise UsageError(f"cannot write {args.svg}: {exc.strerror}", field="--svg") from None
         lines += ["", f"wrote {args.svg}: reliability diagram and the effect of each term"]
-    print("\n".join(lines))
+    print(clean_text("\n".join(lines), keep_newlines=True))   # the training texts come from the file
     return 0

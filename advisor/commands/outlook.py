@@ -108,8 +108,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
                               odds=inputs.odds, min_duration_min=min_dur, source=" + ".join(sources))
     quality = feed.quality.as_dict()
     quality["source"] = feed.source
-    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=" + ".join(sources),
-                  is_demo=inputs.is_demo, data_quality=quality, notes=inputs.notes)
+    ctx = session.make_context(site, " + ".join(sources), inputs.is_demo, quality, notes=inputs.notes)
 
     svg_text = outlook_svg(outlook, ctx) if svg is not None else None
     if args.json:

@@ -27,6 +27,7 @@ from advisor.rules.condition import (Call, Compare, Convert, Name, Node, Number,
                                      names_in)
 from advisor.rules.loader import lint_files
 from advisor.rules.ruleset import RuleSet
+from advisor.text import clean_text
 from advisor.vocabulary import DEMO_BANNER, METHODS, VERDICT
 
 #: How a unit of the catalogue is shown next to a number.
@@ -63,6 +64,7 @@ class _Out:
         self.width = shutil.get_terminal_size((100, 24)).columns if tty else None
 
     def line(self, text: str = "", indent: int | None = None) -> None:
+        text = clean_text(text, keep_tabs=True)      # ids, paths and messages come from files
         if self.width is None or len(text) <= self.width:
             print(text)
             return

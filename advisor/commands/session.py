@@ -42,8 +42,9 @@ import pandas as pd
 from advisor.errors import AdvisorError, FeedError, ModelError, UsageError
 from advisor.io.bundled import is_demo_file
 from advisor.io.feed import CHECK_TAIL_BYTES, Feed, FeedQuality, read_feed
-from advisor.io.references import Registry, parse_time_utc, read_registry
+from advisor.io.references import Registry, read_registry
 from advisor.io.site import FeedLayout, Site, load_site
+from advisor.io.times import parse_time_arg
 
 if TYPE_CHECKING:
     from advisor.decision import Call, Decisions
@@ -130,25 +131,50 @@ class TimeOption:
         return pd.Timestamp(dt.datetime.combine(day, dt.time(0), tzinfo=zone)).tz_convert("UTC")
 
 
+_WORDS_HINT = "; or now, today, yesterday"
+_CUT_SHORT = "the line may have been cut short while it was written; "   # said for a file's line
+_EPOCH = re.compile(r"[+-]?\d+(?:\.\d*)?")
+
+
 def parse_time(text: str | None, field: str) -> TimeOption | None:
     """A time option (``--at``, ``--from``, ``--to``, ``--time``); ``None`` stays None.
 
-    Accepts ISO 8601 with ``Z`` or an offset, ``now``, ``today`` or ``yesterday``; anything else
-    is a :class:`UsageError` naming ``field``.
+    Accepts ISO 8601 with ``Z`` or an offset (read strictly by
+    :func:`advisor.io.times.parse_time_arg`: range-checked, ``+00`` and lower-case ``t``/``z``
+    allowed), ``now``, ``today`` or ``yesterday``; anything else is a :class:`UsageError` naming
+    ``field`` and saying what is wrong (a bare number names the epoch unit it looks like).
     """
     if text is None:
         return None
     word = str(text).strip().lower()
-    if word == "now":
-        return TimeOption(field, text, instant_utc=pd.Timestamp.now(tz="UTC"))
     if word in DAY_WORDS:
         return TimeOption(field, text, days_back=DAY_WORDS[word])
+    if _EPOCH.fullmatch(word):
+        what, hint = _epoch_message(word)
+        raise UsageError(what, field=field, hint=hint)
     try:
-        return TimeOption(field, text, instant_utc=parse_time_utc(text))
-    except Exception:  # noqa: BLE001 - pandas raises several types for garbage
-        raise UsageError(f"cannot read time {text!r}", field=field,
-                         hint="write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z, "
-                              "or now, today, yesterday") from None
+        return TimeOption(field, text, instant_utc=parse_time_arg(text, field))
+    except UsageError as exc:  # an option was typed, not cut short while being written
+        hint = (exc.hint or "").replace(_CUT_SHORT, "")
+        if "ISO 8601" in hint:
+            hint += _WORDS_HINT
+        exc.hint = hint or None
+        raise
+
+
+def _epoch_message(text: str) -> tuple[str, str]:
+    """``(what, hint)`` for a bare number given as a time: name the epoch unit it looks like, if any."""
+    from advisor.io.times import TIME_RANGE_UTC
+
+    digits = len(text.lstrip("+-").split(".")[0])
+    value = float(text) if digits < 40 else float("inf")
+    lo, hi = (t.value / 1e9 for t in TIME_RANGE_UTC)
+    for unit, seconds, width in (("seconds", value, (9, 10)), ("milliseconds", value / 1e3, (12, 13))):
+        if width[0] <= digits <= width[1] and lo <= seconds < hi:
+            iso = pd.Timestamp(seconds, unit="s", tz="UTC").strftime("%Y-%m-%dT%H:%M:%SZ")
+            return (f"{text!r} is a number, not a time (as epoch {unit} it would be {iso})",
+                    f"write the time in ISO 8601, e.g. {iso}")
+    return f"{text!r} is a number, not a time", "write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z"
 
 
 def time_help(what: str) -> str:
@@ -543,6 +569,23 @@ def with_site_forecast(inputs: Inputs, request: Request, notes: list[str],
     return combine_frames(feed.frame, fc.frame), fc.source
 
 
+def make_context(site: Site, feed_source: str, is_demo: bool, data_quality: dict,
+                 next_window: dict | None = None, notes=(), look_ahead: dict | None = None) -> Context:
+    """The rendering context of a result, with every text from a file or argument made safe to print.
+
+    Site names, feed paths, notes (which may quote a file) and the data-quality texts pass
+    through :func:`advisor.text.clean_text`: no escape sequence or control character from a
+    file reaches a terminal, a page or cron mail.
+    """
+    from advisor.text import clean_text
+    from advisor.views.context import Context
+
+    quality = {k: clean_text(v) if isinstance(v, str) else v for k, v in data_quality.items()}
+    return Context(site_name=clean_text(site.name), time_zone=site.time_zone, feed_source=clean_text(feed_source),
+                   is_demo=is_demo, data_quality=quality, next_window=next_window,
+                   notes=tuple(clean_text(n) for n in notes), look_ahead=look_ahead)
+
+
 def run_check(request: Request) -> CheckResult:
     """Load the inputs, evaluate at the evaluation time and explain (``check``, ``tick``, ``rules explain``).
 
@@ -550,7 +593,6 @@ def run_check(request: Request) -> CheckResult:
     until when a postpone lasts and how long a correction holds.
     """
     from advisor.evaluation.instant import evaluate_instant
-    from advisor.views.context import Context
     from advisor.vocabulary import EXIT_CODES
 
     inputs = load_inputs(request, read="tail")
@@ -565,10 +607,9 @@ def run_check(request: Request) -> CheckResult:
     postpone = (instant.look_ahead or {}).get("postpone") or {}
     if postpone and postpone.get("until") != "window":     # no next-window line says until when: a note does
         notes.extend(r.message for r in instant.call.reasons if r.rule == "postpone.until")
-    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone,
-                  feed_source=feed.source + (f" + {forecast_source}" if forecast_source else ""),
-                  is_demo=inputs.is_demo, data_quality=_quality(inputs, instant.call),
-                  next_window=instant.next_window, notes=tuple(notes), look_ahead=instant.look_ahead)
+    ctx = make_context(inputs.site, feed.source + (f" + {forecast_source}" if forecast_source else ""),
+                       inputs.is_demo, _quality(inputs, instant.call), instant.next_window, notes,
+                       look_ahead=instant.look_ahead)
     return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)
 
 
@@ -590,7 +631,6 @@ def check_without_feed(request: Request, error: AdvisorError) -> CheckResult:
     command); the site model is not consulted, since there is no weather to give odds on.
     """
     from advisor.evaluation.instant import evaluate_without_weather
-    from advisor.views.context import Context
     from advisor.vocabulary import EXIT_CODES
 
     located = load_inputs(request, read=None, with_model=False)
@@ -602,6 +642,5 @@ def check_without_feed(request: Request, error: AdvisorError) -> CheckResult:
                                        inputs.freq_ghz, f"The weather feed cannot be read: {error.one_line()}")
     quality = feed.quality.as_dict()
     quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
-    ctx = Context(site_name=inputs.site.name, time_zone=inputs.site.time_zone, feed_source=source, is_demo=False,
-                  data_quality=quality, notes=())
+    ctx = make_context(inputs.site, source, False, quality)
     return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)

@@ -20,6 +20,7 @@ from advisor.evaluation.lookahead import look_ahead
 from advisor.io.references import Registry
 from advisor.io.site import Site
 from advisor.rules.ruleset import RuleSet
+from advisor.text import clean_text
 
 
 @dataclass(frozen=True)
@@ -33,6 +34,15 @@ class Instant:
     look_ahead: dict | None = None  # check --json's look_ahead object (None without weather)
 
 
+def safe_call(call: Call) -> Call:
+    """``call`` with every text that may quote a file (rule messages, calibrator names, the headline)
+    passed through :func:`advisor.text.clean_text`: nothing printed from it carries a terminal
+    escape sequence or control character."""
+    reasons = [replace(r, message=clean_text(r.message)) for r in call.reasons]
+    return replace(call, reasons=reasons, headline=clean_text(call.headline),
+                   calibrator_name=clean_text(call.calibrator_name))
+
+
 def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry, rules: RuleSet,
                      freq_ghz: float, odds: OddsFunction | None = None,
                      forecast_source: str | None = None) -> Instant:
@@ -44,7 +54,7 @@ def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, regi
     """
     observed = frame[(frame["kind"] == "observed") & (frame["time"] <= at_utc)]
     decisions = evaluate(observed, pd.DatetimeIndex([at_utc]), site, registry, rules, freq_ghz, odds)
-    call = _named_data_problems(explain(decisions, 0), decisions, observed, site)
+    call = safe_call(_named_data_problems(explain(decisions, 0), decisions, observed, site))
     next_window = None
     hindsight = False
     if int((frame["time"] > at_utc).sum()) >= 2:
@@ -74,7 +84,7 @@ def evaluate_without_weather(empty_frame: pd.DataFrame, at_utc: pd.Timestamp, si
     call = explain(decisions, 0)
     reason = Reason("feed", "both", "block", why)
     call = replace(call, reasons=[reason] + [r for r in call.reasons if r.rule != "data"])
-    return Instant(decisions, call, None, False)
+    return Instant(decisions, safe_call(call), None, False)
 
 
 def _named_data_problems(call: Call, decisions: Decisions, observed: pd.DataFrame, site: Site) -> Call:

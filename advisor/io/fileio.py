@@ -8,7 +8,6 @@
     with locked(path, RegistryError):  # exclusive flock on a sidecar '.NAME.lock'
         ...read, modify, atomic_write_text...
     update_text_locked(path, change, RegistryError, "registry")  # the same in one call
-    append_line_locked(path, line, HistoryError)                 # one whole line, under the lock
     refuse_overwrite(out_path, {"--feed": feed_path}, "--csv")   # an output must not be an input
 
 Every file is checked before a byte of it is read: the path must be text without NUL and
@@ -39,7 +38,7 @@ from advisor.errors import AdvisorError, UsageError
 from advisor.io.encoding import decode_text, encoding_error, repeated_csv_column, sniff_encoding_problem
 
 __all__ = [
-    "KINDS", "FileKind", "append_line_locked", "atomic_write_text", "check_path", "decode_text", "encoding_error",
+    "KINDS", "FileKind", "atomic_write_text", "check_path", "decode_text", "encoding_error",
     "fsync_folder", "lock_path", "locked", "open_regular", "read_bytes_bounded", "read_text_bounded",
     "refuse_overwrite", "repeated_csv_column", "sniff_encoding_problem", "stat_regular",
     "update_text_locked",
@@ -356,33 +355,6 @@ def update_text_locked(path: Path | str, change: Callable[[str | None], str], er
             raise error_type(f"cannot write the {spec.what}: {exc.strerror}", source=str(path),
                              hint="check the folder is writable and the disk is not full") from None
     return new
-
-
-def append_line_locked(path: Path | str, line: str, error_type: type[AdvisorError], what: str = "file",
-                       wait_s: float = LOCK_WAIT_S) -> None:
-    """Append one whole line (a newline is added if missing) to ``path`` under :func:`locked`, fsynced.
-
-    The line is written with a single ``write`` on an ``O_APPEND`` descriptor; an existing
-    path that is not a regular file is refused.
-    """
-    data = (line if line.endswith("\n") else line + "\n").encode("utf-8")
-    with locked(path, error_type, what, wait_s):
-        try:
-            fd = os.open(path, os.O_WRONLY | os.O_APPEND | os.O_CREAT | os.O_CLOEXEC | os.O_NONBLOCK, 0o666)
-        except OSError as exc:
-            raise _os_error(exc, error_type, what, str(path)) from None
-        try:
-            _refuse_special(os.fstat(fd).st_mode, error_type, what, str(path))
-            view = memoryview(data)
-            while view:
-                written = os.write(fd, view)
-                view = view[written:]
-            os.fsync(fd)
-        except OSError as exc:
-            raise error_type(f"cannot append to the {what}: {exc.strerror}", source=str(path),
-                             hint="check the disk is not full and the file is writable") from None
-        finally:
-            os.close(fd)
 
 
 # --- outputs that would destroy inputs ----------------------------------------------------

@@ -327,7 +327,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     r.section((), {"site", "feed", "references", "rules", "model", "history", "methods", "thresholds", "calibrators",
                    "tick", "forecast", "atmosphere", "session", "structure"})
     r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
-    name = r.text(("site", "name"), required=True)
+    name = clean_text(r.text(("site", "name"), required=True))   # shown on terminals, pages and mail
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
     lon = r.number(("site", "longitude_deg"), lo=-180, hi=180, required=True)
     elev = r.number(("site", "elevation_m"), default=0.0, lo=-500, hi=9000)
@@ -376,7 +376,7 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     for i, _ in enumerate(cal_list):
         cpath = ("calibrators", i)
         r.section(cpath, {"name", "ra", "dec"}, required=True)
-        cname = r.text(cpath + ("name",), required=True)
+        cname = clean_text(r.text(cpath + ("name",), required=True))
         try:
             ra = parse_ra_deg(r.get_raw(cpath + ("ra",)))
         except ValueError as exc:

@@ -147,9 +147,9 @@ def describe_bad_time(text: object) -> tuple[str, str]:
         return "empty timestamp", "every row needs a time"
     if len(t) > MAX_TIME_CHARS:
         return f"timestamp {shown} is {len(t)} characters long, not a time", ISO_HINT
-    if re.fullmatch(r"\d{4}-\d\d-\d\d", t):
+    if re.fullmatch(r"\d{4}-\d\d-\d\d(?:[Zz]|[+-]\d\d(?::?\d\d)?)?", t):
         return f"timestamp {shown} has a date but no time of day", ISO_HINT
-    if _fits(t, _SHAPE[:16]):
+    if _fits(t, _SHAPE[:16]) or (len(t) > 10 and _fits(re.sub(r"(?:[Zz]|[+-]\d\d(?::?\d\d)?)$", "", t), _SHAPE)):
         return f"timestamp {shown} is incomplete", cut_hint
     m = _FULL.match(t)
     if m:

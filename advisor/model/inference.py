@@ -172,15 +172,20 @@ class MethodModel:
         return (terms - self.mean) / self.scale * self.coef
 
     def predict(self, features: pd.DataFrame) -> np.ndarray:
-        """``p_usable`` per row; NaN where an input feature is missing."""
-        logit = self.intercept + self.contributions(term_matrix(features, self.terms)).sum(axis=1)
-        with np.errstate(over="ignore"):
-            return 1.0 / (1.0 + np.exp(-logit))
+        """``p_usable`` per row; NaN where an input feature is missing or the arithmetic overflows.
+
+        A log-odds that is not a finite number (an overflow to ±inf, or inf - inf) gives NaN,
+        never a confident 0 or 1: the call then rests on the rules (see :class:`OddsNotes`).
+        """
+        with np.errstate(all="ignore"):
+            logit = self.intercept + self.contributions(term_matrix(features, self.terms)).sum(axis=1)
+            return np.where(np.isfinite(logit), 1.0 / (1.0 + np.exp(-logit)), np.nan)
 
     def plain_coefficients(self) -> tuple[float, np.ndarray]:
         """(intercept at all terms zero, log-odds per unit of each term) — the model in plain units."""
-        per_unit = self.coef / self.scale
-        return float(self.intercept - np.sum(per_unit * self.mean)), per_unit
+        with np.errstate(all="ignore"):  # a model that overflows shows inf / nan here, said as such
+            per_unit = self.coef / self.scale
+            return float(self.intercept - np.sum(per_unit * self.mean)), per_unit
 
 
 class ModelOdds(dict):
@@ -239,7 +244,10 @@ class OddsNotes(Sequence):
                  pushes: np.ndarray):
         self.method, self.p, self.feature_names = method, p, features
         self.values, self.pushes = values, pushes              # (n, n_features) each
-        order = np.argsort(-np.abs(np.nan_to_num(pushes)), axis=1, kind="stable")
+        # No odds although every input is there: the model's arithmetic overflowed.
+        self.failed = ~np.isfinite(p) & np.isfinite(values).all(axis=1)
+        with np.errstate(all="ignore"):
+            order = np.argsort(-np.abs(np.nan_to_num(pushes)), axis=1, kind="stable")
         self.order = order
 
     def __len__(self) -> int:
@@ -256,6 +264,9 @@ class OddsNotes(Sequence):
 
     def _text(self, i: int) -> str:
         label = METHOD_LABELS[self.method]
+        if self.failed[i]:
+            return (f"{label}: the site model's arithmetic failed (overflow) for these inputs: rules only "
+                    "(the call rests on the rules and the error budget).")
         if not np.isfinite(self.p[i]):
             missing = [self.feature_names[k] for k in range(len(self.feature_names)) if not np.isfinite(self.values[i, k])]
             return (f"{label}: site model gives no odds ({', '.join(missing) or 'inputs'} not available); "
@@ -290,9 +301,10 @@ class SiteModel:
         for method, m in self.methods.items():
             p = m.predict(features)
             names = list(dict.fromkeys(t.feature for t in m.terms))
-            contrib = m.contributions(term_matrix(features, m.terms))
-            pushes = np.column_stack([contrib[:, np.array([t.feature == f for t in m.terms])].sum(axis=1)
-                                      for f in names])
+            with np.errstate(all="ignore"):  # an overflow shows as p = NaN, said in the notes
+                contrib = m.contributions(term_matrix(features, m.terms))
+                pushes = np.column_stack([contrib[:, np.array([t.feature == f for t in m.terms])].sum(axis=1)
+                                          for f in names])
             values = np.column_stack([features[f].to_numpy(dtype=float) for f in names])
             outside = m.outside(features)
             term_values = np.column_stack([features[t.feature].to_numpy(dtype=float) for t in m.terms])

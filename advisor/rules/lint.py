@@ -28,8 +28,9 @@ from __future__ import annotations
 import difflib
 import math
 import re
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
-from typing import Any, Iterable, Mapping
+from typing import Any
 
 import yaml
 
@@ -39,8 +40,16 @@ from advisor.errors import ConditionError, RulesError
 from advisor.rules.compiler import Compiled, compile_condition, compile_expression
 from advisor.rules.interpret import evaluate_row
 from advisor.rules.nodes import Number
-from advisor.rules.ruleset import MESSAGE_EXTRAS, RuleSet, message_fields
+from advisor.rules.ruleset import (
+    MAX_FORMAT_PRECISION,
+    MAX_FORMAT_WIDTH,
+    MESSAGE_EXTRAS,
+    RuleSet,
+    format_spec_problem,
+    message_fields,
+)
 from advisor.rules.thresholds import threshold_findings
+from advisor.text import clean_text, shorten
 from advisor.vocabulary import APPLIES_TO, EFFECTS
 
 __all__ = ["Problem", "LintReport", "Field", "ValueLint", "did_you_mean", "close_match", "sorted_problems"]
@@ -73,7 +82,7 @@ class Problem:
         if self.hint:
             text = f"{text} ({self.hint})"
         loc = self.location()
-        return " ".join(f"{loc + ': ' if loc else ''}{self.severity}: {text}".split())
+        return " ".join(clean_text(f"{loc + ': ' if loc else ''}{self.severity}: {text}").split())
 
 
 @dataclass(frozen=True)
@@ -305,6 +314,12 @@ class ValueLint:
             if kind == "flag":
                 self.at_field("warning", f, rid, f"'{{{name}:{spec}}}' formats a flag, which is shown as yes/no",
                               f"write {{{name}}}", offset=offset)
+                continue
+            problem = format_spec_problem(spec)
+            if problem:
+                self.at_field("error", f, rid, f"bad format '{shorten(spec, 40)}' for '{name}': {problem}",
+                              f"a field at most {MAX_FORMAT_WIDTH} characters wide with at most "
+                              f"{MAX_FORMAT_PRECISION} decimals, e.g. .1f or >8.1f", offset=offset)
                 continue
             try:
                 format(_SAMPLE.get(kind, "text"), spec)

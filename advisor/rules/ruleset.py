@@ -27,9 +27,11 @@ import numpy as np
 
 from advisor.rules.compiler import Compiled
 from advisor.rules.nodes import Number, iter_nodes
+from advisor.text import clean_text, shorten
 
-__all__ = ["Rule", "RuleSet", "RuleEvaluation", "format_message", "message_fields",
-           "RULE_KEYS", "REQUIRED_KEYS", "MAX_RULES", "MESSAGE_EXTRAS"]
+__all__ = ["Rule", "RuleSet", "RuleEvaluation", "format_message", "format_spec_problem", "message_fields",
+           "RULE_KEYS", "REQUIRED_KEYS", "MAX_RULES", "MESSAGE_EXTRAS", "MAX_FORMAT_WIDTH",
+           "MAX_FORMAT_PRECISION", "MAX_MESSAGE_CHARS"]
 
 #: The keys a rule mapping may have.
 RULE_KEYS = ("id", "applies_to", "condition", "effect", "error_um", "message", "enabled")
@@ -43,6 +45,15 @@ MAX_LIMITS = 9
 LIMIT_FIELDS = ("limit", *(f"limit_{k}" for k in range(2, MAX_LIMITS + 1)))
 #: Non-feature values a message may name.
 MESSAGE_EXTRAS = ("calibrator_name", *LIMIT_FIELDS)
+#: Widest field and most digits after the point a message format may ask for (``{x:>8.1f}``):
+#: plenty for any figure, and a message can never print megabytes (lint refuses more).
+MAX_FORMAT_WIDTH = 40
+MAX_FORMAT_PRECISION = 12
+#: Longest filled message [characters]; a longer one is elided in the middle.
+MAX_MESSAGE_CHARS = 1000
+# [[fill]align][sign][z][#][0][width][grouping][.precision][type] (Python's format mini-language)
+_FORMAT_SPEC = re.compile(r"(?:.?[<>=^])?[-+ ]?z?#?0?(?P<width>\d*)[,_]?(?:\.(?P<precision>\d*))?[A-Za-z%]?",
+                          re.DOTALL)
 _UNIT_WORDS = (("delta_degC", "°C"), ("degC/h", "°C/h"), ("degC", "°C"), ("degF", "°F"), ("deg", "°"), ("um", "µm"))
 
 
@@ -155,8 +166,30 @@ def message_fields(template: str) -> list[str]:
     return names
 
 
+def format_spec_problem(spec: str) -> str | None:
+    """What is wrong with a message format's width or precision (``>1000000``, ``.500f``), or None.
+
+    Other faults of a specification are left to ``format`` itself.
+    """
+    m = _FORMAT_SPEC.fullmatch(spec or "")
+    if not m:
+        return None
+    for what, digits, most in (("width", m.group("width"), MAX_FORMAT_WIDTH),
+                               ("precision", m.group("precision"), MAX_FORMAT_PRECISION)):
+        if digits and (len(digits) > 4 or int(digits) > most):
+            shown = digits if len(digits) <= 12 else f"{digits[:6]}… ({len(digits)} digits)"
+            return f"format {what} {shown} is above {most}"
+    return None
+
+
 def format_message(template: str, row: Mapping[str, Any]) -> str:
-    """Fill a message template with one row's values; NaN → 'n/a', flags → yes/no."""
+    """Fill a message template with one row's values; NaN → 'n/a', flags → yes/no.
+
+    The result is safe to print: terminal control characters and escape sequences are removed
+    (:func:`advisor.text.clean_text`), a width or precision beyond :data:`MAX_FORMAT_WIDTH` /
+    :data:`MAX_FORMAT_PRECISION` (which lint refuses) is ignored, and the whole is at most
+    :data:`MAX_MESSAGE_CHARS` long.
+    """
     parts = []
     drop_unit = False
     for literal, name, spec, _ in string.Formatter().parse(template):
@@ -173,6 +206,8 @@ def format_message(template: str, row: Mapping[str, Any]) -> str:
             parts.append("n/a")
             drop_unit = True
         else:
+            if spec and format_spec_problem(spec):
+                spec = ""
             try:
                 text = format(value, spec or "")
                 if isinstance(value, (float, np.floating)) and text.startswith("-") and \
@@ -181,7 +216,7 @@ def format_message(template: str, row: Mapping[str, Any]) -> str:
                 parts.append(text)
             except (ValueError, TypeError):
                 parts.append(str(value))
-    return "".join(parts)
+    return shorten(clean_text("".join(parts)), MAX_MESSAGE_CHARS)
 
 
 _UNIT_AFTER_VALUE = re.compile(r"^ ?(?:[°µ%]\S{0,4}|[A-Za-z]{1,3}(?:/[A-Za-z0-9²]{1,3})?²?)(?=$|[\s,;:.)])")

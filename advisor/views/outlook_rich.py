@@ -97,7 +97,7 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
     parts.append(_folded(" ".join(CAUTIONS), inner, "dim italic", indent=""))
     return Panel(Group(*parts), title=f"advisor outlook · {fmt.freq_wave_text(outlook.freq_ghz)}", title_align="left",
                  border_style="blue",
-                 subtitle=feed_title(ctx.feed_source, width), subtitle_align="left", width=width)
+                 subtitle=Text(feed_title(ctx.feed_source, width)), subtitle_align="left", width=width)
 
 
 #: The SVG around rich's drawing: the text area only (no imitation window, no title bar) and

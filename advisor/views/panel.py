@@ -64,6 +64,6 @@ def render_panel(call: Call, ctx: Context, width: int = 80, height: int = 24, de
     body = [Text.assemble(*[(t, s) if s else t for t, s in line], no_wrap=True, overflow="ellipsis")
             for line in lines]
     verdict = VERDICT[call.verdict]
-    return Panel(Group(*body), title=f"advisor · {ctx.site_name}", title_align="left",
-                 border_style=verdict.style.split()[-1], subtitle=feed_title(ctx.feed_source, width),
+    return Panel(Group(*body), title=Text(f"advisor · {ctx.site_name}"), title_align="left",
+                 border_style=verdict.style.split()[-1], subtitle=Text(feed_title(ctx.feed_source, width)),
                  subtitle_align="left", width=width)
