@@ -18,15 +18,20 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from advisor.budget import (  # noqa: F401 (re-exported)
+    astronomical_surface_rms_um,
+    best_surface_rms_um,
+    laser_surface_rms_um,
+    mismatch_um_per_c,
+)
+from advisor.calibrator_choice import choose_calibrator
 from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, ROW_FEATURES, FeatureSpec  # noqa: F401 (re-exported)
 from advisor.io.references import Registry, reference_in_force
 from advisor.io.site import Site
 from advisor.physics.aperture import (
     beam_fwhm_arcsec,
-    gravity_residual_um,
     pointing_efficiency,
     required_surface_rms_um,
-    root_sum_square,
     wavelength_mm,
 )
 from advisor.physics.atmosphere import (
@@ -37,7 +42,6 @@ from advisor.physics.atmosphere import (
     transmission,
     water_vapour_density_from_dew_point_gm3,
 )
-from advisor.physics.laser import reference_mismatch_um_per_c
 from advisor.physics.moisture import (
     frost_point_from_dew_point_c,
     saturation_vapour_pressure_hpa,
@@ -51,7 +55,6 @@ from advisor.physics.sun import (
     solar_position,
     sun_state,
 )
-from advisor.physics.track import source_track, sun_separation_over_deg
 from advisor.vocabulary import METHODS
 
 #: Averaging period of the wind statistics for a feed of one sample a minute or faster [min].
@@ -69,16 +72,42 @@ FEATURES_VERSION = 3
 #: Every module whose code decides the row features.  A replay's feature cache hashes their
 #: source; tests/test_featurecache.py fails when the import closure of this module grows beyond it.
 FEATURE_SOURCE_MODULES = (
-    "advisor.features", "advisor.catalogue", "advisor.vocabulary", "advisor.io.sitemodel",
-    "advisor.units", "advisor.errors",
-    "advisor.physics.sun", "advisor.physics.sky", "advisor.physics.moisture", "advisor.physics.aperture",
-    "advisor.io.references", "advisor.io.site", "advisor.io.feed", "advisor.io.fileio", "advisor.io.yamlio",
-    "advisor.io.bundled", "advisor.physics.laser", "advisor.vocabulary", "advisor.physics.ephemeris",
-    "advisor.physics.atmosphere", "advisor.physics.absorption", "advisor.physics.p676_tables",
-    "advisor.physics.opacity", "advisor.physics.track",
-    "advisor.io.feedfile", "advisor.io.times", "advisor.io.encoding", "advisor.text",
-    "advisor.io.feedlayout", "advisor.io.feedtimes", "advisor.io.feedvalues", "advisor.io.sitereader",
+    "advisor.features",
+    "advisor.catalogue",
+    "advisor.vocabulary",
+    "advisor.io.sitemodel",
+    "advisor.units",
+    "advisor.errors",
+    "advisor.physics.sun",
+    "advisor.physics.sky",
+    "advisor.physics.moisture",
+    "advisor.physics.aperture",
+    "advisor.io.references",
+    "advisor.io.site",
+    "advisor.io.feed",
+    "advisor.io.fileio",
+    "advisor.io.yamlio",
+    "advisor.io.bundled",
+    "advisor.budget",
+    "advisor.calibrator_choice",
+    "advisor.physics.laser",
+    "advisor.vocabulary",
+    "advisor.physics.ephemeris",
+    "advisor.physics.atmosphere",
+    "advisor.physics.absorption",
+    "advisor.physics.p676_tables",
+    "advisor.physics.opacity",
+    "advisor.physics.track",
+    "advisor.io.feedfile",
+    "advisor.io.times",
+    "advisor.io.encoding",
+    "advisor.text",
+    "advisor.io.feedlayout",
+    "advisor.io.feedtimes",
+    "advisor.io.feedvalues",
+    "advisor.io.sitereader",
 )
+
 
 def _ns(times) -> np.ndarray:
     """Times (DatetimeIndex/Series/datetime64) → int64 nanoseconds since the epoch, UTC."""
@@ -136,7 +165,7 @@ def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
     t_ns = _ns(series.index)
     mean = np.full(len(series), np.nan)
     gust = np.full(len(series), np.nan)
-    for window_min in np.unique(wind_window):          # one pass per cadence (observed, forecast)
+    for window_min in np.unique(wind_window):  # one pass per cadence (observed, forecast)
         rows = wind_window == window_min
         window = pd.Timedelta(minutes=float(window_min))
         dt_prev = np.diff(t_ns, prepend=t_ns[0] - int(window_min * 6e10)) / 6e10
@@ -181,67 +210,28 @@ def moisture_features(air_temp_c, dew_point_c, rel_humidity_pct, visibility_m, s
     below = temp < 0.0
     with np.errstate(invalid="ignore"):
         frost = np.where(dew < 0.0, np.asarray(frost_point_from_dew_point_c(dew), dtype=float), dew)
-        rh_ice = np.where(below, 100.0 * np.asarray(saturation_vapour_pressure_hpa(dew))
-                          / np.asarray(saturation_vapour_pressure_ice_hpa(temp)), np.nan)
+        rh_ice = np.where(
+            below,
+            100.0
+            * np.asarray(saturation_vapour_pressure_hpa(dew))
+            / np.asarray(saturation_vapour_pressure_ice_hpa(temp)),
+            np.nan,
+        )
     dew_spread = temp - dew
     frost_spread = temp - frost
-    humid = np.where(below, (frost_spread < th.fog_spread_c) & (rh_ice >= th.fog_rel_humidity_pct),
-                     (dew_spread < th.fog_spread_c) & (np.asarray(rel_humidity_pct) >= th.fog_rel_humidity_pct))
-    return {"dew_point_spread_c": dew_spread, "below_freezing": below, "frost_point_c": frost,
-            "frost_point_spread_c": frost_spread, "rel_humidity_ice_pct": rh_ice,
-            "fog": humid | (np.asarray(visibility_m) < th.fog_visibility_m)}
-
-
-def choose_calibrator(times_index: pd.DatetimeIndex, site: Site, out: dict[str, np.ndarray]) -> pd.Categorical:
-    """The calibrator for a measurement starting at each time; fills the ``calibrator_*`` columns of ``out``.
-
-    A calibrator is eligible when it stays within the site's [min, max] elevation for the whole
-    measurement and never comes closer to the Sun than ``sun_avoidance_deg``.  Among the eligible
-    the one whose elevation halfway through is nearest the session's is chosen: holography corrects
-    the surface at the calibrator's elevation, the session uses it at its own, and gravity deforms
-    the dish in between (``calibrator_gravity_residual_um``).  Returns the names (a categorical
-    whose last category, ``""``, means none).
-    """
-    astro = site.astronomical
-    n = len(times_index)
-    names = list(dict.fromkeys([c.name for c in site.calibrators] + [""]))
-    if not site.calibrators:
-        for name in ("calibrator_elevation_deg", "calibrator_mid_elevation_deg", "calibrator_sun_separation_deg",
-                     "calibrators_sun_closest_deg", "calibrator_gravity_residual_um"):
-            out[name] = np.full(n, np.nan)
-        out["calibrator_minutes_up"] = np.zeros(n)
-        out["calibrators_sun_blocked"] = np.zeros(n)
-        out["calibrator_available"] = np.zeros(n, dtype=bool)
-        return pd.Categorical.from_codes(np.zeros(n, dtype=int), categories=[""])
-    name_code = np.array([names.index(c.name) for c in site.calibrators])
-    ra = np.array([c.ra_deg for c in site.calibrators])
-    dec = np.array([c.dec_deg for c in site.calibrators])
-    track = source_track(times_index, ra, dec, site.latitude_deg, site.longitude_deg, astro.duration_min,
-                         astro.min_calibrator_elevation_deg)
-    sun_sep = sun_separation_over_deg(times_index, ra, dec, astro.duration_min)
-    in_limits = ((track.lowest_elevation_deg >= astro.min_calibrator_elevation_deg)
-                 & (track.highest_elevation_deg <= astro.max_calibrator_elevation_deg))
-    clear_of_sun = sun_sep >= astro.sun_avoidance_deg
-    eligible = in_limits & clear_of_sun
-    session_el = site.session.elevation_deg
-    best = np.argmin(np.where(eligible, np.abs(track.mid_elevation_deg - session_el), np.inf), axis=1)
-    chosen = eligible.any(axis=1)
-    rows = np.arange(n)
-
-    def pick(values: np.ndarray, none: float = np.nan) -> np.ndarray:
-        return np.where(chosen, values[rows, best].astype(float), none)
-
-    out["calibrator_elevation_deg"] = pick(track.elevation_deg)
-    out["calibrator_mid_elevation_deg"] = pick(track.mid_elevation_deg)
-    out["calibrator_minutes_up"] = pick(track.minutes_above, 0.0)
-    out["calibrator_sun_separation_deg"] = pick(sun_sep)
-    out["calibrators_sun_blocked"] = (in_limits & ~clear_of_sun).sum(axis=1).astype(float)
-    out["calibrators_sun_closest_deg"] = np.where(in_limits, sun_sep, np.inf).min(axis=1)
-    out["calibrators_sun_closest_deg"][~in_limits.any(axis=1)] = np.nan
-    out["calibrator_available"] = chosen
-    out["calibrator_gravity_residual_um"] = np.asarray(gravity_residual_um(
-        out["calibrator_mid_elevation_deg"], session_el, astro.gravity_sin_um, astro.gravity_cos_um), dtype=float)
-    return pd.Categorical.from_codes(np.where(chosen, name_code[best], len(names) - 1), categories=names)
+    humid = np.where(
+        below,
+        (frost_spread < th.fog_spread_c) & (rh_ice >= th.fog_rel_humidity_pct),
+        (dew_spread < th.fog_spread_c) & (np.asarray(rel_humidity_pct) >= th.fog_rel_humidity_pct),
+    )
+    return {
+        "dew_point_spread_c": dew_spread,
+        "below_freezing": below,
+        "frost_point_c": frost,
+        "frost_point_spread_c": frost_spread,
+        "rel_humidity_ice_pct": rh_ice,
+        "fog": humid | (np.asarray(visibility_m) < th.fog_visibility_m),
+    }
 
 
 def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry) -> pd.DataFrame:
@@ -276,8 +266,15 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
             return np.full(n, np.nan)
         return np.where(has, values[safe], np.nan)
 
-    for name in ("air_temp_c", "rel_humidity_pct", "dew_point_c", "visibility_m", "precip_mm_h",
-                 "pressure_hpa", "solar_wm2"):
+    for name in (
+        "air_temp_c",
+        "rel_humidity_pct",
+        "dew_point_c",
+        "visibility_m",
+        "precip_mm_h",
+        "pressure_hpa",
+        "solar_wm2",
+    ):
         col = good[name].to_numpy(dtype=float) if name in good else np.array([])
         out[name] = take(col) if len(col) else np.full(n, np.nan)
     for name in ("wind_mean_ms", "wind_gust_ms", "air_temp_rate_c_per_h", "wind_window_min", "temp_rate_window_min"):
@@ -297,26 +294,36 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["data_ok"] = has & (age_min <= age_limit) & latest_ok & np.isfinite(out["wind_mean_ms"])
     # An optional sensor that was reporting and fell silent at the sample in use never allows a
     # scan (advisor.decision); one the station lacks, or reports now and then, is merely "not seen".
-    dropout_bits = good["q_bits_dropout"].to_numpy(dtype=np.int64) if "q_bits_dropout" in good else \
-        np.zeros(len(good), dtype=np.int64)
+    dropout_bits = (
+        good["q_bits_dropout"].to_numpy(dtype=np.int64)
+        if "q_bits_dropout" in good
+        else np.zeros(len(good), dtype=np.int64)
+    )
     dropout_bits = np.where(has, dropout_bits[safe], 0) if len(dropout_bits) else np.zeros(n, dtype=np.int64)
     out["input_dropout"] = dropout_bits != 0
 
     # --- moisture ------------------------------------------------------------------------
-    out.update(moisture_features(out["air_temp_c"], out["dew_point_c"], out["rel_humidity_pct"],
-                                 out["visibility_m"], site))
+    out.update(
+        moisture_features(out["air_temp_c"], out["dew_point_c"], out["rel_humidity_pct"], out["visibility_m"], site)
+    )
     out["precipitation"] = out["precip_mm_h"] >= th.precip_mm_h
-    out["water_vapour_density_gm3"] = np.asarray(water_vapour_density_from_dew_point_gm3(out["air_temp_c"],
-                                                                                         out["dew_point_c"]))
-    out["pwv_mm"] = np.asarray(precipitable_water_mm(out["water_vapour_density_gm3"],
-                                                     site.atmosphere.water_scale_height_km))
+    out["water_vapour_density_gm3"] = np.asarray(
+        water_vapour_density_from_dew_point_gm3(out["air_temp_c"], out["dew_point_c"])
+    )
+    out["pwv_mm"] = np.asarray(
+        precipitable_water_mm(out["water_vapour_density_gm3"], site.atmosphere.water_scale_height_km)
+    )
 
     # --- sun and thermal state -----------------------------------------------------------
     sun_el, sun_az = solar_position(times_index, site.latitude_deg, site.longitude_deg)
     out["sun_elevation_deg"] = np.asarray(sun_el, dtype=float)
     out["sun_azimuth_deg"] = np.asarray(sun_az, dtype=float)
-    out["hours_since_sunset"] = np.asarray(hours_since_sunset(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
-    out["hours_since_sunrise"] = np.asarray(hours_since_sunrise(times_index, site.latitude_deg, site.longitude_deg), dtype=float)
+    out["hours_since_sunset"] = np.asarray(
+        hours_since_sunset(times_index, site.latitude_deg, site.longitude_deg), dtype=float
+    )
+    out["hours_since_sunrise"] = np.asarray(
+        hours_since_sunrise(times_index, site.latitude_deg, site.longitude_deg), dtype=float
+    )
     # Night: the sun is below the standard altitude (the same crossing table as the event times, so
     # polar day and polar night are right); the elevation decides only for a time it cannot place.
     state = np.asarray(sun_state(times_index, site.latitude_deg, site.longitude_deg), dtype=np.int8).reshape(n)
@@ -324,8 +331,9 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["is_night"] = np.where(state != 0, state < 0, out["sun_elevation_deg"] < SUNRISE_SUNSET_ALTITUDE_DEG)
     # Fastest deformation while the sun rises or sets through the low band: not on a polar day or
     # night, when it stays up (or down) and its heating changes slowly.
-    out["sun_transition"] = ((out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0)
-                             & (np.abs(state) != 2))
+    out["sun_transition"] = (
+        (out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0) & (np.abs(state) != 2)
+    )
 
     # --- reference scan ------------------------------------------------------------------
     ref_ns, ref_temp = reference_in_force(registry, t_ns)
@@ -341,16 +349,19 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     out["reference_mismatch_um"] = mismatch_um_per_c(site) * out["reference_temp_delta_c"]
 
     # --- expected surface of each method (before rule error terms) ---------------------------
-    out["scan_surface_rms_um"] = laser_surface_rms_um(site, out["wind_gust_ms"], out["reference_age_h"],
-                                                      out["reference_temp_delta_c"])
-    out["astronomical_surface_rms_um"] = astronomical_surface_rms_um(site, out["wind_gust_ms"],
-                                                                     out["air_temp_rate_c_per_h"],
-                                                                     out["calibrator_gravity_residual_um"])
+    out["scan_surface_rms_um"] = laser_surface_rms_um(
+        site, out["wind_gust_ms"], out["reference_age_h"], out["reference_temp_delta_c"]
+    )
+    out["astronomical_surface_rms_um"] = astronomical_surface_rms_um(
+        site, out["wind_gust_ms"], out["air_temp_rate_c_per_h"], out["calibrator_gravity_residual_um"]
+    )
 
     columns: dict[str, object] = {"time": times_index}
     for name in ROW_FEATURES:
         values = out[name]
-        columns[name] = np.asarray(values, dtype=bool) if CATALOGUE[name].unit == "flag" else np.asarray(values, dtype=float)
+        columns[name] = (
+            np.asarray(values, dtype=bool) if CATALOGUE[name].unit == "flag" else np.asarray(values, dtype=float)
+        )
     columns["calibrator_name"] = cal_name
     good_rows = np.flatnonzero(good_mask)
     columns["source_row"] = np.where(has, good_rows[safe] if len(good_rows) else -1, -1).astype(np.int64)
@@ -359,8 +370,14 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     return pd.DataFrame(columns)
 
 
-def row_features_chunked(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site: Site, registry: Registry,
-                         chunk_rows: int = 100_000, on_chunk=None) -> pd.DataFrame:
+def row_features_chunked(
+    frame: pd.DataFrame,
+    times_utc: pd.DatetimeIndex,
+    site: Site,
+    registry: Registry,
+    chunk_rows: int = 100_000,
+    on_chunk=None,
+) -> pd.DataFrame:
     """:func:`row_features` in chunks of ``chunk_rows`` times, each with the feed rows it needs.
 
     Identical to one call over all times (each chunk gets :data:`LOOKBACK` of history before its
@@ -371,7 +388,7 @@ def row_features_chunked(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site:
     t_ns = _ns(times_utc)
     parts = []
     for start in range(0, len(t_ns), chunk_rows):
-        chunk = times_utc[start:start + chunk_rows]
+        chunk = times_utc[start : start + chunk_rows]
         lo = np.searchsorted(frame_ns, t_ns[start] - LOOKBACK.value, side="left")
         hi = np.searchsorted(frame_ns, t_ns[min(start + chunk_rows, len(t_ns)) - 1], side="right")
         part = row_features(frame.iloc[lo:hi], chunk, site, registry)
@@ -395,63 +412,6 @@ def feature_source_paths() -> list[Path]:
             raise ImportError(f"cannot locate the source of {name}")
         paths.append(Path(spec.origin))
     return paths
-
-
-def mismatch_um_per_c(site: Site) -> float:
-    """The laser's error per °C between the air now and at the reference scan [µm/°C].
-
-    The site's measured ``reference_mismatch_um_per_c`` when it gives one, else the air path and
-    mount figures through :func:`advisor.physics.laser.reference_mismatch_um_per_c`.
-    """
-    s = site.scan
-    if s.reference_mismatch_um_per_c is not None:
-        return float(s.reference_mismatch_um_per_c)
-    pressure = 1013.25 * np.exp(-site.elevation_m / 8400.0)  # isothermal scale height ~8.4 km
-    return reference_mismatch_um_per_c(s.air_path_m, s.refraction_compensated_fraction, s.mount_um_per_c,
-                                       pressure_hpa=pressure, temp_c=5.0)
-
-
-def laser_surface_rms_um(site: Site, wind_gust_ms, reference_age_h, reference_temp_delta_c) -> np.ndarray:
-    """Expected surface rms after a laser correction [µm]; NaN without a reference.
-
-    σ = √(σ_astro² + σ_scan² + σ_age²), with σ_scan = √(noise² + (k·gust²)²) (vibration grows with
-    wind pressure ∝ v²) and σ_age = √((ageing · age_days)² + (mismatch · |ΔT|)²): the surface the
-    reference scan was taken on, the scan's own error, and the reference's decay with age and
-    with the air-temperature difference (air path and mount, :func:`mismatch_um_per_c`).
-    Independent terms add in quadrature.
-    """
-    s = site.scan
-    gust = np.asarray(wind_gust_ms, dtype=float)
-    scan_term = root_sum_square(s.noise_um_at_calm, s.wind_term_um_per_ms2 * gust**2)
-    age_term = root_sum_square(s.reference_ageing_um_per_day * np.asarray(reference_age_h, dtype=float) / 24.0,
-                               mismatch_um_per_c(site) * np.asarray(reference_temp_delta_c, dtype=float))
-    return np.asarray(root_sum_square(site.astronomical.surface_rms_um, scan_term, age_term), dtype=float)
-
-
-def astronomical_surface_rms_um(site: Site, wind_gust_ms, air_temp_rate_c_per_h, gravity_residual_um=0.0) -> np.ndarray:
-    """Expected surface rms after an out-of-focus holography correction [µm].
-
-    σ = √(σ_astro² + (k·gust²)² + (drift · |dT/dt| · duration)² + σ_g²): the site's holography
-    figure, wind deformation during the measurement, thermal drift over its longer duration, and
-    the gravity residual σ_g of a correction made at the calibrator's elevation and used at the
-    session's (:func:`advisor.physics.aperture.gravity_residual_um`; 0 where no calibrator is
-    chosen, when the method is blocked anyway).  The laser scans at the session's elevation and
-    carries no such term.
-    """
-    a = site.astronomical
-    gust = np.asarray(wind_gust_ms, dtype=float)
-    rate = np.nan_to_num(np.abs(np.asarray(air_temp_rate_c_per_h, dtype=float)), nan=0.0)
-    drift = a.thermal_drift_um_per_c * rate * a.duration_min / 60.0
-    gravity = np.nan_to_num(np.asarray(gravity_residual_um, dtype=float), nan=0.0)
-    return np.asarray(root_sum_square(a.surface_rms_um, a.wind_term_um_per_ms2 * gust**2, drift, gravity),
-                      dtype=float)
-
-
-def best_surface_rms_um(site: Site) -> dict[str, float]:
-    """The least surface rms each method can leave in any weather (calm, fresh reference, a calibrator at
-    the session's elevation) [µm]."""
-    return {"scan": float(laser_surface_rms_um(site, 0.0, 0.0, 0.0)),
-            "astronomical": float(astronomical_surface_rms_um(site, 0.0, 0.0))}
 
 
 def target_features(site: Site, freq_ghz: float) -> dict[str, float]:
@@ -478,24 +438,31 @@ def target_features(site: Site, freq_ghz: float) -> dict[str, float]:
     }
     # The dry reference night: the site's standard pressure, the reference PWV and air temperature.
     ref_rho = atm.reference_pwv_mm / atm.water_scale_height_km
-    ref_tau = _zenith_opacity(targets, standard_pressure_hpa(site.elevation_m), atm.reference_air_temp_c, ref_rho,
-                              atm.reference_pwv_mm)
+    ref_tau = _zenith_opacity(
+        targets, standard_pressure_hpa(site.elevation_m), atm.reference_air_temp_c, ref_rho, atm.reference_pwv_mm
+    )
     targets["reference_system_temp_k"] = float(_system_temp_k(targets, ref_tau, atm.reference_air_temp_c)[0])
     return targets
 
 
 def _zenith_opacity(targets: dict[str, float], pressure_hpa, temp_c, rho_gm3, pwv_mm) -> np.ndarray:
     """Zenith opacity at the target frequency [nepers] (NaN outside 1-350 GHz)."""
-    return zenith_opacity_series_nepers(targets["freq_ghz"], pressure_hpa, temp_c, rho_gm3, pwv_mm,
-                                        min(max(targets["site_height_m"], 0.0), 4000.0))
+    return zenith_opacity_series_nepers(
+        targets["freq_ghz"], pressure_hpa, temp_c, rho_gm3, pwv_mm, min(max(targets["site_height_m"], 0.0), 4000.0)
+    )
 
 
 def _system_temp_k(targets: dict[str, float], tau, temp_c) -> np.ndarray:
     """T_sys* at the session's elevation [K]; inf where the sky is opaque."""
     with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
-        return np.atleast_1d(np.asarray(system_temperature_above_atmosphere_k(
-            targets["receiver_temp_k"], tau, targets["session_elevation_deg"],
-            atmosphere_temperature_k(temp_c)), dtype=float))
+        return np.atleast_1d(
+            np.asarray(
+                system_temperature_above_atmosphere_k(
+                    targets["receiver_temp_k"], tau, targets["session_elevation_deg"], atmosphere_temperature_k(temp_c)
+                ),
+                dtype=float,
+            )
+        )
 
 
 def with_target(rows: pd.DataFrame, targets: dict[str, float]) -> pd.DataFrame:
@@ -513,8 +480,13 @@ def with_target(rows: pd.DataFrame, targets: dict[str, float]) -> pd.DataFrame:
     temp = rows["air_temp_c"].to_numpy(dtype=float)
     pressure = rows["pressure_hpa"].to_numpy(dtype=float)
     pressure = np.where(np.isfinite(pressure), pressure, standard_pressure_hpa(targets["site_height_m"]))
-    tau = _zenith_opacity(targets, pressure, temp, rows["water_vapour_density_gm3"].to_numpy(dtype=float),
-                          rows["pwv_mm"].to_numpy(dtype=float))
+    tau = _zenith_opacity(
+        targets,
+        pressure,
+        temp,
+        rows["water_vapour_density_gm3"].to_numpy(dtype=float),
+        rows["pwv_mm"].to_numpy(dtype=float),
+    )
     tsys = _system_temp_k(targets, tau, temp)
     out["zenith_opacity"] = tau
     out["transmission"] = np.asarray(transmission(tau, targets["session_elevation_deg"]), dtype=float).reshape(-1)
@@ -522,13 +494,13 @@ def with_target(rows: pd.DataFrame, targets: dict[str, float]) -> pd.DataFrame:
     with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
         out["integration_time_factor"] = (tsys / targets["reference_system_temp_k"]) ** 2
     for method in METHODS:
-        out[f"{method}_surface_margin_um"] = (targets["required_surface_rms_um"]
-                                              - rows[f"{method}_surface_rms_um"].to_numpy())
+        out[f"{method}_surface_margin_um"] = (
+            targets["required_surface_rms_um"] - rows[f"{method}_surface_rms_um"].to_numpy()
+        )
     return out
 
 
-def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry,
-                     freq_ghz: float) -> pd.DataFrame:
+def compute_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry, freq_ghz: float) -> pd.DataFrame:
     """Every feature at each of ``times_utc`` as one wide frame (target features repeated per row).
 
     For callers that want a plain table (training, tests); the evaluation path keeps the target

@@ -27,9 +27,28 @@ from zoneinfo import ZoneInfo
 
 import pandas as pd
 
-__all__ = ["sig", "fixed", "freq_text", "wavelength_text", "freq_wave_text", "duration_text", "hours_text",
-           "plural", "percent", "odds_text", "local_utc", "span_text", "utc_iso", "tz_abbrev", "NBSP",
-           "C_LIGHT_M_S", "keep_units", "wrap", "no_minus_zero", "same_local_day"]
+__all__ = [
+    "sig",
+    "fixed",
+    "freq_text",
+    "wavelength_text",
+    "freq_wave_text",
+    "duration_text",
+    "hours_text",
+    "plural",
+    "percent",
+    "odds_text",
+    "local_utc",
+    "span_text",
+    "utc_iso",
+    "tz_abbrev",
+    "NBSP",
+    "C_LIGHT_M_S",
+    "keep_units",
+    "wrap",
+    "no_minus_zero",
+    "same_local_day",
+]
 
 #: A non-breaking space: keeps a number and its unit on one line in wrapped text and HTML.
 NBSP = "\u00a0"
@@ -77,7 +96,7 @@ def sig(value, figures: int = 3, missing: str = "n/a") -> str:
     exponent = math.floor(math.log10(abs(value)))
     decimals = max(0, figures - 1 - exponent)
     text = f"{value:.{decimals}f}"
-    if decimals == 0 and exponent >= figures:          # 12345 → 12300, not 12345
+    if decimals == 0 and exponent >= figures:  # 12345 → 12300, not 12345
         text = f"{round(value, figures - 1 - exponent):.0f}"
     return _unsigned_zero(text)
 
@@ -210,7 +229,8 @@ def utc_iso(ts: pd.Timestamp) -> str:
 
 
 _UNIT_AFTER_NUMBER = re.compile(
-    r"(?<=\d) (?=(?:µm|m/s|°C/h|°C|GHz|MHz|mm/h|mm|cm|min|h|d|km|m|%|hPa|W/m²|arcsec|s|UTC|[A-Z]{3,4})(?=[\s,;:.)\]]|$))")
+    r"(?<=\d) (?=(?:µm|m/s|°C/h|°C|GHz|MHz|mm/h|mm|cm|min|h|d|km|m|%|hPa|W/m²|arcsec|s|UTC|[A-Z]{3,4})(?=[\s,;:.)\]]|$))"
+)
 
 
 _EQUALS_NUMBER = re.compile(r"(?<=\S) = (?=[-+]?\d)|(?<=[ησλΔ]) (?=[-+]?\d)")
@@ -230,6 +250,12 @@ def wrap(text: str, width: int, indent: str = "", first_indent: str = "") -> lis
 
     Continuation lines start with ``indent``; the result has ordinary spaces again.
     """
-    lines = textwrap.wrap(keep_units(text), width=max(20, width), initial_indent=first_indent,
-                          subsequent_indent=indent, break_long_words=False, break_on_hyphens=False)
+    lines = textwrap.wrap(
+        keep_units(text),
+        width=max(20, width),
+        initial_indent=first_indent,
+        subsequent_indent=indent,
+        break_long_words=False,
+        break_on_hyphens=False,
+    )
     return [line.replace(NBSP, " ") for line in lines] or [first_indent.rstrip()]

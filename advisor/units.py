@@ -68,7 +68,7 @@ _add("m", "length", 1.0)
 _add("km", "length", 1000.0)
 _add("mm", "length", 1e-3)
 _add("cm", "length", 1e-2)
-_add("in", "length", 0.0254, aliases=("inch", "inches"))   # international inch (definition)
+_add("in", "length", 0.0254, aliases=("inch", "inches"))  # international inch (definition)
 _add("um", "length", 1e-6, aliases=("µm", "micron", "microns"))
 # angle → degrees
 _add("deg", "angle", 1.0, aliases=("°", "degree", "degrees"))
@@ -119,9 +119,7 @@ def convert(value, from_unit: str, to_unit: str):
         scale = _TEMPERATURE_AS_DIFFERENCE[src.name]
         return np.multiply(value, scale) if isinstance(value, np.ndarray) else value * scale
     if src.dimension != dst.dimension:
-        raise UnitError(
-            f"cannot convert {src.name} ({src.dimension}) to {dst.name} ({dst.dimension})"
-        )
+        raise UnitError(f"cannot convert {src.name} ({src.dimension}) to {dst.name} ({dst.dimension})")
     if src is dst:
         return value
     si = value * src.scale + src.offset

@@ -13,9 +13,22 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["METHODS", "VERDICTS", "Verdict", "VERDICT", "EXIT_CODES", "LETTERS", "METHOD_LABEL",
-           "APPLIES_TO", "EFFECTS", "REASON_EFFECTS", "EFFECT_LABEL", "DEMO_BANNER", "MODEL_TRANSFORMS",
-           "MODEL_DIRECTIONS"]
+__all__ = [
+    "METHODS",
+    "VERDICTS",
+    "Verdict",
+    "VERDICT",
+    "EXIT_CODES",
+    "LETTERS",
+    "METHOD_LABEL",
+    "APPLIES_TO",
+    "EFFECTS",
+    "REASON_EFFECTS",
+    "EFFECT_LABEL",
+    "DEMO_BANNER",
+    "MODEL_TRANSFORMS",
+    "MODEL_DIRECTIONS",
+]
 
 #: The two ways to measure and correct the surface.
 METHODS: tuple[str, ...] = ("scan", "astronomical")
@@ -29,25 +42,44 @@ class Verdict:
     """One possible call and everything a view needs to show it."""
 
     name: str
-    letter: str          # one character, for timeline strips and CSV summaries
-    label: str           # headline word(s) on the screen
-    style: str           # rich style of the headline badge
-    exit_status: int     # exit status of ``advisor check``
-    meaning: str         # one line for --help and the README
-    words: str           # a few words for legends ("scan now")
+    letter: str  # one character, for timeline strips and CSV summaries
+    label: str  # headline word(s) on the screen
+    style: str  # rich style of the headline badge
+    exit_status: int  # exit status of ``advisor check``
+    meaning: str  # one line for --help and the README
+    words: str  # a few words for legends ("scan now")
 
 
 _VERDICT_LIST = (
     Verdict("scan", "S", "SCAN NOW", "bold black on green", 0, "take a laser scan now", "scan now"),
-    Verdict("astronomical", "A", "ASTRONOMICAL", "bold black on cyan", 10,
-            "use the astronomical method (holography on a calibrator)", "astronomical method"),
-    Verdict("postpone", "P", "POSTPONE", "bold black on yellow", 11, "neither method is worth doing now",
-            "postpone"),
-    Verdict("undetermined", "U", "UNDETERMINED", "bold white on red", 12,
-            'data missing, stale or implausible (never "scan")', "undetermined (data bad)"),
-    Verdict("no_correction", "N", "NO CORRECTION NEEDED", "bold black on white", 13,
-            "the site's uncorrected surface already meets the requirement at this frequency",
-            "no correction needed"),
+    Verdict(
+        "astronomical",
+        "A",
+        "ASTRONOMICAL",
+        "bold black on cyan",
+        10,
+        "use the astronomical method (holography on a calibrator)",
+        "astronomical method",
+    ),
+    Verdict("postpone", "P", "POSTPONE", "bold black on yellow", 11, "neither method is worth doing now", "postpone"),
+    Verdict(
+        "undetermined",
+        "U",
+        "UNDETERMINED",
+        "bold white on red",
+        12,
+        'data missing, stale or implausible (never "scan")',
+        "undetermined (data bad)",
+    ),
+    Verdict(
+        "no_correction",
+        "N",
+        "NO CORRECTION NEEDED",
+        "bold black on white",
+        13,
+        "the site's uncorrected surface already meets the requirement at this frequency",
+        "no correction needed",
+    ),
 )
 VERDICT: dict[str, Verdict] = {v.name: v for v in _VERDICT_LIST}
 VERDICTS: tuple[str, ...] = tuple(VERDICT)
@@ -67,8 +99,10 @@ REASON_EFFECTS: tuple[str, ...] = (*EFFECTS, "info")
 EFFECT_LABEL: dict[str, str] = {effect: effect for effect in REASON_EFFECTS}
 
 #: Shown on every view whenever the invented demo site or its data are in use.
-DEMO_BANNER = ("DEMO DATA — invented site and weather, for trying the tool (no site configured: --site, "
-               "$ADVISOR_SITE or ~/.config/advisor/site.yaml).")
+DEMO_BANNER = (
+    "DEMO DATA — invented site and weather, for trying the tool (no site configured: --site, "
+    "$ADVISOR_SITE or ~/.config/advisor/site.yaml)."
+)
 
 #: How a site-model term is made from its feature x: x, x², |x|, or max(0, knot - x).
 MODEL_TRANSFORMS: tuple[str, ...] = ("identity", "square", "abs", "shortfall")

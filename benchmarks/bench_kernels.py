@@ -32,6 +32,7 @@ sys.path.insert(0, str(ROOT))
 
 def interleave(ours, reference, pairs: int, warmup: bool = True) -> tuple[list[float], list[float]]:
     """Wall times [s] of ``ours()`` and ``reference()``, alternating."""
+
     def timed(fn) -> float:
         t0 = time.perf_counter()
         fn()
@@ -49,9 +50,12 @@ def interleave(ours, reference, pairs: int, warmup: bool = True) -> tuple[list[f
 def report(name: str, a: list[float], b: list[float], target: float, extra: str, ok: bool) -> None:
     speedups = sorted(y / x for x, y in zip(a, b))
     med = statistics.median(speedups)
-    print(f"- {name}: ours {statistics.median(a):.4f} s, reference {statistics.median(b):.3f} s (medians); "
-          f"speed-up min/median/max {speedups[0]:.0f} / {med:.0f} / {speedups[-1]:.0f}x over {len(a)} pairs "
-          f"(target >= {target:g}x): {'met' if med >= target and ok else 'MISSED'}; {extra}", flush=True)
+    print(
+        f"- {name}: ours {statistics.median(a):.4f} s, reference {statistics.median(b):.3f} s (medians); "
+        f"speed-up min/median/max {speedups[0]:.0f} / {med:.0f} / {speedups[-1]:.0f}x over {len(a)} pairs "
+        f"(target >= {target:g}x): {'met' if med >= target and ok else 'MISSED'}; {extra}",
+        flush=True,
+    )
 
 
 def bench_rules(pairs: int, rows: int = 20_000) -> None:
@@ -67,8 +71,9 @@ def bench_rules(pairs: int, rows: int = 20_000) -> None:
 
     feed_path = HERE / ".data" / "larch_basin_year.csv"
     if not feed_path.exists():
-        subprocess.run([sys.executable, str(HERE / "make_archive.py"), "--years", "1", "--out", str(feed_path)],
-                       check=True)
+        subprocess.run(
+            [sys.executable, str(HERE / "make_archive.py"), "--years", "1", "--out", str(feed_path)], check=True
+        )
     site = load_site(ROOT / "example_weather" / "larch_basin.yaml")
     rules = load_ruleset(site, ())
     frame = read_feed(feed_path, site.feed).frame.iloc[:rows]
@@ -90,8 +95,14 @@ def bench_rules(pairs: int, rows: int = 20_000) -> None:
 
     same = all(np.array_equal(vectorised().fired[k], v) for k, v in per_row().items())
     a, b = interleave(vectorised, per_row, pairs, warmup=False)
-    report(f"rules vectorised vs per-row loop ({len(rules)} rules x {n:,} rows)", a, b, 20,
-           "results identical" if same else "RESULTS DIFFER", same)
+    report(
+        f"rules vectorised vs per-row loop ({len(rules)} rules x {n:,} rows)",
+        a,
+        b,
+        20,
+        "results identical" if same else "RESULTS DIFFER",
+        same,
+    )
 
 
 def bench_sun(pairs: int) -> None:
@@ -111,7 +122,7 @@ def bench_sun(pairs: int) -> None:
     iers.conf.auto_download = False
     iers.conf.auto_max_age = None
     times = pd.date_range("2026-01-01", periods=525_600, freq="1min", tz="UTC")
-    lat, lon = 47.12, -114.0   # the invented demo site
+    lat, lon = 47.12, -114.0  # the invented demo site
     location = EarthLocation(lat=lat * u.deg, lon=lon * u.deg, height=1050 * u.m)
 
     def ours():
@@ -124,8 +135,14 @@ def bench_sun(pairs: int) -> None:
     ours_el, _ = ours()
     diff = float(np.max(np.abs(ours_el - astropy_sun().alt.deg)))
     a, b = interleave(ours, astropy_sun, pairs, warmup=False)
-    report("sun elevation, 525,600 instants, vs astropy", a, b, 10, f"max elevation difference {diff:.4f} deg",
-           diff <= 0.02)
+    report(
+        "sun elevation, 525,600 instants, vs astropy",
+        a,
+        b,
+        10,
+        f"max elevation difference {diff:.4f} deg",
+        diff <= 0.02,
+    )
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -76,8 +76,7 @@ def main(argv=None) -> int:
     frame["issued_utc"] = start
     registry = read_registry(site.references_path)
     rules = load_ruleset(site, ())
-    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source="benchmark", is_demo=True,
-                  data_quality={})
+    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source="benchmark", is_demo=True, data_quality={})
 
     t_eval, outlook = best(lambda: compute_outlook(frame, start, DAYS * 24.0, site, registry, rules, 86.0), args.repeat)
 
@@ -94,16 +93,20 @@ def main(argv=None) -> int:
     n = len(outlook.steps)
     windows = sum(len(w) for w in outlook.windows.values())
     total = t_eval + t_rich
-    print(f"outlook benchmark · {DAYS} days at {STEP_MIN}-min steps = {n} steps, {windows} windows · "
-          f"python {platform.python_version()} · best of {args.repeat}")
+    print(
+        f"outlook benchmark · {DAYS} days at {STEP_MIN}-min steps = {n} steps, {windows} windows · "
+        f"python {platform.python_version()} · best of {args.repeat}"
+    )
     print(f"  evaluate every step + windows   {t_eval * 1000:8.1f} ms")
     print(f"  render rich panel (120 cols)    {t_rich * 1000:8.1f} ms  ({len(text.splitlines())} lines)")
     print(f"  render plain text (100 cols)    {t_plain * 1000:8.1f} ms  ({len(plain.splitlines())} lines)")
     print(f"  JSON export                     {t_json * 1000:8.1f} ms")
     print(f"  CSV export                      {t_csv * 1000:8.1f} ms")
     ok = total < BUDGET_S
-    print(f"  evaluate + rich render          {total * 1000:8.1f} ms = {total / BUDGET_S:.2f} x the {BUDGET_S:g} s "
-          f"budget ({'ok' if ok else 'TOO SLOW'})")
+    print(
+        f"  evaluate + rich render          {total * 1000:8.1f} ms = {total / BUDGET_S:.2f} x the {BUDGET_S:g} s "
+        f"budget ({'ok' if ok else 'TOO SLOW'})"
+    )
     return 0 if ok else 1
 
 

@@ -50,8 +50,12 @@ def site_rules_yaml(count: int) -> str:
     for i in range(count):
         cond, effect, error = TEMPLATES[i % len(TEMPLATES)]
         t = 3 + i // len(TEMPLATES)
-        lines += [f"  - id: bench_{i:02d}", "    applies_to: both", f"    condition: {cond.format(t=t)}",
-                  f"    effect: {effect}"]
+        lines += [
+            f"  - id: bench_{i:02d}",
+            "    applies_to: both",
+            f"    condition: {cond.format(t=t)}",
+            f"    effect: {effect}",
+        ]
         if error is not None:
             lines.append(f'    error_um: "{error.format(t=t)}"')
         lines.append('    message: "bench rule {wind_gust_ms:.1f}"')
@@ -90,15 +94,16 @@ def main(argv: list[str] | None = None) -> int:
         ruleset = load_rules(defaults + [(extra, "site")], CATALOGUE)
         load_s = time.perf_counter() - t0
     columns = feature_columns(ROWS)
-    result = ruleset.evaluate(columns, ROWS)        # warm-up, and a sanity check of the output
+    result = ruleset.evaluate(columns, ROWS)  # warm-up, and a sanity check of the output
     assert all(mask.shape == (ROWS,) for mask in result.fired.values())
     times = timeit.repeat(lambda: ruleset.evaluate(columns, ROWS), number=1, repeat=args.repeat)
     median = statistics.median(times)
     fired = sum(int(m.sum()) for m in result.fired.values())
-    print(f"rules: {len(ruleset)} ({len(base)} default + {len(ruleset) - len(base)} generated), "
-          f"rows: {ROWS:,}; lint + compile: {load_s:.3f} s")
-    print(f"evaluate: median {median:.3f} s, best {min(times):.3f} s over {args.repeat} runs "
-          f"({fired:,} rule firings)")
+    print(
+        f"rules: {len(ruleset)} ({len(base)} default + {len(ruleset) - len(base)} generated), "
+        f"rows: {ROWS:,}; lint + compile: {load_s:.3f} s"
+    )
+    print(f"evaluate: median {median:.3f} s, best {min(times):.3f} s over {args.repeat} runs ({fired:,} rule firings)")
     print(f"ratio to the {BUDGET_S:g} s budget: {median / BUDGET_S:.2f} (below 1 is within budget)")
     return 0
 

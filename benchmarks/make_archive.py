@@ -31,7 +31,7 @@ import pandas as pd
 
 ROOT = Path(__file__).resolve().parent.parent
 MAKE_DEMO = ROOT / "example_weather" / "make_demo.py"
-REFERENCE_EVERY_DAYS = 3   # the rule of example_weather/make_archive_sample.py
+REFERENCE_EVERY_DAYS = 3  # the rule of example_weather/make_archive_sample.py
 REFERENCE_HOUR_UTC = 1
 REFERENCE_NOTE = "invented: after an astronomical correction"
 
@@ -63,8 +63,9 @@ def reference_times(start: pd.Timestamp, end: pd.Timestamp) -> pd.DatetimeIndex:
     return at[(at >= start) & (at <= end)]
 
 
-def write_archive(start, end, out: Path, cadence_min: int = 1, chunk_days: int = 31,
-                  seed: int | None = None) -> tuple[Path, Path, int]:
+def write_archive(
+    start, end, out: Path, cadence_min: int = 1, chunk_days: int = 31, seed: int | None = None
+) -> tuple[Path, Path, int]:
     """Write the archive ``[start, end]`` (both included) and its registry; return paths and rows.
 
     The generator runs on ``chunk_days`` at a time; chunk boundaries lie on the cadence grid, so
@@ -100,11 +101,13 @@ def write_archive(start, end, out: Path, cadence_min: int = 1, chunk_days: int =
                     ref_temp_f[mine] = mast["temp_f"].to_numpy()[pos]
                 del mast
                 lo = lo + chunk
-        pd.DataFrame({
-            "time": refs_at.strftime("%Y-%m-%dT%H:%M:%SZ"),
-            "air_temp_c": np.round((ref_temp_f - 32.0) * 5.0 / 9.0, 1),
-            "note": REFERENCE_NOTE,
-        }).to_csv(tmp_refs, index=False, lineterminator="\n")
+        pd.DataFrame(
+            {
+                "time": refs_at.strftime("%Y-%m-%dT%H:%M:%SZ"),
+                "air_temp_c": np.round((ref_temp_f - 32.0) * 5.0 / 9.0, 1),
+                "note": REFERENCE_NOTE,
+            }
+        ).to_csv(tmp_refs, index=False, lineterminator="\n")
         os.replace(tmp_refs, refs_path)
         os.replace(tmp_out, out)
     finally:
@@ -135,8 +138,9 @@ def main(argv: list[str] | None = None) -> int:
     length.add_argument("--days", type=int, help="length in days (last record included)")
     parser.add_argument("--cadence-min", type=int, default=1, help="record spacing [min] (default 1)")
     parser.add_argument("--chunk-days", type=int, default=31, help="days generated at a time (default 31)")
-    parser.add_argument("--verify", action="store_true",
-                        help="only check that chunked writing equals one call of the generator")
+    parser.add_argument(
+        "--verify", action="store_true", help="only check that chunked writing equals one call of the generator"
+    )
     args = parser.parse_args(argv)
     if args.verify:
         same = verify_chunking(args.start, args.cadence_min)
@@ -145,8 +149,9 @@ def main(argv: list[str] | None = None) -> int:
     if args.out is None or (args.years is None and args.days is None):
         parser.error("--out and one of --years/--days are required")
     start = _utc(args.start)
-    path, refs, rows = write_archive(start, archive_end(start, args.years, args.days), args.out,
-                                     args.cadence_min, args.chunk_days)
+    path, refs, rows = write_archive(
+        start, archive_end(start, args.years, args.days), args.out, args.cadence_min, args.chunk_days
+    )
     for p in (path, refs):
         print(f"wrote {p} ({p.stat().st_size:,} bytes)")
     print(f"{rows:,} records")

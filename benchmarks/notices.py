@@ -18,15 +18,15 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-from advisor.catalogue import CATALOGUE  # noqa: E402
-from advisor.decision import explain  # noqa: E402
-from advisor.evaluation import advisory  # noqa: E402
-from advisor.evaluation.evaluate import evaluate  # noqa: E402
-from advisor.io.feed import read_feed  # noqa: E402
-from advisor.io.references import read_registry  # noqa: E402
-from advisor.io.site import load_site  # noqa: E402
-from advisor.model.inference import load_model  # noqa: E402
-from advisor.rules.loader import default_rule_files, load_rules  # noqa: E402
+from advisor.catalogue import CATALOGUE
+from advisor.evaluation import advisory
+from advisor.evaluation.evaluate import evaluate
+from advisor.explain import explain
+from advisor.io.feed import read_feed
+from advisor.io.references import read_registry
+from advisor.io.site import load_site
+from advisor.model.inference import load_model
+from advisor.rules.loader import default_rule_files, load_rules
 
 
 def tick_calls(every_min: float, start=None, end=None):
@@ -38,11 +38,17 @@ def tick_calls(every_min: float, start=None, end=None):
     times = pd.date_range(start or first, end or last, freq=pd.Timedelta(minutes=every_min))
     rules = load_rules([(p, "default") for p in default_rule_files()], CATALOGUE)
     model = load_model(site.model_path) if site.model_path else None
-    decisions = evaluate(frame, times, site, read_registry(site.references_path), rules, 86.0,
-                         model.odds if model else None)
+    decisions = evaluate(
+        frame, times, site, read_registry(site.references_path), rules, 86.0, model.odds if model else None
+    )
     for i, t in enumerate(times):
         call = explain(decisions, i)
-        yield t, call.verdict, {m: c["blocked_by"] for m, c in call.candidates.items()}, advisory.reason_set(call.reasons)
+        yield (
+            t,
+            call.verdict,
+            {m: c["blocked_by"] for m, c in call.candidates.items()},
+            advisory.reason_set(call.reasons),
+        )
 
 
 def count_notices(calls, confirm: advisory.Confirm | None) -> int:
@@ -65,8 +71,13 @@ def main() -> int:
     confirm = advisory.Confirm(site.tick.confirm_ticks, site.tick.confirm_min)
     week = list(tick_calls(args.every))
     zone = site.time_zone
-    afternoon = list(tick_calls(args.every, pd.Timestamp("2026-11-25 12:00", tz=zone).tz_convert("UTC"),
-                                pd.Timestamp("2026-11-25 15:00", tz=zone).tz_convert("UTC")))
+    afternoon = list(
+        tick_calls(
+            args.every,
+            pd.Timestamp("2026-11-25 12:00", tz=zone).tz_convert("UTC"),
+            pd.Timestamp("2026-11-25 15:00", tz=zone).tz_convert("UTC"),
+        )
+    )
     days = (week[-1][0] - week[0][0]).total_seconds() / 86400.0
     print(f"demo feed, a tick every {args.every:g} min, {len(week)} ticks over {days:.1f} days")
     print(f"  every change announced at once : {count_notices(week, None)} notices")

@@ -81,10 +81,10 @@ ADVISOR = [PY, "-m", "advisor"]
 ADVISOR_ENTRY = ("advisor.commands.main", "main")
 _REPLAY = ["replay", "--site", "{site}", "--feed", "{feed}", "--references", "{references}", "--json"]
 COMMANDS: dict[str, list[str]] = {
-    "replay_first": _REPLAY + ["--no-cache"],                 # features computed, cache untouched
-    "replay_cached": _REPLAY,                                 # features from the cache (warmed first)
-    "replay_rules": _REPLAY + ["--rules", "{rules}"],         # extra rule file layered on the defaults
-    "check": ["check"],                                       # the bundled demo site and feed
+    "replay_first": _REPLAY + ["--no-cache"],  # features computed, cache untouched
+    "replay_cached": _REPLAY,  # features from the cache (warmed first)
+    "replay_rules": _REPLAY + ["--rules", "{rules}"],  # extra rule file layered on the defaults
+    "check": ["check"],  # the bundled demo site and feed
 }
 #: Exit statuses meaning "ran to the end" (check exits with its verdict: 0, 10, 11, 12).
 OK_STATUS: dict[str, set[int]] = {"check": {0, 10, 11, 12}}
@@ -104,8 +104,7 @@ ARCHIVES = {
 }
 TARGETS = ("check", "first_replay", "cached_replay", "ten_years", "rules_1000")
 #: Timed pairs per target: (full, --quick).
-PAIRS = {"check": (21, 5), "first_replay": (9, 3), "cached_replay": (9, 3), "ten_years": (3, 2),
-         "rules_1000": (3, 2)}
+PAIRS = {"check": (21, 5), "first_replay": (9, 3), "cached_replay": (9, 3), "ten_years": (3, 2), "rules_1000": (3, 2)}
 EXTRA_RULES = 1000
 LIBRARIES = ("numpy", "pandas", "scikit-learn", "rich", "pyyaml")
 MB = 1e6  # peak RSS is reported in MB of 10^6 bytes
@@ -115,7 +114,7 @@ MB = 1e6  # peak RSS is reported in MB of 10^6 bytes
 @dataclass
 class Sample:
     wall_s: float
-    cpu_s: float                   # user + system CPU time of the process (all its threads)
+    cpu_s: float  # user + system CPU time of the process (all its threads)
     peak_rss_mb: float | None = None
 
 
@@ -123,12 +122,12 @@ class Sample:
 class Measurement:
     """One interleaved series: ours and the reference, pair by pair."""
 
-    mode: str                      # "whole process" or "in-process"
-    ours: str                      # what was run, as text
+    mode: str  # "whole process" or "in-process"
+    ours: str  # what was run, as text
     reference: str
-    ours_s: list[float]            # wall time of each run [s]
+    ours_s: list[float]  # wall time of each run [s]
     reference_s: list[float]
-    ours_cpu_s: list[float]        # CPU time of each run [s]
+    ours_cpu_s: list[float]  # CPU time of each run [s]
     reference_cpu_s: list[float]
     ours_peak_rss_mb: list[float] = field(default_factory=list)
     reference_peak_rss_mb: list[float] = field(default_factory=list)
@@ -139,10 +138,15 @@ class Measurement:
 
     def summary(self) -> dict:
         r = self.ratios
-        out = {"pairs": len(r), "ratio_min": min(r), "ratio_median": statistics.median(r), "ratio_max": max(r),
-               "ours_median_s": statistics.median(self.ours_s),
-               "reference_median_s": statistics.median(self.reference_s),
-               "cpu_ratio_median": statistics.median(a / b for a, b in zip(self.ours_cpu_s, self.reference_cpu_s))}
+        out = {
+            "pairs": len(r),
+            "ratio_min": min(r),
+            "ratio_median": statistics.median(r),
+            "ratio_max": max(r),
+            "ours_median_s": statistics.median(self.ours_s),
+            "reference_median_s": statistics.median(self.reference_s),
+            "cpu_ratio_median": statistics.median(a / b for a, b in zip(self.ours_cpu_s, self.reference_cpu_s)),
+        }
         if self.ours_peak_rss_mb:
             out["ours_peak_rss_mb_max"] = max(self.ours_peak_rss_mb)
             out["reference_peak_rss_mb_max"] = max(self.reference_peak_rss_mb)
@@ -173,8 +177,8 @@ class Result:
     checks: list[Check] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     error: str | None = None
-    load_average: tuple[float, float] | None = None   # 1-minute load average before and after
-    elapsed_s: float | None = None                    # the whole target, generation included
+    load_average: tuple[float, float] | None = None  # 1-minute load average before and after
+    elapsed_s: float | None = None  # the whole target, generation included
 
 
 class CommandFailed(RuntimeError):
@@ -205,8 +209,9 @@ def run_process(argv: list[str], env: dict[str, str], ok: set[int] = frozenset({
     return Sample(wall, usage.ru_utime + usage.ru_stime, usage.ru_maxrss * 1024 / MB)  # maxrss: KiB on Linux
 
 
-def interleave_processes(ours: list[str], ref: list[str], pairs: int, env: dict[str, str],
-                         ok_ours: set[int] = frozenset({0})) -> Measurement:
+def interleave_processes(
+    ours: list[str], ref: list[str], pairs: int, env: dict[str, str], ok_ours: set[int] = frozenset({0})
+) -> Measurement:
     """A B A B ...: one unmeasured warm-up pair, then ``pairs`` timed pairs."""
     run_process(ours, env, ok_ours)
     run_process(ref, env)
@@ -214,9 +219,17 @@ def interleave_processes(ours: list[str], ref: list[str], pairs: int, env: dict[
     for _ in range(pairs):
         a.append(run_process(ours, env, ok_ours))
         b.append(run_process(ref, env))
-    return Measurement("whole process", shell_text(ours), shell_text(ref), [s.wall_s for s in a],
-                       [s.wall_s for s in b], [s.cpu_s for s in a], [s.cpu_s for s in b],
-                       [s.peak_rss_mb for s in a], [s.peak_rss_mb for s in b])
+    return Measurement(
+        "whole process",
+        shell_text(ours),
+        shell_text(ref),
+        [s.wall_s for s in a],
+        [s.wall_s for s in b],
+        [s.cpu_s for s in a],
+        [s.cpu_s for s in b],
+        [s.peak_rss_mb for s in a],
+        [s.peak_rss_mb for s in b],
+    )
 
 
 def interleave_in_process(argv: list[str], feed: Path, pairs: int, env: dict[str, str]) -> Measurement:
@@ -226,9 +239,15 @@ def interleave_in_process(argv: list[str], feed: Path, pairs: int, env: dict[str
         spec.write_text(json.dumps({"argv": argv, "feed": str(feed), "pairs": pairs, "out": str(out)}))
         run_process([PY, str(Path(__file__).resolve()), "--in-process-worker", str(spec)], env)
         got = json.loads(out.read_text())
-    return Measurement("in-process", f"{ADVISOR_ENTRY[0]}.{ADVISOR_ENTRY[1]}({[relative(a) for a in argv]!r})",
-                       f"pandas.read_csv({relative(str(feed))!r})", got["ours_s"], got["reference_s"], got["ours_cpu_s"],
-                       got["reference_cpu_s"])
+    return Measurement(
+        "in-process",
+        f"{ADVISOR_ENTRY[0]}.{ADVISOR_ENTRY[1]}({[relative(a) for a in argv]!r})",
+        f"pandas.read_csv({relative(str(feed))!r})",
+        got["ours_s"],
+        got["reference_s"],
+        got["ours_cpu_s"],
+        got["reference_cpu_s"],
+    )
 
 
 def in_process_worker(spec_path: str) -> int:
@@ -258,8 +277,16 @@ def in_process_worker(spec_path: str) -> int:
     for _ in range(spec["pairs"]):
         a.append(timed(ours))
         b.append(timed(reference))
-    Path(spec["out"]).write_text(json.dumps({"ours_s": [w for w, _ in a], "reference_s": [w for w, _ in b],
-                                             "ours_cpu_s": [c for _, c in a], "reference_cpu_s": [c for _, c in b]}))
+    Path(spec["out"]).write_text(
+        json.dumps(
+            {
+                "ours_s": [w for w, _ in a],
+                "reference_s": [w for w, _ in b],
+                "ours_cpu_s": [c for _, c in a],
+                "reference_cpu_s": [c for _, c in b],
+            }
+        )
+    )
     return 0
 
 
@@ -270,11 +297,13 @@ def relative(arg: str) -> str:
 
 def shell_text(argv: list[str]) -> str:
     """A command line as text, with this interpreter shown as ``python`` and paths relative to the root."""
+
     def show(arg: str) -> str:
         if arg == PY:
             return "python"
         arg = relative(arg)
-        return f"'{arg}'" if any(c in arg for c in " ;\"") else arg
+        return f"'{arg}'" if any(c in arg for c in ' ;"') else arg
+
     return " ".join(show(a) for a in argv)
 
 
@@ -290,10 +319,12 @@ def archive(name: str) -> tuple[Path, Path]:
     refs = feed.with_name(f"{feed.stem}_references.csv")
     if not (feed.exists() and refs.exists()):
         length = ["--years", str(years)] if years is not None else ["--days", str(days)]
-        print(f"generating {feed.relative_to(ROOT)} (invented, {length[1]} {length[0][2:]} at 1 min) ...",
-              flush=True)
-        subprocess.run([PY, str(HERE / "make_archive.py"), "--start", start, *length, "--out", str(feed)],
-                       check=True, stdout=subprocess.DEVNULL)
+        print(f"generating {feed.relative_to(ROOT)} (invented, {length[1]} {length[0][2:]} at 1 min) ...", flush=True)
+        subprocess.run(
+            [PY, str(HERE / "make_archive.py"), "--start", start, *length, "--out", str(feed)],
+            check=True,
+            stdout=subprocess.DEVNULL,
+        )
     return feed, refs
 
 
@@ -364,8 +395,10 @@ def target_ten_years(res: Result, pairs: int, quick: bool, cache: Path) -> None:
     env = child_env(cache)
     long_feed, long_refs = archive("quick_long" if quick else "decade")
     feed, refs = archive("quick_base" if quick else "year")
-    ours, ref = ADVISOR + _replay_argv("replay_first", long_feed, long_refs), ADVISOR + _replay_argv(
-        "replay_first", feed, refs)
+    ours, ref = (
+        ADVISOR + _replay_argv("replay_first", long_feed, long_refs),
+        ADVISOR + _replay_argv("replay_first", feed, refs),
+    )
     res.commands = {"ours": shell_text(ours), "reference": shell_text(ref)}
     m = interleave_processes(ours, ref, pairs, env)
     res.measurements.append(m)
@@ -385,8 +418,10 @@ def target_rules_1000(res: Result, pairs: int, quick: bool, cache: Path) -> None
     m = interleave_processes(ours, ref, pairs, env)
     res.measurements.append(m)
     res.checks.append(Check("peak RSS (largest run)", m.summary()["ours_peak_rss_mb_max"], 1000.0, "MB"))
-    res.notes.append(f"{EXTRA_RULES} generated rules (benchmarks/bench_rules.py templates) on top of the "
-                     "default and site rules; reference: the same cached replay with those alone")
+    res.notes.append(
+        f"{EXTRA_RULES} generated rules (benchmarks/bench_rules.py templates) on top of the "
+        "default and site rules; reference: the same cached replay with those alone"
+    )
 
 
 TARGET_INFO = {
@@ -400,9 +435,14 @@ TARGET_INFO = {
 
 # --------------------------------------------------------------------------- environment record
 def machine() -> dict:
-    info = {"cores": os.cpu_count(), "cores_usable": len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity")
-            else None, "cpu": platform.processor() or platform.machine(), "arch": platform.machine(),
-            "system": f"{platform.system()} {platform.release()}", "memory_gib": None}
+    info = {
+        "cores": os.cpu_count(),
+        "cores_usable": len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else None,
+        "cpu": platform.processor() or platform.machine(),
+        "arch": platform.machine(),
+        "system": f"{platform.system()} {platform.release()}",
+        "memory_gib": None,
+    }
     with contextlib.suppress(OSError):
         for line in Path("/proc/cpuinfo").read_text().splitlines():
             if line.startswith("model name"):
@@ -431,9 +471,13 @@ def repository() -> dict:
             return subprocess.run(["git", *args], cwd=ROOT, capture_output=True, text=True, check=True).stdout.strip()
         except (OSError, subprocess.CalledProcessError):
             return None
+
     status = git("status", "--porcelain", "--untracked-files=no")
-    return {"commit": git("rev-parse", "--short", "HEAD"), "branch": git("rev-parse", "--abbrev-ref", "HEAD"),
-            "modified": bool(status) if status is not None else None}
+    return {
+        "commit": git("rev-parse", "--short", "HEAD"),
+        "branch": git("rev-parse", "--abbrev-ref", "HEAD"),
+        "modified": bool(status) if status is not None else None,
+    }
 
 
 # --------------------------------------------------------------------------- reporting
@@ -457,30 +501,49 @@ def print_result(res: Result) -> None:
         return
     for m in res.measurements:
         s = m.summary()
-        rss = (f"; peak RSS {s['ours_peak_rss_mb_max']:.0f} / {s['reference_peak_rss_mb_max']:.0f} MB"
-               if "ours_peak_rss_mb_max" in s else "")
-        print(f"  {m.mode:<14} ours {s['ours_median_s']:.3f} s, reference {s['reference_median_s']:.3f} s "
-              f"(medians); ratio min/median/max {fmt_ratio(s)} over {s['pairs']} pairs; CPU-time ratio median "
-              f"{s['cpu_ratio_median']:.2f}{rss}")
+        rss = (
+            f"; peak RSS {s['ours_peak_rss_mb_max']:.0f} / {s['reference_peak_rss_mb_max']:.0f} MB"
+            if "ours_peak_rss_mb_max" in s
+            else ""
+        )
+        print(
+            f"  {m.mode:<14} ours {s['ours_median_s']:.3f} s, reference {s['reference_median_s']:.3f} s "
+            f"(medians); ratio min/median/max {fmt_ratio(s)} over {s['pairs']} pairs; CPU-time ratio median "
+            f"{s['cpu_ratio_median']:.2f}{rss}"
+        )
     for c in res.checks:
         print(f"  -> {fmt_check(c)}")
     for note in res.notes:
         print(f"  note: {note}")
-    print(f"  load average (1 min) {res.load_average[0]:.2f} before, {res.load_average[1]:.2f} after; "
-          f"took {res.elapsed_s:.0f} s")
+    print(
+        f"  load average (1 min) {res.load_average[0]:.2f} before, {res.load_average[1]:.2f} after; "
+        f"took {res.elapsed_s:.0f} s"
+    )
 
 
-SUMMARY_HEADER = ("target", "mode", "ours (median)", "reference (median)", "wall-time ratio min / median / max",
-                  "CPU-time ratio (median)", "peak RSS ours / ref", "target", "")
+SUMMARY_HEADER = (
+    "target",
+    "mode",
+    "ours (median)",
+    "reference (median)",
+    "wall-time ratio min / median / max",
+    "CPU-time ratio (median)",
+    "peak RSS ours / ref",
+    "target",
+    "",
+)
 
 
 def summary_rows(results: list[Result], missed: str = "MISSED") -> list[tuple[str, ...]]:
     """One row per measurement (with the checks made on it) and one per check on no measurement."""
+
     def target_text(checks: list[Check]) -> tuple[str, str]:
         if not checks:
             return "-", "(for the record)"
-        return ("; ".join(f"{c.what} <= {c.limit:g}{' MB' if c.unit == 'MB' else 'x'}" for c in checks),
-                ", ".join("met" if c.met else missed for c in checks))
+        return (
+            "; ".join(f"{c.what} <= {c.limit:g}{' MB' if c.unit == 'MB' else 'x'}" for c in checks),
+            ", ".join("met" if c.met else missed for c in checks),
+        )
 
     rows = []
     for res in results:
@@ -489,16 +552,30 @@ def summary_rows(results: list[Result], missed: str = "MISSED") -> list[tuple[st
             continue
         for m in res.measurements:
             s = m.summary()
-            rss = (f"{s['ours_peak_rss_mb_max']:.0f} / {s['reference_peak_rss_mb_max']:.0f} MB"
-                   if "ours_peak_rss_mb_max" in s else "-")
+            rss = (
+                f"{s['ours_peak_rss_mb_max']:.0f} / {s['reference_peak_rss_mb_max']:.0f} MB"
+                if "ours_peak_rss_mb_max" in s
+                else "-"
+            )
             target, verdict = target_text([c for c in res.checks if c.mode == m.mode])
-            rows.append((res.key, m.mode, f"{s['ours_median_s']:.3f} s", f"{s['reference_median_s']:.3f} s",
-                         f"{fmt_ratio(s)} ({s['pairs']} pairs)", f"{s['cpu_ratio_median']:.2f}", rss, target,
-                         verdict))
+            rows.append(
+                (
+                    res.key,
+                    m.mode,
+                    f"{s['ours_median_s']:.3f} s",
+                    f"{s['reference_median_s']:.3f} s",
+                    f"{fmt_ratio(s)} ({s['pairs']} pairs)",
+                    f"{s['cpu_ratio_median']:.2f}",
+                    rss,
+                    target,
+                    verdict,
+                )
+            )
         for c in res.checks:
             if c.mode is None:
-                rows.append((res.key, c.what, "", "", f"{c.value:.2f}", "", "", f"<= {c.limit:g}",
-                             "met" if c.met else missed))
+                rows.append(
+                    (res.key, c.what, "", "", f"{c.value:.2f}", "", "", f"<= {c.limit:g}", "met" if c.met else missed)
+                )
     return rows
 
 
@@ -538,8 +615,13 @@ def record(results: list[Result], header: dict) -> None:
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="14- and 140-day archives, few pairs (a smoke test)")
-    parser.add_argument("--only", choices=TARGETS, action="append", metavar="TARGET",
-                        help=f"run only this target (repeatable): {', '.join(TARGETS)}")
+    parser.add_argument(
+        "--only",
+        choices=TARGETS,
+        action="append",
+        metavar="TARGET",
+        help=f"run only this target (repeatable): {', '.join(TARGETS)}",
+    )
     parser.add_argument("--pairs", type=int, help="timed pairs per target (default: per target, fewer with --quick)")
     parser.add_argument("--record", action="store_true", help=f"write {RESULTS_JSON.name} next to RESULTS.md")
     parser.add_argument("--markdown", action="store_true", help="print the summary table as Markdown")
@@ -553,16 +635,29 @@ def main(argv: list[str] | None = None) -> int:
         parser.error("--pairs must be at least 1")
 
     names = {"base": "14 days" if args.quick else "one year", "long": "140 days" if args.quick else "ten years"}
-    header = {"schema_version": 1, "date_utc": dt.datetime.now(dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
-              "quick": args.quick, "machine": machine(), "versions": versions(), "repository": repository(),
-              "load_average_start": [round(x, 2) for x in os.getloadavg()],
-              "advisor": {"whole_process": shell_text(ADVISOR) + " (PYTHONPATH=<repository root>, byte-compiled)",
-                          "in_process": f"{ADVISOR_ENTRY[0]}.{ADVISOR_ENTRY[1]}(argv)"}}
+    header = {
+        "schema_version": 1,
+        "date_utc": dt.datetime.now(dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "quick": args.quick,
+        "machine": machine(),
+        "versions": versions(),
+        "repository": repository(),
+        "load_average_start": [round(x, 2) for x in os.getloadavg()],
+        "advisor": {
+            "whole_process": shell_text(ADVISOR) + " (PYTHONPATH=<repository root>, byte-compiled)",
+            "in_process": f"{ADVISOR_ENTRY[0]}.{ADVISOR_ENTRY[1]}(argv)",
+        },
+    }
     mach, ver = header["machine"], header["versions"]
     print(f"{header['date_utc']}  {mach['cpu']}, {mach['cores']} cores, {mach['memory_gib']} GiB, {mach['system']}")
-    print("  " + ", ".join(f"{k} {v}" for k, v in ver.items()) + f"; commit {header['repository']['commit']}"
-          + (" (modified)" if header["repository"]["modified"] else "")
-          + f"; load average {header['load_average_start'][0]:.2f}" + ("; QUICK (smoke test)" if args.quick else ""))
+    print(
+        "  "
+        + ", ".join(f"{k} {v}" for k, v in ver.items())
+        + f"; commit {header['repository']['commit']}"
+        + (" (modified)" if header["repository"]["modified"] else "")
+        + f"; load average {header['load_average_start'][0]:.2f}"
+        + ("; QUICK (smoke test)" if args.quick else "")
+    )
 
     results, failed = [], False
     with tempfile.TemporaryDirectory(prefix="advisor-bench-cache-") as tmp:

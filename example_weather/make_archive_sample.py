@@ -48,11 +48,13 @@ def references_for(mast: pd.DataFrame) -> pd.DataFrame:
     at = days + pd.Timedelta(hours=REFERENCE_HOUR_UTC)
     at = at[(at >= times.iloc[0]) & (at <= times.iloc[-1])]
     pos = np.searchsorted(times.to_numpy(), at.to_numpy(), side="right") - 1
-    return pd.DataFrame({
-        "time": at.strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "air_temp_c": np.round(temp_c[pos], 1),
-        "note": "invented: after an astronomical correction",
-    })
+    return pd.DataFrame(
+        {
+            "time": at.strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "air_temp_c": np.round(temp_c[pos], 1),
+            "note": "invented: after an astronomical correction",
+        }
+    )
 
 
 def write(start: str, end: str, cadence_min: int, out: Path) -> list[Path]:

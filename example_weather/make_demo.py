@@ -100,8 +100,9 @@ def _hash_normal(counter: np.ndarray, seed: int, stream: int) -> np.ndarray:
     return np.sqrt(-2.0 * np.log(u1)) * np.cos(2.0 * np.pi * u2)
 
 
-def _sinusoid_field(t: np.ndarray, seed: int, stream: int, period_lo: float,
-                    period_hi: float, n: int = 12, slope: float = 0.5) -> np.ndarray:
+def _sinusoid_field(
+    t: np.ndarray, seed: int, stream: int, period_lo: float, period_hi: float, n: int = 12, slope: float = 0.5
+) -> np.ndarray:
     """Smooth random field with unit standard deviation: a sum of ``n`` sinusoids.
 
     Periods are log-uniform in [period_lo, period_hi] (same unit as ``t``), amplitudes grow
@@ -126,8 +127,7 @@ def _smoothstep(x: np.ndarray) -> np.ndarray:
 def _box(t_min: np.ndarray, start_min, end_min, ramp_min) -> np.ndarray:
     """Weight 1 on [start, end], smooth 0→1 / 1→0 ramps of ``ramp_min`` outside it."""
     ramp = np.maximum(ramp_min, 1e-9)
-    return (_smoothstep((t_min - (start_min - ramp)) / ramp)
-            * _smoothstep(((end_min + ramp) - t_min) / ramp))
+    return _smoothstep((t_min - (start_min - ramp)) / ramp) * _smoothstep(((end_min + ramp) - t_min) / ramp)
 
 
 def _value_noise(day: np.ndarray, seed: int, stream: int) -> np.ndarray:
@@ -152,11 +152,18 @@ def _sun(t_min: np.ndarray, lat_deg: float, lon_deg: float) -> dict[str, np.ndar
     year0 = when.astype("datetime64[Y]").astype("datetime64[m]")
     day_of_year0 = (when - year0).astype(np.float64) / 1440.0  # 0 at 1 Jan 00:00 UTC
     g = 2.0 * np.pi / 365.0 * (day_of_year0 - 0.5)
-    eqtime_min = 229.18 * (0.000075 + 0.001868 * np.cos(g) - 0.032077 * np.sin(g)
-                           - 0.014615 * np.cos(2 * g) - 0.040849 * np.sin(2 * g))
-    decl = (0.006918 - 0.399912 * np.cos(g) + 0.070257 * np.sin(g)
-            - 0.006758 * np.cos(2 * g) + 0.000907 * np.sin(2 * g)
-            - 0.002697 * np.cos(3 * g) + 0.00148 * np.sin(3 * g))
+    eqtime_min = 229.18 * (
+        0.000075 + 0.001868 * np.cos(g) - 0.032077 * np.sin(g) - 0.014615 * np.cos(2 * g) - 0.040849 * np.sin(2 * g)
+    )
+    decl = (
+        0.006918
+        - 0.399912 * np.cos(g)
+        + 0.070257 * np.sin(g)
+        - 0.006758 * np.cos(2 * g)
+        + 0.000907 * np.sin(2 * g)
+        - 0.002697 * np.cos(3 * g)
+        + 0.00148 * np.sin(3 * g)
+    )
     solar_min = t_min.astype(np.float64) + eqtime_min + 4.0 * lon_deg  # apparent solar time
     solar_hour = np.mod(solar_min / 60.0, 24.0)
     solar_day = np.floor(solar_min / 1440.0)
@@ -164,8 +171,7 @@ def _sun(t_min: np.ndarray, lat_deg: float, lon_deg: float) -> dict[str, np.ndar
     hour_angle = np.radians(15.0 * (solar_hour - 12.0))
     sin_el = np.sin(lat) * np.sin(decl) + np.cos(lat) * np.cos(decl) * np.cos(hour_angle)
     elevation_deg = np.degrees(np.arcsin(np.clip(sin_el, -1.0, 1.0)))
-    return {"elevation_deg": elevation_deg, "solar_hour": solar_hour,
-            "solar_day": solar_day, "decl_rad": decl}
+    return {"elevation_deg": elevation_deg, "solar_hour": solar_hour, "solar_day": solar_day, "decl_rad": decl}
 
 
 def _day_length_h(decl: np.ndarray, lat_deg: float) -> np.ndarray:
@@ -236,53 +242,118 @@ class Override(NamedTuple):
 # them; every other field is one of the drivers listed in ``synth_mast``.
 DEMO_WEEK_OVERRIDES: tuple[Override, ...] = (
     # the whole week: the story has exactly one rain spell, so the random ones are switched off
-    Override("random_rain", "2026-11-23T00:00", "2026-12-02T00:00", 0, 0.0,
-             "no random rain spells (nor their cloud, wind and cooling) in the demo week"),
+    Override(
+        "random_rain",
+        "2026-11-23T00:00",
+        "2026-12-02T00:00",
+        0,
+        0.0,
+        "no random rain spells (nor their cloud, wind and cooling) in the demo week",
+    ),
     # 26-27 Nov: a weak front; mild air ahead of it, pressure trough, a morning of rain on 27 Nov
-    Override("temp_offset_c", "2026-11-26T12:00", "2026-11-27T21:00", 360, 3.5,
-             "mild air ahead of the front (rain, not snow)"),
-    Override("pressure_anom_hpa", "2026-11-27T12:00", "2026-11-27T20:00", 1080, -5.0,
-             "pressure trough of the passing front"),
-    Override("cloud_frac", "2026-11-27T12:00", "2026-11-27T22:30", 150, 1.0,
-             "overcast around the rain"),
-    Override("rain_mm_h", "2026-11-27T16:00", "2026-11-27T20:30", 30, 1.6,
-             "rain spell 09:00-13:30 local, about 1-3 mm/h"),
-    Override("rain_moist", "2026-11-27T15:30", "2026-11-27T21:30", 90, 1.0,
-             "air near saturation while it rains (RH 95-100 %), drying slowly after"),
-    Override("wind_slow_ms", "2026-11-27T15:00", "2026-11-27T21:00", 90, 3.2,
-             "moderate breeze with the front"),
+    Override(
+        "temp_offset_c",
+        "2026-11-26T12:00",
+        "2026-11-27T21:00",
+        360,
+        3.5,
+        "mild air ahead of the front (rain, not snow)",
+    ),
+    Override(
+        "pressure_anom_hpa", "2026-11-27T12:00", "2026-11-27T20:00", 1080, -5.0, "pressure trough of the passing front"
+    ),
+    Override("cloud_frac", "2026-11-27T12:00", "2026-11-27T22:30", 150, 1.0, "overcast around the rain"),
+    Override(
+        "rain_mm_h", "2026-11-27T16:00", "2026-11-27T20:30", 30, 1.6, "rain spell 09:00-13:30 local, about 1-3 mm/h"
+    ),
+    Override(
+        "rain_moist",
+        "2026-11-27T15:30",
+        "2026-11-27T21:30",
+        90,
+        1.0,
+        "air near saturation while it rains (RH 95-100 %), drying slowly after",
+    ),
+    Override("wind_slow_ms", "2026-11-27T15:00", "2026-11-27T21:00", 90, 3.2, "moderate breeze with the front"),
     # 29-30 Nov night: clear and calm in the valley, so it cools to the dew point
-    Override("cloud_frac", "2026-11-29T20:00", "2026-12-01T06:00", 120, 0.05,
-             "clear sky from the night before the fog to the end of the week"),
-    Override("wind_slow_ms", "2026-11-29T23:00", "2026-11-30T17:00", 90, 0.8,
-             "calm valley night and morning (radiation fog needs calm)"),
-    Override("turb_rel", "2026-11-29T23:00", "2026-11-30T17:00", 90, 0.25,
-             "light, meandering wind"),
+    Override(
+        "cloud_frac",
+        "2026-11-29T20:00",
+        "2026-12-01T06:00",
+        120,
+        0.05,
+        "clear sky from the night before the fog to the end of the week",
+    ),
+    Override(
+        "wind_slow_ms",
+        "2026-11-29T23:00",
+        "2026-11-30T17:00",
+        90,
+        0.8,
+        "calm valley night and morning (radiation fog needs calm)",
+    ),
+    Override("turb_rel", "2026-11-29T23:00", "2026-11-30T17:00", 90, 0.25, "light, meandering wind"),
     # 30 Nov 06:00-10:00 local (13:00-17:00 UTC): valley fog
-    Override("fog_hold", "2026-11-30T13:00", "2026-11-30T17:00", 45, 1.0,
-             "valley fog: air saturated, morning warming held back until the fog lifts"),
+    Override(
+        "fog_hold",
+        "2026-11-30T13:00",
+        "2026-11-30T17:00",
+        45,
+        1.0,
+        "valley fog: air saturated, morning warming held back until the fog lifts",
+    ),
     # 30 Nov 12:00-16:00 local (19:00-23:00 UTC): windy afternoon
-    Override("wind_slow_ms", "2026-11-30T19:00", "2026-11-30T23:00", 30, 7.4,
-             "windy afternoon: mean about 7.4 m/s"),
-    Override("turb_rel", "2026-11-30T19:00", "2026-11-30T23:00", 30, 0.06,
-             "steady strong wind: 1-min means stay within about 6-9 m/s"),
-    Override("gust_base", "2026-11-30T19:00", "2026-11-30T23:00", 30, 1.40,
-             "gust factor about 1.4: gusts 10-14 m/s"),
+    Override("wind_slow_ms", "2026-11-30T19:00", "2026-11-30T23:00", 30, 7.4, "windy afternoon: mean about 7.4 m/s"),
+    Override(
+        "turb_rel",
+        "2026-11-30T19:00",
+        "2026-11-30T23:00",
+        30,
+        0.06,
+        "steady strong wind: 1-min means stay within about 6-9 m/s",
+    ),
+    Override("gust_base", "2026-11-30T19:00", "2026-11-30T23:00", 30, 1.40, "gust factor about 1.4: gusts 10-14 m/s"),
     # 30 Nov evening (after sunset ~23:40 UTC): calm, dry, clear, slowly cooling
-    Override("wind_slow_ms", "2026-11-30T23:40", "2026-12-01T06:00", 40, 0.9,
-             "wind dies at sunset: calm evening"),
-    Override("turb_rel", "2026-11-30T23:40", "2026-12-01T06:00", 40, 0.15,
-             "calm evening: little minute-to-minute variation"),
-    Override("gust_base", "2026-11-30T23:40", "2026-12-01T06:00", 40, 1.45,
-             "calm evening: gusts stay below about 2.5 m/s"),
-    Override("dew_deficit_c", "2026-11-30T18:00", "2026-12-01T00:00", 120, -0.8,
-             "dew point a little above the coming night's minimum: RH 60-80 % in the evening"),
-    Override("dew_deficit_c", "2026-12-01T00:00", "2026-12-01T06:00", 120, -0.8,
-             "dew point falls slowly (~0.1 degC/h) as dew and frost form", value_end=-0.2),
-    Override("temp_amp_scale", "2026-11-30T00:00", "2026-12-01T06:00", 240, 0.80,
-             "modest day-night range on 30 Nov: the evening cools gently (< 1.5 degC/h)"),
-    Override("temp_synoptic_c", "2026-11-29T12:00", "2026-12-01T06:00", 720, 0.0,
-             "steady air mass through the fog, wind and evening: no synoptic warming/cooling"),
+    Override("wind_slow_ms", "2026-11-30T23:40", "2026-12-01T06:00", 40, 0.9, "wind dies at sunset: calm evening"),
+    Override(
+        "turb_rel", "2026-11-30T23:40", "2026-12-01T06:00", 40, 0.15, "calm evening: little minute-to-minute variation"
+    ),
+    Override(
+        "gust_base", "2026-11-30T23:40", "2026-12-01T06:00", 40, 1.45, "calm evening: gusts stay below about 2.5 m/s"
+    ),
+    Override(
+        "dew_deficit_c",
+        "2026-11-30T18:00",
+        "2026-12-01T00:00",
+        120,
+        -0.8,
+        "dew point a little above the coming night's minimum: RH 60-80 % in the evening",
+    ),
+    Override(
+        "dew_deficit_c",
+        "2026-12-01T00:00",
+        "2026-12-01T06:00",
+        120,
+        -0.8,
+        "dew point falls slowly (~0.1 degC/h) as dew and frost form",
+        value_end=-0.2,
+    ),
+    Override(
+        "temp_amp_scale",
+        "2026-11-30T00:00",
+        "2026-12-01T06:00",
+        240,
+        0.80,
+        "modest day-night range on 30 Nov: the evening cools gently (< 1.5 degC/h)",
+    ),
+    Override(
+        "temp_synoptic_c",
+        "2026-11-29T12:00",
+        "2026-12-01T06:00",
+        720,
+        0.0,
+        "steady air mass through the fog, wind and evening: no synoptic warming/cooling",
+    ),
 )
 
 
@@ -298,8 +369,7 @@ def _minutes_since_epoch(value) -> int:
     return int((ts - pd.Timestamp(0, tz="UTC")) // pd.Timedelta(minutes=1))
 
 
-def _apply_overrides(drivers: dict[str, np.ndarray], t_min: np.ndarray,
-                     overrides: tuple[Override, ...]) -> None:
+def _apply_overrides(drivers: dict[str, np.ndarray], t_min: np.ndarray, overrides: tuple[Override, ...]) -> None:
     for ov in overrides:
         if ov.field not in drivers:
             raise KeyError(f"override names unknown driver {ov.field!r}")
@@ -313,8 +383,9 @@ def _apply_overrides(drivers: dict[str, np.ndarray], t_min: np.ndarray,
 
 
 # --- the generator -----------------------------------------------------------------------
-def _rain_spells(solar_day: np.ndarray, t_min: np.ndarray, seed: int,
-                 z_pressure_at) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _rain_spells(
+    solar_day: np.ndarray, t_min: np.ndarray, seed: int, z_pressure_at
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Random rain spells, at most one starting per solar day.
 
     A day gets a spell with probability 0.15 (+ up to 0.3 more under low pressure); it starts
@@ -343,9 +414,14 @@ def _rain_spells(solar_day: np.ndarray, t_min: np.ndarray, seed: int,
     return rate, spell, cloud
 
 
-def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
-               seed: int = DEFAULT_SEED, scenario: str | None = None,
-               extra_overrides: tuple = ()) -> pd.DataFrame:
+def synth_mast(
+    start_utc=None,
+    end_utc=None,
+    cadence_min: int = 1,
+    seed: int = DEFAULT_SEED,
+    scenario: str | None = None,
+    extra_overrides: tuple = (),
+) -> pd.DataFrame:
     """Invented one-minute mast records for the fictional Larch Basin site.
 
     Parameters
@@ -414,7 +490,8 @@ def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
     events = {"random_rain": np.ones_like(tf)}  # 1 keeps the seeded rain spells
     _apply_overrides(events, tf, tuple(o for o in overrides if o.field in events))
     rain_rate, rain_spell, rain_cloud = (
-        x * events["random_rain"] for x in _rain_spells(solar_day, tf, seed, z_pressure_at))
+        x * events["random_rain"] for x in _rain_spells(solar_day, tf, seed, z_pressure_at)
+    )
     windiness = 0.8 + 6.5 * _hash_uniform(solar_day.astype(np.int64), seed, 21) ** 2.5
     s_conv = _afternoon_wind_shape(h, day_len_h)
     wind_night = 0.7 + 1.3 * _value_noise(t_day, seed, 22)
@@ -423,18 +500,18 @@ def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
 
     cloud = 1.0 / (1.0 + np.exp(-(1.8 * (-0.75 * z_p + 0.66 * z_c) - 0.4)))
     drivers: dict[str, np.ndarray] = {
-        "cloud_frac": np.maximum(cloud, rain_cloud),          # [-] 0..1
-        "rain_mm_h": rain_rate,                               # [mm/h] slow rate
-        "rain_moist": rain_spell,                             # [-] pull Td up to T in rain
-        "fog_hold": np.zeros_like(tf),                        # [-] imposed saturation (fog)
-        "wind_slow_ms": wind_slow,                            # [m/s] wind before turbulence
+        "cloud_frac": np.maximum(cloud, rain_cloud),  # [-] 0..1
+        "rain_mm_h": rain_rate,  # [mm/h] slow rate
+        "rain_moist": rain_spell,  # [-] pull Td up to T in rain
+        "fog_hold": np.zeros_like(tf),  # [-] imposed saturation (fog)
+        "wind_slow_ms": wind_slow,  # [m/s] wind before turbulence
         "turb_rel": 0.12 + 0.08 * s_conv + 0.15 * np.clip((2.5 - wind_slow) / 2.5, 0.0, 1.0),
         "gust_base": 1.30 + 0.25 * s_conv + 0.15 * np.clip((3.0 - wind_slow) / 3.0, 0.0, 1.0),
-        "dew_deficit_c": 1.5 + 1.5 * season + 2.0 * z_m,      # [degC] below clear-night minimum
+        "dew_deficit_c": 1.5 + 1.5 * season + 2.0 * z_m,  # [degC] below clear-night minimum
         "temp_amp_scale": 0.85 + 0.25 * _value_noise(t_day, seed, 23),
-        "temp_synoptic_c": 3.0 * z_t,                         # [degC] air-mass anomaly
-        "temp_offset_c": -1.5 * rain_spell,                   # [degC] rain-cooled air
-        "pressure_anom_hpa": np.zeros_like(tf),               # [hPa]
+        "temp_synoptic_c": 3.0 * z_t,  # [degC] air-mass anomaly
+        "temp_offset_c": -1.5 * rain_spell,  # [degC] rain-cooled air
+        "pressure_anom_hpa": np.zeros_like(tf),  # [hPa]
     }
     _apply_overrides(drivers, tf, tuple(o for o in overrides if o.field not in events))
     d = drivers
@@ -444,8 +521,9 @@ def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
     amp = amp_clear * (1.0 - 0.55 * d["cloud_frac"])
     shape = _diurnal_temperature_shape(h, day_len_h) * (1.0 - 0.7 * d["fog_hold"])
     temp_mean = 6.5 + 12.5 * season + d["temp_synoptic_c"] + d["temp_offset_c"]
-    temp_c = (temp_mean + amp * (shape - 0.45)
-              + (0.06 + 0.2 * s_conv) * z_temp_fast + 0.04 * _hash_normal(t_min, seed, 31))
+    temp_c = (
+        temp_mean + amp * (shape - 0.45) + (0.06 + 0.2 * s_conv) * z_temp_fast + 0.04 * _hash_normal(t_min, seed, 31)
+    )
 
     # dew point: slow; clear calm nights reach it, rain and fog pull it up to the air temperature
     dew_free = temp_mean - 0.45 * amp_clear - d["dew_deficit_c"]
@@ -465,8 +543,7 @@ def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
     gust_ms = wind_ms * gust_factor + 0.05 * np.abs(_hash_normal(t_min, seed, 42))
 
     # rain, fog and visibility (extinction coefficients add: 1/V sums)
-    rain_mm_h = np.maximum(d["rain_mm_h"], 0.0) * np.exp(
-        0.35 * _hash_normal(t_min, seed, 51) - 0.06)
+    rain_mm_h = np.maximum(d["rain_mm_h"], 0.0) * np.exp(0.35 * _hash_normal(t_min, seed, 51) - 0.06)
     calm = np.clip((3.0 - d["wind_slow_ms"]) / 1.5, 0.0, 1.0)
     no_rain = np.clip(1.0 - d["rain_mm_h"] / 0.3, 0.0, 1.0)
     fog = np.clip((0.9 - spread_c) / 0.6, 0.0, 1.0) * calm * no_rain  # 0..1 fog intensity
@@ -481,26 +558,38 @@ def synth_mast(start_utc=None, end_utc=None, cadence_min: int = 1,
     up = sin_el > 0.0
     clear_wm2 = np.where(up, 1.04 * 1098.0 * sin_el * np.exp(-0.057 / np.where(up, sin_el, 1.0)), 0.0)
     c = d["cloud_frac"]
-    trans = ((1.0 - 0.75 * c**3.4) * (1.0 + 0.5 * c * (1.0 - c) * z_cloud_fast)
-             * (1.0 - 0.85 * fog) * (1.0 - 0.4 * (1.0 - no_rain)))
+    trans = (
+        (1.0 - 0.75 * c**3.4)
+        * (1.0 + 0.5 * c * (1.0 - c) * z_cloud_fast)
+        * (1.0 - 0.85 * fog)
+        * (1.0 - 0.4 * (1.0 - no_rain))
+    )
     solar_wm2 = clear_wm2 * np.clip(trans, 0.05, 1.1) * (1.0 + 0.005 * _hash_normal(t_min, seed, 61))
 
     # station pressure: ~894 hPa at 1050 m, synoptic drift, semi-diurnal tide
-    baro_hpa = (894.5 + 2.6 * z_p + 0.5 * np.cos(2.0 * np.pi * (h - 10.0) / 12.0)
-                + d["pressure_anom_hpa"] + 0.03 * _hash_normal(t_min, seed, 71))
+    baro_hpa = (
+        894.5
+        + 2.6 * z_p
+        + 0.5 * np.cos(2.0 * np.pi * (h - 10.0) / 12.0)
+        + d["pressure_anom_hpa"]
+        + 0.03 * _hash_normal(t_min, seed, 71)
+    )
 
     # logger units and resolution
-    out = pd.DataFrame({
-        "timestamp": _local_iso(t_min),
-        "wind_avg_kn": np.round(wind_ms * KN_PER_MS, 1),
-        "wind_max_kn": np.round(gust_ms * KN_PER_MS, 1),
-        "temp_f": np.round(temp_c * 9.0 / 5.0 + 32.0, 1),
-        "rh_pct": np.round(rh_pct, 1),
-        "baro_hpa": np.round(baro_hpa, 1),
-        "rain_mm_h": np.round(rain_mm_h, 1),
-        "vis_m": (np.round(vis_m / 10.0) * 10).astype(np.int64),
-        "solar_wm2": np.round(np.maximum(solar_wm2, 0.0)).astype(np.int64),
-    }, columns=list(COLUMNS))
+    out = pd.DataFrame(
+        {
+            "timestamp": _local_iso(t_min),
+            "wind_avg_kn": np.round(wind_ms * KN_PER_MS, 1),
+            "wind_max_kn": np.round(gust_ms * KN_PER_MS, 1),
+            "temp_f": np.round(temp_c * 9.0 / 5.0 + 32.0, 1),
+            "rh_pct": np.round(rh_pct, 1),
+            "baro_hpa": np.round(baro_hpa, 1),
+            "rain_mm_h": np.round(rain_mm_h, 1),
+            "vis_m": (np.round(vis_m / 10.0) * 10).astype(np.int64),
+            "solar_wm2": np.round(np.maximum(solar_wm2, 0.0)).astype(np.int64),
+        },
+        columns=list(COLUMNS),
+    )
     return out
 
 
@@ -540,11 +629,13 @@ def reference_scans(mast: pd.DataFrame) -> pd.DataFrame:
     if len(missing):
         raise ValueError(f"reference times not in the mast records: {list(missing)}")
     temp_f = temp_by_time.loc[times].to_numpy()
-    return pd.DataFrame({
-        "time": times.strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "air_temp_c": np.round((temp_f - 32.0) * 5.0 / 9.0, 1),
-        "note": [note for _, note in DEMO_REFERENCE_SCANS],
-    })
+    return pd.DataFrame(
+        {
+            "time": times.strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "air_temp_c": np.round((temp_f - 32.0) * 5.0 / 9.0, 1),
+            "note": [note for _, note in DEMO_REFERENCE_SCANS],
+        }
+    )
 
 
 # --- files and CLI -----------------------------------------------------------------------
@@ -565,8 +656,7 @@ def write_demo(outdir: Path = HERE, seed: int = DEFAULT_SEED) -> dict[str, int]:
     return sizes
 
 
-def write_archive(start_utc, end_utc, out: Path, seed: int = DEFAULT_SEED,
-                  cadence_min: int = 1) -> dict[str, int]:
+def write_archive(start_utc, end_utc, out: Path, seed: int = DEFAULT_SEED, cadence_min: int = 1) -> dict[str, int]:
     """Write a long generic archive (no scenario); return {path: bytes}."""
     frame = synth_mast(start_utc, end_utc, cadence_min=cadence_min, seed=seed, scenario=None)
     return {str(out): _write_csv(frame, Path(out))}
@@ -574,12 +664,11 @@ def write_archive(start_utc, end_utc, out: Path, seed: int = DEFAULT_SEED,
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(
-        prog="make_demo.py",
-        description=f"Write invented weather-mast data for the {SITE_NAME}.")
+        prog="make_demo.py", description=f"Write invented weather-mast data for the {SITE_NAME}."
+    )
     sub = parser.add_subparsers(dest="command", required=True)
     p_demo = sub.add_parser("demo", help="write the demo week and the reference registry")
-    p_demo.add_argument("--outdir", type=Path, default=HERE,
-                        help="output folder (default: next to this script)")
+    p_demo.add_argument("--outdir", type=Path, default=HERE, help="output folder (default: next to this script)")
     p_demo.add_argument("--seed", type=int, default=DEFAULT_SEED)
     p_arch = sub.add_parser("archive", help="write a long generic archive (no scenario)")
     p_arch.add_argument("--start", required=True, help="first record, UTC (e.g. 2025-12-01)")

@@ -63,41 +63,77 @@ Override = md.Override
 
 # Applied after the demo week's overrides (which end at 2026-12-01T06:00Z).  Times are UTC.
 FORECAST_OVERRIDES: tuple = (
-    Override("random_rain", "2026-12-01T00:00", "2026-12-03T00:00", 0, 0.0,
-             "no rain in the forecast: the story is fog and wind"),
-    Override("cloud_frac", "2026-12-01T00:00", "2026-12-03T00:00", 120, 0.05,
-             "clear sky throughout (radiation fog at night, sunshine by day)"),
-    Override("temp_synoptic_c", "2026-12-01T00:00", "2026-12-03T00:00", 720, 0.0,
-             "steady air mass: no synoptic warming or cooling"),
-    Override("temp_amp_scale", "2026-12-01T00:00", "2026-12-03T00:00", 240, 0.80,
-             "the same modest day-night range as on 30 Nov"),
+    Override(
+        "random_rain",
+        "2026-12-01T00:00",
+        "2026-12-03T00:00",
+        0,
+        0.0,
+        "no rain in the forecast: the story is fog and wind",
+    ),
+    Override(
+        "cloud_frac",
+        "2026-12-01T00:00",
+        "2026-12-03T00:00",
+        120,
+        0.05,
+        "clear sky throughout (radiation fog at night, sunshine by day)",
+    ),
+    Override(
+        "temp_synoptic_c",
+        "2026-12-01T00:00",
+        "2026-12-03T00:00",
+        720,
+        0.0,
+        "steady air mass: no synoptic warming or cooling",
+    ),
+    Override(
+        "temp_amp_scale",
+        "2026-12-01T00:00",
+        "2026-12-03T00:00",
+        240,
+        0.80,
+        "the same modest day-night range as on 30 Nov",
+    ),
     # the night turns foggy
-    Override("wind_slow_ms", "2026-12-01T06:00", "2026-12-01T18:00", 60, 0.8,
-             "calm valley night and morning (radiation fog needs calm)"),
-    Override("turb_rel", "2026-12-01T06:00", "2026-12-01T18:00", 60, 0.2,
-             "light, meandering wind"),
-    Override("gust_base", "2026-12-01T06:00", "2026-12-01T18:00", 60, 1.45,
-             "gusts stay low in the calm"),
-    Override("dew_deficit_c", "2026-12-01T06:00", "2026-12-01T10:00", 60, -0.2,
-             "dew point close to the night's minimum: the air nears saturation", value_end=-1.5),
-    Override("fog_hold", "2026-12-01T10:00", "2026-12-01T16:30", 40, 1.0,
-             "valley fog until about 09:30 local: air saturated, morning warming held back"),
-    Override("dew_deficit_c", "2026-12-01T16:30", "2026-12-03T00:00", 180, 1.0,
-             "drier air after the fog lifts"),
+    Override(
+        "wind_slow_ms",
+        "2026-12-01T06:00",
+        "2026-12-01T18:00",
+        60,
+        0.8,
+        "calm valley night and morning (radiation fog needs calm)",
+    ),
+    Override("turb_rel", "2026-12-01T06:00", "2026-12-01T18:00", 60, 0.2, "light, meandering wind"),
+    Override("gust_base", "2026-12-01T06:00", "2026-12-01T18:00", 60, 1.45, "gusts stay low in the calm"),
+    Override(
+        "dew_deficit_c",
+        "2026-12-01T06:00",
+        "2026-12-01T10:00",
+        60,
+        -0.2,
+        "dew point close to the night's minimum: the air nears saturation",
+        value_end=-1.5,
+    ),
+    Override(
+        "fog_hold",
+        "2026-12-01T10:00",
+        "2026-12-01T16:30",
+        40,
+        1.0,
+        "valley fog until about 09:30 local: air saturated, morning warming held back",
+    ),
+    Override("dew_deficit_c", "2026-12-01T16:30", "2026-12-03T00:00", 180, 1.0, "drier air after the fog lifts"),
     # windy afternoon
-    Override("wind_slow_ms", "2026-12-01T19:00", "2026-12-01T23:00", 30, 6.4,
-             "windy afternoon: mean about 6-7 m/s"),
-    Override("turb_rel", "2026-12-01T19:00", "2026-12-01T23:00", 30, 0.06,
-             "steady strong wind"),
-    Override("gust_base", "2026-12-01T19:00", "2026-12-01T23:00", 30, 1.40,
-             "gust factor about 1.4"),
+    Override("wind_slow_ms", "2026-12-01T19:00", "2026-12-01T23:00", 30, 6.4, "windy afternoon: mean about 6-7 m/s"),
+    Override("turb_rel", "2026-12-01T19:00", "2026-12-01T23:00", 30, 0.06, "steady strong wind"),
+    Override("gust_base", "2026-12-01T19:00", "2026-12-01T23:00", 30, 1.40, "gust factor about 1.4"),
     # calm evening and night of 1-2 Dec
-    Override("wind_slow_ms", "2026-12-01T23:40", "2026-12-03T00:00", 40, 1.0,
-             "wind dies at sunset: calm evening and night"),
-    Override("turb_rel", "2026-12-01T23:40", "2026-12-03T00:00", 40, 0.15,
-             "calm: little minute-to-minute variation"),
-    Override("gust_base", "2026-12-01T23:40", "2026-12-03T00:00", 40, 1.45,
-             "calm: gusts stay low"),
+    Override(
+        "wind_slow_ms", "2026-12-01T23:40", "2026-12-03T00:00", 40, 1.0, "wind dies at sunset: calm evening and night"
+    ),
+    Override("turb_rel", "2026-12-01T23:40", "2026-12-03T00:00", 40, 0.15, "calm: little minute-to-minute variation"),
+    Override("gust_base", "2026-12-01T23:40", "2026-12-03T00:00", 40, 1.45, "calm: gusts stay low"),
 )
 
 
@@ -111,8 +147,14 @@ def synth_forecast(seed: int = md.DEFAULT_SEED) -> pd.DataFrame:
         ``CADENCE_MIN`` minutes from ``FIRST_STEP_UTC`` to ``LAST_STEP_UTC``, without the rows of
         ``DROPOUT_UTC``; ``kind`` = ``forecast``; ``issued`` = ``ISSUED_UTC``.
     """
-    frame = md.synth_mast(FIRST_STEP_UTC, LAST_STEP_UTC, cadence_min=CADENCE_MIN, seed=seed,
-                          scenario="demo_week", extra_overrides=FORECAST_OVERRIDES)
+    frame = md.synth_mast(
+        FIRST_STEP_UTC,
+        LAST_STEP_UTC,
+        cadence_min=CADENCE_MIN,
+        seed=seed,
+        scenario="demo_week",
+        extra_overrides=FORECAST_OVERRIDES,
+    )
     utc = pd.to_datetime(frame["timestamp"], format="ISO8601", utc=True)
     lo, hi = (pd.Timestamp(t) for t in DROPOUT_UTC)
     keep = ~((utc >= lo) & (utc <= hi)).to_numpy()
@@ -128,10 +170,15 @@ def write_forecast(out: Path = HERE / FORECAST_FILE, seed: int = md.DEFAULT_SEED
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="make_forecast.py",
-                                     description=f"Write the invented demo forecast for the {md.SITE_NAME}.")
-    parser.add_argument("--out", type=Path, default=HERE / FORECAST_FILE,
-                        help=f"output CSV (default: {FORECAST_FILE} next to this script)")
+    parser = argparse.ArgumentParser(
+        prog="make_forecast.py", description=f"Write the invented demo forecast for the {md.SITE_NAME}."
+    )
+    parser.add_argument(
+        "--out",
+        type=Path,
+        default=HERE / FORECAST_FILE,
+        help=f"output CSV (default: {FORECAST_FILE} next to this script)",
+    )
     parser.add_argument("--seed", type=int, default=md.DEFAULT_SEED)
     args = parser.parse_args(argv)
     size = write_forecast(args.out, args.seed)

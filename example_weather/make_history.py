@@ -56,9 +56,9 @@ import make_demo  # noqa: E402  (the demo weather generator beside this file)
 
 DEFAULT_SEED = 20251124
 DEFAULT_ATTEMPTS = 420
-HISTORY_START_UTC = "2025-11-24T00:00:00Z"   # the year before the demo week
+HISTORY_START_UTC = "2025-11-24T00:00:00Z"  # the year before the demo week
 HISTORY_END_UTC = "2026-11-23T23:59:00Z"
-WARMUP_H = 2                                  # weather before the first attempt, for 1-h rates
+WARMUP_H = 2  # weather before the first attempt, for 1-h rates
 HISTORY_FILE = "larch_basin_history.csv"
 DAYLIGHT_KEEP = 0.35
 STOW_WIND_MS = 12.0
@@ -67,14 +67,34 @@ SATURATION_KNOT_C = 3.0
 
 #: The invented mechanism: log-odds of a usable result per term (see the module docstring).
 GROUND_TRUTH = {
-    "scan": {"intercept": 3.0, "wind_gust_ms_sq": -0.06,
-             "dew_point_spread_c_shortfall_below_3": -1.2, "abs_air_temp_rate_c_per_h": 0.0},
-    "astronomical": {"intercept": 2.5, "wind_gust_ms_sq": -0.03,
-                     "dew_point_spread_c_shortfall_below_3": 0.0, "abs_air_temp_rate_c_per_h": -1.0},
+    "scan": {
+        "intercept": 3.0,
+        "wind_gust_ms_sq": -0.06,
+        "dew_point_spread_c_shortfall_below_3": -1.2,
+        "abs_air_temp_rate_c_per_h": 0.0,
+    },
+    "astronomical": {
+        "intercept": 2.5,
+        "wind_gust_ms_sq": -0.03,
+        "dew_point_spread_c_shortfall_below_3": 0.0,
+        "abs_air_temp_rate_c_per_h": -1.0,
+    },
 }
-COLUMNS = ("time", "method", "usable", "residual_rms_um", "wind_mean_ms", "wind_gust_ms", "air_temp_c",
-           "rel_humidity_pct", "pressure_hpa", "precip_mm_h", "visibility_m", "solar_wm2",
-           "air_temp_rate_c_per_h")
+COLUMNS = (
+    "time",
+    "method",
+    "usable",
+    "residual_rms_um",
+    "wind_mean_ms",
+    "wind_gust_ms",
+    "air_temp_c",
+    "rel_humidity_pct",
+    "pressure_hpa",
+    "precip_mm_h",
+    "visibility_m",
+    "solar_wm2",
+    "air_temp_rate_c_per_h",
+)
 
 
 def true_p_usable(method: str, wind_gust_ms, dew_point_spread_c, air_temp_rate_c_per_h) -> np.ndarray:
@@ -82,9 +102,12 @@ def true_p_usable(method: str, wind_gust_ms, dew_point_spread_c, air_temp_rate_c
     b = GROUND_TRUTH[method]
     gust = np.asarray(wind_gust_ms, dtype=float)
     shortfall = np.maximum(0.0, SATURATION_KNOT_C - np.asarray(dew_point_spread_c, dtype=float))
-    logit = (b["intercept"] + b["wind_gust_ms_sq"] * gust**2
-             + b["dew_point_spread_c_shortfall_below_3"] * shortfall
-             + b["abs_air_temp_rate_c_per_h"] * np.abs(np.asarray(air_temp_rate_c_per_h, dtype=float)))
+    logit = (
+        b["intercept"]
+        + b["wind_gust_ms_sq"] * gust**2
+        + b["dew_point_spread_c_shortfall_below_3"] * shortfall
+        + b["abs_air_temp_rate_c_per_h"] * np.abs(np.asarray(air_temp_rate_c_per_h, dtype=float))
+    )
     return 1.0 / (1.0 + np.exp(-logit))
 
 
@@ -122,8 +145,12 @@ def make_history(seed: int = DEFAULT_SEED, n_attempts: int = DEFAULT_ATTEMPTS, w
     times = pd.DatetimeIndex(t0 + pd.to_timedelta(offsets, unit="min"))
     f = compute_features(frame, times, site, Registry.empty(), 86.0)
     night = f["is_night"].to_numpy()
-    kept = ((night | (keep_draw < DAYLIGHT_KEEP)) & (f["wind_mean_ms"].to_numpy() <= STOW_WIND_MS)
-            & f["data_ok"].to_numpy() & ~pd.Index(offsets).duplicated())
+    kept = (
+        (night | (keep_draw < DAYLIGHT_KEEP))
+        & (f["wind_mean_ms"].to_numpy() <= STOW_WIND_MS)
+        & f["data_ok"].to_numpy()
+        & ~pd.Index(offsets).duplicated()
+    )
     chosen = np.flatnonzero(kept)[:n_attempts]
     if len(chosen) < n_attempts:
         raise ValueError(f"only {len(chosen)} attempt times found, asked for {n_attempts}")
@@ -132,27 +159,31 @@ def make_history(seed: int = DEFAULT_SEED, n_attempts: int = DEFAULT_ATTEMPTS, w
     method = np.where(method_draw[chosen] < SCAN_SHARE, "scan", "astronomical")
 
     gust, spread, rate = (f[c].to_numpy() for c in ("wind_gust_ms", "dew_point_spread_c", "air_temp_rate_c_per_h"))
-    p = np.where(method == "scan", true_p_usable("scan", gust, spread, rate),
-                 true_p_usable("astronomical", gust, spread, rate))
+    p = np.where(
+        method == "scan", true_p_usable("scan", gust, spread, rate), true_p_usable("astronomical", gust, spread, rate)
+    )
     usable = outcome_draw[chosen] < p
     rms = np.where(usable, 120.0 + 90.0 * rms_draw[chosen], 225.0 + 225.0 * rms_draw[chosen])
     rms = np.where(~usable & (no_map_draw[chosen] < 0.4), np.nan, np.round(rms))
 
-    out = pd.DataFrame({
-        "time": pd.DatetimeIndex(f["time"]).strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "method": method,
-        "usable": np.where(usable, "yes", "no"),
-        "residual_rms_um": rms,
-        "wind_mean_ms": f["wind_mean_ms"].round(2),
-        "wind_gust_ms": f["wind_gust_ms"].round(2),
-        "air_temp_c": f["air_temp_c"].round(2),
-        "rel_humidity_pct": f["rel_humidity_pct"].round(1),
-        "pressure_hpa": f["pressure_hpa"].round(1),
-        "precip_mm_h": f["precip_mm_h"].round(1),
-        "visibility_m": f["visibility_m"].round(0),
-        "solar_wm2": f["solar_wm2"].round(0),
-        "air_temp_rate_c_per_h": f["air_temp_rate_c_per_h"].round(2),
-    }, columns=list(COLUMNS))
+    out = pd.DataFrame(
+        {
+            "time": pd.DatetimeIndex(f["time"]).strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "method": method,
+            "usable": np.where(usable, "yes", "no"),
+            "residual_rms_um": rms,
+            "wind_mean_ms": f["wind_mean_ms"].round(2),
+            "wind_gust_ms": f["wind_gust_ms"].round(2),
+            "air_temp_c": f["air_temp_c"].round(2),
+            "rel_humidity_pct": f["rel_humidity_pct"].round(1),
+            "pressure_hpa": f["pressure_hpa"].round(1),
+            "precip_mm_h": f["precip_mm_h"].round(1),
+            "visibility_m": f["visibility_m"].round(0),
+            "solar_wm2": f["solar_wm2"].round(0),
+            "air_temp_rate_c_per_h": f["air_temp_rate_c_per_h"].round(2),
+        },
+        columns=list(COLUMNS),
+    )
     return out
 
 
@@ -166,9 +197,12 @@ def write_history(out: Path, seed: int = DEFAULT_SEED, n_attempts: int = DEFAULT
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="make_history.py",
-                                     description="Write an INVENTED history of attempts for the fictional Larch Basin site.")
-    parser.add_argument("--out", type=Path, default=HERE / HISTORY_FILE, help=f"output CSV (default: {HISTORY_FILE} here)")
+    parser = argparse.ArgumentParser(
+        prog="make_history.py", description="Write an INVENTED history of attempts for the fictional Larch Basin site."
+    )
+    parser.add_argument(
+        "--out", type=Path, default=HERE / HISTORY_FILE, help=f"output CSV (default: {HISTORY_FILE} here)"
+    )
     parser.add_argument("--seed", type=int, default=DEFAULT_SEED, help="seed of the attempts and outcomes")
     parser.add_argument("--attempts", type=int, default=DEFAULT_ATTEMPTS, help="number of attempts")
     args = parser.parse_args(argv)

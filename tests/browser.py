@@ -56,13 +56,30 @@ class Browser:
             os.dup2(high_r, 3)
             os.dup2(high_w, 4)
 
-        args = [executable, "--headless", "--no-sandbox", "--disable-gpu", "--hide-scrollbars",
-                "--no-first-run", "--no-default-browser-check", "--disable-extensions", "--mute-audio",
-                f"--user-data-dir={self.profile}", "--remote-debugging-pipe", "about:blank"]
+        args = [
+            executable,
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--hide-scrollbars",
+            "--no-first-run",
+            "--no-default-browser-check",
+            "--disable-extensions",
+            "--mute-audio",
+            f"--user-data-dir={self.profile}",
+            "--remote-debugging-pipe",
+            "about:blank",
+        ]
         # close_fds=False: the fds placed on 3 and 4 must survive into chromium; every other fd of
         # this process is non-inheritable (PEP 446), so nothing else leaks
-        self.proc = subprocess.Popen(args, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                                     stderr=subprocess.DEVNULL, preexec_fn=place_fds, close_fds=False)
+        self.proc = subprocess.Popen(
+            args,
+            stdin=subprocess.DEVNULL,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+            preexec_fn=place_fds,
+            close_fds=False,
+        )
         os.close(high_r)
         os.close(high_w)
         self._buffer = b""
@@ -81,7 +98,7 @@ class Browser:
         self.close()
 
     def close(self) -> None:
-        with contextlib.suppress(Exception):      # the browser may already be gone
+        with contextlib.suppress(Exception):  # the browser may already be gone
             self.send("Browser.close")
         try:
             self.proc.wait(timeout=10)
@@ -133,8 +150,11 @@ class Browser:
         """A new tab showing ``path`` in a ``width`` × ``height`` CSS-pixel viewport, loaded."""
         target = self.send("Target.createTarget", {"url": "about:blank"})["targetId"]
         session = self.send("Target.attachToTarget", {"targetId": target, "flatten": True})["sessionId"]
-        self.send("Emulation.setDeviceMetricsOverride", {"width": width, "height": height, "deviceScaleFactor": 1,
-                                                         "mobile": mobile}, session)
+        self.send(
+            "Emulation.setDeviceMetricsOverride",
+            {"width": width, "height": height, "deviceScaleFactor": 1, "mobile": mobile},
+            session,
+        )
         self.send("Page.enable", {}, session)
         self.send("Page.navigate", {"url": Path(path).resolve().as_uri()}, session)
         self.wait_event("Page.loadEventFired", session)
@@ -149,8 +169,9 @@ class Page:
 
     def evaluate(self, expression: str):
         """The JSON value of a JavaScript expression in the page."""
-        result = self.browser.send("Runtime.evaluate", {"expression": expression, "returnByValue": True,
-                                                        "awaitPromise": True}, self.session)
+        result = self.browser.send(
+            "Runtime.evaluate", {"expression": expression, "returnByValue": True, "awaitPromise": True}, self.session
+        )
         if "exceptionDetails" in result:
             raise RuntimeError(f"page script failed: {result['exceptionDetails']}")
         return result["result"].get("value")
@@ -170,8 +191,8 @@ def decode_png(data: bytes) -> np.ndarray:
     assert data[:8] == b"\x89PNG\r\n\x1a\n", "not a PNG"
     pos, idat, header = 8, b"", None
     while pos < len(data):
-        length, kind = struct.unpack(">I4s", data[pos:pos + 8])
-        body = data[pos + 8:pos + 8 + length]
+        length, kind = struct.unpack(">I4s", data[pos : pos + 8])
+        body = data[pos + 8 : pos + 8 + length]
         if kind == b"IHDR":
             header = struct.unpack(">IIBBBBB", body)
         elif kind == b"IDAT":

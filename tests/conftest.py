@@ -12,36 +12,49 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from advisor.decision import explain
+from advisor.evaluation.evaluate import evaluate
+from advisor.explain import explain
 from advisor.features import CATALOGUE
 from advisor.io.feed import canonical_frame
-from advisor.evaluation.evaluate import evaluate
 from advisor.io.references import Registry
-from advisor.rules.loader import default_rule_files, load_rules
 from advisor.io.site import FeedLayout, load_site
+from advisor.rules.loader import default_rule_files, load_rules
 
 # A winter night at the demo site: sunset is near 00:05 UTC on 15 Jan, so 04:00 UTC on the
 # 16th is about four hours after sunset.
 NIGHT_UTC = pd.Timestamp("2026-01-16T04:00:00Z")
 
 
-def weather_table(end=NIGHT_UTC, hours=3.0, step_min=1.0, wind_mean_ms=1.5, wind_gust_ms=2.5,
-                  air_temp_c=2.0, temp_rate_c_per_h=-0.4, rel_humidity_pct=70.0, precip_mm_h=0.0,
-                  visibility_m=30000.0, solar_wm2=0.0, **extra) -> pd.DataFrame:
+def weather_table(
+    end=NIGHT_UTC,
+    hours=3.0,
+    step_min=1.0,
+    wind_mean_ms=1.5,
+    wind_gust_ms=2.5,
+    air_temp_c=2.0,
+    temp_rate_c_per_h=-0.4,
+    rel_humidity_pct=70.0,
+    precip_mm_h=0.0,
+    visibility_m=30000.0,
+    solar_wm2=0.0,
+    **extra,
+) -> pd.DataFrame:
     """A canonical-name table (SI, ISO times with Z) ending at ``end``."""
     n = int(hours * 60 / step_min) + 1
     times = pd.date_range(end=end, periods=n, freq=pd.Timedelta(minutes=step_min))
     hours_before = (times - end).total_seconds().to_numpy() / 3600.0
-    table = pd.DataFrame({
-        "time": times.strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "wind_mean_ms": np.full(n, wind_mean_ms),
-        "wind_gust_ms": np.full(n, wind_gust_ms),
-        "air_temp_c": air_temp_c + temp_rate_c_per_h * hours_before,
-        "rel_humidity_pct": np.full(n, rel_humidity_pct),
-        "precip_mm_h": np.full(n, precip_mm_h),
-        "visibility_m": np.full(n, visibility_m),
-        "solar_wm2": np.full(n, solar_wm2),
-    })
+    table = pd.DataFrame(
+        {
+            "time": times.strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "wind_mean_ms": np.full(n, wind_mean_ms),
+            "wind_gust_ms": np.full(n, wind_gust_ms),
+            "air_temp_c": air_temp_c + temp_rate_c_per_h * hours_before,
+            "rel_humidity_pct": np.full(n, rel_humidity_pct),
+            "precip_mm_h": np.full(n, precip_mm_h),
+            "visibility_m": np.full(n, visibility_m),
+            "solar_wm2": np.full(n, solar_wm2),
+        }
+    )
     for k, v in extra.items():
         table[k] = v
     return table
@@ -58,7 +71,9 @@ def default_rules():
 
 
 def registry_at(time_utc, air_temp_c) -> Registry:
-    return Registry(pd.DatetimeIndex([pd.Timestamp(time_utc)]).tz_convert("UTC"), np.array([float(air_temp_c)]), ("test",))
+    return Registry(
+        pd.DatetimeIndex([pd.Timestamp(time_utc)]).tz_convert("UTC"), np.array([float(air_temp_c)]), ("test",)
+    )
 
 
 @pytest.fixture()
@@ -76,8 +91,7 @@ def call_for(demo_site, default_rules):
         feed = canonical_frame(table, layout or FeedLayout(max_feed_age_min=site.feed.max_feed_age_min))
         if registry is None:
             registry = registry_at(pd.Timestamp(at) - pd.Timedelta(hours=2), table["air_temp_c"].iloc[-1] + 0.8)
-        decisions = evaluate(feed.frame, pd.DatetimeIndex([pd.Timestamp(at)]), site, registry,
-                             default_rules, freq_ghz)
+        decisions = evaluate(feed.frame, pd.DatetimeIndex([pd.Timestamp(at)]), site, registry, default_rules, freq_ghz)
         assert len(decisions.verdict) == 1, "one evaluation time, one verdict"
         return explain(decisions, 0)
 

@@ -29,13 +29,21 @@ from .browser import Browser, decode_png, find_chromium
 from .conftest import NIGHT_UTC, weather_table
 
 SIZES = {"wall": (1920, 1080, False), "phone": (390, 844, True)}
-NEXT = {"scan": {"start_utc": "2026-01-16T06:10:00Z", "end_utc": "2026-01-16T09:00:00Z", "length_min": 170.0},
-        "astronomical": None}
+NEXT = {
+    "scan": {"start_utc": "2026-01-16T06:10:00Z", "end_utc": "2026-01-16T09:00:00Z", "length_min": 170.0},
+    "astronomical": None,
+}
 
 
 def _ctx(next_window=None) -> Context:
-    return Context(site_name="Test Site (invented)", time_zone="America/Denver", feed_source="/data/mast.csv",
-                   is_demo=True, data_quality={}, next_window=next_window)
+    return Context(
+        site_name="Test Site (invented)",
+        time_zone="America/Denver",
+        feed_source="/data/mast.csv",
+        is_demo=True,
+        data_quality={},
+        next_window=next_window,
+    )
 
 
 def _page(call, tmp_path: Path, name: str, issued_ago_min: float = 1.0, next_window=None) -> Path:
@@ -50,14 +58,19 @@ def _page(call, tmp_path: Path, name: str, issued_ago_min: float = 1.0, next_win
 def pages(call_for, tmp_path):
     return {
         "scan": (_page(call_for(weather_table()), tmp_path, "scan", next_window=NEXT), "scan"),
-        "windy": (_page(call_for(weather_table(wind_mean_ms=6.0, wind_gust_ms=11.0)), tmp_path, "windy",
-                        next_window=NEXT), "postpone"),
-        "stale": (_page(call_for(weather_table(), at=NIGHT_UTC + pd.Timedelta(hours=5)), tmp_path, "stale"),
-                  "undetermined"),
+        "windy": (
+            _page(call_for(weather_table(wind_mean_ms=6.0, wind_gust_ms=11.0)), tmp_path, "windy", next_window=NEXT),
+            "postpone",
+        ),
+        "stale": (
+            _page(call_for(weather_table(), at=NIGHT_UTC + pd.Timedelta(hours=5)), tmp_path, "stale"),
+            "undetermined",
+        ),
     }
 
 
 # --- the page as a file ----------------------------------------------------------------------
+
 
 def test_page_loads_nothing_from_elsewhere(pages):
     for path, _ in pages.values():
@@ -71,7 +84,7 @@ def test_page_names_what_blocks_each_method_and_the_next_window(call_for, tmp_pa
     for method in METHODS:
         assert "blocked by: " + blocked_names(call, method)[0] in text.replace("\u00a0", " ")
     assert 'id="next"' in text and "Next window: laser scan" in text and "for 2 h 50 min" in text.replace("\u00a0", " ")
-    assert "Mean wind 6.0" in text.replace("\u00a0", " ")         # the cause, with its number
+    assert "Mean wind 6.0" in text.replace("\u00a0", " ")  # the cause, with its number
 
 
 # --- the page in a browser ----------------------------------------------------------------------
@@ -101,8 +114,10 @@ def browser():
     if find_chromium() is None:
         if os.environ.get("ADVISOR_REQUIRE_BROWSER") == "1":
             pytest.fail("chromium is required here (ADVISOR_REQUIRE_BROWSER=1) but not installed")
-        pytest.skip("chromium is not installed: the page's layout cannot be checked here "
-                    "(apt-get install chromium; .ci/run installs it)")
+        pytest.skip(
+            "chromium is not installed: the page's layout cannot be checked here "
+            "(apt-get install chromium; .ci/run installs it)"
+        )
     with Browser.start() as b:
         yield b
 
@@ -115,7 +130,7 @@ def _keep(png: bytes, name: str) -> None:
 
 
 def _hex(colour: str) -> tuple[int, int, int]:
-    return tuple(int(colour[k:k + 2], 16) for k in (1, 3, 5))
+    return tuple(int(colour[k : k + 2], 16) for k in (1, 3, 5))
 
 
 @pytest.mark.parametrize("size", list(SIZES))
@@ -129,7 +144,7 @@ def test_verdict_is_the_largest_thing_and_the_essentials_need_no_scrolling(brows
     assert m["scrollWidth"] <= width, "the page scrolls sideways"
     v = m["verdict"]
     assert m["verdictText"] == VERDICT[verdict].label
-    assert m["verdictFont"] > 1.8 * m["biggestOther"], m          # by far the largest text on the page
+    assert m["verdictFont"] > 1.8 * m["biggestOther"], m  # by far the largest text on the page
     assert v["top"] < 0.2 * height and v["left"] >= 0 and v["right"] <= width, v
     for part in ("age", "next"):
         assert m[part]["top"] >= 0 and m[part]["bottom"] <= height, (part, m[part])
@@ -163,7 +178,7 @@ def test_a_stale_page_says_so_at_the_top(browser, call_for, tmp_path, size):
     _keep(png, f"advisory-stale-banner-{size}")
     pixels = decode_png(png)
     y, x = int((m["stale"]["top"] + m["stale"]["bottom"]) / 2), 4 + int(m["stale"]["left"])
-    assert tuple(int(c) for c in pixels[y, x]) == (0xB0, 0x00, 0x20)      # the banner's red
+    assert tuple(int(c) for c in pixels[y, x]) == (0xB0, 0x00, 0x20)  # the banner's red
 
 
 def test_outlook_svg_is_self_contained_without_imitation_window(tmp_path, capsys):
@@ -174,7 +189,7 @@ def test_outlook_svg_is_self_contained_without_imitation_window(tmp_path, capsys
     capsys.readouterr()
     svg = path.read_text()
     assert svg.startswith("<svg ") and svg.rstrip().endswith("</svg>")
-    assert re.findall(r"https?://[^\s\"']*", svg) == ["http://www.w3.org/2000/svg"]   # the namespace, nothing fetched
-    assert "@font-face" not in svg and "url(\"" not in svg and "<image" not in svg
-    assert "<circle" not in svg and "-title" not in svg      # no fake window buttons or title bar
+    assert re.findall(r"https?://[^\s\"']*", svg) == ["http://www.w3.org/2000/svg"]  # the namespace, nothing fetched
+    assert "@font-face" not in svg and 'url("' not in svg and "<image" not in svg
+    assert "<circle" not in svg and "-title" not in svg  # no fake window buttons or title bar
     assert "<title>advisor outlook · " in svg

@@ -25,10 +25,16 @@ from .conftest import run_cli
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "example_weather"
-DEMO_FILES = ("larch_basin.yaml", "larch_basin_mast.csv", "references.csv", "larch_basin_history.csv",
-              "larch_basin_model.json", "larch_basin_forecast.csv")
-FOG = pd.Timestamp("2026-11-30T15:00:00Z")          # the demo week's valley fog (see example_weather/README.md)
-EVENING = pd.Timestamp("2026-12-01T03:00:00Z")      # its calm, dry evening (the feed's last sample)
+DEMO_FILES = (
+    "larch_basin.yaml",
+    "larch_basin_mast.csv",
+    "references.csv",
+    "larch_basin_history.csv",
+    "larch_basin_model.json",
+    "larch_basin_forecast.csv",
+)
+FOG = pd.Timestamp("2026-11-30T15:00:00Z")  # the demo week's valley fog (see example_weather/README.md)
+EVENING = pd.Timestamp("2026-12-01T03:00:00Z")  # its calm, dry evening (the feed's last sample)
 
 
 def _utc(t: pd.Timestamp) -> str:
@@ -44,8 +50,9 @@ def site(tmp_path) -> Path:
 
 
 def _add(capsys, site, method="scan", usable="yes", at=EVENING, *extra):
-    return run_cli(capsys, "attempt", "add", "--site", site, "--method", method, "--usable", usable,
-                   "--time", _utc(at), *extra)
+    return run_cli(
+        capsys, "attempt", "add", "--site", site, "--method", method, "--usable", usable, "--time", _utc(at), *extra
+    )
 
 
 def _check(capsys, site, at) -> dict:
@@ -56,10 +63,11 @@ def _check(capsys, site, at) -> dict:
 
 # --- attempt add ----------------------------------------------------------------------------
 
+
 def test_an_attempt_carries_the_weather_check_sees_at_its_time(capsys, site):
     history = site.parent / "larch_basin_history.csv"
     before = history.read_text(encoding="utf-8").splitlines()
-    at = pd.Timestamp("2026-11-30T20:00:00Z")          # the windy afternoon
+    at = pd.Timestamp("2026-11-30T20:00:00Z")  # the windy afternoon
     status, out, err = _add(capsys, site, "scan", "no", at, "--residual-um", "310", "--note", 'panel 14, "noisy"')
     assert status == 0, err
     assert f"recorded laser scan attempt at {_utc(at)} (usable: no, residual 310 µm)" in out
@@ -67,7 +75,7 @@ def test_an_attempt_carries_the_weather_check_sees_at_its_time(capsys, site):
     after = history.read_text(encoding="utf-8").splitlines()
     assert len(after) == len(before) + 1
     # older rows keep their text; the columns the file lacked (dew point, note) are blank in them
-    assert after[1:len(before)] == [line + ",," for line in before[1:]]
+    assert after[1 : len(before)] == [line + ",," for line in before[1:]]
     assert after[0] == before[0] + ",dew_point_c,note"
     row = pd.read_csv(history, dtype=str, keep_default_na=False).iloc[-1]
     assert (row["time"], row["method"], row["usable"], row["residual_rms_um"]) == (_utc(at), "scan", "no", "310")
@@ -94,16 +102,25 @@ def _one_error_line(status, out, err, *parts):
         assert part in err, (part, err)
 
 
-@pytest.mark.parametrize("at, parts", [
-    (pd.Timestamp("2026-11-20T00:00:00Z"), ("is before the feed starts", "2026-11-24T03:00Z")),
-    (pd.Timestamp("2026-12-01T04:00:00Z"), ("is after the feed ends", "2026-12-01T03:00Z")),
-    (pd.Timestamp("2026-11-24T03:10:00Z"), ("too little for the temperature rate",)),
-])
+@pytest.mark.parametrize(
+    "at, parts",
+    [
+        (pd.Timestamp("2026-11-20T00:00:00Z"), ("is before the feed starts", "2026-11-24T03:00Z")),
+        (pd.Timestamp("2026-12-01T04:00:00Z"), ("is after the feed ends", "2026-12-01T03:00Z")),
+        (pd.Timestamp("2026-11-24T03:10:00Z"), ("too little for the temperature rate",)),
+    ],
+)
 def test_times_the_feed_does_not_cover_are_refused(capsys, site, at, parts):
     history = site.parent / "larch_basin_history.csv"
     before = history.read_bytes()
-    _one_error_line(*_add(capsys, site, "scan", "yes", at), "larch_basin_mast.csv", "--time",
-                    "no weather for the attempt", "nothing was added", *parts)
+    _one_error_line(
+        *_add(capsys, site, "scan", "yes", at),
+        "larch_basin_mast.csv",
+        "--time",
+        "no weather for the attempt",
+        "nothing was added",
+        *parts,
+    )
     assert history.read_bytes() == before
 
 
@@ -112,22 +129,26 @@ def test_a_duplicate_is_refused_and_nothing_is_written(capsys, site):
     assert _add(capsys, site, "astronomical", "yes", EVENING)[0] == 0
     before = history.read_bytes()
     n_lines = len(before.decode().splitlines())
-    _one_error_line(*_add(capsys, site, "astronomical", "no", EVENING + pd.Timedelta(seconds=30)),
-                    f"larch_basin_history.csv:{n_lines}: time: an astronomical attempt at {_utc(EVENING)} is "
-                    "already recorded", "nothing was added")
+    _one_error_line(
+        *_add(capsys, site, "astronomical", "no", EVENING + pd.Timedelta(seconds=30)),
+        f"larch_basin_history.csv:{n_lines}: time: an astronomical attempt at {_utc(EVENING)} is already recorded",
+        "nothing was added",
+    )
     assert history.read_bytes() == before
-    assert _add(capsys, site, "scan", "yes", EVENING)[0] == 0      # the other method at that time is another attempt
+    assert _add(capsys, site, "scan", "yes", EVENING)[0] == 0  # the other method at that time is another attempt
 
 
-@pytest.mark.parametrize("argv, parts", [
-    (["--time", "2099-01-01T00:00:00Z"], ("is in the future",)),
-    (["--residual-um", "-3"], ("--residual-um", "must be zero or a positive")),
-    (["--residual-um", "abc"], ("--residual-um", "not a number")),
-    (["--time", "yesterday-ish"], ("--time", "cannot read time")),
-])
+@pytest.mark.parametrize(
+    "argv, parts",
+    [
+        (["--time", "2099-01-01T00:00:00Z"], ("is in the future",)),
+        (["--residual-um", "-3"], ("--residual-um", "must be zero or a positive")),
+        (["--residual-um", "abc"], ("--residual-um", "not a number")),
+        (["--time", "yesterday-ish"], ("--time", "cannot read time")),
+    ],
+)
 def test_bad_options_are_one_line(capsys, site, argv, parts):
-    status, out, err = run_cli(capsys, "attempt", "add", "--site", site, "--method", "scan", "--usable", "yes",
-                               *argv)
+    status, out, err = run_cli(capsys, "attempt", "add", "--site", site, "--method", "scan", "--usable", "yes", *argv)
     _one_error_line(status, out, err, *parts)
 
 
@@ -138,12 +159,26 @@ def test_the_bundled_demo_history_is_read_only(capsys):
 
 def test_the_demo_weather_is_never_recorded_unasked(capsys, tmp_path):
     history = tmp_path / "mine.csv"
-    status, out, err = run_cli(capsys, "attempt", "add", "--history", history, "--method", "scan", "--usable", "yes",
-                               "--time", _utc(EVENING))
+    status, out, err = run_cli(
+        capsys, "attempt", "add", "--history", history, "--method", "scan", "--usable", "yes", "--time", _utc(EVENING)
+    )
     _one_error_line(status, out, err, "--feed", "never recorded unasked")
     assert not history.exists()
-    status, out, err = run_cli(capsys, "attempt", "add", "--history", history, "--method", "scan", "--usable", "yes",
-                               "--time", _utc(EVENING), "--feed", DEMO / "larch_basin_mast.csv")
+    status, out, err = run_cli(
+        capsys,
+        "attempt",
+        "add",
+        "--history",
+        history,
+        "--method",
+        "scan",
+        "--usable",
+        "yes",
+        "--time",
+        _utc(EVENING),
+        "--feed",
+        DEMO / "larch_basin_mast.csv",
+    )
     assert status == 0, err
     assert len(read_history(history).frame) == 1
 
@@ -189,6 +224,7 @@ def test_concurrent_adds_keep_every_row(site):
 
 # --- the round trip -------------------------------------------------------------------------
 
+
 def test_recorded_outcomes_move_the_retrained_odds(capsys, site):
     """Astronomical attempts in the demo week's fog, recorded as failures through the command,
     then `train --install`: the site model's astronomical odds in fog fall, its laser odds and its
@@ -225,20 +261,28 @@ def test_train_completes_rows_without_weather_from_the_feed(capsys, site):
 
 # --- the site file: history, model terms and installing a model ----------------------------
 
-@pytest.mark.parametrize("terms, parts", [
-    ("[{feature: wind_gusts_ms, transform: square, direction: lowers}]", ("unknown feature 'wind_gusts_ms'",
-                                                                          "did you mean 'wind_gust_ms'")),
-    ("[{feature: wind_gust_ms, transform: cube, direction: lowers}]", ("unknown transform 'cube'",)),
-    ("[{feature: wind_gust_ms, transform: square}]", ("model.terms.0.direction", "missing value")),
-    ("[{feature: wind_gust_ms, transform: square, direction: down}]", ("unknown direction 'down'",)),
-    ("[{feature: dew_point_spread_c, transform: shortfall, direction: lowers}]", ("model.terms.0.knot",)),
-    ("[{feature: wind_gust_ms, knot: 3, direction: lowers}]", ("only a shortfall term has a knot",)),
-    ("[{feature: fog, transform: square, direction: lowers}]", ("is a flag",)),
-    ("[{feature: freq_ghz, direction: lowers}]", ("the same for every attempt",)),
-    ("[{feature: wind_gust_ms, direction: lowers, methods: [scan]}]", ("no term for the astronomical method",)),
-    ("[{feature: wind_gust_ms, direction: lowers}, {feature: wind_gust_ms, direction: raises}]",
-     ("the same term as model.terms[0]",)),
-])
+
+@pytest.mark.parametrize(
+    "terms, parts",
+    [
+        (
+            "[{feature: wind_gusts_ms, transform: square, direction: lowers}]",
+            ("unknown feature 'wind_gusts_ms'", "did you mean 'wind_gust_ms'"),
+        ),
+        ("[{feature: wind_gust_ms, transform: cube, direction: lowers}]", ("unknown transform 'cube'",)),
+        ("[{feature: wind_gust_ms, transform: square}]", ("model.terms.0.direction", "missing value")),
+        ("[{feature: wind_gust_ms, transform: square, direction: down}]", ("unknown direction 'down'",)),
+        ("[{feature: dew_point_spread_c, transform: shortfall, direction: lowers}]", ("model.terms.0.knot",)),
+        ("[{feature: wind_gust_ms, knot: 3, direction: lowers}]", ("only a shortfall term has a knot",)),
+        ("[{feature: fog, transform: square, direction: lowers}]", ("is a flag",)),
+        ("[{feature: freq_ghz, direction: lowers}]", ("the same for every attempt",)),
+        ("[{feature: wind_gust_ms, direction: lowers, methods: [scan]}]", ("no term for the astronomical method",)),
+        (
+            "[{feature: wind_gust_ms, direction: lowers}, {feature: wind_gust_ms, direction: raises}]",
+            ("the same term as model.terms[0]",),
+        ),
+    ],
+)
 def test_model_terms_in_the_site_file_are_checked(capsys, site, terms, parts):
     text = site.read_text(encoding="utf-8")
     start = text.index("  terms:\n")
@@ -252,10 +296,12 @@ def test_site_terms_choose_what_train_fits(capsys, site):
     text = site.read_text(encoding="utf-8")
     start = text.index("  terms:\n")
     end = text.index("\n\n", start)
-    site.write_text(text[:start] + "  terms:\n"
-                    "    - {feature: wind_gust_ms, transform: square, direction: lowers}\n"
-                    "    - {feature: rel_humidity_pct, direction: lowers, methods: [scan]}\n" + text[end:],
-                    encoding="utf-8")
+    site.write_text(
+        text[:start] + "  terms:\n"
+        "    - {feature: wind_gust_ms, transform: square, direction: lowers}\n"
+        "    - {feature: rel_humidity_pct, direction: lowers, methods: [scan]}\n" + text[end:],
+        encoding="utf-8",
+    )
     status, out, err = run_cli(capsys, "train", "--site", site, "--out", site.parent / "m.json")
     assert status == 0, err
     from advisor.model.modelfile import load_model
@@ -277,7 +323,7 @@ def test_install_points_the_site_at_the_new_model_and_keeps_comments(tmp_path, s
     before = site.read_text(encoding="utf-8")
     change = model_path_change(site, new)
     assert change.line_text == "  path: models/spring.json" and change.old_value == "larch_basin_model.json"
-    assert site.read_text(encoding="utf-8") == before                  # nothing written yet
+    assert site.read_text(encoding="utf-8") == before  # nothing written yet
     install_model_path(site, new)
     after = site.read_text(encoding="utf-8")
     assert after.splitlines()[change.line - 1] == "  path: models/spring.json"
@@ -291,8 +337,9 @@ def test_install_points_the_site_at_the_new_model_and_keeps_comments(tmp_path, s
 
 
 def test_install_never_overwrites_the_model_in_use(capsys, site):
-    status, out, err = run_cli(capsys, "train", "--site", site, "--install", "--out",
-                               site.parent / "larch_basin_model.json")
+    status, out, err = run_cli(
+        capsys, "train", "--site", site, "--install", "--out", site.parent / "larch_basin_model.json"
+    )
     _one_error_line(status, out, err, "--out", "the model the site uses now")
 
 
@@ -309,6 +356,7 @@ def test_reference_add_takes_the_air_temperature_from_the_feed(capsys, site):
 
 
 # --- what a tick keeps, what model show draws -----------------------------------------------
+
 
 def test_tick_history_lines_carry_the_weather_and_the_odds(capsys, site, tmp_path):
     state = tmp_path / "state"
@@ -328,9 +376,9 @@ def test_model_show_draws_a_self_contained_svg(capsys, tmp_path):
     svg = tmp_path / "model.svg"
     status, out, err = run_cli(capsys, "model", "show", DEMO / "larch_basin_model.json", "--svg", svg)
     assert status == 0, err
-    assert "ROC AUC" in out and f"wrote {svg}" in out            # the tables are still printed
+    assert "ROC AUC" in out and f"wrote {svg}" in out  # the tables are still printed
     text = svg.read_text(encoding="utf-8")
-    root = ET.fromstring(text)                                    # well-formed XML
+    root = ET.fromstring(text)  # well-formed XML
     assert root.tag == "{http://www.w3.org/2000/svg}svg"
     for forbidden in ("<script", "href", "@font-face", "url(", "<image", "<foreignObject", "@import"):
         assert forbidden not in text, forbidden
@@ -357,7 +405,7 @@ def test_effect_curves_follow_the_declared_direction():
             x, p = effect_curve(m, k)
             assert term.direction == "lowers"
             along = np.diff(p) if term.transform != "shortfall" else -np.diff(p)
-            if term.transform in ("square", "abs"):    # |x| and x² fall then rise across zero
+            if term.transform in ("square", "abs"):  # |x| and x² fall then rise across zero
                 along = np.diff(p[x >= 0])
             assert np.all(along <= 1e-12), term.name
 
@@ -389,7 +437,7 @@ def test_a_long_feed_is_read_from_its_tail_only_when_the_tail_covers_the_time(mo
         calls.append(tail_bytes)
         return real(path, layout, tail_bytes=tail_bytes, **kw)
 
-    monkeypatch.setattr(attempts, "CHECK_TAIL_BYTES", 20_000)   # about 5 h of the demo mast
+    monkeypatch.setattr(attempts, "CHECK_TAIL_BYTES", 20_000)  # about 5 h of the demo mast
     monkeypatch.setattr(attempts, "read_feed", spy)
     for at, reads in ((EVENING, [20_000]), (FOG, [20_000, None])):
         calls.clear()

@@ -89,7 +89,12 @@ CASES = [
     ("site_latitude_out_of_range.yaml", check_site, 2, "outside -90..90"),
     ("site_min_above_max_elevation.yaml", check_site, 2, "must be above min_calibrator_elevation_deg"),
     ("site_time_zone_folder.yaml", check_site, 2, ":6: site.time_zone: 'america' is a region, not a time zone"),
-    ("site_duplicate_key.yaml", check_site, 2, ":10:3: key 'high_frequency_wind_limit_ms' given twice (first at line 8)"),
+    (
+        "site_duplicate_key.yaml",
+        check_site,
+        2,
+        ":10:3: key 'high_frequency_wind_limit_ms' given twice (first at line 8)",
+    ),
     ("site_huge_number.yaml", check_site, 2, ":5:20: number 999999999999…999999 (400 digits) is too large"),
     ("site_bad_time_unit.yaml", check_site, 2, "feed.time_unit: unknown time unit 'unix'"),
     ("site_utf16.yaml", check_site, 2, "site file is utf-16 text"),
@@ -120,8 +125,12 @@ CASES = [
     ("rules_empty.yaml", check_rules, 2, "rule file is empty (a truncated or unsaved file looks the same"),
     ("rules_huge_number.yaml", check_rules, 2, ":6:15: number 111111111111…111111 (400 digits) is too large"),
     ("rules_utf16.yaml", check_rules, 2, "rule file is utf-16 text"),
-    ("rules_format_width.yaml", check_rules, 2, ":6:20: rule wide_message.message: bad format '>1000000' for "
-     "'wind_mean_ms': format width 1000000 is above 40"),
+    (
+        "rules_format_width.yaml",
+        check_rules,
+        2,
+        ":6:20: rule wide_message.message: bad format '>1000000' for 'wind_mean_ms': format width 1000000 is above 40",
+    ),
     ("rules_format_precision.yaml", check_rules, 2, "format precision 99999 is above 12"),
     ("rules_escape_in_key.yaml", check_rules, 2, ":7:5: rule fine: unknown key 'severity'"),
     # model files (check falls back to rules only with a note; `model show` refuses them)
@@ -153,17 +162,23 @@ ARG_CASES = [
     (["check", "--at", "2026-01-15T09:00"], "--at"),
     (["check", "--at", "9999-12-31T23:59:59Z"], "--at: time '9999-12-31T23:59:59Z' is outside the years 1900..2199"),
     (["check", "--at", "2300-01-01T00:00:00Z"], "--at: time '2300-01-01T00:00:00Z' is outside the years"),
-    (["check", "--at", "1768534260000"], "--at: '1768534260000' is a number, not a time (as epoch milliseconds it "
-                                         "would be 2026-01-16T03:31:00Z)"),
+    (
+        ["check", "--at", "1768534260000"],
+        "--at: '1768534260000' is a number, not a time (as epoch milliseconds it would be 2026-01-16T03:31:00Z)",
+    ),
     (["check", "--at", "1768534260"], "as epoch seconds it would be 2026-01-16T03:31:00Z"),
     (["check", "--at", "2026-01-16T03:3Z"], "--at: timestamp '2026-01-16T03:3Z' is incomplete"),
     (["check", "--at", "2026-01-16T03:30:00+5:30"], "--at: UTC offset '+5:30' of timestamp"),
     (["check", "--at", "2026-01-16"], "--at: timestamp '2026-01-16' has a date but no time of day"),
-    (["replay", "--feed", "x.csv", "--from", "2026-01-16T03:30:00 UTC"], "--from: timestamp '2026-01-16T03:30:00 "
-                                                                           "UTC' names its zone as 'UTC'"),
+    (
+        ["replay", "--feed", "x.csv", "--from", "2026-01-16T03:30:00 UTC"],
+        "--from: timestamp '2026-01-16T03:30:00 UTC' names its zone as 'UTC'",
+    ),
     (["tick", "--state-dir", "/x" * 3000], "above the system's limit"),
-    (["tick", "--state-dir", "/tmp/" + "/".join(["d" * 200] * 20) + "/" + "x" * 35],
-     "--state-dir: the state dir path is 4,060 bytes long"),
+    (
+        ["tick", "--state-dir", "/tmp/" + "/".join(["d" * 200] * 20) + "/" + "x" * 35],
+        "--state-dir: the state dir path is 4,060 bytes long",
+    ),
     (["tick", "--state-dir", "state\0dir"], "the state dir path contains a NUL character"),
     (["check", "--no-such-option"], "unrecognized arguments"),
     (["no-such-command"], "invalid choice"),
@@ -200,13 +215,12 @@ def test_bad_input_gives_one_clear_line(capsys, tmp_path, monkeypatch, name, arg
     else:
         assert phrase in out.lower()
         assert "VERDICT: SCAN" not in out
-    assert _snapshot(CORPUS) == before          # nothing overwritten
-    assert list(tmp_path.iterdir()) == []       # nothing written
-    assert not PWNED.exists()                   # no code ran
+    assert _snapshot(CORPUS) == before  # nothing overwritten
+    assert list(tmp_path.iterdir()) == []  # nothing written
+    assert not PWNED.exists()  # no code ran
 
 
-@pytest.mark.parametrize("argv, phrase", ARG_CASES,
-                         ids=[" ".join(a)[:70].replace("\0", "\\0") for a, _ in ARG_CASES])
+@pytest.mark.parametrize("argv, phrase", ARG_CASES, ids=[" ".join(a)[:70].replace("\0", "\\0") for a, _ in ARG_CASES])
 def test_bad_arguments_give_one_line_exit_2(capsys, argv, phrase):
     with pytest.raises(SystemExit) if argv[0] == "no-such-command" or "--no-such-option" in argv else _null():
         status = main(argv)
@@ -228,8 +242,11 @@ class _null:
 
 def test_ten_thousand_rules_are_refused_quickly(capsys, tmp_path):
     big = tmp_path / "many.yaml"
-    body = "".join(f"  - id: r{i}\n    applies_to: scan\n    condition: wind_mean_ms > {i % 20}\n"
-                   f"    effect: warn\n    message: m\n" for i in range(10_000))
+    body = "".join(
+        f"  - id: r{i}\n    applies_to: scan\n    condition: wind_mean_ms > {i % 20}\n"
+        f"    effect: warn\n    message: m\n"
+        for i in range(10_000)
+    )
     big.write_text("rules:\n" + body)
     status = main(["check", "--feed", GOOD_FEED, "--at", AT, "--rules", str(big)])
     err = capsys.readouterr().err
@@ -258,17 +275,29 @@ def test_broken_model_makes_check_fall_back_to_rules_only(capsys):
 
 # --- paths that are not regular files, or cannot name one --------------------------------
 
+
 def _special(kind: str, where: Path) -> str:
     if kind == "fifo":
         path = where / "input.fifo"
         os.mkfifo(path)
         return str(path)
-    return {"device": "/dev/zero", "directory": str(where), "nul": "input\0.csv",
-            "path_too_long": "/x" * 3000, "name_too_long": "/tmp/" + "n" * 300}[kind]
+    return {
+        "device": "/dev/zero",
+        "directory": str(where),
+        "nul": "input\0.csv",
+        "path_too_long": "/x" * 3000,
+        "name_too_long": "/tmp/" + "n" * 300,
+    }[kind]
 
 
-SPECIAL_KINDS = {"fifo": "named pipe (fifo)", "device": "character device", "directory": "is a directory",
-                 "nul": "nul character", "path_too_long": "above the system's limit", "name_too_long": "a name in the"}
+SPECIAL_KINDS = {
+    "fifo": "named pipe (fifo)",
+    "device": "character device",
+    "directory": "is a directory",
+    "nul": "nul character",
+    "path_too_long": "above the system's limit",
+    "name_too_long": "a name in the",
+}
 FILE_OPTIONS = {
     "--feed": lambda p: ["check", "--feed", p, "--at", AT],
     "--site": lambda p: ["check", "--site", p, "--feed", GOOD_FEED, "--at", AT],
@@ -307,13 +336,26 @@ def _hung(*_):
 _CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
 
 
-@pytest.mark.parametrize("argv", [
-    ["check", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT],
-    ["check", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT, "--json"],
-    ["check", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml"), "--details"],
-    ["check", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml"), "--json"],
-    ["rules", "explain", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml")],
-], ids=["site-plain", "site-json", "rule-plain", "rule-json", "rules-explain"])
+@pytest.mark.parametrize(
+    "argv",
+    [
+        ["check", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT],
+        ["check", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT, "--json"],
+        [
+            "check",
+            "--feed",
+            GOOD_FEED,
+            "--at",
+            AT,
+            "--rules",
+            str(CORPUS / "rules_escape_in_message.yaml"),
+            "--details",
+        ],
+        ["check", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml"), "--json"],
+        ["rules", "explain", "--feed", GOOD_FEED, "--at", AT, "--rules", str(CORPUS / "rules_escape_in_message.yaml")],
+    ],
+    ids=["site-plain", "site-json", "rule-plain", "rule-json", "rules-explain"],
+)
 def test_escape_sequences_in_files_never_reach_the_output(capsys, argv):
     status = main(argv)
     out, err = capsys.readouterr()
@@ -324,8 +366,11 @@ def test_escape_sequences_in_files_never_reach_the_output(capsys, argv):
 
 def test_escape_sequences_in_a_rule_file_never_reach_lint_or_show(capsys):
     rules = str(CORPUS / "rules_escape_in_message.yaml")
-    for argv in (["rules", "lint", str(CORPUS / "rules_escape_in_key.yaml")], ["rules", "show", "--rules", rules],
-                 ["rules", "lint", rules]):
+    for argv in (
+        ["rules", "lint", str(CORPUS / "rules_escape_in_key.yaml")],
+        ["rules", "show", "--rules", rules],
+        ["rules", "lint", rules],
+    ):
         main(argv)
         out, err = capsys.readouterr()
         assert not _CONTROL.findall((out + err).replace("\n", "")), argv
@@ -340,8 +385,21 @@ def test_escape_sequences_in_a_model_file_never_reach_model_show(capsys):
 
 def test_escape_sequences_never_reach_the_tick_pages(capsys, tmp_path):
     state = tmp_path / "state"
-    status = main(["tick", "--site", str(CORPUS / "site_escape_in_name.yaml"), "--feed", GOOD_FEED, "--at", AT,
-                   "--rules", str(CORPUS / "rules_escape_in_message.yaml"), "--state-dir", str(state)])
+    status = main(
+        [
+            "tick",
+            "--site",
+            str(CORPUS / "site_escape_in_name.yaml"),
+            "--feed",
+            GOOD_FEED,
+            "--at",
+            AT,
+            "--rules",
+            str(CORPUS / "rules_escape_in_message.yaml"),
+            "--state-dir",
+            str(state),
+        ]
+    )
     out, err = capsys.readouterr()
     assert status in (0, 10, 11, 12), err
     for text in [out, *((state / n).read_text() for n in ("advisory.txt", "advisory.json", "advisory.html"))]:
@@ -351,17 +409,18 @@ def test_escape_sequences_never_reach_the_tick_pages(capsys, tmp_path):
 
 # --- model arithmetic ------------------------------------------------------------------------
 
+
 def test_a_model_that_overflows_leaves_the_call_to_the_rules_and_says_so(capsys, tmp_path):
     import json
 
     from .test_tick import make_site
 
-    site = make_site(tmp_path)             # three hours of feed: every input of the model is there
+    site = make_site(tmp_path)  # three hours of feed: every input of the model is there
     argv = ["check", "--site", str(site), "--at", AT, "--json"]
     status = main([*argv, "--model", str(CORPUS / "model_overflow.json")])
     out, err = capsys.readouterr()
     doc = json.loads(out)
-    assert err == ""                                        # no numpy warnings
+    assert err == ""  # no numpy warnings
     assert status == main([*argv, "--model", "none"]) and all(c["p_usable"] is None for c in doc["candidates"].values())
     notes = [r["message"] for r in doc["reasons"] if r["rule"].startswith("model.")]
     assert notes and all("arithmetic failed (overflow) for these inputs: rules only" in n for n in notes)
@@ -372,14 +431,18 @@ def test_a_model_that_overflows_leaves_the_call_to_the_rules_and_says_so(capsys,
 
 # --- tick: bad input never leaves an old scan standing ----------------------------------------
 
-@pytest.mark.parametrize("option, name, status", [
-    ("--site", "site_syntax_error.yaml", 2),
-    ("--rules", "rules_syntax_error.yaml", 2),
-    ("--rules", "rules_format_width.yaml", 2),
-    ("--references", "refs_bad_time.csv", 2),
-    ("--feed", "feed_epoch_ms.csv", 12),
-    ("--feed", "feed_binary.csv", 12),
-])
+
+@pytest.mark.parametrize(
+    "option, name, status",
+    [
+        ("--site", "site_syntax_error.yaml", 2),
+        ("--rules", "rules_syntax_error.yaml", 2),
+        ("--rules", "rules_format_width.yaml", 2),
+        ("--references", "refs_bad_time.csv", 2),
+        ("--feed", "feed_epoch_ms.csv", 12),
+        ("--feed", "feed_binary.csv", 12),
+    ],
+)
 def test_tick_on_bad_input_replaces_a_scan_with_an_undetermined_advisory(capsys, tmp_path, option, name, status):
     import json
 
@@ -404,11 +467,14 @@ def test_tick_on_bad_input_replaces_a_scan_with_an_undetermined_advisory(capsys,
 
 # --- a 10 GB feed ----------------------------------------------------------------------------
 
+
 def test_check_on_a_ten_gigabyte_sparse_feed_reads_its_tail_and_finishes(capsys, tmp_path):
     """Most of the file is a hole: check reads the end only and counts no lines (no timing here)."""
     feed = tmp_path / "huge.csv"
-    head = "time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n" + "".join(
-        f"2026-01-10T00:{m:02d}:00Z,1.5,2.5,2.0,70\n" for m in range(60)) * 4
+    head = (
+        "time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n"
+        + "".join(f"2026-01-10T00:{m:02d}:00Z,1.5,2.5,2.0,70\n" for m in range(60)) * 4
+    )
     tail = "".join(f"2026-01-16T{3 + m // 60:02d}:{m % 60:02d}:00Z,1.5,2.5,2.0,70\n" for m in range(61))
     with feed.open("wb") as fh:
         fh.write(head.encode())

@@ -79,7 +79,10 @@ def test_thermally_mismatched_reference_degrades_the_laser_instead_of_blocking_i
     matched = call_for(table, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=3), table["air_temp_c"].iloc[-1]))
     call = call_for(table, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=3), table["air_temp_c"].iloc[-1] + 8))
     assert call.verdict == "astronomical"
-    assert call.candidates["scan"]["feasible"] and "reference_thermal_mismatch" not in call.candidates["scan"]["blocked_by"]
+    assert (
+        call.candidates["scan"]["feasible"]
+        and "reference_thermal_mismatch" not in call.candidates["scan"]["blocked_by"]
+    )
     mismatch = next(r for r in call.reasons if r.rule == "reference_thermal_mismatch")
     assert mismatch.effect == "warn" and "refractive index" in mismatch.message
     assert "difference map would mix" not in mismatch.message
@@ -109,22 +112,32 @@ def test_feed_within_age_limit_is_still_used(call_for, site_with):
 
 def test_knots_and_fahrenheit_through_mapping_give_identical_call(call_for, demo_site):
     si = weather_table()
-    logger = pd.DataFrame({
-        "stamp": si["time"],
-        "ws_kn": si["wind_mean_ms"] / (1852.0 / 3600.0),
-        "wg_kn": si["wind_gust_ms"] / (1852.0 / 3600.0),
-        "t_f": si["air_temp_c"] * 9.0 / 5.0 + 32.0,
-        "rh_frac": si["rel_humidity_pct"] / 100.0,
-        "vis_km": si["visibility_m"] / 1000.0,
-        "precip_mm_h": si["precip_mm_h"],
-        "solar_wm2": si["solar_wm2"],
-    })
-    layout = FeedLayout(time_column="stamp", columns=(
-        ColumnMap("wind_mean_ms", "ws_kn", "kn"), ColumnMap("wind_gust_ms", "wg_kn", "kn"),
-        ColumnMap("air_temp_c", "t_f", "degF"), ColumnMap("rel_humidity_pct", "rh_frac", "fraction"),
-        ColumnMap("visibility_m", "vis_km", "km")))
+    logger = pd.DataFrame(
+        {
+            "stamp": si["time"],
+            "ws_kn": si["wind_mean_ms"] / (1852.0 / 3600.0),
+            "wg_kn": si["wind_gust_ms"] / (1852.0 / 3600.0),
+            "t_f": si["air_temp_c"] * 9.0 / 5.0 + 32.0,
+            "rh_frac": si["rel_humidity_pct"] / 100.0,
+            "vis_km": si["visibility_m"] / 1000.0,
+            "precip_mm_h": si["precip_mm_h"],
+            "solar_wm2": si["solar_wm2"],
+        }
+    )
+    layout = FeedLayout(
+        time_column="stamp",
+        columns=(
+            ColumnMap("wind_mean_ms", "ws_kn", "kn"),
+            ColumnMap("wind_gust_ms", "wg_kn", "kn"),
+            ColumnMap("air_temp_c", "t_f", "degF"),
+            ColumnMap("rel_humidity_pct", "rh_frac", "fraction"),
+            ColumnMap("visibility_m", "vis_km", "km"),
+        ),
+    )
     a = call_for(si)
-    b = call_for(logger, layout=layout, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=2), si["air_temp_c"].iloc[-1] + 0.8))
+    b = call_for(
+        logger, layout=layout, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=2), si["air_temp_c"].iloc[-1] + 0.8)
+    )
     assert a.verdict == b.verdict
     for name, value in a.features.items():
         if isinstance(value, float):

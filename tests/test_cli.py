@@ -14,7 +14,7 @@ import pytest
 from advisor.commands.session import parse_frequency_ghz
 from advisor.errors import UsageError
 
-from .conftest import NIGHT_UTC, weather_table, run_cli
+from .conftest import NIGHT_UTC, run_cli, weather_table
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -44,14 +44,31 @@ def test_demo_check_runs_and_is_labelled(capsys):
 def test_demo_check_json_contract(capsys):
     status, out, _ = run(capsys, "check", "--json")
     doc = json.loads(out)
-    for key in ("verdict", "time_utc", "target_freq_ghz", "reasons", "features", "candidates",
-                "data_quality", "next_window", "schema_version"):
+    for key in (
+        "verdict",
+        "time_utc",
+        "target_freq_ghz",
+        "reasons",
+        "features",
+        "candidates",
+        "data_quality",
+        "next_window",
+        "schema_version",
+    ):
         assert key in doc
     assert set(doc["candidates"]) == {"scan", "astronomical"}
     for cand in doc["candidates"].values():
         assert {"feasible", "surface_rms_um", "ruze_efficiency", "p_usable", "duration_min"} <= set(cand)
-    for key in ("sun_elevation_deg", "dew_point_c", "dew_point_spread_c", "wind_mean_ms", "wind_gust_ms",
-                "air_temp_rate_c_per_h", "hours_since_sunset", "reference_age_h"):
+    for key in (
+        "sun_elevation_deg",
+        "dew_point_c",
+        "dew_point_spread_c",
+        "wind_mean_ms",
+        "wind_gust_ms",
+        "air_temp_rate_c_per_h",
+        "hours_since_sunset",
+        "reference_age_h",
+    ):
         assert key in doc["features"]
     assert all({"rule", "applies_to", "effect", "message"} <= set(r) for r in doc["reasons"])
     assert doc["exit_status"] == status
@@ -60,8 +77,9 @@ def test_demo_check_json_contract(capsys):
 
 def test_scan_exit_zero_and_json(capsys, night_files):
     feed, refs = night_files
-    status, out, _ = run(capsys, "check", "--feed", str(feed), "--references", str(refs),
-                         "--at", "2026-01-16T04:00:00Z", "--json")
+    status, out, _ = run(
+        capsys, "check", "--feed", str(feed), "--references", str(refs), "--at", "2026-01-16T04:00:00Z", "--json"
+    )
     assert status == 0
     assert json.loads(out)["verdict"] == "scan"
 
@@ -79,19 +97,23 @@ def test_bad_frequency_is_usage_error(freq):
 
 def test_stale_feed_exit_12(capsys, night_files):
     feed, refs = night_files
-    status, out, _ = run(capsys, "check", "--feed", str(feed), "--references", str(refs),
-                         "--at", "2026-01-16T06:00:00Z")
+    status, out, _ = run(
+        capsys, "check", "--feed", str(feed), "--references", str(refs), "--at", "2026-01-16T06:00:00Z"
+    )
     assert status == 12
     assert "UNDETERMINED" in out
 
 
-@pytest.mark.parametrize("content, expect", [
-    ("", "empty"),
-    ("time;wind_mean_ms;wind_gust_ms\n2026-01-01T00:00:00Z;1;2\n", "delimiter"),
-    ("time,wind_mean_ms\n2026-01-01T00:00:00Z,1\n", "missing required column"),
-    ("time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\nyesterday,1,2,3,50\n", "timestamp"),
-    ("time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n2026-01-01T00:00:00,1,2,3,50\n", "offset"),
-])
+@pytest.mark.parametrize(
+    "content, expect",
+    [
+        ("", "empty"),
+        ("time;wind_mean_ms;wind_gust_ms\n2026-01-01T00:00:00Z;1;2\n", "delimiter"),
+        ("time,wind_mean_ms\n2026-01-01T00:00:00Z,1\n", "missing required column"),
+        ("time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\nyesterday,1,2,3,50\n", "timestamp"),
+        ("time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n2026-01-01T00:00:00,1,2,3,50\n", "offset"),
+    ],
+)
 def test_malformed_feed_is_one_line_exit_2(capsys, tmp_path, content, expect):
     feed = tmp_path / "bad.csv"
     feed.write_text(content)
@@ -121,8 +143,9 @@ def test_site_yaml_tag_is_refused(capsys, tmp_path):
 def test_malformed_rules_file_exit_2(capsys, tmp_path, night_files):
     feed, refs = night_files
     rules = tmp_path / "extra.yaml"
-    rules.write_text("rules:\n  - id: x\n    applies_to: scan\n    condition: wind_mean > 3\n"
-                     "    effect: block\n    message: hi\n")
+    rules.write_text(
+        "rules:\n  - id: x\n    applies_to: scan\n    condition: wind_mean > 3\n    effect: block\n    message: hi\n"
+    )
     status, _, err = run(capsys, "check", "--feed", str(feed), "--rules", str(rules))
     assert status == 2
     assert f"{rules}:4" in err and "wind_mean_ms" in err  # suggests the closest feature name
@@ -130,8 +153,19 @@ def test_malformed_rules_file_exit_2(capsys, tmp_path, night_files):
 
 def test_reference_add_and_list(capsys, tmp_path):
     refs = tmp_path / "refs.csv"
-    status, out, _ = run(capsys, "reference", "add", "--references", str(refs), "--time", "2026-01-16T02:00:00Z",
-                         "--air-temp-c", "2.5", "--note", "after holography")
+    status, out, _ = run(
+        capsys,
+        "reference",
+        "add",
+        "--references",
+        str(refs),
+        "--time",
+        "2026-01-16T02:00:00Z",
+        "--air-temp-c",
+        "2.5",
+        "--note",
+        "after holography",
+    )
     assert status == 0 and refs.exists()
     status, out, _ = run(capsys, "reference", "list", "--references", str(refs), "--at", "2026-01-16T04:00:00Z")
     assert status == 0 and "2.0 h" in out and "after holography" in out
@@ -152,8 +186,9 @@ def test_installed_console_script_from_another_directory(tmp_path):
     if not exe.exists():
         pytest.skip("advisor console script not installed in this environment")
     env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH",)}
-    proc = subprocess.run([str(exe), "check", "--json"], cwd=tmp_path, capture_output=True, text=True, env=env,
-                          timeout=120)
+    proc = subprocess.run(
+        [str(exe), "check", "--json"], cwd=tmp_path, capture_output=True, text=True, env=env, timeout=120
+    )
     assert proc.returncode in (0, 10, 11, 12), proc.stderr
     doc = json.loads(proc.stdout)
     assert doc["demo_data"] is True and doc["schema_version"] >= 1
@@ -169,6 +204,7 @@ def test_colour_only_on_a_terminal_and_never_with_no_color(monkeypatch):
 
     monkeypatch.delenv("NO_COLOR", raising=False)
     assert _want_color(_FakeTTY())
-    assert not _want_color(open(os.devnull, "w"))
+    with open(os.devnull, "w") as devnull:
+        assert not _want_color(devnull)
     monkeypatch.setenv("NO_COLOR", "1")
     assert not _want_color(_FakeTTY())

@@ -74,9 +74,8 @@ def frames(draw):
     for name in FLAGS:
         if draw(st.booleans()):
             cols[name] = np.array(draw(st.lists(st.booleans(), min_size=ROWS, max_size=ROWS)))
-        else:   # a float flag column with missing values
-            cols[name] = np.array(draw(st.lists(st.sampled_from([0.0, 1.0, np.nan]),
-                                                min_size=ROWS, max_size=ROWS)))
+        else:  # a float flag column with missing values
+            cols[name] = np.array(draw(st.lists(st.sampled_from([0.0, 1.0, np.nan]), min_size=ROWS, max_size=ROWS)))
     return cols
 
 
@@ -118,18 +117,83 @@ def test_arbitrary_ascii_raises_only_condition_error(text):
 
 
 TOKENS = [
-    "wind_mean_ms", "wind_gust_ms", "gust_factor", "air_temp_c", "dew_point_spread_c", "fog", "is_night",
-    "unknown_name", "4", "0", "-6", "2.5", "1e3", "1e999", "8 kn", "8kn", "2 degF", "32 degF", "30 min",
-    "95 %", "1 km", "2 degC/h", "600 W/m2", "4 furlongs", "m/s", "kn", "true", "false", "True",
-    "and", "or", "not", "(", "(", ")", ")", ",", "<", "<=", ">", ">=", "==", "!=", "+", "-", "*", "/",
-    "abs(", "min(", "max(", "sqrt(", "missing(", "open(", "__import__(", "lambda", ".", "[", "]",
-    "'", '"', ";", "=", "**", "%", "__class__", "\n", "\x00", "é", "°C", "None",
+    "wind_mean_ms",
+    "wind_gust_ms",
+    "gust_factor",
+    "air_temp_c",
+    "dew_point_spread_c",
+    "fog",
+    "is_night",
+    "unknown_name",
+    "4",
+    "0",
+    "-6",
+    "2.5",
+    "1e3",
+    "1e999",
+    "8 kn",
+    "8kn",
+    "2 degF",
+    "32 degF",
+    "30 min",
+    "95 %",
+    "1 km",
+    "2 degC/h",
+    "600 W/m2",
+    "4 furlongs",
+    "m/s",
+    "kn",
+    "true",
+    "false",
+    "True",
+    "and",
+    "or",
+    "not",
+    "(",
+    "(",
+    ")",
+    ")",
+    ",",
+    "<",
+    "<=",
+    ">",
+    ">=",
+    "==",
+    "!=",
+    "+",
+    "-",
+    "*",
+    "/",
+    "abs(",
+    "min(",
+    "max(",
+    "sqrt(",
+    "missing(",
+    "open(",
+    "__import__(",
+    "lambda",
+    ".",
+    "[",
+    "]",
+    "'",
+    '"',
+    ";",
+    "=",
+    "**",
+    "%",
+    "__class__",
+    "\n",
+    "\x00",
+    "é",
+    "°C",
+    "None",
 ]
 
 
 @SETTINGS
-@given(st.lists(st.sampled_from(TOKENS), max_size=25), st.lists(st.sampled_from(["", " ", "  "]), max_size=25),
-       frames())
+@given(
+    st.lists(st.sampled_from(TOKENS), max_size=25), st.lists(st.sampled_from(["", " ", "  "]), max_size=25), frames()
+)
 def test_token_soup_raises_only_condition_error_and_what_compiles_agrees(tokens, gaps, cols):
     text = "".join(tok + (gaps[i] if i < len(gaps) else " ") for i, tok in enumerate(tokens))
     for compiled in try_all(text):
@@ -159,8 +223,9 @@ def unit_literal(draw, choices):
 
 
 def dimensionless(draw, depth):
-    options = ["gust_factor", "bare", "op", "sqrt", "abs", "ratio", "neg", "minmax"] if depth > 0 \
-        else ["gust_factor", "bare"]
+    options = (
+        ["gust_factor", "bare", "op", "sqrt", "abs", "ratio", "neg", "minmax"] if depth > 0 else ["gust_factor", "bare"]
+    )
     kind = draw(st.sampled_from(options))
     if kind == "gust_factor":
         return "gust_factor"
@@ -179,8 +244,7 @@ def dimensionless(draw, depth):
 
 
 def speed(draw, depth):
-    options = ["feature", "sum", "lit_sum", "scale", "divide", "neg", "abs", "minmax"] if depth > 0 \
-        else ["feature"]
+    options = ["feature", "sum", "lit_sum", "scale", "divide", "neg", "abs", "minmax"] if depth > 0 else ["feature"]
     kind = draw(st.sampled_from(options))
     if kind == "feature":
         return draw(st.sampled_from(["wind_mean_ms", "wind_gust_ms"]))
@@ -239,17 +303,20 @@ def difference(draw, depth):
 
 def number(draw, depth):
     world = draw(st.sampled_from(["speed", "dimensionless", "temperature", "difference"]))
-    return world, {"speed": speed, "dimensionless": dimensionless, "temperature": temperature,
-                   "difference": difference}[world](draw, depth)
+    return world, {
+        "speed": speed,
+        "dimensionless": dimensionless,
+        "temperature": temperature,
+        "difference": difference,
+    }[world](draw, depth)
 
 
 def comparison(draw, depth):
     world, left = number(draw, depth)
-    same = {"speed": speed, "dimensionless": dimensionless, "temperature": temperature,
-            "difference": difference}[world]
+    same = {"speed": speed, "dimensionless": dimensionless, "temperature": temperature, "difference": difference}[world]
     literal_units = {"speed": SPEED_UNITS, "temperature": TEMP_UNITS, "difference": TEMP_UNITS}.get(world)
     parts = [left]
-    for _ in range(draw(st.integers(min_value=1, max_value=2))):   # chains of two or three
+    for _ in range(draw(st.integers(min_value=1, max_value=2))):  # chains of two or three
         if literal_units and draw(st.booleans()):
             parts.append(unit_literal(draw, literal_units))
         elif draw(st.booleans()):
@@ -263,8 +330,11 @@ def comparison(draw, depth):
 
 
 def flag(draw, depth):
-    options = ["feature", "const", "not", "and", "or", "eq", "cmp", "missing_flag", "missing_number"] \
-        if depth > 0 else ["feature", "const", "missing_flag"]
+    options = (
+        ["feature", "const", "not", "and", "or", "eq", "cmp", "missing_flag", "missing_number"]
+        if depth > 0
+        else ["feature", "const", "missing_flag"]
+    )
     kind = draw(st.sampled_from(options))
     if kind == "feature":
         return draw(st.sampled_from(FLAGS))
@@ -297,7 +367,7 @@ def expressions(draw):
 @SETTINGS
 @given(conditions(), frames())
 def test_compiled_conditions_agree_with_the_reference_interpreter(text, cols):
-    compiled = compile_condition(text, CATALOGUE)   # every generated condition is valid
+    compiled = compile_condition(text, CATALOGUE)  # every generated condition is valid
     assert compiled.kind == "flag"
     assert compiled.names <= set(CATALOGUE)
     assert_agrees(compiled, cols)

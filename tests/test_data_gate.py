@@ -14,7 +14,7 @@ def _reference(table):
 
 def test_a_storm_then_silence_then_one_calm_row_is_never_scan(call_for):
     storm = weather_table(end=NIGHT_UTC - pd.Timedelta(minutes=15), wind_mean_ms=12.0, wind_gust_ms=20.0)
-    calm = weather_table(end=NIGHT_UTC, hours=0.0)          # one row at the evaluation time
+    calm = weather_table(end=NIGHT_UTC, hours=0.0)  # one row at the evaluation time
     table = pd.concat([storm, calm], ignore_index=True)
     call = call_for(table, registry=_reference(table))
     assert call.verdict == "undetermined"
@@ -25,7 +25,7 @@ def test_a_one_row_feed_and_a_feed_whose_only_good_row_is_the_last_are_undetermi
     one = weather_table(hours=0.0)
     assert call_for(one, registry=_reference(one)).verdict == "undetermined"
     table = weather_table()
-    table.loc[: len(table) - 2, "rel_humidity_pct"] = 250.0   # every row implausible but the last
+    table.loc[: len(table) - 2, "rel_humidity_pct"] = 250.0  # every row implausible but the last
     assert call_for(table, registry=_reference(table)).verdict == "undetermined"
 
 

@@ -26,7 +26,7 @@ def test_copy_writes_an_editable_site_that_runs_and_still_says_demo(tmp_path, ca
     n_default = len(lint_files([(p, "default") for p in default_rule_files()], CATALOGUE).ruleset)
     assert capsys.readouterr().out.startswith(f"ok: {n_default} rules in effect ({n_default - 1} default, 1 site)")
     assert main(["check", "--site", str(folder / SITE_NAME), "--json"]) == 0
-    assert json.loads(capsys.readouterr().out)["demo_data"] is True       # the feed is still the demo's
+    assert json.loads(capsys.readouterr().out)["demo_data"] is True  # the feed is still the demo's
 
 
 def test_copy_refuses_to_overwrite_and_writes_nothing(tmp_path, capsys):

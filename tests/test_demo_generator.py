@@ -36,8 +36,17 @@ md = _load_script()
 # International nautical mile = 1852 m exactly (BIPM, The International System of Units,
 # 9th ed. 2019, Table 8), so 1 kn = 1852/3600 m/s.
 MS_PER_KN = 1852.0 / 3600.0
-EXPECTED_COLUMNS = ["timestamp", "wind_avg_kn", "wind_max_kn", "temp_f", "rh_pct",
-                    "baro_hpa", "rain_mm_h", "vis_m", "solar_wm2"]
+EXPECTED_COLUMNS = [
+    "timestamp",
+    "wind_avg_kn",
+    "wind_max_kn",
+    "temp_f",
+    "rh_pct",
+    "baro_hpa",
+    "rain_mm_h",
+    "vis_m",
+    "solar_wm2",
+]
 SEEDS = [md.DEFAULT_SEED, 1, 2024]  # the story must not hang on one lucky seed
 
 
@@ -54,32 +63,35 @@ def to_si(frame: pd.DataFrame) -> pd.DataFrame:
     a, b = 17.625, 243.04
     gamma = np.log(np.clip(rh, 0.1, 100.0) / 100.0) + a * temp_c / (b + temp_c)
     dew_c = b * gamma / (a - gamma)
-    return pd.DataFrame({
-        "wind_mean_ms": frame["wind_avg_kn"].to_numpy() * MS_PER_KN,
-        "wind_gust_ms": frame["wind_max_kn"].to_numpy() * MS_PER_KN,
-        "air_temp_c": temp_c,
-        "rel_humidity_pct": rh,
-        "pressure_hpa": frame["baro_hpa"].to_numpy(),
-        "precip_mm_h": frame["rain_mm_h"].to_numpy(),
-        "visibility_m": frame["vis_m"].to_numpy(),
-        "solar_wm2": frame["solar_wm2"].to_numpy(),
-        "dew_point_c": dew_c,
-        "dew_point_spread_c": temp_c - dew_c,
-    }, index=time_utc)
+    return pd.DataFrame(
+        {
+            "wind_mean_ms": frame["wind_avg_kn"].to_numpy() * MS_PER_KN,
+            "wind_gust_ms": frame["wind_max_kn"].to_numpy() * MS_PER_KN,
+            "air_temp_c": temp_c,
+            "rel_humidity_pct": rh,
+            "pressure_hpa": frame["baro_hpa"].to_numpy(),
+            "precip_mm_h": frame["rain_mm_h"].to_numpy(),
+            "visibility_m": frame["vis_m"].to_numpy(),
+            "solar_wm2": frame["solar_wm2"].to_numpy(),
+            "dew_point_c": dew_c,
+            "dew_point_spread_c": temp_c - dew_c,
+        },
+        index=time_utc,
+    )
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def demo_week(seed: int = md.DEFAULT_SEED) -> pd.DataFrame:
     return md.synth_mast(seed=seed, scenario="demo_week")
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def generic_month() -> pd.DataFrame:
     # 15 Oct - 15 Nov 2026 crosses the end of US daylight saving time (1 Nov 2026)
     return md.synth_mast("2026-10-15T00:00", "2026-11-15T00:00", scenario=None)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def generic_november(seed: int) -> pd.DataFrame:
     # local (MST/MDT) 1 Nov 00:00 to 30 Nov 23:59
     return md.synth_mast("2026-11-01T06:00", "2026-12-01T06:59", seed=seed)
@@ -125,9 +137,11 @@ def test_timestamps_are_local_iso8601_with_offset():
     assert frame["timestamp"].str.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d[+-]\d\d:\d\d").all()
     assert frame["timestamp"].iloc[-1] == "2026-11-30T20:00:00-07:00"
     summer = md.synth_mast("2026-07-01T18:00", "2026-07-01T18:02")
-    assert summer["timestamp"].tolist() == ["2026-07-01T12:00:00-06:00",
-                                            "2026-07-01T12:01:00-06:00",
-                                            "2026-07-01T12:02:00-06:00"]
+    assert summer["timestamp"].tolist() == [
+        "2026-07-01T12:00:00-06:00",
+        "2026-07-01T12:01:00-06:00",
+        "2026-07-01T12:02:00-06:00",
+    ]
 
 
 def test_generic_month_is_continuous_at_one_minute_across_dst_end():
@@ -141,23 +155,20 @@ def test_generic_month_is_continuous_at_one_minute_across_dst_end():
     # Offsets agree with the IANA tz database (via the standard library's zoneinfo) on a
     # sample of rows, including the repeated local hour of 1 Nov 2026.
     tz = ZoneInfo("America/Denver")
-    sample = np.r_[np.arange(0, len(frame), 997),
-                   np.flatnonzero(frame["timestamp"].str.startswith("2026-11-01T01:"))]
+    sample = np.r_[np.arange(0, len(frame), 997), np.flatnonzero(frame["timestamp"].str.startswith("2026-11-01T01:"))]
     for i in sample:
         utc = time_utc[i].to_pydatetime()
         assert utc.tzinfo is not None and utc.utcoffset().total_seconds() == 0
         assert frame["timestamp"].iloc[i] == utc.astimezone(tz).isoformat()
     repeated = frame["timestamp"].str.startswith("2026-11-01T01:30:00")
-    assert sorted(frame.loc[repeated, "timestamp"]) == ["2026-11-01T01:30:00-06:00",
-                                                         "2026-11-01T01:30:00-07:00"]
+    assert sorted(frame.loc[repeated, "timestamp"]) == ["2026-11-01T01:30:00-06:00", "2026-11-01T01:30:00-07:00"]
 
 
 def test_generic_weather_does_not_depend_on_the_requested_range_or_cadence():
     month = generic_month()
     inner = md.synth_mast("2026-11-03T05:00", "2026-11-04T05:00")
     start = month.index[month["timestamp"] == "2026-11-02T22:00:00-07:00"][0]
-    pd.testing.assert_frame_equal(month.iloc[start:start + len(inner)].reset_index(drop=True),
-                                  inner)
+    pd.testing.assert_frame_equal(month.iloc[start : start + len(inner)].reset_index(drop=True), inner)
     coarse = md.synth_mast("2026-11-03T05:00", "2026-11-04T05:00", cadence_min=10)
     pd.testing.assert_frame_equal(coarse, inner.iloc[::10].reset_index(drop=True))
 
@@ -168,8 +179,7 @@ def test_same_seed_gives_byte_identical_files_and_another_seed_does_not(tmp_path
         md.write_demo(tmp_path / folder, seed=seed)
     for name in (md.DEMO_MAST_FILE, md.DEMO_REFERENCES_FILE):
         assert (tmp_path / "a" / name).read_bytes() == (tmp_path / "b" / name).read_bytes()
-    assert ((tmp_path / "a" / md.DEMO_MAST_FILE).read_bytes()
-            != (tmp_path / "c" / md.DEMO_MAST_FILE).read_bytes())
+    assert (tmp_path / "a" / md.DEMO_MAST_FILE).read_bytes() != (tmp_path / "c" / md.DEMO_MAST_FILE).read_bytes()
 
 
 def test_committed_demo_files_match_the_generator(tmp_path):
@@ -181,14 +191,16 @@ def test_committed_demo_files_match_the_generator(tmp_path):
         # Equal up to one logger rounding step: another numpy/libm build may round a last digit
         # the other way; anything larger means the committed file is stale.
         assert list(ours.columns) == list(fresh.columns) and len(ours) == len(fresh), (
-            f"{name} is stale: run python example_weather/make_demo.py demo")
+            f"{name} is stale: run python example_weather/make_demo.py demo"
+        )
         for col in ours.columns:
             if pd.api.types.is_numeric_dtype(ours[col]):
                 levels = np.unique(ours[col].dropna().to_numpy())
                 step = np.diff(levels).min() if len(levels) > 1 else 0.0
                 diff = (ours[col] - fresh[col]).abs().fillna(0.0)
                 assert (diff <= step * 1.01).all() and (diff > 0).mean() < 0.001, (
-                    f"{name}:{col} is stale: run python example_weather/make_demo.py demo")
+                    f"{name}:{col} is stale: run python example_weather/make_demo.py demo"
+                )
             else:
                 assert (ours[col] == fresh[col]).all(), f"{name}:{col} is stale"
 
@@ -208,9 +220,9 @@ def test_late_autumn_diurnal_cycle_and_valley_winds(seed):
     assert 8.0 <= daily_range.median() <= 12.0
     hour_min = by_day.idxmin().map(lambda t: t.hour + t.minute / 60.0)
     hour_max = by_day.idxmax().map(lambda t: t.hour + t.minute / 60.0)
-    assert 6.0 <= hour_min.median() <= 9.5     # sunrise about 07:00-07:45 MST in November
+    assert 6.0 <= hour_min.median() <= 9.5  # sunrise about 07:00-07:45 MST in November
     assert 13.0 <= hour_max.median() <= 16.0
-    assert (by_day.min() < 0.5).sum() >= 15    # cold nights near or below 0 degC
+    assert (by_day.min() < 0.5).sum() >= 15  # cold nights near or below 0 degC
     hour = local.index.hour
     night = local.loc[hour < 5, "wind_mean_ms"]
     afternoon = local.loc[(hour >= 12) & (hour < 16), "wind_mean_ms"]
@@ -231,8 +243,11 @@ def test_solar_irradiance_follows_the_sun_from_astropy():
 
     si = to_si(demo_week()).iloc[::10]
     site = EarthLocation(lat=47.120 * u.deg, lon=-114.000 * u.deg, height=1050.0 * u.m)
-    with iers.conf.set_temp("auto_download", False), iers.conf.set_temp("auto_max_age", None), \
-            iers.conf.set_temp("iers_degraded_accuracy", "ignore"):
+    with (
+        iers.conf.set_temp("auto_download", False),
+        iers.conf.set_temp("auto_max_age", None),
+        iers.conf.set_temp("iers_degraded_accuracy", "ignore"),
+    ):
         when = Time(si.index.tz_convert(None).to_pydatetime(), scale="utc")
         alt_deg = get_sun(when).transform_to(AltAz(obstime=when, location=site)).alt.deg
     solar = si["solar_wm2"].to_numpy()
@@ -260,9 +275,9 @@ def test_demo_week_has_one_rain_spell_of_a_few_hours(seed):
     assert len(local_days) == 1
     span_h = (raining.index[-1] - raining.index[0]) / pd.Timedelta(hours=1)
     assert 2.0 <= span_h <= 8.0
-    assert len(raining) >= 0.9 * 60 * span_h           # one spell, not scattered showers
+    assert len(raining) >= 0.9 * 60 * span_h  # one spell, not scattered showers
     assert (raining["rel_humidity_pct"] >= 95.0).all()
-    assert raining["visibility_m"].between(1_000, 10_000).all()   # "a few km" in rain
+    assert raining["visibility_m"].between(1_000, 10_000).all()  # "a few km" in rain
     # solar reduced: daytime rain minutes get < 40 % of the week's best at that clock time
     best = si["solar_wm2"].groupby(si.index.hour * 60 + si.index.minute).max()
     best_at_rain = best.reindex(raining.index.hour * 60 + raining.index.minute).to_numpy()
@@ -279,7 +294,7 @@ def test_foggy_valley_morning_on_30_november(seed):
     assert (fog["rel_humidity_pct"] >= 97.0).all()
     assert (fog["dew_point_spread_c"] < 1.0).all()
     assert (fog["visibility_m"] < 1_000).all()
-    assert (fog["wind_mean_ms"] < 2.5).all()           # radiation fog needs calm air
+    assert (fog["wind_mean_ms"] < 2.5).all()  # radiation fog needs calm air
 
 
 @pytest.mark.parametrize("seed", SEEDS)
@@ -304,12 +319,12 @@ def test_calm_dry_clear_evening_at_the_end(seed):
     assert (evening["visibility_m"] >= 10_000).all()
     temp = evening["air_temp_c"]
     hourly_change = (temp - temp.shift(60)).dropna()
-    assert hourly_change.between(-1.5, 0.0).all()      # falling, gently
+    assert hourly_change.between(-1.5, 0.0).all()  # falling, gently
     hours = (evening.index - evening.index[0]) / pd.Timedelta(hours=1)
     slope_c_per_h = np.polyfit(hours, temp.to_numpy(), 1)[0]
     assert -1.5 < slope_c_per_h < -0.2
     sunset_side = si.loc["2026-11-30T23:40Z":"2026-12-01T03:00Z", "solar_wm2"]
-    assert (sunset_side == 0).all()                    # after sunset
+    assert (sunset_side == 0).all()  # after sunset
 
 
 def test_reference_registry_matches_the_demo_feed():
@@ -343,21 +358,20 @@ def test_bad_arguments_are_rejected():
 
 
 def test_cli_writes_demo_files_under_one_megabyte_and_an_archive(tmp_path, capsys):
-    demo = subprocess.run([sys.executable, str(SCRIPT), "demo", "--outdir", str(tmp_path)],
-                          capture_output=True, text=True, check=False)
+    demo = subprocess.run(
+        [sys.executable, str(SCRIPT), "demo", "--outdir", str(tmp_path)], capture_output=True, text=True, check=False
+    )
     assert demo.returncode == 0, demo.stderr
     mast = tmp_path / md.DEMO_MAST_FILE
     assert mast.stat().st_size < 1_000_000
     assert (tmp_path / md.DEMO_REFERENCES_FILE).exists()
     out = tmp_path / "archive.csv"  # the same CLI, called in-process to keep the test fast
-    assert md.main(["archive", "--start", "2026-03-07", "--end", "2026-03-09",
-                    "--out", str(out)]) == 0
+    assert md.main(["archive", "--start", "2026-03-07", "--end", "2026-03-09", "--out", str(out)]) == 0
     written = pd.read_csv(out)
     assert list(written.columns) == EXPECTED_COLUMNS
     assert len(written) == 2 * 1440 + 1
     # spring forward on 8 Mar 2026 (IANA tz database): MST before, MDT after
     assert written["timestamp"].iloc[0].endswith("-07:00")
     assert written["timestamp"].iloc[-1].endswith("-06:00")
-    assert md.main(["archive", "--start", "2026-03-09", "--end", "2026-03-07",
-                    "--out", str(tmp_path / "bad.csv")]) == 2
+    assert md.main(["archive", "--start", "2026-03-09", "--end", "2026-03-07", "--out", str(tmp_path / "bad.csv")]) == 2
     assert "error" in capsys.readouterr().err

@@ -67,8 +67,9 @@ def test_check_reads_only_the_tail_of_a_large_feed(tmp_path):
     full = read_feed(path, FeedLayout())
     tail = read_feed(path, FeedLayout(), tail_bytes=20_000)
     assert len(tail.frame) < len(full.frame) / 4
-    pd.testing.assert_frame_equal(tail.frame.tail(50).reset_index(drop=True),
-                                  full.frame.tail(50).reset_index(drop=True))
+    pd.testing.assert_frame_equal(
+        tail.frame.tail(50).reset_index(drop=True), full.frame.tail(50).reset_index(drop=True)
+    )
 
 
 def test_tail_read_reports_true_file_lines(tmp_path):

@@ -30,30 +30,36 @@ def overflowing_model_doc() -> dict:
     doc = json.loads(BUNDLED_MODEL.read_text(encoding="utf-8"))
     for method in doc["methods"].values():
         n = len(method["logistic"]["coef"])
-        method["logistic"]["coef"] = [-1e308] * n    # every term lowers the odds (its declared direction)
+        method["logistic"]["coef"] = [-1e308] * n  # every term lowers the odds (its declared direction)
         method["scaler"]["scale"] = [1e-300] * n
     return doc
 
 
 def _features(n: int = 3) -> pd.DataFrame:
-    return pd.DataFrame({"wind_gust_ms": np.linspace(2.0, 9.0, n), "dew_point_spread_c": np.full(n, 0.5),
-                         "air_temp_rate_c_per_h": np.full(n, -0.8)})
+    return pd.DataFrame(
+        {
+            "wind_gust_ms": np.linspace(2.0, 9.0, n),
+            "dew_point_spread_c": np.full(n, 0.5),
+            "air_temp_rate_c_per_h": np.full(n, -0.8),
+        }
+    )
 
 
 # --- model arithmetic -----------------------------------------------------------------------
 
+
 def test_overflowing_model_gives_no_odds_and_says_why_without_numpy_warnings():
     model = parse_model(json.dumps(overflowing_model_doc()), "overflow.json")
     features = _features()
-    features.loc[1, "wind_gust_ms"] = np.nan            # one row really lacks an input
+    features.loc[1, "wind_gust_ms"] = np.nan  # one row really lacks an input
     with warnings.catch_warnings():
-        warnings.simplefilter("error")                  # any RuntimeWarning fails the test
+        warnings.simplefilter("error")  # any RuntimeWarning fails the test
         odds = model.odds(features)
         notes = {m: [odds.notes[m][i] for i in range(len(features))] for m in odds}
     for method, p in odds.items():
-        assert np.isnan(p).all(), p                     # never a confident 0 or 1 from inf
+        assert np.isnan(p).all(), p  # never a confident 0 or 1 from inf
         assert "arithmetic failed (overflow) for these inputs: rules only" in notes[method][0]
-        assert "arithmetic failed" not in notes[method][1]        # a missing input is said as such
+        assert "arithmetic failed" not in notes[method][1]  # a missing input is said as such
         assert "wind_gust_ms" in notes[method][1] and "not available" in notes[method][1]
 
 
@@ -78,26 +84,32 @@ def test_check_with_an_overflowing_model_rests_on_rules_and_prints_no_warning(ca
     assert all(c["p_usable"] is None for c in doc["candidates"].values())
     notes = [r["message"] for r in doc["reasons"] if r["rule"].startswith("model.")]
     assert len(notes) == 2 and all("arithmetic failed (overflow)" in n for n in notes)
-    assert not any("not available" in n for n in notes)   # the old, untrue note
+    assert not any("not available" in n for n in notes)  # the old, untrue note
     status_rules_only, out2, _ = run_cli(capsys, "check", "--site", site, "--at", AT, "--model", "none", "--json")
     assert status == status_rules_only and json.loads(out2)["verdict"] == doc["verdict"]
 
 
 # --- message formats ------------------------------------------------------------------------
 
+
 def _rule_file(folder: Path, message: str) -> Path:
     path = folder / "extra.yaml"
-    path.write_text("rules:\n  - id: loud\n    applies_to: both\n    condition: wind_mean_ms >= 0\n"
-                    f"    effect: warn\n    message: {json.dumps(message)}\n")
+    path.write_text(
+        "rules:\n  - id: loud\n    applies_to: both\n    condition: wind_mean_ms >= 0\n"
+        f"    effect: warn\n    message: {json.dumps(message)}\n"
+    )
     return path
 
 
-@pytest.mark.parametrize("spec, words", [
-    (">1000000", "format width 1000000 is above 40"),
-    ("^41", "format width 41 is above 40"),
-    (".500f", "format precision 500 is above 12"),
-    ("x<" + "9" * 5000 + ".1f", "(5000 digits) is above 40"),
-])
+@pytest.mark.parametrize(
+    "spec, words",
+    [
+        (">1000000", "format width 1000000 is above 40"),
+        ("^41", "format width 41 is above 40"),
+        (".500f", "format precision 500 is above 12"),
+        ("x<" + "9" * 5000 + ".1f", "(5000 digits) is above 40"),
+    ],
+)
 def test_lint_refuses_message_formats_that_would_print_megabytes(capsys, tmp_path, spec, words):
     rules = _rule_file(tmp_path, "Wind {wind_mean_ms:" + spec + "} now.")
     status, out, err = run_cli(capsys, "rules", "lint", rules)
@@ -115,7 +127,7 @@ def test_reasonable_formats_pass_lint(capsys, tmp_path, spec):
 def test_format_message_bounds_its_output_even_past_lint():
     from advisor.rules.ruleset import MAX_MESSAGE_CHARS, format_message
 
-    assert format_message("Wind {w:>1000000} m/s", {"w": 1.5}) == "Wind 1.5 m/s"   # width ignored
+    assert format_message("Wind {w:>1000000} m/s", {"w": 1.5}) == "Wind 1.5 m/s"  # width ignored
     assert format_message("{w:.99999f}", {"w": 1.5}) == "1.5"
     huge = format_message("x" * 3_000_000 + "{w:.1f}", {"w": 1.5})
     assert len(huge) <= MAX_MESSAGE_CHARS and huge.endswith("1.5")
@@ -137,7 +149,8 @@ def _hostile_site(folder: Path) -> tuple[Path, Path]:
     text = text.replace('"3C 84"', json.dumps(f"3C{EVIL} 84")).replace('"0716+714"', json.dumps(f"0716{EVIL}+714"))
     (folder / "extra.yaml").write_text(
         "rules:\n  - id: noisy\n    applies_to: both\n    condition: wind_mean_ms >= 0\n    effect: warn\n"
-        f"    message: {json.dumps('Look' + EVIL + ' out {calibrator_name} {wind_mean_ms:.1f} m/s')}\n")
+        f"    message: {json.dumps('Look' + EVIL + ' out {calibrator_name} {wind_mean_ms:.1f} m/s')}\n"
+    )
     site.write_text(text + "rules:\n  - extra.yaml\n")
     feed = folder / f"feed{EVIL.replace(chr(0), '')}.csv".replace("/", "")
     (folder / "feed.csv").rename(feed)
@@ -158,14 +171,15 @@ def test_no_control_character_from_a_file_reaches_any_output(capsys, tmp_path):
     assert "Larch Basin [/bold] (invented)" in out and "Look out 0716+714" in out
     _assert_clean(out, "check (plain)")
     status, out, err = run_cli(capsys, "check", *base, "--json")
-    _assert_clean(out, "check --json")       # JSON escapes would be printed raw by the next tool
+    _assert_clean(out, "check --json")  # JSON escapes would be printed raw by the next tool
     doc = json.loads(out)
     for text in [doc["site"], *(r["message"] for r in doc["reasons"]), *doc["notes"], doc["data_quality"]["source"]]:
         _assert_clean(text, "check --json string")
     status, out, err = run_cli(capsys, "rules", "explain", *base)
     _assert_clean(out, "rules explain")
-    status, out, err = run_cli(capsys, "outlook", "--site", site, "--feed", feed, "--from", "2026-01-16T01:00:00Z",
-                               "--hours", "2")
+    status, out, err = run_cli(
+        capsys, "outlook", "--site", site, "--feed", feed, "--from", "2026-01-16T01:00:00Z", "--hours", "2"
+    )
     assert status == 0 and "Larch Basin [/bold] (invented)" in out, err
     _assert_clean(out + err, "outlook")
 
@@ -175,8 +189,10 @@ def test_tick_files_stdout_and_notify_payload_carry_no_control_characters(capsys
     record = tmp_path / "record.py"
     record.write_text("import sys, pathlib\npathlib.Path(sys.argv[1]).write_text(sys.stdin.read())\n")
     payload = tmp_path / "payload.txt"
-    site.write_text(site.read_text() + f"tick:\n  notify_command: [{json.dumps(sys.executable)}, "
-                    f"{json.dumps(str(record))}, {json.dumps(str(payload))}]\n")
+    site.write_text(
+        site.read_text() + f"tick:\n  notify_command: [{json.dumps(sys.executable)}, "
+        f"{json.dumps(str(record))}, {json.dumps(str(payload))}]\n"
+    )
     state = tmp_path / "state"
     status, out, err = run_cli(capsys, "tick", "--site", site, "--feed", feed, "--at", AT, "--state-dir", state)
     assert status in (0, 10, 11, 12), err

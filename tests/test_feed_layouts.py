@@ -18,13 +18,15 @@ from advisor.io.site import load_site
 
 from .conftest import NIGHT_UTC, registry_at, run_cli, weather_table
 
-HOURLY = FeedLayout(skip_lines=1, time_column=("Date", "Time"), time_format="%m/%d/%Y %H:%M", time_label="end",
-                    time_zone="Etc/GMT+5")
+HOURLY = FeedLayout(
+    skip_lines=1, time_column=("Date", "Time"), time_format="%m/%d/%Y %H:%M", time_label="end", time_zone="Etc/GMT+5"
+)
 
 
 def _hourly_file(path, rows: list[str], meta: str = 'id,"A STATION",XX,-5.0') -> None:
-    path.write_text(meta + "\nDate,Time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n"
-                    + "".join(r + "\n" for r in rows))
+    path.write_text(
+        meta + "\nDate,Time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n" + "".join(r + "\n" for r in rows)
+    )
 
 
 def test_metadata_line_split_date_time_and_hour_ending_24_00(tmp_path):
@@ -32,20 +34,23 @@ def test_metadata_line_split_date_time_and_hour_ending_24_00(tmp_path):
     _hourly_file(path, [f"01/15/2026,{h:02d}:00,1.0,2.0,3.0,70" for h in range(1, 25)])
     frame = read_feed(path, HOURLY).frame
     assert len(frame) == 24
-    assert frame["time"].iloc[0] == pd.Timestamp("2026-01-15T06:00:00Z")      # 01:00 at UTC-05:00
-    assert frame["time"].iloc[-1] == pd.Timestamp("2026-01-16T05:00:00Z")     # 24:00 = next day 00:00
+    assert frame["time"].iloc[0] == pd.Timestamp("2026-01-15T06:00:00Z")  # 01:00 at UTC-05:00
+    assert frame["time"].iloc[-1] == pd.Timestamp("2026-01-16T05:00:00Z")  # 24:00 = next day 00:00
 
 
 def test_24_00_needs_time_label_end_and_a_minute_of_24_is_not_midnight(tmp_path):
     path = tmp_path / "hourly.csv"
     _hourly_file(path, ["01/15/2026,23:00,1,2,3,70", "01/15/2026,24:00,1,2,3,70"])
     with pytest.raises(FeedError) as err:
-        read_feed(path, FeedLayout(skip_lines=1, time_column=("Date", "Time"), time_format="%m/%d/%Y %H:%M",
-                                   time_zone="UTC"))
+        read_feed(
+            path, FeedLayout(skip_lines=1, time_column=("Date", "Time"), time_format="%m/%d/%Y %H:%M", time_zone="UTC")
+        )
     assert err.value.line == 4 and "time_label: end" in err.value.hint
     minutes = tmp_path / "minutes.csv"
-    minutes.write_text("time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n"
-                       "15.01.2026 03:24:00,1,2,3,70\n15.01.2026 03:25:00,1,2,3,70\n")
+    minutes.write_text(
+        "time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n"
+        "15.01.2026 03:24:00,1,2,3,70\n15.01.2026 03:25:00,1,2,3,70\n"
+    )
     frame = read_feed(minutes, FeedLayout(time_format="%d.%m.%Y %H:%M:%S", time_label="end", time_zone="UTC")).frame
     assert frame["time"].iloc[0] == pd.Timestamp("2026-01-15T03:24:00Z")
 
@@ -58,7 +63,7 @@ def test_time_format_mismatch_and_skipped_lines_give_true_file_lines(tmp_path):
     assert err.value.line == 4 and "does not match time_format" in err.value.message
     with pytest.raises(FeedError) as err:
         read_feed(path, FeedLayout(skip_lines=1, time_column=("Date", "Hour"), time_format="%m/%d/%Y %H:%M"))
-    assert err.value.line == 2 and "no time column 'Hour'" in err.value.message   # the header, below one line
+    assert err.value.line == 2 and "no time column 'Hour'" in err.value.message  # the header, below one line
 
 
 def test_period_start_stamps_move_to_the_period_end():
@@ -68,10 +73,16 @@ def test_period_start_stamps_move_to_the_period_end():
     assert (start["time"] - instant["time"] == pd.Timedelta(hours=1)).all()
 
 
-@pytest.mark.parametrize("written, name, offset_h", [
-    ("UTC-05:00", "Etc/GMT+5", -5), ("UTC+5", "Etc/GMT-5", 5), ("Etc/GMT+5", "Etc/GMT+5", -5),
-    ("UTC+05:30", "UTC+05:30", 5.5), ("UTC+00:00", "UTC", 0),
-])
+@pytest.mark.parametrize(
+    "written, name, offset_h",
+    [
+        ("UTC-05:00", "Etc/GMT+5", -5),
+        ("UTC+5", "Etc/GMT-5", 5),
+        ("Etc/GMT+5", "Etc/GMT+5", -5),
+        ("UTC+05:30", "UTC+05:30", 5.5),
+        ("UTC+00:00", "UTC", 0),
+    ],
+)
 def test_fixed_offset_zones(written, name, offset_h):
     assert parse_time_zone(written) == name
     table = weather_table(hours=0.1)
@@ -85,14 +96,15 @@ def test_precipitation_depth_over_fixed_and_per_row_hours():
     table = weather_table(step_min=60.0, hours=3.0)
     table["depth"] = [6.0, 6.0, -9900, 3.0]
     table["period"] = [6, 3, 6, 0]
-    per_row = FeedLayout(missing=(-9900.0,), columns=(ColumnMap("precip_mm_h", "depth", "mm",
-                                                                over_hours_from="period"),))
+    per_row = FeedLayout(
+        missing=(-9900.0,), columns=(ColumnMap("precip_mm_h", "depth", "mm", over_hours_from="period"),)
+    )
     rate = canonical_frame(table.drop(columns=["precip_mm_h"]), per_row).frame["precip_mm_h"].to_numpy()
-    assert rate[:2].tolist() == [1.0, 2.0] and np.isnan(rate[2]) and np.isnan(rate[3])   # coded; zero hours
+    assert rate[:2].tolist() == [1.0, 2.0] and np.isnan(rate[2]) and np.isnan(rate[3])  # coded; zero hours
     fixed = FeedLayout(columns=(ColumnMap("precip_mm_h", "depth", "in", over_hours=1.0),))
     table["depth"] = [0.1, 0.0, 0.2, 0.0]
     rate = canonical_frame(table.drop(columns=["precip_mm_h"]), fixed).frame["precip_mm_h"].to_numpy()
-    assert rate == pytest.approx([2.54, 0.0, 5.08, 0.0])       # 1 in = 25.4 mm (definition)
+    assert rate == pytest.approx([2.54, 0.0, 5.08, 0.0])  # 1 in = 25.4 mm (definition)
 
 
 def test_a_station_without_gust_sensor_gets_estimated_gusts(call_for, demo_site):
@@ -137,7 +149,7 @@ def test_an_implausible_latest_value_names_its_column_and_value(tmp_path, capsys
 def test_an_hourly_feed_is_not_stale_between_samples_and_its_limits_follow_the_cadence(call_for, demo_site):
     from dataclasses import replace
 
-    site = replace(demo_site, feed=FeedLayout())             # no limits set: from the cadence
+    site = replace(demo_site, feed=FeedLayout())  # no limits set: from the cadence
     table = weather_table(step_min=60.0, hours=12.0)
     registry = registry_at(NIGHT_UTC - pd.Timedelta(hours=1), 2.0)
     between = call_for(table, at=NIGHT_UTC + pd.Timedelta(minutes=59), registry=registry, site=site)
@@ -146,15 +158,17 @@ def test_an_hourly_feed_is_not_stale_between_samples_and_its_limits_follow_the_c
     assert late.verdict == "undetermined"
     assert "limit 1 h 30 min" in next(r.message for r in late.reasons if r.rule == "data")
     feed = canonical_frame(table.drop(index=[3, 4]), FeedLayout())
-    assert feed.quality.cadence_min == 60 and feed.quality.n_gaps == 1           # a 3-h step; 2.5 h allowed
+    assert feed.quality.cadence_min == 60 and feed.quality.n_gaps == 1  # a 3-h step; 2.5 h allowed
 
 
 def test_site_from_advisor_site_then_the_config_folder_then_the_demo(tmp_path, monkeypatch, capsys):
     feed = tmp_path / "feed.csv"
     weather_table(hours=1.0).to_csv(feed, index=False)
     site = tmp_path / "mine.yaml"
-    site.write_text("site:\n  name: My station\n  latitude_deg: 47.1\n  longitude_deg: -114.0\n  dish_diameter_m: 90\n"
-                    f"feed:\n  path: {feed}\n")
+    site.write_text(
+        "site:\n  name: My station\n  latitude_deg: 47.1\n  longitude_deg: -114.0\n  dish_diameter_m: 90\n"
+        f"feed:\n  path: {feed}\n"
+    )
     at = NIGHT_UTC.isoformat()
     _, out, _ = run_cli(capsys, "check", "--at", at, "--json")
     assert json.loads(out)["demo_data"] is True

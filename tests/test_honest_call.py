@@ -50,7 +50,7 @@ def test_a_scan_that_misses_lambda_over_16_says_so_in_the_headline_and_a_caution
     table, registry = fresh_reference
     call = call_for(table, registry=registry, freq_ghz=115.0)
     scan = call.candidates["scan"]
-    assert scan["surface_rms_um"] > lambda_over(16, 115.0)              # the demo laser budget misses it
+    assert scan["surface_rms_um"] > lambda_over(16, 115.0)  # the demo laser budget misses it
     assert call.verdict in ("scan", "astronomical")
     chosen = call.candidates[call.verdict]
     if not chosen["meets_requirement"]:
@@ -65,11 +65,13 @@ def test_a_site_can_make_the_requirement_block(call_for, fresh_reference, demo_s
 
     table, registry = fresh_reference
     strict = tmp_path / "strict.yaml"
-    strict.write_text("rules:\n  - id: laser_misses_requirement\n    effect: block\n"
-                      "  - id: holography_misses_requirement\n    effect: block\n")
+    strict.write_text(
+        "rules:\n  - id: laser_misses_requirement\n    effect: block\n"
+        "  - id: holography_misses_requirement\n    effect: block\n"
+    )
     rules = load_rules([(p, "default") for p in default_rule_files()] + [(strict, "site")], CATALOGUE)
-    from advisor.decision import explain
     from advisor.evaluation.evaluate import evaluate
+    from advisor.explain import explain
     from advisor.io.feed import canonical_frame
     from advisor.io.site import FeedLayout
 
@@ -89,7 +91,7 @@ def test_an_unreachable_frequency_says_so_instead_of_waiting_for_weather(call_fo
     reason = next(r for r in call.reasons if r.rule == "target.unreachable")
     assert reason.effect == "block" and "No weather changes that" in reason.message
     # Ruze at the best the site can do (180 µm holography) at 230 GHz is below the site's 0.30
-    best_eta = math.exp(-((4 * math.pi * 180.0) / (C / 230e9 * 1e6)) ** 2)
+    best_eta = math.exp(-(((4 * math.pi * 180.0) / (C / 230e9 * 1e6)) ** 2))
     assert best_eta < 0.30 and f"η {best_eta:.2f}" in reason.message
 
 
@@ -104,7 +106,7 @@ def test_no_correction_needed_when_the_uncorrected_surface_meets_the_requirement
     table, registry = fresh_reference
     site = replace(demo_site, astronomical=replace(demo_site.astronomical, uncorrected_surface_rms_um=400.0))
     low = call_for(table, registry=registry, freq_ghz=30.0, site=site)
-    assert 400.0 <= lambda_over(16, 30.0)
+    assert lambda_over(16, 30.0) >= 400.0
     assert low.verdict == "no_correction" and "No correction needed at 30 GHz" in low.headline
     high = call_for(table, registry=registry, freq_ghz=86.0, site=site)
     assert high.verdict != "no_correction"
@@ -145,15 +147,17 @@ def test_the_choice_agrees_with_the_figures_it_shows(call_for, fresh_reference, 
             choice = [r for r in call.reasons if r.rule == "choice"]
             if not choice:
                 continue
-            values = {m: _value(round(c["ruze_efficiency"], 2), c["p_usable"], c["duration_min"], 60.0 * hours)
-                      for m, c in call.candidates.items()}
+            values = {
+                m: _value(round(c["ruze_efficiency"], 2), c["p_usable"], c["duration_min"], 60.0 * hours)
+                for m, c in call.candidates.items()
+            }
             if call.verdict == "scan":
                 assert values["scan"] >= values["astronomical"] - 1e-12
             else:
                 assert values["astronomical"] > values["scan"]
             assert f"{hours:g} h session" in choice[0].message
             seen.add(call.verdict)
-    assert seen == {"scan", "astronomical"}          # the session length decides, both ways
+    assert seen == {"scan", "astronomical"}  # the session length decides, both ways
 
 
 def test_without_a_session_length_the_fixed_margin_decides(call_for, fresh_reference, site_with):
@@ -178,29 +182,46 @@ def test_holography_pays_back_its_extra_minutes_in_a_long_enough_session(call_fo
     observing with the laser's surface needs (0.39/0.33)^2 = 1.40x the integration time, so
     holography's extra 33 min pay back after 33 / 0.40 = about 80 min of observing."""
     table, registry = fresh_reference
-    site = replace(demo_site,
-                   astronomical=replace(demo_site.astronomical, surface_rms_um=230.0, wind_term_um_per_ms2=0.0,
-                                        thermal_drift_um_per_c=0.0),
-                   scan=replace(demo_site.scan, noise_um_at_calm=100.0, wind_term_um_per_ms2=0.0,
-                                reference_ageing_um_per_day=0.0, reference_mismatch_um_per_c=0.0))
-    eta_holo = math.exp(-(4 * math.pi * 230.0 / lambda_over(1, 100.0)) ** 2)
-    eta_laser = math.exp(-(4 * math.pi * math.hypot(230.0, 100.0) / lambda_over(1, 100.0)) ** 2)
+    site = replace(
+        demo_site,
+        astronomical=replace(
+            demo_site.astronomical, surface_rms_um=230.0, wind_term_um_per_ms2=0.0, thermal_drift_um_per_c=0.0
+        ),
+        scan=replace(
+            demo_site.scan,
+            noise_um_at_calm=100.0,
+            wind_term_um_per_ms2=0.0,
+            reference_ageing_um_per_day=0.0,
+            reference_mismatch_um_per_c=0.0,
+        ),
+    )
+    eta_holo = math.exp(-((4 * math.pi * 230.0 / lambda_over(1, 100.0)) ** 2))
+    eta_laser = math.exp(-((4 * math.pi * math.hypot(230.0, 100.0) / lambda_over(1, 100.0)) ** 2))
     assert (round(eta_holo, 2), round(eta_laser, 2)) == (0.39, 0.33)
     payback_min = 33.0 / ((0.39 / 0.33) ** 2 - 1.0)
     assert 75.0 < payback_min < 85.0
-    long = call_for(table, registry=registry, freq_ghz=100.0, site=replace(
-        site, thresholds=replace(site.thresholds, session_hours=4.0)))
+    long = call_for(
+        table,
+        registry=registry,
+        freq_ghz=100.0,
+        site=replace(site, thresholds=replace(site.thresholds, session_hours=4.0)),
+    )
     assert long.verdict == "astronomical"
     text = next(r for r in long.reasons if r.rule == "choice").message
     assert "1.40× the integration time" in text and "about 80 min of observing" in text
     # a session shorter than holography + its payback (45 + 83 min): the laser
-    short = call_for(table, registry=registry, freq_ghz=100.0, site=replace(
-        site, thresholds=replace(site.thresholds, session_hours=2.0)))
+    short = call_for(
+        table,
+        registry=registry,
+        freq_ghz=100.0,
+        site=replace(site, thresholds=replace(site.thresholds, session_hours=2.0)),
+    )
     assert short.verdict == "scan"
     assert "more than the 2 h session leaves" in next(r for r in short.reasons if r.rule == "choice").message
 
 
 # --------------------------------------------------------------------------- messages follow their rule
+
 
 def _lint(*texts):
     docs = [(p.read_text(), str(p), "default") for p in default_rule_files()]
@@ -215,11 +236,15 @@ def test_overriding_a_threshold_never_leaves_a_stale_number_unwarned():
 
 
 def test_a_hard_coded_number_the_condition_does_not_use_is_a_warning():
-    report = _lint("rules:\n  - id: windy\n    applies_to: scan\n    condition: wind_gust_ms > 10 m/s\n"
-                   "    effect: warn\n    message: \"Gusts above 8 m/s.\"\n")
+    report = _lint(
+        "rules:\n  - id: windy\n    applies_to: scan\n    condition: wind_gust_ms > 10 m/s\n"
+        '    effect: warn\n    message: "Gusts above 8 m/s."\n'
+    )
     assert any("'8 m/s'" in p.message for p in report.problems if p.severity == "warning")
-    clean = _lint("rules:\n  - id: windy\n    applies_to: scan\n    condition: wind_gust_ms > 10 m/s\n"
-                  "    effect: warn\n    message: \"Gusts above {limit}.\"\n")
+    clean = _lint(
+        "rules:\n  - id: windy\n    applies_to: scan\n    condition: wind_gust_ms > 10 m/s\n"
+        '    effect: warn\n    message: "Gusts above {limit}."\n'
+    )
     assert clean.problems == ()
 
 
@@ -228,11 +253,15 @@ def test_limit_fields_show_the_condition_as_written(call_for, tmp_path, demo_sit
 
     table, registry = fresh_reference
     site_rules = tmp_path / "site.yaml"
-    site_rules.write_text("rules:\n  - id: calm_check\n    applies_to: scan\n    condition: wind_gust_ms > 1 kn\n"
-                          "    effect: warn\n    message: \"Gusts {wind_gust_ms:.1f} m/s above {limit}.\"\n")
+    site_rules.write_text(
+        "rules:\n  - id: calm_check\n    applies_to: scan\n    condition: wind_gust_ms > 1 kn\n"
+        '    effect: warn\n    message: "Gusts {wind_gust_ms:.1f} m/s above {limit}."\n'
+    )
     rules = load_rules([(p, "default") for p in default_rule_files()] + [(site_rules, "site")], CATALOGUE)
     fired = next(r for r in rules if r.id == "calm_check")
     assert fired.message_for({"wind_gust_ms": 2.5}) == "Gusts 2.5 m/s above 1 kn."
-    bad = _lint("rules:\n  - id: x\n    applies_to: scan\n    condition: wind_gust_ms > 1 kn\n"
-                "    effect: warn\n    message: \"{limit_2}\"\n")
+    bad = _lint(
+        "rules:\n  - id: x\n    applies_to: scan\n    condition: wind_gust_ms > 1 kn\n"
+        '    effect: warn\n    message: "{limit_2}"\n'
+    )
     assert any(p.severity == "error" and "limit_2" in p.message for p in bad.problems)

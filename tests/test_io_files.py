@@ -43,6 +43,7 @@ AT = "2026-01-16T04:00:00Z"
 @contextmanager
 def no_hang(seconds: int = 60):
     """Fail (instead of hanging the suite) if the block blocks; not a speed check."""
+
     def expired(*_):
         raise AssertionError(f"blocked for {seconds} s: the reader waited on a pipe or device")
 
@@ -56,6 +57,7 @@ def no_hang(seconds: int = 60):
 
 
 # --- paths and special files -------------------------------------------------------------
+
 
 def test_paths_that_cannot_name_a_file_are_one_clear_error():
     with pytest.raises(FeedError, match="NUL character"):
@@ -86,14 +88,14 @@ def test_devices_and_directories_are_refused(tmp_path):
 def test_a_file_swapped_for_a_fifo_after_the_check_is_refused_on_the_open_descriptor(tmp_path, monkeypatch):
     fifo = tmp_path / "rules.yaml"
     os.mkfifo(fifo)
-    monkeypatch.setattr(fileio, "stat_regular", lambda *a, **k: None)   # the race: the first check passed
+    monkeypatch.setattr(fileio, "stat_regular", lambda *a, **k: None)  # the race: the first check passed
     with no_hang(), pytest.raises(RulesError, match="named pipe"), open_regular(fifo, RulesError, "rules"):
         pass
 
 
 def test_size_caps_are_checked_before_reading_and_name_the_fix(tmp_path):
     big = tmp_path / "registry.csv"
-    with big.open("wb") as fh:          # sparse: 30 MB that occupy no disk and are never read
+    with big.open("wb") as fh:  # sparse: 30 MB that occupy no disk and are never read
         fh.truncate(30_000_000)
     with pytest.raises(RegistryError) as info:
         read_bytes_bounded(big, RegistryError, "registry")
@@ -156,10 +158,23 @@ def test_a_registry_saved_by_a_spreadsheet_is_read(tmp_path):
 
 # --- locked writers ----------------------------------------------------------------------
 
+
 def _add_reference(registry: str, minute: int, barrier) -> int:
     barrier.wait()
-    return main(["reference", "add", "--references", registry, "--time", f"2026-01-15T09:{minute:02d}:00Z",
-                 "--air-temp-c", f"{minute / 10:.1f}", "--note", f"writer {minute}"])
+    return main(
+        [
+            "reference",
+            "add",
+            "--references",
+            registry,
+            "--time",
+            f"2026-01-15T09:{minute:02d}:00Z",
+            "--air-temp-c",
+            f"{minute / 10:.1f}",
+            "--note",
+            f"writer {minute}",
+        ]
+    )
 
 
 def _child(target, args, barrier) -> None:
@@ -189,15 +204,16 @@ def test_twenty_concurrent_reference_adds_keep_all_twenty_rows(tmp_path, capsys)
     kept = read_registry(registry)
     assert len(kept) == 20
     assert sorted(kept.notes) == sorted(f"writer {m}" for m in range(20))
-    assert [t.minute for t in kept.times_utc] == list(range(20))       # sorted by time
-    assert not list(tmp_path.glob(".refs.csv.*.tmp"))                  # no temporary file left
+    assert [t.minute for t in kept.times_utc] == list(range(20))  # sorted by time
+    assert not list(tmp_path.glob(".refs.csv.*.tmp"))  # no temporary file left
 
 
 def _append(path: str, writer: int, barrier) -> None:
     barrier.wait()
     for k in range(50):
-        append_line_locked(path, f'{{"writer": {writer}, "k": {k}, "pad": "{"x" * 200}"}}', AdvisorError,
-                           "attempt history")
+        append_line_locked(
+            path, f'{{"writer": {writer}, "k": {k}, "pad": "{"x" * 200}"}}', AdvisorError, "attempt history"
+        )
 
 
 def test_twenty_concurrent_appenders_write_whole_lines(tmp_path):
@@ -210,11 +226,13 @@ def test_twenty_concurrent_appenders_write_whole_lines(tmp_path):
 
 def test_a_held_lock_makes_another_writer_give_up_with_a_clear_line(tmp_path):
     path = tmp_path / "refs.csv"
-    with locked(path, RegistryError, "reference registry"), \
-            pytest.raises(RegistryError, match="another advisor has been writing the reference registry"), \
-            locked(path, RegistryError, "reference registry", wait_s=0):
+    with (
+        locked(path, RegistryError, "reference registry"),
+        pytest.raises(RegistryError, match="another advisor has been writing the reference registry"),
+        locked(path, RegistryError, "reference registry", wait_s=0),
+    ):
         pass
-    with locked(path, RegistryError, "reference registry", wait_s=0):   # released again
+    with locked(path, RegistryError, "reference registry", wait_s=0):  # released again
         pass
     assert (tmp_path / ".refs.csv.lock").exists()
 
@@ -242,6 +260,7 @@ def test_a_replaced_file_keeps_its_permissions(tmp_path):
 
 # --- outputs that would destroy inputs ---------------------------------------------------
 
+
 def test_refuse_overwrite_sees_the_same_file_by_any_name(tmp_path, monkeypatch):
     feed = tmp_path / "feed.csv"
     feed.write_text("x")
@@ -257,8 +276,8 @@ def test_refuse_overwrite_sees_the_same_file_by_any_name(tmp_path, monkeypatch):
         refuse_overwrite(feed, {"--rules": [tmp_path / "a.yaml", feed]}, "--csv")
     with pytest.raises(UsageError, match="one of its inputs"):
         refuse_overwrite(feed, [feed], "--out")
-    refuse_overwrite(tmp_path / "other.csv", {"--feed": feed}, "--csv")        # a new file: fine
-    refuse_overwrite("-", {"--feed": "-"}, "--csv")                             # stdout
+    refuse_overwrite(tmp_path / "other.csv", {"--feed": feed}, "--csv")  # a new file: fine
+    refuse_overwrite("-", {"--feed": "-"}, "--csv")  # stdout
     refuse_overwrite(None, {"--feed": feed}, "--csv")
 
 

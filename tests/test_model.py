@@ -14,9 +14,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from advisor.decision import explain
 from advisor.errors import ModelError
 from advisor.evaluation.evaluate import evaluate
+from advisor.explain import explain
 from advisor.io.feed import canonical_frame
 from advisor.io.site import FeedLayout
 from advisor.model.inference import MethodModel, SiteModel, Term, term_matrix
@@ -48,6 +48,7 @@ def bundled_doc() -> dict:
 
 # --- inference ------------------------------------------------------------------------------
 
+
 def test_numpy_inference_equals_the_fitted_model():
     """The exported JSON, read back and applied with numpy, reproduces the fit's own odds to 1e-9."""
     from advisor.io.site import load_site
@@ -59,8 +60,13 @@ def test_numpy_inference_equals_the_fitted_model():
     result = train(history, features)
     model = parse_model(dumps_model(result.model), "round-trip")
     rng = np.random.default_rng(3)
-    probe = pd.DataFrame({"wind_gust_ms": rng.uniform(0, 20, 500), "dew_point_spread_c": rng.uniform(-0.5, 15, 500),
-                          "air_temp_rate_c_per_h": rng.uniform(-4, 4, 500)})
+    probe = pd.DataFrame(
+        {
+            "wind_gust_ms": rng.uniform(0, 20, 500),
+            "dew_point_spread_c": rng.uniform(-0.5, 15, 500),
+            "air_temp_rate_c_per_h": rng.uniform(-4, 4, 500),
+        }
+    )
     for frame in (features[features["data_ok"]], probe):
         for method, fit in result.fits.items():
             expected = fit.predict_terms(term_matrix(frame, fit.terms))
@@ -97,8 +103,9 @@ def test_unbounded_fit_is_scikit_learns_logistic_regression():
 def test_prediction_follows_the_logistic_formula():
     """p = 1/(1 + exp(-(b + Σ w (t - m)/s))) with t the terms (definition of the model)."""
     model = hand_model()
-    frame = pd.DataFrame({"wind_gust_ms": [2.0, 7.8], "dew_point_spread_c": [5.0, 0.4],
-                          "air_temp_rate_c_per_h": [-0.8, 1.5]})
+    frame = pd.DataFrame(
+        {"wind_gust_ms": [2.0, 7.8], "dew_point_spread_c": [5.0, 0.4], "air_temp_rate_c_per_h": [-0.8, 1.5]}
+    )
     t = np.array([[4.0, 0.0, 0.8], [7.8**2, 2.6, 1.5]])
     logit = 2.0 + ((t - [16.0, 0.5, 0.6]) / [30.0, 1.0, 0.5] * [-1.8, -0.9, 0.1]).sum(axis=1)
     np.testing.assert_allclose(model.methods["scan"].predict(frame), 1 / (1 + np.exp(-logit)), rtol=1e-12)
@@ -126,6 +133,7 @@ def test_json_round_trip_is_exact():
 
 # --- reasons --------------------------------------------------------------------------------
 
+
 def _evaluate(model, **weather):
     table = weather_table(**weather)
     feed = canonical_frame(table, FeedLayout(max_feed_age_min=15))
@@ -136,8 +144,9 @@ def _evaluate(model, **weather):
     rules = load_rules([(p, "default") for p in default_rule_files()], CATALOGUE)
     site = load_site(None)
     registry = registry_at(NIGHT_UTC - pd.Timedelta(hours=2), table["air_temp_c"].iloc[-1] + 0.8)
-    decisions = evaluate(feed.frame, pd.DatetimeIndex([NIGHT_UTC]), site, registry, rules, 86.0,
-                         model.odds if model else None)
+    decisions = evaluate(
+        feed.frame, pd.DatetimeIndex([NIGHT_UTC]), site, registry, rules, 86.0, model.odds if model else None
+    )
     return decisions, explain(decisions, 0)
 
 
@@ -167,8 +176,13 @@ def test_calm_night_keeps_the_scan_with_good_odds():
 
 
 def test_notes_are_lazy_and_index_like_a_list():
-    frame = pd.DataFrame({"wind_gust_ms": [1.0, 9.0, 4.0], "dew_point_spread_c": [6.0, 6.0, 6.0],
-                          "air_temp_rate_c_per_h": [0.6, 0.6, 0.6]})
+    frame = pd.DataFrame(
+        {
+            "wind_gust_ms": [1.0, 9.0, 4.0],
+            "dew_point_spread_c": [6.0, 6.0, 6.0],
+            "air_temp_rate_c_per_h": [0.6, 0.6, 0.6],
+        }
+    )
     notes = hand_model().odds(frame).notes["scan"]
     assert len(notes) == 3
     assert notes[1] == notes[-2] == notes[1:2][0]
@@ -177,11 +191,15 @@ def test_notes_are_lazy_and_index_like_a_list():
 
 # --- strict reading -------------------------------------------------------------------------
 
+
 def test_bundled_model_reads_and_lists_features_with_units():
     model = load_model(BUNDLED)
     assert set(model.methods) == {"scan", "astronomical"}
-    assert dict(model.features) == {"wind_gust_ms": "m/s", "dew_point_spread_c": "delta_degC",
-                                    "air_temp_rate_c_per_h": "degC/h"}
+    assert dict(model.features) == {
+        "wind_gust_ms": "m/s",
+        "dew_point_spread_c": "delta_degC",
+        "air_temp_rate_c_per_h": "degC/h",
+    }
     for key in ("history", "libraries", "rows_used"):
         assert key in model.training
 
@@ -250,13 +268,16 @@ def test_truncated_file_says_so_with_line(tmp_path):
     assert info.value.line is not None
 
 
-@pytest.mark.parametrize("content, message", [
-    ("", "model file is empty"),
-    ("{\"format\": NaN}", "non-finite number NaN"),
-    ("{\"a\": 1, \"a\": 2}", "duplicate key 'a'"),
-    ("[1, 2, 3]", "expected a JSON object at the top"),
-    ("not json at all", "invalid JSON"),
-])
+@pytest.mark.parametrize(
+    "content, message",
+    [
+        ("", "model file is empty"),
+        ('{"format": NaN}', "non-finite number NaN"),
+        ('{"a": 1, "a": 2}', "duplicate key 'a'"),
+        ("[1, 2, 3]", "expected a JSON object at the top"),
+        ("not json at all", "invalid JSON"),
+    ],
+)
 def test_garbage_is_a_clear_error(tmp_path, content, message):
     bad = tmp_path / "model.json"
     bad.write_text(content, encoding="utf-8")

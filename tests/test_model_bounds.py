@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from advisor.decision import explain
+from advisor.explain import explain
 from advisor.model.inference import MethodModel, SiteModel, Term
 from advisor.model.logistic import fit_logistic
 from advisor.model.modelfile import dumps_model, parse_model
@@ -65,8 +65,9 @@ def test_a_real_effect_keeps_its_term():
     rng = np.random.default_rng(6)
     gust, rate = rng.uniform(0, 12, 400), rng.uniform(-2, 2, 400)
     y = (rng.random(400) < 1 / (1 + np.exp(-(2.5 - 0.04 * gust**2 - 1.2 * np.abs(rate))))).astype(int)
-    fit = fit_method("astronomical", np.column_stack([gust**2, np.abs(rate)]), y, (GUST_SQ, DRIFT),
-                     np.column_stack([gust, rate]))
+    fit = fit_method(
+        "astronomical", np.column_stack([gust**2, np.abs(rate)]), y, (GUST_SQ, DRIFT), np.column_stack([gust, rate])
+    )
     assert not fit.dropped and len(fit.terms) == 2
     assert np.all(fit.model.coef < 0)
 
@@ -78,7 +79,7 @@ def test_bounded_fit_is_the_constrained_optimum(seed):
 
     rng = np.random.default_rng(seed)
     n, d = 200, 4
-    X = rng.normal(size=(n, d)) @ rng.normal(size=(d, d))          # correlated terms
+    X = rng.normal(size=(n, d)) @ rng.normal(size=(d, d))  # correlated terms
     y = (rng.random(n) < 1 / (1 + np.exp(-(0.5 + X @ rng.normal(size=d))))).astype(int)
     signs = np.array([-1, 1, 0, -1])
     c = 10.0
@@ -90,8 +91,13 @@ def test_bounded_fit_is_the_constrained_optimum(seed):
         return 0.5 * theta[:-1] @ theta[:-1] + c * np.sum(np.logaddexp(0, np.where(y > 0, -z, z)))
 
     bounds = [(None, 0) if s < 0 else (0, None) if s > 0 else (None, None) for s in signs] + [(None, None)]
-    ref = minimize(objective, np.zeros(d + 1), method="L-BFGS-B", bounds=bounds,
-                   options={"ftol": 1e-15, "gtol": 1e-12, "maxiter": 100_000})
+    ref = minimize(
+        objective,
+        np.zeros(d + 1),
+        method="L-BFGS-B",
+        bounds=bounds,
+        options={"ftol": 1e-15, "gtol": 1e-12, "maxiter": 100_000},
+    )
     theta = np.append(ours.coef, ours.intercept)
     assert objective(theta) <= ref.fun + 1e-7
     assert np.all(signs * ours.coef >= 0)
@@ -106,27 +112,48 @@ def test_bounded_fit_is_the_constrained_optimum(seed):
 
 # --- extrapolation ------------------------------------------------------------------------
 
+
 def _ranged_model() -> SiteModel:
     terms = (GUST_SQ, DRIFT)
-    scan = MethodModel(terms, np.array([16.0, 0.6]), np.array([30.0, 0.5]), np.array([-1.8, -0.3]), 2.0, {},
-                       np.array([1.0, -2.5]), np.array([18.0, 2.5]))
-    astro = MethodModel(terms, np.array([16.0, 0.6]), np.array([30.0, 0.5]), np.array([-1.0, -0.6]), 2.0, {},
-                        np.array([1.0, -1.0]), np.array([18.0, 1.0]))
-    return SiteModel((("wind_gust_ms", "m/s"), ("air_temp_rate_c_per_h", "degC/h")),
-                     {"scan": scan, "astronomical": astro})
+    scan = MethodModel(
+        terms,
+        np.array([16.0, 0.6]),
+        np.array([30.0, 0.5]),
+        np.array([-1.8, -0.3]),
+        2.0,
+        {},
+        np.array([1.0, -2.5]),
+        np.array([18.0, 2.5]),
+    )
+    astro = MethodModel(
+        terms,
+        np.array([16.0, 0.6]),
+        np.array([30.0, 0.5]),
+        np.array([-1.0, -0.6]),
+        2.0,
+        {},
+        np.array([1.0, -1.0]),
+        np.array([18.0, 1.0]),
+    )
+    return SiteModel(
+        (("wind_gust_ms", "m/s"), ("air_temp_rate_c_per_h", "degC/h")), {"scan": scan, "astronomical": astro}
+    )
 
 
 def test_odds_outside_the_training_range_are_marked_extrapolated():
     """|dT/dt| = 4 °C/h after training on -2.5..2.5: the term |x| = 4 lies 1.5 °C/h beyond 2.5."""
-    frame = pd.DataFrame({"wind_gust_ms": [3.0, 3.0, 0.9, 19.0, np.nan],
-                          "air_temp_rate_c_per_h": [0.5, 4.0, 0.5, 0.5, 4.0]})
+    frame = pd.DataFrame(
+        {"wind_gust_ms": [3.0, 3.0, 0.9, 19.0, np.nan], "air_temp_rate_c_per_h": [0.5, 4.0, 0.5, 0.5, 4.0]}
+    )
     odds = _ranged_model().odds(frame)
     # 0.9 m/s: gust² 0.81 against 1.0 trained, 0.006 sd below: within the tolerance; NaN gives no odds
     assert odds.extrapolated["scan"].tolist() == [False, True, False, True, False]
     assert odds.extrapolation["scan"][0] is None
     text = odds.extrapolation["scan"][1]
     assert "temperature change +4.0 °C/h is outside the range it was trained on (-2.5 °C/h .. +2.5 °C/h)" in text
-    assert "gusts 19.0 m/s is outside the range it was trained on (1.0 m/s .. 18.0 m/s)" in odds.extrapolation["scan"][3]
+    assert (
+        "gusts 19.0 m/s is outside the range it was trained on (1.0 m/s .. 18.0 m/s)" in odds.extrapolation["scan"][3]
+    )
     # |x| sees -2.0 °C/h as 2.0: inside the scan model's range, outside the astronomical one's 1.0
     minus = _ranged_model().odds(pd.DataFrame({"wind_gust_ms": [3.0], "air_temp_rate_c_per_h": [-2.0]}))
     assert not minus.extrapolated["scan"][0] and minus.extrapolated["astronomical"][0]

@@ -60,9 +60,20 @@ def test_model_show_prints_metadata_metrics_and_plain_coefficients(capsys):
     assert status == 0, err
     doc = json.loads(BUNDLED.read_text(encoding="utf-8"))
     assert doc["training"]["history"]["sha256"] in out
-    for text in ("larch_basin_history.csv, 420 rows", "scikit-learn", "numpy", "ROC AUC", "Brier score",
-                 "laser scan:", "astronomical:", "gusts squared", "per (m/s)²", "per °C/h",
-                 "wind_gust_ms [m/s]", "intercept"):
+    for text in (
+        "larch_basin_history.csv, 420 rows",
+        "scikit-learn",
+        "numpy",
+        "ROC AUC",
+        "Brier score",
+        "laser scan:",
+        "astronomical:",
+        "gusts squared",
+        "per (m/s)²",
+        "per °C/h",
+        "wind_gust_ms [m/s]",
+        "intercept",
+    ):
         assert text in out, text
 
 
@@ -82,7 +93,7 @@ def test_model_without_action_is_usage(capsys):
 def test_demo_check_shows_model_odds_and_reasons(capsys):
     status, out, _ = run(capsys, "check", "--json")
     doc = json.loads(out)
-    assert doc["verdict"] == "scan" and status == 0          # the demo story: calm evening → scan
+    assert doc["verdict"] == "scan" and status == 0  # the demo story: calm evening → scan
     for cand in doc["candidates"].values():
         assert 0.0 < cand["p_usable"] < 1.0
     notes = [r for r in doc["reasons"] if r["rule"] == "model.scan" and r["effect"] == "info"]
@@ -101,8 +112,9 @@ def _damaged(tmp_path) -> dict:
         "wrong_unit": text.replace('"degC/h"', '"degF/h"', 1),
         "wrong_schema": text.replace('"schema_version": 2', '"schema_version": 7', 1),
         "huge": text + " " * (MAX_MODEL_BYTES + 10),
-        "shapes": json.dumps({**doc, "methods": {"scan": {**doc["methods"]["scan"],
-                                                          "logistic": {"coef": [0.1], "intercept": 0.0}}}}),
+        "shapes": json.dumps(
+            {**doc, "methods": {"scan": {**doc["methods"]["scan"], "logistic": {"coef": [0.1], "intercept": 0.0}}}}
+        ),
     }
     paths = {}
     for name, content in files.items():
@@ -118,7 +130,7 @@ def test_check_with_a_bad_model_falls_back_to_rules_and_says_so(tmp_path, capsys
     status, out, err = run(capsys, "check", "--model", bad)
     assert status == rules_only
     assert err.startswith(f"advisor: warning: {bad}") and "falling back to rules only" in err
-    words = " ".join(out.split())   # the screen folds long notes
+    words = " ".join(out.split())  # the screen folds long notes
     assert "Site model not used" in words and "rules and the error budget only" in words
     status, out, _ = run(capsys, "check", "--model", bad, "--json")
     doc = json.loads(out)
@@ -137,21 +149,22 @@ def test_site_model_path_that_is_missing_falls_back(tmp_path, capsys):
     path.write_text(site, encoding="utf-8")
     status, out, err = run(capsys, "check", "--site", path, "--at", "2026-12-01T03:00:00Z")
     assert "model file not found" in err and "Site model not used" in out
-    assert status in (0, 10)          # a call on the rules and error budget alone (scan or astronomical)
+    assert status in (0, 10)  # a call on the rules and error budget alone (scan or astronomical)
 
 
 def test_check_never_imports_scikit_learn():
     """The check path is numpy-only inference: scikit-learn (and test-only astropy) stay unloaded."""
-    code = ("import sys\n"
-            "from advisor.commands.main import main\n"
-            "status = main(['check', '--json'])\n"
-            "heavy = sorted(m for m in sys.modules if m.split('.')[0] in ('sklearn', 'astropy', 'scipy'))\n"
-            "print('HEAVY', heavy, file=sys.stderr)\n"
-            "assert 'advisor.model.inference' in sys.modules\n"
-            "assert not heavy, heavy\n")
+    code = (
+        "import sys\n"
+        "from advisor.commands.main import main\n"
+        "status = main(['check', '--json'])\n"
+        "heavy = sorted(m for m in sys.modules if m.split('.')[0] in ('sklearn', 'astropy', 'scipy'))\n"
+        "print('HEAVY', heavy, file=sys.stderr)\n"
+        "assert 'advisor.model.inference' in sys.modules\n"
+        "assert not heavy, heavy\n"
+    )
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
-    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, env=env,
-                          timeout=120)
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, env=env, timeout=120)
     assert proc.returncode == 0, proc.stderr
     assert "HEAVY []" in proc.stderr
     assert json.loads(proc.stdout)["candidates"]["scan"]["p_usable"] is not None
@@ -182,10 +195,12 @@ def test_train_from_an_archive_feed_computes_features_at_each_attempt(tmp_path, 
     usable = np.where(calm ^ (np.arange(48) % 7 == 0), "yes", "no")
     history = tmp_path / "attempts.csv"
     pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ"), "method": "scan", "usable": usable}).to_csv(
-        history, index=False)
+        history, index=False
+    )
     out_path = tmp_path / "model.json"
-    status, out, err = run(capsys, "train", "--history", history, "--feed", archive, "--method", "scan",
-                           "--out", out_path)
+    status, out, err = run(
+        capsys, "train", "--history", history, "--feed", archive, "--method", "scan", "--out", out_path
+    )
     assert status == 0, err
     assert f"48 computed from the feed {archive}" in out
     model = load_model(out_path)

@@ -27,7 +27,9 @@ TERM_KEYS = ("wind_gust_ms_sq", "dew_point_spread_c_shortfall_below_3", "abs_air
 
 
 def _load_make_history():
-    spec = importlib.util.spec_from_file_location("make_history_under_test", ROOT / "example_weather" / "make_history.py")
+    spec = importlib.util.spec_from_file_location(
+        "make_history_under_test", ROOT / "example_weather" / "make_history.py"
+    )
     module = importlib.util.module_from_spec(spec)
     sys.modules[spec.name] = module
     spec.loader.exec_module(module)
@@ -129,8 +131,13 @@ def test_history_weather_columns_give_the_archive_features(weather):
     history = read_history(HISTORY)
     from_history = history_features(history, site).features
     from_archive = compute_features(frame, pd.DatetimeIndex(history.frame["time"]), site, Registry.empty(), 86.0)
-    for name, tol in (("wind_gust_ms", 0.006), ("dew_point_spread_c", 0.05), ("air_temp_rate_c_per_h", 0.006),
-                      ("sun_elevation_deg", 1e-9), ("rel_humidity_pct", 0.06)):
+    for name, tol in (
+        ("wind_gust_ms", 0.006),
+        ("dew_point_spread_c", 0.05),
+        ("air_temp_rate_c_per_h", 0.006),
+        ("sun_elevation_deg", 1e-9),
+        ("rel_humidity_pct", 0.06),
+    ):
         np.testing.assert_allclose(from_history[name], from_archive[name], atol=tol, err_msg=name)
     assert (from_history["fog"] == from_archive["fog"]).mean() > 0.98
 
@@ -148,26 +155,43 @@ def test_terms_feed_the_pipeline_in_model_order(weather):
 
 # --- refusing thin data ---------------------------------------------------------------------
 
+
 def _history_rows(n_scan_ok, n_scan_bad, n_astro_ok=40, n_astro_bad=10):
     rows = []
     t0 = pd.Timestamp("2026-01-05T03:00:00Z")
     k = 0
-    for method, ok, count in (("scan", "yes", n_scan_ok), ("scan", "no", n_scan_bad),
-                              ("astronomical", "yes", n_astro_ok), ("astronomical", "no", n_astro_bad)):
+    for method, ok, count in (
+        ("scan", "yes", n_scan_ok),
+        ("scan", "no", n_scan_bad),
+        ("astronomical", "yes", n_astro_ok),
+        ("astronomical", "no", n_astro_bad),
+    ):
         for _ in range(count):
-            gust = 2.0 + (k % 7) + (2.5 if ok == "no" else 0.0)   # failures come with stronger gusts
-            rows.append({"time": (t0 + pd.Timedelta(hours=5 * k)).strftime("%Y-%m-%dT%H:%M:%SZ"), "method": method,
-                         "usable": ok, "wind_mean_ms": gust / 1.6, "wind_gust_ms": gust, "air_temp_c": 1.0 + k % 5,
-                         "rel_humidity_pct": 60 + 3 * (k % 11), "air_temp_rate_c_per_h": -0.5 + 0.1 * (k % 9)})
+            gust = 2.0 + (k % 7) + (2.5 if ok == "no" else 0.0)  # failures come with stronger gusts
+            rows.append(
+                {
+                    "time": (t0 + pd.Timedelta(hours=5 * k)).strftime("%Y-%m-%dT%H:%M:%SZ"),
+                    "method": method,
+                    "usable": ok,
+                    "wind_mean_ms": gust / 1.6,
+                    "wind_gust_ms": gust,
+                    "air_temp_c": 1.0 + k % 5,
+                    "rel_humidity_pct": 60 + 3 * (k % 11),
+                    "air_temp_rate_c_per_h": -0.5 + 0.1 * (k % 9),
+                }
+            )
             k += 1
     return pd.DataFrame(rows)
 
 
-@pytest.mark.parametrize("n_ok, n_bad, message", [
-    (20, 9, "laser scan: only 29 attempts to learn from, need at least 30"),
-    (40, 4, "laser scan: only 4 unusable attempts out of 44, need at least 5 of each outcome"),
-    (4, 40, "laser scan: only 4 usable attempts out of 44"),
-])
+@pytest.mark.parametrize(
+    "n_ok, n_bad, message",
+    [
+        (20, 9, "laser scan: only 29 attempts to learn from, need at least 30"),
+        (40, 4, "laser scan: only 4 unusable attempts out of 44, need at least 5 of each outcome"),
+        (4, 40, "laser scan: only 4 usable attempts out of 44"),
+    ],
+)
 def test_too_little_data_is_refused(tmp_path, demo_site, n_ok, n_bad, message):
     path = tmp_path / "history.csv"
     _history_rows(n_ok, n_bad).to_csv(path, index=False)
@@ -189,23 +213,33 @@ def test_enough_data_of_one_method_trains_that_method_alone(tmp_path, demo_site)
 
 # --- reading histories ----------------------------------------------------------------------
 
+
 def _write(tmp_path, text):
     path = tmp_path / "history.csv"
     path.write_text(text, encoding="utf-8")
     return path
 
 
-@pytest.mark.parametrize("text, message", [
-    ("time,method,usable\n2026-01-01T03:00:00Z,laser,yes\n", ":2: method: method 'laser' is neither"),
-    ("time,method,usable\n2026-01-01T03:00:00Z,scan,yes\n2026-01-01T04:00:00,scan,no\n", ":3: time: time '2026-01-01T04:00:00' has no UTC offset"),
-    ("time,method,usable\n2026-01-01T03:00:00Z,scan,maybe\n", ":2: usable: usable 'maybe' is not yes/no"),
-    ("time,method\n2026-01-01T03:00:00Z,scan\n", ":1: no outcome column"),
-    ("time,method,residual_rms_um\n2026-01-01T03:00:00Z,scan,150\n", ":2: usable: no 'usable' value and no limit"),
-    ("time,method,usable,residual_rms_um\n2026-01-01T03:00:00Z,scan,,\n", ":2: usable: attempt has no outcome"),
-    ("time,method,usable,wind_gust_ms\n2026-01-01T03:00:00Z,scan,yes,fast\n", ":2: wind_gust_ms: wind_gust_ms 'fast' is not a number"),
-    ("method,usable\nscan,yes\n", ":1: missing column 'time'"),
-    ("", "history file is empty"),
-])
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        ("time,method,usable\n2026-01-01T03:00:00Z,laser,yes\n", ":2: method: method 'laser' is neither"),
+        (
+            "time,method,usable\n2026-01-01T03:00:00Z,scan,yes\n2026-01-01T04:00:00,scan,no\n",
+            ":3: time: time '2026-01-01T04:00:00' has no UTC offset",
+        ),
+        ("time,method,usable\n2026-01-01T03:00:00Z,scan,maybe\n", ":2: usable: usable 'maybe' is not yes/no"),
+        ("time,method\n2026-01-01T03:00:00Z,scan\n", ":1: no outcome column"),
+        ("time,method,residual_rms_um\n2026-01-01T03:00:00Z,scan,150\n", ":2: usable: no 'usable' value and no limit"),
+        ("time,method,usable,residual_rms_um\n2026-01-01T03:00:00Z,scan,,\n", ":2: usable: attempt has no outcome"),
+        (
+            "time,method,usable,wind_gust_ms\n2026-01-01T03:00:00Z,scan,yes,fast\n",
+            ":2: wind_gust_ms: wind_gust_ms 'fast' is not a number",
+        ),
+        ("method,usable\nscan,yes\n", ":1: missing column 'time'"),
+        ("", "history file is empty"),
+    ],
+)
 def test_bad_history_is_a_one_line_error_with_its_line(tmp_path, text, message):
     path = _write(tmp_path, text)
     with pytest.raises(HistoryError) as info:
@@ -214,9 +248,12 @@ def test_bad_history_is_a_one_line_error_with_its_line(tmp_path, text, message):
 
 
 def test_measured_rms_decides_when_usable_is_blank(tmp_path):
-    path = _write(tmp_path, "time,method,usable,residual_rms_um,usable_max_rms_um\n"
-                            "2026-01-01T03:00:00Z,scan,,150,200\n2026-01-01T04:00:00Z,scan,,250,200\n"
-                            "2026-01-01T05:00:00Z,scan,no,150,200\n2026-01-01T06:00:00Z,scan,,250,\n")
+    path = _write(
+        tmp_path,
+        "time,method,usable,residual_rms_um,usable_max_rms_um\n"
+        "2026-01-01T03:00:00Z,scan,,150,200\n2026-01-01T04:00:00Z,scan,,250,200\n"
+        "2026-01-01T05:00:00Z,scan,no,150,200\n2026-01-01T06:00:00Z,scan,,250,\n",
+    )
     history = read_history(path, usable_below_um=300)
     assert history.frame["usable"].tolist() == [True, False, False, True]
 

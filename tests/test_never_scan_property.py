@@ -15,10 +15,10 @@ puts the call in a known state; no check value comes from it.
 
 from __future__ import annotations
 
-from dataclasses import replace
 import math
 import os
 import tempfile
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -28,9 +28,9 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from advisor.catalogue import CATALOGUE, PLAUSIBLE_RANGE
-from advisor.decision import explain
 from advisor.errors import AdvisorError
 from advisor.evaluation.evaluate import evaluate
+from advisor.explain import explain
 from advisor.io.feed import canonical_frame, read_feed
 from advisor.io.site import FeedLayout, load_site
 from advisor.rules.loader import default_rule_files, load_rules
@@ -47,8 +47,12 @@ def _examples() -> int:
     return 20_000 if os.environ.get("HYPOTHESIS_PROFILE") == "long" else 2_000
 
 
-PROPERTY = settings(max_examples=_examples(), deadline=None, derandomize=False,
-                    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+PROPERTY = settings(
+    max_examples=_examples(),
+    deadline=None,
+    derandomize=False,
+    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
+)
 
 SITE = load_site(None)
 # The calm nights must scan: a 2 h session (holography's extra 33 min pay back only over a longer one).
@@ -67,8 +71,9 @@ def verdict_of(table: pd.DataFrame, at: pd.Timestamp, layout: FeedLayout | None 
         feed = canonical_frame(table, layout or _layout())
     except AdvisorError:
         return "refused"
-    return _verdict(feed.frame, at, float(table["air_temp_c"].dropna().iloc[-1]) if table["air_temp_c"].notna().any()
-                    else 2.0)
+    return _verdict(
+        feed.frame, at, float(table["air_temp_c"].dropna().iloc[-1]) if table["air_temp_c"].notna().any() else 2.0
+    )
 
 
 def _verdict(frame: pd.DataFrame, at: pd.Timestamp, ref_temp_c: float) -> str:
@@ -82,6 +87,7 @@ def _verdict(frame: pd.DataFrame, at: pd.Timestamp, ref_temp_c: float) -> str:
 
 # --- a good night, then damage --------------------------------------------------------------
 
+
 @st.composite
 def good_nights(draw) -> tuple[pd.DataFrame, pd.Timestamp]:
     """A calm, clear night feed ending at the evaluation time (scans when undamaged)."""
@@ -89,10 +95,16 @@ def good_nights(draw) -> tuple[pd.DataFrame, pd.Timestamp]:
     hours = draw(st.sampled_from([0.75, 1.0, 2.0]))
     end = NIGHT_UTC + pd.Timedelta(minutes=draw(st.integers(-90, 60)))
     mean = draw(st.floats(0.3, 3.0))
-    table = weather_table(end=end, hours=hours, step_min=step, wind_mean_ms=mean,
-                          wind_gust_ms=mean + draw(st.floats(0.2, 2.0)),
-                          air_temp_c=draw(st.floats(-6.0, 8.0)), temp_rate_c_per_h=draw(st.floats(-0.8, 0.3)),
-                          rel_humidity_pct=draw(st.floats(30.0, 80.0)))
+    table = weather_table(
+        end=end,
+        hours=hours,
+        step_min=step,
+        wind_mean_ms=mean,
+        wind_gust_ms=mean + draw(st.floats(0.2, 2.0)),
+        air_temp_c=draw(st.floats(-6.0, 8.0)),
+        temp_rate_c_per_h=draw(st.floats(-0.8, 0.3)),
+        rel_humidity_pct=draw(st.floats(30.0, 80.0)),
+    )
     return table, end
 
 
@@ -114,7 +126,7 @@ def damaged_feeds(draw):
     n = len(table)
     kind = draw(st.sampled_from(["missing", "missing_column", "implausible", "stale", "late_rows_lost"]))
     at = end
-    if kind == "missing":       # the last k samples of some required inputs are empty
+    if kind == "missing":  # the last k samples of some required inputs are empty
         k = draw(st.integers(1, n))
         cols = draw(st.lists(st.sampled_from(REQUIRED), min_size=1, max_size=4, unique=True))
         table.loc[table.index[-k:], cols] = np.nan
@@ -125,19 +137,20 @@ def damaged_feeds(draw):
         name = draw(st.sampled_from(REQUIRED))
         table[name] = table[name].astype(float)
         table.loc[table.index[-k:], name] = _out_of_range(draw, name)
-    elif kind == "stale":       # the feed stopped: the evaluation time is past the data's useful age
+    elif kind == "stale":  # the feed stopped: the evaluation time is past the data's useful age
         at = end + pd.Timedelta(minutes=draw(st.floats(MAX_AGE_MIN + 0.5, 5 * 24 * 60)))
-    else:                       # the rows up to the evaluation time were lost, more than the useful age
+    else:  # the rows up to the evaluation time were lost, more than the useful age
         times = pd.to_datetime(table["time"])
         span_min = (times.iloc[-1] - times.iloc[0]).total_seconds() / 60
         lost = draw(st.floats(MAX_AGE_MIN + 0.5, max(MAX_AGE_MIN + 0.5, span_min - 1)))
         table = table[times <= end - pd.Timedelta(minutes=lost)]
-        if len(table) == 0:     # nothing left at all: the feed is empty
+        if len(table) == 0:  # nothing left at all: the feed is empty
             return "stale", weather_table(end=end - pd.Timedelta(minutes=lost), hours=0.5), at
     return kind, table, at
 
 
 # --- truncated lines ------------------------------------------------------------------------
+
 
 @st.composite
 def truncated_feeds(draw):
@@ -157,7 +170,7 @@ def truncated_feeds(draw):
     at = end + pd.Timedelta(minutes=1)
     calm = weather_table(end=at, hours=0.0, step_min=1.0).reindex(columns=table.columns)
     last = calm.to_csv(index=False, header=False, lineterminator="\n")
-    cut = draw(st.integers(1, len(last) - 1))         # at least the newline is missing
+    cut = draw(st.integers(1, len(last) - 1))  # at least the newline is missing
     return "truncated", table.to_csv(index=False, lineterminator="\n") + last[:cut].rstrip("\n"), at
 
 
@@ -169,11 +182,12 @@ def _truncated_verdict(text: str, at: pd.Timestamp) -> str:
             feed = read_feed(path, _layout())
         except AdvisorError:
             return "refused"
-    assert feed.frame["time"].iloc[-1] < at            # the cut line did not enter the frame
+    assert feed.frame["time"].iloc[-1] < at  # the cut line did not enter the frame
     return _verdict(feed.frame, at, float(feed.frame["air_temp_c"].iloc[-1]))
 
 
 # --- the property ----------------------------------------------------------------------------
+
 
 @st.composite
 def untrustworthy_feeds(draw):
@@ -191,6 +205,7 @@ def test_required_inputs_missing_stale_truncated_or_implausible_never_scan(case)
 
 # --- the property has teeth ------------------------------------------------------------------
 
+
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(night=good_nights())
 def test_undamaged_feeds_scan(night):
@@ -201,13 +216,14 @@ def test_undamaged_feeds_scan(night):
 
 # --- optional inputs: a sensor that fell silent ----------------------------------------------
 
+
 @st.composite
 def optional_dropouts(draw):
     """A good night whose optional sensor (visibility, precipitation) reported until k minutes ago."""
     table, end = draw(good_nights())
     name = draw(st.sampled_from(OPTIONAL))
     step = (pd.to_datetime(table["time"].iloc[-1]) - pd.to_datetime(table["time"].iloc[-2])).total_seconds() / 60
-    k = draw(st.integers(1, max(1, int(40 // step))))       # silent for at most 40 min
+    k = draw(st.integers(1, max(1, int(40 // step))))  # silent for at most 40 min
     assume(k < len(table) - 2)
     table[name] = table[name].astype(float)
     table.loc[table.index[-k:], name] = np.nan
@@ -219,9 +235,11 @@ def optional_dropouts(draw):
 DROPOUT_EXAMPLES = max(50, _examples() // 4)
 
 
-@pytest.mark.skipif("input_dropout" not in CATALOGUE,
-                    reason="the optional-input dropout rule (a sensor that fell silent blocks a scan; issue 12, "
-                           "catalogue feature 'input_dropout') is not in this build yet")
+@pytest.mark.skipif(
+    "input_dropout" not in CATALOGUE,
+    reason="the optional-input dropout rule (a sensor that fell silent blocks a scan; issue 12, "
+    "catalogue feature 'input_dropout') is not in this build yet",
+)
 @settings(PROPERTY, max_examples=DROPOUT_EXAMPLES)
 @given(case=optional_dropouts())
 def test_an_optional_input_that_just_went_missing_never_scans(case):

@@ -34,26 +34,42 @@ def _good(**kw):
 
 
 def _call(call_for, table, **kw):
-    return call_for(table, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=1), float(table["air_temp_c"].iloc[-1])),
-                    **kw)
+    return call_for(
+        table, registry=registry_at(NIGHT_UTC - pd.Timedelta(hours=1), float(table["air_temp_c"].iloc[-1])), **kw
+    )
 
 
 # --- three-valued conditions ------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("condition, values, fired, unknown", [
-    ("precipitation", {"precipitation": False, "precip_mm_h": np.nan}, False, True),
-    ("not precipitation", {"precipitation": False, "precip_mm_h": np.nan}, False, True),
-    ("precipitation or wind_mean_ms > 8", {"precipitation": False, "precip_mm_h": np.nan, "wind_mean_ms": 9.0},
-     True, False),                                           # known true whatever the rain
-    ("precipitation and wind_mean_ms > 8", {"precipitation": False, "precip_mm_h": np.nan, "wind_mean_ms": 3.0},
-     False, False),                                          # known false whatever the rain
-    ("visibility_m < 1 km", {"visibility_m": np.nan}, False, True),
-    ("missing(visibility_m) or visibility_m < 1 km", {"visibility_m": np.nan}, True, False),
-    ("solar_wm2 > 600 or (missing(solar_wm2) and sun_elevation_deg > 35)",
-     {"solar_wm2": np.nan, "sun_elevation_deg": 10.0}, False, False),   # the rule says what to do without it
-    ("reference_age_h > 72 h", {"reference_age_h": np.nan}, False, False),   # not an input: NaN is "no reference"
-])
+@pytest.mark.parametrize(
+    "condition, values, fired, unknown",
+    [
+        ("precipitation", {"precipitation": False, "precip_mm_h": np.nan}, False, True),
+        ("not precipitation", {"precipitation": False, "precip_mm_h": np.nan}, False, True),
+        (
+            "precipitation or wind_mean_ms > 8",
+            {"precipitation": False, "precip_mm_h": np.nan, "wind_mean_ms": 9.0},
+            True,
+            False,
+        ),  # known true whatever the rain
+        (
+            "precipitation and wind_mean_ms > 8",
+            {"precipitation": False, "precip_mm_h": np.nan, "wind_mean_ms": 3.0},
+            False,
+            False,
+        ),  # known false whatever the rain
+        ("visibility_m < 1 km", {"visibility_m": np.nan}, False, True),
+        ("missing(visibility_m) or visibility_m < 1 km", {"visibility_m": np.nan}, True, False),
+        (
+            "solar_wm2 > 600 or (missing(solar_wm2) and sun_elevation_deg > 35)",
+            {"solar_wm2": np.nan, "sun_elevation_deg": 10.0},
+            False,
+            False,
+        ),  # the rule says what to do without it
+        ("reference_age_h > 72 h", {"reference_age_h": np.nan}, False, False),  # not an input: NaN is "no reference"
+    ],
+)
 def test_a_condition_needing_an_absent_input_is_unknown_never_clear(condition, values, fired, unknown):
     """Kleene's three-valued logic (unknown and false = false; unknown or true = true)."""
     compiled = compile_condition(condition, CATALOGUE)
@@ -103,7 +119,7 @@ def test_a_missing_code_in_an_optional_column_keeps_the_row(call_for):
     table["visibility_m"] = table["visibility_m"].astype(object)
     table.loc[table.index[-30:], "visibility_m"] = -9900
     feed = canonical_frame(table, FeedLayout(missing=(-9900.0,)))
-    assert feed.frame["good"].all()                           # the row is kept: only visibility is missing
+    assert feed.frame["good"].all()  # the row is kept: only visibility is missing
     assert feed.quality.coded_cells == {"visibility_m": 30} and feed.quality.rows_with_codes == 30
     assert np.isnan(feed.frame["visibility_m"].iloc[-1])
     call = _call(call_for, table, layout=FeedLayout(missing=(-9900.0,)))
@@ -120,7 +136,7 @@ def test_a_missing_code_word_and_per_column_codes(tmp_path):
     layout = FeedLayout(columns=(ColumnMap("rel_humidity_pct", "rh", "%", missing=("M",)),))
     feed = canonical_frame(table.drop(columns=["rel_humidity_pct"]), layout)
     assert feed.quality.coded_cells == {"rh": 1}
-    assert not feed.frame["good"].iloc[-1]                    # a required input missing: the row is not good
+    assert not feed.frame["good"].iloc[-1]  # a required input missing: the row is not good
 
 
 # --- a property: optional sensor dropouts never scan ------------------------------------------
@@ -133,20 +149,27 @@ def dropouts(draw):
     name = draw(st.sampled_from(OPTIONAL))
     if name == "solar_wm2":
         table[name] = 0.0
-    k = draw(st.integers(1, 40))                               # minutes of silence before the call
+    k = draw(st.integers(1, 40))  # minutes of silence before the call
     how = draw(st.sampled_from(["empty", "code", "implausible"]))
     if how == "empty":
         table.loc[table.index[-k:], name] = np.nan
     elif how == "code":
         table.loc[table.index[-k:], name] = -9900.0
     else:
-        table.loc[table.index[-k:], name] = {"visibility_m": -5.0, "precip_mm_h": 900.0, "pressure_hpa": 5.0,
-                                             "solar_wm2": 4000.0}[name]
+        table.loc[table.index[-k:], name] = {
+            "visibility_m": -5.0,
+            "precip_mm_h": 900.0,
+            "pressure_hpa": 5.0,
+            "solar_wm2": 4000.0,
+        }[name]
     return table
 
 
-@settings(max_examples=int(os.environ.get("ADVISOR_PROPERTY_EXAMPLES", "2000")), deadline=None,
-          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@settings(
+    max_examples=int(os.environ.get("ADVISOR_PROPERTY_EXAMPLES", "2000")),
+    deadline=None,
+    suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
+)
 @given(table=dropouts())
 def test_an_optional_sensor_that_just_fell_silent_never_allows_a_scan(call_for, table):
     call = _call(call_for, table, layout=FeedLayout(missing=(-9900.0,)))
@@ -156,7 +179,7 @@ def test_an_optional_sensor_that_just_fell_silent_never_allows_a_scan(call_for, 
 
 def test_a_sensor_the_station_reports_only_now_and_then_is_not_a_dropout(call_for):
     table = _good()
-    table["visibility_m"] = np.where(np.arange(len(table)) % 2 == 0, 30000.0, np.nan)   # every other sample
+    table["visibility_m"] = np.where(np.arange(len(table)) % 2 == 0, 30000.0, np.nan)  # every other sample
     table.loc[table.index[-1], "visibility_m"] = np.nan
     call = _call(call_for, table)
     assert not call.features["input_dropout"] and call.verdict == "scan"
@@ -165,6 +188,6 @@ def test_a_sensor_the_station_reports_only_now_and_then_is_not_a_dropout(call_fo
 
 def test_after_the_dropout_limit_the_call_rests_on_what_is_known(call_for):
     table = weather_table(hours=3.0)
-    table.loc[table.index[-70:], "visibility_m"] = np.nan     # silent for 70 min: past the 60-min limit
+    table.loc[table.index[-70:], "visibility_m"] = np.nan  # silent for 70 min: past the 60-min limit
     call = _call(call_for, table)
     assert not call.features["input_dropout"] and call.verdict == "scan" and "visibility_m" in call.unseen_inputs

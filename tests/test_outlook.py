@@ -21,13 +21,13 @@ import pytest
 
 from advisor.decision import VERDICTS
 from advisor.errors import SiteError
-from advisor.io.feed import canonical_frame
 from advisor.evaluation.outlook import apply_forecast_margins, combine_frames, compute_outlook
-from advisor.views.outlook_plain import render_plain_outlook
-from advisor.views.context import Context
+from advisor.io.feed import canonical_frame
 from advisor.io.site import FeedLayout, load_site
+from advisor.views.context import Context
+from advisor.views.outlook_plain import render_plain_outlook
 
-from .conftest import NIGHT_UTC, registry_at, weather_table, run_cli
+from .conftest import NIGHT_UTC, registry_at, run_cli, weather_table
 
 ROOT = Path(__file__).resolve().parent.parent
 LAYOUT = FeedLayout(max_feed_age_min=15.0)
@@ -56,8 +56,12 @@ def frame_of(forecast, observed=None, issued=None):
 def site(demo_site):
     def make(**forecast):
         # a 2 h session: on the calm synthetic night the quick laser scan is the call
-        return replace(demo_site, forecast=replace(demo_site.forecast, **forecast),
-                       thresholds=replace(demo_site.thresholds, session_hours=2.0))
+        return replace(
+            demo_site,
+            forecast=replace(demo_site.forecast, **forecast),
+            thresholds=replace(demo_site.thresholds, session_hours=2.0),
+        )
+
     return make
 
 
@@ -73,7 +77,7 @@ def test_every_step_is_evaluated_on_the_forecast_grid(site, default_rules):
     assert len(times) == 36
     assert times[0] == NIGHT_UTC and times[-1] == NIGHT_UTC + pd.Timedelta(minutes=350)
     assert (np.diff(times.asi8) == 600_000_000_000).all()
-    assert set(out.steps["verdict"]) == {"scan"}                   # calm clear night, fresh reference
+    assert set(out.steps["verdict"]) == {"scan"}  # calm clear night, fresh reference
     assert out.steps["source"].iloc[0] == "observed" and (out.steps["source"].iloc[1:] == "forecast").all()
 
 
@@ -96,17 +100,19 @@ def test_gap_in_the_forecast_is_unknown_never_good_and_splits_windows(site, defa
 def test_calm_spell_shorter_than_a_scan_needs_is_not_offered(site, default_rules):
     # windy (mean above the ~4 m/s high-frequency limit, common practice) except one 20-min lull
     table = forecast_table(wind_mean_ms=6.0, wind_gust_ms=7.5)
-    lull = pd.to_datetime(table["time"], utc=True).between(NIGHT_UTC + pd.Timedelta(minutes=60),
-                                                           NIGHT_UTC + pd.Timedelta(minutes=70))
+    lull = pd.to_datetime(table["time"], utc=True).between(
+        NIGHT_UTC + pd.Timedelta(minutes=60), NIGHT_UTC + pd.Timedelta(minutes=70)
+    )
     table.loc[lull.to_numpy(), ["wind_mean_ms", "wind_gust_ms"]] = [1.0, 1.8]
     out = outlook_of(frame_of(table), site(), default_rules)
-    lull_steps = out.steps[pd.DatetimeIndex(out.steps["time"]).isin(
-        [NIGHT_UTC + pd.Timedelta(minutes=m) for m in (60, 70)])]
-    assert lull_steps["scan_feasible"].all()                       # the steps themselves are fine ...
-    assert out.min_window_min["scan"] == 12.0 + 10.0              # ... but 12 min scan + 10 min settling
+    lull_steps = out.steps[
+        pd.DatetimeIndex(out.steps["time"]).isin([NIGHT_UTC + pd.Timedelta(minutes=m) for m in (60, 70)])
+    ]
+    assert lull_steps["scan_feasible"].all()  # the steps themselves are fine ...
+    assert out.min_window_min["scan"] == 12.0 + 10.0  # ... but 12 min scan + 10 min settling
     assert len(out.windows["scan"]) == 0 and out.next_window["scan"] is None
     longer = outlook_of(frame_of(table), site(settling_min=0.0), default_rules, min_duration_min=15.0)
-    assert len(longer.windows["scan"]) == 1                       # 20 min >= max(12 + 0, 15)
+    assert len(longer.windows["scan"]) == 1  # 20 min >= max(12 + 0, 15)
 
 
 def test_wind_margin_is_applied_before_the_rules_and_said(site, default_rules):
@@ -117,7 +123,7 @@ def test_wind_margin_is_applied_before_the_rules_and_said(site, default_rules):
     assert (plain.steps["verdict"].iloc[1:] != "postpone").all()
     assert (careful.steps["verdict"].iloc[1:] == "postpone").all()
     assert careful.steps["wind_mean_ms"].iloc[-1] == pytest.approx(3.6 * 1.2)
-    assert careful.steps["wind_mean_ms"].iloc[0] < 3.0            # observed rows are not touched
+    assert careful.steps["wind_mean_ms"].iloc[0] < 3.0  # observed rows are not touched
     assert careful.margins["applied"] and not plain.margins["applied"]
     assert any("wind and gusts +20 %" in note for note in careful.notes)
 
@@ -133,7 +139,7 @@ def test_dew_point_margin_keeps_humidity_consistent_with_psychrolib():
     assert dew == pytest.approx(frame["dew_point_c"].to_numpy() + 1.0)
     expected = [100.0 * psychrolib.GetRelHumFromTDewPoint(t, d) for t, d in zip(temp, dew)]
     assert out["rel_humidity_pct"].to_numpy() == pytest.approx(expected, abs=0.5)
-    capped = apply_forecast_margins(frame, 0.0, 10.0)                 # never above the air temperature
+    capped = apply_forecast_margins(frame, 0.0, 10.0)  # never above the air temperature
     assert (capped["dew_point_c"] <= capped["air_temp_c"] + 1e-9).all()
 
 
@@ -166,8 +172,10 @@ run = run_cli
 @pytest.fixture()
 def files(tmp_path):
     feed = tmp_path / "feed.csv"
-    table = pd.concat([weather_table().assign(kind="observed", issued=""),
-                       forecast_table(drop_minutes=(60, 70), issued=NIGHT_UTC)], ignore_index=True)
+    table = pd.concat(
+        [weather_table().assign(kind="observed", issued=""), forecast_table(drop_minutes=(60, 70), issued=NIGHT_UTC)],
+        ignore_index=True,
+    )
     table.to_csv(feed, index=False)
     refs = tmp_path / "refs.csv"
     refs.write_text(f"time,air_temp_c,note\n{(NIGHT_UTC - pd.Timedelta(hours=2)):%Y-%m-%dT%H:%M:%SZ},2.8,test\n")
@@ -176,8 +184,19 @@ def files(tmp_path):
 
 def test_csv_has_one_row_per_step_with_iso_utc_time_and_verdict(capsys, files):
     feed, refs = files
-    status, out, err = run(capsys, "outlook", "--feed", str(feed), "--references", str(refs),
-                           "--from", "2026-01-16T04:00:00Z", "--hours", "6", "--csv")
+    status, out, err = run(
+        capsys,
+        "outlook",
+        "--feed",
+        str(feed),
+        "--references",
+        str(refs),
+        "--from",
+        "2026-01-16T04:00:00Z",
+        "--hours",
+        "6",
+        "--csv",
+    )
     assert status == 0 and err == ""
     lines = out.splitlines()
     header = lines[0].split(",")
@@ -188,24 +207,46 @@ def test_csv_has_one_row_per_step_with_iso_utc_time_and_verdict(capsys, files):
     assert times[0] == NIGHT_UTC and (np.diff(times.as_unit("s").asi8) == 600).all()
     assert {r[1] for r in rows} <= set(VERDICTS)
     gap_col = header.index("gap")
-    assert [r[1] for r in rows if r[gap_col] == "true"] == ["undetermined", "undetermined"]   # CSV booleans: true/false
+    assert [r[1] for r in rows if r[gap_col] == "true"] == ["undetermined", "undetermined"]  # CSV booleans: true/false
 
 
 def test_json_carries_steps_windows_and_next_window(capsys, files):
     feed, refs = files
-    status, out, _ = run(capsys, "outlook", "--feed", str(feed), "--references", str(refs),
-                         "--from", "2026-01-16T04:00:00Z", "--hours", "6", "--json")
+    status, out, _ = run(
+        capsys,
+        "outlook",
+        "--feed",
+        str(feed),
+        "--references",
+        str(refs),
+        "--from",
+        "2026-01-16T04:00:00Z",
+        "--hours",
+        "6",
+        "--json",
+    )
     doc = json.loads(out)
     assert status == 0
-    for key in ("schema_version", "from_utc", "to_utc", "step_min", "steps", "windows", "next_window",
-                "forecast", "counts", "notes", "cautions"):
+    for key in (
+        "schema_version",
+        "from_utc",
+        "to_utc",
+        "step_min",
+        "steps",
+        "windows",
+        "next_window",
+        "forecast",
+        "counts",
+        "notes",
+        "cautions",
+    ):
         assert key in doc
     assert len(doc["steps"]) == 36 and doc["step_min"] == 10.0
     assert {"time_utc", "verdict", "gap", "beyond_horizon"} <= set(doc["steps"][0])
     assert set(doc["next_window"]) == {"scan", "astronomical"}
     assert doc["forecast"]["issued_utc"] == ["2026-01-16T04:00:00Z"]
     scan = [w for w in doc["windows"] if w["method"] == "scan"]
-    assert [w["end_utc"] for w in scan][:1] == ["2026-01-16T05:00:00Z"]      # the gap at +60 min ends it
+    assert [w["end_utc"] for w in scan][:1] == ["2026-01-16T05:00:00Z"]  # the gap at +60 min ends it
     assert doc["next_window"]["scan"]["start_utc"] == "2026-01-16T04:00:00Z"
     assert doc["counts"]["gap"] == 2
 
@@ -213,8 +254,7 @@ def test_json_carries_steps_windows_and_next_window(capsys, files):
 def test_svg_is_written_and_a_bad_path_is_one_line_exit_2(capsys, files, tmp_path):
     feed, refs = files
     target = tmp_path / "outlook.svg"
-    args = ["outlook", "--feed", str(feed), "--references", str(refs), "--from", "2026-01-16T04:00:00Z",
-            "--hours", "3"]
+    args = ["outlook", "--feed", str(feed), "--references", str(refs), "--from", "2026-01-16T04:00:00Z", "--hours", "3"]
     status, out, err = run(capsys, *args, "--svg", str(target))
     assert status == 0 and target.read_text().startswith("<svg") and "saved" in err
     assert "S" in out and "Next window" in out
@@ -223,8 +263,16 @@ def test_svg_is_written_and_a_bad_path_is_one_line_exit_2(capsys, files, tmp_pat
     assert not (tmp_path / "nowhere").exists()
 
 
-@pytest.mark.parametrize("bad", [["--hours", "-3"], ["--hours", "lots"], ["--min-duration-min", "x"],
-                                 ["--from", "tomorrow"], ["--from", "2027-06-01T00:00:00Z"]])
+@pytest.mark.parametrize(
+    "bad",
+    [
+        ["--hours", "-3"],
+        ["--hours", "lots"],
+        ["--min-duration-min", "x"],
+        ["--from", "tomorrow"],
+        ["--from", "2027-06-01T00:00:00Z"],
+    ],
+)
 def test_bad_options_are_one_line_exit_2(capsys, files, bad):
     feed, refs = files
     status, out, err = run(capsys, "outlook", "--feed", str(feed), "--references", str(refs), *bad)
@@ -234,8 +282,9 @@ def test_bad_options_are_one_line_exit_2(capsys, files, bad):
 
 def test_check_shows_the_next_window_when_the_feed_has_future_rows(capsys, files):
     feed, refs = files
-    status, out, _ = run(capsys, "check", "--feed", str(feed), "--references", str(refs),
-                         "--at", "2026-01-16T04:00:00Z", "--json")
+    status, out, _ = run(
+        capsys, "check", "--feed", str(feed), "--references", str(refs), "--at", "2026-01-16T04:00:00Z", "--json"
+    )
     doc = json.loads(out)
     assert status == 0 and doc["verdict"] == "scan"
     assert doc["next_window"]["scan"]["start_utc"] == "2026-01-16T04:00:00Z"
@@ -266,7 +315,7 @@ def test_committed_demo_forecast_matches_its_generator(tmp_path):
     before = mf.md.DEMO_WEEK_OVERRIDES
     out = tmp_path / "forecast.csv"
     mf.write_forecast(out)
-    assert mf.md.DEMO_WEEK_OVERRIDES is before                     # the demo week's scenario is restored
+    assert mf.md.DEMO_WEEK_OVERRIDES is before  # the demo week's scenario is restored
     assert out.read_bytes() == (ROOT / "example_weather" / "larch_basin_forecast.csv").read_bytes()
     table = pd.read_csv(out)
     assert set(table["kind"]) == {"forecast"} and table["issued"].nunique() == 1
@@ -286,9 +335,9 @@ def test_site_forecast_section_is_validated(tmp_path):
 
 def test_implausible_forecast_row_is_undetermined_not_a_gap(site, default_rules):
     table = forecast_table()
-    table.iloc[5, table.columns.get_loc("rel_humidity_pct")] = 140.0     # outside 0-100 %
+    table.iloc[5, table.columns.get_loc("rel_humidity_pct")] = 140.0  # outside 0-100 %
     out = outlook_of(frame_of(table), site(), default_rules)
-    bad = out.steps.iloc[6]                                               # step 0 is the observed row
+    bad = out.steps.iloc[6]  # step 0 is the observed row
     assert bad["verdict"] == "undetermined" and not bad["gap"]
     assert not out.steps["gap"].any()
     assert len(out.windows["scan"]) == 2
@@ -297,8 +346,7 @@ def test_implausible_forecast_row_is_undetermined_not_a_gap(site, default_rules)
 def test_observations_supersede_forecast_rows_for_the_same_hours(site, default_rules):
     # observed calm until +60 min, a (windy) forecast issued earlier covers the same hour and after
     observed = weather_table(end=NIGHT_UTC + pd.Timedelta(minutes=60), hours=4.0)
-    forecast = forecast_table(start=NIGHT_UTC - pd.Timedelta(minutes=60), hours=4.0, wind_mean_ms=6.0,
-                              wind_gust_ms=7.5)
+    forecast = forecast_table(start=NIGHT_UTC - pd.Timedelta(minutes=60), hours=4.0, wind_mean_ms=6.0, wind_gust_ms=7.5)
     out = outlook_of(frame_of(forecast, observed=observed), site(), default_rules, hours=3.0)
     minutes = (pd.DatetimeIndex(out.steps["time"]) - NIGHT_UTC).total_seconds() / 60.0
     early, late = out.steps[minutes <= 60], out.steps[minutes >= 70]

@@ -93,7 +93,11 @@ def test_pointing_efficiency_of_a_gaussian_beam():
     offsets = rng.normal(0.0, s_axis, (200000, 2))
     jitter_mean = aperture.pointing_efficiency(np.hypot(offsets[:, 0], offsets[:, 1]), theta).mean()
     assert jitter_mean == pytest.approx(1.0 / (1.0 + 8.0 * np.log(2.0) * (s_axis / theta) ** 2), abs=2e-3)
-    assert aperture.pointing_efficiency(np.sqrt(2.0) * s_axis, theta) < jitter_mean < aperture.pointing_efficiency(s_axis, theta)
+    assert (
+        aperture.pointing_efficiency(np.sqrt(2.0) * s_axis, theta)
+        < jitter_mean
+        < aperture.pointing_efficiency(s_axis, theta)
+    )
 
 
 def test_gravity_residual_against_the_definition():
@@ -111,7 +115,9 @@ def test_gravity_residual_against_the_definition():
     el_session = np.array([30.0, 60.0])
     out = aperture.gravity_residual_um(el_cal, el_session, [120.0, 40.0], [-80.0, 60.0])
     assert out.shape == (3, 2)
-    np.testing.assert_allclose(out, aperture.gravity_residual_um(el_session[None, :], el_cal, [120.0, 40.0], [-80.0, 60.0]))
+    np.testing.assert_allclose(
+        out, aperture.gravity_residual_um(el_session[None, :], el_cal, [120.0, 40.0], [-80.0, 60.0])
+    )
     assert isinstance(aperture.gravity_residual_um(30.0, 60.0, 100.0, 100.0), float)
     with pytest.raises(ValueError):
         aperture.gravity_residual_um(30.0, 60.0, [[1.0, 2.0]], [[1.0, 2.0]])

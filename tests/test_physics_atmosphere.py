@@ -87,11 +87,16 @@ def test_zenith_opacity_matches_itur_slant_path_20_to_120_ghz():
         dry_hpa = pressure_hpa - rho_gm3 * t_k / 216.7
         pwv_mm, height_km = rho_gm3 * 2.0, 1.05
         ref_db = np.array([_quiet(gaseous_attenuation_slant_path, f, 90.0, rho_gm3, dry_hpa, t_k).value for f in freqs])
-        ref_pwv_db = np.array([_quiet(gaseous_attenuation_slant_path, f, 90.0, rho_gm3, dry_hpa, t_k,
-                                      V_t=pwv_mm, h=height_km).value for f in freqs])
+        ref_pwv_db = np.array(
+            [
+                _quiet(gaseous_attenuation_slant_path, f, 90.0, rho_gm3, dry_hpa, t_k, V_t=pwv_mm, h=height_km).value
+                for f in freqs
+            ]
+        )
         tau = atmosphere.zenith_opacity_nepers(freqs, pressure_hpa, temp_c, rho_gm3)
-        tau_pwv = atmosphere.zenith_opacity_nepers(freqs, pressure_hpa, temp_c, rho_gm3, pwv_mm=pwv_mm,
-                                                   site_height_m=height_km * 1000.0)
+        tau_pwv = atmosphere.zenith_opacity_nepers(
+            freqs, pressure_hpa, temp_c, rho_gm3, pwv_mm=pwv_mm, site_height_m=height_km * 1000.0
+        )
         np.testing.assert_allclose(tau * atmosphere.DB_PER_NEPER, ref_db, rtol=1e-9)
         np.testing.assert_allclose(tau_pwv * atmosphere.DB_PER_NEPER, ref_pwv_db, rtol=1e-9)
 
@@ -106,14 +111,60 @@ def test_zenith_opacity_against_full_line_by_line_integration(rho_gm3):
     absolute; where it is opaque (the 54-66 GHz complex, 118.75 GHz) ours is opaque too
     (tau > 3), although it underestimates the 118.75 GHz core (10 instead of 26 nepers)."""
     v12 = _v12()
-    freqs = np.array([20, 21, 22, 22.235, 22.5, 23, 24, 26, 30, 35, 40, 45, 48, 50, 52, 54, 56, 60, 64, 66, 68,
-                      70, 72, 75, 80, 86, 90, 95, 100, 105, 110, 113, 115, 116, 117, 118.75, 119.5, 120])
+    freqs = np.array(
+        [
+            20,
+            21,
+            22,
+            22.235,
+            22.5,
+            23,
+            24,
+            26,
+            30,
+            35,
+            40,
+            45,
+            48,
+            50,
+            52,
+            54,
+            56,
+            60,
+            64,
+            66,
+            68,
+            70,
+            72,
+            75,
+            80,
+            86,
+            90,
+            95,
+            100,
+            105,
+            110,
+            113,
+            115,
+            116,
+            117,
+            118.75,
+            119.5,
+            120,
+        ]
+    )
     t_k = 288.15
     dry_hpa = 1013.25 - rho_gm3 * t_k / 216.7
-    exact = np.array([_quiet(v12.gaseous_attenuation_slant_path, f, 90.0, rho_gm3, dry_hpa, t_k, mode="exact")
-                      for f in freqs]) / atmosphere.DB_PER_NEPER
-    for tau in (atmosphere.zenith_opacity_nepers(freqs, 1013.25, 15.0, rho_gm3),
-                atmosphere.zenith_opacity_nepers(freqs, 1013.25, 15.0, rho_gm3, pwv_mm=2.0 * rho_gm3)):
+    exact = (
+        np.array(
+            [_quiet(v12.gaseous_attenuation_slant_path, f, 90.0, rho_gm3, dry_hpa, t_k, mode="exact") for f in freqs]
+        )
+        / atmosphere.DB_PER_NEPER
+    )
+    for tau in (
+        atmosphere.zenith_opacity_nepers(freqs, 1013.25, 15.0, rho_gm3),
+        atmosphere.zenith_opacity_nepers(freqs, 1013.25, 15.0, rho_gm3, pwv_mm=2.0 * rho_gm3),
+    ):
         clear = exact < 3.0
         assert clear.sum() > 25
         assert np.max(np.abs(tau / exact - 1.0)[clear]) <= 0.14
@@ -140,16 +191,25 @@ def test_dry_and_humid_night_at_116_ghz():
         rh_pct = 100.0 * rho * (temp_c + 273.15) / 216.7 / moisture.saturation_vapour_pressure_hpa(temp_c)
         assert rh_pct < 100.0  # a possible night: unsaturated at the surface
         assert atmosphere.water_vapour_density_gm3(temp_c, rh_pct) == pytest.approx(rho)
-        tau[name] = atmosphere.zenith_opacity_nepers(116.0, pressure_hpa, temp_c, rho, pwv_mm=pwv_mm, site_height_m=1050.0)
+        tau[name] = atmosphere.zenith_opacity_nepers(
+            116.0, pressure_hpa, temp_c, rho, pwv_mm=pwv_mm, site_height_m=1050.0
+        )
         t_k = temp_c + 273.15
-        ref_db = _quiet(gaseous_attenuation_slant_path, 116.0, 90.0, rho, pressure_hpa - rho * t_k / 216.7, t_k,
-                        V_t=pwv_mm, h=1.05).value
+        ref_db = _quiet(
+            gaseous_attenuation_slant_path, 116.0, 90.0, rho, pressure_hpa - rho * t_k / 216.7, t_k, V_t=pwv_mm, h=1.05
+        ).value
         assert tau[name] * atmosphere.DB_PER_NEPER == pytest.approx(ref_db, rel=1e-9)
-        opaque = atmosphere.zenith_opacity_nepers(118.75, pressure_hpa, temp_c, rho, pwv_mm=pwv_mm, site_height_m=1050.0)
+        opaque = atmosphere.zenith_opacity_nepers(
+            118.75, pressure_hpa, temp_c, rho, pwv_mm=pwv_mm, site_height_m=1050.0
+        )
         assert opaque > 9.0
     assert tau["dry"] == pytest.approx(0.58, abs=0.01) and tau["humid"] == pytest.approx(0.99, abs=0.01)
-    tsys = {name: atmosphere.system_temperature_above_atmosphere_k(
-        60.0, tau[name], 45.0, atmosphere.atmosphere_temperature_k(nights[name][1])) for name in nights}
+    tsys = {
+        name: atmosphere.system_temperature_above_atmosphere_k(
+            60.0, tau[name], 45.0, atmosphere.atmosphere_temperature_k(nights[name][1])
+        )
+        for name in nights
+    }
     factor = atmosphere.integration_time_factor(tsys["humid"], tsys["dry"])
     assert 5.0 < factor < 7.0
 
@@ -168,11 +228,15 @@ def test_water_vapour_density_is_the_ideal_gas_law():
     ideal_gm3 = e_hpa * 100.0 / (rv * (temp_c + 273.15)) * 1000.0
     np.testing.assert_allclose(atmosphere.water_vapour_density_gm3(temp_c, rh_pct), ideal_gm3, rtol=2e-4)
     dew_c = moisture.dew_point_c(temp_c, rh_pct)
-    np.testing.assert_allclose(atmosphere.water_vapour_density_from_dew_point_gm3(temp_c, dew_c),
-                               atmosphere.water_vapour_density_gm3(temp_c, rh_pct), rtol=1e-10)
+    np.testing.assert_allclose(
+        atmosphere.water_vapour_density_from_dew_point_gm3(temp_c, dew_c),
+        atmosphere.water_vapour_density_gm3(temp_c, rh_pct),
+        rtol=1e-10,
+    )
     # ITU-R P.835 reference: 7.5 g/m^3 at 15 C is e = 7.5 * 288.15 / 216.7 = 9.97 hPa
-    assert atmosphere.water_vapour_density_gm3(15.0, 100.0 * 9.9729 / moisture.saturation_vapour_pressure_hpa(15.0)) \
-        == pytest.approx(7.5, rel=1e-4)
+    assert atmosphere.water_vapour_density_gm3(
+        15.0, 100.0 * 9.9729 / moisture.saturation_vapour_pressure_hpa(15.0)
+    ) == pytest.approx(7.5, rel=1e-4)
 
 
 def test_precipitable_water_is_the_integral_of_the_reference_profile():
@@ -281,9 +345,11 @@ def test_vectorised_out_of_range_and_missing():
     assert np.isnan(tau[:, [0, 3]]).all() and np.isnan(tau[2]).all() and np.isfinite(tau[:2, 1:3]).all()
     many = np.linspace(-20.0, 30.0, 40000)
     big = atmosphere.zenith_opacity_nepers(116.0, 900.0, many, 4.0)
-    np.testing.assert_allclose(big[[0, 20000, 39999]],
-                               [atmosphere.zenith_opacity_nepers(116.0, 900.0, t, 4.0) for t in many[[0, 20000, 39999]]],
-                               rtol=1e-12)
+    np.testing.assert_allclose(
+        big[[0, 20000, 39999]],
+        [atmosphere.zenith_opacity_nepers(116.0, 900.0, t, 4.0) for t in many[[0, 20000, 39999]]],
+        rtol=1e-12,
+    )
     assert atmosphere.zenith_opacity_nepers(100.0, 900.0, 0.0, 3.0, pwv_mm=0.0) > 0.0  # dry air alone
     assert np.isnan(absorption.zenith_water_attenuation_from_pwv_db(100.0, -1.0, 1.0))
 

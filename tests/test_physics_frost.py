@@ -48,10 +48,16 @@ def test_saturation_over_ice_matches_metpy_solid_phase():
     """Reference library: metpy saturation_vapor_pressure(phase="solid") (Ambaum 2020),
     -40..0 C; within 0.25 % (measured 0.17 %).  Over water (phase="liquid", supercooled) the
     existing Magnus form agrees within 0.3 % (measured 0.24 %)."""
-    np.testing.assert_allclose(moisture.saturation_vapour_pressure_ice_hpa(TEMPS_BELOW_ZERO_C),
-                               _metpy_saturation_hpa(TEMPS_BELOW_ZERO_C, "solid"), rtol=0.0025)
-    np.testing.assert_allclose(moisture.saturation_vapour_pressure_hpa(TEMPS_BELOW_ZERO_C),
-                               _metpy_saturation_hpa(TEMPS_BELOW_ZERO_C, "liquid"), rtol=0.003)
+    np.testing.assert_allclose(
+        moisture.saturation_vapour_pressure_ice_hpa(TEMPS_BELOW_ZERO_C),
+        _metpy_saturation_hpa(TEMPS_BELOW_ZERO_C, "solid"),
+        rtol=0.0025,
+    )
+    np.testing.assert_allclose(
+        moisture.saturation_vapour_pressure_hpa(TEMPS_BELOW_ZERO_C),
+        _metpy_saturation_hpa(TEMPS_BELOW_ZERO_C, "liquid"),
+        rtol=0.003,
+    )
 
 
 def test_frost_point_matches_psychrolib():
@@ -104,4 +110,6 @@ def test_frost_point_is_between_dew_point_and_zero_and_consistent():
         out = moisture.frost_point_c(np.array([-10.0, -10.0, -10.0]), np.array([0.0, np.nan, 50.0]))
     assert np.isnan(out[:2]).all() and np.isfinite(out[2])
     assert isinstance(moisture.frost_point_c(-5.0, 80.0), float)
-    assert moisture.vapour_pressure_hpa(20.0, 50.0) == pytest.approx(0.5 * moisture.saturation_vapour_pressure_hpa(20.0))
+    assert moisture.vapour_pressure_hpa(20.0, 50.0) == pytest.approx(
+        0.5 * moisture.saturation_vapour_pressure_hpa(20.0)
+    )

@@ -19,7 +19,9 @@ import pytest
 from advisor.physics import atmosphere
 from advisor.physics.opacity import zenith_opacity_series_nepers
 
-FREQS_GHZ = np.concatenate([np.arange(20.5, 120.01, 2.5), [22.235, 60.0, 118.75]])  # 20 GHz itself: see test_physics_atmosphere
+FREQS_GHZ = np.concatenate(
+    [np.arange(20.5, 120.01, 2.5), [22.235, 60.0, 118.75]]
+)  # 20 GHz itself: see test_physics_atmosphere
 SITE_HEIGHT_M = 1050.0
 
 
@@ -65,8 +67,9 @@ def test_scattered_states_take_the_same_nodes(monkeypatch):
     pressure, temp, rho, pwv = _states(60, 4)
     pwv[:3] = [1e-4, 1e-3, 80.0]  # a wide range of ln V: the water nodes by use, too
     together = zenith_opacity_series_nepers(86.0, pressure, temp, rho, pwv, SITE_HEIGHT_M)
-    alone = np.array([zenith_opacity_series_nepers(86.0, pressure[i], temp[i], rho[i], pwv[i], SITE_HEIGHT_M)[0]
-                      for i in range(60)])
+    alone = np.array(
+        [zenith_opacity_series_nepers(86.0, pressure[i], temp[i], rho[i], pwv[i], SITE_HEIGHT_M)[0] for i in range(60)]
+    )
     np.testing.assert_allclose(together, alone, rtol=1e-12, atol=0)
 
 
@@ -86,8 +89,9 @@ def test_against_itur_20_to_120_ghz():
         for f in FREQS_GHZ:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                ref_db = gaseous_attenuation_slant_path(f, 90.0, rho, pressure - rho * t_k / 216.7, t_k,
-                                                        V_t=pwv, h=SITE_HEIGHT_M / 1000.0).value
+                ref_db = gaseous_attenuation_slant_path(
+                    f, 90.0, rho, pressure - rho * t_k / 216.7, t_k, V_t=pwv, h=SITE_HEIGHT_M / 1000.0
+                ).value
             tau = zenith_opacity_series_nepers(f, pressure, temp, rho, pwv, SITE_HEIGHT_M)[0]
             ref = ref_db / atmosphere.DB_PER_NEPER
             assert tau == pytest.approx(ref, rel=2e-4 if ref < 5.0 else 1e-2), (f, pressure, temp, rho)

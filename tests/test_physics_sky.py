@@ -116,7 +116,9 @@ def test_source_elevation_matches_astropy_altaz():
     (nutation and aberration, ignored here, are < 0.01 deg)."""
     u, _FK5, ICRS, AltAz, EarthLocation, Time = _astropy()
     times = _random_times(100, seed=5)
-    elevation_deg, azimuth_deg = sky.source_altaz_deg(times, SOURCES_RA_DEG, SOURCES_DEC_DEG, SITE_LAT_DEG, SITE_LON_DEG)
+    elevation_deg, azimuth_deg = sky.source_altaz_deg(
+        times, SOURCES_RA_DEG, SOURCES_DEC_DEG, SITE_LAT_DEG, SITE_LON_DEG
+    )
     assert elevation_deg.shape == (100, 3) and azimuth_deg.shape == (100, 3)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")

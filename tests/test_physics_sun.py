@@ -214,7 +214,7 @@ def test_polar_day_and_night_with_a_short_lookback_give_nan():
     assert np.isnan(sun.hours_since_sunset(june, 78.0, 15.0, max_lookback_days=2.0)).all()
     assert np.isnan(sun.hours_since_sunrise(december, 78.0, 15.0, max_lookback_days=2.0)).all()
     assert np.isnan(sun.hours_since_sunset(december, 78.0, 15.0, max_lookback_days=2.0)).all()
-    assert (sun.hours_since_sunset(june, 78.0, 15.0) > 24.0 * 30).all()     # weeks of midnight sun
+    assert (sun.hours_since_sunset(june, 78.0, 15.0) > 24.0 * 30).all()  # weeks of midnight sun
     assert (sun.hours_since_sunrise(december, 78.0, 15.0) > 24.0 * 30).all()  # weeks of polar night
     # the site itself always has both events
     assert np.isfinite(sun.hours_since_sunset(june, SITE_LAT_DEG, SITE_LON_DEG, max_lookback_days=2.0)).all()

@@ -49,7 +49,7 @@ def _astropy_crossings(guess, rising, lat_deg, lon_deg, half_width_s=180):
     lo = np.asarray(guess, dtype="datetime64[ms]") - np.timedelta64(half_width_s, "s")
     hi = np.asarray(guess, dtype="datetime64[ms]") + np.timedelta64(half_width_s, "s")
     ends = _astropy_elevation_deg(np.concatenate([lo, hi]), lat_deg, lon_deg) > H0_DEG
-    bracketed = (ends[: lo.size] != ends[lo.size:]) & (ends[lo.size:] == rising)
+    bracketed = (ends[: lo.size] != ends[lo.size :]) & (ends[lo.size :] == rising)
     for _ in range(9):  # 360 s / 2**9 = 0.7 s
         mid = lo + (hi - lo) // 2
         crossed = (_astropy_elevation_deg(mid, lat_deg, lon_deg) > H0_DEG) == rising
@@ -103,6 +103,7 @@ def test_a_year_of_sunrises_sunsets_and_day_state_match_astropy(lat_deg, lon_deg
     assert state.dtype == np.int8 and set(np.unique(state)) <= {-2, -1, 1, 2}
     clear = np.abs(ref_el - H0_DEG) > 0.05
     np.testing.assert_array_equal((state > 0)[clear], above[clear])
+
     # Polar day / night: no sunrise or sunset in the local solar day (lower transit to lower
     # transit, i.e. local mean midnight +- the equation of time, < 17 min).  The events were
     # checked against astropy above; days with an event within 20 min of midnight are skipped.
@@ -114,7 +115,11 @@ def test_a_year_of_sunrises_sunsets_and_day_state_match_astropy(lat_deg, lon_deg
     event_day, event_frac = solar_day(events)
     near_midnight = np.unique(event_day[(event_frac < 20 / 1440) | (event_frac > 1 - 20 / 1440)])
     grid_day, _ = solar_day(grid)
-    checked = ~np.isin(grid_day, near_midnight) & ~np.isin(grid_day + 1, near_midnight) & ~np.isin(grid_day - 1, near_midnight)
+    checked = (
+        ~np.isin(grid_day, near_midnight)
+        & ~np.isin(grid_day + 1, near_midnight)
+        & ~np.isin(grid_day - 1, near_midnight)
+    )
     no_event_today = ~np.isin(grid_day, event_day)
     assert checked.sum() > 0.8 * grid.size
     np.testing.assert_array_equal((np.abs(state) == 2)[checked], no_event_today[checked])
@@ -124,7 +129,10 @@ def test_a_year_of_sunrises_sunsets_and_day_state_match_astropy(lat_deg, lon_deg
         assert np.all(np.abs(state) == 1)
 
     # night by the state <=> the last event was a sunset (one table behind both)
-    since_set, since_rise = sun.hours_since_sunset(grid, lat_deg, lon_deg), sun.hours_since_sunrise(grid, lat_deg, lon_deg)
+    since_set, since_rise = (
+        sun.hours_since_sunset(grid, lat_deg, lon_deg),
+        sun.hours_since_sunrise(grid, lat_deg, lon_deg),
+    )
     np.testing.assert_array_equal(state < 0, since_set < since_rise)
 
 

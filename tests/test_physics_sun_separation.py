@@ -45,8 +45,8 @@ def test_angular_separation_matches_astropy():
     ra1, ra2 = rng.uniform(0, 360, 2000), rng.uniform(0, 360, 2000)
     dec1 = np.degrees(np.arcsin(rng.uniform(-1, 1, 2000)))
     dec2 = np.degrees(np.arcsin(rng.uniform(-1, 1, 2000)))
-    ra2[:5], dec2[:5] = ra1[:5] + 1e-7, dec1[:5]                      # almost the same point
-    ra2[5:10], dec2[5:10] = ra1[5:10] + 180.0, -dec1[5:10] + 1e-7      # almost antipodal
+    ra2[:5], dec2[:5] = ra1[:5] + 1e-7, dec1[:5]  # almost the same point
+    ra2[5:10], dec2[5:10] = ra1[5:10] + 180.0, -dec1[5:10] + 1e-7  # almost antipodal
     ref = np.degrees(angular_separation(*(np.radians(x) for x in (ra1, dec1, ra2, dec2))))
     got = sky.angular_separation_deg(ra1, dec1, ra2, dec2)
     np.testing.assert_allclose(got, ref, atol=1e-9, rtol=0)
@@ -98,7 +98,7 @@ def test_sun_passes_close_to_an_ecliptic_source():
     sep = sky.sun_separation_deg(coarse, ra, dec)[:, 0]
     i = int(np.argmin(sep))
     assert sep[i] < 1.0
-    window = coarse[max(i - 24, 0): i + 25]
+    window = coarse[max(i - 24, 0) : i + 25]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         t = Time(window, scale="utc")

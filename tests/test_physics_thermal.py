@@ -27,14 +27,14 @@ from advisor.physics.thermal import (
 @pytest.mark.parametrize("tau_h", [0.3, 1.0, 2.5])
 def test_ramp_response_is_exact_on_any_grid(tau_h):
     rng = np.random.default_rng(7)
-    t = np.concatenate(([0.0], np.sort(rng.uniform(0.0, 12.0, 300))))    # irregular samples
+    t = np.concatenate(([0.0], np.sort(rng.uniform(0.0, 12.0, 300))))  # irregular samples
     y = first_order_lag(t, t.copy(), tau_h)
     assert np.allclose(y, t - tau_h + tau_h * np.exp(-t / tau_h), atol=1e-12)
 
 
 def test_sinusoid_from_rest_matches_the_closed_form():
-    tau, w = 1.0, 2 * np.pi / 24.0                                       # a daily cycle, 1 h lag constant
-    t = np.linspace(0.0, 72.0, 72 * 60 + 1)                               # one-minute samples
+    tau, w = 1.0, 2 * np.pi / 24.0  # a daily cycle, 1 h lag constant
+    t = np.linspace(0.0, 72.0, 72 * 60 + 1)  # one-minute samples
     y = first_order_lag(t, np.sin(w * t), tau, initial=0.0)
     exact = (np.sin(w * t) - w * tau * np.cos(w * t) + w * tau * np.exp(-t / tau)) / (1 + (w * tau) ** 2)
     # piecewise-linear input: error bounded by the interpolation error (dt w)^2 / 8 = 2.4e-6
@@ -44,7 +44,7 @@ def test_sinusoid_from_rest_matches_the_closed_form():
 
 
 def test_long_series_are_solved_in_blocks_without_a_seam():
-    t = np.linspace(0.0, 400.0, 40_001)                                   # 400 time constants
+    t = np.linspace(0.0, 400.0, 40_001)  # 400 time constants
     y = first_order_lag(t, t.copy(), 1.0)
     assert np.isfinite(y).all() and np.allclose(y, t - 1.0 + np.exp(-t), atol=1e-9)
 

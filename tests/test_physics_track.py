@@ -65,14 +65,16 @@ def test_elevations_over_the_measurement_match_astropy(lat_deg, lon_deg):
     culmination)."""
     _astropy()
     rng = np.random.default_rng(int(abs(lat_deg)))
-    times = np.datetime64("2026-01-01T00:00", "s") + np.sort(rng.integers(0, 365 * 86400, 40)).astype(
-        "timedelta64[s]")
+    times = np.datetime64("2026-01-01T00:00", "s") + np.sort(rng.integers(0, 365 * 86400, 40)).astype("timedelta64[s]")
     got = track.source_track(times, RA, DEC, lat_deg, lon_deg, DURATION_MIN, 25.0)
     ref = _astropy_elevations(times, lat_deg, lon_deg)
     middle = ref.shape[0] // 2
-    for name, ours, theirs in (("start", got.elevation_deg, ref[0]), ("middle", got.mid_elevation_deg, ref[middle]),
-                               ("lowest", got.lowest_elevation_deg, ref.min(axis=0)),
-                               ("highest", got.highest_elevation_deg, ref.max(axis=0))):
+    for name, ours, theirs in (
+        ("start", got.elevation_deg, ref[0]),
+        ("middle", got.mid_elevation_deg, ref[middle]),
+        ("lowest", got.lowest_elevation_deg, ref.min(axis=0)),
+        ("highest", got.highest_elevation_deg, ref.max(axis=0)),
+    ):
         assert ours.shape == (40, len(RA)), name
         assert np.max(np.abs(ours - theirs)) <= 0.015, name
 
@@ -103,7 +105,13 @@ def test_minutes_above_is_the_skys():
     np.testing.assert_allclose(got.minutes_above, minutes, atol=1e-3)
     order = np.random.default_rng(1).permutation(len(times))  # out of order: the same per time
     shuffled = track.source_track(times[order], RA, DEC, 47.12, -114.0, DURATION_MIN, 25.0)
-    for name in ("elevation_deg", "minutes_above", "mid_elevation_deg", "lowest_elevation_deg", "highest_elevation_deg"):
+    for name in (
+        "elevation_deg",
+        "minutes_above",
+        "mid_elevation_deg",
+        "lowest_elevation_deg",
+        "highest_elevation_deg",
+    ):
         np.testing.assert_array_equal(getattr(shuffled, name), getattr(got, name)[order], err_msg=name)
 
 
@@ -121,8 +129,9 @@ def test_closest_approach_to_the_sun_over_the_measurement_matches_astropy():
     hourly = np.datetime64("2026-01-01T00:00", "s") + np.arange(0, 365 * 24) * np.timedelta64(3600, "s")
     closest = hourly[int(np.argmin(sky.sun_separation_deg(hourly, ra, dec)[:, 0]))]
     rng = np.random.default_rng(3)
-    starts = np.concatenate([[closest - np.timedelta64(20, "m")],
-                             hourly[rng.integers(0, hourly.size, 40)]]).astype("datetime64[s]")
+    starts = np.concatenate([[closest - np.timedelta64(20, "m")], hourly[rng.integers(0, hourly.size, 40)]]).astype(
+        "datetime64[s]"
+    )
     got = track.sun_separation_over_deg(starts, ra, dec, DURATION_MIN)[:, 0]
     assert got[0] < 1.0
     offsets = np.arange(0, 46).astype("timedelta64[m]")

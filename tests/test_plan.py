@@ -45,10 +45,13 @@ def session_frame(start, hours_after=7.0, temp_c=None, solar_wm2=None, **weather
     ``temp_c`` / ``solar_wm2`` are functions of the times (DatetimeIndex) replacing the builder's.
     """
     observed = weather_table(end=start, hours=6.0, **weather)
-    ahead = dict(weather)          # the forecast continues the observed temperature trend
+    ahead = dict(weather)  # the forecast continues the observed temperature trend
     ahead["air_temp_c"] = weather.get("air_temp_c", 2.0) + weather.get("temp_rate_c_per_h", -0.4) * hours_after
-    forecast = weather_table(end=start + pd.Timedelta(hours=hours_after), hours=hours_after, step_min=10.0,
-                             **ahead).iloc[1:].copy()
+    forecast = (
+        weather_table(end=start + pd.Timedelta(hours=hours_after), hours=hours_after, step_min=10.0, **ahead)
+        .iloc[1:]
+        .copy()
+    )
     for table in (observed, forecast):
         times = pd.DatetimeIndex(pd.to_datetime(table["time"], utc=True))
         if temp_c is not None:
@@ -68,11 +71,13 @@ def plan_for(frame, start, hours, site, rules, freq_ghz=86.0, registry=None, ref
 
 
 def _ctx(site):
-    return Context(site_name=site.name, time_zone=site.time_zone, feed_source="synthetic", is_demo=False,
-                   data_quality={})
+    return Context(
+        site_name=site.name, time_zone=site.time_zone, feed_source="synthetic", is_demo=False, data_quality={}
+    )
 
 
 # --------------------------------------------------------------------------- the search itself
+
 
 def _random_problem(rng, n=7, p=1.0):
     methods = 2
@@ -88,7 +93,7 @@ def _random_problem(rng, n=7, p=1.0):
             gain[state_index(m, c, n)] = np.where(i >= c - 1, np.clip(level - decay * (i - c), 0, 1), 0.0)
     start_ok = rng.uniform(size=(methods, n)) < 0.7
     for m in range(methods):
-        start_ok[m, n - steps[m] + 1:] = False
+        start_ok[m, n - steps[m] + 1 :] = False
     p_success = np.full((methods, n), p) if p == 1.0 else rng.uniform(0.5, 1.0, (methods, n))
     return Problem(gain, start_ok, p_success, steps, np.array([0.4, 0.5]))
 
@@ -138,12 +143,13 @@ def test_a_failed_correction_leaves_the_surface_as_it_was():
     n = 4
     gain = np.zeros((1 + 1 * (n + 1), n))
     gain[state_index(0, 1, n)] = [0.0, 0.81, 0.81, 0.81]
-    problem = Problem(gain, np.array([[True, False, False, False]]), np.full((1, n), 0.5), np.array([1]),
-                      np.array([0.0]))
+    problem = Problem(
+        gain, np.array([[True, False, False, False]]), np.full((1, n), 0.5), np.array([1]), np.array([0.0])
+    )
     outcome = evaluate(problem, fixed_policy(problem, [(0, 0)]))
     assert outcome.value == pytest.approx(0.5 * 0.81 * 3 / 4)
     assert outcome.corrections == 1.0
-    assert outcome.lost_steps == pytest.approx(1 + 0.5 * 3)   # the correction, and a failed session after it
+    assert outcome.lost_steps == pytest.approx(1 + 0.5 * 3)  # the correction, and a failed session after it
     actions, states = success_path(problem, fixed_policy(problem, [(0, 0)]))
     assert actions == [(0, 0)] and states[0] == -1 and (states[1:] == state_index(0, 1, n)).all()
 
@@ -154,16 +160,18 @@ def test_no_action_is_taken_for_less_than_the_least_gain():
     gain = np.zeros((1 + (n + 1), n))
     gain[0] = [0.0, 0.5, 0.5]
     gain[state_index(0, 1, n)] = [0.0, 0.501, 0.501]
-    problem = Problem(gain, np.array([[True, False, False]]), np.ones((1, n)), np.array([1]), np.array([0.0]),
-                      min_gain=0.01)
-    assert (solve(problem)[:, 0] == NO_ACTION).all()          # from the reachable state: keep observing
+    problem = Problem(
+        gain, np.array([[True, False, False]]), np.ones((1, n)), np.array([1]), np.array([0.0]), min_gain=0.01
+    )
+    assert (solve(problem)[:, 0] == NO_ACTION).all()  # from the reachable state: keep observing
     assert solve(replace(problem, min_gain=0.0))[0, 0] == 0  # without the least gain it would correct
 
 
 # --------------------------------------------------------------------------- sessions
 
+
 def test_a_calm_night_needs_one_laser_correction_that_holds(demo_site, default_rules):
-    start = NIGHT_UTC                                     # about four hours after sunset
+    start = NIGHT_UTC  # about four hours after sunset
     frame = session_frame(start)
     plan = plan_for(frame, start, 3.0, demo_site, default_rules)
     assert plan.verdict == "correct"
@@ -181,8 +189,9 @@ def test_a_calm_night_needs_one_laser_correction_that_holds(demo_site, default_r
     # 12-minute scan taking two 10-minute steps of which the last 8 minutes are observed
     eta = plan.steps["efficiency"].to_numpy(dtype=float)
     assert np.isnan(eta[:2]).all() and np.isfinite(eta[2:]).all()
-    assert by_key["plan"].efficiency == pytest.approx(np.sqrt((np.sum(eta[2:] ** 2) + 0.8 * eta[2] ** 2) / len(eta)),
-                                                      rel=1e-3)
+    assert by_key["plan"].efficiency == pytest.approx(
+        np.sqrt((np.sum(eta[2:] ** 2) + 0.8 * eta[2] ** 2) / len(eta)), rel=1e-3
+    )
 
 
 def test_a_morning_session_re_corrects_as_the_sun_rises(demo_site, default_rules):
@@ -204,7 +213,9 @@ def test_a_morning_session_re_corrects_as_the_sun_rises(demo_site, default_rules
     sunrise = plan.sun_events.loc[plan.sun_events["event"] == "sunrise", "time_utc"].iloc[0]
     assert all(c.start_utc > sunrise for c in plan.corrections[1:])
     first = plan.corrections[0]
-    assert first.holds_until_utc is not None and first.holds_until_utc < plan.corrections[1].start_utc + pd.Timedelta(hours=1)
+    assert first.holds_until_utc is not None and first.holds_until_utc < plan.corrections[1].start_utc + pd.Timedelta(
+        hours=1
+    )
     # the structure warms faster and faster after sunrise: the decay the re-correction answers
     t_struct = plan.steps["structure_temp_c"].to_numpy()
     assert np.diff(t_struct)[-6:].mean() > 3 * max(np.diff(t_struct)[:6].mean(), 0.01)
@@ -218,10 +229,14 @@ def _calibrator_rising(site, start, minutes, dec_deg=30.0):
     """A made-up source that climbs through the site's minimum elevation ``minutes`` after ``start``."""
     ra = np.arange(0.0, 360.0, 0.05)
     at = pd.DatetimeIndex([start + pd.Timedelta(minutes=minutes)])
-    el_then = np.asarray(source_elevation_deg(at, ra, np.full_like(ra, dec_deg), site.latitude_deg,
-                                              site.longitude_deg)).ravel()
-    el_now = np.asarray(source_elevation_deg(pd.DatetimeIndex([start]), ra, np.full_like(ra, dec_deg),
-                                             site.latitude_deg, site.longitude_deg)).ravel()
+    el_then = np.asarray(
+        source_elevation_deg(at, ra, np.full_like(ra, dec_deg), site.latitude_deg, site.longitude_deg)
+    ).ravel()
+    el_now = np.asarray(
+        source_elevation_deg(
+            pd.DatetimeIndex([start]), ra, np.full_like(ra, dec_deg), site.latitude_deg, site.longitude_deg
+        )
+    ).ravel()
     rising = el_then > el_now
     k = np.argmin(np.where(rising, np.abs(el_then - (site.astronomical.min_calibrator_elevation_deg + 0.5)), np.inf))
     return Calibrator("test source", float(ra[k]), dec_deg)
@@ -237,10 +252,10 @@ def test_waiting_forty_minutes_for_holography_beats_the_laser_now(demo_site, def
     plan = plan_for(frame, start, 6.0, site, default_rules, ref_temp_c=temp_now + 6.0)
     by_key = {a.key: a for a in plan.alternatives}
     assert by_key["astronomical_now"].efficiency is None and "no_calibrator" in by_key["astronomical_now"].why_not
-    assert by_key["scan_now"].efficiency is not None                   # the laser could go now
+    assert by_key["scan_now"].efficiency is not None  # the laser could go now
     wait = by_key["wait_astronomical"]
     assert (wait.corrections[0][1] - start) == pd.Timedelta(minutes=40)
-    assert wait.efficiency > by_key["scan_now"].efficiency + 0.05      # waiting beats the laser now
+    assert wait.efficiency > by_key["scan_now"].efficiency + 0.05  # waiting beats the laser now
     # the plan uses the laser while it waits, and takes holography once the calibrator is up (a
     # little later than its first minute: higher up, it leaves less gravity residual at the session's 45°)
     holography = [c for c in plan.corrections if c.method == "astronomical"]
@@ -259,7 +274,7 @@ def test_low_frequency_needs_no_correction_for_the_whole_session(demo_site, defa
     assert "625 µm" in plan.headline
     high = plan_for(frame, NIGHT_UTC, 6.0, site, default_rules, freq_ghz=86.0)
     assert high.verdict == "correct"
-    assert any(a.key == "no_correction" for a in high.alternatives)   # priced, with the uncorrected surface
+    assert any(a.key == "no_correction" for a in high.alternatives)  # priced, with the uncorrected surface
 
 
 def test_no_possible_correction_says_postpone_and_why(demo_site, default_rules):
@@ -273,8 +288,11 @@ def test_a_forecast_contradicted_by_the_mast_is_pulled_towards_it(demo_site, def
     # the forecast says calm; the mast says 8.2 m/s: the first hours of the plan trust the mast
     start = NIGHT_UTC
     observed = weather_table(end=start, hours=6.0, wind_mean_ms=8.2, wind_gust_ms=10.0)
-    forecast = weather_table(end=start + pd.Timedelta(hours=7), hours=7.0, step_min=10.0,
-                             wind_mean_ms=1.0, wind_gust_ms=1.6).iloc[1:].copy()
+    forecast = (
+        weather_table(end=start + pd.Timedelta(hours=7), hours=7.0, step_min=10.0, wind_mean_ms=1.0, wind_gust_ms=1.6)
+        .iloc[1:]
+        .copy()
+    )
     forecast["kind"] = "forecast"
     frame = combine_frames(canonical_frame(observed, LAYOUT).frame, canonical_frame(forecast, LAYOUT).frame)
     plan = plan_for(frame, start, 6.0, demo_site, default_rules)
@@ -285,6 +303,7 @@ def test_a_forecast_contradicted_by_the_mast_is_pulled_towards_it(demo_site, def
 
 
 # --------------------------------------------------------------------------- views and command
+
 
 @pytest.fixture()
 def night_plan(demo_site, default_rules):
@@ -300,10 +319,10 @@ def test_text_json_and_svg_views(night_plan, demo_site):
     assert doc["alternatives"][0]["key"] == "plan" and doc["alternatives"][0]["integration_time_factor"] == 1.0
     assert len(doc["steps"]) == len(night_plan.steps)
     svg = plan_svg(night_plan, ctx)
-    root = ElementTree.fromstring(svg)                      # well-formed XML
+    root = ElementTree.fromstring(svg)  # well-formed XML
     assert root.tag.endswith("svg")
     lowered = svg.lower()
-    for forbidden in ("<script", "<image", "@import", "@font-face", "href=\"http", "xlink:href", "<foreignobject"):
+    for forbidden in ("<script", "<image", "@import", "@font-face", 'href="http', "xlink:href", "<foreignobject"):
         assert forbidden not in lowered
 
 
@@ -319,16 +338,33 @@ def test_plan_command_on_the_demo(capsys, tmp_path):
     assert status == 0 and svg.read_text().startswith("<svg") and "Alternatives" in out
 
 
-@pytest.mark.parametrize("bad", [["--hours", "0"], ["--hours", "x"], ["--elevation", "95"],
-                                 ["--start", "tomorrow"], ["--svg", "/no/such/folder/p.svg"]])
+@pytest.mark.parametrize(
+    "bad",
+    [
+        ["--hours", "0"],
+        ["--hours", "x"],
+        ["--elevation", "95"],
+        ["--start", "tomorrow"],
+        ["--svg", "/no/such/folder/p.svg"],
+    ],
+)
 def test_bad_plan_options_are_one_line_exit_2(capsys, bad):
     status, out, err = run_cli(capsys, "plan", *bad)
     assert status == 2 and out == ""
     assert err.startswith("advisor: error:") and len(err.strip().splitlines()) == 1
 
 
-@pytest.mark.parametrize("start", ["2026-12-01T03:00:00Z", "2026-12-01T09:00:00Z", "2026-12-01T15:00:00Z",
-                                   "2026-12-01T20:00:00Z", "2026-12-01T23:00:00Z", "2026-12-02T06:00:00Z"])
+@pytest.mark.parametrize(
+    "start",
+    [
+        "2026-12-01T03:00:00Z",
+        "2026-12-01T09:00:00Z",
+        "2026-12-01T15:00:00Z",
+        "2026-12-01T20:00:00Z",
+        "2026-12-01T23:00:00Z",
+        "2026-12-02T06:00:00Z",
+    ],
+)
 def test_demo_plans_at_several_times_of_day_beat_every_simple_alternative(start):
     """On the demo forecast (invented): whatever the time of day, the plan is at least as good as
     each alternative priced the same way, and only plans corrections where the method can be done."""
@@ -337,10 +373,11 @@ def test_demo_plans_at_several_times_of_day_beat_every_simple_alternative(start)
     request = session.Request()
     inputs = session.load_inputs(request, read="whole")
     frame, _ = session.with_site_forecast(inputs, request, [])
-    plan = compute_plan(frame, pd.Timestamp(start), 6.0, inputs.site, inputs.registry, inputs.rules, 86.0,
-                        odds=inputs.odds)
+    plan = compute_plan(
+        frame, pd.Timestamp(start), 6.0, inputs.site, inputs.registry, inputs.rules, 86.0, odds=inputs.odds
+    )
     best = plan.alternatives[0]
-    one_minute = 1.0 / (len(plan.steps) * plan.step_min)               # the least gain an action must bring
+    one_minute = 1.0 / (len(plan.steps) * plan.step_min)  # the least gain an action must bring
     for alternative in plan.alternatives[1:]:
         if alternative.efficiency is not None:
             assert best.efficiency**2 >= alternative.efficiency**2 - 2 * one_minute, alternative.label

@@ -32,9 +32,23 @@ COMMANDS = readme_commands()
 
 def test_readme_shows_the_everyday_commands():
     shown = " ".join(COMMANDS)
-    for sub in ("check", "reference add", "reference list", "attempt add", "attempt list", "outlook", "replay",
-                "train", "model show",
-                "rules lint", "rules show", "rules explain", "rules features", "demo copy", "plan"):
+    for sub in (
+        "check",
+        "reference add",
+        "reference list",
+        "attempt add",
+        "attempt list",
+        "outlook",
+        "replay",
+        "train",
+        "model show",
+        "rules lint",
+        "rules show",
+        "rules explain",
+        "rules features",
+        "demo copy",
+        "plan",
+    ):
         assert f"advisor {sub}" in shown, sub
 
 
@@ -48,21 +62,51 @@ def test_readme_command_runs(command, monkeypatch, tmp_path, capsys):
     if "--svg" in argv:
         argv[argv.index("--svg") + 1] = str(tmp_path / "picture.svg")
     if argv[:2] == ["model", "show"]:
-        assert main(["train", "--history", "example_weather/larch_basin_history.csv",
-                     "--out", str(tmp_path / "model.json")]) == 0
+        assert (
+            main(
+                ["train", "--history", "example_weather/larch_basin_history.csv", "--out", str(tmp_path / "model.json")]
+            )
+            == 0
+        )
     if argv[:2] == ["attempt", "list"]:
-        assert main(["attempt", "add", "--history", str(tmp_path / "attempts.csv"), "--method", "scan",
-                     "--feed", "example_weather/larch_basin_mast.csv", "--usable", "yes",
-                     "--time", "2026-11-30T03:10:00Z"]) == 0
+        assert (
+            main(
+                [
+                    "attempt",
+                    "add",
+                    "--history",
+                    str(tmp_path / "attempts.csv"),
+                    "--method",
+                    "scan",
+                    "--feed",
+                    "example_weather/larch_basin_mast.csv",
+                    "--usable",
+                    "yes",
+                    "--time",
+                    "2026-11-30T03:10:00Z",
+                ]
+            )
+            == 0
+        )
     if argv[:2] == ["reference", "list"]:
-        main(["reference", "add", "--references", str(tmp_path / "refs.csv"), "--time", "2026-11-30T03:10:00Z",
-              "--air-temp-c", "-3.2"])
+        main(
+            [
+                "reference",
+                "add",
+                "--references",
+                str(tmp_path / "refs.csv"),
+                "--time",
+                "2026-11-30T03:10:00Z",
+                "--air-temp-c",
+                "-3.2",
+            ]
+        )
     # "advisor a && advisor b": each in turn, in the same folder
     chain = [argv]
     while "&&" in chain[-1]:
         k = chain[-1].index("&&")
         assert chain[-1][k + 1] == "advisor", command
-        chain[-1:] = [chain[-1][:k], chain[-1][k + 2:]]
+        chain[-1:] = [chain[-1][:k], chain[-1][k + 2 :]]
     for part in chain:
         status = main(part)
         out, err = capsys.readouterr()

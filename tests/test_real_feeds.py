@@ -29,13 +29,13 @@ from advisor.commands.main import main
 pvlib = pytest.importorskip("pvlib")
 
 DATA = Path(pvlib.__file__).parent / "data"
-TMY3 = DATA / "703165TY.csv"            # pvlib 0.16.1, pvlib/data/703165TY.csv
-TMY3_OTHER = DATA / "723170TYA.CSV"     # pvlib 0.16.1, pvlib/data/723170TYA.CSV
+TMY3 = DATA / "703165TY.csv"  # pvlib 0.16.1, pvlib/data/703165TY.csv
+TMY3_OTHER = DATA / "723170TYA.CSV"  # pvlib 0.16.1, pvlib/data/723170TYA.CSV
 SITE = Path(__file__).parent / "real_feeds" / "tmy3_703165.yaml"
-LAT, LON = 55.317, -160.517              # the file's metadata line
-WIND_LIMIT_MS = 4.0                      # the site file's thresholds
+LAT, LON = 55.317, -160.517  # the file's metadata line
+WIND_LIMIT_MS = 4.0  # the site file's thresholds
 FOG_SPREAD_C, FOG_RH_PCT, FOG_VIS_M, RAIN_MM_H = 1.0, 97.0, 1000.0, 0.1
-GAP_LIMIT_H = 2.5                        # max(10 min, 2.5 × the 60-min cadence)
+GAP_LIMIT_H = 2.5  # max(10 min, 2.5 × the 60-min cadence)
 CODE = -9900
 
 
@@ -51,13 +51,14 @@ def raw() -> pd.DataFrame:
     """The CSV as pandas reads it, with UTC times built independently of the advisor."""
     d = pd.read_csv(TMY3, skiprows=1)
     end_of_day = d["Time (HH:MM)"] == "24:00"
-    local = pd.to_datetime(d["Date (MM/DD/YYYY)"] + " " + d["Time (HH:MM)"].where(~end_of_day, "00:00"),
-                           format="%m/%d/%Y %H:%M") + pd.to_timedelta(end_of_day.astype(int), unit="D")
-    d["utc"] = (local + pd.Timedelta(hours=9)).dt.tz_localize("UTC")     # UTC-09:00 standard time
+    local = pd.to_datetime(
+        d["Date (MM/DD/YYYY)"] + " " + d["Time (HH:MM)"].where(~end_of_day, "00:00"), format="%m/%d/%Y %H:%M"
+    ) + pd.to_timedelta(end_of_day.astype(int), unit="D")
+    d["utc"] = (local + pd.Timedelta(hours=9)).dt.tz_localize("UTC")  # UTC-09:00 standard time
     d = d.sort_values("utc", kind="stable").reset_index(drop=True)
     step_h = d["utc"].diff().shift(-1).dt.total_seconds() / 3600
     step_h.iloc[-1] = step_h.median()
-    d["hours"] = np.where(step_h <= GAP_LIMIT_H, step_h, 0.0)          # a row stands for the time to the next
+    d["hours"] = np.where(step_h <= GAP_LIMIT_H, step_h, 0.0)  # a row stands for the time to the next
     return d
 
 
@@ -65,11 +66,27 @@ def raw() -> pd.DataFrame:
 def replayed(raw, tmp_path_factory):
     folder = tmp_path_factory.mktemp("tmy3")
     first = raw[raw["Time (HH:MM)"] == "01:00"]
-    refs = pd.DataFrame({"time": first["utc"].dt.strftime("%Y-%m-%dT%H:%M:%SZ"),
-                         "air_temp_c": first["Dry-bulb (C)"], "note": "invented, keeps the laser available"})
+    refs = pd.DataFrame(
+        {
+            "time": first["utc"].dt.strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "air_temp_c": first["Dry-bulb (C)"],
+            "note": "invented, keeps the laser available",
+        }
+    )
     refs.to_csv(folder / "refs.csv", index=False)
-    status, out, err = run("replay", "--site", SITE, "--feed", TMY3, "--references", folder / "refs.csv",
-                           "--json", "--csv", folder / "verdicts.csv", "--no-cache")
+    status, out, err = run(
+        "replay",
+        "--site",
+        SITE,
+        "--feed",
+        TMY3,
+        "--references",
+        folder / "refs.csv",
+        "--json",
+        "--csv",
+        folder / "verdicts.csv",
+        "--no-cache",
+    )
     assert status == 0, err
     verdicts = pd.read_csv(folder / "verdicts.csv")
     verdicts["utc"] = pd.to_datetime(verdicts["time"], utc=True)
@@ -78,7 +95,7 @@ def replayed(raw, tmp_path_factory):
 
 def test_a_year_replays_through_the_site_file_alone_with_hours_for_every_row(replayed, raw):
     summary, rows, _ = replayed
-    assert rows["verdict"].notna().all()                      # every row of the file evaluated
+    assert rows["verdict"].notna().all()  # every row of the file evaluated
     assert sum(summary["hours"].values()) == pytest.approx(raw["hours"].sum())
     # every row has wind, temperature and humidity: nothing is undetermined
     required = raw[["Wspd (m/s)", "Dry-bulb (C)", "RHum (%)"]]
@@ -89,7 +106,7 @@ def test_a_year_replays_through_the_site_file_alone_with_hours_for_every_row(rep
 
 def test_hours_of_mean_wind_above_the_limit_match_pandas(replayed, raw):
     summary, _, _ = replayed
-    expected = raw.loc[raw["Wspd (m/s)"] > WIND_LIMIT_MS, "hours"].sum()      # the hourly value is the 1-h mean
+    expected = raw.loc[raw["Wspd (m/s)"] > WIND_LIMIT_MS, "hours"].sum()  # the hourly value is the 1-h mean
     assert summary["weather"]["wind_above_limit"] == pytest.approx(expected)
 
 
@@ -127,7 +144,7 @@ def test_night_hours_match_the_sun_of_an_independent_ephemeris(replayed, raw):
     sun = pvlib.solarposition.get_solarposition(pd.DatetimeIndex(raw["utc"]), LAT, LON, altitude=7)
     night = (sun["elevation"] < -0.833).to_numpy()
     expected = raw.loc[night, "hours"].sum()
-    assert abs(summary["weather"]["night"] - expected) <= 3.0   # rows within seconds of sunrise or sunset
+    assert abs(summary["weather"]["night"] - expected) <= 3.0  # rows within seconds of sunrise or sunset
     assert expected > 3000
 
 
@@ -172,7 +189,7 @@ def test_postpone_hours_match_the_weather(replayed, raw):
     assert (verdict[(wind > WIND_LIMIT_MS) | rain] == "postpone").all()
     for method in ("scan", "astronomical"):
         assert not ((verdict == method) & ((wind > WIND_LIMIT_MS) | rain)).any(), method
-    assert not ((verdict == "scan") & (fog | dropout)).any()     # no scan in fog or on a sensor dropout
+    assert not ((verdict == "scan") & (fog | dropout)).any()  # no scan in fog or on a sensor dropout
     # every other postpone hour has weather against each method: the laser in fog or on a dropout,
     # holography in gusty wind
     other = (verdict == "postpone") & ~((wind > WIND_LIMIT_MS) | rain)
@@ -209,8 +226,12 @@ def test_no_silent_no_rain_rules_that_need_precipitation_stay_undecided(raw):
 
 def test_a_call_on_the_real_file_says_what_it_could_not_see_and_that_gusts_are_estimated(replayed):
     _, rows, folder = replayed
-    unseen_scan = rows[(rows["verdict"] == "scan") & (rows["Lprecip depth (mm)"] == CODE)
-                       & (rows["Dry-bulb (C)"] - rows["Dew-point (C)"] < 2) & (rows["RHum (%)"] >= 90)]
+    unseen_scan = rows[
+        (rows["verdict"] == "scan")
+        & (rows["Lprecip depth (mm)"] == CODE)
+        & (rows["Dry-bulb (C)"] - rows["Dew-point (C)"] < 2)
+        & (rows["RHum (%)"] >= 90)
+    ]
     at = unseen_scan["utc"].iloc[len(unseen_scan) // 2].strftime("%Y-%m-%dT%H:%M:%SZ")
     argv = ("check", "--site", SITE, "--feed", TMY3, "--references", folder / "refs.csv", "--at", at)
     status, out, err = run(*argv, "--json")
@@ -223,22 +244,27 @@ def test_a_call_on_the_real_file_says_what_it_could_not_see_and_that_gusts_are_e
     assert doc["features"]["gust_estimated"] is True and doc["features"]["wind_window_min"] == 60
     assert "precip_mm_h" in doc["data_quality"]["inputs_not_seen"]
     assert doc["data_quality"]["missing_codes"]["Hvis (m)"] == 2987
-    assert doc["data_quality"]["rows_with_missing_codes"] == int(((rows["Hvis (m)"] == CODE)
-                                                                  | (rows["Lprecip depth (mm)"] == CODE)).sum())
+    assert doc["data_quality"]["rows_with_missing_codes"] == int(
+        ((rows["Hvis (m)"] == CODE) | (rows["Lprecip depth (mm)"] == CODE)).sum()
+    )
     status, text, _ = run(*argv)
     assert "wind (1-h mean)" in text and "gusts (estimated)" in text and "10-min" not in text
 
 
 def test_a_wrong_time_zone_is_refused_naming_the_zone_that_fits(tmp_path):
     site = tmp_path / "site.yaml"
-    site.write_text(SITE.read_text().replace("  time_zone: UTC-09:00            # local standard time all year",
-                                             "  time_zone: UTC"))
+    site.write_text(
+        SITE.read_text().replace("  time_zone: UTC-09:00            # local standard time all year", "  time_zone: UTC")
+    )
     status, _, err = run("replay", "--site", site, "--feed", TMY3, "--json", "--no-cache")
     assert status == 2 and len(err.strip().splitlines()) == 1
     assert "irradiance contradicts the computed sun" in err and "UTC-09:00" in err
     hour_off = tmp_path / "hour.yaml"
-    hour_off.write_text(SITE.read_text().replace("  time_zone: UTC-09:00            # local standard time all year",
-                                                 "  time_zone: UTC-08:00"))
+    hour_off.write_text(
+        SITE.read_text().replace(
+            "  time_zone: UTC-09:00            # local standard time all year", "  time_zone: UTC-08:00"
+        )
+    )
     status, out, err = run("feed", "inspect", TMY3, "--site", hour_off)
     assert status == 0 and "time zone: DOUBTFUL" in out and "UTC-09:00" in out
 
@@ -250,8 +276,8 @@ def test_feed_inspect_reports_codes_cadence_and_zone_within_80_columns():
     assert "one sample every 60 min" in out and "rows: 8,760" in out
     assert "time zone: ok" in out and "8,070 rows affected" in " ".join(out.split())
     vis = next(line for line in out.splitlines() if line.startswith("visibility"))
-    assert "5,773" in vis and "2,987" in vis                # values, codes
-    status, out, _ = run("feed", "inspect", TMY3_OTHER)      # no site: a guessed layout
+    assert "5,773" in vis and "2,987" in vis  # values, codes
+    status, out, _ = run("feed", "inspect", TMY3_OTHER)  # no site: a guessed layout
     assert status == 0 and "guessed (no --site)" in out and "TODO time_zone" in out
     assert "time_format: every sampled time reads as %m/%d/%Y %H:%M" in out
 
@@ -266,28 +292,38 @@ def test_site_new_drafts_a_file_refused_until_its_todos_are_filled(tmp_path):
     assert "missing: [-9900]" in text and 'over_hours_from: "Lprecip quantity (hr)"' in text
     status, _, err = run("rules", "lint", "--site", out_file)
     assert status == 2 and "still says TODO" in err and len(err.strip().splitlines()) == 1
-    filled = (text.replace("name: TODO ", "name: Test station ").replace("latitude_deg: TODO", f"latitude_deg: {LAT}")
-              .replace("longitude_deg: TODO", f"longitude_deg: {LON}").replace("elevation_m: TODO", "elevation_m: 7")
-              .replace("time_zone: TODO", "time_zone: UTC-09:00").replace("dish_diameter_m: TODO", "dish_diameter_m: 90")
-              .replace("gust_factor: TODO", "gust_factor: 1.6")
-              .replace("{name: TODO, ra: TODO, dec: TODO}", '{name: "3C 273", ra: "12h29m06.7s", dec: "+02d03m09s"}'))
+    filled = (
+        text.replace("name: TODO ", "name: Test station ")
+        .replace("latitude_deg: TODO", f"latitude_deg: {LAT}")
+        .replace("longitude_deg: TODO", f"longitude_deg: {LON}")
+        .replace("elevation_m: TODO", "elevation_m: 7")
+        .replace("time_zone: TODO", "time_zone: UTC-09:00")
+        .replace("dish_diameter_m: TODO", "dish_diameter_m: 90")
+        .replace("gust_factor: TODO", "gust_factor: 1.6")
+        .replace("{name: TODO, ra: TODO, dec: TODO}", '{name: "3C 273", ra: "12h29m06.7s", dec: "+02d03m09s"}')
+    )
     assert not [line for line in filled.splitlines() if "TODO" in line.split("#")[0]]
     (tmp_path / "filled.yaml").write_text(filled)
     assert run("rules", "lint", "--site", tmp_path / "filled.yaml")[0] == 0
     status, out, err = run("check", "--site", tmp_path / "filled.yaml", "--at", "2005-04-25T21:00:00-09:00", "--json")
     assert status in (10, 11) and json.loads(out)["features"]["gust_estimated"] is True, err
-    status, _, err = run("site", "new", "--feed", TMY3, "--out", out_file)     # never overwritten
+    status, _, err = run("site", "new", "--feed", TMY3, "--out", out_file)  # never overwritten
     assert status == 2 and "exists" in err and out_file.read_text() == text
 
 
 def test_the_second_file_fits_its_own_zone_and_a_wrong_one_is_refused(tmp_path):
     """pvlib 0.16.1 data/723170TYA.CSV: metadata line gives 36.100 N, 79.950 W, UTC-05:00."""
-    base = (SITE.read_text().replace(f"latitude_deg: {LAT}", "latitude_deg: 36.100")
-            .replace(f"longitude_deg: {LON}", "longitude_deg: -79.950").replace("UTC-09:00", "UTC-05:00"))
+    base = (
+        SITE.read_text()
+        .replace(f"latitude_deg: {LAT}", "latitude_deg: 36.100")
+        .replace(f"longitude_deg: {LON}", "longitude_deg: -79.950")
+        .replace("UTC-09:00", "UTC-05:00")
+    )
     right, wrong = tmp_path / "right.yaml", tmp_path / "wrong.yaml"
     right.write_text(base)
-    wrong.write_text(base.replace("  time_zone: UTC-05:00            # local standard time all year",
-                                  "  time_zone: UTC-08:00"))
+    wrong.write_text(
+        base.replace("  time_zone: UTC-05:00            # local standard time all year", "  time_zone: UTC-08:00")
+    )
     status, out, err = run("feed", "inspect", TMY3_OTHER, "--site", right)
     assert status == 0 and "time zone: ok" in out, err
     status, _, err = run("replay", "--site", wrong, "--feed", TMY3_OTHER, "--json", "--no-cache")

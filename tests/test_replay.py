@@ -9,10 +9,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from advisor.vocabulary import VERDICTS
 from advisor.commands.main import main
 from advisor.evaluation.replay import Attempts, compare_rule_sets, hours_by, score_attempts, step_hours
 from advisor.rules.ruleset import RuleEvaluation
+from advisor.vocabulary import VERDICTS
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "example_weather"
@@ -45,19 +45,25 @@ def test_false_go_and_missed_against_attempts():
         times_utc=times[[0, 1, 2, 3, 5]] + pd.Timedelta(minutes=2),
         method=np.array(["scan", "scan", "scan", "astronomical", "scan"]),
         usable=np.array([True, False, True, True, False]),
-        source="test")
+        source="test",
+    )
     score = score_attempts(times, verdict, RuleEvaluation(fired, {}), attempts, max_age_min=15)
     scan = score["methods"]["scan"]
     assert scan["attempts"] == 4 and scan["usable"] == 2
-    assert scan["allowed"] == scan["advised"] == 2                 # rows 0 and 1
-    assert scan["false_go"] == 1 and scan["false_go_rate"] == 0.5   # row 1 failed
-    assert scan["missed"] == 1 and scan["missed_rate"] == 0.5       # row 2
+    assert scan["allowed"] == scan["advised"] == 2  # rows 0 and 1
+    assert scan["false_go"] == 1 and scan["false_go_rate"] == 0.5  # row 1 failed
+    assert scan["missed"] == 1 and scan["missed_rate"] == 0.5  # row 2
     windy = next(r for r in scan["per_rule"] if r["rule"] == "windy")
-    assert windy == {"rule": "windy", "attempts_when_fired": 2, "failed_when_fired": 1,
-                     "false_go_when_fired": 1, "missed_when_fired": 1}
+    assert windy == {
+        "rule": "windy",
+        "attempts_when_fired": 2,
+        "failed_when_fired": 1,
+        "false_go_when_fired": 1,
+        "missed_when_fired": 1,
+    }
     astro = score["methods"]["astronomical"]
     assert astro["attempts"] == 1 and astro["allowed"] == 1 and astro["false_go"] == 0 and astro["missed"] == 0
-    assert astro["per_rule"] == []                                  # 'windy' did not fire at row 3
+    assert astro["per_rule"] == []  # 'windy' did not fire at row 3
 
 
 def test_both_methods_are_scored_by_what_the_advice_allowed():
@@ -65,14 +71,26 @@ def test_both_methods_are_scored_by_what_the_advice_allowed():
     the call; each method's per-rule table lists only the rules that concern it."""
     times = _times(4)
     verdict = np.array(["scan", "scan", "astronomical", "postpone"], dtype=object)
-    feasible = {"scan": np.array([True, True, True, False]),          # row 2: scan feasible, not the call
-                "astronomical": np.array([True, False, True, False])}
+    feasible = {
+        "scan": np.array([True, True, True, False]),  # row 2: scan feasible, not the call
+        "astronomical": np.array([True, False, True, False]),
+    }
     fired = {"fog": np.array([False, True, False, True]), "calibrator_low": np.array([False, True, False, True])}
-    attempts = Attempts(times_utc=times + pd.Timedelta(minutes=1),
-                        method=np.array(["astronomical", "astronomical", "scan", "scan"]),
-                        usable=np.array([False, True, True, True]), source="test")
-    score = score_attempts(times, verdict, RuleEvaluation(fired, {}), attempts, 15, feasible,
-                           {"fog": "scan", "calibrator_low": "astronomical"})
+    attempts = Attempts(
+        times_utc=times + pd.Timedelta(minutes=1),
+        method=np.array(["astronomical", "astronomical", "scan", "scan"]),
+        usable=np.array([False, True, True, True]),
+        source="test",
+    )
+    score = score_attempts(
+        times,
+        verdict,
+        RuleEvaluation(fired, {}),
+        attempts,
+        15,
+        feasible,
+        {"fog": "scan", "calibrator_low": "astronomical"},
+    )
     scan, astro = score["methods"]["scan"], score["methods"]["astronomical"]
     assert (scan["allowed"], scan["advised"], scan["false_go"], scan["missed"]) == (1, 0, 0, 1)
     assert scan["missed_rate"] == 0.5 and scan["false_go_rate"] == 0.0
@@ -84,8 +102,9 @@ def test_both_methods_are_scored_by_what_the_advice_allowed():
 
 def test_attempts_outside_the_archive_are_not_scored():
     times = _times(3)
-    attempts = Attempts(pd.DatetimeIndex([times[-1] + pd.Timedelta(hours=5)]), np.array(["scan"]),
-                        np.array([True]), "test")
+    attempts = Attempts(
+        pd.DatetimeIndex([times[-1] + pd.Timedelta(hours=5)]), np.array(["scan"]), np.array([True]), "test"
+    )
     score = score_attempts(times, np.array(["scan"] * 3, dtype=object), RuleEvaluation({}, {}), attempts)
     assert score["attempts_covered"] == 0 and score["methods"]["scan"]["missed_rate"] is None
 
@@ -103,9 +122,19 @@ def test_compare_attributes_changes_to_the_rule_that_differs():
 
 @pytest.fixture()
 def sample_args():
-    return ["replay", "--site", str(DEMO / "larch_basin.yaml"), "--feed", str(DEMO / "larch_basin_archive_sample.csv"),
-            "--references", str(DEMO / "larch_basin_archive_references.csv"),
-            "--from", "2026-01-10T00:00:00Z", "--to", "2026-01-20T00:00:00Z"]
+    return [
+        "replay",
+        "--site",
+        str(DEMO / "larch_basin.yaml"),
+        "--feed",
+        str(DEMO / "larch_basin_archive_sample.csv"),
+        "--references",
+        str(DEMO / "larch_basin_archive_references.csv"),
+        "--from",
+        "2026-01-10T00:00:00Z",
+        "--to",
+        "2026-01-20T00:00:00Z",
+    ]
 
 
 def test_replay_sample_json_hours_add_up(capsys, sample_args):
@@ -133,9 +162,20 @@ def test_replay_csv_export(tmp_path, sample_args):
     out = tmp_path / "steps.csv"
     assert main(sample_args + ["--csv", str(out), "--json"]) == 0
     table = pd.read_csv(out, dtype=str, keep_default_na=False)
-    for column in ("time", "verdict", "blocked_by_scan", "blocked_by_astronomical", "p_usable_scan",
-                   "surface_rms_um_astronomical", "odds_extrapolated_scan", "wind_gust_ms", "dew_point_spread_c",
-                   "reference_age_h", "fog", "data_ok"):
+    for column in (
+        "time",
+        "verdict",
+        "blocked_by_scan",
+        "blocked_by_astronomical",
+        "p_usable_scan",
+        "surface_rms_um_astronomical",
+        "odds_extrapolated_scan",
+        "wind_gust_ms",
+        "dew_point_spread_c",
+        "reference_age_h",
+        "fog",
+        "data_ok",
+    ):
         assert column in table.columns, column
     assert set(table["verdict"]) <= {"scan", "astronomical", "postpone", "undetermined"}
     assert table["time"].str.endswith("Z").all()
@@ -164,9 +204,18 @@ def test_replay_without_feed_is_usage_error(capsys):
 
 def test_replay_scores_the_demo_history(capsys):
     """The history file that trains the model is the same one replay scores against: both methods."""
-    argv = ["replay", "--site", str(DEMO / "larch_basin.yaml"), "--feed", str(DEMO / "larch_basin_archive_sample.csv"),
-            "--references", str(DEMO / "larch_basin_archive_references.csv"),
-            "--history", str(DEMO / "larch_basin_history.csv"), "--json"]
+    argv = [
+        "replay",
+        "--site",
+        str(DEMO / "larch_basin.yaml"),
+        "--feed",
+        str(DEMO / "larch_basin_archive_sample.csv"),
+        "--references",
+        str(DEMO / "larch_basin_archive_references.csv"),
+        "--history",
+        str(DEMO / "larch_basin_history.csv"),
+        "--json",
+    ]
     assert main(argv) == 0
     attempts = json.loads(capsys.readouterr().out)["attempts"]
     history = pd.read_csv(DEMO / "larch_basin_history.csv")
@@ -191,7 +240,7 @@ def test_replay_warns_when_the_registry_does_not_cover_the_period(capsys, sample
     assert doc["hours"]["scan"] == 0.0
     assert len(doc["warnings"]) == 1 and "no reference scan is in force" in doc["warnings"][0]
     assert "(100%)" in doc["warnings"][0] and "advisor: warning:" in captured.err
-    assert main(sample_args + ["--json"]) == 0                     # the archive's own registry covers it
+    assert main(sample_args + ["--json"]) == 0  # the archive's own registry covers it
     assert json.loads(capsys.readouterr().out)["warnings"] == []
 
 

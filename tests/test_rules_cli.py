@@ -11,13 +11,13 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from advisor.commands.session import load_ruleset
 from advisor.commands.rules import rule_files
+from advisor.commands.session import load_ruleset
 from advisor.features import CATALOGUE, FEATURES
-from advisor.rules.loader import lint_files
 from advisor.io.site import load_site
+from advisor.rules.loader import lint_files
 
-from .conftest import NIGHT_UTC, weather_table, run_cli
+from .conftest import NIGHT_UTC, run_cli, weather_table
 
 ROOT = Path(__file__).resolve().parent.parent
 DEFAULT_FILES = [(p, "default") for p in __import__("advisor.rules.loader", fromlist=["x"]).default_rule_files()]
@@ -72,8 +72,10 @@ def files(tmp_path):
 def test_lint_clean_exits_zero_and_summarises(capsys, files):
     status, out, err = run(capsys, "rules", "lint", str(files / "good.yaml"))
     assert status == 0 and err == ""
-    assert out.strip() == (f"ok: {N_DEFAULT} rules in effect ({N_DEFAULT - 2} default, 2 command line, 1 disabled) "
-                           f"from {N_FILES + 1} files")
+    assert out.strip() == (
+        f"ok: {N_DEFAULT} rules in effect ({N_DEFAULT - 2} default, 2 command line, 1 disabled) "
+        f"from {N_FILES + 1} files"
+    )
 
 
 def test_lint_reports_every_error_with_position_and_exits_two(capsys, files):
@@ -110,14 +112,17 @@ def test_lint_layers_exactly_what_every_command_loads(files):
 def test_lint_follows_the_site_rule_files_and_a_missing_one_is_an_error(capsys, tmp_path):
     """A site file naming a rule file that is not there stops lint and check alike."""
     site = tmp_path / "site.yaml"
-    site.write_text("site:\n  name: T\n  latitude_deg: 47\n  longitude_deg: -114\n  dish_diameter_m: 50\n"
-                    "rules:\n  - missing_rules.yaml\n", encoding="utf-8")
+    site.write_text(
+        "site:\n  name: T\n  latitude_deg: 47\n  longitude_deg: -114\n  dish_diameter_m: 50\n"
+        "rules:\n  - missing_rules.yaml\n",
+        encoding="utf-8",
+    )
     status, out, _ = run(capsys, "rules", "lint", "--site", str(site))
     assert status == 2 and "missing_rules.yaml: error: rule file not found" in out
     feed = tmp_path / "feed.csv"
     weather_table().to_csv(feed, index=False)
     status, _, err = run(capsys, "check", "--site", str(site), "--feed", str(feed))
-    assert status == 2 and "missing_rules.yaml: rule file not found" in err     # no fallback to defaults
+    assert status == 2 and "missing_rules.yaml: rule file not found" in err  # no fallback to defaults
 
 
 # --------------------------------------------------------------------------- every command refuses
@@ -148,21 +153,33 @@ def test_show_lists_rules_with_layer_source_and_filter(capsys, files):
     status, out, _ = run(capsys, "rules", "show", "--rules", str(files / "good.yaml"), "--for", "astronomical")
     assert status == 0
     # early_night is off
-    assert out.splitlines()[0] == f"{N_ASTRONOMICAL - 1} rules in effect for astronomical ({N_ASTRONOMICAL - 1} default)"
-    assert "frost_on_panels" not in out and "gusts_shake_structure" not in out   # scan-only rules
+    assert (
+        out.splitlines()[0] == f"{N_ASTRONOMICAL - 1} rules in effect for astronomical ({N_ASTRONOMICAL - 1} default)"
+    )
+    assert "frost_on_panels" not in out and "gusts_shake_structure" not in out  # scan-only rules
     assert "turbulent_wind  [both · add_error 10 * (gust_factor - 1) µm]\n    when gust_factor" in out
     assert "disabled:\n  early_night  by command line " in out
     status, out, _ = run(capsys, "rules", "show", "--rules", str(files / "good.yaml"), "--for", "scan")
-    assert (f"gusts_shake_structure  [scan · block]\n    when wind_gust_ms > 16 kn\n"
-            f"    from command line {files / 'good.yaml'}:2\n    overrides default ") in out
+    assert (
+        f"gusts_shake_structure  [scan · block]\n    when wind_gust_ms > 16 kn\n"
+        f"    from command line {files / 'good.yaml'}:2\n    overrides default "
+    ) in out
 
 
 # --------------------------------------------------------------------------- explain
 
 
 def test_explain_shows_every_rule_value_and_agrees_with_check(capsys, files):
-    argv = ["--feed", str(files / "feed.csv"), "--references", str(files / "refs.csv"),
-            "--at", "2026-01-16T04:00:00Z", "--rules", str(files / "good.yaml")]
+    argv = [
+        "--feed",
+        str(files / "feed.csv"),
+        "--references",
+        str(files / "refs.csv"),
+        "--at",
+        "2026-01-16T04:00:00Z",
+        "--rules",
+        str(files / "good.yaml"),
+    ]
     status, out, _ = run(capsys, "rules", "explain", *argv)
     assert status == 0
     blocks = out.split("\n\n")[1:]
@@ -174,10 +191,10 @@ def test_explain_shows_every_rule_value_and_agrees_with_check(capsys, files):
     fired = {r["rule"] for r in json.loads(check_json)["reasons"] if r["rule"] in shown}
     assert {rid for rid, mark in shown.items() if mark == "TRUE"} == fired
     frost = next(b for b in blocks if b.split()[1] == "frost_on_panels")
-    assert "air_temp_c < 2.5 degC: true  (2 °C < 2.5 °C)" in frost        # the numbers behind it
+    assert "air_temp_c < 2.5 degC: true  (2 °C < 2.5 °C)" in frost  # the numbers behind it
     assert "error term: 25 µm (added)" in frost and "says: Frost likely (2.0 °C)." in frost
     gusts = next(b for b in blocks if b.split()[1] == "gusts_shake_structure")
-    assert "wind_gust_ms > 16 kn: false  (2.5 m/s > 8.23 m/s)" in gusts   # 16 kn = 8.23 m/s
+    assert "wind_gust_ms > 16 kn: false  (2.5 m/s > 8.23 m/s)" in gusts  # 16 kn = 8.23 m/s
 
 
 def test_rules_without_action_is_usage_exit_two(capsys):

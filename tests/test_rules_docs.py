@@ -37,7 +37,7 @@ def _blocks():
     for match in _FENCE.finditer(DOC.read_text(encoding="utf-8")):
         lang, info, body = match.group(1), match.group(2).strip(), match.group(3)
         attrs = dict(part.split("=", 1) for part in info.split() if "=" in part)
-        line = DOC.read_text(encoding="utf-8")[:match.start()].count("\n") + 1
+        line = DOC.read_text(encoding="utf-8")[: match.start()].count("\n") + 1
         out.append((lang, attrs, body, line))
     return out
 
@@ -53,7 +53,7 @@ for _lang, _a, _body, _line in BLOCKS:
     _given = {}
     for _k, _text in enumerate(_body.splitlines()):
         if _text.startswith("# with "):
-            _given = dict(item.split(" = ", 1) for item in _text[len("# with "):].split(", "))
+            _given = dict(item.split(" = ", 1) for item in _text[len("# with ") :].split(", "))
         elif _text.strip():
             CONDITIONS.append((_line + 1 + _k, dict(_given), _text))
 
@@ -126,9 +126,9 @@ def test_condition_example(line, given, text):
     if result.startswith("error:"):
         with pytest.raises(ConditionError) as info:
             compile_condition(condition, CATALOGUE)
-        assert result[len("error:"):].strip() in info.value.one_line(), info.value.one_line()
+        assert result[len("error:") :].strip() in info.value.one_line(), info.value.one_line()
         return
     assert result in ("true", "false"), f"docs/rules.md:{line}: result must be true, false or error: ..."
     compiled = compile_condition(condition, CATALOGUE)
     assert bool(compiled.evaluate(columns)[0]) is (result == "true")
-    assert bool(evaluate_row(compiled.ast, row)) is (result == "true")   # the reference agrees
+    assert bool(evaluate_row(compiled.ast, row)) is (result == "true")  # the reference agrees

@@ -38,17 +38,42 @@ def _random_columns(n: int, seed: int) -> dict[str, np.ndarray]:
 
 
 #: Site figures among the target features (the same for both targets).
-_SITE = {"session_elevation_deg": 50.0, "calibrator_min_elevation_deg": 25.0, "calibrator_max_elevation_deg": 80.0,
-         "sun_avoidance_deg": 30.0, "site_height_m": 1000.0, "receiver_temp_k": 60.0, "reference_pwv_mm": 4.0,
-         "reference_system_temp_k": 120.0}
+_SITE = {
+    "session_elevation_deg": 50.0,
+    "calibrator_min_elevation_deg": 25.0,
+    "calibrator_max_elevation_deg": 80.0,
+    "sun_avoidance_deg": 30.0,
+    "site_height_m": 1000.0,
+    "receiver_temp_k": 60.0,
+    "reference_pwv_mm": 4.0,
+    "reference_system_temp_k": 120.0,
+}
 #: Two targets: one below and one above the high-frequency threshold of the default rules.
 TARGETS = [
-    {"freq_ghz": 22.0, "wavelength_mm": 13.6, "required_surface_rms_um": 850.0, "beam_fwhm_arcsec": 40.0,
-     "hf_wind_limit_ms": 6.0, "high_frequency_min_ghz": 70.0, "scan_duration_min": 45.0,
-     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0, **_SITE},
-    {"freq_ghz": 115.0, "wavelength_mm": 2.6, "required_surface_rms_um": 163.0, "beam_fwhm_arcsec": 8.0,
-     "hf_wind_limit_ms": 6.0, "high_frequency_min_ghz": 70.0, "scan_duration_min": 45.0,
-     "astronomical_duration_min": 40.0, "surface_requirement_fraction": 16.0, **_SITE},
+    {
+        "freq_ghz": 22.0,
+        "wavelength_mm": 13.6,
+        "required_surface_rms_um": 850.0,
+        "beam_fwhm_arcsec": 40.0,
+        "hf_wind_limit_ms": 6.0,
+        "high_frequency_min_ghz": 70.0,
+        "scan_duration_min": 45.0,
+        "astronomical_duration_min": 40.0,
+        "surface_requirement_fraction": 16.0,
+        **_SITE,
+    },
+    {
+        "freq_ghz": 115.0,
+        "wavelength_mm": 2.6,
+        "required_surface_rms_um": 163.0,
+        "beam_fwhm_arcsec": 8.0,
+        "hf_wind_limit_ms": 6.0,
+        "high_frequency_min_ghz": 70.0,
+        "scan_duration_min": 45.0,
+        "astronomical_duration_min": 40.0,
+        "surface_requirement_fraction": 16.0,
+        **_SITE,
+    },
 ]
 
 
@@ -119,7 +144,8 @@ def test_columns_must_be_scalars_or_one_dimensional():
         rule.evaluate({"wind_mean_ms": np.zeros((2, 2))})
     with pytest.raises(ValueError, match="expected 3"):
         compile_condition("wind_mean_ms > hf_wind_limit_ms", CATALOGUE).evaluate(
-            {"wind_mean_ms": np.zeros(2), "hf_wind_limit_ms": 6.0}, length=3)
+            {"wind_mean_ms": np.zeros(2), "hf_wind_limit_ms": 6.0}, length=3
+        )
 
 
 def test_rule_layers_are_defaults_then_site_then_command_line(tmp_path):
@@ -151,16 +177,27 @@ def _imports(path: Path) -> set[str]:
 
 
 def test_the_rule_engine_imports_only_base_modules_and_bundled_data():
-    allowed = {"advisor", "advisor.errors", "advisor.units", "advisor.vocabulary", "advisor.catalogue", "advisor.text",
-               "advisor.io.yamlio", "advisor.io.fileio", "advisor.io.bundled"}
+    allowed = {
+        "advisor",
+        "advisor.errors",
+        "advisor.units",
+        "advisor.vocabulary",
+        "advisor.catalogue",
+        "advisor.text",
+        "advisor.io.yamlio",
+        "advisor.io.fileio",
+        "advisor.io.bundled",
+    }
     for path in sorted(RULES_DIR.glob("*.py")):
         for module in _imports(path):
             assert module in allowed or module.startswith("advisor.rules."), f"{path.name} imports {module}"
 
 
 def test_the_rule_engine_has_no_import_cycle():
-    graph = {f"advisor.rules.{p.stem}": {m for m in _imports(p) if m.startswith("advisor.rules.")}
-             for p in RULES_DIR.glob("*.py")}
+    graph = {
+        f"advisor.rules.{p.stem}": {m for m in _imports(p) if m.startswith("advisor.rules.")}
+        for p in RULES_DIR.glob("*.py")
+    }
     done: set[str] = set()
 
     def visit(module: str, path: tuple[str, ...]) -> None:

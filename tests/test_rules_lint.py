@@ -23,10 +23,10 @@ from advisor.catalogue import FEATURE_DOMAINS
 from advisor.errors import RulesError
 from advisor.features import CATALOGUE, FEATURES
 from advisor.io.feed import PLAUSIBLE_RANGE
+from advisor.io.site import CANONICAL_UNITS
 from advisor.rules.condition import compile_condition, evaluate_row
 from advisor.rules.loader import RulesRejected, default_rule_files, lint_files, lint_texts, load_rules
 from advisor.rules.thresholds import threshold_findings
-from advisor.io.site import CANONICAL_UNITS
 
 DEFAULTS = [(p.read_text(encoding="utf-8"), str(p), "default") for p in default_rule_files()]
 
@@ -42,8 +42,10 @@ def lines(report) -> list[str]:
 
 
 def rule(rid="r1", condition="wind_gust_ms > 8 m/s", effect="warn", message="m", extra="", applies="scan"):
-    return (f"  - id: {rid}\n    applies_to: {applies}\n    condition: {condition}\n"
-            f"    effect: {effect}\n    message: \"{message}\"\n{extra}")
+    return (
+        f"  - id: {rid}\n    applies_to: {applies}\n    condition: {condition}\n"
+        f'    effect: {effect}\n    message: "{message}"\n{extra}'
+    )
 
 
 # --------------------------------------------------------------------------- the defaults
@@ -57,9 +59,9 @@ def test_default_rules_lint_without_any_problem():
 
 def test_domains_name_only_catalogue_features_in_their_units():
     assert set(FEATURE_DOMAINS) <= set(CATALOGUE)
-    for name, (lo, hi, why) in FEATURE_DOMAINS.items():
+    for lo, hi, why in FEATURE_DOMAINS.values():
         assert lo < hi and why
-    for name in PLAUSIBLE_RANGE:   # the feed's limits are in the canonical unit, the feature's unit
+    for name in PLAUSIBLE_RANGE:  # the feed's limits are in the canonical unit, the feature's unit
         if name in CATALOGUE:
             assert CATALOGUE[name].unit == CANONICAL_UNITS[name]
 
@@ -107,27 +109,33 @@ def test_warnings_alone_do_not_stop_loading(tmp_path):
     assert len(load_rules([(f, "site")], CATALOGUE)) == 1
 
 
-@pytest.mark.parametrize("text, words", [
-    ("", "no rules"),
-    ("rules:\n", "no rules"),
-    ("rules: []\n", "no rules"),
-])
+@pytest.mark.parametrize(
+    "text, words",
+    [
+        ("", "no rules"),
+        ("rules:\n", "no rules"),
+        ("rules: []\n", "no rules"),
+    ],
+)
 def test_empty_files_are_warnings(text, words):
     report = lint(text, defaults=False)
     assert report.ok and words in report.problems[0].message
 
 
-@pytest.mark.parametrize("text, where, words", [
-    ("- id: a\n", "a.yaml:1:1", "expected a mapping with a single key 'rules:'"),
-    ("rules: {id: a}\n", "a.yaml:1:8", "'rules' must be a list"),
-    ("rules:\n  - just text\n", "a.yaml:2:5", "each rule must be a mapping"),
-    ("rulez:\n  - id: a\n", "a.yaml:1:1", "unknown key 'rulez'"),
-    ("rules:\n\t- id: a\n", "a.yaml:2", "tab used for indentation"),
-    ("rules: !!python/object/apply:os.system ['echo hi']\n", "a.yaml:1", "tag not allowed"),
-    ("base: &b {id: a}\nrules:\n  - *b\n", "a.yaml", "anchors and aliases"),
-    ("rules:\n  - applies_to: scan\n", "a.yaml:2:5", "rule without an 'id'"),
-    ("rules:\n  - id: two words\n", "a.yaml:2:9", "must be a word"),
-])
+@pytest.mark.parametrize(
+    "text, where, words",
+    [
+        ("- id: a\n", "a.yaml:1:1", "expected a mapping with a single key 'rules:'"),
+        ("rules: {id: a}\n", "a.yaml:1:8", "'rules' must be a list"),
+        ("rules:\n  - just text\n", "a.yaml:2:5", "each rule must be a mapping"),
+        ("rulez:\n  - id: a\n", "a.yaml:1:1", "unknown key 'rulez'"),
+        ("rules:\n\t- id: a\n", "a.yaml:2", "tab used for indentation"),
+        ("rules: !!python/object/apply:os.system ['echo hi']\n", "a.yaml:1", "tag not allowed"),
+        ("base: &b {id: a}\nrules:\n  - *b\n", "a.yaml", "anchors and aliases"),
+        ("rules:\n  - applies_to: scan\n", "a.yaml:2:5", "rule without an 'id'"),
+        ("rules:\n  - id: two words\n", "a.yaml:2:9", "must be a word"),
+    ],
+)
 def test_file_structure_errors(text, where, words):
     report = lint(text, defaults=False)
     assert not report.ok
@@ -152,14 +160,17 @@ def test_values_outside_their_choices_suggest_the_closest():
 # --------------------------------------------------------------------------- positions in YAML scalars
 
 
-@pytest.mark.parametrize("value, line, column", [
-    ("fog and wind_gust > 3", 4, 24),                     # plain
-    ("'fog and wind_gust > 3'", 4, 25),                   # single-quoted
-    ('"fog and wind_gust > 3"', 4, 25),                   # double-quoted
-    (">-\n      fog and\n      wind_gust > 3", 6, 7),     # folded block
-    ("|\n      fog and\n        wind_gust > 3", 6, 9),    # literal block
-    ("fog and\n      wind_gust > 3", 5, 7),               # plain over two lines
-])
+@pytest.mark.parametrize(
+    "value, line, column",
+    [
+        ("fog and wind_gust > 3", 4, 24),  # plain
+        ("'fog and wind_gust > 3'", 4, 25),  # single-quoted
+        ('"fog and wind_gust > 3"', 4, 25),  # double-quoted
+        (">-\n      fog and\n      wind_gust > 3", 6, 7),  # folded block
+        ("|\n      fog and\n        wind_gust > 3", 6, 9),  # literal block
+        ("fog and\n      wind_gust > 3", 5, 7),  # plain over two lines
+    ],
+)
 def test_a_condition_error_points_at_the_character_in_the_file(value, line, column):
     report = lint("rules:\n" + rule("a", value), defaults=False)
     (problem,) = report.errors
@@ -176,15 +187,18 @@ def test_a_message_error_points_at_the_value_name():
 # --------------------------------------------------------------------------- messages and error terms
 
 
-@pytest.mark.parametrize("message, severity, words", [
-    ("{wind_gust_ms:.1q}", "error", "bad format '.1q'"),
-    ("{wind_gust_ms!r}", "error", "malformed message template"),
-    ("{wind_gust_ms.real}", "error", "malformed message template"),
-    ("{}", "error", "malformed message template"),
-    ("unbalanced {", "error", "malformed message template"),
-    ("{fog:.1f}", "warning", "formats a flag"),
-    ("  ", "warning", "empty"),
-])
+@pytest.mark.parametrize(
+    "message, severity, words",
+    [
+        ("{wind_gust_ms:.1q}", "error", "bad format '.1q'"),
+        ("{wind_gust_ms!r}", "error", "malformed message template"),
+        ("{wind_gust_ms.real}", "error", "malformed message template"),
+        ("{}", "error", "malformed message template"),
+        ("unbalanced {", "error", "malformed message template"),
+        ("{fog:.1f}", "warning", "formats a flag"),
+        ("  ", "warning", "empty"),
+    ],
+)
 def test_message_problems(message, severity, words):
     report = lint("rules:\n" + rule("a", "fog", message=message), defaults=False)
     assert [(p.severity, words in p.message) for p in report.problems] == [(severity, True)], lines(report)
@@ -195,16 +209,19 @@ def test_message_may_name_any_feature_and_the_calibrator():
     assert lint(text, defaults=False).problems == ()
 
 
-@pytest.mark.parametrize("effect, error, severity, words", [
-    ("add_error", None, "error", "needs 'error_um'"),
-    ("warn", "30", "error", "only used with effect add_error"),
-    ("add_error", "-5", "error", "negative"),
-    ("add_error", "30 m/s", "error", "but error_um is a surface error"),
-    ("add_error", "wind_gust > 3", "error", "unknown name"),
-    ("add_error", "fog", "error", "is a condition"),
-    ("add_error", "true", "error", "must be a number or an expression"),
-    ("add_error", ".nan", "error", "must be finite"),
-])
+@pytest.mark.parametrize(
+    "effect, error, severity, words",
+    [
+        ("add_error", None, "error", "needs 'error_um'"),
+        ("warn", "30", "error", "only used with effect add_error"),
+        ("add_error", "-5", "error", "negative"),
+        ("add_error", "30 m/s", "error", "but error_um is a surface error"),
+        ("add_error", "wind_gust > 3", "error", "unknown name"),
+        ("add_error", "fog", "error", "is a condition"),
+        ("add_error", "true", "error", "must be a number or an expression"),
+        ("add_error", ".nan", "error", "must be finite"),
+    ],
+)
 def test_error_term_problems(effect, error, severity, words):
     extra = f"    error_um: {error}\n" if error is not None else ""
     report = lint("rules:\n" + rule("a", "fog", effect=effect, extra=extra), defaults=False)
@@ -212,11 +229,10 @@ def test_error_term_problems(effect, error, severity, words):
 
 
 def test_an_error_term_with_a_length_unit_is_converted_to_micrometres():
-    report = lint("rules:\n" + rule("a", "true", effect="add_error", extra="    error_um: 0.03 mm\n"),
-                  defaults=False)
+    report = lint("rules:\n" + rule("a", "true", effect="add_error", extra="    error_um: 0.03 mm\n"), defaults=False)
     (r,) = report.ruleset.rules
     result = report.ruleset.evaluate({}, 3)
-    assert np.allclose(result.error_um["a"], 30.0)   # 0.03 mm = 30 µm (definition of the units)
+    assert np.allclose(result.error_um["a"], 30.0)  # 0.03 mm = 30 µm (definition of the units)
 
 
 # --------------------------------------------------------------------------- layering
@@ -234,8 +250,10 @@ def test_override_by_id_merges_keys_and_records_where_from():
 def test_disable_and_reenable():
     off = lint("rules:\n  - id: early_night\n    enabled: false\n")
     assert "early_night" not in {x.id for x in off.ruleset} and off.ruleset.disabled[0][:2] == ("early_night", "a.yaml")
-    on = lint("rules:\n  - id: early_night\n    enabled: false\n",
-              "rules:\n  - id: early_night\n    condition: is_night and hours_since_sunset < 3 h\n")
+    on = lint(
+        "rules:\n  - id: early_night\n    enabled: false\n",
+        "rules:\n  - id: early_night\n    condition: is_night and hours_since_sunset < 3 h\n",
+    )
     assert "early_night" in {x.id for x in on.ruleset} and on.ruleset.disabled == ()
 
 
@@ -261,14 +279,12 @@ def test_error_term_left_over_after_a_later_effect_change_is_a_warning():
 
 
 def test_a_broken_earlier_layer_is_not_hidden_by_an_override():
-    report = lint("rules:\n" + rule("a", "wind_gust > 3"), "rules:\n  - id: a\n    condition: fog\n",
-                  defaults=False)
+    report = lint("rules:\n" + rule("a", "wind_gust > 3"), "rules:\n  - id: a\n    condition: fog\n", defaults=False)
     assert not report.ok and report.errors[0].source == "a.yaml" and report.ruleset is None
 
 
 def test_missing_site_rule_file_is_an_error_not_a_fallback(tmp_path):
-    report = lint_files([(p, "default") for p in default_rule_files()] + [(tmp_path / "gone.yaml", "site")],
-                        CATALOGUE)
+    report = lint_files([(p, "default") for p in default_rule_files()] + [(tmp_path / "gone.yaml", "site")], CATALOGUE)
     assert not report.ok and "file not found" in report.errors[0].message
 
 
@@ -277,9 +293,9 @@ def test_missing_site_rule_file_is_an_error_not_a_fallback(tmp_path):
 
 HOSTILE = [
     "__import__(os).system(touch)",
-    "open(\"/tmp/advisor-pwned\", \"w\")",
+    'open("/tmp/advisor-pwned", "w")',
     "().__class__.__bases__[0].__subclasses__()",
-    "eval(\"1\") or exec(\"2\")",
+    'eval("1") or exec("2")',
     "wind_gust_ms.__class__",
     "lambda: 0",
     "[x for x in fog]",
@@ -307,8 +323,9 @@ def test_hostile_condition_is_an_error_at_lint_and_load_and_runs_nothing(conditi
 def test_yaml_object_tags_in_a_rule_never_construct_anything(tmp_path):
     marker = tmp_path / "made"
     f = tmp_path / "tag.yaml"
-    f.write_text(f"rules:\n  - id: t\n    applies_to: !!python/object/apply:os.system ['touch {marker}']\n",
-                 encoding="utf-8")
+    f.write_text(
+        f"rules:\n  - id: t\n    applies_to: !!python/object/apply:os.system ['touch {marker}']\n", encoding="utf-8"
+    )
     report = lint_files([(f, "site")], CATALOGUE)
     assert "tag not allowed" in report.errors[0].message and not marker.exists()
 
@@ -320,45 +337,53 @@ def findings(condition: str):
     return threshold_findings(compile_condition(condition, CATALOGUE), CATALOGUE)
 
 
-@pytest.mark.parametrize("condition, words", [
-    ("wind_mean_ms > 5 and wind_mean_ms < 3", "'wind_mean_ms > 5' and 'wind_mean_ms < 3' cannot all hold"),
-    ("5 < wind_mean_ms < 3", "cannot all hold"),
-    ("wind_mean_ms > 5 kn and wind_mean_ms < 2 m/s", "cannot all hold"),          # 5 kn = 2.57 m/s
-    ("wind_mean_ms == 3 and wind_mean_ms != 3", "cannot all hold"),
-    ("not (wind_mean_ms > 5) and wind_mean_ms > 6", "cannot all hold"),
-    ("missing(wind_mean_ms) and wind_mean_ms > 3", "cannot all hold"),
-    ("fog and not fog", "cannot all hold"),
-    ("fog == true and fog == false", "cannot all hold"),
-    ("(wind_mean_ms > 5 or wind_gust_ms > 9) and wind_mean_ms < 3 and wind_gust_ms < 8", "no other alternative"),
-    ("abs(air_temp_rate_c_per_h) > 2 and air_temp_rate_c_per_h < 1 and air_temp_rate_c_per_h > -1",
-     "cannot all hold"),
-    ("wind_mean_ms < 0", "wind_mean_ms is always within 0..75 m/s"),
-    ("wind_gust_ms < -1 kn and fog", "can never be true"),
-    ("rel_humidity_pct > 100 %", "always within 0..100 %"),
-    ("reference_age_h < 0 h", "never below 0 h"),
-    ("reference_temp_delta_c < -1 degC", "absolute difference"),
-    ("sun_elevation_deg > 95 deg", "between -90 and +90"),
-    ("air_temp_c > 70 degC", "within -60..60"),
-    ("abs(air_temp_rate_c_per_h) < 0", "whatever the value of air_temp_rate_c_per_h"),
-    ("false", "always false"),
-    ("fog and 1 > 2", "always false"),
-])
+@pytest.mark.parametrize(
+    "condition, words",
+    [
+        ("wind_mean_ms > 5 and wind_mean_ms < 3", "'wind_mean_ms > 5' and 'wind_mean_ms < 3' cannot all hold"),
+        ("5 < wind_mean_ms < 3", "cannot all hold"),
+        ("wind_mean_ms > 5 kn and wind_mean_ms < 2 m/s", "cannot all hold"),  # 5 kn = 2.57 m/s
+        ("wind_mean_ms == 3 and wind_mean_ms != 3", "cannot all hold"),
+        ("not (wind_mean_ms > 5) and wind_mean_ms > 6", "cannot all hold"),
+        ("missing(wind_mean_ms) and wind_mean_ms > 3", "cannot all hold"),
+        ("fog and not fog", "cannot all hold"),
+        ("fog == true and fog == false", "cannot all hold"),
+        ("(wind_mean_ms > 5 or wind_gust_ms > 9) and wind_mean_ms < 3 and wind_gust_ms < 8", "no other alternative"),
+        (
+            "abs(air_temp_rate_c_per_h) > 2 and air_temp_rate_c_per_h < 1 and air_temp_rate_c_per_h > -1",
+            "cannot all hold",
+        ),
+        ("wind_mean_ms < 0", "wind_mean_ms is always within 0..75 m/s"),
+        ("wind_gust_ms < -1 kn and fog", "can never be true"),
+        ("rel_humidity_pct > 100 %", "always within 0..100 %"),
+        ("reference_age_h < 0 h", "never below 0 h"),
+        ("reference_temp_delta_c < -1 degC", "absolute difference"),
+        ("sun_elevation_deg > 95 deg", "between -90 and +90"),
+        ("air_temp_c > 70 degC", "within -60..60"),
+        ("abs(air_temp_rate_c_per_h) < 0", "whatever the value of air_temp_rate_c_per_h"),
+        ("false", "always false"),
+        ("fog and 1 > 2", "always false"),
+    ],
+)
 def test_conditions_that_can_never_be_true_are_errors(condition, words):
     found = findings(condition)
     assert found and found[0][0] == "error" and words in found[0][1], found
 
 
-@pytest.mark.parametrize("condition", [
-    "wind_mean_ms > 3 and wind_mean_ms < 5",
-    "not (wind_mean_ms > 5) and missing(wind_mean_ms)",     # true when the wind is missing
-    "wind_mean_ms != 3 and missing(wind_mean_ms)",          # NaN != 3 is true
-    "air_temp_rate_c_per_h < -50",                          # no known range
-    "rel_humidity_pct >= 100 %",
-    "wind_mean_ms <= 0",
-    "abs(air_temp_rate_c_per_h) > 2 and air_temp_rate_c_per_h < 0",
-    "wind_gust_ms > wind_mean_ms * 3 and wind_mean_ms > 1",
-    "not fog",
-])
+@pytest.mark.parametrize(
+    "condition",
+    [
+        "wind_mean_ms > 3 and wind_mean_ms < 5",
+        "not (wind_mean_ms > 5) and missing(wind_mean_ms)",  # true when the wind is missing
+        "wind_mean_ms != 3 and missing(wind_mean_ms)",  # NaN != 3 is true
+        "air_temp_rate_c_per_h < -50",  # no known range
+        "rel_humidity_pct >= 100 %",
+        "wind_mean_ms <= 0",
+        "abs(air_temp_rate_c_per_h) > 2 and air_temp_rate_c_per_h < 0",
+        "wind_gust_ms > wind_mean_ms * 3 and wind_mean_ms > 1",
+        "not fog",
+    ],
+)
 def test_satisfiable_conditions_are_not_errors(condition):
     assert all(severity != "error" for severity, *_ in findings(condition))
 
@@ -368,7 +393,7 @@ def test_a_dead_part_and_an_always_true_condition_are_warnings():
     assert dead[0] == "warning" and "'wind_mean_ms < 0' can never be true" in dead[1]
     (always,) = findings("not fog or fog")
     assert always[0] == "warning" and "always true" in always[1]
-    assert findings("wind_mean_ms >= 0") == []          # false when the wind is missing
+    assert findings("wind_mean_ms >= 0") == []  # false when the wind is missing
 
 
 # Property: lint never claims "never true" / "always true" for a condition that some row within
@@ -401,15 +426,22 @@ def conditions(draw, depth=0):
 
 
 def _rows():
-    values = {name: [math.nan, lo, hi, (lo + hi) / 2] + [-5, -2, -1, 0, 1, 2, 3, 5, 75, 100, 150, 0.5, 2.5]
-              for name, (lo, hi) in _NUMS.items()}
+    values = {
+        name: [math.nan, lo, hi, (lo + hi) / 2] + [-5, -2, -1, 0, 1, 2, 3, 5, 75, 100, 150, 0.5, 2.5]
+        for name, (lo, hi) in _NUMS.items()
+    }
     rng = np.random.default_rng(7)
     n = 4000
     cols = {}
-    for name, (lo, hi) in _NUMS.items():
+    for name, (_lo, _hi) in _NUMS.items():
         pool = np.array(values[name], dtype=float)
-        pool = pool[np.isnan(pool) | ((pool >= FEATURE_DOMAINS.get(name, (-np.inf, np.inf))[0])
-                                      & (pool <= FEATURE_DOMAINS.get(name, (-np.inf, np.inf, ""))[1]))]
+        pool = pool[
+            np.isnan(pool)
+            | (
+                (pool >= FEATURE_DOMAINS.get(name, (-np.inf, np.inf))[0])
+                & (pool <= FEATURE_DOMAINS.get(name, (-np.inf, np.inf, ""))[1])
+            )
+        ]
         cols[name] = rng.choice(pool, n)
     cols["fog"] = rng.random(n) < 0.5
     return cols
@@ -428,7 +460,7 @@ def test_never_true_and_always_true_claims_hold_on_rows_within_the_ranges(text):
             assert not values.any(), (text, message)
         elif "always true" in message:
             assert values.all(), (text, message)
-        else:   # a part that can never be true: check that part alone
+        else:  # a part that can never be true: check that part alone
             part = message.split("'")[1]
             alone = compile_condition(part, CATALOGUE).evaluate(ROWS, length=len(ROWS["fog"]))
             assert not alone.any(), (text, part)

@@ -22,9 +22,13 @@ from advisor.vocabulary import METHODS, VERDICT
 
 from .conftest import NIGHT_UTC, weather_table
 
-CTX = Context(site_name="Test Site (invented)", time_zone="America/Denver",
-              feed_source="/very/long/folder/name/that/goes/on/and/on/for/ever/and/ever/weather/mast_feed.csv",
-              is_demo=False, data_quality={})
+CTX = Context(
+    site_name="Test Site (invented)",
+    time_zone="America/Denver",
+    feed_source="/very/long/folder/name/that/goes/on/and/on/for/ever/and/ever/weather/mast_feed.csv",
+    is_demo=False,
+    data_quality={},
+)
 WINDY = dict(wind_mean_ms=6.0, wind_gust_ms=11.0)
 RAINY = dict(precip_mm_h=2.5, rel_humidity_pct=95.0)
 
@@ -50,7 +54,11 @@ def panel_lines(call, ctx=CTX, width=80, height=24, details=False) -> list[str]:
 
 def test_the_synthetic_weather_gives_the_calls_these_tests_need(calls):
     assert [calls[k].verdict for k in ("scan", "windy", "rainy", "stale")] == [
-        "scan", "postpone", "postpone", "undetermined"]
+        "scan",
+        "postpone",
+        "postpone",
+        "undetermined",
+    ]
 
 
 @pytest.mark.parametrize("kind", ["scan", "windy", "rainy", "stale"])
@@ -58,7 +66,7 @@ def test_compact_panel_fits_80_by_24_with_the_verdict_first_and_last(calls, kind
     call = calls[kind]
     lines = panel_lines(call)
     label = VERDICT[call.verdict].label
-    assert len(lines) <= 22, "\n".join(lines)     # 24 rows less the command line and the next prompt
+    assert len(lines) <= 22, "\n".join(lines)  # 24 rows less the command line and the next prompt
     assert all(len(line) <= 80 for line in lines)
     assert label in lines[1] and label in lines[-2]  # first line inside the border, and the last
     assert "Mean wind" in lines[1] or "Precipitation" in lines[1] or "old" in lines[1] or "µm" in lines[1]
@@ -91,8 +99,12 @@ def test_cause_line_shows_whatever_blocking_reasons_the_call_carries(calls):
 
     from advisor.decision import Reason
 
-    invented = Reason("unreachable_target", "both", "block", "Target 3 mm needs 150 µm; the dish holds 180 µm: "
-                      "no correction reaches it.")
+    invented = Reason(
+        "unreachable_target",
+        "both",
+        "block",
+        "Target 3 mm needs 150 µm; the dish holds 180 µm: no correction reaches it.",
+    )
     call = replace(calls["scan"], verdict="postpone", reasons=[invented, *calls["scan"].reasons])
     assert cause_line(call).startswith("Target 3 mm needs 150 µm")
     assert blocked_ids(call, "scan")[0] == "unreachable_target" and "unreachable target" in blocked_names(call, "scan")
@@ -117,13 +129,13 @@ def test_reasons_are_grouped_in_plain_words(calls):
     assert titles[:2] == ["Why scan now", "Why not the astronomical method"]
     assert [s.title for s in sections(calls["windy"])][0] == "Why postpone"
     compact = render_plain(calls["scan"], CTX)
-    assert "log-odds" not in compact and "[" not in compact.split("\n", 2)[2]   # no rule ids either
+    assert "log-odds" not in compact and "[" not in compact.split("\n", 2)[2]  # no rule ids either
 
 
 def test_details_keep_rule_ids_and_every_key_condition(calls):
     text = render_plain(calls["windy"], CTX, details=True)
     assert "[high_frequency_wind_limit]" in text and "Key conditions" in text and "Stow the antenna" in text
-    assert "reference age" in text and "2 h" in text          # durations as hours and minutes
+    assert "reference age" in text and "2 h" in text  # durations as hours and minutes
 
 
 def test_no_line_ends_with_a_number_whose_unit_starts_the_next(calls):
@@ -180,8 +192,17 @@ def test_tick_says_demo_data_for_the_demo_site_named_explicitly(capsys, tmp_path
 
     from advisor.io.bundled import demo_dir
 
-    status = main(["tick", "--site", str(demo_dir() / "larch_basin.yaml"), "--state-dir", str(tmp_path / "state"),
-                   "--at", "2026-12-01T03:00:00Z"])
+    status = main(
+        [
+            "tick",
+            "--site",
+            str(demo_dir() / "larch_basin.yaml"),
+            "--state-dir",
+            str(tmp_path / "state"),
+            "--at",
+            "2026-12-01T03:00:00Z",
+        ]
+    )
     assert status == 0
     doc = json.loads((tmp_path / "state" / "advisory.json").read_text())
     assert doc["demo_data"] is True and "DEMO DATA" in capsys.readouterr().out

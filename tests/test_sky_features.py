@@ -32,8 +32,9 @@ DEMO = Path(__file__).resolve().parents[1] / "example_weather"
 
 
 def _rows(site, times, **weather):
-    table = weather_table(end=times[-1], hours=(times[-1] - times[0]).total_seconds() / 3600 + 1, step_min=5.0,
-                          **weather)
+    table = weather_table(
+        end=times[-1], hours=(times[-1] - times[0]).total_seconds() / 3600 + 1, step_min=5.0, **weather
+    )
     frame = canonical_frame(table, FeedLayout(max_feed_age_min=15)).frame
     return row_features(frame, times, site, Registry.empty())
 
@@ -42,11 +43,15 @@ def _tracks(site, times):
     ra = np.array([c.ra_deg for c in site.calibrators])
     dec = np.array([c.dec_deg for c in site.calibrators])
     a = site.astronomical
-    track = source_track(times, ra, dec, site.latitude_deg, site.longitude_deg, a.duration_min,
-                         a.min_calibrator_elevation_deg)
+    track = source_track(
+        times, ra, dec, site.latitude_deg, site.longitude_deg, a.duration_min, a.min_calibrator_elevation_deg
+    )
     sep = sun_separation_over_deg(times, ra, dec, a.duration_min)
-    eligible = ((track.lowest_elevation_deg >= a.min_calibrator_elevation_deg)
-                & (track.highest_elevation_deg <= a.max_calibrator_elevation_deg) & (sep >= a.sun_avoidance_deg))
+    eligible = (
+        (track.lowest_elevation_deg >= a.min_calibrator_elevation_deg)
+        & (track.highest_elevation_deg <= a.max_calibrator_elevation_deg)
+        & (sep >= a.sun_avoidance_deg)
+    )
     return track, eligible
 
 
@@ -93,8 +98,11 @@ def test_gravity_residual_enters_holographys_budget_only(demo_site):
     """sigma_g = |a (sin E_s - sin E_c) + b (cos E_s - cos E_c)| with the site's a, b (Nikolic et al.
     2007's elevation dependence, one mode); holography's expected surface is the old budget and sigma_g
     in quadrature; the laser scans at the session's elevation and has no such term."""
-    site = replace(demo_site, astronomical=replace(demo_site.astronomical, gravity_sin_um=300.0, gravity_cos_um=-200.0),
-                   session=replace(demo_site.session, elevation_deg=75.0))
+    site = replace(
+        demo_site,
+        astronomical=replace(demo_site.astronomical, gravity_sin_um=300.0, gravity_cos_um=-200.0),
+        session=replace(demo_site.session, elevation_deg=75.0),
+    )
     none = replace(site, astronomical=replace(site.astronomical, gravity_sin_um=0.0, gravity_cos_um=0.0))
     times = pd.DatetimeIndex([NIGHT_UTC])
     with_g, without = _rows(site, times).iloc[0], _rows(none, times).iloc[0]
@@ -103,7 +111,8 @@ def test_gravity_residual_enters_holographys_budget_only(demo_site):
     assert with_g["calibrator_gravity_residual_um"] == pytest.approx(expected, rel=1e-9)
     assert expected > 20.0
     assert with_g["astronomical_surface_rms_um"] == pytest.approx(
-        float(root_sum_square(without["astronomical_surface_rms_um"], expected)), rel=1e-9)
+        float(root_sum_square(without["astronomical_surface_rms_um"], expected)), rel=1e-9
+    )
     np.testing.assert_equal(with_g["scan_surface_rms_um"], without["scan_surface_rms_um"])
     assert without["calibrator_gravity_residual_um"] == 0.0
 
@@ -138,16 +147,32 @@ def test_integration_time_factor_is_one_on_the_reference_night(demo_site):
     rho = atm.reference_pwv_mm / atm.water_scale_height_km
     from advisor.physics.moisture import saturation_vapour_pressure_hpa
 
-    rh = 100.0 * rho * (atm.reference_air_temp_c + 273.15) / 216.7 / saturation_vapour_pressure_hpa(atm.reference_air_temp_c)
+    rh = (
+        100.0
+        * rho
+        * (atm.reference_air_temp_c + 273.15)
+        / 216.7
+        / saturation_vapour_pressure_hpa(atm.reference_air_temp_c)
+    )
     times = pd.DatetimeIndex([NIGHT_UTC])
     targets = target_features(demo_site, 86.0)
-    ref = with_target(_rows(demo_site, times, air_temp_c=atm.reference_air_temp_c, temp_rate_c_per_h=0.0,
-                            rel_humidity_pct=rh), targets).iloc[0]
+    ref = with_target(
+        _rows(demo_site, times, air_temp_c=atm.reference_air_temp_c, temp_rate_c_per_h=0.0, rel_humidity_pct=rh),
+        targets,
+    ).iloc[0]
     assert ref["pwv_mm"] == pytest.approx(atm.reference_pwv_mm, rel=1e-6)
     assert ref["integration_time_factor"] == pytest.approx(1.0, abs=1e-3)
     assert ref["system_temp_k"] == pytest.approx(targets["reference_system_temp_k"], rel=1e-3)
-    wet = with_target(_rows(demo_site, times, air_temp_c=atm.reference_air_temp_c, temp_rate_c_per_h=0.0,
-                            rel_humidity_pct=min(100.0, 2 * rh)), targets).iloc[0]
+    wet = with_target(
+        _rows(
+            demo_site,
+            times,
+            air_temp_c=atm.reference_air_temp_c,
+            temp_rate_c_per_h=0.0,
+            rel_humidity_pct=min(100.0, 2 * rh),
+        ),
+        targets,
+    ).iloc[0]
     assert wet["integration_time_factor"] > 1.2
 
 
@@ -169,10 +194,24 @@ def test_elevation_option_reaches_the_features_and_bad_values_are_one_line(capsy
 def test_check_json_lists_every_new_feature(capsys):
     _, out, _ = run_cli(capsys, "check", "--json")
     features = json.loads(out)["features"]
-    for name in ("water_vapour_density_gm3", "pwv_mm", "zenith_opacity", "transmission", "integration_time_factor",
-                 "system_temp_k", "frost_point_c", "frost_point_spread_c", "rel_humidity_ice_pct", "sun_state",
-                 "calibrator_sun_separation_deg", "calibrators_sun_blocked", "calibrator_gravity_residual_um",
-                 "session_elevation_deg", "pointing_efficiency", "sun_avoidance_deg"):
+    for name in (
+        "water_vapour_density_gm3",
+        "pwv_mm",
+        "zenith_opacity",
+        "transmission",
+        "integration_time_factor",
+        "system_temp_k",
+        "frost_point_c",
+        "frost_point_spread_c",
+        "rel_humidity_ice_pct",
+        "sun_state",
+        "calibrator_sun_separation_deg",
+        "calibrators_sun_blocked",
+        "calibrator_gravity_residual_um",
+        "session_elevation_deg",
+        "pointing_efficiency",
+        "sun_avoidance_deg",
+    ):
         assert name in features and features[name] is not None, name
 
 
@@ -190,20 +229,42 @@ def test_key_conditions_show_the_sky_and_frost_only_when_cold(call_for):
 def test_rules_features_lists_the_sky(capsys):
     status, out, _ = run_cli(capsys, "rules", "features")
     assert status == 0
-    for name in ("pwv_mm", "zenith_opacity", "integration_time_factor", "frost_point_spread_c",
-                 "calibrator_sun_separation_deg", "session_elevation_deg"):
+    for name in (
+        "pwv_mm",
+        "zenith_opacity",
+        "integration_time_factor",
+        "frost_point_spread_c",
+        "calibrator_sun_separation_deg",
+        "session_elevation_deg",
+    ):
         assert name in out
 
 
 def test_replay_cache_is_keyed_by_the_sessions_elevation(capsys):
     """The calibrator choice depends on the session's elevation: a cached replay at one elevation is
     not reused at another (same summary as a fresh computation)."""
-    base = ["replay", "--site", str(DEMO / "larch_basin.yaml"), "--feed", str(DEMO / "larch_basin_archive_sample.csv"),
-            "--references", str(DEMO / "larch_basin_archive_references.csv"), "--freq", "86",
-            "--from", "2026-01-10T00:00:00Z", "--to", "2026-01-20T00:00:00Z", "--json"]
+    base = [
+        "replay",
+        "--site",
+        str(DEMO / "larch_basin.yaml"),
+        "--feed",
+        str(DEMO / "larch_basin_archive_sample.csv"),
+        "--references",
+        str(DEMO / "larch_basin_archive_references.csv"),
+        "--freq",
+        "86",
+        "--from",
+        "2026-01-10T00:00:00Z",
+        "--to",
+        "2026-01-20T00:00:00Z",
+        "--json",
+    ]
     docs = {}
-    for label, extra in (("low", ["--elevation", "20"]), ("high", ["--elevation", "85"]),
-                         ("high_fresh", ["--elevation", "85", "--no-cache"])):
+    for label, extra in (
+        ("low", ["--elevation", "20"]),
+        ("high", ["--elevation", "85"]),
+        ("high_fresh", ["--elevation", "85", "--no-cache"]),
+    ):
         status, out, _ = run_cli(capsys, *base, *extra)
         assert status == 0
         docs[label] = json.loads(out)["hours"]
@@ -233,7 +294,7 @@ def test_a_year_at_19_north_never_points_near_the_sun(demo_site):
     old_ok = usable_now[rows, old] & (minutes[rows, old] >= 45.0)
     old_sep = sun_separation_deg(times, ra, dec)[rows, old]
     sun_up = solar_position(times, 19.0, 100.0)[0] > 0.0
-    assert (old_ok & sun_up & (old_sep < 5.0)).sum() / 6.0 > 40.0          # hours
+    assert (old_ok & sun_up & (old_sep < 5.0)).sum() / 6.0 > 40.0  # hours
     track, _ = _tracks(site, times)
     assert (old_ok & (track.highest_elevation_deg[rows, old] > 80.0)).sum() / 6.0 > 200.0
 

@@ -32,7 +32,7 @@ from .conftest import weather_table
 
 # --------------------------------------------------------------------------- 1. the Sun
 
-SUN_CASE_UTC = pd.Timestamp("2026-10-09T01:10:00Z")   # 19 N, 100 E: Sun 26 deg up, 0.3 deg from 3C 279
+SUN_CASE_UTC = pd.Timestamp("2026-10-09T01:10:00Z")  # 19 N, 100 E: Sun 26 deg up, 0.3 deg from 3C 279
 
 
 @pytest.fixture()
@@ -59,8 +59,7 @@ def _astropy_sun_separation_deg(times, ra_deg, dec_deg):
 
 
 def _dry_day(end, **kw):
-    return weather_table(end=end, air_temp_c=18.0, rel_humidity_pct=25.0, solar_wm2=300.0,
-                         temp_rate_c_per_h=0.0, **kw)
+    return weather_table(end=end, air_temp_c=18.0, rel_humidity_pct=25.0, solar_wm2=300.0, temp_rate_c_per_h=0.0, **kw)
 
 
 @pytest.mark.filterwarnings("ignore")
@@ -71,9 +70,10 @@ def test_a_calibrator_near_the_sun_is_never_chosen(call_for, low_latitude_site):
     call = call_for(_dry_day(SUN_CASE_UTC), at=SUN_CASE_UTC, registry=Registry.empty(), site=low_latitude_site)
     site = low_latitude_site
     cal = {c.name: c for c in site.calibrators}
-    ref_3c279 = _astropy_sun_separation_deg([SUN_CASE_UTC.tz_localize(None)], cal["3C 279"].ra_deg,
-                                            cal["3C 279"].dec_deg)[0]
-    assert ref_3c279 < 1.0                                 # astropy: the Sun is on top of 3C 279
+    ref_3c279 = _astropy_sun_separation_deg(
+        [SUN_CASE_UTC.tz_localize(None)], cal["3C 279"].ra_deg, cal["3C 279"].dec_deg
+    )[0]
+    assert ref_3c279 < 1.0  # astropy: the Sun is on top of 3C 279
     assert call.verdict == "astronomical", [r.message for r in call.reasons]
     chosen = cal[call.calibrator_name]
     assert chosen.name != "3C 279"
@@ -99,8 +99,12 @@ def test_a_day_of_choices_at_19_north_keeps_clear_of_the_sun(demo_site, default_
     cal = {c.name: c for c in low_latitude_site.calibrators}
     chosen = np.flatnonzero(names != "")
     assert chosen.size > 100
-    seps = np.array([_astropy_sun_separation_deg([times[i].tz_localize(None)], cal[names[i]].ra_deg,
-                                                 cal[names[i]].dec_deg)[0] for i in chosen[::6]])
+    seps = np.array(
+        [
+            _astropy_sun_separation_deg([times[i].tz_localize(None)], cal[names[i]].ra_deg, cal[names[i]].dec_deg)[0]
+            for i in chosen[::6]
+        ]
+    )
     assert seps.min() >= 30.0 - 0.02
 
 
@@ -149,13 +153,14 @@ def test_humid_and_dry_nights_at_116_ghz(call_for, demo_site):
         pressure = 893.327  # P.835 at 1050 m, as itur.models.itu835.standard_pressure gives it
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            ref_db = gaseous_attenuation_slant_path(116.0, 90.0, rho, pressure - rho * t_k / 216.7, t_k,
-                                                    V_t=f["pwv_mm"], h=1.05).value
+            ref_db = gaseous_attenuation_slant_path(
+                116.0, 90.0, rho, pressure - rho * t_k / 216.7, t_k, V_t=f["pwv_mm"], h=1.05
+            ).value
         assert f["zenith_opacity"] == pytest.approx(ref_db / (10.0 / np.log(10.0)), rel=2e-4)
     dry, humid = calls["dry"], calls["humid"]
     assert dry.features["zenith_opacity"] == pytest.approx(0.57, abs=0.01)
     assert humid.features["zenith_opacity"] == pytest.approx(0.99, abs=0.01)
-    assert dry.features["integration_time_factor"] == pytest.approx(1.0, abs=1e-3)   # it is the reference
+    assert dry.features["integration_time_factor"] == pytest.approx(1.0, abs=1e-3)  # it is the reference
     assert 5.5 < humid.features["integration_time_factor"] < 7.0
     # a correction on the dry night (which one depends on the session: at 116 GHz holography's
     # better surface pays back its extra half hour within the demo's 4 h session)
@@ -164,8 +169,11 @@ def test_humid_and_dry_nights_at_116_ghz(call_for, demo_site):
     for method in ("scan", "astronomical"):
         assert "atmosphere_too_costly" in humid.candidates[method]["blocked_by"]
     reason = next(r for r in humid.reasons if r.rule == "atmosphere_too_costly")
-    for text in ("PWV 35.0 mm", f"{humid.features['zenith_opacity']:.2f} nepers",
-                 f"{humid.features['integration_time_factor']:.1f}×"):
+    for text in (
+        "PWV 35.0 mm",
+        f"{humid.features['zenith_opacity']:.2f} nepers",
+        f"{humid.features['integration_time_factor']:.1f}×",
+    ):
         assert text in reason.message, reason.message
 
 
@@ -244,7 +252,9 @@ def test_polar_sunrise_at_70_north(call_for, arctic_site):
     at = pd.Timestamp("2026-05-16T10:00:00Z")
     call = call_for(weather_table(end=at, solar_wm2=150.0), at=at, site=arctic_site)
     f = call.features
-    guess = np.array([np.datetime64(at.tz_localize(None)) - np.timedelta64(int(f["hours_since_sunrise"] * 3.6e6), "ms")])
+    guess = np.array(
+        [np.datetime64(at.tz_localize(None)) - np.timedelta64(int(f["hours_since_sunrise"] * 3.6e6), "ms")]
+    )
     ref, bracketed = _astropy_crossings(guess, True, 70.0, -114.0)
     assert bracketed.all()
     ref_hours = (np.datetime64(at.tz_localize(None), "ms") - ref[0]).astype(float) / 3.6e6

@@ -19,13 +19,24 @@ ROOT = Path(__file__).resolve().parent.parent
 T0 = pd.Timestamp("2026-11-25T19:00:00Z")
 
 
-def _run(sequence, confirm=advisory.Confirm(3, 15.0), every_min=5.0):
+CONFIRM = advisory.Confirm(3, 15.0)
+
+
+def _run(sequence, confirm=CONFIRM, every_min=5.0):
     """Feed (verdict, blocked_by) pairs to the tracker; the kinds it announces."""
     state, kinds = None, []
     for k, (verdict, blocked_by) in enumerate(sequence):
         now = advisory.utc_text((T0 + pd.Timedelta(minutes=every_min * k)).to_pydatetime())
-        change = advisory.track_change(state, verdict, (), now, 6, False,
-                                       at_once=advisory.switches_at_once(state, verdict, blocked_by), confirm=confirm)
+        change = advisory.track_change(
+            state,
+            verdict,
+            (),
+            now,
+            6,
+            False,
+            at_once=advisory.switches_at_once(state, verdict, blocked_by),
+            confirm=confirm,
+        )
         kinds.append(change.kind)
         state = change.state
     return kinds, state
@@ -73,12 +84,12 @@ def test_offline_spans_absorb_short_runs_but_not_forced_ones():
     verdict = np.array(["scan"] * 4 + ["astronomical"] * 2 + ["scan"] * 4 + ["postpone"] * 2, dtype=object)
     hard = {"scan": np.zeros(12, dtype=bool), "astronomical": np.zeros(12, dtype=bool)}
     out = stabilise(times, verdict, changes_at_once(verdict, hard), 15.0)
-    assert list(out) == ["scan"] * 12             # 10 min of holography, 10 min of postpone: absorbed
-    hard["scan"][10:] = True                      # postpone because the laser is blocked: at once
+    assert list(out) == ["scan"] * 12  # 10 min of holography, 10 min of postpone: absorbed
+    hard["scan"][10:] = True  # postpone because the laser is blocked: at once
     forced = stabilise(times, verdict, changes_at_once(verdict, hard), 15.0)
     assert list(forced[10:]) == ["postpone"] * 2
     longer = stabilise(times, verdict, changes_at_once(verdict, hard), 5.0)
-    assert list(longer) == list(verdict)          # with a 5-min confirmation every run stands
+    assert list(longer) == list(verdict)  # with a 5-min confirmation every run stands
 
 
 def test_demo_afternoon_sends_at_most_a_few_notices_and_the_week_fewer_than_without_confirmation():
@@ -86,8 +97,13 @@ def test_demo_afternoon_sends_at_most_a_few_notices_and_the_week_fewer_than_with
     notices = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(notices)
     zone = "America/Denver"
-    afternoon = list(notices.tick_calls(5.0, pd.Timestamp("2026-11-25 12:00", tz=zone).tz_convert("UTC"),
-                                        pd.Timestamp("2026-11-25 15:00", tz=zone).tz_convert("UTC")))
+    afternoon = list(
+        notices.tick_calls(
+            5.0,
+            pd.Timestamp("2026-11-25 12:00", tz=zone).tz_convert("UTC"),
+            pd.Timestamp("2026-11-25 15:00", tz=zone).tz_convert("UTC"),
+        )
+    )
     confirm = advisory.Confirm(3, 15.0)
     assert notices.count_notices(afternoon, confirm) <= 3
     week = list(notices.tick_calls(5.0))

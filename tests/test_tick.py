@@ -29,8 +29,9 @@ AT = "2026-01-16T04:00:00Z"  # NIGHT_UTC: a calm night four hours after sunset â
 ROOT = Path(__file__).resolve().parent.parent
 
 
-def make_site(folder: Path, tick: str = "", name: str = "Larch Basin Observatory (test copy, invented)",
-              **weather) -> Path:
+def make_site(
+    folder: Path, tick: str = "", name: str = "Larch Basin Observatory (test copy, invented)", **weather
+) -> Path:
     """A site file with a synthetic canonical feed and a reference scan two hours before ``AT``."""
     weather_table(**weather).to_csv(folder / "feed.csv", index=False)
     ref_time = NIGHT_UTC - pd.Timedelta(hours=2)
@@ -42,8 +43,9 @@ def make_site(folder: Path, tick: str = "", name: str = "Larch Basin Observatory
         "feed:\n  path: feed.csv\nreferences:\n  path: refs.csv\n"
         # a short session: the quick laser scan is worth more than holography's better surface
         "thresholds:\n  session_hours: 2\n"
-        "calibrators:\n  - {name: \"3C 84\", ra: \"03h19m48.16s\", dec: \"+41d30m42.1s\"}\n"
-        "  - {name: \"0716+714\", ra: \"07h21m53.45s\", dec: \"+71d20m36.4s\"}\n" + tick)
+        'calibrators:\n  - {name: "3C 84", ra: "03h19m48.16s", dec: "+41d30m42.1s"}\n'
+        '  - {name: "0716+714", ra: "07h21m53.45s", dec: "+71d20m36.4s"}\n' + tick
+    )
     return site
 
 
@@ -112,8 +114,15 @@ def test_first_tick_writes_every_file_and_announces(capsys, site, state):
     assert line["verdict"] == "scan" and line["change"] == "first" and line["issued_utc"] == doc["issued_utc"]
     st = json.loads((state / "state.json").read_text())
     assert st["verdict"] == "scan" and st["issued_utc"] == doc["issued_utc"]
-    assert sorted(p.name for p in state.iterdir()) == [   # .history.jsonl.lock: the history writers' lock
-        ".history.jsonl.lock", "advisory.html", "advisory.json", "advisory.txt", "history.jsonl", "lock", "state.json"]
+    assert sorted(p.name for p in state.iterdir()) == [  # .history.jsonl.lock: the history writers' lock
+        ".history.jsonl.lock",
+        "advisory.html",
+        "advisory.json",
+        "advisory.txt",
+        "history.jsonl",
+        "lock",
+        "state.json",
+    ]
 
 
 def test_unchanged_verdict_is_silent_and_keeps_changed_since(capsys, site, state):
@@ -148,8 +157,10 @@ def test_json_output_on_change(capsys, site, state):
 
 def test_reason_changes_announced_only_with_notify_on_reasons(capsys, tmp_path, state):
     rule = tmp_path / "gusty.yaml"
-    rule.write_text("rules:\n  - id: test_gusty\n    applies_to: scan\n    condition: wind_gust_ms > 2\n"
-                    "    effect: warn\n    message: gusts {wind_gust_ms:.1f} m/s\n")
+    rule.write_text(
+        "rules:\n  - id: test_gusty\n    applies_to: scan\n    condition: wind_gust_ms > 2\n"
+        "    effect: warn\n    message: gusts {wind_gust_ms:.1f} m/s\n"
+    )
     site = make_site(tmp_path, wind_gust_ms=1.5)
     assert tick(capsys, site, state, "--rules", str(rule))[0] == 0
     make_site(tmp_path, wind_gust_ms=2.5)
@@ -195,13 +206,16 @@ def test_missing_feed_gives_an_undetermined_advisory_saying_why(capsys, site, st
     assert status == 12 and "empty" in json.loads((state / "advisory.json").read_text())["reasons"][0]["message"]
 
 
-@pytest.mark.parametrize("garbage", [
-    b'{"schema": 1, "verdict": "scan", "reasons": [], "since_u',   # truncated mid-write
-    b"\x00\x00\x00\x00",                                            # zeroed blocks after a crash
-    b'{"schema": 1, "verdict": "maybe", "reasons": [], "since_utc": "2026-01-01T00:00:00Z", '
-    b'"issued_utc": "2026-01-01T00:00:00Z", "undetermined_ticks": 0}',  # parses, but invalid
-    b"[1, 2, 3]",
-])
+@pytest.mark.parametrize(
+    "garbage",
+    [
+        b'{"schema": 1, "verdict": "scan", "reasons": [], "since_u',  # truncated mid-write
+        b"\x00\x00\x00\x00",  # zeroed blocks after a crash
+        b'{"schema": 1, "verdict": "maybe", "reasons": [], "since_utc": "2026-01-01T00:00:00Z", '
+        b'"issued_utc": "2026-01-01T00:00:00Z", "undetermined_ticks": 0}',  # parses, but invalid
+        b"[1, 2, 3]",
+    ],
+)
 def test_corrupted_state_is_set_aside_and_run_starts_clean(capsys, site, state, garbage):
     tick(capsys, site, state)
     (state / "state.json").write_bytes(garbage)
@@ -247,18 +261,23 @@ def _notify_script(tmp_path: Path) -> Path:
         "rec = {'argv': sys.argv[1:], 'stdin': sys.stdin.read(),\n"
         "       'env': {k: v for k, v in os.environ.items() if k.startswith('ADVISOR_')}}\n"
         "with open(os.path.join(os.path.dirname(sys.argv[0]), 'calls.jsonl'), 'a') as fh:\n"
-        "    fh.write(json.dumps(rec) + '\\n')\n")
+        "    fh.write(json.dumps(rec) + '\\n')\n"
+    )
     return script
 
 
 def test_notify_command_runs_on_change_with_argv_and_advisory_on_stdin(capsys, tmp_path, state):
     script = _notify_script(tmp_path)
     nasty = "$(touch pwned); `touch pwned2` && rm -rf / #"
-    site = make_site(tmp_path, tick="tick:\n  notify_command: [" + ", ".join(
-        json.dumps(a) for a in (sys.executable, str(script), nasty, "two words")) + "]\n")
+    site = make_site(
+        tmp_path,
+        tick="tick:\n  notify_command: ["
+        + ", ".join(json.dumps(a) for a in (sys.executable, str(script), nasty, "two words"))
+        + "]\n",
+    )
     tick(capsys, site, state)
-    tick(capsys, site, state)                      # unchanged: no notification
-    tick(capsys, site, state, "--freq", "300")     # changed
+    tick(capsys, site, state)  # unchanged: no notification
+    tick(capsys, site, state, "--freq", "300")  # changed
     calls = [json.loads(x) for x in (tmp_path / "calls.jsonl").read_text().splitlines()]
     assert len(calls) == 2
     assert all(c["argv"] == [nasty, "two words"] for c in calls)  # passed literally, no shell
@@ -270,8 +289,11 @@ def test_notify_command_runs_on_change_with_argv_and_advisory_on_stdin(capsys, t
 
 def test_notify_json_format(capsys, tmp_path, state):
     script = _notify_script(tmp_path)
-    site = make_site(tmp_path, tick=f"tick:\n  notify_format: json\n  notify_command: [{json.dumps(sys.executable)}, "
-                                    f"{json.dumps(str(script))}]\n")
+    site = make_site(
+        tmp_path,
+        tick=f"tick:\n  notify_format: json\n  notify_command: [{json.dumps(sys.executable)}, "
+        f"{json.dumps(str(script))}]\n",
+    )
     tick(capsys, site, state)
     [call] = [json.loads(x) for x in (tmp_path / "calls.jsonl").read_text().splitlines()]
     doc = json.loads(call["stdin"])
@@ -281,8 +303,11 @@ def test_notify_json_format(capsys, tmp_path, state):
 def test_hung_notify_command_is_killed_at_its_timeout(capsys, tmp_path, state):
     pidfile = tmp_path / "child.pid"
     code = f"import os, time; open({str(pidfile)!r}, 'w').write(str(os.getpid())); time.sleep(60)"
-    site = make_site(tmp_path, tick=f"tick:\n  notify_timeout_s: 0.5\n  notify_command: [{json.dumps(sys.executable)}, "
-                                    f"'-c', {json.dumps(code)}]\n")
+    site = make_site(
+        tmp_path,
+        tick=f"tick:\n  notify_timeout_s: 0.5\n  notify_command: [{json.dumps(sys.executable)}, "
+        f"'-c', {json.dumps(code)}]\n",
+    )
     t0 = time.monotonic()
     status, out, err = tick(capsys, site, state)
     assert time.monotonic() - t0 < 8
@@ -292,7 +317,9 @@ def test_hung_notify_command_is_killed_at_its_timeout(capsys, tmp_path, state):
 
 
 def test_failing_notify_command_is_a_warning_not_a_failure(capsys, tmp_path, state):
-    site = make_site(tmp_path, tick=f"tick:\n  notify_command: [{json.dumps(sys.executable)}, '-c', 'raise SystemExit(3)']\n")
+    site = make_site(
+        tmp_path, tick=f"tick:\n  notify_command: [{json.dumps(sys.executable)}, '-c', 'raise SystemExit(3)']\n"
+    )
     status, out, err = tick(capsys, site, state)
     assert status == 0 and "exited with status 3" in err and (state / "advisory.json").exists()
     site = make_site(tmp_path, tick="tick:\n  notify_command: [/nonexistent/notify-ops]\n")
@@ -308,7 +335,7 @@ def test_history_rotates_at_the_configured_size(capsys, tmp_path, state):
     assert rotated and current
     assert (state / "history.jsonl").stat().st_size <= 1000
     assert (state / "history.jsonl.1").stat().st_size <= 1000
-    written = [h["written_utc"] for h in rotated + current]   # the machine's clock (issued is --at's)
+    written = [h["written_utc"] for h in rotated + current]  # the machine's clock (issued is --at's)
     assert written == sorted(written) and len(set(written)) == len(written)
 
 
@@ -336,18 +363,21 @@ def test_site_name_is_escaped_in_the_html_page(capsys, tmp_path, state):
     assert "<b>Basin</b>" not in page and "Larch &lt;b&gt;Basin&lt;/b&gt; {test} &amp; co" in page
 
 
-@pytest.mark.parametrize("section, expected", [
-    ("tick:\n  notify_command: mail -s advice ops\n", "tick.notify_command: expected a list"),
-    ("tick:\n  dead_feed_ticks: 2.5\n", "tick.dead_feed_ticks: expected a whole number"),
-    ("tick:\n  history_max_bytes: 10\n", "tick.history_max_bytes: 10 is outside"),
-    ("tick:\n  notify_timeout: 5\n", "did you mean 'notify_timeout_s'"),
-    ("tick:\n  notify_format: xml\n", "unknown format"),
-])
+@pytest.mark.parametrize(
+    "section, expected",
+    [
+        ("tick:\n  notify_command: mail -s advice ops\n", "tick.notify_command: expected a list"),
+        ("tick:\n  dead_feed_ticks: 2.5\n", "tick.dead_feed_ticks: expected a whole number"),
+        ("tick:\n  history_max_bytes: 10\n", "tick.history_max_bytes: 10 is outside"),
+        ("tick:\n  notify_timeout: 5\n", "did you mean 'notify_timeout_s'"),
+        ("tick:\n  notify_format: xml\n", "unknown format"),
+    ],
+)
 def test_bad_tick_section_is_a_one_line_site_error(capsys, tmp_path, state, section, expected):
     site = make_site(tmp_path, tick=section)
     status, out, err = tick(capsys, site, state)
     assert status == 2 and err.startswith("advisor: error: ") and expected in err and err.count("\n") == 1
-    doc = json.loads((state / "advisory.json").read_text())   # never an old call left standing
+    doc = json.loads((state / "advisory.json").read_text())  # never an old call left standing
     assert doc["verdict"] == "undetermined" and expected in doc["reasons"][0]["message"]
 
 
@@ -383,10 +413,12 @@ def test_track_change_rules():
 
 def test_notify_output_goes_to_its_own_log_not_into_cron_mail(capfd, tmp_path, state):
     code = "import sys; sys.stdin.read(); print('NOTIFY-OUT'); print('NOTIFY-ERR', file=sys.stderr)"
-    site = make_site(tmp_path, tick=f"tick:\n  notify_command: [{json.dumps(sys.executable)}, '-c', {json.dumps(code)}]\n")
+    site = make_site(
+        tmp_path, tick=f"tick:\n  notify_command: [{json.dumps(sys.executable)}, '-c', {json.dumps(code)}]\n"
+    )
     assert main(tick_argv(site, state)) == 0
-    out, err = capfd.readouterr()                  # what cron would mail: the advisory once, nothing of notify's
-    assert "NOTIFY" not in out + err and out.count("VERDICT: SCAN NOW") == 2   # verdict first and last line
+    out, err = capfd.readouterr()  # what cron would mail: the advisory once, nothing of notify's
+    assert "NOTIFY" not in out + err and out.count("VERDICT: SCAN NOW") == 2  # verdict first and last line
     log = (state / "notify.log").read_text()
     assert log.startswith("--- 2026-01-16T04:00:00.000Z ") and "NOTIFY-OUT" in log and "NOTIFY-ERR" in log
 
@@ -394,7 +426,7 @@ def test_notify_output_goes_to_its_own_log_not_into_cron_mail(capfd, tmp_path, s
 def test_at_drives_the_advisory_clocks(capsys, tmp_path, state):
     site = make_site(tmp_path)
     tick(capsys, site, state, at="2026-01-16T03:00:00Z")
-    tick(capsys, site, state, "--freq", "300", at="2026-01-16T03:30:00Z")   # the verdict changes here
+    tick(capsys, site, state, "--freq", "300", at="2026-01-16T03:30:00Z")  # the verdict changes here
     tick(capsys, site, state, "--freq", "300", at="2026-01-16T04:00:00Z")
     doc = json.loads((state / "advisory.json").read_text())
     assert doc["issued_utc"] == "2026-01-16T04:00:00.000Z" and doc["changed_since"] == "2026-01-16T03:30:00.000Z"

@@ -43,6 +43,7 @@ def primed(tmp_path, capsys):
 
 # --- a run that fails publishes an undetermined advisory ---------------------------------------
 
+
 def test_an_internal_error_replaces_the_scan_with_an_undetermined_advisory(primed, capsys, monkeypatch):
     site, state = primed
 
@@ -76,12 +77,15 @@ def test_an_internal_error_replaces_the_scan_with_an_undetermined_advisory(prime
 def test_a_broken_rule_file_replaces_the_scan_and_exits_2(primed, capsys, tmp_path):
     site, state = primed
     rules = tmp_path / "broken.yaml"
-    rules.write_text("rules:\n  - id: x\n    applies_to: scan\n    condition: wind_mean_ms >\n"
-                     "    effect: block\n    message: m\n")
+    rules.write_text(
+        "rules:\n  - id: x\n    applies_to: scan\n    condition: wind_mean_ms >\n    effect: block\n    message: m\n"
+    )
     status, out, err = run_cli(capsys, *tick_argv(site, state, "--rules", str(rules)))
     assert status == 2 and out == "" and err.startswith("advisor: error: ") and len(err.splitlines()) == 1
     doc = _advisory(state)
-    assert doc["verdict"] == "undetermined" and doc["exit_status"] == 2 and "broken.yaml" in doc["reasons"][0]["message"]
+    assert (
+        doc["verdict"] == "undetermined" and doc["exit_status"] == 2 and "broken.yaml" in doc["reasons"][0]["message"]
+    )
 
 
 def test_a_site_file_that_cannot_be_read_still_withdraws_the_scan(primed, capsys):
@@ -107,6 +111,7 @@ def test_when_even_the_failure_advisory_cannot_be_built_the_old_one_is_withdrawn
 
 # --- all-or-nothing commit, true messages ------------------------------------------------------
 
+
 class _FailingReplace:
     """``os.replace`` that fails for chosen (source-name-prefix, destination-name) pairs."""
 
@@ -130,8 +135,8 @@ def test_a_rename_failing_mid_commit_puts_every_file_back(primed, capsys, monkey
     [line] = err.splitlines()
     assert "advisory.html: cannot rename into place: Input/output error" in line
     assert "every file was put back: the previous advisory is unchanged" in line
-    assert _snapshot(state) == before                # advisory.json (renamed first) is back too
-    assert len(history(state)) == 1                  # no line for an advisory never published
+    assert _snapshot(state) == before  # advisory.json (renamed first) is back too
+    assert len(history(state)) == 1  # no line for an advisory never published
     assert not list(state.glob(".*.tmp")) and not (state / statedir.JOURNAL_FILE).exists()
 
 
@@ -189,11 +194,16 @@ def _env(**extra) -> dict:
 def test_a_run_killed_between_renames_is_rolled_back_by_the_next_run(primed, capsys):
     site, state = primed
     before = _snapshot(state)
-    proc = subprocess.run([sys.executable, "-m", "advisor", *tick_argv(site, state, "--freq", "300")],
-                          env=_env(**{statedir.TEST_KILL_ENV: "2"}), capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, "-m", "advisor", *tick_argv(site, state, "--freq", "300")],
+        env=_env(**{statedir.TEST_KILL_ENV: "2"}),
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode == -signal.SIGKILL, proc.stderr
     assert (state / statedir.JOURNAL_FILE).exists()
-    assert json.loads((state / "advisory.json").read_text())["verdict"] != "scan"   # half published
+    assert json.loads((state / "advisory.json").read_text())["verdict"] != "scan"  # half published
     with statedir.locked(state, 1.0):
         warnings = statedir.recover(state)
     assert any("rolled back" in w for w in warnings) and not any("except" in w for w in warnings)
@@ -206,8 +216,13 @@ def test_a_run_killed_between_renames_is_rolled_back_by_the_next_run(primed, cap
 def test_a_first_run_killed_mid_publish_leaves_no_half_advisory(tmp_path, capsys):
     site = make_site(tmp_path)
     state = tmp_path / "state"
-    proc = subprocess.run([sys.executable, "-m", "advisor", *tick_argv(site, state)],
-                          env=_env(**{statedir.TEST_KILL_ENV: "1"}), capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, "-m", "advisor", *tick_argv(site, state)],
+        env=_env(**{statedir.TEST_KILL_ENV: "1"}),
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert proc.returncode == -signal.SIGKILL
     assert (state / "advisory.json").exists()
     status, out, err = run_cli(capsys, *tick_argv(site, state))
@@ -217,6 +232,7 @@ def test_a_first_run_killed_mid_publish_leaves_no_half_advisory(tmp_path, capsys
 
 
 # --- hostile state folders and paths -----------------------------------------------------------
+
 
 @pytest.mark.parametrize("name", ["state.json", "history.jsonl", statedir.JOURNAL_FILE])
 def test_a_fifo_in_the_state_dir_never_blocks(primed, capsys, name):
@@ -229,10 +245,10 @@ def test_a_fifo_in_the_state_dir_never_blocks(primed, capsys, name):
         status, out, err = run_cli(capsys, *tick_argv(site, state, "--freq", "300"))
     finally:
         signal.alarm(0)
-    if name == "history.jsonl":    # nothing can be appended to a pipe: refused, nothing changed
+    if name == "history.jsonl":  # nothing can be appended to a pipe: refused, nothing changed
         assert status == statedir.EXIT_STATE_DIR and "named pipe" in err and len(err.splitlines()) == 1
         assert _advisory(state)["verdict"] == "scan"
-    else:                          # our own file turned into garbage: set aside / ignored, run goes on
+    else:  # our own file turned into garbage: set aside / ignored, run goes on
         assert status in (10, 11, 12) and _advisory(state)["verdict"] != "scan", err
 
 
@@ -243,19 +259,24 @@ def _hung(*_):
 def test_a_huge_state_file_is_set_aside_without_being_read(primed, capsys):
     site, state = primed
     with open(state / "state.json", "wb") as fh:
-        fh.truncate(10 * 1024**3)                     # a 10 GB sparse file
+        fh.truncate(10 * 1024**3)  # a 10 GB sparse file
     status, out, err = run_cli(capsys, *tick_argv(site, state))
     assert status == 0 and "corrupted or truncated state file" in err and "above the" in err
     assert (state / "state.json").stat().st_size < 10_000
 
 
-@pytest.mark.parametrize("path, words", [
-    ("/x" * 3000, "above the system's limit"),
-    ("/tmp/" + "n" * 300 + "/state", "a name in the state dir path is 300 bytes long"),
-    ("/tmp/" + "/".join(["d" * 200] * 20) + "/" + "x" * 35,        # 4,060 bytes: no room for the temp names
-     "with the names of the files written in it"),
-    ("state\0dir", "nul character"),
-])
+@pytest.mark.parametrize(
+    "path, words",
+    [
+        ("/x" * 3000, "above the system's limit"),
+        ("/tmp/" + "n" * 300 + "/state", "a name in the state dir path is 300 bytes long"),
+        (
+            "/tmp/" + "/".join(["d" * 200] * 20) + "/" + "x" * 35,  # 4,060 bytes: no room for the temp names
+            "with the names of the files written in it",
+        ),
+        ("state\0dir", "nul character"),
+    ],
+)
 def test_impossible_state_dir_paths_are_one_line_exit_2(capsys, tmp_path, path, words):
     site = make_site(tmp_path)
     status, out, err = run_cli(capsys, "tick", "--site", site, "--at", AT, "--state-dir", path)

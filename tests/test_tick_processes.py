@@ -94,8 +94,13 @@ def test_twenty_concurrent_ticks_serialise_cleanly(tmp_path):
     outdir.mkdir()
     # alternate verdicts (scan at 86 GHz, not at 300 GHz), so the advisory keeps changing
     jobs = [tick_argv(site, state, "--freq", "86" if i % 2 else "300", "--lock-wait", "60") for i in range(20)]
-    proc = subprocess.Popen([sys.executable, "-c", FORKER, json.dumps(jobs), str(outdir)], env=_env(),
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", FORKER, json.dumps(jobs), str(outdir)],
+        env=_env(),
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     reads, bad = 0, []
     while proc.poll() is None:  # meanwhile, a reader (a status page) keeps reading the advisory
         time.sleep(0.002)
@@ -120,7 +125,7 @@ def test_twenty_concurrent_ticks_serialise_cleanly(tmp_path):
     lines = (state / "history.jsonl").read_text().splitlines()
     records = [json.loads(line) for line in lines]  # every line whole: nothing interleaved
     assert sorted(r["pid"] for r in records) == sorted(printed)  # exactly one line per completed run
-    written = [r["written_utc"] for r in records]   # the machine's clock (issued_utc is --at's)
+    written = [r["written_utc"] for r in records]  # the machine's clock (issued_utc is --at's)
     assert written == sorted(written) and len(set(written)) == 20  # one run at a time, in lock order
     for r in records:  # a run printed exactly when it recorded a change
         assert bool(printed[r["pid"]]) == (r["change"] is not None)
@@ -136,8 +141,13 @@ def test_twenty_concurrent_ticks_serialise_cleanly(tmp_path):
 def test_sigkill_between_write_and_rename_leaves_previous_advisory_intact(primed, capsys):
     site, state = primed
     before = _snapshot(state)
-    proc = subprocess.Popen(_cmd(site, state, "--freq", "300"), env=_env(ADVISOR_TICK_TEST_PAUSE_S="30"),
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        _cmd(site, state, "--freq", "300"),
+        env=_env(ADVISOR_TICK_TEST_PAUSE_S="30"),
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     line = proc.stderr.readline()  # blocks until the run has staged every file
     assert "test hook" in line, line
     proc.send_signal(signal.SIGKILL)
@@ -174,9 +184,24 @@ def test_read_only_bind_mount_is_a_clear_error_with_no_partial_files(primed):
     if probe.returncode != 0:
         pytest.skip("cannot make a private mount namespace here")
     before = _snapshot(state)
-    script = ('mount --bind "$1" "$1" && mount -o remount,bind,ro "$1" || exit 99; shift; exec "$@"')
-    proc = subprocess.run(["unshare", "-m", "--propagation", "private", "sh", "-c", script, "sh", str(state),
-                           *_cmd(site, state, "--freq", "300")], env=_env(), capture_output=True, text=True)
+    script = 'mount --bind "$1" "$1" && mount -o remount,bind,ro "$1" || exit 99; shift; exec "$@"'
+    proc = subprocess.run(
+        [
+            "unshare",
+            "-m",
+            "--propagation",
+            "private",
+            "sh",
+            "-c",
+            script,
+            "sh",
+            str(state),
+            *_cmd(site, state, "--freq", "300"),
+        ],
+        env=_env(),
+        capture_output=True,
+        text=True,
+    )
     if proc.returncode == 99:
         pytest.skip(f"read-only bind mount refused: {proc.stderr.strip()}")
     _assert_refused_cleanly(proc, state, before)
@@ -201,13 +226,17 @@ def test_immutable_state_dir_is_a_clear_error_with_no_partial_files(primed):
 def _limit_file_size(max_bytes: int):
     def apply():
         resource.setrlimit(resource.RLIMIT_FSIZE, (max_bytes, max_bytes))
+
     return apply
 
 
-@pytest.mark.parametrize("limit_bytes, history_bytes", [
-    (2_000, 0),         # the first staged file already fails part-way
-    (60_000, 59_950),   # every file stages; the history append is cut short and truncated back
-])
+@pytest.mark.parametrize(
+    "limit_bytes, history_bytes",
+    [
+        (2_000, 0),  # the first staged file already fails part-way
+        (60_000, 59_950),  # every file stages; the history append is cut short and truncated back
+    ],
+)
 def test_full_state_dir_is_a_clear_error_with_no_partial_files(primed, limit_bytes, history_bytes):
     site, state = primed
     if history_bytes:  # whole JSON lines up to just below the limit
@@ -217,8 +246,13 @@ def test_full_state_dir_is_a_clear_error_with_no_partial_files(primed, limit_byt
         (state / "history.jsonl").write_bytes(body + b'{"pad":"' + b"x" * pad + b'"}\n')
         assert (state / "history.jsonl").stat().st_size == history_bytes
     before = _snapshot(state)
-    proc = subprocess.run(_cmd(site, state, "--freq", "300"), env=_env(), capture_output=True, text=True,
-                          preexec_fn=_limit_file_size(limit_bytes))
+    proc = subprocess.run(
+        _cmd(site, state, "--freq", "300"),
+        env=_env(),
+        capture_output=True,
+        text=True,
+        preexec_fn=_limit_file_size(limit_bytes),
+    )
     _assert_refused_cleanly(proc, state, before)
     if history_bytes:
         assert "history.jsonl: cannot append to the history" in proc.stderr

@@ -32,15 +32,20 @@ def _local_hours(spec):
 
 
 def test_dominant_verdict_per_month_and_local_hour():
-    times, verdict, hours = _local_hours([
-        ("2026-01-31 05:00", "scan", 1.0), ("2026-01-30 05:00", "postpone", 0.5),   # scan wins 05h in Jan
-        ("2026-02-01 05:00", "astronomical", 0.2), ("2026-02-02 05:10", "postpone", 0.1),
-        ("2026-02-03 23:00", "undetermined", 1.0)])
+    times, verdict, hours = _local_hours(
+        [
+            ("2026-01-31 05:00", "scan", 1.0),
+            ("2026-01-30 05:00", "postpone", 0.5),  # scan wins 05h in Jan
+            ("2026-02-01 05:00", "astronomical", 0.2),
+            ("2026-02-02 05:10", "postpone", 0.1),
+            ("2026-02-03 23:00", "undetermined", 1.0),
+        ]
+    )
     table = dominant_by_month_hour(verdict, hours, times)
     assert list(table.index) == ["2026-01", "2026-02"] and list(table.columns) == list(range(24))
     assert table.loc["2026-01", 5] == "scan" and table.loc["2026-02", 5] == "astronomical"
     assert table.loc["2026-02", 23] == "undetermined"
-    assert (table.loc["2026-01"] == "").sum() == 23          # one hour of January has hours at all
+    assert (table.loc["2026-01"] == "").sum() == 23  # one hour of January has hours at all
 
 
 def test_heat_strip_shows_vocabulary_letters_and_a_dot_where_there_are_no_hours():
@@ -77,7 +82,7 @@ def test_state_the_parser_rejects_is_set_aside_with_a_warning(tmp_path):
 def test_a_failed_publish_renames_nothing(tmp_path):
     (tmp_path / statedir.STATE_FILE).write_text("1")
 
-    with pytest.raises(TypeError):      # a record JSON cannot hold: the history append fails
+    with pytest.raises(TypeError):  # a record JSON cannot hold: the history append fails
         statedir.publish(tmp_path, {"page.txt": "new", statedir.STATE_FILE: "2"}, {"bad": object()}, 10_000)
     assert (tmp_path / statedir.STATE_FILE).read_text() == "1" and not (tmp_path / "page.txt").exists()
     assert not list(tmp_path.glob(".*.tmp"))

@@ -26,21 +26,22 @@ def windows(usable, step_min=10.0, min_length_min=0.0, times=None, **values):
     usable = np.asarray(usable, dtype=bool)
     n = len(usable)
     times = grid(n, step_min) if times is None else times
-    arrays = {k: values.get(k, np.zeros(n)) for k in
-              ("wind_mean_ms", "wind_gust_ms", "dew_point_spread_c", "ruze_efficiency")}
+    arrays = {
+        k: values.get(k, np.zeros(n)) for k in ("wind_mean_ms", "wind_gust_ms", "dew_point_spread_c", "ruze_efficiency")
+    }
     extra = {k: values[k] for k in ("advised", "beyond_horizon") if k in values}
     return find_windows(times, step_min, usable, min_length_min, **arrays, **extra)
 
 
 def test_window_edges_fall_exactly_on_step_boundaries():
     usable = np.zeros(12, dtype=bool)
-    usable[3:9] = True                                   # steps 04:30 .. 05:20
+    usable[3:9] = True  # steps 04:30 .. 05:20
     table = windows(usable)
     assert list(table.columns) == list(WINDOW_COLUMNS)
     assert len(table) == 1
     w = table.iloc[0]
     assert w["start_utc"] == pd.Timestamp("2026-01-16T04:30:00Z")
-    assert w["end_utc"] == pd.Timestamp("2026-01-16T05:30:00Z")    # last step 05:20 + one step
+    assert w["end_utc"] == pd.Timestamp("2026-01-16T05:30:00Z")  # last step 05:20 + one step
     assert w["length_min"] == 60.0
     assert (w["first_step"], w["stop_step"]) == (3, 9)
     assert not w["open_end"]
@@ -72,12 +73,12 @@ def test_a_gap_splits_a_window_in_two():
     table = windows(usable)
     assert list(table["first_step"]) == [0, 4]
     assert list(table["stop_step"]) == [3, 7]
-    assert table.iloc[0]["end_utc"] == T0 + pd.Timedelta(minutes=30)     # ends where the gap starts
-    assert table.iloc[1]["start_utc"] == T0 + pd.Timedelta(minutes=40)   # resumes where it ends
+    assert table.iloc[0]["end_utc"] == T0 + pd.Timedelta(minutes=30)  # ends where the gap starts
+    assert table.iloc[1]["start_utc"] == T0 + pd.Timedelta(minutes=40)  # resumes where it ends
 
 
 def test_a_jump_in_the_step_times_splits_a_window_even_if_every_step_is_usable():
-    times = grid(6).delete(3)                             # 04:30 missing from the times themselves
+    times = grid(6).delete(3)  # 04:30 missing from the times themselves
     table = windows(np.ones(5, dtype=bool), times=times)
     assert len(table) == 2
     assert table.iloc[0]["end_utc"] == T0 + pd.Timedelta(minutes=30)
@@ -86,12 +87,15 @@ def test_a_jump_in_the_step_times_splits_a_window_even_if_every_step_is_usable()
 
 def test_window_figures_are_worst_case_and_mean_ignoring_missing_values():
     usable = [True, True, True, True]
-    table = windows(usable, wind_mean_ms=np.array([1.0, 3.0, np.nan, 2.0]),
-                    wind_gust_ms=np.array([2.0, 5.0, 4.0, np.nan]),
-                    dew_point_spread_c=np.array([4.0, 1.5, 3.0, 2.0]),
-                    ruze_efficiency=np.array([0.6, 0.5, np.nan, 0.7]),
-                    advised=np.array([True, False, True, True]),
-                    beyond_horizon=np.array([False, False, False, True]))
+    table = windows(
+        usable,
+        wind_mean_ms=np.array([1.0, 3.0, np.nan, 2.0]),
+        wind_gust_ms=np.array([2.0, 5.0, 4.0, np.nan]),
+        dew_point_spread_c=np.array([4.0, 1.5, 3.0, 2.0]),
+        ruze_efficiency=np.array([0.6, 0.5, np.nan, 0.7]),
+        advised=np.array([True, False, True, True]),
+        beyond_horizon=np.array([False, False, False, True]),
+    )
     w = table.iloc[0]
     assert w["max_wind_mean_ms"] == 3.0
     assert w["max_wind_gust_ms"] == 5.0

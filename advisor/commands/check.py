@@ -12,14 +12,21 @@ from advisor.commands.helpformat import EXIT_HELP, HelpFormatter
 
 def add_parser(sub, name: str, help: str) -> None:
     """Register ``advisor check``."""
-    p = sub.add_parser(name, help=help, description="Evaluate the feed at one instant and print the call.",
-                       epilog=EXIT_HELP, formatter_class=HelpFormatter)
+    p = sub.add_parser(
+        name,
+        help=help,
+        description="Evaluate the feed at one instant and print the call.",
+        epilog=EXIT_HELP,
+        formatter_class=HelpFormatter,
+    )
     session.add_evaluation_options(p)
     session.add_session_option(p)
     p.add_argument("--json", action="store_true", help="print one JSON object (stable schema, see README)")
-    p.add_argument("--details", action="store_true",
-                   help="every reason in full with its rule id, every key condition (default: a compact screen "
-                        "that fits 80x24)")
+    p.add_argument(
+        "--details",
+        action="store_true",
+        help="every reason in full with its rule id, every key condition (default: a compact screen that fits 80x24)",
+    )
     p.set_defaults(func=cmd_check)
 
 

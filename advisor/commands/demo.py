@@ -61,14 +61,18 @@ rules:
 
 def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
     """Register ``advisor demo``."""
-    p = sub.add_parser(name, help=help,
-                       description="Work with the bundled invented demo site.", formatter_class=HelpFormatter)
+    p = sub.add_parser(
+        name, help=help, description="Work with the bundled invented demo site.", formatter_class=HelpFormatter
+    )
     actions = p.add_subparsers(dest="action", metavar="ACTION")
-    copy = actions.add_parser("copy", help="write an editable copy of the demo site, feed, registry and model",
-                              description="Write an editable copy of the invented demo site (site file, "
-                                          "a rules file of its own, feed, forecast, registry, history, model) "
-                                          "into DIR. Refuses to overwrite any file.",
-                              formatter_class=HelpFormatter)
+    copy = actions.add_parser(
+        "copy",
+        help="write an editable copy of the demo site, feed, registry and model",
+        description="Write an editable copy of the invented demo site (site file, "
+        "a rules file of its own, feed, forecast, registry, history, model) "
+        "into DIR. Refuses to overwrite any file.",
+        formatter_class=HelpFormatter,
+    )
     copy.add_argument("folder", metavar="DIR", help="folder to write into (created if absent)")
     copy.set_defaults(func=cmd_copy)
     p.set_defaults(func=lambda args: _usage(p))
@@ -82,8 +86,8 @@ def _usage(parser: argparse.ArgumentParser) -> int:
 
 
 def cmd_copy(args: argparse.Namespace) -> int:
-    from advisor.io.fileio import atomic_write_text
     from advisor.io.bundled import demo_dir, demo_site_path
+    from advisor.io.fileio import atomic_write_text
 
     folder = Path(args.folder).expanduser()
     if folder.exists() and not folder.is_dir():
@@ -92,9 +96,11 @@ def cmd_copy(args: argparse.Namespace) -> int:
     names = [SITE_NAME, RULES_NAME, *(name for name, _ in COPIED)]
     taken = [name for name in names if (folder / name).exists()]
     if taken:
-        raise UsageError(f"{folder / taken[0]} already exists" + (f" (and {len(taken) - 1} more)" if len(taken) > 1
-                                                                  else ""), field="DIR",
-                         hint="choose a new or empty folder; nothing was written")
+        raise UsageError(
+            f"{folder / taken[0]} already exists" + (f" (and {len(taken) - 1} more)" if len(taken) > 1 else ""),
+            field="DIR",
+            hint="choose a new or empty folder; nothing was written",
+        )
     try:
         folder.mkdir(parents=True, exist_ok=True)
         site_text = demo_site_path().read_text(encoding="utf-8").rstrip("\n") + "\n" + _SITE_RULES_LINK
@@ -103,8 +109,9 @@ def cmd_copy(args: argparse.Namespace) -> int:
         for name, _ in COPIED:
             atomic_write_text(folder / name, (source / name).read_text(encoding="utf-8"))
     except OSError as exc:
-        raise UsageError(f"cannot write into {folder}: {exc.strerror or exc}", field="DIR",
-                         hint="choose a folder you can write to") from None
+        raise UsageError(
+            f"cannot write into {folder}: {exc.strerror or exc}", field="DIR", hint="choose a folder you can write to"
+        ) from None
     site = folder / SITE_NAME
     width = max(len(n) for n in names)
     print(f"Wrote an editable copy of the invented demo site to {folder}:")
@@ -116,6 +123,8 @@ def cmd_copy(args: argparse.Namespace) -> int:
     print(f"  advisor check --site {site}                # the demo call, from your copy")
     print(f"  advisor rules show --site {site}           # the rules in effect, and where each comes from")
     print(f"  then edit {site} (name, location, feed.path) and {folder / RULES_NAME}")
-    print("The feed is still the invented demo weather, so every command says DEMO DATA until you point "
-          "feed.path at your own.")
+    print(
+        "The feed is still the invented demo weather, so every command says DEMO DATA until you point "
+        "feed.path at your own."
+    )
     return 0

@@ -21,12 +21,13 @@ def add_parser(sub, name: str, help: str) -> None:
     feed = sub.add_parser(name, help=help, description="Look at a weather feed file the way the advisor reads it.")
     actions = feed.add_subparsers(dest="action", metavar="ACTION")
     inspect = actions.add_parser(
-        "inspect", help="columns and units recognised, cadence, span, gaps, missing codes, implausible "
-                        "values, time-zone sanity",
+        "inspect",
+        help="columns and units recognised, cadence, span, gaps, missing codes, implausible values, time-zone sanity",
         description="Read FILE and report what the advisor makes of it: the columns and units it "
-                    "recognises, cadence, span, gaps, missing-value codes and implausible values per "
-                    "column, and whether the irradiance agrees with the computed sun (needs --site). "
-                    "Without --site the layout is guessed from the file.")
+        "recognises, cadence, span, gaps, missing-value codes and implausible values per "
+        "column, and whether the irradiance agrees with the computed sun (needs --site). "
+        "Without --site the layout is guessed from the file.",
+    )
     inspect.add_argument("file", metavar="FILE", help="the logger's CSV or JSON Lines file, as exported")
     inspect.add_argument("--site", metavar="SITE.yaml", help="read FILE with this site's feed layout and position")
     inspect.set_defaults(func=cmd_inspect)

@@ -15,7 +15,8 @@ class HelpFormatter(argparse.RawDescriptionHelpFormatter):
         for para in paragraphs:
             lines = para.splitlines()
             if any(line.startswith((" ", "\t")) for line in lines[1:]) or any(
-                    line.startswith((" ", "\t")) for line in lines):
+                line.startswith((" ", "\t")) for line in lines
+            ):
                 out.append("\n".join(indent + line for line in lines))
             else:
                 out.append(textwrap.fill(" ".join(lines), width, initial_indent=indent, subsequent_indent=indent))

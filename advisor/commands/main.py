@@ -25,7 +25,7 @@ from advisor.errors import AdvisorError, InsufficientData, internal_error_text
 
 class Command(NamedTuple):
     name: str
-    module: str      # under advisor.commands
+    module: str  # under advisor.commands
     help: str
 
 
@@ -64,8 +64,10 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     parser = _Parser(
         prog="advisor",
         description="Before a high-frequency session: scan the reflector now, use the astronomical "
-                    "method, or postpone - with reasons and numbers.",
-        epilog=EXIT_HELP, formatter_class=HelpFormatter)
+        "method, or postpone - with reasons and numbers.",
+        epilog=EXIT_HELP,
+        formatter_class=HelpFormatter,
+    )
     parser.add_argument("--version", action="version", version=f"advisor {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for command in COMMANDS:
@@ -104,8 +106,10 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # pragma: no cover - the last line of defence
         if os.environ.get("ADVISOR_DEBUG"):
             raise
-        print(f"advisor: internal error: {internal_error_text(exc)} (set ADVISOR_DEBUG=1 for a traceback)",
-              file=sys.stderr)
+        print(
+            f"advisor: internal error: {internal_error_text(exc)} (set ADVISOR_DEBUG=1 for a traceback)",
+            file=sys.stderr,
+        )
         return 1
 
 

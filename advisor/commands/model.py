@@ -18,10 +18,10 @@ from pathlib import Path
 
 import numpy as np
 
-from advisor.io.bundled import is_bundled
 from advisor.catalogue import CATALOGUE, unit_text
 from advisor.commands import session
 from advisor.errors import AdvisorError, UsageError
+from advisor.io.bundled import is_bundled
 from advisor.model.inference import METHOD_LABELS, value_text
 from advisor.model.modelfile import SCHEMA_VERSION, dumps_model, load_model, parse_model
 from advisor.vocabulary import MODEL_DIRECTIONS
@@ -36,30 +36,50 @@ def add_parser(sub, name: str, help: str) -> None:
 
 def _add_train(sub, name: str, help: str) -> None:
     train = sub.add_parser(
-        name, help=help,
+        name,
+        help=help,
         description="Fit a small classifier per method (standardised logistic regression, each term bounded to "
-                    "the direction physics allows) on past attempts, print cross-validated metrics, write it as "
-                    "plain JSON and print the site-file line that uses it.",
+        "the direction physics allows) on past attempts, print cross-validated metrics, write it as "
+        "plain JSON and print the site-file line that uses it.",
         epilog="History columns: time (ISO 8601 with Z/offset), method (scan|astronomical), usable (yes/no) "
-               "and/or residual_rms_um (with usable_max_rms_um or --usable-below-um), and the weather at the "
-               "attempt as 'advisor attempt add' records it (wind_mean_ms, wind_gust_ms as 10-min mean and max, "
-               "air_temp_c, rel_humidity_pct, air_temp_rate_c_per_h, optionally dew_point_c, visibility_m, "
-               "precip_mm_h, pressure_hpa, solar_wm2). Rows without weather are computed from --feed, or from "
-               "the site's feed. Terms: the site's model.terms, else gust², dew-point spread short of 3 °C and "
-               "|dT/dt|, each of which can only lower the odds.")
-    train.add_argument("--history", metavar="HISTORY.csv",
-                       help="past attempts, one per row (default: the site's history.path)")
-    train.add_argument("--feed", metavar="ARCHIVE.csv",
-                       help="weather archive for the rows that carry no weather (default: the site's feed)")
+        "and/or residual_rms_um (with usable_max_rms_um or --usable-below-um), and the weather at the "
+        "attempt as 'advisor attempt add' records it (wind_mean_ms, wind_gust_ms as 10-min mean and max, "
+        "air_temp_c, rel_humidity_pct, air_temp_rate_c_per_h, optionally dew_point_c, visibility_m, "
+        "precip_mm_h, pressure_hpa, solar_wm2). Rows without weather are computed from --feed, or from "
+        "the site's feed. Terms: the site's model.terms, else gust², dew-point spread short of 3 °C and "
+        "|dT/dt|, each of which can only lower the odds.",
+    )
+    train.add_argument(
+        "--history", metavar="HISTORY.csv", help="past attempts, one per row (default: the site's history.path)"
+    )
+    train.add_argument(
+        "--feed",
+        metavar="ARCHIVE.csv",
+        help="weather archive for the rows that carry no weather (default: the site's feed)",
+    )
     train.add_argument("--site", metavar="SITE.yaml", help=session.SITE_HELP)
-    train.add_argument("--out", metavar="MODEL.json",
-                       help="where to write the model (with --install: default a dated file beside the site file)")
-    train.add_argument("--install", action="store_true",
-                       help="point the site file's model.path at the new model (the old model file is kept)")
-    train.add_argument("--method", choices=tuple(METHOD_LABELS), action="append",
-                       help="train only this method (repeatable; default: both)")
-    train.add_argument("--usable-below-um", type=float, metavar="UM",
-                       help="judge rows without 'usable' (or usable_max_rms_um) by residual_rms_um <= UM")
+    train.add_argument(
+        "--out",
+        metavar="MODEL.json",
+        help="where to write the model (with --install: default a dated file beside the site file)",
+    )
+    train.add_argument(
+        "--install",
+        action="store_true",
+        help="point the site file's model.path at the new model (the old model file is kept)",
+    )
+    train.add_argument(
+        "--method",
+        choices=tuple(METHOD_LABELS),
+        action="append",
+        help="train only this method (repeatable; default: both)",
+    )
+    train.add_argument(
+        "--usable-below-um",
+        type=float,
+        metavar="UM",
+        help="judge rows without 'usable' (or usable_max_rms_um) by residual_rms_um <= UM",
+    )
     train.set_defaults(func=cmd_train)
 
 
@@ -68,13 +88,17 @@ def _add_model(sub, name: str, help: str) -> None:
     actions = model.add_subparsers(dest="action", metavar="ACTION")
     show = actions.add_parser("show", help="what a model was trained on, its metrics and coefficients")
     show.add_argument("path", metavar="MODEL.json")
-    show.add_argument("--svg", metavar="FILE.svg",
-                      help="also draw the reliability diagram and each term's effect as a self-contained SVG")
+    show.add_argument(
+        "--svg",
+        metavar="FILE.svg",
+        help="also draw the reliability diagram and each term's effect as a self-contained SVG",
+    )
     show.set_defaults(func=cmd_model_show)
     model.set_defaults(func=lambda args: session.missing_action(model))
 
 
 # --- shared text ---------------------------------------------------------------------------
+
 
 def _pct(x: float) -> str:
     return f"{100 * x:.0f} %"
@@ -84,17 +108,21 @@ def _metrics_lines(label: str, metrics: dict) -> list[str]:
     auc = f"ROC AUC {metrics['roc_auc']:.2f}"
     if "roc_auc_unconstrained" in metrics:
         auc += f" ({metrics['roc_auc_unconstrained']:.2f} without the direction bounds)"
-    lines = [f"{label}: {metrics['attempts']} attempts, {metrics['usable']} usable / {metrics['unusable']} not "
-             f"({_pct(metrics['usable_fraction'])} usable)",
-             f"  cross-validated ({metrics['cv_folds']}-fold): {auc}, "
-             f"Brier score {metrics['brier']:.3f} (always guessing {_pct(metrics['usable_fraction'])}: "
-             f"{metrics['brier_base_rate']:.3f})",
-             "  reliability (held-out):  predicted    mean p   observed usable   attempts"]
+    lines = [
+        f"{label}: {metrics['attempts']} attempts, {metrics['usable']} usable / {metrics['unusable']} not "
+        f"({_pct(metrics['usable_fraction'])} usable)",
+        f"  cross-validated ({metrics['cv_folds']}-fold): {auc}, "
+        f"Brier score {metrics['brier']:.3f} (always guessing {_pct(metrics['usable_fraction'])}: "
+        f"{metrics['brier_base_rate']:.3f})",
+        "  reliability (held-out):  predicted    mean p   observed usable   attempts",
+    ]
     for row in metrics.get("reliability", []):
         mean_p = "—" if row["mean_predicted"] is None else f"{row['mean_predicted']:.2f}"
         obs = "—" if row["observed_usable"] is None else f"{row['observed_usable']:.2f}"
-        lines.append(f"                           {row['p_from']:.1f}–{row['p_to']:.1f}    {mean_p:>6}   "
-                     f"{obs:>15}   {row['attempts']:>8}")
+        lines.append(
+            f"                           {row['p_from']:.1f}–{row['p_to']:.1f}    {mean_p:>6}   "
+            f"{obs:>15}   {row['attempts']:>8}"
+        )
     return lines
 
 
@@ -117,37 +145,51 @@ def _coefficient_lines(method_model) -> list[str]:
 def _dropped_lines(metrics: dict) -> list[str]:
     lines = []
     for d in metrics.get("dropped_terms", []):
-        lines.append(f"  left out: {d['term']} (declared: {MODEL_DIRECTIONS.get(d['direction'], d['direction'])}): "
-                     f"{d['reason']}")
+        lines.append(
+            f"  left out: {d['term']} (declared: {MODEL_DIRECTIONS.get(d['direction'], d['direction'])}): {d['reason']}"
+        )
     return lines
 
 
 # --- train ---------------------------------------------------------------------------------
+
 
 def _history_path(args, site) -> Path:
     if args.history:
         return Path(args.history)
     if site.history_path is not None:
         return site.history_path
-    raise UsageError("no history given and the site file names none", field="--history",
-                     hint="pass --history ATTEMPTS.csv, or add history: {path: attempts.csv} to the site file")
+    raise UsageError(
+        "no history given and the site file names none",
+        field="--history",
+        hint="pass --history ATTEMPTS.csv, or add history: {path: attempts.csv} to the site file",
+    )
 
 
 def _out_path(args, site) -> Path:
     if args.install:
         if args.site is None:
-            raise UsageError("--install needs the site file to change", field="--install",
-                             hint="pass --site SITE.yaml (the bundled demo site is read-only)")
+            raise UsageError(
+                "--install needs the site file to change",
+                field="--install",
+                hint="pass --site SITE.yaml (the bundled demo site is read-only)",
+            )
         if not args.out:
             stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
             return Path(args.site).resolve().parent / f"{Path(args.site).stem}_model_{stamp}.json"
     if not args.out:
-        raise UsageError("no output file given", field="--out",
-                         hint="pass --out MODEL.json, or --install with --site to write one beside the site file")
+        raise UsageError(
+            "no output file given",
+            field="--out",
+            hint="pass --out MODEL.json, or --install with --site to write one beside the site file",
+        )
     out = Path(args.out)
     if args.install and site.model_path is not None and os.path.realpath(out) == os.path.realpath(site.model_path):
-        raise UsageError(f"{out} is the model the site uses now; --install keeps it", field="--out",
-                         hint="write the new model to another file (or leave --out out for a dated name)")
+        raise UsageError(
+            f"{out} is the model the site uses now; --install keeps it",
+            field="--out",
+            hint="write the new model to another file (or leave --out out for a dated name)",
+        )
     return out
 
 
@@ -173,12 +215,13 @@ def cmd_train(args: argparse.Namespace) -> int:
 
     site = load_site(session.site_location(args.site)[0])
     if args.usable_below_um is not None and not (np.isfinite(args.usable_below_um) and args.usable_below_um > 0):
-        raise UsageError(f"--usable-below-um {args.usable_below_um!r} must be a positive number of µm",
-                         field="--usable-below-um")
+        raise UsageError(
+            f"--usable-below-um {args.usable_below_um!r} must be a positive number of µm", field="--usable-below-um"
+        )
     history_path = _history_path(args, site)
     out = _out_path(args, site)
     refuse_overwrite(out, {"--history": history_path, "--feed": args.feed, "--site": args.site}, "--out")
-    change = _site_change(args, out)       # with --install, a site file that cannot be edited stops here
+    change = _site_change(args, out)  # with --install, a site file that cannot be edited stops here
     history = training.read_history(history_path, args.usable_below_um)
     terms = training.site_terms(site)
     methods = tuple(dict.fromkeys(args.method)) if args.method else tuple(METHOD_LABELS)
@@ -186,8 +229,11 @@ def cmd_train(args: argparse.Namespace) -> int:
     needs_registry = any(t.feature in REFERENCE_FEATURES for m in methods for t in terms[m])
     registry = read_registry(site.references_path) if needs_registry else Registry.empty()
     hf = training.history_features(history, site, feed, registry)
-    meta: dict[str, object] = {"site": site.name, "features_from": _weather_words(hf),
-                               "terms_from": "site file (model.terms)" if site.model_terms else "default terms"}
+    meta: dict[str, object] = {
+        "site": site.name,
+        "features_from": _weather_words(hf),
+        "terms_from": "site file (model.terms)" if site.model_terms else "default terms",
+    }
     if feed is not None:
         meta["feed"] = {"file": Path(feed.source).name, "sha256": training.sha256_of(Path(feed.source))}
     if args.usable_below_um is not None:
@@ -197,12 +243,16 @@ def cmd_train(args: argparse.Namespace) -> int:
     text = dumps_model(model)
     parse_model(text, str(out))  # what we write must read back
     info = model.training["history"]
-    print(f"advisor train: {info['rows']} attempts in {history_path} "
-          f"({info['first_utc'][:10]} .. {info['last_utc'][:10]} UTC)")
+    print(
+        f"advisor train: {info['rows']} attempts in {history_path} "
+        f"({info['first_utc'][:10]} .. {info['last_utc'][:10]} UTC)"
+    )
     print(f"  weather: {meta['features_from']}")
     if result.n_dropped:
-        print(f"  {result.n_dropped} attempts left out: no usable weather at their time"
-              + ("" if feed is not None else " (pass --feed ARCHIVE.csv to compute it)"))
+        print(
+            f"  {result.n_dropped} attempts left out: no usable weather at their time"
+            + ("" if feed is not None else " (pass --feed ARCHIVE.csv to compute it)")
+        )
     print(f"  terms: {meta['terms_from']}")
     for method, m in model.methods.items():
         print()
@@ -232,10 +282,10 @@ def _site_change(args, out: Path):
     if args.site is None:
         return None
     if args.install:
-        return model_path_change(args.site, out)       # a problem here stops train before it writes
+        return model_path_change(args.site, out)  # a problem here stops train before it writes
     try:
         return model_path_change(args.site, out)
-    except AdvisorError as exc:                        # advice only: the model is written either way
+    except AdvisorError as exc:  # advice only: the model is written either way
         print(f"advisor: warning: cannot show the site-file line: {exc.one_line()}", file=sys.stderr)
         return None
 
@@ -253,17 +303,23 @@ def _say_how_to_use(args, out: Path, change) -> None:
         try:
             atomic_write_text(Path(args.site), change.text)
         except OSError as exc:
-            raise UsageError(f"cannot write {args.site}: {exc.strerror}; the model is in {out}", field="--install",
-                             hint=f"set model.path to {out} by hand") from None
+            raise UsageError(
+                f"cannot write {args.site}: {exc.strerror}; the model is in {out}",
+                field="--install",
+                hint=f"set model.path to {out} by hand",
+            ) from None
         was = f" (was {change.old_value}; that file is kept)" if change.old_value else ""
         print(f"installed: {args.site}:{change.line}: {change.line_text.strip()}{was}")
         return
-    print(f"to use it, set line {change.line} of {args.site} to:  {change.line_text.strip()}"
-          + (f"   (now: path: {change.old_value})" if change.old_value else "   (under model:)")
-          + "\n  or run train again with --install to write it")
+    print(
+        f"to use it, set line {change.line} of {args.site} to:  {change.line_text.strip()}"
+        + (f"   (now: path: {change.old_value})" if change.old_value else "   (under model:)")
+        + "\n  or run train again with --install to write it"
+    )
 
 
 # --- model show ----------------------------------------------------------------------------
+
 
 def cmd_model_show(args: argparse.Namespace) -> int:
     from advisor.text import clean_text
@@ -278,20 +334,35 @@ def cmd_model_show(args: argparse.Namespace) -> int:
         lines.append("libraries: " + ", ".join(f"{k} {v}" for k, v in libs.items()))
     hist = t.get("history") or {}
     if hist:
-        lines.append(f"history: {hist.get('file')}, {hist.get('rows')} rows, {hist.get('first_utc')} .. "
-                     f"{hist.get('last_utc')}, sha256 {hist.get('sha256')}")
+        lines.append(
+            f"history: {hist.get('file')}, {hist.get('rows')} rows, {hist.get('first_utc')} .. "
+            f"{hist.get('last_utc')}, sha256 {hist.get('sha256')}"
+        )
     if t.get("feed"):
         lines.append(f"weather archive: {t['feed'].get('file')}, sha256 {t['feed'].get('sha256')}")
-    for key, label in (("features_from", "weather"), ("terms_from", "terms"), ("site", "site"),
-                       ("estimator", "estimator"), ("cross_validation", "cross-validation"),
-                       ("usable_below_um", "usable below [µm]")):
+    for key, label in (
+        ("features_from", "weather"),
+        ("terms_from", "terms"),
+        ("site", "site"),
+        ("estimator", "estimator"),
+        ("cross_validation", "cross-validation"),
+        ("usable_below_um", "usable below [µm]"),
+    ):
         if key in t:
             lines.append(f"{label}: {t[key]}")
     lines.append("features: " + ", ".join(f"{n} [{unit_text(u)}]" for n, u in model.features))
     for method, m in model.methods.items():
         lines.append("")
-        if {"attempts", "usable", "unusable", "usable_fraction", "cv_folds", "roc_auc", "brier",
-                "brier_base_rate"} <= set(m.metrics):
+        if {
+            "attempts",
+            "usable",
+            "unusable",
+            "usable_fraction",
+            "cv_folds",
+            "roc_auc",
+            "brier",
+            "brier_base_rate",
+        } <= set(m.metrics):
             lines.extend(_metrics_lines(METHOD_LABELS[method], m.metrics))
         else:
             lines.append(f"{METHOD_LABELS[method]}: (no metrics recorded)")
@@ -308,5 +379,5 @@ def cmd_model_show(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise UsageError(f"cannot write {args.svg}: {exc.strerror}", field="--svg") from None
         lines += ["", f"wrote {args.svg}: reliability diagram and the effect of each term"]
-    print(clean_text("\n".join(lines), keep_newlines=True))   # the training texts come from the file
+    print(clean_text("\n".join(lines), keep_newlines=True))  # the training texts come from the file
     return 0

@@ -26,20 +26,30 @@ from advisor.io.fileio import atomic_write_text
 def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
     """Register ``plan`` on the ``advisor`` subparsers."""
     p = sub.add_parser(
-        name, help=help,
+        name,
+        help=help,
         description="Plan a session: which correction to make when (laser scan or holography), when to "
-                    "re-correct as the structure's temperature moves, counting each correction's telescope "
-                    "time and odds of success, over observations then the site's forecast. Compares the plan "
-                    "with laser now, holography now, and waiting for a method that is blocked now.",
+        "re-correct as the structure's temperature moves, counting each correction's telescope "
+        "time and odds of success, over observations then the site's forecast. Compares the plan "
+        "with laser now, holography now, and waiting for a method that is blocked now.",
         epilog="Exit status: 0 plan printed; 2 bad input or usage. Advisory only - not a safety system.",
-        formatter_class=HelpFormatter)
+        formatter_class=HelpFormatter,
+    )
     session.add_evaluation_options(p, with_at=False)
-    p.add_argument("--start", metavar="TIME", help=session.time_help(
-                   "start of the session (default: now; the demo feed's last sample for the demo)"))
-    p.add_argument("--hours", metavar="H", help="length of the session [h] (default: the site's "
-                   "thresholds.session_hours)")
-    p.add_argument("--forecast", metavar="FILE", help="forecast file read beside the feed, in the feed's format "
-                   "(default: the site's forecast.path when the site's own feed is read)")
+    p.add_argument(
+        "--start",
+        metavar="TIME",
+        help=session.time_help("start of the session (default: now; the demo feed's last sample for the demo)"),
+    )
+    p.add_argument(
+        "--hours", metavar="H", help="length of the session [h] (default: the site's thresholds.session_hours)"
+    )
+    p.add_argument(
+        "--forecast",
+        metavar="FILE",
+        help="forecast file read beside the feed, in the feed's format "
+        "(default: the site's forecast.path when the site's own feed is read)",
+    )
     p.add_argument("--json", action="store_true", help="print one JSON object: corrections, alternatives, steps")
     p.add_argument("--svg", metavar="FILE", help="also save the plan as an SVG picture")
     p.set_defaults(func=cmd_plan)
@@ -74,15 +84,23 @@ def cmd_plan(args: argparse.Namespace) -> int:
     feed = inputs.require_feed()
     notes = list(inputs.notes)
     frame, forecast_source = session.with_site_forecast(
-        inputs, request, notes, Path(args.forecast) if args.forecast else None)
+        inputs, request, notes, Path(args.forecast) if args.forecast else None
+    )
     start = session.evaluation_time(inputs, start_option, frame)
     sources = " + ".join([feed.source, *([forecast_source] if forecast_source else [])])
-    plan = compute_plan(frame, start, hours, site, inputs.registry, inputs.rules, inputs.freq_ghz,
-                        odds=inputs.odds, source=sources)
+    plan = compute_plan(
+        frame, start, hours, site, inputs.registry, inputs.rules, inputs.freq_ghz, odds=inputs.odds, source=sources
+    )
     quality = feed.quality.as_dict()
     quality["source"] = feed.source
-    ctx = Context(site_name=site.name, time_zone=site.time_zone, feed_source=sources, is_demo=inputs.is_demo,
-                  data_quality=quality, notes=tuple(notes))
+    ctx = Context(
+        site_name=site.name,
+        time_zone=site.time_zone,
+        feed_source=sources,
+        is_demo=inputs.is_demo,
+        data_quality=quality,
+        notes=tuple(notes),
+    )
     svg_text = plan_svg(plan, ctx) if svg is not None else None
     if args.json:
         print(json.dumps(plan_json(plan, ctx), indent=2, allow_nan=False))

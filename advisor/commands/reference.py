@@ -20,13 +20,15 @@ from advisor.io.site import load_site
 
 def add_parser(sub, name: str, help: str) -> None:
     """Register ``advisor reference`` and its actions."""
-    ref = sub.add_parser(name, help=help,
-                         description="Record and list reference scans (taken right after an astronomical correction).")
+    ref = sub.add_parser(
+        name, help=help, description="Record and list reference scans (taken right after an astronomical correction)."
+    )
     actions = ref.add_subparsers(dest="action", metavar="ACTION")
     add = actions.add_parser("add", help="record a reference scan")
     add.add_argument("--time", required=True, metavar="TIME", help=session.time_help("when it was taken"))
-    add.add_argument("--air-temp-c", metavar="DEGC",
-                     help="air temperature at the scan [°C] (default: the feed's at that time)")
+    add.add_argument(
+        "--air-temp-c", metavar="DEGC", help="air temperature at the scan [°C] (default: the feed's at that time)"
+    )
     add.add_argument("--note", help="free text, e.g. 'after holography on 3C 84'")
     add.add_argument("--site", metavar="SITE.yaml", help="use the site's registry and feed")
     add.add_argument("--references", metavar="REFS.csv", help="registry file (created if absent)")
@@ -47,11 +49,17 @@ def _registry_path(request: session.Request) -> Path:
     if request.site_path is not None:
         site = load_site(request.site_path)
         if site.references_path is None:
-            raise UsageError("the site file names no reference registry", field="references.path",
-                             hint="add references: {path: refs.csv} to the site file, or pass --references FILE")
+            raise UsageError(
+                "the site file names no reference registry",
+                field="references.path",
+                hint="add references: {path: refs.csv} to the site file, or pass --references FILE",
+            )
         return site.references_path
-    raise UsageError("no registry given", field="--references",
-                     hint="pass --references FILE or --site SITE.yaml (the bundled demo registry is read-only)")
+    raise UsageError(
+        "no registry given",
+        field="--references",
+        hint="pass --references FILE or --site SITE.yaml (the bundled demo registry is read-only)",
+    )
 
 
 def _resolve(option: session.TimeOption | None, request: session.Request) -> pd.Timestamp:
@@ -67,20 +75,30 @@ def _feed_temperature(request: session.Request, time: pd.Timestamp) -> tuple[flo
     from advisor.model.attempts import not_covered, read_feed_for, weather_at
 
     if request.site_path is None and request.feed_path is None:
-        raise UsageError("no air temperature given and no feed to read it from", field="--air-temp-c",
-                         hint="give --air-temp-c DEGC, or --site SITE.yaml / --feed FILE to take it from the feed")
+        raise UsageError(
+            "no air temperature given and no feed to read it from",
+            field="--air-temp-c",
+            hint="give --air-temp-c DEGC, or --site SITE.yaml / --feed FILE to take it from the feed",
+        )
     site = load_site(request.site_path)
     path = request.feed_path or site.feed.path
     if path is None:
-        raise UsageError("no air temperature given and the site file names no feed", field="--air-temp-c",
-                         hint="give --air-temp-c DEGC or --feed FILE")
+        raise UsageError(
+            "no air temperature given and the site file names no feed",
+            field="--air-temp-c",
+            hint="give --air-temp-c DEGC or --feed FILE",
+        )
     feed = read_feed_for(path, session.feed_layout(site, named_on_command_line=request.feed_path is not None), [time])
     weather = weather_at(feed.frame, pd.DatetimeIndex([time]), site)
     why = not_covered(weather, 0, feed.frame, site)
     temp = float(weather["air_temp_c"].iloc[0])
     if not math.isfinite(temp) or (why is not None and "temperature rate" not in why):
-        raise FeedError(f"no air temperature at the scan: {why or 'the feed gives none'}", source=feed.source,
-                        field="--time", hint="nothing was added; give --air-temp-c DEGC")
+        raise FeedError(
+            f"no air temperature at the scan: {why or 'the feed gives none'}",
+            source=feed.source,
+            field="--time",
+            hint="nothing was added; give --air-temp-c DEGC",
+        )
     sample = weather["sample_time"].iloc[0]
     return temp, f"from the feed {feed.source} (sample of {sample:%Y-%m-%dT%H:%M:%SZ})"
 
@@ -95,14 +113,17 @@ def cmd_reference_add(args: argparse.Namespace) -> int:
         try:
             temp = float(args.air_temp_c)
         except ValueError:
-            raise UsageError(f"air temperature {args.air_temp_c!r} is not a number", field="--air-temp-c",
-                             hint="give °C, e.g. 3.5") from None
+            raise UsageError(
+                f"air temperature {args.air_temp_c!r} is not a number", field="--air-temp-c", hint="give °C, e.g. 3.5"
+            ) from None
         if math.isnan(temp):
             raise UsageError("air temperature is NaN", field="--air-temp-c")
         origin = "as given"
     registry = append_reference(path, time, temp, args.note or "")
-    print(f"added reference scan at {time:%Y-%m-%dT%H:%M:%SZ} ({temp:.1f} °C, {origin}) to {path}; "
-          f"{len(registry)} in registry")
+    print(
+        f"added reference scan at {time:%Y-%m-%dT%H:%M:%SZ} ({temp:.1f} °C, {origin}) to {path}; "
+        f"{len(registry)} in registry"
+    )
     return 0
 
 

@@ -18,17 +18,26 @@ import pandas as pd
 
 from advisor.commands import session
 from advisor.errors import UsageError
+from advisor.evaluation.evaluate import Scenario
+from advisor.evaluation.replay import (
+    attempts_from_history,
+    compare_rule_sets,
+    dominant_by_month_hour,
+    hours_by,
+    month_keys,
+    replay_features,
+    replay_from_features,
+    score_attempts,
+    step_hours,
+    weather_hours,
+)
+from advisor.evaluation.replay_table import coverage_warnings, step_table
+from advisor.features import FEATURES_VERSION, feature_source_paths
 from advisor.io import featurecache
 from advisor.io.feed import check_whole_read, read_feed
 from advisor.io.fileio import refuse_overwrite
 from advisor.io.history import read_history
 from advisor.vocabulary import VERDICTS
-from advisor.evaluation.evaluate import Scenario
-from advisor.evaluation.replay import (attempts_from_history, compare_rule_sets, dominant_by_month_hour, hours_by,
-                                       month_keys, replay_features, replay_from_features, score_attempts, step_hours,
-                                       weather_hours)
-from advisor.evaluation.replay_table import coverage_warnings, step_table
-from advisor.features import FEATURES_VERSION, feature_source_paths
 
 PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
 
@@ -36,24 +45,40 @@ PROGRESS_ROWS = 150_000  # archives this long take more than a second: show prog
 def add_parser(sub, name: str, help: str) -> None:
     """Register ``advisor replay``."""
     p = sub.add_parser(
-        name, help=help,
+        name,
+        help=help,
         description="Evaluate every row of a weather archive with the same rules and decision as "
-                    "`check`, then summarise hours per verdict (by month and hour of day), score the "
-                    "advice against recorded attempts, and compare two rule sets.")
+        "`check`, then summarise hours per verdict (by month and hour of day), score the "
+        "advice against recorded attempts, and compare two rule sets.",
+    )
     session.add_evaluation_options(p, with_at=False)
-    p.add_argument("--history", metavar="ATTEMPTS.csv",
-                   help="recorded attempts: time, method (scan|astronomical), usable (yes/no); both methods are "
-                        "scored")
-    p.add_argument("--compare-rules", metavar="FILE.yaml", nargs="+", action="extend",
-                   help="a second rule set (layered like --rules) to compare with")
+    p.add_argument(
+        "--history",
+        metavar="ATTEMPTS.csv",
+        help="recorded attempts: time, method (scan|astronomical), usable (yes/no); both methods are scored",
+    )
+    p.add_argument(
+        "--compare-rules",
+        metavar="FILE.yaml",
+        nargs="+",
+        action="extend",
+        help="a second rule set (layered like --rules) to compare with",
+    )
     p.add_argument("--from", dest="time_from", metavar="TIME", help=session.time_help("first instant"))
     p.add_argument("--to", dest="time_to", metavar="TIME", help=session.time_help("last instant"))
     p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
-    p.add_argument("--csv", metavar="FILE", help="write one row per evaluated time: time, verdict, what blocked "
-                   "each method, its expected surface and odds, the key features and flags (true/false)")
-    p.add_argument("--no-cache", action="store_true",
-                   help="recompute the archive's features instead of reusing them from an earlier replay "
-                        "(cache: $ADVISOR_CACHE_DIR, default ~/.cache/advisor/replay)")
+    p.add_argument(
+        "--csv",
+        metavar="FILE",
+        help="write one row per evaluated time: time, verdict, what blocked "
+        "each method, its expected surface and odds, the key features and flags (true/false)",
+    )
+    p.add_argument(
+        "--no-cache",
+        action="store_true",
+        help="recompute the archive's features instead of reusing them from an earlier replay "
+        "(cache: $ADVISOR_CACHE_DIR, default ~/.cache/advisor/replay)",
+    )
     p.set_defaults(func=cmd_replay)
 
 
@@ -77,8 +102,17 @@ def cmd_replay(args: argparse.Namespace) -> int:
     from_option = session.parse_time(args.time_from, "--from")
     to_option = session.parse_time(args.time_to, "--to")
     inputs = session.load_inputs(request, read=None)
-    refuse_overwrite(args.csv, {"--feed": inputs.feed_path, "--history": args.history, "--site": request.site_path,
-                                "--references": inputs.registry_path, "--rules": request.rule_files}, "--csv")
+    refuse_overwrite(
+        args.csv,
+        {
+            "--feed": inputs.feed_path,
+            "--history": args.history,
+            "--site": request.site_path,
+            "--references": inputs.registry_path,
+            "--rules": request.rule_files,
+        },
+        "--csv",
+    )
     zone = inputs.site.time_zone
     t_from = from_option.resolve(zone) if from_option is not None else None
     t_to = to_option.resolve(zone) if to_option is not None else None
@@ -89,10 +123,19 @@ def cmd_replay(args: argparse.Namespace) -> int:
     if args.compare_rules:  # the same features serve both rule sets
         rule_sets.append(session.load_ruleset(inputs.site, [*request.rule_files, *args.compare_rules]))
     check_whole_read(inputs.feed_path)  # before hashing it for the cache
-    key = featurecache.key_for(inputs.feed_path, Path(inputs.site.source), inputs.registry_path, {
-        "from": t_from, "to": t_to, "time_zone": inputs.feed_layout.time_zone,
-        "session_elevation_deg": inputs.site.session.elevation_deg},  # the calibrator choice depends on it
-        code_paths=feature_source_paths(), features_version=FEATURES_VERSION)
+    key = featurecache.key_for(
+        inputs.feed_path,
+        Path(inputs.site.source),
+        inputs.registry_path,
+        {
+            "from": t_from,
+            "to": t_to,
+            "time_zone": inputs.feed_layout.time_zone,
+            "session_elevation_deg": inputs.site.session.elevation_deg,
+        },  # the calibrator choice depends on it
+        code_paths=feature_source_paths(),
+        features_version=FEATURES_VERSION,
+    )
     features = None if args.no_cache else featurecache.load(key)
     if features is None:
         features = _compute_features(inputs, scenario, t_from, t_to)
@@ -131,8 +174,9 @@ def cmd_replay(args: argparse.Namespace) -> int:
         if attempts is not None:
             comparison["attempts_b"] = _score(other, attempts, inputs, age_limit)
         summary["comparison"] = comparison
-    warnings = coverage_warnings(times, hours, features, inputs.registry, attempts,
-                                 scores["attempts_covered"] if scores else None)
+    warnings = coverage_warnings(
+        times, hours, features, inputs.registry, attempts, scores["attempts_covered"] if scores else None
+    )
     summary["warnings"] = warnings
     if args.csv:
         _write_csv(args.csv, step_table(base, other))
@@ -163,8 +207,11 @@ def _compute_features(inputs, scenario, t_from, t_to) -> pd.DataFrame:
         keep &= times <= t_to
     times = times[keep]
     if len(times) == 0:
-        raise UsageError("no archive rows in the chosen period", field="--from/--to",
-                         hint=f"the archive covers {feed.quality.first_time_utc} to {feed.quality.last_time_utc}")
+        raise UsageError(
+            "no archive rows in the chosen period",
+            field="--from/--to",
+            hint=f"the archive covers {feed.quality.first_time_utc} to {feed.quality.last_time_utc}",
+        )
     on_chunk, progress = _progress(len(times))
     try:
         return replay_features(frame, times, scenario, on_chunk=on_chunk)
@@ -184,8 +231,9 @@ def _table_dict(table: pd.DataFrame) -> dict:
 def _score(replayed, attempts, inputs, age_limit: float) -> dict:
     """Both methods scored against the attempts; per-rule tables only for rules that concern the method."""
     applies = {r.id: r.applies_to for r in replayed.decisions.rules} if replayed.decisions is not None else None
-    return score_attempts(replayed.times_utc, replayed.verdict, replayed.rule_eval, attempts,
-                          age_limit, replayed.feasible, applies)
+    return score_attempts(
+        replayed.times_utc, replayed.verdict, replayed.rule_eval, attempts, age_limit, replayed.feasible, applies
+    )
 
 
 def _write_csv(path: str, table: pd.DataFrame) -> None:
@@ -195,7 +243,6 @@ def _write_csv(path: str, table: pd.DataFrame) -> None:
         atomic_write_text(path, table.to_csv(index=False, lineterminator="\n"))
     except OSError as exc:
         raise UsageError(f"cannot write {path}: {exc.strerror}", field="--csv") from None
-
 
 
 def _pct(rate) -> str:

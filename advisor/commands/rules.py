@@ -21,18 +21,26 @@ import numpy as np
 from advisor.commands import session
 from advisor.features import CATALOGUE, FEATURES
 from advisor.fmt import freq_wave_text
-from advisor.rules.loader import default_rule_files
 from advisor.io.site import Site, load_site
-from advisor.rules.condition import (Call, Compare, Convert, Name, Node, Number, Unary, condition_parts, evaluate_row,
-                                     names_in)
-from advisor.rules.loader import lint_files
+from advisor.rules.condition import (
+    Call,
+    Compare,
+    Convert,
+    Name,
+    Node,
+    Number,
+    Unary,
+    condition_parts,
+    evaluate_row,
+    names_in,
+)
+from advisor.rules.loader import default_rule_files, lint_files
 from advisor.rules.ruleset import RuleSet
 from advisor.text import clean_text
 from advisor.vocabulary import DEMO_BANNER, METHODS, VERDICT
 
 #: How a unit of the catalogue is shown next to a number.
-_SHOWN_UNIT = {"degC": "°C", "delta_degC": "°C", "deg": "°", "um": "µm", "1": "", "%": "%",
-               "degC/h": "°C/h"}
+_SHOWN_UNIT = {"degC": "°C", "delta_degC": "°C", "deg": "°", "um": "µm", "1": "", "%": "%", "degC/h": "°C/h"}
 
 
 # --------------------------------------------------------------------------- helpers
@@ -52,8 +60,10 @@ def _display_path(path: Path | str) -> str:
 def rule_files(site: Site, extra: list[str] | None) -> list[tuple[Path, str]]:
     """The layered ``(file, layer)`` list of :func:`advisor.commands.session.rule_files`, files shown
     relative to the working directory where they lie below it (as lint reports them)."""
-    return [(Path(_display_path(p)) if layer != "command line" else p, layer)
-            for p, layer in session.rule_files(site, extra)]
+    return [
+        (Path(_display_path(p)) if layer != "command line" else p, layer)
+        for p, layer in session.rule_files(site, extra)
+    ]
 
 
 class _Out:
@@ -64,13 +74,17 @@ class _Out:
         self.width = shutil.get_terminal_size((100, 24)).columns if tty else None
 
     def line(self, text: str = "", indent: int | None = None) -> None:
-        text = clean_text(text, keep_tabs=True)      # ids, paths and messages come from files
+        text = clean_text(text, keep_tabs=True)  # ids, paths and messages come from files
         if self.width is None or len(text) <= self.width:
             print(text)
             return
         lead = len(text) - len(text.lstrip(" "))
-        wrapped = textwrap.wrap(text.strip(), width=max(20, self.width - lead), break_on_hyphens=False,
-                                subsequent_indent=" " * ((indent if indent is not None else lead + 4) - lead))
+        wrapped = textwrap.wrap(
+            text.strip(),
+            width=max(20, self.width - lead),
+            break_on_hyphens=False,
+            subsequent_indent=" " * ((indent if indent is not None else lead + 4) - lead),
+        )
         for piece in wrapped:
             print(" " * lead + piece)
 
@@ -129,9 +143,8 @@ def _part_numbers(part: Node, row: dict) -> str:
     inner = part.operand if isinstance(part, Unary) else part
     if isinstance(inner, Compare) and len(inner.ops) == 1:
         left, right = inner.operands
-        unit = _unit_of(left) or _unit_of(right)     # both sides are in one unit after checking
-        return (f"{_quantity(evaluate_row(left, row), unit)} {inner.ops[0]} "
-                f"{_quantity(evaluate_row(right, row), unit)}")
+        unit = _unit_of(left) or _unit_of(right)  # both sides are in one unit after checking
+        return f"{_quantity(evaluate_row(left, row), unit)} {inner.ops[0]} {_quantity(evaluate_row(right, row), unit)}"
     if isinstance(inner, Name):
         return f"{inner.name} = {_number(row.get(inner.name))}"
     if isinstance(inner, Call) and inner.func == "missing":
@@ -177,7 +190,7 @@ def cmd_lint(args: argparse.Namespace) -> int:
     known = {Path(p).resolve() for p, _ in files}
     for name in args.files:
         if Path(name).resolve() in known:
-            continue                       # already linted as a default or site file
+            continue  # already linted as a default or site file
         known.add(Path(name).resolve())
         files.append((Path(name), "command line"))
     report = lint_files(files, CATALOGUE)
@@ -264,8 +277,9 @@ def cmd_explain(args: argparse.Namespace) -> int:
         out.line(f"{mark}  {rule.id}  [{rule.applies_to} · {rule.effect}]")
         if rule.id in undecided:
             needs = ", ".join(sorted(rule.condition.needs_inputs))
-            out.line(f"       unknown: it needs {needs}, not seen at this time; it neither fired nor cleared",
-                     indent=12)
+            out.line(
+                f"       unknown: it needs {needs}, not seen at this time; it neither fired nor cleared", indent=12
+            )
         out.line(f"       from {_where(rule, result.inputs.site)}", indent=12)
         out.line(f"       when {rule.condition_text}", indent=12)
         for part in condition_parts(rule.condition.ast, keep_not=True):
@@ -275,19 +289,23 @@ def cmd_explain(args: argparse.Namespace) -> int:
             out.line(f"         {text}: {value}" + (f"  ({numbers})" if numbers else ""), indent=13)
         used = set(rule.condition.names)
         if rule.error is not None:
-            if fired:       # the term the decision added
+            if fired:  # the term the decision added
                 term = float(error_of[rule.id][0])
-            else:           # what the term would be: the decision added nothing
+            else:  # what the term would be: the decision added nothing
                 term = float(rule.error.evaluate(columns, length=1)[0]) * rule.error_scale
             state = "added" if fired else "not added"
-            shown = f"{_number(term)} µm" if rule.error_text == _number(term) else \
-                f"{rule.error_text} = {_number(term)} µm"
+            shown = (
+                f"{_number(term)} µm" if rule.error_text == _number(term) else f"{rule.error_text} = {_number(term)} µm"
+            )
             out.line(f"       error term: {shown} ({state})", indent=12)
             used |= rule.error.names
         unexplained = used - _shown_in_parts(rule.condition.ast)
         if unexplained:
-            out.line("       values: " + ", ".join(f"{n} = {_quantity(row.get(n), _catalogue_unit(n))}"
-                                                  for n in sorted(used)), indent=15)
+            out.line(
+                "       values: "
+                + ", ".join(f"{n} = {_quantity(row.get(n), _catalogue_unit(n))}" for n in sorted(used)),
+                indent=15,
+            )
         if fired:
             out.line(f"       says: {rule.message_for(row)}", indent=13)
     return 0
@@ -322,10 +340,14 @@ def cmd_features(args: argparse.Namespace) -> int:
     out.line(f"{len(FEATURES)} features a condition or a message may use (name, unit, meaning):")
     for spec in FEATURES:
         out.line(f"  {spec.name:<{width}}  {spec.unit:<{unit_width}}  {spec.meaning}", indent=width + unit_width + 6)
-    out.line("Messages may also name: calibrator_name (text), and {limit}, {limit_2}, ... - the condition's own "
-             "numbers as written, so a message never shows a threshold the condition no longer uses.")
-    out.line("A number written with a unit converts into the feature's unit (wind_gust_ms > 16 kn); "
-             "a bare number is in the feature's unit. See docs/rules.md.")
+    out.line(
+        "Messages may also name: calibrator_name (text), and {limit}, {limit_2}, ... - the condition's own "
+        "numbers as written, so a message never shows a threshold the condition no longer uses."
+    )
+    out.line(
+        "A number written with a unit converts into the feature's unit (wind_gust_ms > 16 kn); "
+        "a bare number is in the feature's unit. See docs/rules.md."
+    )
     return 0
 
 
@@ -334,40 +356,62 @@ def cmd_features(args: argparse.Namespace) -> int:
 
 def add_parser(sub, name: str, help: str) -> None:
     """Register ``advisor rules`` and its actions."""
-    rules = sub.add_parser(name, help=help,
-                           description="The YAML rule set: check it, see what is in effect, see why it "
-                                       "fired, and list what conditions may use. Syntax: docs/rules.md.")
+    rules = sub.add_parser(
+        name,
+        help=help,
+        description="The YAML rule set: check it, see what is in effect, see why it "
+        "fired, and list what conditions may use. Syntax: docs/rules.md.",
+    )
     actions = rules.add_subparsers(dest="rules_action", metavar="ACTION")
 
-    lint = actions.add_parser("lint", help="check rule files and report every problem",
-                              description="Check the default rules, the site's rule files and FILE... "
-                                          "(layered in that order) and report every problem as "
-                                          "file:line:column. Exit 0 when clean, 2 on errors (or on "
-                                          "warnings with --strict).")
+    lint = actions.add_parser(
+        "lint",
+        help="check rule files and report every problem",
+        description="Check the default rules, the site's rule files and FILE... "
+        "(layered in that order) and report every problem as "
+        "file:line:column. Exit 0 when clean, 2 on errors (or on "
+        "warnings with --strict).",
+    )
     lint.add_argument("files", nargs="*", metavar="FILE", help="rule files layered over the defaults and the site's")
-    lint.add_argument("--site", metavar="SITE.yaml", help="site file whose rule files are linted too "
-                      "(default: the bundled invented demo site)")
+    lint.add_argument(
+        "--site",
+        metavar="SITE.yaml",
+        help="site file whose rule files are linted too (default: the bundled invented demo site)",
+    )
     lint.add_argument("--strict", action="store_true", help="treat warnings as errors (exit 2)")
     lint.set_defaults(func=cmd_lint)
 
-    show = actions.add_parser("show", help="the effective rule table after layering",
-                              description="Print every rule in effect: id, applies to, effect, condition, "
-                                          "and the file and layer it came from.")
+    show = actions.add_parser(
+        "show",
+        help="the effective rule table after layering",
+        description="Print every rule in effect: id, applies to, effect, condition, "
+        "and the file and layer it came from.",
+    )
     show.add_argument("--site", metavar="SITE.yaml", help=session.SITE_HELP)
-    show.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
-                      help="extra rule files layered over the defaults and the site's")
+    show.add_argument(
+        "--rules",
+        metavar="FILE.yaml",
+        nargs="+",
+        action="extend",
+        help="extra rule files layered over the defaults and the site's",
+    )
     show.add_argument("--for", dest="method", choices=METHODS, help="only the rules that apply to this method")
     show.set_defaults(func=cmd_show)
 
-    explain = actions.add_parser("explain", help="every rule's condition at one instant, with its numbers",
-                                 description="Evaluate the feed at one instant (options as for check) and "
-                                             "show every rule: its condition's value and the numbers behind it.")
+    explain = actions.add_parser(
+        "explain",
+        help="every rule's condition at one instant, with its numbers",
+        description="Evaluate the feed at one instant (options as for check) and "
+        "show every rule: its condition's value and the numbers behind it.",
+    )
     session.add_evaluation_options(explain)
     explain.set_defaults(func=cmd_explain)
 
-    features = actions.add_parser("features", help="the feature names conditions may use",
-                                  description="List every feature a condition or message may name, with "
-                                              "its unit and meaning.")
+    features = actions.add_parser(
+        "features",
+        help="the feature names conditions may use",
+        description="List every feature a condition or message may name, with its unit and meaning.",
+    )
     features.set_defaults(func=cmd_features)
 
     rules.set_defaults(func=lambda a: session.missing_action(rules))

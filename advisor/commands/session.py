@@ -27,15 +27,11 @@ Command modules import this module, never each other.
 from __future__ import annotations
 
 import argparse
-import datetime as dt
 import math
-import os
-import re
 import sys
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Literal
-from zoneinfo import ZoneInfo
 
 import pandas as pd
 
@@ -44,7 +40,6 @@ from advisor.io.bundled import is_demo_file
 from advisor.io.feed import CHECK_TAIL_BYTES, Feed, FeedQuality, read_feed
 from advisor.io.references import Registry, read_registry
 from advisor.io.site import FeedLayout, Site, load_site
-from advisor.io.times import parse_time_arg
 
 if TYPE_CHECKING:
     from advisor.decision import Call, Decisions
@@ -52,272 +47,58 @@ if TYPE_CHECKING:
     from advisor.rules.ruleset import RuleSet
     from advisor.views.context import Context
 
-# --------------------------------------------------------------------------- option parsers
-
-DEFAULT_FREQ_GHZ = 86.0
-FREQ_RANGE_GHZ = (1.0, 1000.0)
-FUTURE_TOLERANCE = pd.Timedelta(minutes=5)  # logger clocks may run a little fast
-NO_MODEL = ("none", "off")
-#: Words a time option accepts besides ISO 8601: ``now``, and the start of a day counted back.
-DAY_WORDS = {"today": 0, "yesterday": 1}
-TIME_FORMS = "ISO 8601 with Z or an offset, 'now', or 'today'/'yesterday' (00:00 site time)"
-
-_FREQ = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][-+]?\d+)?)\s*([A-Za-zµ]*)\s*$")
-_FREQ_UNITS_GHZ = {"": 1.0, "ghz": 1.0, "mhz": 1e-3, "thz": 1e3}
-_WAVE_UNITS_MM = {"mm": 1.0, "cm": 10.0, "um": 1e-3, "µm": 1e-3, "m": 1000.0}
-
-
-ELEVATION_RANGE_DEG = (5.0, 90.0)
-
-
-def parse_elevation_deg(text: str, field: str = "--elevation") -> float:
-    """``45``, ``45deg`` or ``45°`` → the session's elevation [deg], within 5..90."""
-    m = re.match(r"^\s*([0-9]*\.?[0-9]+)\s*(deg|°)?\s*$", str(text))
-    if not m:
-        raise UsageError(f"cannot read elevation {text!r}", field=field, hint="write degrees, e.g. 45 or 45deg")
-    value = float(m.group(1))
-    lo, hi = ELEVATION_RANGE_DEG
-    if not lo <= value <= hi:
-        raise UsageError(f"elevation {value:g} deg is outside {lo:g}..{hi:g} deg", field=field,
-                         hint="give the elevation the session observes at, e.g. 45")
-    return value
-
-
-def parse_frequency_ghz(text: str, field: str = "--freq") -> float:
-    """``86``, ``86GHz``, ``86 GHz`` or a wavelength like ``3.5mm`` → frequency [GHz]."""
-    m = _FREQ.match(str(text))
-    if not m:
-        raise UsageError(f"cannot read frequency {text!r}", field=field,
-                         hint="write e.g. 86, 86GHz or a wavelength like 3.5mm")
-    value, unit = float(m.group(1)), m.group(2)
-    key = unit.lower() if unit != "µm" else unit
-    if key in _FREQ_UNITS_GHZ:
-        ghz = value * _FREQ_UNITS_GHZ[key]
-    elif key in _WAVE_UNITS_MM:
-        mm = value * _WAVE_UNITS_MM[key]
-        if mm <= 0:
-            raise UsageError(f"wavelength {text!r} must be positive", field=field)
-        ghz = 299_792_458.0 / (mm * 1e-3) / 1e9
-    else:
-        raise UsageError(f"unknown unit {unit!r} in frequency {text!r}", field=field,
-                         hint="use GHz, MHz, THz, or a wavelength in mm/cm")
-    lo, hi = FREQ_RANGE_GHZ
-    if not lo <= ghz <= hi:
-        raise UsageError(f"frequency {ghz:g} GHz is outside {lo:g}..{hi:g} GHz", field=field,
-                         hint="give the observing frequency, e.g. 86")
-    return ghz
-
-
-@dataclass(frozen=True)
-class TimeOption:
-    """A time given on the command line: an instant, or the start of a day counted back from today.
-
-    ``today`` and ``yesterday`` mean 00:00 in the site's time zone, so they are resolved once the
-    site is known (:meth:`resolve`); every other form is an instant already.
-    """
-
-    field: str                        # the option it came from, e.g. "--from"
-    text: str
-    instant_utc: pd.Timestamp | None = None
-    days_back: int | None = None      # 0 today, 1 yesterday
-
-    def resolve(self, time_zone: str | None, now_utc: pd.Timestamp | None = None) -> pd.Timestamp:
-        """The UTC instant; day words are midnight in ``time_zone`` (UTC when None)."""
-        if self.instant_utc is not None:
-            return self.instant_utc
-        zone = ZoneInfo(time_zone or "UTC")
-        now = (now_utc if now_utc is not None else pd.Timestamp.now(tz="UTC")).tz_convert(zone)
-        day = now.date() - dt.timedelta(days=self.days_back or 0)
-        return pd.Timestamp(dt.datetime.combine(day, dt.time(0), tzinfo=zone)).tz_convert("UTC")
-
-
-_WORDS_HINT = "; or now, today, yesterday"
-_CUT_SHORT = "the line may have been cut short while it was written; "   # said for a file's line
-_EPOCH = re.compile(r"[+-]?\d+(?:\.\d*)?")
-
-
-def parse_time(text: str | None, field: str) -> TimeOption | None:
-    """A time option (``--at``, ``--from``, ``--to``, ``--time``); ``None`` stays None.
-
-    Accepts ISO 8601 with ``Z`` or an offset (read strictly by
-    :func:`advisor.io.times.parse_time_arg`: range-checked, ``+00`` and lower-case ``t``/``z``
-    allowed), ``now``, ``today`` or ``yesterday``; anything else is a :class:`UsageError` naming
-    ``field`` and saying what is wrong (a bare number names the epoch unit it looks like).
-    """
-    if text is None:
-        return None
-    word = str(text).strip().lower()
-    if word in DAY_WORDS:
-        return TimeOption(field, text, days_back=DAY_WORDS[word])
-    if _EPOCH.fullmatch(word):
-        what, hint = _epoch_message(word)
-        raise UsageError(what, field=field, hint=hint)
-    try:
-        return TimeOption(field, text, instant_utc=parse_time_arg(text, field))
-    except UsageError as exc:  # an option was typed, not cut short while being written
-        hint = (exc.hint or "").replace(_CUT_SHORT, "")
-        if "ISO 8601" in hint:
-            hint += _WORDS_HINT
-        exc.hint = hint or None
-        raise
-
-
-def _epoch_message(text: str) -> tuple[str, str]:
-    """``(what, hint)`` for a bare number given as a time: name the epoch unit it looks like, if any."""
-    from advisor.io.times import TIME_RANGE_UTC
-
-    digits = len(text.lstrip("+-").split(".")[0])
-    value = float(text) if digits < 40 else float("inf")
-    lo, hi = (t.value / 1e9 for t in TIME_RANGE_UTC)
-    for unit, seconds, width in (("seconds", value, (9, 10)), ("milliseconds", value / 1e3, (12, 13))):
-        if width[0] <= digits <= width[1] and lo <= seconds < hi:
-            iso = pd.Timestamp(seconds, unit="s", tz="UTC").strftime("%Y-%m-%dT%H:%M:%SZ")
-            return (f"{text!r} is a number, not a time (as epoch {unit} it would be {iso})",
-                    f"write the time in ISO 8601, e.g. {iso}")
-    return f"{text!r} is a number, not a time", "write ISO 8601 with Z or an offset, e.g. 2026-01-15T09:00:00Z"
-
-
-def time_help(what: str) -> str:
-    """The help text of a time option: what it is, then the forms it accepts."""
-    return f"{what}: {TIME_FORMS}"
-
-
-def add_evaluation_options(p: argparse.ArgumentParser, with_at: bool = True) -> None:
-    """The options every evaluating command shares (``check`` and those that say "options as for check")."""
-    p.add_argument("--feed", metavar="FEED", help="weather feed, CSV or JSON Lines (default: the site's feed)")
-    p.add_argument("--site", metavar="SITE.yaml", help=SITE_HELP)
-    p.add_argument("--freq", default="86", metavar="FREQ",
-                   help="target frequency: 86, 86GHz, or a wavelength like 3.5mm (default 86 GHz)")
-    if with_at:
-        p.add_argument("--at", metavar="TIME", help=time_help(
-            "evaluation time (default: now; the last sample for the demo feed)"))
-    p.add_argument("--elevation", metavar="DEG", help="elevation the session observes at, 5..90 deg (default: the "
-                   "site's session.elevation_deg, 45 if it gives none): where the laser corrects the surface, the "
-                   "calibrator is preferred near it, and the atmosphere's transmission is taken")
-    p.add_argument("--references", metavar="REFS.csv", help="reference-scan registry (default: the site's)")
-    p.add_argument("--rules", metavar="FILE.yaml", nargs="+", action="extend",
-                   help="extra rule files layered over the defaults and the site's")
-    p.add_argument("--model", metavar="MODEL.json", help="site model giving p_usable (default: the site's "
-                   "model.path; 'none' for rules only)")
-
-
-def add_session_option(p: argparse.ArgumentParser) -> None:
-    """``--session-hours``: the session the choice between methods is made for."""
-    p.add_argument("--session-hours", metavar="H", help="length of the session the correction is for [h]: "
-                   "holography's extra minutes must pay back within it (default: the site's "
-                   "thresholds.session_hours; 0: no session length, the fixed efficiency margin decides)")
-
-
-def parse_hours(text: str | None, field: str, lo: float, hi: float) -> float | None:
-    """A number of hours from the command line (None stays None); errors name the option."""
-    if text is None:
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise UsageError(f"{text!r} is not a number", field=field, hint=f"give hours between {lo:g} and {hi:g}") from None
-    if not (lo <= value <= hi):
-        raise UsageError(f"{value:g} is outside {lo:g}..{hi:g}", field=field, hint="give the length in hours")
-    return value
-
-
-def missing_action(parser: argparse.ArgumentParser) -> int:
-    """A command with actions called without one: usage and one line on stderr, exit 2."""
-    parser.print_usage(sys.stderr)
-    print(f"{parser.prog}: error: choose an action (see --help)", file=sys.stderr)
-    return 2
-
-
-def want_color(stream) -> bool:
-    """Colour only on a terminal, and never with ``NO_COLOR`` set."""
-    try:
-        return stream.isatty() and "NO_COLOR" not in os.environ
-    except (ValueError, OSError, AttributeError):  # a closed stdout (None when the shell closed it)
-        return False
-
-
-def emit(write) -> bool:
-    """Run ``write()`` (which prints the command's output); False when stdout could not take it.
-
-    A closed pipe (``check ... | true``), a closed or full stdout never changes a command's exit
-    status: the call's status is what scripts rely on.  A closed pipe is silent; any other
-    failure to write says so on stderr.  Stdout is then pointed at the null device so that
-    Python's final flush cannot fail again.
-    """
-    import sys
-
-    if sys.stdout is None:  # started with stdout closed: nothing can be written
-        return False
-    try:
-        write()
-        sys.stdout.flush()
-        return True
-    except BrokenPipeError:
-        pass
-    except (OSError, ValueError) as exc:
-        try:
-            print(f"advisor: warning: could not write to stdout ({exc}); the exit status still gives the call",
-                  file=sys.stderr)
-        except (OSError, ValueError):
-            pass
-    try:
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-    except (OSError, ValueError):
-        pass
-    return False
-
-
-# --------------------------------------------------------------------------- the request
-
-
-SITE_ENV = "ADVISOR_SITE"
-SITE_HELP = ("site file (default: $ADVISOR_SITE, else ~/.config/advisor/site.yaml, else the bundled invented "
-             "demo site)")
-
-
-def config_site_path() -> Path:
-    """Where the operator's site file is looked for when neither --site nor $ADVISOR_SITE is given."""
-    base = os.environ.get("XDG_CONFIG_HOME") or str(Path.home() / ".config")
-    return Path(base) / "advisor" / "site.yaml"
-
-
-def site_location(option: str | None) -> tuple[Path | None, str]:
-    """The site file to use and where that choice came from: ``--site``, ``$ADVISOR_SITE``, the
-    configuration folder's ``site.yaml``, or ``(None, "demo")`` for the bundled demo site."""
-    if option:
-        return Path(option), "--site"
-    named = os.environ.get(SITE_ENV, "").strip()
-    if named:
-        path = Path(named).expanduser()
-        if not path.exists():
-            raise UsageError(f"{SITE_ENV} names {named}, which does not exist", field=SITE_ENV,
-                             hint="point it at your site file, or unset it to use the configuration folder or the demo")
-        return path, SITE_ENV
-    config = config_site_path()
-    if config.exists():
-        return config, str(config)
-    return None, "demo"
+from advisor.commands.options import (  # noqa: F401 (re-exported: the commands use session.*)
+    _CUT_SHORT,
+    _EPOCH,
+    _FREQ,
+    _FREQ_UNITS_GHZ,
+    _WAVE_UNITS_MM,
+    _WORDS_HINT,
+    DAY_WORDS,
+    DEFAULT_FREQ_GHZ,
+    ELEVATION_RANGE_DEG,
+    FREQ_RANGE_GHZ,
+    FUTURE_TOLERANCE,
+    NO_MODEL,
+    SITE_ENV,
+    SITE_HELP,
+    TIME_FORMS,
+    TimeOption,
+    _epoch_message,
+    add_evaluation_options,
+    add_session_option,
+    config_site_path,
+    emit,
+    missing_action,
+    parse_elevation_deg,
+    parse_frequency_ghz,
+    parse_hours,
+    parse_time,
+    site_location,
+    time_help,
+    want_color,
+)
 
 
 @dataclass(frozen=True)
 class Request:
     """The shared options of one command line, parsed and checked once."""
 
-    site_path: Path | None = None        # None: the bundled demo site
-    site_origin: str = "demo"            # --site, ADVISOR_SITE, the configuration file's path, or demo
-    feed_path: Path | None = None        # None: the site's feed
+    site_path: Path | None = None  # None: the bundled demo site
+    site_origin: str = "demo"  # --site, ADVISOR_SITE, the configuration file's path, or demo
+    feed_path: Path | None = None  # None: the site's feed
     freq_ghz: float = DEFAULT_FREQ_GHZ
-    at: TimeOption | None = None         # None: the default evaluation time
+    at: TimeOption | None = None  # None: the default evaluation time
     references_path: Path | None = None  # None: the site's registry
-    rule_files: tuple[Path, ...] = ()    # layered over the defaults and the site's
-    model: str | None = None             # MODEL.json, 'none'/'off', or None: the site's
-    session_hours: float | None = None   # None: the site's thresholds.session_hours
-    elevation_deg: float | None = None   # None: the site's session.elevation_deg
+    rule_files: tuple[Path, ...] = ()  # layered over the defaults and the site's
+    model: str | None = None  # MODEL.json, 'none'/'off', or None: the site's
+    session_hours: float | None = None  # None: the site's thresholds.session_hours
+    elevation_deg: float | None = None  # None: the site's session.elevation_deg
 
 
 def request_from(args: argparse.Namespace) -> Request:
     """Parse the shared options of ``args`` (those a command does not have take their defaults)."""
+
     def path(name: str) -> Path | None:
         value = getattr(args, name, None)
         return Path(value) if value else None
@@ -371,8 +152,9 @@ def load_ruleset(site: Site, extra=()) -> RuleSet:
     return load_rules(rule_files(site, extra), CATALOGUE)
 
 
-def model_for(choice: str | None, site: Site, notes: list[str],
-              demo_model_on_other_feed: bool = False) -> SiteModel | None:
+def model_for(
+    choice: str | None, site: Site, notes: list[str], demo_model_on_other_feed: bool = False
+) -> SiteModel | None:
     """The site model giving the odds: ``--model FILE`` / ``--model none``, else the site's model.
 
     An unusable file is reported on stderr and in ``notes``; the call then rests on the rules.
@@ -403,17 +185,17 @@ class Inputs:
     """Everything loaded for one evaluation."""
 
     site: Site
-    feed: Feed | None             # None when loaded with read=None (the feed is only located)
+    feed: Feed | None  # None when loaded with read=None (the feed is only located)
     feed_path: Path
     feed_layout: FeedLayout
     rules: RuleSet
     registry: Registry
     registry_path: Path | None
     freq_ghz: float
-    is_demo: bool                   # the demo site, feed or registry is in use (however named): the banner shows
+    is_demo: bool  # the demo site, feed or registry is in use (however named): the banner shows
     notes: tuple[str, ...]
     model: SiteModel | None = None  # None: rules and error budget only
-    demo_feed: bool = False         # the feed is the bundled demo feed: evaluate at its last sample by default
+    demo_feed: bool = False  # the feed is the bundled demo feed: evaluate at its last sample by default
 
     def require_feed(self) -> Feed:
         """The feed as read (``load_inputs`` with ``read="tail"`` or ``"whole"``)."""
@@ -445,32 +227,56 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     if request.feed_path is not None:
         path = request.feed_path
         if request.site_path is None:
-            notes.append(f"No site given (--site, ${SITE_ENV} or {config_site_path()}): using the demo site's "
-                         "location and figures.")
+            notes.append(
+                f"No site given (--site, ${SITE_ENV} or {config_site_path()}): using the demo site's "
+                "location and figures."
+            )
     elif site.feed.path is not None:
         path = site.feed.path
     else:
-        raise UsageError("no feed given and the site file names none", field="--feed",
-                         hint="pass --feed FILE or set feed.path in the site file")
+        raise UsageError(
+            "no feed given and the site file names none",
+            field="--feed",
+            hint="pass --feed FILE or set feed.path in the site file",
+        )
     registry_path = request.references_path or site.references_path
     demo_feed = is_demo_file(path)
     is_demo = site.is_demo or demo_feed or is_demo_file(registry_path)
     layout = feed_layout(site, request.feed_path is not None and not demo_feed)
     feed = None
     if read is not None:
-        feed = read_feed(path, layout, tail_bytes=CHECK_TAIL_BYTES if read == "tail" else None,
-                         issue_time_column=site.forecast.issue_time_column)
+        feed = read_feed(
+            path,
+            layout,
+            tail_bytes=CHECK_TAIL_BYTES if read == "tail" else None,
+            issue_time_column=site.forecast.issue_time_column,
+        )
         note = check_feed_zone(feed, site, layout)
         if note:
             notes.append(note)
-        layout = layout.as_read(feed.quality.sources)       # messages name the columns actually read
+        layout = layout.as_read(feed.quality.sources)  # messages name the columns actually read
         site = replace(site, feed=layout)
     registry = read_registry(registry_path)
     rules = load_ruleset(site, request.rule_files)
-    model = model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not demo_feed) \
-        if with_model else None
-    return Inputs(site, feed, path, layout, rules, registry, registry_path, request.freq_ghz, is_demo,
-                  tuple(notes), model, demo_feed)
+    model = (
+        model_for(request.model, site, notes, demo_model_on_other_feed=site.is_demo and not demo_feed)
+        if with_model
+        else None
+    )
+    return Inputs(
+        site,
+        feed,
+        path,
+        layout,
+        rules,
+        registry,
+        registry_path,
+        request.freq_ghz,
+        is_demo,
+        tuple(notes),
+        model,
+        demo_feed,
+    )
 
 
 def check_feed_zone(feed: Feed, site: Site, layout: FeedLayout) -> str | None:
@@ -481,12 +287,20 @@ def check_feed_zone(feed: Feed, site: Site, layout: FeedLayout) -> str | None:
     """
     from advisor.evaluation.feedcheck import check_time_zone
 
-    zone = check_time_zone(feed.frame, site.latitude_deg, site.longitude_deg, layout.time_label,
-                           layout.time_zone if layout.time_zone is not None else None)
+    zone = check_time_zone(
+        feed.frame,
+        site.latitude_deg,
+        site.longitude_deg,
+        layout.time_label,
+        layout.time_zone if layout.time_zone is not None else None,
+    )
     if zone.status == "refuse":
-        raise FeedError(f"the feed's irradiance contradicts the computed sun: {zone.message}", source=feed.source,
-                        field="time zone", hint="fix feed.time_zone in the site file (or the logger's clock); "
-                                                "'advisor feed inspect' shows the check")
+        raise FeedError(
+            f"the feed's irradiance contradicts the computed sun: {zone.message}",
+            source=feed.source,
+            field="time zone",
+            hint="fix feed.time_zone in the site file (or the logger's clock); 'advisor feed inspect' shows the check",
+        )
     if zone.status == "warn":
         text = f"Time zone doubtful: {zone.message}."
         print(f"advisor: warning: {feed.source}: {text}", file=sys.stderr)
@@ -510,9 +324,11 @@ def evaluation_time(inputs: Inputs, at: TimeOption | None, frame: pd.DataFrame |
         return pd.Timestamp(observed.iloc[-1] if len(observed) else times.iloc[0])
     now = pd.Timestamp.now(tz="UTC")
     if len(observed) and pd.Timestamp(observed.iloc[-1]) > now + FUTURE_TOLERANCE:
-        raise FeedError(f"observed rows run until {observed.iloc[-1]:%Y-%m-%dT%H:%M}Z, after the current time",
-                        source=inputs.feed.source if inputs.feed is not None else None,
-                        hint="check the logger clock and time zone, or pass --at for a past instant")
+        raise FeedError(
+            f"observed rows run until {observed.iloc[-1]:%Y-%m-%dT%H:%M}Z, after the current time",
+            source=inputs.feed.source if inputs.feed is not None else None,
+            hint="check the logger clock and time zone, or pass --at for a past instant",
+        )
     return now
 
 
@@ -535,15 +351,20 @@ def _quality(inputs: Inputs, call: Call) -> dict:
     feed = inputs.require_feed()
     quality = feed.quality.as_dict()
     age = call.features.get("data_age_min")
-    quality.update({"source": feed.source,
-                    "data_age_min": None if age is None or math.isnan(age) else round(float(age), 2),
-                    "ok": bool(call.features.get("data_ok")),
-                    "inputs_not_seen": list(call.unseen_inputs)})
+    quality.update(
+        {
+            "source": feed.source,
+            "data_age_min": None if age is None or math.isnan(age) else round(float(age), 2),
+            "ok": bool(call.features.get("data_ok")),
+            "inputs_not_seen": list(call.unseen_inputs),
+        }
+    )
     return quality
 
 
-def with_site_forecast(inputs: Inputs, request: Request, notes: list[str],
-                       forecast_path: Path | None = None) -> tuple[pd.DataFrame, str | None]:
+def with_site_forecast(
+    inputs: Inputs, request: Request, notes: list[str], forecast_path: Path | None = None
+) -> tuple[pd.DataFrame, str | None]:
     """The feed's frame combined with a forecast file, and the forecast's source (None without one).
 
     ``forecast_path`` names a file explicitly; else the site's ``forecast.path`` is read when the
@@ -558,8 +379,11 @@ def with_site_forecast(inputs: Inputs, request: Request, notes: list[str],
     if path is None:
         return feed.frame, None
     try:
-        fc = read_feed(path, feed_layout(site, named_on_command_line=forecast_path is not None),
-                       issue_time_column=site.forecast.issue_time_column)
+        fc = read_feed(
+            path,
+            feed_layout(site, named_on_command_line=forecast_path is not None),
+            issue_time_column=site.forecast.issue_time_column,
+        )
     except AdvisorError as exc:
         if forecast_path is not None:
             raise
@@ -569,8 +393,15 @@ def with_site_forecast(inputs: Inputs, request: Request, notes: list[str],
     return combine_frames(feed.frame, fc.frame), fc.source
 
 
-def make_context(site: Site, feed_source: str, is_demo: bool, data_quality: dict,
-                 next_window: dict | None = None, notes=(), look_ahead: dict | None = None) -> Context:
+def make_context(
+    site: Site,
+    feed_source: str,
+    is_demo: bool,
+    data_quality: dict,
+    next_window: dict | None = None,
+    notes=(),
+    look_ahead: dict | None = None,
+) -> Context:
     """The rendering context of a result, with every text from a file or argument made safe to print.
 
     Site names, feed paths, notes (which may quote a file) and the data-quality texts pass
@@ -581,9 +412,16 @@ def make_context(site: Site, feed_source: str, is_demo: bool, data_quality: dict
     from advisor.views.context import Context
 
     quality = {k: clean_text(v) if isinstance(v, str) else v for k, v in data_quality.items()}
-    return Context(site_name=clean_text(site.name), time_zone=site.time_zone, feed_source=clean_text(feed_source),
-                   is_demo=is_demo, data_quality=quality, next_window=next_window,
-                   notes=tuple(clean_text(n) for n in notes), look_ahead=look_ahead)
+    return Context(
+        site_name=clean_text(site.name),
+        time_zone=site.time_zone,
+        feed_source=clean_text(feed_source),
+        is_demo=is_demo,
+        data_quality=quality,
+        next_window=next_window,
+        notes=tuple(clean_text(n) for n in notes),
+        look_ahead=look_ahead,
+    )
 
 
 def run_check(request: Request) -> CheckResult:
@@ -600,16 +438,30 @@ def run_check(request: Request) -> CheckResult:
     feed = inputs.require_feed()
     notes = list(inputs.notes)
     frame, forecast_source = with_site_forecast(inputs, request, notes)
-    instant = evaluate_instant(frame, at, inputs.site, inputs.registry, inputs.rules, inputs.freq_ghz,
-                               inputs.odds, forecast_source=forecast_source)
+    instant = evaluate_instant(
+        frame,
+        at,
+        inputs.site,
+        inputs.registry,
+        inputs.rules,
+        inputs.freq_ghz,
+        inputs.odds,
+        forecast_source=forecast_source,
+    )
     if instant.next_window_in_hindsight:
         notes.append("Next window found in observations after the evaluation time (hindsight).")
     postpone = (instant.look_ahead or {}).get("postpone") or {}
-    if postpone and postpone.get("until") != "window":     # no next-window line says until when: a note does
+    if postpone and postpone.get("until") != "window":  # no next-window line says until when: a note does
         notes.extend(r.message for r in instant.call.reasons if r.rule == "postpone.until")
-    ctx = make_context(inputs.site, feed.source + (f" + {forecast_source}" if forecast_source else ""),
-                       inputs.is_demo, _quality(inputs, instant.call), instant.next_window, notes,
-                       look_ahead=instant.look_ahead)
+    ctx = make_context(
+        inputs.site,
+        feed.source + (f" + {forecast_source}" if forecast_source else ""),
+        inputs.is_demo,
+        _quality(inputs, instant.call),
+        instant.next_window,
+        notes,
+        look_ahead=instant.look_ahead,
+    )
     return CheckResult(instant.call, ctx, EXIT_CODES[instant.call.verdict], inputs, instant.decisions)
 
 
@@ -618,8 +470,15 @@ def empty_feed(source: str) -> Feed:
     from advisor.io.feed import canonical_frame
 
     # A one-row canonical table gives the frame its columns and dtypes; the row is dropped.
-    table = pd.DataFrame({"time": ["2000-01-01T00:00:00Z"], "wind_mean_ms": [0.0], "wind_gust_ms": [0.0],
-                          "air_temp_c": [0.0], "rel_humidity_pct": [50.0]})
+    table = pd.DataFrame(
+        {
+            "time": ["2000-01-01T00:00:00Z"],
+            "wind_mean_ms": [0.0],
+            "wind_gust_ms": [0.0],
+            "air_temp_c": [0.0],
+            "rel_humidity_pct": [50.0],
+        }
+    )
     frame = canonical_frame(table, FeedLayout()).frame.iloc[:0]
     return Feed(frame=frame, quality=FeedQuality(0, 0, 0, 0, 0, 0, None, None), source=source)
 
@@ -638,8 +497,15 @@ def check_without_feed(request: Request, error: AdvisorError) -> CheckResult:
     feed = empty_feed(source)
     inputs = replace(located, feed=feed, is_demo=False, notes=())
     at = evaluation_time(inputs, request.at)
-    instant = evaluate_without_weather(feed.frame, at, inputs.site, inputs.registry, inputs.rules,
-                                       inputs.freq_ghz, f"The weather feed cannot be read: {error.one_line()}")
+    instant = evaluate_without_weather(
+        feed.frame,
+        at,
+        inputs.site,
+        inputs.registry,
+        inputs.rules,
+        inputs.freq_ghz,
+        f"The weather feed cannot be read: {error.one_line()}",
+    )
     quality = feed.quality.as_dict()
     quality.update({"source": source, "data_age_min": None, "ok": False, "error": error.one_line()})
     ctx = make_context(inputs.site, source, False, quality)

@@ -19,10 +19,13 @@ def add_parser(sub, name: str, help: str) -> None:
     """Register ``advisor site`` and its action."""
     site = sub.add_parser(name, help=help, description="Start a site file for a new station.")
     actions = site.add_subparsers(dest="action", metavar="ACTION")
-    new = actions.add_parser("new", help="draft a commented site file from the station's feed",
-                             description="Guess how FEED is laid out and write a commented site file with "
-                                         "those guesses and a TODO for everything else (position, zone, ...). "
-                                         "The advisor refuses the file until every TODO is filled in.")
+    new = actions.add_parser(
+        "new",
+        help="draft a commented site file from the station's feed",
+        description="Guess how FEED is laid out and write a commented site file with "
+        "those guesses and a TODO for everything else (position, zone, ...). "
+        "The advisor refuses the file until every TODO is filled in.",
+    )
     new.add_argument("--feed", required=True, metavar="FEED", help="the logger's file, as exported")
     new.add_argument("--out", required=True, metavar="SITE.yaml", help="the site file to write (must not exist)")
     new.set_defaults(func=cmd_new)
@@ -37,10 +40,11 @@ def _write_new(path: Path, text: str) -> None:
     tmp = folder / f".{path.name}.{os.getpid()}.tmp"
     try:
         tmp.write_text(text, encoding="utf-8")
-        os.link(tmp, path)          # fails if the file exists: nothing is overwritten
+        os.link(tmp, path)  # fails if the file exists: nothing is overwritten
     except FileExistsError:
-        raise UsageError(f"{path} exists; nothing written", field="--out",
-                         hint="choose another name, or remove the file first") from None
+        raise UsageError(
+            f"{path} exists; nothing written", field="--out", hint="choose another name, or remove the file first"
+        ) from None
     except OSError as exc:
         raise UsageError(f"cannot write {path}: {exc.strerror}", field="--out") from None
     finally:
@@ -55,16 +59,24 @@ def cmd_new(args: argparse.Namespace) -> int:
     out = check_path(args.out, UsageError, "--out")
     feed = Path(args.feed)
     if out.exists() or out.is_symlink():
-        raise UsageError(f"{out} exists; nothing written", field="--out",
-                         hint="choose another name, or remove the file first")
+        raise UsageError(
+            f"{out} exists; nothing written", field="--out", hint="choose another name, or remove the file first"
+        )
     guess = guess_layout(feed)
     shown = os.path.relpath(feed.resolve(), (out.parent if str(out.parent) else Path(".")).resolve())
     if shown.startswith(os.pardir + os.sep + os.pardir + os.sep + os.pardir):
-        shown = str(feed.resolve())   # far away: the absolute path reads better
+        shown = str(feed.resolve())  # far away: the absolute path reads better
     _write_new(out, draft_site_file(guess, shown, feed.name))
-    todos = ["site.name", "site.latitude_deg", "site.longitude_deg", "site.elevation_m", "site.time_zone",
-             "site.dish_diameter_m", *(f"feed.{k}" if k.startswith(("time", "gust")) else f"feed.columns.{k}"
-                                       for k in guess.todos), "calibrators"]
+    todos = [
+        "site.name",
+        "site.latitude_deg",
+        "site.longitude_deg",
+        "site.elevation_m",
+        "site.time_zone",
+        "site.dish_diameter_m",
+        *(f"feed.{k}" if k.startswith(("time", "gust")) else f"feed.columns.{k}" for k in guess.todos),
+        "calibrators",
+    ]
     import textwrap
 
     print(f"wrote {out}: {len(guess.columns)} columns mapped, {len(todos)} TODOs to fill in:")

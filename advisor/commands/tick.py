@@ -14,11 +14,11 @@ advisory saying why (:mod:`advisor.views.advisory_failed`) before it reports the
 from __future__ import annotations
 
 import argparse
-from datetime import datetime, timezone
 import json
 import os
 import sys
 from dataclasses import dataclass, field
+from datetime import datetime, timezone
 from typing import TYPE_CHECKING, Any
 
 from advisor.commands import session
@@ -51,21 +51,36 @@ and errors go to stderr.  Advisory only - not a safety system."""
 def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
     """Register ``advisor tick`` on the subcommand table ``sub``."""
     p = sub.add_parser(
-        name, help=help,
+        name,
+        help=help,
         description="Evaluate the latest feed, write DIR/advisory.json, .txt and .html atomically, append "
-                    "DIR/history.jsonl, and print (and run the site's notify command) only when the verdict "
-                    "changed since the last run.",
-        epilog=EXIT_HELP, formatter_class=HelpFormatter)
+        "DIR/history.jsonl, and print (and run the site's notify command) only when the verdict "
+        "changed since the last run.",
+        epilog=EXIT_HELP,
+        formatter_class=HelpFormatter,
+    )
     session.add_evaluation_options(p)
     session.add_session_option(p)
     p.add_argument("--json", action="store_true", help="when printing, print the advisory JSON object")
-    p.add_argument("--state-dir", required=True, metavar="DIR",
-                   help="folder for the advisory, history and state (created if its parent exists)")
+    p.add_argument(
+        "--state-dir",
+        required=True,
+        metavar="DIR",
+        help="folder for the advisory, history and state (created if its parent exists)",
+    )
     p.add_argument("--always", action="store_true", help="print the advisory on every run, not only on change")
-    p.add_argument("--notify-on-reasons", action="store_true",
-                   help="also announce when the set of reasons (blocks, cautions, error terms) changes")
-    p.add_argument("--lock-wait", type=float, default=10.0, metavar="SECONDS",
-                   help="how long to wait for an overlapping run to finish (default 10)")
+    p.add_argument(
+        "--notify-on-reasons",
+        action="store_true",
+        help="also announce when the set of reasons (blocks, cautions, error terms) changes",
+    )
+    p.add_argument(
+        "--lock-wait",
+        type=float,
+        default=10.0,
+        metavar="SECONDS",
+        help="how long to wait for an overlapping run to finish (default 10)",
+    )
     p.set_defaults(func=cmd_tick)
     return p
 
@@ -97,8 +112,8 @@ class Outcome:
     status: int = 0
     doc: dict = field(default_factory=dict)
     text: str = ""
-    panel: Any = None                  # the rich panel
-    site: Site | None = None           # None when the run failed
+    panel: Any = None  # the rich panel
+    site: Site | None = None  # None when the run failed
     verdict: str = "undetermined"
 
 
@@ -117,15 +132,22 @@ def _advise(request: session.Request, args, previous, now) -> Outcome:
     if args.at is not None:  # --at drives every clock the advisory shows: issued, since, the state kept
         now = call.time_utc.to_pydatetime()
     blocked_by = {m: c.get("blocked_by", []) for m, c in call.candidates.items()}
-    change = advisory.track_change(previous, call.verdict, advisory.reason_set(call.reasons),
-                                   advisory.utc_text(now), site.tick.dead_feed_ticks, args.notify_on_reasons,
-                                   at_once=advisory.switches_at_once(previous, call.verdict, blocked_by),
-                                   confirm=advisory.Confirm(site.tick.confirm_ticks, site.tick.confirm_min))
+    change = advisory.track_change(
+        previous,
+        call.verdict,
+        advisory.reason_set(call.reasons),
+        advisory.utc_text(now),
+        site.tick.dead_feed_ticks,
+        args.notify_on_reasons,
+        at_once=advisory.switches_at_once(previous, call.verdict, blocked_by),
+        confirm=advisory.Confirm(site.tick.confirm_ticks, site.tick.confirm_min),
+    )
     ctx = with_note(result.ctx, advisory.dead_feed_note(change))
     doc = advisory_json(to_json_dict(call, ctx, result.status), change)
     text = clean_text(issued_line(change) + "\n" + render_plain(call, ctx, status=result.status), keep_newlines=True)
-    full_text = clean_text(issued_line(change) + "\n" + render_plain(call, ctx, details=True, status=result.status),
-                           keep_newlines=True)
+    full_text = clean_text(
+        issued_line(change) + "\n" + render_plain(call, ctx, details=True, status=result.status), keep_newlines=True
+    )
 
     def panel(width: int, height: int):
         return render_panel(call, ctx, width, height, status=result.status)
@@ -134,19 +156,28 @@ def _advise(request: session.Request, args, previous, now) -> Outcome:
         "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
         "advisory.txt": full_text,
         # the page shows the dead-feed note as a banner of its own
-        "advisory.html": advisory_html(call, result.ctx, change,
-                                       float(site.feed.age_limit_min(call.features.get("feed_cadence_min")))),
+        "advisory.html": advisory_html(
+            call, result.ctx, change, float(site.feed.age_limit_min(call.features.get("feed_cadence_min")))
+        ),
         "state.json": json.dumps(change.state.as_dict(), indent=2) + "\n",
     }
-    record = {"issued_utc": change.state.issued_utc, "time_utc": doc["time_utc"], "verdict": call.verdict,
-              "exit_status": result.status, "change": change.kind, "reasons": list(change.state.reasons),
-              "data_age_min": doc["data_quality"].get("data_age_min"),
-              "target_freq_ghz": call.freq_ghz, "undetermined_ticks": change.state.undetermined_ticks,
-              **advisory.conditions(call),
-              "written_utc": advisory.utc_text(datetime.now(timezone.utc)),  # the machine's clock
-              "pid": os.getpid()}
-    return Outcome(files, record, change, site.tick.history_max_bytes, result.status, doc, text, panel, site,
-                   call.verdict)
+    record = {
+        "issued_utc": change.state.issued_utc,
+        "time_utc": doc["time_utc"],
+        "verdict": call.verdict,
+        "exit_status": result.status,
+        "change": change.kind,
+        "reasons": list(change.state.reasons),
+        "data_age_min": doc["data_quality"].get("data_age_min"),
+        "target_freq_ghz": call.freq_ghz,
+        "undetermined_ticks": change.state.undetermined_ticks,
+        **advisory.conditions(call),
+        "written_utc": advisory.utc_text(datetime.now(timezone.utc)),  # the machine's clock
+        "pid": os.getpid(),
+    }
+    return Outcome(
+        files, record, change, site.tick.history_max_bytes, result.status, doc, text, panel, site, call.verdict
+    )
 
 
 def _failed(request: session.Request, args, previous, now, exc: Exception) -> Outcome:
@@ -173,15 +204,31 @@ def _failed(request: session.Request, args, previous, now, exc: Exception) -> Ou
     except Exception:
         time_utc = f"{now:%Y-%m-%dT%H:%M:%S}Z"
     # A failing run is not a dead feed: it never says so, however many fail in a row.
-    change = advisory.track_change(previous, "undetermined", (f"{FAILED_RULE}[both]",), advisory.utc_text(now),
-                                   dead_feed_ticks=10**9, notify_on_reasons=args.notify_on_reasons)
-    files = failed_advisory(change, problem, status, site_name=name, time_utc=time_utc,
-                            freq_ghz=request.freq_ghz, stale_after_min=stale_min)
+    change = advisory.track_change(
+        previous,
+        "undetermined",
+        (f"{FAILED_RULE}[both]",),
+        advisory.utc_text(now),
+        dead_feed_ticks=10**9,
+        notify_on_reasons=args.notify_on_reasons,
+    )
+    files = failed_advisory(
+        change, problem, status, site_name=name, time_utc=time_utc, freq_ghz=request.freq_ghz, stale_after_min=stale_min
+    )
     files["state.json"] = json.dumps(change.state.as_dict(), indent=2) + "\n"
-    record = {"issued_utc": change.state.issued_utc, "time_utc": time_utc, "verdict": "undetermined",
-              "exit_status": status, "change": change.kind, "reasons": list(change.state.reasons),
-              "data_age_min": None, "target_freq_ghz": request.freq_ghz,
-              "undetermined_ticks": change.state.undetermined_ticks, "error": problem, "pid": os.getpid()}
+    record = {
+        "issued_utc": change.state.issued_utc,
+        "time_utc": time_utc,
+        "verdict": "undetermined",
+        "exit_status": status,
+        "change": change.kind,
+        "reasons": list(change.state.reasons),
+        "data_age_min": None,
+        "target_freq_ghz": request.freq_ghz,
+        "undetermined_ticks": change.state.undetermined_ticks,
+        "error": problem,
+        "pid": os.getpid(),
+    }
     return Outcome(files, record, change, tick.history_max_bytes, status)
 
 
@@ -233,13 +280,18 @@ def cmd_tick(args) -> int:
         print(f"advisor: error: {exc.one_line()}", file=sys.stderr)
         return statedir.EXIT_STATE_DIR
     if failure is not None:
-        raise failure     # one line on stderr (advisor.commands.main); the undetermined advisory is published
+        raise failure  # one line on stderr (advisor.commands.main); the undetermined advisory is published
 
     change, doc, text = out.change, out.doc, out.text
     announce = change.kind is not None
     if announce or args.always:
-        headline = change.headline if announce else (
-            f"advisor tick: no change: {VERDICT[out.verdict].label} since {advisory.short_utc(change.state.since_utc)}")
+        headline = (
+            change.headline
+            if announce
+            else (
+                f"advisor tick: no change: {VERDICT[out.verdict].label} since {advisory.short_utc(change.state.since_utc)}"
+            )
+        )
 
         def write() -> None:
             if args.json:
@@ -260,11 +312,21 @@ def cmd_tick(args) -> int:
             payload = json.dumps({**doc, "change": change.kind, "headline": change.headline}, indent=2) + "\n"
         else:
             payload = change.headline + "\n\n" + text
-        env = {"ADVISOR_VERDICT": out.verdict, "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
-               "ADVISOR_CHANGE": change.kind or "", "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
-               "ADVISOR_STATE_DIR": str(state_dir.resolve())}
-        problem = notify.run_notify(argv, payload, out.site.tick.notify_timeout_s, env,
-                                    log_path=state_dir / NOTIFY_LOG, issued=out.change.state.issued_utc)
+        env = {
+            "ADVISOR_VERDICT": out.verdict,
+            "ADVISOR_PREVIOUS_VERDICT": change.previous_verdict or "",
+            "ADVISOR_CHANGE": change.kind or "",
+            "ADVISOR_FEED_LOOKS_DEAD": "1" if change.feed_looks_dead else "0",
+            "ADVISOR_STATE_DIR": str(state_dir.resolve()),
+        }
+        problem = notify.run_notify(
+            argv,
+            payload,
+            out.site.tick.notify_timeout_s,
+            env,
+            log_path=state_dir / NOTIFY_LOG,
+            issued=out.change.state.issued_utc,
+        )
         if problem:
             _warn(problem)
     return out.status

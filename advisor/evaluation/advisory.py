@@ -62,10 +62,17 @@ class TickState:
     pending_ticks: int = 0
 
     def as_dict(self) -> dict:
-        return {"schema": STATE_SCHEMA, "verdict": self.verdict, "reasons": list(self.reasons),
-                "since_utc": self.since_utc, "issued_utc": self.issued_utc,
-                "undetermined_ticks": self.undetermined_ticks, "pending": self.pending,
-                "pending_since_utc": self.pending_since_utc, "pending_ticks": self.pending_ticks}
+        return {
+            "schema": STATE_SCHEMA,
+            "verdict": self.verdict,
+            "reasons": list(self.reasons),
+            "since_utc": self.since_utc,
+            "issued_utc": self.issued_utc,
+            "undetermined_ticks": self.undetermined_ticks,
+            "pending": self.pending,
+            "pending_since_utc": self.pending_since_utc,
+            "pending_ticks": self.pending_ticks,
+        }
 
 
 @dataclass(frozen=True)
@@ -116,7 +123,11 @@ def parse_state(text: str) -> TickState:
         if not isinstance(value, str) or not value.endswith("Z"):
             raise ValueError(f"{key} is not a UTC time")
         datetime.fromisoformat(value[:-1])
-    pending, pending_since, pending_ticks = doc.get("pending"), doc.get("pending_since_utc"), doc.get("pending_ticks", 0)
+    pending, pending_since, pending_ticks = (
+        doc.get("pending"),
+        doc.get("pending_since_utc"),
+        doc.get("pending_ticks", 0),
+    )
     if pending is not None:
         if pending not in VERDICTS or not isinstance(pending_since, str) or not pending_since.endswith("Z"):
             raise ValueError("pending is not a verdict with a UTC time")
@@ -125,17 +136,19 @@ def parse_state(text: str) -> TickState:
             raise ValueError("pending_ticks is not a count")
     else:
         pending_since, pending_ticks = None, 0
-    return TickState(verdict, tuple(reasons), doc["since_utc"], doc["issued_utc"], ticks,
-                     pending, pending_since, pending_ticks)
+    return TickState(
+        verdict, tuple(reasons), doc["since_utc"], doc["issued_utc"], ticks, pending, pending_since, pending_ticks
+    )
 
 
 # --- change tracking (pure) ---------------------------------------------------------------
+
 
 @dataclass(frozen=True)
 class Change:
     """What this tick found compared with the last: ``kind`` is None when nothing to announce."""
 
-    kind: str | None            # first | verdict | reasons | dead_feed | None
+    kind: str | None  # first | verdict | reasons | dead_feed | None
     headline: str
     state: TickState
     previous_verdict: str | None
@@ -147,9 +160,16 @@ def reason_set(reasons) -> tuple[str, ...]:
     return tuple(sorted({f"{r.rule}[{r.applies_to}]" for r in reasons if r.effect != "info"}))
 
 
-def track_change(previous: TickState | None, verdict: str, reasons: tuple[str, ...], issued_utc: str,
-                 dead_feed_ticks: int, notify_on_reasons: bool, at_once: bool = True,
-                 confirm: Confirm | None = None) -> Change:
+def track_change(
+    previous: TickState | None,
+    verdict: str,
+    reasons: tuple[str, ...],
+    issued_utc: str,
+    dead_feed_ticks: int,
+    notify_on_reasons: bool,
+    at_once: bool = True,
+    confirm: Confirm | None = None,
+) -> Change:
     """Compare this tick with the previous state; the new state and what to announce.
 
     A different call is announced at once when ``at_once`` (see :func:`switches_at_once`),
@@ -164,16 +184,19 @@ def track_change(previous: TickState | None, verdict: str, reasons: tuple[str, .
         else:
             ticks, pending_since = 1, issued_utc
         if not confirm.confirmed(ticks, pending_since, issued_utc):
-            state = TickState(previous.verdict, reasons, previous.since_utc, issued_utc, undetermined,
-                              verdict, pending_since, ticks)
+            state = TickState(
+                previous.verdict, reasons, previous.since_utc, issued_utc, undetermined, verdict, pending_since, ticks
+            )
             return Change(None, "", state, previous.verdict, dead)
     if previous is None:
         since, kind = issued_utc, "first"
         headline = f"advisor tick: first advisory in this state dir: {label}"
     elif previous.verdict != verdict:
         since, kind = issued_utc, "verdict"
-        headline = (f"advisor tick: verdict changed: {_label(previous.verdict)} → {label} "
-                    f"({previous.verdict} since {short_utc(previous.since_utc)})")
+        headline = (
+            f"advisor tick: verdict changed: {_label(previous.verdict)} → {label} "
+            f"({previous.verdict} since {short_utc(previous.since_utc)})"
+        )
         if previous.verdict == "undetermined" and previous.undetermined_ticks >= dead_feed_ticks:
             headline += f"; the feed is back after {previous.undetermined_ticks} undetermined ticks"
     else:
@@ -182,8 +205,10 @@ def track_change(previous: TickState | None, verdict: str, reasons: tuple[str, .
         dropped = sorted(set(previous.reasons) - set(reasons))
         if dead and undetermined == dead_feed_ticks:
             kind = "dead_feed"
-            headline = (f"advisor tick: the feed looks dead: {undetermined} consecutive undetermined ticks "
-                        f"since {short_utc(since)}")
+            headline = (
+                f"advisor tick: the feed looks dead: {undetermined} consecutive undetermined ticks "
+                f"since {short_utc(since)}"
+            )
         elif notify_on_reasons and (added or dropped):
             kind = "reasons"
             bits = [f"+ {r}" for r in added] + [f"- {r}" for r in dropped]
@@ -200,8 +225,10 @@ def dead_feed_note(change: Change) -> str | None:
     """A line for the advisory itself while the feed looks dead."""
     if not change.feed_looks_dead:
         return None
-    return (f"THE FEED LOOKS DEAD: {change.state.undetermined_ticks} consecutive undetermined ticks since "
-            f"{short_utc(change.state.since_utc)}. Check the weather logger and its link.")
+    return (
+        f"THE FEED LOOKS DEAD: {change.state.undetermined_ticks} consecutive undetermined ticks since "
+        f"{short_utc(change.state.since_utc)}. Check the weather logger and its link."
+    )
 
 
 def _number(value, digits: int = 4):
@@ -219,5 +246,9 @@ def conditions(call) -> dict:
     weather = {name: _number(call.features.get(name)) for name in WEATHER_COLUMNS}
     odds = {m: _number((call.candidates.get(m) or {}).get("p_usable")) for m in METHODS}
     extrapolated = {m: bool((call.candidates.get(m) or {}).get("extrapolated", False)) for m in METHODS}
-    return {"weather": weather, "p_usable": odds, "odds_extrapolated": extrapolated,
-            "data_ok": bool(call.features.get("data_ok", False))}
+    return {
+        "weather": weather,
+        "p_usable": odds,
+        "odds_extrapolated": extrapolated,
+        "data_ok": bool(call.features.get("data_ok", False)),
+    }

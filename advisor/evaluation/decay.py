@@ -36,8 +36,19 @@ from advisor.physics.thermal import (
 )
 from advisor.vocabulary import METHODS
 
-__all__ = ["LOOKBACK_H", "STEP_MIN", "TREND_HORIZON_H", "FORECAST_HORIZON_H", "structure_temperature_c",
-           "holding_limit_um", "first_exceedance", "trend_rows", "correction_holds", "holds_text", "duration_text"]
+__all__ = [
+    "LOOKBACK_H",
+    "STEP_MIN",
+    "TREND_HORIZON_H",
+    "FORECAST_HORIZON_H",
+    "structure_temperature_c",
+    "holding_limit_um",
+    "first_exceedance",
+    "trend_rows",
+    "correction_holds",
+    "holds_text",
+    "duration_text",
+]
 
 #: Weather history read before the first time, so the lag has settled (six time constants of 1 h).
 LOOKBACK_H = 6.0
@@ -86,13 +97,14 @@ def structure_temperature_c(rows: pd.DataFrame, times_utc, site: Site) -> np.nda
     good = good[np.isfinite(good["air_temp_c"].to_numpy(dtype=float))]
     row_ns = _ns(good["time"])
     lo = np.searchsorted(row_ns, t.min() - int(LOOKBACK_H * 3.6e12), side="left")
-    hi = np.searchsorted(row_ns, t.max(), side="right") + 1          # one row past the last time
+    hi = np.searchsorted(row_ns, t.max(), side="right") + 1  # one row past the last time
     good, row_ns = good.iloc[lo:hi], row_ns[lo:hi]
     if len(good) == 0:
         return np.full(len(t), np.nan)
     figures = site.structure
-    t_eq = equilibrium_temperature_c(good["air_temp_c"].to_numpy(dtype=float), _irradiance_wm2(good, site),
-                                     figures.sun_heating_c_per_kwm2)
+    t_eq = equilibrium_temperature_c(
+        good["air_temp_c"].to_numpy(dtype=float), _irradiance_wm2(good, site), figures.sun_heating_c_per_kwm2
+    )
     hours = (row_ns - row_ns[0]) / 3.6e12
     t_struct = first_order_lag(hours, np.asarray(t_eq, dtype=float), figures.time_constant_h)
     out = np.interp(t, row_ns, t_struct)
@@ -132,22 +144,32 @@ def trend_rows(at_utc: pd.Timestamp, features: dict, site: Site, hours: float = 
     unknown) and the sky its clearness: measured over clear-sky irradiance at ``at_utc``, clipped
     to 0..1, and 1 (clear) with the sun below 5° or no sensor.
     """
-    times = pd.date_range(at_utc + pd.Timedelta(minutes=STEP_MIN), periods=int(round(hours * 60 / STEP_MIN)),
-                          freq=pd.Timedelta(minutes=STEP_MIN))
+    times = pd.date_range(
+        at_utc + pd.Timedelta(minutes=STEP_MIN),
+        periods=int(round(hours * 60 / STEP_MIN)),
+        freq=pd.Timedelta(minutes=STEP_MIN),
+    )
     rate = features.get("air_temp_rate_c_per_h")
     rate = float(rate) if rate is not None and np.isfinite(rate) else 0.0
     temp = float(features.get("air_temp_c", np.nan))
-    elevation_now = float(np.atleast_1d(solar_position(pd.DatetimeIndex([at_utc]), site.latitude_deg,
-                                                       site.longitude_deg)[0])[0])
+    elevation_now = float(
+        np.atleast_1d(solar_position(pd.DatetimeIndex([at_utc]), site.latitude_deg, site.longitude_deg)[0])[0]
+    )
     measured = features.get("solar_wm2")
     clearness = 1.0
     if measured is not None and np.isfinite(measured) and elevation_now >= _MIN_SUN_FOR_CLEARNESS_DEG:
         clearness = float(np.clip(measured / clear_sky_irradiance_wm2(elevation_now), 0.0, 1.0))
     elevation, _ = solar_position(times, site.latitude_deg, site.longitude_deg)
     hours_ahead = (times - at_utc).total_seconds().to_numpy() / 3600.0
-    return pd.DataFrame({"time": times, "air_temp_c": temp + rate * hours_ahead,
-                         "solar_wm2": clearness * np.asarray(clear_sky_irradiance_wm2(elevation)),
-                         "good": True, "kind": "trend"})
+    return pd.DataFrame(
+        {
+            "time": times,
+            "air_temp_c": temp + rate * hours_ahead,
+            "solar_wm2": clearness * np.asarray(clear_sky_irradiance_wm2(elevation)),
+            "good": True,
+            "kind": "trend",
+        }
+    )
 
 
 def duration_text(minutes: float) -> str:
@@ -157,8 +179,7 @@ def duration_text(minutes: float) -> str:
     return "about " + fmt.duration_text(max(int(round(minutes / 10.0) * 10), 10))
 
 
-def correction_holds(frame: pd.DataFrame, at_utc: pd.Timestamp, candidates: dict, features: dict,
-                     site: Site) -> dict:
+def correction_holds(frame: pd.DataFrame, at_utc: pd.Timestamp, candidates: dict, features: dict, site: Site) -> dict:
     """How long each method's correction would hold if started at ``at_utc`` (``check``).
 
     ``frame`` is the canonical frame the call was made on (with forecast rows when the site has a
@@ -195,10 +216,14 @@ def correction_holds(frame: pd.DataFrame, at_utc: pd.Timestamp, candidates: dict
             continue
         end_ns = at_ns + int(round(c["duration_min"] * 6e10))
         grid = np.arange(end_ns, max(horizon_ns, end_ns) + 1, int(STEP_MIN * 6e10), dtype=np.int64)
-        t_struct = structure_temperature_c(rows, pd.DatetimeIndex(grid.astype("datetime64[ns]")).tz_localize("UTC"),
-                                           site)
-        limit = float(holding_limit_um(sigma0, features["freq_ghz"], features["required_surface_rms_um"],
-                                       figures.max_efficiency_loss))
+        t_struct = structure_temperature_c(
+            rows, pd.DatetimeIndex(grid.astype("datetime64[ns]")).tz_localize("UTC"), site
+        )
+        limit = float(
+            holding_limit_um(
+                sigma0, features["freq_ghz"], features["required_surface_rms_um"], figures.max_efficiency_loss
+            )
+        )
         loss_limit = float(holding_limit_um(sigma0, features["freq_ghz"], 0.0, figures.max_efficiency_loss))
         change = t_struct - t_struct[0]
         k = int(first_exceedance(change[None, :], sigma0, limit, figures.drift_um_per_c)[0])
@@ -238,13 +263,19 @@ def holds_text(method: str, holds: dict, features: dict, site: Site) -> str:
     if holds["holds_min"] is None:
         end = pd.Timestamp(holds["horizon_utc"]).tz_convert(zone)
         reach = "the forecast's end" if holds["basis"] == "forecast" else "the next hours"
-        return (f"{label} made now would hold past {reach} ({end:%H:%M %Z}) {basis}: the structure's "
-                "temperature changes too little to spoil it.")
+        return (
+            f"{label} made now would hold past {reach} ({end:%H:%M %Z}) {basis}: the structure's "
+            "temperature changes too little to spoil it."
+        )
     until = pd.Timestamp(holds["until_utc"]).tz_convert(zone)
     if holds["limited_by"] == "requirement":
-        why = (f"then thermal drift takes the surface past λ/{features['surface_requirement_fraction']:g} = "
-               f"{features['required_surface_rms_um']:.0f} µm")
+        why = (
+            f"then thermal drift takes the surface past λ/{features['surface_requirement_fraction']:g} = "
+            f"{features['required_surface_rms_um']:.0f} µm"
+        )
     else:
-        why = (f"then thermal drift has cost {site.structure.max_efficiency_loss:.0%} of the efficiency "
-               "the correction gave")
+        why = (
+            f"then thermal drift has cost {site.structure.max_efficiency_loss:.0%} of the efficiency "
+            "the correction gave"
+        )
     return f"{label} made now would hold {duration_text(holds['holds_min'])} (until {until:%H:%M %Z}) {basis}: {why}."

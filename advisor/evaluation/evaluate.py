@@ -14,8 +14,8 @@ the evaluation times.
 
 from __future__ import annotations
 
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
-from typing import Callable, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
@@ -79,23 +79,38 @@ class Scenario:
         columns = columns_of(features, targets)
         p_usable = self.odds(features) if self.odds else None
         n = len(features)
-        return [decide(features, targets, rules.evaluate(columns, n), rules, self.site, p_usable)
-                for rules in (rule_sets if rule_sets is not None else [self.rules])]
+        return [
+            decide(features, targets, rules.evaluate(columns, n), rules, self.site, p_usable)
+            for rules in (rule_sets if rule_sets is not None else [self.rules])
+        ]
 
     def evaluate(self, frame: pd.DataFrame, times_utc) -> Decisions:
         """Decisions at every time of ``times_utc`` from the canonical ``frame``."""
         return self.decide(self.row_features(frame, times_utc))[0]
 
 
-def evaluate(frame: pd.DataFrame, times_utc, site: Site, registry: Registry, rules: RuleSet,
-             freq_ghz: float, odds: OddsFunction | None = None) -> Decisions:
+def evaluate(
+    frame: pd.DataFrame,
+    times_utc,
+    site: Site,
+    registry: Registry,
+    rules: RuleSet,
+    freq_ghz: float,
+    odds: OddsFunction | None = None,
+) -> Decisions:
     """Decisions at every time in ``times_utc`` (shorthand for ``Scenario(...).evaluate``)."""
     return Scenario(site, registry, rules, freq_ghz, odds).evaluate(frame, times_utc)
 
 
-def evaluate_rule_sets(frame: pd.DataFrame, times_utc, site: Site, registry: Registry,
-                       rule_sets: Sequence[RuleSet], freq_ghz: float,
-                       odds: OddsFunction | None = None) -> list[Decisions]:
+def evaluate_rule_sets(
+    frame: pd.DataFrame,
+    times_utc,
+    site: Site,
+    registry: Registry,
+    rule_sets: Sequence[RuleSet],
+    freq_ghz: float,
+    odds: OddsFunction | None = None,
+) -> list[Decisions]:
     """Decisions under each rule set, from features (and model odds) computed once."""
     scenario = Scenario(site, registry, rule_sets[0], freq_ghz, odds)
     return scenario.decide(scenario.row_features(frame, times_utc), rule_sets)

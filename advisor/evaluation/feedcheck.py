@@ -21,8 +21,7 @@ from advisor.io.feed import Feed
 from advisor.io.feedlayout import CANONICAL_COLUMNS, CANONICAL_UNITS, FeedLayout, zone_label
 from advisor.physics.sun import solar_position
 
-__all__ = ["SUNLIT_WM2", "SUN_DOWN_DEG", "ZoneCheck", "check_time_zone", "FeedReport", "ColumnReport",
-           "inspect_feed"]
+__all__ = ["SUNLIT_WM2", "SUN_DOWN_DEG", "ZoneCheck", "check_time_zone", "FeedReport", "ColumnReport", "inspect_feed"]
 
 #: Irradiance that needs the sun up [W/m²]: well above a sensor's night offset and twilight.
 SUNLIT_WM2 = 50.0
@@ -48,11 +47,11 @@ SHIFTS_H = np.arange(-24, 25) / 2.0
 class ZoneCheck:
     """The feed's irradiance against the computed sun."""
 
-    status: str                      # "ok", "unchecked", "warn", "refuse"
-    sunlit_rows: int = 0             # samples with irradiance above SUNLIT_WM2 (among those checked)
-    contradicting: int = 0           # sunlit with the sun down, or dark with the sun high
+    status: str  # "ok", "unchecked", "warn", "refuse"
+    sunlit_rows: int = 0  # samples with irradiance above SUNLIT_WM2 (among those checked)
+    contradicting: int = 0  # sunlit with the sun down, or dark with the sun high
     checked_rows: int = 0
-    best_shift_h: float = 0.0        # the shift of the times that fits best (0: as read)
+    best_shift_h: float = 0.0  # the shift of the times that fits best (0: as read)
     best_contradicting: int = 0
     message: str = ""
 
@@ -61,8 +60,9 @@ class ZoneCheck:
         return self.contradicting / self.checked_rows if self.checked_rows else 0.0
 
 
-def _contradictions(times: pd.DatetimeIndex, solar: np.ndarray, lat: float,
-                    lon: float) -> tuple[np.ndarray, np.ndarray, float]:
+def _contradictions(
+    times: pd.DatetimeIndex, solar: np.ndarray, lat: float, lon: float
+) -> tuple[np.ndarray, np.ndarray, float]:
     """(sunlit with the sun down, dark with the sun high, correlation of the irradiance with the
     sine of the sun's elevation where positive)."""
     el, _ = solar_position(times, lat, lon)
@@ -79,8 +79,13 @@ def _shift_text(hours: float) -> str:
     return f"{sign}{h:02d}:{m:02d}"
 
 
-def check_time_zone(frame: pd.DataFrame, latitude_deg: float, longitude_deg: float, time_label: str = "instant",
-                    declared_zone: str | None = None) -> ZoneCheck:
+def check_time_zone(
+    frame: pd.DataFrame,
+    latitude_deg: float,
+    longitude_deg: float,
+    time_label: str = "instant",
+    declared_zone: str | None = None,
+) -> ZoneCheck:
     """Compare the feed's irradiance (``solar_wm2``) with the sun computed at its times.
 
     Stamps that end a period (``time_label`` end, or start already moved to the end) are
@@ -99,42 +104,59 @@ def check_time_zone(frame: pd.DataFrame, latitude_deg: float, longitude_deg: flo
     solar = rows["solar_wm2"].to_numpy(dtype=float)
     sunlit = int((solar > SUNLIT_WM2).sum())
     if sunlit < MIN_SUNLIT_ROWS:
-        return ZoneCheck("unchecked", sunlit_rows=sunlit, checked_rows=len(rows),
-                         message=f"only {sunlit} samples with irradiance above {SUNLIT_WM2:.0f} W/m²: "
-                                 "too few to check the time zone")
+        return ZoneCheck(
+            "unchecked",
+            sunlit_rows=sunlit,
+            checked_rows=len(rows),
+            message=f"only {sunlit} samples with irradiance above {SUNLIT_WM2:.0f} W/m²: "
+            "too few to check the time zone",
+        )
     dark_lit, lit_dark, fit_0 = _contradictions(times, solar, latitude_deg, longitude_deg)
     bad = int((dark_lit | lit_dark).sum())
     offset = _declared_offset_h(declared_zone, times) if declared_zone is not None else None
     if bad / len(rows) <= WARN_FRACTION:
         # Few contradictions: an hour off (daylight saving) still shows in how well the sun follows.
-        near = {shift: _contradictions(times + pd.Timedelta(hours=shift), solar, latitude_deg, longitude_deg)[2]
-                for shift in (-1.0, 1.0)}
+        near = {
+            shift: _contradictions(times + pd.Timedelta(hours=shift), solar, latitude_deg, longitude_deg)[2]
+            for shift in (-1.0, 1.0)
+        }
         shift = max(near, key=lambda k: near[k])
         if near[shift] - fit_0 <= HOUR_FIT_MARGIN:
             return ZoneCheck("ok", sunlit_rows=sunlit, contradicting=bad, checked_rows=len(rows))
-        return ZoneCheck("warn", sunlit, bad, len(rows), shift, bad,
-                         f"the irradiance follows the computed sun better with times {_moved(shift)} "
-                         f"(correlation {near[shift]:.2f} against {fit_0:.2f}){_zone_text(offset, shift, declared_zone)}")
+        return ZoneCheck(
+            "warn",
+            sunlit,
+            bad,
+            len(rows),
+            shift,
+            bad,
+            f"the irradiance follows the computed sun better with times {_moved(shift)} "
+            f"(correlation {near[shift]:.2f} against {fit_0:.2f}){_zone_text(offset, shift, declared_zone)}",
+        )
     counts, fits = [], []
     for shift in SHIFTS_H:
         a, b, fit = _contradictions(times + pd.Timedelta(hours=float(shift)), solar, latitude_deg, longitude_deg)
         counts.append(int((a | b).sum()))
         fits.append(fit)
-    best = int(np.argmax(fits))   # the shift whose sun follows the irradiance best
+    best = int(np.argmax(fits))  # the shift whose sun follows the irradiance best
     best_shift, best_bad = float(SHIFTS_H[best]), counts[best]
-    if offset is not None:         # a day apart the sun is the same: keep the offset within -12..+14 h
+    if offset is not None:  # a day apart the sun is the same: keep the offset within -12..+14 h
         while offset - best_shift > 14:
             best_shift += 24
         while offset - best_shift < -12:
             best_shift -= 24
     fits_better = best_shift != 0.0 and best_bad * 5 <= bad
     status = "refuse" if bad / len(rows) > REFUSE_FRACTION and fits_better else "warn"
-    what = (f"{int(dark_lit.sum())} samples with irradiance above {SUNLIT_WM2:.0f} W/m² while the computed sun is "
-            f"below the horizon and {int(lit_dark.sum())} dark ones with the sun above {SUN_HIGH_DEG:.0f}° "
-            f"({bad} of {len(rows)} checked)")
+    what = (
+        f"{int(dark_lit.sum())} samples with irradiance above {SUNLIT_WM2:.0f} W/m² while the computed sun is "
+        f"below the horizon and {int(lit_dark.sum())} dark ones with the sun above {SUN_HIGH_DEG:.0f}° "
+        f"({bad} of {len(rows)} checked)"
+    )
     if fits_better:
-        fix = (f"times {_moved(best_shift)} fit the sun ({best_bad} contradictions)"
-               f"{_zone_text(offset, best_shift, declared_zone)}")
+        fix = (
+            f"times {_moved(best_shift)} fit the sun ({best_bad} contradictions)"
+            f"{_zone_text(offset, best_shift, declared_zone)}"
+        )
     else:
         fix = "no shift of the times fits better: check the irradiance column and the site's position"
     return ZoneCheck(status, sunlit, bad, len(rows), best_shift, best_bad, f"{what}; {fix}")
@@ -170,12 +192,12 @@ class ColumnReport:
     """One canonical input as the advisor read it."""
 
     canonical: str
-    source: str                 # logger column (or the canonical name itself)
-    unit: str                   # unit read in
-    present: int                # rows with a usable value
-    coded: int                  # rows holding a missing-value code
-    implausible: int            # rows dropped as implausible (range or step)
-    dropouts: int               # rows where the sensor had just fallen silent (optional inputs)
+    source: str  # logger column (or the canonical name itself)
+    unit: str  # unit read in
+    present: int  # rows with a usable value
+    coded: int  # rows holding a missing-value code
+    implausible: int  # rows dropped as implausible (range or step)
+    dropouts: int  # rows where the sensor had just fallen silent (optional inputs)
     low: float | None
     high: float | None
     note: str = ""
@@ -195,7 +217,7 @@ class FeedReport:
     gap_limit_min: float
     age_limit_min: float
     columns: tuple[ColumnReport, ...]
-    absent: tuple[str, ...]                 # canonical inputs the feed does not carry
+    absent: tuple[str, ...]  # canonical inputs the feed does not carry
     coded_cells: dict = field(default_factory=dict)
     rows_with_codes: int = 0
     duplicates: int = 0
@@ -206,8 +228,9 @@ class FeedReport:
     time_field: str = "time"
 
 
-def inspect_feed(feed: Feed, layout: FeedLayout, latitude_deg: float | None = None,
-                 longitude_deg: float | None = None) -> FeedReport:
+def inspect_feed(
+    feed: Feed, layout: FeedLayout, latitude_deg: float | None = None, longitude_deg: float | None = None
+) -> FeedReport:
     """The inspection report of a read feed (the site's position enables the time-zone check)."""
     frame = feed.frame
     observed = frame[frame["kind"] == "observed"]
@@ -236,23 +259,45 @@ def inspect_feed(feed: Feed, layout: FeedLayout, latitude_deg: float | None = No
         if spec is not None and spec.is_depth:
             hours = f"{spec.over_hours:g} h" if spec.over_hours is not None else f"hours from '{spec.over_hours_from}'"
             note = f"depth over {hours}, read as mm/h"
-        columns.append(ColumnReport(
-            name, source, unit, int(np.isfinite(values).sum()), int(((coded_bits >> k) & 1).sum()),
-            int(((bad_bits >> k) & 1).sum()), int(((drop_bits >> k) & 1).sum()),
-            float(finite.min()) if len(finite) else None, float(finite.max()) if len(finite) else None, note))
+        columns.append(
+            ColumnReport(
+                name,
+                source,
+                unit,
+                int(np.isfinite(values).sum()),
+                int(((coded_bits >> k) & 1).sum()),
+                int(((bad_bits >> k) & 1).sum()),
+                int(((drop_bits >> k) & 1).sum()),
+                float(finite.min()) if len(finite) else None,
+                float(finite.max()) if len(finite) else None,
+                note,
+            )
+        )
     zone = None
     if latitude_deg is not None and longitude_deg is not None:
         zone = check_time_zone(frame, latitude_deg, longitude_deg, layout.time_label, layout.time_zone)
     gap_limit = float(layout.gap_limit_min(q.cadence_min))
     return FeedReport(
-        source=feed.source, rows=q.n_rows, first_utc=q.first_time_utc, last_utc=q.last_time_utc,
-        cadence_min=q.cadence_min, gaps=q.n_gaps, longest_gap_min=float(dt_min.max()) if len(dt_min) else None,
-        gap_limit_min=gap_limit, age_limit_min=float(layout.age_limit_min(q.cadence_min)),
-        columns=tuple(columns), absent=tuple(absent), coded_cells=dict(q.coded_cells),
-        rows_with_codes=q.rows_with_codes, duplicates=q.n_duplicates, out_of_order=q.n_out_of_order,
-        partial_last_line=q.partial_last_line, gust_estimated=q.gust_estimated, zone=zone,
-        time_field=layout.time_field)
-
+        source=feed.source,
+        rows=q.n_rows,
+        first_utc=q.first_time_utc,
+        last_utc=q.last_time_utc,
+        cadence_min=q.cadence_min,
+        gaps=q.n_gaps,
+        longest_gap_min=float(dt_min.max()) if len(dt_min) else None,
+        gap_limit_min=gap_limit,
+        age_limit_min=float(layout.age_limit_min(q.cadence_min)),
+        columns=tuple(columns),
+        absent=tuple(absent),
+        coded_cells=dict(q.coded_cells),
+        rows_with_codes=q.rows_with_codes,
+        duplicates=q.n_duplicates,
+        out_of_order=q.n_out_of_order,
+        partial_last_line=q.partial_last_line,
+        gust_estimated=q.gust_estimated,
+        zone=zone,
+        time_field=layout.time_field,
+    )
 
 
 # --------------------------------------------------------------------------- one sample's problems
@@ -289,8 +334,11 @@ def sample_problems(frame: pd.DataFrame, row: int, layout: FeedLayout) -> list[s
                 if before is not None and not np.isfinite(prev):
                     prev = float(before.get(name, np.nan))
                 minutes = (r["time"] - before["time"]).total_seconds() / 60 if before is not None else np.nan
-                step = f"changed from {prev:g} to {value:g} {unit} in {minutes:g} min" if np.isfinite(prev) \
+                step = (
+                    f"changed from {prev:g} to {value:g} {unit} in {minutes:g} min"
+                    if np.isfinite(prev)
                     else f"= {value:g} {unit} jumped"
+                )
                 limit = f" (limit {limits[name]:g} {unit}/min)" if name in limits else ""
                 out.append(f"{column} {step}{limit}")
         elif int(r.get("q_bits_coded", 0)) >> k & 1 and name in REQUIRED_COLUMNS:

@@ -27,8 +27,14 @@ import pandas as pd
 from advisor.io.site import Site
 from advisor.physics.moisture import relative_humidity_pct
 
-__all__ = ["WIND_TOLERANCE_MS", "DEW_POINT_TOLERANCE_C", "QUANTITIES", "Disagreement", "compare_with_forecast",
-           "trust_observation"]
+__all__ = [
+    "WIND_TOLERANCE_MS",
+    "DEW_POINT_TOLERANCE_C",
+    "QUANTITIES",
+    "Disagreement",
+    "compare_with_forecast",
+    "trust_observation",
+]
 
 #: Below these differences a mast and a forecast are not told apart (measurement uncertainty of a
 #: cup anemometer at light winds, and of a dew point derived from RH; figures from memory).
@@ -57,29 +63,43 @@ class Disagreement:
     time_utc: pd.Timestamp
     observed: dict[str, float]
     forecast: dict[str, float]
-    worse: dict[str, float]        # quantity → observed − forecast, where the observation is worse beyond the margin
-    better: dict[str, float]       # quantity → observed − forecast, where it is better beyond the margin
-    margins: tuple[float, float]   # (wind %, dew point °C)
+    worse: dict[str, float]  # quantity → observed − forecast, where the observation is worse beyond the margin
+    better: dict[str, float]  # quantity → observed − forecast, where it is better beyond the margin
+    margins: tuple[float, float]  # (wind %, dew point °C)
     trust_observation_h: float
 
     def text(self) -> str:
         """One sentence for the notes and the reasons."""
-        bits = [f"{QUANTITIES[q][0]} {self.observed[q]:.1f} {QUANTITIES[q][1]} observed against "
-                f"{self.forecast[q]:.1f} {QUANTITIES[q][1]} forecast" for q in {**self.worse, **self.better}]
+        bits = [
+            f"{QUANTITIES[q][0]} {self.observed[q]:.1f} {QUANTITIES[q][1]} observed against "
+            f"{self.forecast[q]:.1f} {QUANTITIES[q][1]} forecast"
+            for q in {**self.worse, **self.better}
+        ]
         wind_pct, dew_c = self.margins
-        head = (f"The latest observation ({self.time_utc:%Y-%m-%d %H:%M} UTC) disagrees with the forecast beyond "
-                f"the site's margins (wind {wind_pct:g} %, dew point {dew_c:g} °C): " + "; ".join(bits))
+        head = (
+            f"The latest observation ({self.time_utc:%Y-%m-%d %H:%M} UTC) disagrees with the forecast beyond "
+            f"the site's margins (wind {wind_pct:g} %, dew point {dew_c:g} °C): " + "; ".join(bits)
+        )
         if self.worse:
-            return (head + f". Trusting the observation: the forecast is pulled towards it, the pull fading "
-                           f"over about {self.trust_observation_h:g} h.")
-        return head + ". The observation is the better of the two; the forecast is kept as it is (never made more optimistic)."
+            return (
+                head + f". Trusting the observation: the forecast is pulled towards it, the pull fading "
+                f"over about {self.trust_observation_h:g} h."
+            )
+        return (
+            head
+            + ". The observation is the better of the two; the forecast is kept as it is (never made more optimistic)."
+        )
 
     def as_dict(self) -> dict:
-        return {"time_utc": self.time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
-                "observed": {k: round(v, 2) for k, v in self.observed.items()},
-                "forecast": {k: round(v, 2) for k, v in self.forecast.items()},
-                "worse": sorted(self.worse), "better": sorted(self.better),
-                "forecast_adjusted": bool(self.worse), "trust_observation_h": self.trust_observation_h}
+        return {
+            "time_utc": self.time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "observed": {k: round(v, 2) for k, v in self.observed.items()},
+            "forecast": {k: round(v, 2) for k, v in self.forecast.items()},
+            "worse": sorted(self.worse),
+            "better": sorted(self.better),
+            "forecast_adjusted": bool(self.worse),
+            "trust_observation_h": self.trust_observation_h,
+        }
 
 
 def compare_with_forecast(frame: pd.DataFrame, site: Site) -> Disagreement | None:
@@ -116,15 +136,24 @@ def compare_with_forecast(frame: pd.DataFrame, site: Site) -> Disagreement | Non
         o, f = observed[q], forecast[q]
         if not (np.isfinite(o) and np.isfinite(f)):
             continue
-        high, low = (f * factor, f / factor) if q != "dew_point_c" else (f + fs.dew_point_margin_c, f - fs.dew_point_margin_c)
+        high, low = (
+            (f * factor, f / factor) if q != "dew_point_c" else (f + fs.dew_point_margin_c, f - fs.dew_point_margin_c)
+        )
         if o > high + tol:
             worse[q] = o - f
         elif o < low - tol:
             better[q] = o - f
     if not worse and not better:
         return None
-    return Disagreement(pd.Timestamp(t_obs, tz="UTC"), observed, forecast, worse, better,
-                        (fs.wind_margin_pct, fs.dew_point_margin_c), fs.trust_observation_h)
+    return Disagreement(
+        pd.Timestamp(t_obs, tz="UTC"),
+        observed,
+        forecast,
+        worse,
+        better,
+        (fs.wind_margin_pct, fs.dew_point_margin_c),
+        fs.trust_observation_h,
+    )
 
 
 def trust_observation(rows: pd.DataFrame, disagreement: Disagreement | None) -> pd.DataFrame:

@@ -13,10 +13,11 @@ from dataclasses import dataclass, replace
 
 import pandas as pd
 
-from advisor.decision import Call, Decisions, Reason, explain
-from advisor.evaluation.feedcheck import sample_problems
+from advisor.decision import Call, Decisions, Reason
 from advisor.evaluation.evaluate import OddsFunction, evaluate
+from advisor.evaluation.feedcheck import sample_problems
 from advisor.evaluation.lookahead import look_ahead
+from advisor.explain import explain
 from advisor.io.references import Registry
 from advisor.io.site import Site
 from advisor.rules.ruleset import RuleSet
@@ -27,9 +28,9 @@ from advisor.text import clean_text
 class Instant:
     """One evaluated instant."""
 
-    decisions: Decisions            # one row: the rule evaluation, candidates and verdict behind the call
+    decisions: Decisions  # one row: the rule evaluation, candidates and verdict behind the call
     call: Call
-    next_window: dict | None        # per method, from the rows after the instant; None without such rows
+    next_window: dict | None  # per method, from the rows after the instant; None without such rows
     next_window_in_hindsight: bool  # the rows after the instant used for next_window include observations
     look_ahead: dict | None = None  # check --json's look_ahead object (None without weather)
 
@@ -39,13 +40,21 @@ def safe_call(call: Call) -> Call:
     passed through :func:`advisor.text.clean_text`: nothing printed from it carries a terminal
     escape sequence or control character."""
     reasons = [replace(r, message=clean_text(r.message)) for r in call.reasons]
-    return replace(call, reasons=reasons, headline=clean_text(call.headline),
-                   calibrator_name=clean_text(call.calibrator_name))
+    return replace(
+        call, reasons=reasons, headline=clean_text(call.headline), calibrator_name=clean_text(call.calibrator_name)
+    )
 
 
-def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry, rules: RuleSet,
-                     freq_ghz: float, odds: OddsFunction | None = None,
-                     forecast_source: str | None = None) -> Instant:
+def evaluate_instant(
+    frame: pd.DataFrame,
+    at_utc: pd.Timestamp,
+    site: Site,
+    registry: Registry,
+    rules: RuleSet,
+    freq_ghz: float,
+    odds: OddsFunction | None = None,
+    forecast_source: str | None = None,
+) -> Instant:
     """The call at ``at_utc`` from the observed rows of ``frame`` up to it.
 
     Rows after ``at_utc`` (a forecast, or an archive evaluated in the past) never enter the
@@ -66,15 +75,22 @@ def evaluate_instant(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, regi
         hindsight = bool(next_window) and bool(((frame["kind"] == "observed") & (frame["time"] > at_utc)).any())
     ahead = look_ahead(frame, at_utc, call, next_window, site, forecast_source)
     reasons = list(call.reasons)
-    for reason in ahead.reasons:    # how long it holds goes right after the chosen method's figures
+    for reason in ahead.reasons:  # how long it holds goes right after the chosen method's figures
         after = [k for k, r in enumerate(reasons) if r.rule == f"budget.{call.verdict}"]
         reasons.insert(after[0] + 1 if reason.rule.startswith("holds.") and after else len(reasons), reason)
     call = replace(call, reasons=reasons)
     return Instant(decisions, call, next_window, hindsight, ahead.doc)
 
 
-def evaluate_without_weather(empty_frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry,
-                             rules: RuleSet, freq_ghz: float, why: str) -> Instant:
+def evaluate_without_weather(
+    empty_frame: pd.DataFrame,
+    at_utc: pd.Timestamp,
+    site: Site,
+    registry: Registry,
+    rules: RuleSet,
+    freq_ghz: float,
+    why: str,
+) -> Instant:
     """The undetermined call when there is no weather at all (the feed cannot be read).
 
     ``empty_frame`` is a canonical frame without rows; ``why`` becomes the blocking ``feed``
@@ -99,8 +115,12 @@ def _named_data_problems(call: Call, decisions: Decisions, observed: pd.DataFram
     if not problems:
         return call
     when = pd.Timestamp(observed["time"].iloc[latest]).strftime("%Y-%m-%d %H:%M UTC")
-    named = Reason("data", "both", "block", f"The latest weather sample ({when}) is not usable: "
-                                            f"{'; '.join(problems)}. No call is made on bad data.")
+    named = Reason(
+        "data",
+        "both",
+        "block",
+        f"The latest weather sample ({when}) is not usable: {'; '.join(problems)}. No call is made on bad data.",
+    )
     generic = [r for r in call.reasons if r.rule == "data" and "implausible or incomplete" in r.message]
     reasons = [named if r is (generic[0] if generic else None) else r for r in call.reasons]
     if not generic:

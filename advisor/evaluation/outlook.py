@@ -27,19 +27,19 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from advisor.fmt import hours_text, plural
 from advisor.catalogue import STEP_FEATURES
-from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG
-from advisor.vocabulary import METHODS
 from advisor.errors import FeedError
-from advisor.physics.moisture import relative_humidity_pct
 from advisor.evaluation.evaluate import OddsFunction, evaluate
-from advisor.io.references import Registry
-from advisor.rules.ruleset import RuleSet
-from advisor.io.site import Site
 from advisor.evaluation.forecastcheck import compare_with_forecast, trust_observation
 from advisor.evaluation.stability import changes_at_once, stabilise
 from advisor.evaluation.windows import find_windows, next_window
+from advisor.fmt import hours_text, plural
+from advisor.io.references import Registry
+from advisor.io.site import Site
+from advisor.physics.moisture import relative_humidity_pct
+from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG
+from advisor.rules.ruleset import RuleSet
+from advisor.vocabulary import METHODS
 
 #: How far ``check`` looks ahead for the next window when its feed carries future rows [h].
 NEXT_WINDOW_LOOKAHEAD_H = 48.0
@@ -57,12 +57,12 @@ class Outlook:
     requested_from_utc: pd.Timestamp
     requested_hours: float
     step_min: float
-    steps: pd.DataFrame                     # one row per step (see step_frame)
-    windows: dict[str, pd.DataFrame]        # method -> advisor.evaluation.windows table
-    min_window_min: dict[str, float]        # method -> shortest window offered [min]
-    next_window: dict[str, dict | None]     # method -> first window or None
-    sun_events: pd.DataFrame                # event (sunrise/sunset), time_utc, step
-    spans: pd.DataFrame                     # runs of one verdict with the rules that blocked each method
+    steps: pd.DataFrame  # one row per step (see step_frame)
+    windows: dict[str, pd.DataFrame]  # method -> advisor.evaluation.windows table
+    min_window_min: dict[str, float]  # method -> shortest window offered [min]
+    next_window: dict[str, dict | None]  # method -> first window or None
+    sun_events: pd.DataFrame  # event (sunrise/sunset), time_utc, step
+    spans: pd.DataFrame  # runs of one verdict with the rules that blocked each method
     margins: dict
     horizon_h: float
     issued_utc: tuple[pd.Timestamp, ...]
@@ -162,21 +162,27 @@ def step_grid(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, source
         t = np.unique(t_all)
         first, last = (pd.Timestamp(t[0], tz="UTC"), pd.Timestamp(t[-1], tz="UTC")) if len(t) else (None, None)
         span = f"; the feed runs from {first:%Y-%m-%dT%H:%MZ} to {last:%Y-%m-%dT%H:%MZ}" if first is not None else ""
-        raise FeedError(f"no forecast rows after {start_utc:%Y-%m-%dT%H:%M:%SZ}{span}", source=source,
-                        hint="pass --from inside the forecast, or a feed/--forecast file with future rows")
+        raise FeedError(
+            f"no forecast rows after {start_utc:%Y-%m-%dT%H:%M:%SZ}{span}",
+            source=source,
+            hint="pass --from inside the forecast, or a feed/--forecast file with future rows",
+        )
     forecast = np.unique(t_all[after & (frame["kind"] == "forecast").to_numpy()])
     base = forecast if len(forecast) >= 2 else future
     step_ns = int(np.median(np.diff(base)))
     step_ns = max(60_000_000_000, int(round(step_ns / 1e9)) * 1_000_000_000)  # whole seconds, >= 1 min
     anchor = int(base[0])
     limit = min(s + int(round(hours * 3.6e12)), int(future[-1]) + step_ns)
-    k0 = -((anchor - s) // step_ns)          # ceil((s - anchor) / step)
-    k1 = -((anchor - limit) // step_ns)      # ceil((limit - anchor) / step)
+    k0 = -((anchor - s) // step_ns)  # ceil((s - anchor) / step)
+    k1 = -((anchor - limit) // step_ns)  # ceil((limit - anchor) / step)
     grid = anchor + np.arange(k0, max(k0, k1), dtype=np.int64) * step_ns
     grid = grid[grid < limit]
     if len(grid) == 0:
-        raise FeedError(f"no forecast steps between {start_utc:%Y-%m-%dT%H:%MZ} and the end of the forecast",
-                        source=source, hint="pass a longer --hours or an earlier --from")
+        raise FeedError(
+            f"no forecast steps between {start_utc:%Y-%m-%dT%H:%MZ} and the end of the forecast",
+            source=source,
+            hint="pass a longer --hours or an earlier --from",
+        )
     return pd.DatetimeIndex(grid.astype("datetime64[ns]")).tz_localize("UTC"), step_ns / 6e10
 
 
@@ -185,20 +191,30 @@ def _sun_events(times: pd.DatetimeIndex, sun_el: np.ndarray, step_min: float) ->
     up = sun_el >= SUNRISE_SUNSET_ELEVATION_DEG
     i = np.flatnonzero(up[1:] != up[:-1]) + 1
     if len(i) == 0:
-        return pd.DataFrame({"event": pd.Series([], dtype=object), "time_utc": pd.DatetimeIndex([], tz="UTC"),
-                             "step": np.array([], dtype=np.int64)})
+        return pd.DataFrame(
+            {
+                "event": pd.Series([], dtype=object),
+                "time_utc": pd.DatetimeIndex([], tz="UTC"),
+                "step": np.array([], dtype=np.int64),
+            }
+        )
     e0, e1 = sun_el[i - 1], sun_el[i]
     frac = np.clip((SUNRISE_SUNSET_ELEVATION_DEG - e0) / (e1 - e0), 0.0, 1.0)
     t = _ns(times)
     when = t[i - 1] + np.round(frac * (t[i] - t[i - 1])).astype(np.int64)
     step = np.where(frac < 1.0, i - 1, i)  # the cell [t, t + step) that holds the event
-    return pd.DataFrame({"event": np.where(up[i], "sunrise", "sunset").astype(object),
-                         "time_utc": pd.DatetimeIndex(when.astype("datetime64[ns]")).tz_localize("UTC"),
-                         "step": step})
+    return pd.DataFrame(
+        {
+            "event": np.where(up[i], "sunrise", "sunset").astype(object),
+            "time_utc": pd.DatetimeIndex(when.astype("datetime64[ns]")).tz_localize("UTC"),
+            "step": step,
+        }
+    )
 
 
-def _spans(times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, dict[str, np.ndarray]],
-           step_min: float) -> pd.DataFrame:
+def _spans(
+    times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, dict[str, np.ndarray]], step_min: float
+) -> pd.DataFrame:
     """Runs of one category (a verdict, or ``gap``) with the blocking rules that fired in each."""
     n = len(category)
     change = np.concatenate(([True], category[1:] != category[:-1]))
@@ -216,7 +232,7 @@ def _spans(times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, dic
         ids = list(blocked[method])
         if ids:
             matrix = np.vstack([blocked[method][r] for r in ids]).astype(np.int8)
-            fired = np.add.reduceat(matrix, starts, axis=1) > 0           # rules x spans
+            fired = np.add.reduceat(matrix, starts, axis=1) > 0  # rules x spans
             names = [tuple(ids[k] for k in np.flatnonzero(fired[:, j])) for j in range(len(starts))]
         else:
             names = [()] * len(starts)
@@ -224,9 +240,18 @@ def _spans(times: pd.DatetimeIndex, category: np.ndarray, blocked: dict[str, dic
     return pd.DataFrame(out)
 
 
-def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, site: Site, registry: Registry,
-                    rules: RuleSet, freq_ghz: float, odds: OddsFunction | None = None,
-                    min_duration_min: float | None = None, source: str = "<feed>") -> Outlook:
+def compute_outlook(
+    frame: pd.DataFrame,
+    start_utc: pd.Timestamp,
+    hours: float,
+    site: Site,
+    registry: Registry,
+    rules: RuleSet,
+    freq_ghz: float,
+    odds: OddsFunction | None = None,
+    min_duration_min: float | None = None,
+    source: str = "<feed>",
+) -> Outlook:
     """Evaluate every step from ``start_utc`` for ``hours`` and find each method's windows.
 
     ``frame`` is a canonical frame (``kind`` observed/forecast; optional ``issued_utc``).
@@ -234,7 +259,7 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     """
     start_utc = pd.Timestamp(start_utc).tz_convert("UTC")
     fs = site.forecast
-    disagreement = compare_with_forecast(frame, site)       # before observations supersede forecast rows
+    disagreement = compare_with_forecast(frame, site)  # before observations supersede forecast rows
     used, hindsight = select_rows(frame, start_utc)
     times, step_min = step_grid(used, start_utc, hours, source)
     used = apply_forecast_margins(trust_observation(used, disagreement), fs.wind_margin_pct, fs.dew_point_margin_c)
@@ -249,7 +274,7 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
     has_src = src >= 0
     src_safe = np.clip(src, 0, None)
     all_ns = _ns(used["time"])
-    last_any = np.searchsorted(all_ns, t_ns, side="right") - 1      # any row, good or not: a bad row is no gap
+    last_any = np.searchsorted(all_ns, t_ns, side="right") - 1  # any row, good or not: a bad row is no gap
     gap = (last_any < 0) | (t_ns - all_ns[np.clip(last_any, 0, None)] >= step_ns)
     kinds = used["kind"].to_numpy()
     src_kind = np.where(has_src, kinds[src_safe] if len(kinds) else "", "").astype(object)
@@ -260,25 +285,46 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
         issued = pd.DatetimeIndex(used["issued_utc"])
         issued_ns = np.where(issued.isna(), np.iinfo(np.int64).min, _ns(issued.fillna(pd.Timestamp(0, tz="UTC"))))
         known = ~np.asarray(issued.isna())
-        issued_list = tuple(pd.DatetimeIndex(np.unique(issued_ns[known & fc_used]).astype("datetime64[ns]")).tz_localize("UTC"))
+        issued_list = tuple(
+            pd.DatetimeIndex(np.unique(issued_ns[known & fc_used]).astype("datetime64[ns]")).tz_localize("UTC")
+        )
         row_ns = all_ns[src_safe] if len(all_ns) else np.zeros(n, dtype=np.int64)
         step_issued = issued_ns[src_safe] if len(issued_ns) else np.full(n, np.iinfo(np.int64).min)
-        beyond = (has_src & (src_kind == "forecast") & (step_issued != np.iinfo(np.int64).min)
-                  & ((row_ns - step_issued) > int(fs.horizon_h * 3.6e12)))
+        beyond = (
+            has_src
+            & (src_kind == "forecast")
+            & (step_issued != np.iinfo(np.int64).min)
+            & ((row_ns - step_issued) > int(fs.horizon_h * 3.6e12))
+        )
 
-    beyond &= ~gap                                                  # a gap has no row to date
+    beyond &= ~gap  # a gap has no row to date
     verdict = decisions.verdict.copy()
     verdict[gap] = "undetermined"
     # Spans: a change of preference must hold for the site's confirmation time (as tick announces
     # it); a change forced by a block or by bad data shows at once.
-    hard = {m: np.logical_or.reduce([mask for rid, mask in decisions.blocking(m).items()
-                                     if rid != "efficiency.min" and not rid.startswith("model.")] or
-                                    [np.zeros(n, dtype=bool)]) for m in METHODS}
+    hard = {
+        m: np.logical_or.reduce(
+            [
+                mask
+                for rid, mask in decisions.blocking(m).items()
+                if rid != "efficiency.min" and not rid.startswith("model.")
+            ]
+            or [np.zeros(n, dtype=bool)]
+        )
+        for m in METHODS
+    }
     stable = stabilise(times, verdict, changes_at_once(verdict, hard) | gap, site.tick.confirm_min)
     category = np.where(gap, "gap", stable).astype(object)
 
-    steps = pd.DataFrame({"time": times, "verdict": verdict, "gap": gap, "beyond_horizon": beyond,
-                          "source": np.where(gap, "none", src_kind).astype(object)})
+    steps = pd.DataFrame(
+        {
+            "time": times,
+            "verdict": verdict,
+            "gap": gap,
+            "beyond_horizon": beyond,
+            "source": np.where(gap, "none", src_kind).astype(object),
+        }
+    )
     for name in STEP_FEATURES:
         steps[name] = f[name].to_numpy(dtype=float)
     data_good = verdict != "undetermined"
@@ -293,10 +339,18 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
         steps[f"{method}_p_usable"] = c.p_usable
         need = c.duration_min + fs.settling_min
         min_window[method] = max(need, float(min_duration_min or 0.0))
-        table = find_windows(times, step_min, usable, min_window[method],
-                             wind_mean_ms=f["wind_mean_ms"].to_numpy(), wind_gust_ms=f["wind_gust_ms"].to_numpy(),
-                             dew_point_spread_c=f["dew_point_spread_c"].to_numpy(), ruze_efficiency=c.ruze_efficiency,
-                             advised=verdict == method, beyond_horizon=beyond)
+        table = find_windows(
+            times,
+            step_min,
+            usable,
+            min_window[method],
+            wind_mean_ms=f["wind_mean_ms"].to_numpy(),
+            wind_gust_ms=f["wind_gust_ms"].to_numpy(),
+            dew_point_spread_c=f["dew_point_spread_c"].to_numpy(),
+            ruze_efficiency=c.ruze_efficiency,
+            advised=verdict == method,
+            beyond_horizon=beyond,
+        )
         windows[method] = table
         nxt[method] = next_window(table)
         in_window = np.zeros(n + 1, dtype=np.int64)
@@ -304,8 +358,11 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
         np.add.at(in_window, table["stop_step"].to_numpy(dtype=np.int64), -1)
         steps[f"in_{method}_window"] = np.cumsum(in_window)[:n] > 0
 
-    margins = {"wind_pct": fs.wind_margin_pct, "dew_point_c": fs.dew_point_margin_c,
-               "applied": bool(fc_used.any() and (fs.wind_margin_pct > 0 or fs.dew_point_margin_c > 0))}
+    margins = {
+        "wind_pct": fs.wind_margin_pct,
+        "dew_point_c": fs.dew_point_margin_c,
+        "applied": bool(fc_used.any() and (fs.wind_margin_pct > 0 or fs.dew_point_margin_c > 0)),
+    }
     notes = []
     if disagreement is not None:
         notes.append(disagreement.text())
@@ -313,31 +370,55 @@ def compute_outlook(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, 
         notes.append(margin_text(margins))
     if hindsight:
         last_obs = used.loc[used["kind"] != "forecast", "time"].max()
-        notes.append(f"Observed rows after {start_utc:%Y-%m-%d %H:%M} UTC (up to {last_obs:%Y-%m-%d %H:%M} UTC) are "
-                     "used as they came (hindsight), forecast rows after them.")
+        notes.append(
+            f"Observed rows after {start_utc:%Y-%m-%d %H:%M} UTC (up to {last_obs:%Y-%m-%d %H:%M} UTC) are "
+            "used as they came (hindsight), forecast rows after them."
+        )
     if fc_used.any() and not issued_list:
-        notes.append(f"The forecast rows carry no issue time ('{fs.issue_time_column}' column): the "
-                     f"{fs.horizon_h:g} h horizon could not be checked.")
+        notes.append(
+            f"The forecast rows carry no issue time ('{fs.issue_time_column}' column): the "
+            f"{fs.horizon_h:g} h horizon could not be checked."
+        )
     n_beyond = int(beyond.sum())
     if n_beyond:
-        notes.append(f"{plural(n_beyond, 'step')} {'lies' if n_beyond == 1 else 'lie'} more than "
-                     f"{fs.horizon_h:g} h after the forecast's issue time: flagged (lower-case letters), less reliable.")
+        notes.append(
+            f"{plural(n_beyond, 'step')} {'lies' if n_beyond == 1 else 'lie'} more than "
+            f"{fs.horizon_h:g} h after the forecast's issue time: flagged (lower-case letters), less reliable."
+        )
     if all("target.unreachable" in decisions.candidates[m].blocks for m in METHODS):
-        notes.append(f"Not reachable at {freq_ghz:g} GHz whatever the weather: neither method can bring the surface "
-                     "to the site's minimum efficiency, so no window will open; the postpones below are not a wait.")
+        notes.append(
+            f"Not reachable at {freq_ghz:g} GHz whatever the weather: neither method can bring the surface "
+            "to the site's minimum efficiency, so no window will open; the postpones below are not a wait."
+        )
     n_gap = int(gap.sum())
     if n_gap:
-        notes.append(f"{plural(n_gap, 'step')} {'has' if n_gap == 1 else 'have'} no forecast row (gaps): shown as "
-                     f"'{GAP_LETTER}', counted as unknown, never good; they split windows.")
+        notes.append(
+            f"{plural(n_gap, 'step')} {'has' if n_gap == 1 else 'have'} no forecast row (gaps): shown as "
+            f"'{GAP_LETTER}', counted as unknown, never good; they split windows."
+        )
     covered_h = n * step_min / 60.0
     if covered_h < hours - 1e-9:
-        notes.append(f"The forecast ends at {times[-1] + pd.Timedelta(minutes=step_min):%Y-%m-%d %H:%M} UTC: "
-                     f"the outlook covers {hours_text(covered_h)} of the {hours_text(hours)} asked for.")
-    return Outlook(site=site, freq_ghz=float(freq_ghz), requested_from_utc=start_utc, requested_hours=float(hours),
-                   step_min=float(step_min), steps=steps, windows=windows, min_window_min=min_window,
-                   next_window=nxt, sun_events=_sun_events(times, f["sun_elevation_deg"].to_numpy(), step_min),
-                   spans=_spans(times, category, blocked, step_min), margins=margins, horizon_h=fs.horizon_h,
-                   issued_utc=issued_list, notes=tuple(notes))
+        notes.append(
+            f"The forecast ends at {times[-1] + pd.Timedelta(minutes=step_min):%Y-%m-%d %H:%M} UTC: "
+            f"the outlook covers {hours_text(covered_h)} of the {hours_text(hours)} asked for."
+        )
+    return Outlook(
+        site=site,
+        freq_ghz=float(freq_ghz),
+        requested_from_utc=start_utc,
+        requested_hours=float(hours),
+        step_min=float(step_min),
+        steps=steps,
+        windows=windows,
+        min_window_min=min_window,
+        next_window=nxt,
+        sun_events=_sun_events(times, f["sun_elevation_deg"].to_numpy(), step_min),
+        spans=_spans(times, category, blocked, step_min),
+        margins=margins,
+        horizon_h=fs.horizon_h,
+        issued_utc=issued_list,
+        notes=tuple(notes),
+    )
 
 
 def margin_text(margins: dict) -> str:
@@ -350,9 +431,16 @@ def margin_text(margins: dict) -> str:
     return "Forecast margins applied before the rules: " + ", ".join(bits) + " (site forecast settings)."
 
 
-def next_windows_after(frame: pd.DataFrame, at_utc: pd.Timestamp, site: Site, registry: Registry, rules: RuleSet,
-                       freq_ghz: float, odds: OddsFunction | None = None,
-                       lookahead_h: float = NEXT_WINDOW_LOOKAHEAD_H) -> dict | None:
+def next_windows_after(
+    frame: pd.DataFrame,
+    at_utc: pd.Timestamp,
+    site: Site,
+    registry: Registry,
+    rules: RuleSet,
+    freq_ghz: float,
+    odds: OddsFunction | None = None,
+    lookahead_h: float = NEXT_WINDOW_LOOKAHEAD_H,
+) -> dict | None:
     """The next window per method in the rows after ``at_utc``, or None when there are none."""
     t = _ns(frame["time"])
     at_ns = _ns(pd.DatetimeIndex([at_utc]))[0]

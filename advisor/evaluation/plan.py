@@ -55,8 +55,17 @@ from advisor.physics.thermal import drifted_surface_rms_um
 from advisor.rules.ruleset import RuleSet
 from advisor.vocabulary import METHODS
 
-__all__ = ["PLAN_STEP_MIN", "MAX_PLAN_HOURS", "ATMOSPHERE_FEATURE", "PLAN_LABEL",
-           "Correction", "Alternative", "Plan", "atmosphere_factor", "compute_plan"]
+__all__ = [
+    "PLAN_STEP_MIN",
+    "MAX_PLAN_HOURS",
+    "ATMOSPHERE_FEATURE",
+    "PLAN_LABEL",
+    "Correction",
+    "Alternative",
+    "Plan",
+    "atmosphere_factor",
+    "compute_plan",
+]
 
 #: Step of the plan's grid [min] (the forecast's own spacing when that is coarser).
 PLAN_STEP_MIN = 10.0
@@ -80,19 +89,19 @@ class Correction:
     surface_rms_um: float
     ruze_efficiency: float
     p_usable: float | None
-    holds_until_utc: pd.Timestamp | None     # None: holds to the end of the session
-    if_fails: tuple[str, pd.Timestamp] | None = None   # the plan's next correction should this one fail
+    holds_until_utc: pd.Timestamp | None  # None: holds to the end of the session
+    if_fails: tuple[str, pd.Timestamp] | None = None  # the plan's next correction should this one fail
 
 
 @dataclass(frozen=True)
 class Alternative:
     """One way to spend the session, priced like the plan."""
 
-    key: str                                  # plan | optional | <method>_now | wait_<method> | no_correction
+    key: str  # plan | optional | <method>_now | wait_<method> | no_correction
     label: str
     corrections: tuple[tuple[str, pd.Timestamp], ...]
-    efficiency: float | None                  # √(expected mean of η² over the session); None: not possible
-    lost_min: float | None                    # expected minutes without useful observing
+    efficiency: float | None  # √(expected mean of η² over the session); None: not possible
+    lost_min: float | None  # expected minutes without useful observing
     expected_corrections: float | None
     path_efficiency: np.ndarray | None = None  # η per step if every correction succeeds (NaN while correcting)
     why_not: str = ""
@@ -109,10 +118,10 @@ class Plan:
     step_min: float
     elevation_deg: float
     required_surface_rms_um: float
-    verdict: str                               # correct | no_correction | not_possible | undetermined
+    verdict: str  # correct | no_correction | not_possible | undetermined
     headline: str
     corrections: tuple[Correction, ...]
-    alternatives: tuple[Alternative, ...]      # the plan first
+    alternatives: tuple[Alternative, ...]  # the plan first
     steps: pd.DataFrame
     sun_events: pd.DataFrame
     notes: tuple[str, ...] = field(default_factory=tuple)
@@ -155,7 +164,7 @@ def atmosphere_factor(features: pd.DataFrame) -> np.ndarray | None:
 
 def _plan_grid(used: pd.DataFrame, start_utc: pd.Timestamp, hours: float, source: str):
     """Regular steps of PLAN_STEP_MIN from the start (the forecast's own grid when coarser)."""
-    times, spacing_min = step_grid(used, start_utc, hours, source)       # raises when nothing lies ahead
+    times, spacing_min = step_grid(used, start_utc, hours, source)  # raises when nothing lies ahead
     if spacing_min > PLAN_STEP_MIN:
         return times, spacing_min
     s = int(_ns(pd.DatetimeIndex([start_utc]))[0])
@@ -164,8 +173,11 @@ def _plan_grid(used: pd.DataFrame, start_utc: pd.Timestamp, hours: float, source
     limit = min(s + int(round(hours * 3.6e12)), last + int(spacing_min * 6e10))
     grid = np.arange(s, limit, step, dtype=np.int64)
     if len(grid) == 0:
-        raise FeedError(f"no rows to plan on after {start_utc:%Y-%m-%dT%H:%MZ}", source=source,
-                        hint="pass --start inside the forecast")
+        raise FeedError(
+            f"no rows to plan on after {start_utc:%Y-%m-%dT%H:%MZ}",
+            source=source,
+            hint="pass --start inside the forecast",
+        )
     return _utc(grid), PLAN_STEP_MIN
 
 
@@ -179,8 +191,17 @@ def _runs_ok(feasible: np.ndarray, length: int) -> np.ndarray:
     return ok
 
 
-def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, site: Site, registry: Registry,
-                 rules: RuleSet, freq_ghz: float, odds: OddsFunction | None = None, source: str = "<feed>") -> Plan:
+def compute_plan(
+    frame: pd.DataFrame,
+    start_utc: pd.Timestamp,
+    hours: float,
+    site: Site,
+    registry: Registry,
+    rules: RuleSet,
+    freq_ghz: float,
+    odds: OddsFunction | None = None,
+    source: str = "<feed>",
+) -> Plan:
     """The best schedule of corrections for a session and the simple alternatives to it (pure)."""
     start_utc = pd.Timestamp(start_utc).tz_convert("UTC")
     fs = site.forecast
@@ -198,13 +219,17 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
     row_ns = _ns(used["time"])
     gap = (last_any < 0) | (t_ns - row_ns[np.clip(last_any, 0, None)] >= max(step_ns, int(15 * 6e10)))
     usable = f["data_ok"].to_numpy(dtype=bool) & ~gap
-    pointing = np.nan_to_num(np.asarray(pointing_efficiency(f["wind_pointing_error_arcsec"].to_numpy(dtype=float),
-                                                            targets["beam_fwhm_arcsec"]), dtype=float))
+    pointing = np.nan_to_num(
+        np.asarray(
+            pointing_efficiency(f["wind_pointing_error_arcsec"].to_numpy(dtype=float), targets["beam_fwhm_arcsec"]),
+            dtype=float,
+        )
+    )
     atmosphere = atmosphere_factor(f)
     weight = np.where(usable, pointing**2 * (1.0 if atmosphere is None else atmosphere), 0.0)
 
     durations = np.array([site.scan.duration_min, site.astronomical.duration_min])
-    ends_ns = t_ns[None, :] + np.round(durations * 6e10).astype(np.int64)[:, None]      # (M, n)
+    ends_ns = t_ns[None, :] + np.round(durations * 6e10).astype(np.int64)[:, None]  # (M, n)
     t_struct_all = structure_temperature_c(used, _utc(np.concatenate([t_ns, ends_ns.ravel()])), site)
     t_struct, t_struct_end = t_struct_all[:n], t_struct_all[n:].reshape(len(METHODS), n)
     k_drift = site.structure.drift_um_per_c
@@ -219,7 +244,7 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
     start_ok = np.zeros((len(METHODS), n), dtype=bool)
     sigma0 = np.full((len(METHODS), n), np.nan)
     p_success = np.ones((len(METHODS), n))
-    for m, method in enumerate(METHODS):               # two methods
+    for m, method in enumerate(METHODS):  # two methods
         c = decisions.candidates[method]
         start_ok[m] = _runs_ok(c.feasible & usable, int(steps_of[m])) & np.isfinite(t_struct_end[m])
         sigma0[m] = c.surface_rms_um
@@ -229,16 +254,23 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
         j = np.flatnonzero(start_ok[m])
         if len(j) == 0:
             continue
-        change = t_struct[None, :] - t_struct_end[m, j][:, None]                       # (starts, n)
+        change = t_struct[None, :] - t_struct_end[m, j][:, None]  # (starts, n)
         sigma = drifted_surface_rms_um(sigma0[m, j][:, None], k_drift, np.nan_to_num(change))
         rows = weight[None, :] * np.asarray(ruze_efficiency(sigma, freq_ghz)) ** 2
         end = j + steps_of[m]
-        rows[np.arange(n)[None, :] < (end - 1)[:, None]] = 0.0                          # before the correction
+        rows[np.arange(n)[None, :] < (end - 1)[:, None]] = 0.0  # before the correction
         gain[state_index(m, 0, n) + end] = rows
 
     # a step observed below the site's minimum efficiency is not worth observing: it counts as lost
-    problem = Problem(gain, start_ok, p_success, steps_of, tail, min_gain=MIN_GAIN_MIN / (n * step_min),
-                      lost_below=site.thresholds.min_ruze_efficiency ** 2)
+    problem = Problem(
+        gain,
+        start_ok,
+        p_success,
+        steps_of,
+        tail,
+        min_gain=MIN_GAIN_MIN / (n * step_min),
+        lost_below=site.thresholds.min_ruze_efficiency**2,
+    )
     policy = solve(problem)
     actions, states = success_path(problem, policy)
     uncorrected_known = uncorrected is not None
@@ -248,9 +280,15 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
         pol = fixed_policy(problem, chosen) if pol is None else pol
         outcome = evaluate(problem, pol)
         path_actions, path_states = success_path(problem, pol)
-        return Alternative(key, label, tuple((METHODS[m], times[i]) for i, m in path_actions),
-                           float(np.sqrt(max(outcome.value, 0.0))), outcome.lost_steps * step_min,
-                           outcome.corrections, _path_efficiency(gain, path_states, usable))
+        return Alternative(
+            key,
+            label,
+            tuple((METHODS[m], times[i]) for i, m in path_actions),
+            float(np.sqrt(max(outcome.value, 0.0))),
+            outcome.lost_steps * step_min,
+            outcome.corrections,
+            _path_efficiency(gain, path_states, usable),
+        )
 
     tz = ZoneInfo(site.time_zone)
     if verdict == "no_correction":
@@ -267,36 +305,80 @@ def compute_plan(frame: pd.DataFrame, start_utc: pd.Timestamp, hours: float, sit
             alternatives.append(price(f"{method}_now", f"{label} now, never again", [(0, m)], None))
         else:
             why = ", ".join(decisions.blocked_by(method, 0)) or (
-                "no usable weather" if not usable[0] else "not feasible for its whole duration")
-            alternatives.append(Alternative(f"{method}_now", f"{label} now, never again", (), None, None, None,
-                                            why_not=why))
+                "no usable weather" if not usable[0] else "not feasible for its whole duration"
+            )
+            alternatives.append(
+                Alternative(f"{method}_now", f"{label} now, never again", (), None, None, None, why_not=why)
+            )
             later = np.flatnonzero(start_ok[m])
             if len(later):
                 first = int(later.min())
-                alternatives.append(price(f"wait_{method}", f"wait {_span_text((t_ns[first] - t_ns[0]) / 6e10)} "
-                                          f"for {label} ({times[first].tz_convert(tz):%H:%M}), never again",
-                                          [(first, m)], None))
+                alternatives.append(
+                    price(
+                        f"wait_{method}",
+                        f"wait {_span_text((t_ns[first] - t_ns[0]) / 6e10)} "
+                        f"for {label} ({times[first].tz_convert(tz):%H:%M}), never again",
+                        [(first, m)],
+                        None,
+                    )
+                )
     if uncorrected_known and verdict != "no_correction":
         alternatives.append(price("no_correction", "no correction", [], np.full_like(policy, NO_ACTION)))
 
     planned: list[Correction] = []
     state = 0
-    for i, m in actions:                                  # a few corrections
+    for i, m in actions:  # a few corrections
         end = i + int(problem.steps[m])
         fallback = next_action(problem, policy, end, state) if end < n and problem.p_success[m, i] < 1.0 else None
-        planned.append(_correction(problem, decisions, times, t_struct, t_struct_end, i, m, site, targets,
-                                       None if fallback is None else (METHODS[fallback[1]], times[fallback[0]])))
+        planned.append(
+            _correction(
+                problem,
+                decisions,
+                times,
+                t_struct,
+                t_struct_end,
+                i,
+                m,
+                site,
+                targets,
+                None if fallback is None else (METHODS[fallback[1]], times[fallback[0]]),
+            )
+        )
         state = state_index(m, end, n)
     corrections = tuple(planned)
     steps = _steps_frame(times, decisions, usable, gap, start_ok, states, gain, t_struct, pointing, f)
-    notes = _notes(disagreement, fs, used, hindsight, start_utc, n, step_min, hours, usable, atmosphere, odds,
-                   uncorrected_known, elevation)
+    notes = _notes(
+        disagreement,
+        fs,
+        used,
+        hindsight,
+        start_utc,
+        n,
+        step_min,
+        hours,
+        usable,
+        atmosphere,
+        odds,
+        uncorrected_known,
+        elevation,
+    )
     headline = _headline(verdict, corrections, alternatives, decisions, targets, site, times, usable, start_ok, tz)
-    return Plan(site=site, freq_ghz=float(freq_ghz), start_utc=times[0], requested_hours=float(hours),
-                step_min=float(step_min), elevation_deg=elevation, required_surface_rms_um=targets["required_surface_rms_um"],
-                verdict=verdict, headline=headline, corrections=corrections, alternatives=tuple(alternatives),
-                steps=steps, sun_events=_sun_events(times, f["sun_elevation_deg"].to_numpy(), step_min),
-                notes=tuple(notes))
+    return Plan(
+        site=site,
+        freq_ghz=float(freq_ghz),
+        start_utc=times[0],
+        requested_hours=float(hours),
+        step_min=float(step_min),
+        elevation_deg=elevation,
+        required_surface_rms_um=targets["required_surface_rms_um"],
+        verdict=verdict,
+        headline=headline,
+        corrections=corrections,
+        alternatives=tuple(alternatives),
+        steps=steps,
+        sun_events=_sun_events(times, f["sun_elevation_deg"].to_numpy(), step_min),
+        notes=tuple(notes),
+    )
 
 
 def _verdict(verdicts: np.ndarray, usable: np.ndarray, start_ok: np.ndarray, actions: list) -> str:
@@ -316,20 +398,30 @@ def _path_efficiency(gain: np.ndarray, states: np.ndarray, usable: np.ndarray) -
     return np.where((states >= 0) & usable, eta, np.nan)
 
 
-def _correction(problem: Problem, decisions, times, t_struct, t_struct_end, i: int, m: int, site: Site, targets,
-                if_fails) -> Correction:
+def _correction(
+    problem: Problem, decisions, times, t_struct, t_struct_end, i: int, m: int, site: Site, targets, if_fails
+) -> Correction:
     method = METHODS[m]
     c = decisions.candidates[method]
     sigma0 = float(c.surface_rms_um[i])
     end = i + int(problem.steps[m])
-    limit = holding_limit_um(sigma0, targets["freq_ghz"], targets["required_surface_rms_um"],
-                             site.structure.max_efficiency_loss)
+    limit = holding_limit_um(
+        sigma0, targets["freq_ghz"], targets["required_surface_rms_um"], site.structure.max_efficiency_loss
+    )
     after = t_struct[end:] - t_struct_end[m, i]
     k = int(first_exceedance(after[None, :], sigma0, limit, site.structure.drift_um_per_c)[0]) if len(after) else 0
     holds = None if k >= len(after) else times[end + k]
     p = float(problem.p_success[m, i]) if np.isfinite(c.p_usable).any() else None
-    return Correction(method, times[i], times[i] + pd.Timedelta(minutes=c.duration_min), sigma0,
-                      float(c.ruze_efficiency[i]), p, holds, if_fails)
+    return Correction(
+        method,
+        times[i],
+        times[i] + pd.Timedelta(minutes=c.duration_min),
+        sigma0,
+        float(c.ruze_efficiency[i]),
+        p,
+        holds,
+        if_fails,
+    )
 
 
 def _steps_frame(times, decisions, usable, gap, start_ok, states, gain, t_struct, pointing, f) -> pd.DataFrame:
@@ -338,9 +430,18 @@ def _steps_frame(times, decisions, usable, gap, start_ok, states, gain, t_struct
     for m, method in enumerate(METHODS):
         activity[states == -1 - m] = method
     activity[~usable & (states >= 0)] = "unknown"
-    frame = pd.DataFrame({"time": times, "verdict": decisions.verdict, "usable": usable, "gap": gap,
-                          "activity": activity, "efficiency": _path_efficiency(gain, states, usable),
-                          "structure_temp_c": t_struct, "pointing_efficiency": np.where(usable, pointing, np.nan)})
+    frame = pd.DataFrame(
+        {
+            "time": times,
+            "verdict": decisions.verdict,
+            "usable": usable,
+            "gap": gap,
+            "activity": activity,
+            "efficiency": _path_efficiency(gain, states, usable),
+            "structure_temp_c": t_struct,
+            "pointing_efficiency": np.where(usable, pointing, np.nan),
+        }
+    )
     for m, method in enumerate(METHODS):
         frame[f"{method}_can_start"] = start_ok[m]
         frame[f"{method}_surface_rms_um"] = decisions.candidates[method].surface_rms_um
@@ -350,8 +451,21 @@ def _steps_frame(times, decisions, usable, gap, start_ok, states, gain, t_struct
     return frame
 
 
-def _notes(disagreement, fs, used, hindsight, start_utc, n, step_min, hours, usable, atmosphere, odds,
-           uncorrected_known, elevation_deg: float) -> list[str]:
+def _notes(
+    disagreement,
+    fs,
+    used,
+    hindsight,
+    start_utc,
+    n,
+    step_min,
+    hours,
+    usable,
+    atmosphere,
+    odds,
+    uncorrected_known,
+    elevation_deg: float,
+) -> list[str]:
     notes = []
     if disagreement is not None:
         notes.append(disagreement.text())
@@ -364,19 +478,27 @@ def _notes(disagreement, fs, used, hindsight, start_utc, n, step_min, hours, usa
         notes.append(f"The weather rows end early: the plan covers {covered_h:.1f} h of the {hours:g} h asked for.")
     unknown = int((~usable).sum())
     if unknown:
-        notes.append(f"{unknown} step(s) have no usable weather (gaps, stale or implausible rows): nothing observed "
-                     "there counts, and no correction is planned in them.")
+        notes.append(
+            f"{unknown} step(s) have no usable weather (gaps, stale or implausible rows): nothing observed "
+            "there counts, and no correction is planned in them."
+        )
     if atmosphere is None:
-        notes.append(f"Atmosphere not counted: the features carry no '{ATMOSPHERE_FEATURE}' "
-                     "(advisor.evaluation.plan.atmosphere_factor); efficiencies are surface × pointing.")
+        notes.append(
+            f"Atmosphere not counted: the features carry no '{ATMOSPHERE_FEATURE}' "
+            "(advisor.evaluation.plan.atmosphere_factor); efficiencies are surface × pointing."
+        )
     else:
-        notes.append(f"Session efficiency counts the atmosphere at {elevation_deg:g}° elevation: η / √(integration-time "
-                     "factor), the factor against the site's dry reference night (--elevation for another).")
+        notes.append(
+            f"Session efficiency counts the atmosphere at {elevation_deg:g}° elevation: η / √(integration-time "
+            "factor), the factor against the site's dry reference night (--elevation for another)."
+        )
     if odds is None:
         notes.append("No site model: every correction is taken to succeed.")
     if not uncorrected_known:
-        notes.append("The site gives no uncorrected surface (methods.astronomical.uncorrected_surface_rms_um): "
-                     "observing before the first correction is not counted.")
+        notes.append(
+            "The site gives no uncorrected surface (methods.astronomical.uncorrected_surface_rms_um): "
+            "observing before the first correction is not counted."
+        )
     return notes
 
 
@@ -386,15 +508,19 @@ def _headline(verdict, corrections, alternatives, decisions, targets, site, time
     if verdict == "undetermined":
         return "No plan: the weather data cannot support one for this session (missing, stale or implausible)."
     if verdict == "no_correction":
-        text = (f"No correction needed at {freq:g} GHz for the whole session: the uncorrected surface "
-                f"({site.astronomical.uncorrected_surface_rms_um:.0f} µm) meets λ/{targets['surface_requirement_fraction']:g}"
-                f" = {targets['required_surface_rms_um']:.0f} µm.")
+        text = (
+            f"No correction needed at {freq:g} GHz for the whole session: the uncorrected surface "
+            f"({site.astronomical.uncorrected_surface_rms_um:.0f} µm) meets λ/{targets['surface_requirement_fraction']:g}"
+            f" = {targets['required_surface_rms_um']:.0f} µm."
+        )
         option = next((a for a in alternatives if a.key == "optional"), None)
         if option is not None and option.efficiency and best.efficiency:
             first_method, first_time = option.corrections[0]
-            text += (f" Optional: {PLAN_LABEL[first_method]} at {first_time.tz_convert(tz):%H:%M} would raise the "
-                     f"session efficiency from {best.efficiency:.2f} to {option.efficiency:.2f} "
-                     f"({(best.efficiency / option.efficiency) ** 2:.2f}× the integration time).")
+            text += (
+                f" Optional: {PLAN_LABEL[first_method]} at {first_time.tz_convert(tz):%H:%M} would raise the "
+                f"session efficiency from {best.efficiency:.2f} to {option.efficiency:.2f} "
+                f"({(best.efficiency / option.efficiency) ** 2:.2f}× the integration time)."
+            )
         return text
     if verdict == "not_possible":
         blocks: dict[str, int] = {}
@@ -410,8 +536,13 @@ def _headline(verdict, corrections, alternatives, decisions, targets, site, time
     parts = []
     for k, c in enumerate(corrections):
         when = f"{c.start_utc.tz_convert(tz):%H:%M}"
-        parts.append(f"{PLAN_LABEL[c.method]} at {when}" if k == 0 else f"again at {when}" if
-                     c.method == corrections[k - 1].method else f"{PLAN_LABEL[c.method]} at {when}")
+        parts.append(
+            f"{PLAN_LABEL[c.method]} at {when}"
+            if k == 0
+            else f"again at {when}"
+            if c.method == corrections[k - 1].method
+            else f"{PLAN_LABEL[c.method]} at {when}"
+        )
     text = (f"Wait {_span_text(wait_min)}, then " if wait_min >= 5 else "") + ", ".join(parts)
     text = text[0].upper() + text[1:]
     if len(corrections) == 1 and first.holds_until_utc is None:

@@ -45,8 +45,12 @@ class Attempts:
 def attempts_from_history(history: History) -> Attempts:
     """The attempts of a validated :class:`advisor.io.history.History`, sorted by time."""
     frame = history.frame.sort_values("time", kind="stable")
-    return Attempts(pd.DatetimeIndex(frame["time"]).as_unit("ns"), frame["method"].to_numpy(dtype=object),
-                    frame["usable"].to_numpy(dtype=bool), history.source)
+    return Attempts(
+        pd.DatetimeIndex(frame["time"]).as_unit("ns"),
+        frame["method"].to_numpy(dtype=object),
+        frame["usable"].to_numpy(dtype=bool),
+        history.source,
+    )
 
 
 def step_hours(times_utc: pd.DatetimeIndex, max_gap_min: float) -> np.ndarray:
@@ -67,8 +71,11 @@ def hours_by(verdict: np.ndarray, hours: np.ndarray, keys) -> pd.DataFrame:
     for i, v in enumerate(VERDICTS):
         verdict_code[np.asarray(verdict) == v] = i
     ok = verdict_code >= 0
-    sums = np.bincount(key_code.ravel()[ok] * len(VERDICTS) + verdict_code[ok], weights=np.asarray(hours)[ok],
-                       minlength=len(unique_keys) * len(VERDICTS)).reshape(len(unique_keys), len(VERDICTS))
+    sums = np.bincount(
+        key_code.ravel()[ok] * len(VERDICTS) + verdict_code[ok],
+        weights=np.asarray(hours)[ok],
+        minlength=len(unique_keys) * len(VERDICTS),
+    ).reshape(len(unique_keys), len(VERDICTS))
     return pd.DataFrame(sums, index=pd.Index(unique_keys, name="key"), columns=list(VERDICTS))
 
 
@@ -96,15 +103,16 @@ def dominant_by_month_hour(verdict: np.ndarray, hours: np.ndarray, local_times: 
     hour = local_times.hour.to_numpy()
     verdict = np.asarray(verdict)
     rows = {}
-    for month in np.unique(months):                      # one pass per month, not per row
+    for month in np.unique(months):  # one pass per month, not per row
         mask = months == month
         table = hours_by(verdict[mask], hours[mask], hour[mask]).reindex(range(24), fill_value=0.0)
         rows[str(month)] = dominant_verdicts(table)
     return pd.DataFrame.from_dict(rows, orient="index", columns=list(range(24)))
 
 
-def _advice_at(times_utc: pd.DatetimeIndex, verdict: np.ndarray, at: pd.DatetimeIndex,
-               max_age_min: float) -> np.ndarray:
+def _advice_at(
+    times_utc: pd.DatetimeIndex, verdict: np.ndarray, at: pd.DatetimeIndex, max_age_min: float
+) -> np.ndarray:
     """The replayed verdict in force at each time of ``at`` (None-like '' if no row close before)."""
     t = times_utc.as_unit("ns").asi8
     q = at.as_unit("ns").asi8
@@ -113,9 +121,15 @@ def _advice_at(times_utc: pd.DatetimeIndex, verdict: np.ndarray, at: pd.Datetime
     return np.where(ok, verdict[np.clip(pos, 0, None)], "")
 
 
-def score_attempts(times_utc: pd.DatetimeIndex, verdict: np.ndarray, rule_eval: RuleEvaluation,
-                   attempts: Attempts, max_age_min: float = 15.0, feasible: dict[str, np.ndarray] | None = None,
-                   applies: dict[str, str] | None = None) -> dict:
+def score_attempts(
+    times_utc: pd.DatetimeIndex,
+    verdict: np.ndarray,
+    rule_eval: RuleEvaluation,
+    attempts: Attempts,
+    max_age_min: float = 15.0,
+    feasible: dict[str, np.ndarray] | None = None,
+    applies: dict[str, str] | None = None,
+) -> dict:
     """False-go and missed rates of the advice against recorded attempts, per method and per rule.
 
     For each method, the advice at an attempt *allowed* it ("go") when the method was feasible
@@ -145,13 +159,15 @@ def score_attempts(times_utc: pd.DatetimeIndex, verdict: np.ndarray, rule_eval: 
             at_attempt = fired[pos] & of_method if len(t) else np.zeros(len(attempts), dtype=bool)
             if not at_attempt.any():
                 continue
-            per_rule.append({
-                "rule": rule_id,
-                "attempts_when_fired": int(at_attempt.sum()),
-                "failed_when_fired": int((at_attempt & ~attempts.usable).sum()),
-                "false_go_when_fired": int((at_attempt & false_go).sum()),
-                "missed_when_fired": int((at_attempt & missed).sum()),
-            })
+            per_rule.append(
+                {
+                    "rule": rule_id,
+                    "attempts_when_fired": int(at_attempt.sum()),
+                    "failed_when_fired": int((at_attempt & ~attempts.usable).sum()),
+                    "false_go_when_fired": int((at_attempt & false_go).sum()),
+                    "missed_when_fired": int((at_attempt & missed).sum()),
+                }
+            )
         per_rule.sort(key=lambda r: -r["attempts_when_fired"])
         result["methods"][method] = {
             "attempts": int(of_method.sum()),
@@ -171,8 +187,9 @@ def _rate(num, den) -> float | None:
     return None if den == 0 else round(float(num) / float(den), 4)
 
 
-def compare_rule_sets(verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: RuleEvaluation,
-                      eval_b: RuleEvaluation, hours: np.ndarray) -> dict:
+def compare_rule_sets(
+    verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: RuleEvaluation, eval_b: RuleEvaluation, hours: np.ndarray
+) -> dict:
     """Hours that change verdict from rule set A to B, as a from→to table and by rule.
 
     A changed row is attributed to every rule whose firing differs between the two sets there
@@ -213,22 +230,41 @@ class Replayed:
         return {m: c.feasible & (self.verdict != "undetermined") for m, c in self.decisions.candidates.items()}
 
 
-def replay_verdicts(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rules, freq_ghz: float,
-                    odds=None, chunk_rows: int = 100_000, on_chunk=None) -> Replayed:
+def replay_verdicts(
+    frame: pd.DataFrame,
+    times_utc: pd.DatetimeIndex,
+    site,
+    registry,
+    rules,
+    freq_ghz: float,
+    odds=None,
+    chunk_rows: int = 100_000,
+    on_chunk=None,
+) -> Replayed:
     """Verdicts and rule firings at ``times_utc`` under one rule set (see :func:`replay_rule_sets`)."""
     return replay_rule_sets(frame, times_utc, site, registry, [rules], freq_ghz, odds, chunk_rows, on_chunk)[0]
 
 
-def replay_rule_sets(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, site, registry, rule_sets,
-                     freq_ghz: float, odds=None, chunk_rows: int = 100_000, on_chunk=None) -> list[Replayed]:
+def replay_rule_sets(
+    frame: pd.DataFrame,
+    times_utc: pd.DatetimeIndex,
+    site,
+    registry,
+    rule_sets,
+    freq_ghz: float,
+    odds=None,
+    chunk_rows: int = 100_000,
+    on_chunk=None,
+) -> list[Replayed]:
     """Verdicts under every rule set of ``rule_sets``; the features are computed once for all."""
     scenario = Scenario(site, registry, rule_sets[0], freq_ghz, odds)
     rows = replay_features(frame, times_utc, scenario, chunk_rows, on_chunk)
     return replay_from_features(rows, scenario, rule_sets)
 
 
-def replay_features(frame: pd.DataFrame, times_utc: pd.DatetimeIndex, scenario: Scenario,
-                    chunk_rows: int = 100_000, on_chunk=None) -> pd.DataFrame:
+def replay_features(
+    frame: pd.DataFrame, times_utc: pd.DatetimeIndex, scenario: Scenario, chunk_rows: int = 100_000, on_chunk=None
+) -> pd.DataFrame:
     """Row features at ``times_utc`` in chunks of bounded memory (:func:`advisor.features.row_features_chunked`).
 
     The result does not depend on the target frequency (a cache of it serves every frequency).

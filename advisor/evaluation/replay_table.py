@@ -31,7 +31,7 @@ def _joined(masks: list[tuple[str, np.ndarray]], n: int) -> np.ndarray:
     if not masks:
         return np.full(n, "", dtype=object)
     bits = np.ascontiguousarray(np.column_stack([m for _, m in masks]).astype(np.uint8))
-    rows = bits.view(np.dtype((np.void, bits.shape[1]))).ravel()     # one opaque value per row of bits
+    rows = bits.view(np.dtype((np.void, bits.shape[1]))).ravel()  # one opaque value per row of bits
     _, first, inverse = np.unique(rows, return_index=True, return_inverse=True)
     names = [name for name, _ in masks]
     texts = np.array([";".join(name for name, on in zip(names, bits[k]) if on) for k in first], dtype=object)
@@ -66,8 +66,9 @@ def step_table(replayed: Replayed, compared: Replayed | None = None) -> pd.DataF
             out[f"surface_rms_um_{method}"] = np.round(c.surface_rms_um, 1)
             out[f"p_usable_{method}"] = np.round(c.p_usable, 4)
             extrapolated = d.model_extrapolated.get(method)
-            out[f"odds_extrapolated_{method}"] = _flag_text(extrapolated if extrapolated is not None
-                                                            else np.zeros(len(out), dtype=bool))
+            out[f"odds_extrapolated_{method}"] = _flag_text(
+                extrapolated if extrapolated is not None else np.zeros(len(out), dtype=bool)
+            )
         rows = d.features
         for spec in KEY_FEATURES:
             if spec.name in rows:
@@ -78,8 +79,14 @@ def step_table(replayed: Replayed, compared: Replayed | None = None) -> pd.DataF
     return out
 
 
-def coverage_warnings(times_utc: pd.DatetimeIndex, hours: np.ndarray, rows: pd.DataFrame, registry: Registry,
-                      attempts: Attempts | None = None, attempts_covered: int | None = None) -> list[str]:
+def coverage_warnings(
+    times_utc: pd.DatetimeIndex,
+    hours: np.ndarray,
+    rows: pd.DataFrame,
+    registry: Registry,
+    attempts: Attempts | None = None,
+    attempts_covered: int | None = None,
+) -> list[str]:
     """What the replay cannot speak for: stretches with no reference scan in force, and a history
     of attempts that does not cover the replayed period (each over :data:`GAP_FRACTION` of it)."""
     warnings: list[str] = []
@@ -94,19 +101,24 @@ def coverage_warnings(times_utc: pd.DatetimeIndex, hours: np.ndarray, rows: pd.D
         if len(registry) == 0:
             where = f"the reference registry {registry.source} holds no scan"
         else:
-            where = (f"the reference registry {registry.source} covers only "
-                     f"{registry.times_utc[0]:%Y-%m-%d} onwards")
-        warnings.append(f"{where}: for {share} of the replayed period ({period}) no reference scan is in force, "
-                        "so the laser is never advised there; pass --references with the scans of that time")
+            where = f"the reference registry {registry.source} covers only {registry.times_utc[0]:%Y-%m-%d} onwards"
+        warnings.append(
+            f"{where}: for {share} of the replayed period ({period}) no reference scan is in force, "
+            "so the laser is never advised there; pass --references with the scans of that time"
+        )
     if attempts is not None:
         if len(attempts) == 0 or not attempts_covered:
-            warnings.append(f"none of the {len(attempts)} attempts in {attempts.source} falls in the replayed period "
-                            f"({period}): there is nothing to score the advice against")
+            warnings.append(
+                f"none of the {len(attempts)} attempts in {attempts.source} falls in the replayed period "
+                f"({period}): there is nothing to score the advice against"
+            )
         else:
             first, last = attempts.times_utc.min(), attempts.times_utc.max()
             outside = float(hours[(times_utc < first) | (times_utc > last)].sum())
             if outside > GAP_FRACTION * total:
-                warnings.append(f"the attempts in {attempts.source} run {first:%Y-%m-%d} .. {last:%Y-%m-%d}: "
-                                f"{outside:.0f} h of the replayed period ({period}) have no attempt to score against; "
-                                f"the scores speak for {attempts_covered} attempts only")
+                warnings.append(
+                    f"the attempts in {attempts.source} run {first:%Y-%m-%d} .. {last:%Y-%m-%d}: "
+                    f"{outside:.0f} h of the replayed period ({period}) have no attempt to score against; "
+                    f"the scores speak for {attempts_covered} attempts only"
+                )
     return warnings

@@ -32,8 +32,17 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["NO_ACTION", "Problem", "Outcome", "state_index", "solve", "evaluate", "success_path", "next_action",
-           "fixed_policy"]
+__all__ = [
+    "NO_ACTION",
+    "Problem",
+    "Outcome",
+    "state_index",
+    "solve",
+    "evaluate",
+    "success_path",
+    "next_action",
+    "fixed_policy",
+]
 
 #: Policy entry: keep observing.
 NO_ACTION = -1
@@ -85,9 +94,9 @@ class Problem:
 class Outcome:
     """Expected figures of a policy."""
 
-    value: float               # expected mean of the gains over the session
-    lost_steps: float          # expected steps without useful observing (correcting, or gain <= lost_below)
-    corrections: float         # expected number of corrections started
+    value: float  # expected mean of the gains over the session
+    lost_steps: float  # expected steps without useful observing (correcting, or gain <= lost_below)
+    corrections: float  # expected number of corrections started
 
 
 def _target(problem: Problem, m: int, i: int) -> tuple[int, int]:
@@ -101,7 +110,7 @@ def solve(problem: Problem) -> np.ndarray:
     g = problem.gain / n
     value = np.zeros((n + 1, S))
     policy = np.full((n, S), NO_ACTION, dtype=np.int8)
-    for i in range(n - 1, -1, -1):          # backwards over steps; every state at once
+    for i in range(n - 1, -1, -1):  # backwards over steps; every state at once
         best = g[:, i] + value[i + 1]
         for m in range(problem.methods):
             if not problem.start_ok[m, i]:
@@ -125,7 +134,7 @@ def evaluate(problem: Problem, policy: np.ndarray, initial_state: int = 0) -> Ou
     prob = np.zeros((n + 1, S))
     prob[0, initial_state] = 1.0
     value = lost = corrections = 0.0
-    for i in range(n):                       # forwards over steps; every state at once
+    for i in range(n):  # forwards over steps; every state at once
         mass = prob[i]
         watch = (policy[i] == NO_ACTION) & (mass > 0)
         value += float(mass[watch] @ g[watch, i])
@@ -140,7 +149,8 @@ def evaluate(problem: Problem, policy: np.ndarray, initial_state: int = 0) -> Ou
             total = float(mass[sel].sum())
             value += p * total * f * g[target, end - 1] + (1.0 - p) * f * float(mass[sel] @ g[sel, end - 1])
             idle_tail = p * total * (problem.gain[target, end - 1] <= problem.lost_below) + (1.0 - p) * float(
-                mass[sel] @ (problem.gain[sel, end - 1] <= problem.lost_below))
+                mass[sel] @ (problem.gain[sel, end - 1] <= problem.lost_below)
+            )
             lost += total * (int(problem.steps[m]) - f) + f * idle_tail
             corrections += total
             prob[end, target] += p * total
@@ -148,7 +158,9 @@ def evaluate(problem: Problem, policy: np.ndarray, initial_state: int = 0) -> Ou
     return Outcome(value, lost, corrections)
 
 
-def success_path(problem: Problem, policy: np.ndarray, initial_state: int = 0) -> tuple[list[tuple[int, int]], np.ndarray]:
+def success_path(
+    problem: Problem, policy: np.ndarray, initial_state: int = 0
+) -> tuple[list[tuple[int, int]], np.ndarray]:
     """The schedule when every correction succeeds: ``[(start_step, method)]`` and the state per step.
 
     A step spent correcting has state -1 - method.
@@ -157,7 +169,7 @@ def success_path(problem: Problem, policy: np.ndarray, initial_state: int = 0) -
     states = np.empty(n, dtype=np.int64)
     actions: list[tuple[int, int]] = []
     i, s = 0, initial_state
-    while i < n:                             # one pass along the chosen path (few actions)
+    while i < n:  # one pass along the chosen path (few actions)
         m = int(policy[i, s])
         if m == NO_ACTION:
             states[i] = s

@@ -19,9 +19,18 @@ import numpy as np
 import pandas as pd
 
 WINDOW_COLUMNS = (
-    "start_utc", "end_utc", "length_min", "first_step", "stop_step",
-    "max_wind_mean_ms", "max_wind_gust_ms", "min_dew_point_spread_c", "mean_ruze_efficiency",
-    "advised_fraction", "beyond_horizon", "open_end",
+    "start_utc",
+    "end_utc",
+    "length_min",
+    "first_step",
+    "stop_step",
+    "max_wind_mean_ms",
+    "max_wind_gust_ms",
+    "min_dew_point_spread_c",
+    "mean_ruze_efficiency",
+    "advised_fraction",
+    "beyond_horizon",
+    "open_end",
 )
 
 
@@ -89,9 +98,19 @@ def _segment_reduce(values, starts, stops, how: str) -> np.ndarray:
     raise ValueError(f"unknown reduction {how!r}")
 
 
-def find_windows(times_utc, step_min: float, usable, min_length_min: float, *,
-                 wind_mean_ms, wind_gust_ms, dew_point_spread_c, ruze_efficiency,
-                 advised=None, beyond_horizon=None) -> pd.DataFrame:
+def find_windows(
+    times_utc,
+    step_min: float,
+    usable,
+    min_length_min: float,
+    *,
+    wind_mean_ms,
+    wind_gust_ms,
+    dew_point_spread_c,
+    ruze_efficiency,
+    advised=None,
+    beyond_horizon=None,
+) -> pd.DataFrame:
     """Windows at least ``min_length_min`` long in which every step is ``usable``.
 
     Parameters
@@ -134,20 +153,23 @@ def find_windows(times_utc, step_min: float, usable, min_length_min: float, *,
     beyond = np.zeros(n, dtype=bool) if beyond_horizon is None else np.asarray(beyond_horizon, dtype=bool)
     start_ns = t_ns[starts] if n else np.array([], dtype=np.int64)
     end_ns = t_ns[stops - 1] + step_ns if n else np.array([], dtype=np.int64)
-    table = pd.DataFrame({
-        "start_utc": pd.DatetimeIndex(start_ns.astype("datetime64[ns]")).tz_localize("UTC"),
-        "end_utc": pd.DatetimeIndex(np.asarray(end_ns).astype("datetime64[ns]")).tz_localize("UTC"),
-        "length_min": length_min,
-        "first_step": starts,
-        "stop_step": stops,
-        "max_wind_mean_ms": _segment_reduce(wind_mean_ms, starts, stops, "max"),
-        "max_wind_gust_ms": _segment_reduce(wind_gust_ms, starts, stops, "max"),
-        "min_dew_point_spread_c": _segment_reduce(dew_point_spread_c, starts, stops, "min"),
-        "mean_ruze_efficiency": _segment_reduce(ruze_efficiency, starts, stops, "mean"),
-        "advised_fraction": _segment_reduce(advised, starts, stops, "mean"),
-        "beyond_horizon": _segment_reduce(beyond, starts, stops, "any").astype(bool),
-        "open_end": stops == n,
-    }, columns=list(WINDOW_COLUMNS))
+    table = pd.DataFrame(
+        {
+            "start_utc": pd.DatetimeIndex(start_ns.astype("datetime64[ns]")).tz_localize("UTC"),
+            "end_utc": pd.DatetimeIndex(np.asarray(end_ns).astype("datetime64[ns]")).tz_localize("UTC"),
+            "length_min": length_min,
+            "first_step": starts,
+            "stop_step": stops,
+            "max_wind_mean_ms": _segment_reduce(wind_mean_ms, starts, stops, "max"),
+            "max_wind_gust_ms": _segment_reduce(wind_gust_ms, starts, stops, "max"),
+            "min_dew_point_spread_c": _segment_reduce(dew_point_spread_c, starts, stops, "min"),
+            "mean_ruze_efficiency": _segment_reduce(ruze_efficiency, starts, stops, "mean"),
+            "advised_fraction": _segment_reduce(advised, starts, stops, "mean"),
+            "beyond_horizon": _segment_reduce(beyond, starts, stops, "any").astype(bool),
+            "open_end": stops == n,
+        },
+        columns=list(WINDOW_COLUMNS),
+    )
     return table
 
 

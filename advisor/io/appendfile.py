@@ -22,9 +22,16 @@ from advisor.io.fileio import LOCK_WAIT_S, _os_error, _refuse_special, check_pat
 __all__ = ["append_line_locked"]
 
 
-def append_line_locked(path: Path | str, line: str, error_type: type[AdvisorError], what: str = "file",
-                       wait_s: float = LOCK_WAIT_S, *, rotate_above: int | None = None,
-                       repair_partial: bool = False) -> list[str]:
+def append_line_locked(
+    path: Path | str,
+    line: str,
+    error_type: type[AdvisorError],
+    what: str = "file",
+    wait_s: float = LOCK_WAIT_S,
+    *,
+    rotate_above: int | None = None,
+    repair_partial: bool = False,
+) -> list[str]:
     """Append one whole line (a newline is added if missing) to ``path`` under ``locked``, fsynced.
 
     The line is written on an ``O_APPEND`` descriptor; an existing path that is not a regular
@@ -64,8 +71,9 @@ def append_line_locked(path: Path | str, line: str, error_type: type[AdvisorErro
                 keep = _last_newline_end(fd, size)
                 if keep < size:
                     os.ftruncate(fd, keep)
-                    warnings.append(f"{path}: removed a partial last line ({size - keep} bytes) left by an "
-                                    "interrupted run")
+                    warnings.append(
+                        f"{path}: removed a partial last line ({size - keep} bytes) left by an interrupted run"
+                    )
                     size = keep
             try:
                 view = memoryview(data)
@@ -78,8 +86,11 @@ def append_line_locked(path: Path | str, line: str, error_type: type[AdvisorErro
                     os.ftruncate(fd, size)
                 raise
         except OSError as exc:
-            raise error_type(f"cannot append to the {what}: {exc.strerror}", source=str(path),
-                             hint="check the disk is not full and the file is writable") from None
+            raise error_type(
+                f"cannot append to the {what}: {exc.strerror}",
+                source=str(path),
+                hint="check the disk is not full and the file is writable",
+            ) from None
         finally:
             os.close(fd)
     return warnings
@@ -98,8 +109,11 @@ def _rotate_if_full(path: Path, adding: int, limit: int, error_type: type[Adviso
         try:
             os.replace(path, path.with_name(path.name + ".1"))
         except OSError as exc:
-            raise error_type(f"cannot move the full {what} aside to {path.name}.1: {exc.strerror}",
-                             source=str(path), hint="check the folder is writable") from None
+            raise error_type(
+                f"cannot move the full {what} aside to {path.name}.1: {exc.strerror}",
+                source=str(path),
+                hint="check the folder is writable",
+            ) from None
         fsync_folder(path.parent if str(path.parent) else ".")
 
 

@@ -14,11 +14,18 @@ from __future__ import annotations
 
 import functools
 import hashlib
-
 import importlib
 from pathlib import Path
 
-__all__ = ["package_data_dir", "default_rules_dir", "default_rule_files", "demo_dir", "demo_site_path", "is_demo_file", "is_bundled"]
+__all__ = [
+    "package_data_dir",
+    "default_rules_dir",
+    "default_rule_files",
+    "demo_dir",
+    "demo_site_path",
+    "is_demo_file",
+    "is_bundled",
+]
 
 
 def package_data_dir(package: str, source_folder: str) -> Path:

@@ -17,8 +17,10 @@ import csv
 from advisor.errors import AdvisorError
 
 _BOMS = (
-    (codecs.BOM_UTF32_LE, "UTF-32"), (codecs.BOM_UTF32_BE, "UTF-32"),
-    (codecs.BOM_UTF16_LE, "UTF-16"), (codecs.BOM_UTF16_BE, "UTF-16"),
+    (codecs.BOM_UTF32_LE, "UTF-32"),
+    (codecs.BOM_UTF32_BE, "UTF-32"),
+    (codecs.BOM_UTF16_LE, "UTF-16"),
+    (codecs.BOM_UTF16_BE, "UTF-16"),
 )
 
 
@@ -29,7 +31,7 @@ def sniff_encoding_problem(head: bytes) -> str | None:
     character carries without one) and binary content (other NUL bytes).  A UTF-8 BOM is fine.
     """
     if head.startswith(codecs.BOM_UTF8):
-        head = head[len(codecs.BOM_UTF8):]
+        head = head[len(codecs.BOM_UTF8) :]
     for bom, name in _BOMS:
         if head.startswith(bom):
             return name
@@ -47,17 +49,20 @@ def sniff_encoding_problem(head: bytes) -> str | None:
     return "binary"
 
 
-def encoding_error(problem: str, error_type: type[AdvisorError], what: str, source: str,
-                   expected: str = "text") -> AdvisorError:
+def encoding_error(
+    problem: str, error_type: type[AdvisorError], what: str, source: str, expected: str = "text"
+) -> AdvisorError:
     """The one-line error for a :func:`sniff_encoding_problem` finding."""
     if problem in ("UTF-16", "UTF-32"):
-        return error_type(f"{what} is {problem} text, not UTF-8", source=source,
-                          hint="re-save it as UTF-8 (in a spreadsheet: 'CSV UTF-8'; in an editor: encoding UTF-8)")
+        return error_type(
+            f"{what} is {problem} text, not UTF-8",
+            source=source,
+            hint="re-save it as UTF-8 (in a spreadsheet: 'CSV UTF-8'; in an editor: encoding UTF-8)",
+        )
     return error_type("binary content (NUL bytes)", source=source, hint=f"expected {expected}")
 
 
-def decode_text(raw: bytes, error_type: type[AdvisorError], what: str, source: str,
-                expected: str = "text") -> str:
+def decode_text(raw: bytes, error_type: type[AdvisorError], what: str, source: str, expected: str = "text") -> str:
     """UTF-8 bytes as text (a leading BOM dropped); a clear error naming the line otherwise."""
     problem = sniff_encoding_problem(raw[:4096])
     if problem is None and b"\x00" in raw:
@@ -65,13 +70,14 @@ def decode_text(raw: bytes, error_type: type[AdvisorError], what: str, source: s
     if problem is not None:
         raise encoding_error(problem, error_type, what, source, expected)
     if raw.startswith(codecs.BOM_UTF8):
-        raw = raw[len(codecs.BOM_UTF8):]
+        raw = raw[len(codecs.BOM_UTF8) :]
     try:
         return raw.decode("utf-8")
     except UnicodeDecodeError as exc:
         line = raw.count(b"\n", 0, exc.start) + 1
-        raise error_type(f"not UTF-8 text (byte 0x{raw[exc.start]:02x})", source=source, line=line,
-                         hint="re-save the file as UTF-8") from None
+        raise error_type(
+            f"not UTF-8 text (byte 0x{raw[exc.start]:02x})", source=source, line=line, hint="re-save the file as UTF-8"
+        ) from None
 
 
 def repeated_csv_column(header: bytes | str) -> str | None:

@@ -19,11 +19,13 @@ Only the newest :data:`MAX_ENTRIES` are kept.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import os
 import zipfile
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -48,8 +50,14 @@ def _hash_file(digest, path: Path | None) -> None:
             digest.update(block)
 
 
-def key_for(feed_path: Path, site_path: Path | None, registry_path: Path | None, settings: dict,
-            code_paths=(), features_version: int = 0) -> str:
+def key_for(
+    feed_path: Path,
+    site_path: Path | None,
+    registry_path: Path | None,
+    settings: dict,
+    code_paths=(),
+    features_version: int = 0,
+) -> str:
     """The cache key of one replay's features: inputs, settings, feature code and its version."""
     digest = hashlib.blake2b(digest_size=20)
     for path in (feed_path, site_path, registry_path):
@@ -58,8 +66,7 @@ def key_for(feed_path: Path, site_path: Path | None, registry_path: Path | None,
     for path in code_paths:
         _hash_file(digest, Path(path))
         digest.update(b"\0")
-    digest.update(json.dumps({"features_version": features_version, **settings}, sort_keys=True,
-                             default=str).encode())
+    digest.update(json.dumps({"features_version": features_version, **settings}, sort_keys=True, default=str).encode())
     return digest.hexdigest()
 
 
@@ -70,12 +77,15 @@ def load(key: str) -> pd.DataFrame | None:
         return None
     try:
         with np.load(path, allow_pickle=False) as data:
-            columns = {"time": pd.DatetimeIndex(data["time"].astype("datetime64[ns]")).tz_localize("UTC")}
+            columns: dict[str, Any] = {
+                "time": pd.DatetimeIndex(data["time"].astype("datetime64[ns]")).tz_localize("UTC")
+            }
             names = [str(n) for n in data["__columns__"]]
             for name in names:
                 columns[name] = data[name]
             columns["calibrator_name"] = pd.Categorical.from_codes(
-                data["__calibrator_codes__"], categories=[str(c) for c in data["__calibrator_names__"]])
+                data["__calibrator_codes__"], categories=pd.Index([str(c) for c in data["__calibrator_names__"]])
+            )
         os.utime(path)  # most recently used
         return pd.DataFrame(columns)
     except (OSError, ValueError, KeyError, zipfile.BadZipFile, EOFError):
@@ -89,14 +99,16 @@ def store(key: str, features: pd.DataFrame) -> None:
     try:
         folder.mkdir(parents=True, exist_ok=True)
         names = [c for c in features.columns if c not in ("time", "calibrator_name")]
-        arrays = {name: features[name].to_numpy() for name in names}
+        arrays: dict[str, Any] = {name: features[name].to_numpy() for name in names}
         cal = pd.Categorical(features["calibrator_name"])
-        arrays.update({
-            "time": pd.DatetimeIndex(features["time"]).tz_convert("UTC").tz_localize(None).as_unit("ns").asi8,
-            "__columns__": np.array(names),
-            "__calibrator_codes__": cal.codes.astype(np.int16),
-            "__calibrator_names__": np.array([str(c) for c in cal.categories]),
-        })
+        arrays.update(
+            {
+                "time": pd.DatetimeIndex(features["time"]).tz_convert("UTC").tz_localize(None).as_unit("ns").asi8,
+                "__columns__": np.array(names),
+                "__calibrator_codes__": cal.codes.astype(np.int16),
+                "__calibrator_names__": np.array([str(c) for c in cal.categories]),
+            }
+        )
         tmp = folder / f".{key}.{os.getpid()}.tmp.npz"
         np.savez(tmp, **arrays)
         os.replace(tmp, folder / f"{key}.npz")
@@ -104,7 +116,5 @@ def store(key: str, features: pd.DataFrame) -> None:
         for old in entries[MAX_ENTRIES:]:
             old.unlink(missing_ok=True)
     except OSError:
-        try:
-            tmp.unlink(missing_ok=True)  # type: ignore[possibly-undefined]
-        except (OSError, NameError):
-            pass
+        with contextlib.suppress(OSError, NameError):
+            tmp.unlink(missing_ok=True)

@@ -22,18 +22,41 @@ from advisor import units
 from advisor.catalogue import PLAUSIBLE_RANGE
 from advisor.errors import FeedError
 from advisor.io.feedfile import MAX_FULL_READ_BYTES, check_whole_read, open_feed
-from advisor.io.feedlayout import (CANONICAL_COLUMNS, CANONICAL_UNITS, OPTIONAL_COLUMNS, REQUIRED_COLUMNS, ColumnMap,
-                                   FeedLayout)
+from advisor.io.feedlayout import (
+    CANONICAL_COLUMNS,
+    CANONICAL_UNITS,
+    OPTIONAL_COLUMNS,
+    REQUIRED_COLUMNS,
+    ColumnMap,
+    FeedLayout,
+)
 from advisor.io.feedtimes import feed_times
-from advisor.io.feedvalues import (MAX_FEED_NUMBER, column_bit, depth_rate, dropout_mask, kind_rows, numeric_column,
-                                   refuse_mixed_humidity, step_outliers)
+from advisor.io.feedvalues import (
+    MAX_FEED_NUMBER,
+    column_bit,
+    depth_rate,
+    dropout_mask,
+    kind_rows,
+    numeric_column,
+    refuse_mixed_humidity,
+    step_outliers,
+)
 from advisor.io.times import parse_time_column
 from advisor.physics.moisture import dew_point_c
 
-__all__ = ["CHECK_TAIL_BYTES", "MAX_FEED_NUMBER", "MAX_FULL_READ_BYTES", "Feed", "FeedQuality", "canonical_frame",
-           "check_whole_read", "read_feed", "column_names"]
+__all__ = [
+    "CHECK_TAIL_BYTES",
+    "MAX_FEED_NUMBER",
+    "MAX_FULL_READ_BYTES",
+    "Feed",
+    "FeedQuality",
+    "canonical_frame",
+    "check_whole_read",
+    "read_feed",
+    "column_names",
+]
 
-CHECK_TAIL_BYTES = 16_000_000       # an instant's call reads at most this much of a big feed
+CHECK_TAIL_BYTES = 16_000_000  # an instant's call reads at most this much of a big feed
 MAX_OUT_OF_ORDER_FRACTION = 0.01
 
 
@@ -49,18 +72,18 @@ class FeedQuality:
     n_missing: int
     first_time_utc: pd.Timestamp | None
     last_time_utc: pd.Timestamp | None
-    partial_last_line: bool = False   # the file's last line had no newline: ignored as still being written
+    partial_last_line: bool = False  # the file's last line had no newline: ignored as still being written
     cadence_min: float | None = None  # median interval between observed rows
     #: Logger column → cells holding one of the site's missing-value codes.
     coded_cells: dict = field(default_factory=dict)
     rows_with_codes: int = 0
     #: Canonical column → rows where its value was implausible (range or step test).
     implausible_by_column: dict = field(default_factory=dict)
-    gust_estimated: bool = False      # gusts are gust_factor × mean wind (no gust sensor)
+    gust_estimated: bool = False  # gusts are gust_factor × mean wind (no gust sensor)
     columns_read: tuple[str, ...] = ()  # canonical columns the file carries (gusts and dew point may be made)
     #: Canonical column → the logger column it was read from.
     sources: dict = field(default_factory=dict)
-    n_dropouts: int = 0               # rows where an optional sensor that was reporting fell silent
+    n_dropouts: int = 0  # rows where an optional sensor that was reporting fell silent
 
     def as_dict(self) -> dict:
         return {
@@ -98,12 +121,20 @@ def _issue_times(table: pd.DataFrame, column: str, source: str, line_offset: int
     """The issue-time column as UTC times (NaT where empty); every given time needs an offset."""
     if column not in table.columns:
         return pd.Series(pd.NaT, index=table.index, dtype="datetime64[ns, UTC]")
-    return parse_time_column(table[column], source=source, field=column, line_offset=line_offset,
-                             error_type=FeedError, require_offset=True, allow_empty=True)
+    return parse_time_column(
+        table[column],
+        source=source,
+        field=column,
+        line_offset=line_offset,
+        error_type=FeedError,
+        require_offset=True,
+        allow_empty=True,
+    )
 
 
-def _source_column(table: pd.DataFrame, name: str, spec: ColumnMap | None, layout: FeedLayout,
-                   source: str, line_offset: int) -> tuple[str, ColumnMap] | None:
+def _source_column(
+    table: pd.DataFrame, name: str, spec: ColumnMap | None, layout: FeedLayout, source: str, line_offset: int
+) -> tuple[str, ColumnMap] | None:
     """The logger column a canonical column is read from, and how; None when the feed has none."""
     if spec is not None and spec.source_column in table.columns:
         return spec.source_column, spec
@@ -112,12 +143,14 @@ def _source_column(table: pd.DataFrame, name: str, spec: ColumnMap | None, layou
     required = name in REQUIRED_COLUMNS and not (name == "wind_gust_ms" and layout.gust_factor is not None)
     if required:
         wanted = f"'{spec.source_column}' (mapped to {name})" if spec else name
-        hint = (f"columns found: {', '.join(map(str, table.columns[:10]))}; map the logger's column in the site "
-                "file under feed.columns")
+        hint = (
+            f"columns found: {', '.join(map(str, table.columns[:10]))}; map the logger's column in the site "
+            "file under feed.columns"
+        )
         if name == "wind_gust_ms":
             hint += ", or set feed.gust_factor if the station has no gust sensor"
         raise FeedError(f"missing required column {wanted}", source=source, line=max(1, line_offset - 1), hint=hint)
-    return None   # an optional input the feed lacks: "not seen" in every call (feed inspect names the mapping)
+    return None  # an optional input the feed lacks: "not seen" in every call (feed inspect names the mapping)
 
 
 def _read_values(table: pd.DataFrame, layout: FeedLayout, source: str, line_offset: int):
@@ -140,10 +173,19 @@ def _read_values(table: pd.DataFrame, layout: FeedLayout, source: str, line_offs
             hours: np.ndarray | float | None = spec.over_hours
             if spec.over_hours_from is not None:
                 if spec.over_hours_from not in table.columns:
-                    raise FeedError(f"no column '{spec.over_hours_from}' (the hours of {column})", source=source,
-                                    line=max(1, line_offset - 1), hint=f"fix feed.columns.{name}.over_hours_from in the site file")
-                hours, hours_coded = numeric_column(table[spec.over_hours_from], spec.over_hours_from,
-                                                    (*layout.missing, *spec.missing), source, line_offset)
+                    raise FeedError(
+                        f"no column '{spec.over_hours_from}' (the hours of {column})",
+                        source=source,
+                        line=max(1, line_offset - 1),
+                        hint=f"fix feed.columns.{name}.over_hours_from in the site file",
+                    )
+                hours, hours_coded = numeric_column(
+                    table[spec.over_hours_from],
+                    spec.over_hours_from,
+                    (*layout.missing, *spec.missing),
+                    source,
+                    line_offset,
+                )
                 if hours_coded.any():
                     coded_cells[spec.over_hours_from] = int(hours_coded.sum())
                 coded = coded | hours_coded
@@ -214,8 +256,13 @@ def _cadence(frame: pd.DataFrame) -> float | None:
     return float(np.median(np.diff(t)) / 6e10) if len(t) >= 2 else None
 
 
-def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<feed>",
-                    line_offset: int = 2, issue_time_column: str | None = None) -> Feed:
+def canonical_frame(
+    table: pd.DataFrame,
+    layout: FeedLayout,
+    source: str = "<feed>",
+    line_offset: int = 2,
+    issue_time_column: str | None = None,
+) -> Feed:
     """Map, convert, sort and flag a logger table into a canonical :class:`Feed`.
 
     With ``issue_time_column``, the frame also carries ``issued_utc``: each forecast row's issue
@@ -239,8 +286,12 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         bad = ~kind.isin(["observed", "forecast"])
         if bad.any():
             i = int(np.flatnonzero(bad.to_numpy())[0])
-            raise FeedError(f"kind {table['kind'].iloc[i]!r} is neither 'observed' nor 'forecast'",
-                            source=source, line=i + line_offset, field="kind")
+            raise FeedError(
+                f"kind {table['kind'].iloc[i]!r} is neither 'observed' nor 'forecast'",
+                source=source,
+                line=i + line_offset,
+                field="kind",
+            )
         frame["kind"] = kind.to_numpy(dtype=object)
     else:
         frame["kind"] = "observed"
@@ -255,9 +306,12 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
     backwards = np.flatnonzero(t[1:] < t[:-1]) + 1 if len(t) > 1 else np.array([], dtype=int)
     n_out_of_order = int(len(backwards))
     if n_out_of_order > max(1, MAX_OUT_OF_ORDER_FRACTION * len(t)):
-        raise FeedError(f"{n_out_of_order} rows go back in time, first at this line", source=source,
-                        line=int(backwards[0]) + line_offset,
-                        hint="the logger clock or the file order is wrong; sort the feed by time")
+        raise FeedError(
+            f"{n_out_of_order} rows go back in time, first at this line",
+            source=source,
+            line=int(backwards[0]) + line_offset,
+            hint="the logger clock or the file order is wrong; sort the feed by time",
+        )
     frame = frame.sort_values("time", kind="stable")
     dup = frame["time"].duplicated(keep="first").to_numpy()
     if dup.any():
@@ -267,9 +321,13 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
         if conflicting.any():
             when = conflicting[conflicting].index[0]
             i = int(np.flatnonzero(t == when.value)[1])
-            raise FeedError(f"time {_iso(when)} appears twice with different values", source=source,
-                            line=i + line_offset, field=time_field,
-                            hint="remove the duplicate rows; the advisor will not guess which is right")
+            raise FeedError(
+                f"time {_iso(when)} appears twice with different values",
+                source=source,
+                line=i + line_offset,
+                field=time_field,
+                hint="remove the duplicate rows; the advisor will not guess which is right",
+            )
     n_duplicates = int(dup.sum())
     frame = frame[~dup].reset_index(drop=True)
 
@@ -293,22 +351,31 @@ def canonical_frame(table: pd.DataFrame, layout: FeedLayout, source: str = "<fee
     frame["q_bits_dropout"] = _dropouts(frame, layout, cadence)
 
     quality = FeedQuality(
-        n_rows=len(frame), n_duplicates=n_duplicates, n_out_of_order=n_out_of_order,
-        n_gaps=int(frame["q_gap_before"].sum()), n_implausible=int(frame["q_implausible"].sum()),
+        n_rows=len(frame),
+        n_duplicates=n_duplicates,
+        n_out_of_order=n_out_of_order,
+        n_gaps=int(frame["q_gap_before"].sum()),
+        n_implausible=int(frame["q_implausible"].sum()),
         n_missing=int(frame["q_missing"].sum()),
         first_time_utc=frame["time"].iloc[0] if len(frame) else None,
         last_time_utc=frame["time"].iloc[-1] if len(frame) else None,
-        cadence_min=cadence, coded_cells=coded_cells, rows_with_codes=int(coded_rows.sum()),
-        implausible_by_column=implausible_counts, gust_estimated=layout.gust_factor is not None,
-        columns_read=tuple(n for n in CANONICAL_COLUMNS if n in read and not (n == "wind_gust_ms" and layout.gust_factor)),
+        cadence_min=cadence,
+        coded_cells=coded_cells,
+        rows_with_codes=int(coded_rows.sum()),
+        implausible_by_column=implausible_counts,
+        gust_estimated=layout.gust_factor is not None,
+        columns_read=tuple(
+            n for n in CANONICAL_COLUMNS if n in read and not (n == "wind_gust_ms" and layout.gust_factor)
+        ),
         sources=sources,
         n_dropouts=int((frame["q_bits_dropout"] != 0).sum()),
     )
     return Feed(frame=frame, quality=quality, source=source)
 
 
-def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = None,
-              issue_time_column: str | None = None) -> Feed:
+def read_feed(
+    path: Path | str, layout: FeedLayout, tail_bytes: int | None = None, issue_time_column: str | None = None
+) -> Feed:
     """Read a CSV or JSON Lines feed file and return its canonical :class:`Feed`.
 
     With ``tail_bytes``, a file larger than twice that is read only from its last
@@ -318,8 +385,9 @@ def read_feed(path: Path | str, layout: FeedLayout, tail_bytes: int | None = Non
     path = Path(path)
     with open_feed(path, tail_bytes, skip_lines=layout.skip_lines) as raw:
         try:
-            feed = canonical_frame(raw.table, layout, source=str(path), line_offset=raw.first_line,
-                                   issue_time_column=issue_time_column)
+            feed = canonical_frame(
+                raw.table, layout, source=str(path), line_offset=raw.first_line, issue_time_column=issue_time_column
+            )
         except FeedError as exc:
             raise raw.relocate(exc) from None
     if raw.partial:

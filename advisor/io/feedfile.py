@@ -31,9 +31,9 @@ import pandas as pd
 from advisor.errors import FeedError
 from advisor.io.fileio import KINDS, FileKind, encoding_error, open_regular, repeated_csv_column, sniff_encoding_problem
 
-MAX_FULL_READ_BYTES = KINDS["feed"].max_bytes   # whole-file reads (replay, outlook); bounded memory
-MAX_HEADER_BYTES = 65_536                        # the CSV header line
-MAX_LINE_COUNT_BYTES = 512_000_000               # lines before a tail are counted up to this far
+MAX_FULL_READ_BYTES = KINDS["feed"].max_bytes  # whole-file reads (replay, outlook); bounded memory
+MAX_HEADER_BYTES = 65_536  # the CSV header line
+MAX_LINE_COUNT_BYTES = 512_000_000  # lines before a tail are counted up to this far
 _ANY_SIZE = FileKind("feed file", 1 << 62, "")  # tail reads: the size does not matter, the read is bounded
 _BLOCK = 1 << 20
 _EMPTY_HINT = "expected a header line and data rows"
@@ -44,12 +44,12 @@ class RawFeed:
     """What was read from a feed file, before mapping: ``table`` and where its rows are."""
 
     table: pd.DataFrame
-    first_line: int        # line (in what was read) of the table's first row
-    partial: bool          # the file's last line had no newline and was ignored
+    first_line: int  # line (in what was read) of the table's first row
+    partial: bool  # the file's last line had no newline and was ignored
     fh: BinaryIO
-    cut: int = 0           # byte offset where the read part starts (0: whole file)
+    cut: int = 0  # byte offset where the read part starts (0: whole file)
     is_jsonl: bool = False
-    skip: int = 0          # lines above the header (feed.skip_lines)
+    skip: int = 0  # lines above the header (feed.skip_lines)
 
     def relocate(self, error: FeedError) -> FeedError:
         """``error`` with its line turned into a file line (see :func:`_relocate`)."""
@@ -142,8 +142,9 @@ def _refuse_bad_head(head: bytes, source: str) -> None:
 
 def _not_utf8(data: bytes, pos: int, source: str, lines_before: int) -> FeedError:
     line = lines_before + data.count(b"\n", 0, pos) + 1
-    return FeedError(f"not UTF-8 text (byte 0x{data[pos]:02x})", source=source, line=line,
-                     hint="save the feed as UTF-8 CSV")
+    return FeedError(
+        f"not UTF-8 text (byte 0x{data[pos]:02x})", source=source, line=line, hint="save the feed as UTF-8 CSV"
+    )
 
 
 def _first_bad_utf8(fh: BinaryIO, end: int, source: str) -> FeedError | None:
@@ -190,7 +191,7 @@ def _bounded_int(text: str):
 
 def _constant(name: str) -> float:
     if name == "NaN":
-        return float("nan")     # read as a missing value
+        return float("nan")  # read as a missing value
     raise ValueError(f"{name} is not a finite number")
 
 
@@ -202,17 +203,25 @@ def _jsonl_rows(lines, source: str, first_line: int) -> pd.DataFrame:
         try:
             obj = json.loads(raw, object_pairs_hook=_unique_keys, parse_int=_bounded_int, parse_constant=_constant)
         except json.JSONDecodeError as exc:
-            raise FeedError(f"invalid JSON: {exc.msg}", source=source, line=number, column=exc.colno,
-                            hint="one JSON object per line") from None
+            raise FeedError(
+                f"invalid JSON: {exc.msg}",
+                source=source,
+                line=number,
+                column=exc.colno,
+                hint="one JSON object per line",
+            ) from None
         except ValueError as exc:
-            raise FeedError(f"invalid JSON: {exc}", source=source, line=number, hint="one JSON object per line") from None
+            raise FeedError(
+                f"invalid JSON: {exc}", source=source, line=number, hint="one JSON object per line"
+            ) from None
         except RecursionError:
-            raise FeedError("JSON nested too deeply", source=source, line=number,
-                            hint="one flat JSON object per line") from None
+            raise FeedError(
+                "JSON nested too deeply", source=source, line=number, hint="one flat JSON object per line"
+            ) from None
         if not isinstance(obj, dict):
             raise FeedError("expected a JSON object on each line", source=source, line=number)
         for key, value in obj.items():
-            if value is True or value is False:   # a JSON boolean is a word, never 1 or 0
+            if value is True or value is False:  # a JSON boolean is a word, never 1 or 0
                 obj[key] = "true" if value else "false"
         rows.append(obj)
     if not rows:
@@ -223,8 +232,12 @@ def _jsonl_rows(lines, source: str, first_line: int) -> pd.DataFrame:
 def _parse_error(exc: Exception, source: str) -> FeedError:
     msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
     m = re.search(r"line (\d+)", msg)
-    return FeedError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
-                     hint="check delimiters and quoting")
+    return FeedError(
+        f"cannot parse CSV: {msg}",
+        source=source,
+        line=int(m.group(1)) if m else None,
+        hint="check delimiters and quoting",
+    )
 
 
 def check_whole_read(path: Path, size: int | None = None) -> None:
@@ -233,9 +246,11 @@ def check_whole_read(path: Path, size: int | None = None) -> None:
         with open_regular(Path(path), FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (_fh, size):
             pass
     if size > MAX_FULL_READ_BYTES:
-        raise FeedError(f"feed is {size / 1e6:.0f} MB; whole-file commands read at most "
-                        f"{MAX_FULL_READ_BYTES / 1e6:.0f} MB", source=str(path),
-                        hint="split the archive by month and process each part")
+        raise FeedError(
+            f"feed is {size / 1e6:.0f} MB; whole-file commands read at most {MAX_FULL_READ_BYTES / 1e6:.0f} MB",
+            source=str(path),
+            hint="split the archive by month and process each part",
+        )
 
 
 @contextmanager
@@ -250,7 +265,8 @@ def open_feed(path: Path | str, tail_bytes: int | None = None, skip_lines: int =
         _refuse_bad_head(head, source)
         body_head = head[3:] if head.startswith(codecs.BOM_UTF8) else head
         is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or (
-            skip_lines == 0 and body_head.lstrip().startswith(b"{"))
+            skip_lines == 0 and body_head.lstrip().startswith(b"{")
+        )
         tail_part = tail_bytes if tail_bytes is not None and size > 2 * tail_bytes else None
         if tail_part is None:
             check_whole_read(path, size)
@@ -260,15 +276,23 @@ def open_feed(path: Path | str, tail_bytes: int | None = None, skip_lines: int =
             if tail_part is not None:
                 amount = f"{tail_part / 1e6:.0f} MB" if tail_part >= 10_000_000 else f"{tail_part:,} bytes"
                 where = f"in the last {amount} of the feed"
-            raise FeedError(f"no complete line {where}: no line ends with a newline", source=source,
-                            hint="a logger's line in progress is ignored until its newline is written; "
-                                 "is this a CSV or JSON Lines feed?")
+            raise FeedError(
+                f"no complete line {where}: no line ends with a newline",
+                source=source,
+                hint="a logger's line in progress is ignored until its newline is written; "
+                "is this a CSV or JSON Lines feed?",
+            )
         try:
-            raw = (_whole(fh, end, is_jsonl, source, skip_lines) if tail_part is None
-                   else _tail(fh, end, tail_part, is_jsonl, source, skip_lines))
+            raw = (
+                _whole(fh, end, is_jsonl, source, skip_lines)
+                if tail_part is None
+                else _tail(fh, end, tail_part, is_jsonl, source, skip_lines)
+            )
         except UnicodeDecodeError:
-            raise (_first_bad_utf8(fh, end, source) or FeedError("not UTF-8 text", source=source,
-                                                                 hint="save the feed as UTF-8 CSV")) from None
+            raise (
+                _first_bad_utf8(fh, end, source)
+                or FeedError("not UTF-8 text", source=source, hint="save the feed as UTF-8 CSV")
+            ) from None
         except pd.errors.EmptyDataError:
             raise FeedError("feed has no header or rows", source=source, hint=_EMPTY_HINT) from None
         except (pd.errors.ParserError, ValueError) as exc:
@@ -279,13 +303,20 @@ def open_feed(path: Path | str, tail_bytes: int | None = None, skip_lines: int =
                 fh.readline(MAX_HEADER_BYTES)
             repeated = repeated_csv_column(fh.readline(MAX_HEADER_BYTES))
             if repeated:
-                raise FeedError(f"column {repeated!r} appears twice in the header", source=source,
-                                line=1 + skip_lines, hint="keep one; the advisor will not guess which is meant")
+                raise FeedError(
+                    f"column {repeated!r} appears twice in the header",
+                    source=source,
+                    line=1 + skip_lines,
+                    hint="keep one; the advisor will not guess which is meant",
+                )
         raw.partial = end < size
         if len(raw.table) == 0 and raw.partial:
-            raise FeedError("feed has no complete data row: its last line has no newline at the end", source=source,
-                            hint="a logger's line in progress is ignored until its newline is written; "
-                                 "end every line with a newline")
+            raise FeedError(
+                "feed has no complete data row: its last line has no newline at the end",
+                source=source,
+                hint="a logger's line in progress is ignored until its newline is written; "
+                "end every line with a newline",
+            )
         yield raw
 
 
@@ -308,13 +339,17 @@ def _tail(fh: BinaryIO, end: int, tail_bytes: int, is_jsonl: bool, source: str, 
     if not is_jsonl:
         header = fh.readline(MAX_HEADER_BYTES + 1)
         if len(header) > MAX_HEADER_BYTES or not header.endswith(b"\n"):
-            raise FeedError(f"the header line is longer than {MAX_HEADER_BYTES:,} bytes", source=source, line=1 + skip,
-                            hint="is this a CSV feed? expected a header line of column names")
-    body_start = fh.tell()   # after the skipped lines and the header
+            raise FeedError(
+                f"the header line is longer than {MAX_HEADER_BYTES:,} bytes",
+                source=source,
+                line=1 + skip,
+                hint="is this a CSV feed? expected a header line of column names",
+            )
+    body_start = fh.tell()  # after the skipped lines and the header
     start = max(end - tail_bytes, body_start)
     fh.seek(start)
     if start > body_start:
-        fh.readline(tail_bytes)   # the line the cut fell into; `end` ends a line, so this stops there
+        fh.readline(tail_bytes)  # the line the cut fell into; `end` ends a line, so this stops there
     cut = fh.tell()
     body = fh.read(max(0, end - cut))
     if header.startswith(codecs.BOM_UTF8):

@@ -57,21 +57,45 @@ _HOURS_COLUMN = re.compile(r"quantity|\(hr\)|hours|period|accum", re.I)
 _SKIP_WORDS = re.compile(r"source|uncert|flag|qc|quality|\bdir\b|direction", re.I)
 #: Unit spelling in a column name → unit, by canonical column's dimension.
 _UNIT_WORDS = {
-    "speed": ((r"m/s|\bms\b|_ms$|m s-1", "m/s"), (r"\bkn\b|knot|\bkt\b|_kn$|_kt$", "kn"), (r"mph", "mph"),
-              (r"km/h|kmh|kph", "km/h")),
-    "temperature": ((r"\(c\)|degc|°c|_c$|\bc\b|celsius", "degC"), (r"\(f\)|degf|°f|_f$|\bf\b|fahrenheit", "degF"),
-                    (r"\(k\)|kelvin", "K")),
+    "speed": (
+        (r"m/s|\bms\b|_ms$|m s-1", "m/s"),
+        (r"\bkn\b|knot|\bkt\b|_kn$|_kt$", "kn"),
+        (r"mph", "mph"),
+        (r"km/h|kmh|kph", "km/h"),
+    ),
+    "temperature": (
+        (r"\(c\)|degc|°c|_c$|\bc\b|celsius", "degC"),
+        (r"\(f\)|degf|°f|_f$|\bf\b|fahrenheit", "degF"),
+        (r"\(k\)|kelvin", "K"),
+    ),
     "fraction": ((r"%|pct|percent", "%"), (r"frac", "fraction")),
     "pressure": ((r"mbar|\bmb\b", "mbar"), (r"hpa", "hPa"), (r"inhg", "inHg"), (r"\bpa\b|\(pa\)", "Pa")),
     "length": ((r"\(m\)|_m$|\bm\b", "m"), (r"\bkm\b|\(km\)", "km")),
     "rain": ((r"mm/h|mm h-1|mmh", "mm/h"), (r"in/h", "in/h"), (r"\(mm\)|\bmm\b|_mm$", "mm"), (r"\(in\)|_in$", "in")),
     "irradiance": ((r"w/m|wm2|w m-2", "W/m2"),),
 }
-_DIMENSION = {"wind_mean_ms": "speed", "wind_gust_ms": "speed", "air_temp_c": "temperature", "dew_point_c": "temperature",
-              "rel_humidity_pct": "fraction", "pressure_hpa": "pressure", "visibility_m": "length",
-              "precip_mm_h": "rain", "solar_wm2": "irradiance"}
-_FORMATS = ("%m/%d/%Y %H:%M", "%d/%m/%Y %H:%M", "%Y/%m/%d %H:%M", "%d.%m.%Y %H:%M", "%Y-%m-%d %H:%M",
-            "%d-%m-%Y %H:%M", "%m-%d-%Y %H:%M", "%Y%m%d %H%M", "%Y%m%d%H%M")
+_DIMENSION = {
+    "wind_mean_ms": "speed",
+    "wind_gust_ms": "speed",
+    "air_temp_c": "temperature",
+    "dew_point_c": "temperature",
+    "rel_humidity_pct": "fraction",
+    "pressure_hpa": "pressure",
+    "visibility_m": "length",
+    "precip_mm_h": "rain",
+    "solar_wm2": "irradiance",
+}
+_FORMATS = (
+    "%m/%d/%Y %H:%M",
+    "%d/%m/%Y %H:%M",
+    "%Y/%m/%d %H:%M",
+    "%d.%m.%Y %H:%M",
+    "%Y-%m-%d %H:%M",
+    "%d-%m-%Y %H:%M",
+    "%m-%d-%Y %H:%M",
+    "%Y%m%d %H%M",
+    "%Y%m%d%H%M",
+)
 
 
 @dataclass(frozen=True)
@@ -95,10 +119,10 @@ class Guess:
     skipped_lines: list[str] = field(default_factory=list)
     columns: dict[str, GuessedColumn] = field(default_factory=dict)
     unused: list[str] = field(default_factory=list)
-    notes: dict[str, str] = field(default_factory=dict)     # layout key → why it was guessed
-    todos: dict[str, str] = field(default_factory=dict)     # layout key → what to fill in
-    codes_found: dict[str, list] = field(default_factory=dict)   # logger column → codes seen in it
-    zone_known: bool = False                                 # the times carry their own offset
+    notes: dict[str, str] = field(default_factory=dict)  # layout key → why it was guessed
+    todos: dict[str, str] = field(default_factory=dict)  # layout key → what to fill in
+    codes_found: dict[str, list] = field(default_factory=dict)  # logger column → codes seen in it
+    zone_known: bool = False  # the times carry their own offset
     cadence_min: float | None = None
 
 
@@ -114,8 +138,9 @@ def _head_text(path: Path) -> tuple[str, bool]:
     try:
         return data.decode("utf-8"), whole
     except UnicodeDecodeError as exc:
-        raise FeedError(f"not UTF-8 text (byte 0x{data[exc.start]:02x})", source=str(path),
-                        hint="save the feed as UTF-8 CSV") from None
+        raise FeedError(
+            f"not UTF-8 text (byte 0x{data[exc.start]:02x})", source=str(path), hint="save the feed as UTF-8 CSV"
+        ) from None
 
 
 def _header_line(lines: list[str]) -> int:
@@ -123,7 +148,7 @@ def _header_line(lines: list[str]) -> int:
     rows = list(csv.reader(lines[:40]))
     counts = [len(r) for r in rows]
     for i, row in enumerate(rows[:20]):
-        below = counts[i + 1:i + 11]
+        below = counts[i + 1 : i + 11]
         if not below or len(row) < 2:
             continue
         if all(c == len(row) for c in below):
@@ -152,8 +177,11 @@ def _unit_from_name(canonical: str, name: str) -> tuple[str, str] | None:
 def _time_columns(table: pd.DataFrame) -> tuple[list[str], str]:
     names = [str(c) for c in table.columns]
     low = {n: n.lower() for n in names}
-    single = [n for n in names if re.match(r"\s*(timestamp|datetime|date[_ ]?time|time[_ ]?stamp|time_utc|utc|time)\b",
-                                           low[n])]
+    single = [
+        n
+        for n in names
+        if re.match(r"\s*(timestamp|datetime|date[_ ]?time|time[_ ]?stamp|time_utc|utc|time)\b", low[n])
+    ]
     dates = [n for n in names if re.match(r"\s*date\b", low[n]) and n not in single]
     times = [n for n in names if re.match(r"\s*(time|hour|hh:mm)\b", low[n])]
     if dates and times:
@@ -234,15 +262,25 @@ def guess_layout(path: Path | str) -> Guess:
     is_jsonl = lines[0].lstrip().startswith("{")
     skip = 0 if is_jsonl else _header_line(lines)
     try:
-        table = pd.read_json(io.StringIO("\n".join(lines[:20000])), lines=True, dtype=False) if is_jsonl else \
-            pd.read_csv(io.StringIO("\n".join(lines[skip:skip + 20001])), dtype=str, keep_default_na=False)
+        table = (
+            pd.read_json(io.StringIO("\n".join(lines[:20000])), lines=True, dtype=False)
+            if is_jsonl
+            else pd.read_csv(io.StringIO("\n".join(lines[skip : skip + 20001])), dtype=str, keep_default_na=False)
+        )
     except (ValueError, pd.errors.ParserError) as exc:
-        raise FeedError(f"cannot read the file's first lines: {str(exc).splitlines()[0]}", source=str(path),
-                        hint="is it a comma-separated or JSON Lines file?") from None
+        raise FeedError(
+            f"cannot read the file's first lines: {str(exc).splitlines()[0]}",
+            source=str(path),
+            hint="is it a comma-separated or JSON Lines file?",
+        ) from None
     table = table.rename(columns=lambda c: str(c).strip())
     if len(table.columns) == 1 and any(ch in str(table.columns[0]) for ch in ";\t|"):
-        raise FeedError("the file seems to use another delimiter than ','", source=str(path), line=skip + 1,
-                        hint="save it as comma-separated (CSV) or JSON Lines")
+        raise FeedError(
+            "the file seems to use another delimiter than ','",
+            source=str(path),
+            line=skip + 1,
+            hint="save it as comma-separated (CSV) or JSON Lines",
+        )
     if len(table) == 0:
         raise FeedError("no data rows in the file's first lines", source=str(path), hint="expected data rows")
     guess = Guess(FeedLayout(), [str(c) for c in table.columns], skipped_lines=lines[:skip])
@@ -256,15 +294,17 @@ def guess_layout(path: Path | str) -> Guess:
     guess.notes["time_column"] = f"chosen by {why}"
     guess.notes["time_format" if fmt else "time_unit" if unit else "time_column"] = fmt_why
     if fmt is None and unit is None and "ISO" not in fmt_why:
-        guess.todos["time_format"] = "the strftime layout of the time text, e.g. \"%m/%d/%Y %H:%M\""
+        guess.todos["time_format"] = 'the strftime layout of the time text, e.g. "%m/%d/%Y %H:%M"'
     label = "end" if midnight else "instant"
     if midnight:
         guess.notes["time_label"] = "stamps run to 24:00: each ends the period its values cover"
     zone_known = unit is not None or bool(texts.head(200).str.contains(r"(?:[Zz]|[+-]\d\d:?\d\d)$").all())
     guess.zone_known = zone_known
     if not zone_known:
-        guess.todos["time_zone"] = ("the zone the stamps are written in: UTC, a fixed offset such as UTC-05:00 for "
-                                    "standard time all year, or an IANA name such as America/Chicago")
+        guess.todos["time_zone"] = (
+            "the zone the stamps are written in: UTC, a fixed offset such as UTC-05:00 for "
+            "standard time all year, or an IANA name such as America/Chicago"
+        )
     used = set(time_cols)
     for canonical, pattern, exclude in _PATTERNS:
         for name in guess.header:
@@ -273,26 +313,38 @@ def guess_layout(path: Path | str) -> Guess:
             low = name.lower()
             if re.search(pattern, low) and not (exclude and re.search(exclude, low)):
                 unit_guess = _unit_from_name(canonical, name)
-                unit_name, unit_why = unit_guess or (CANONICAL_UNITS[canonical],
-                                                     f"no unit in the name: {CANONICAL_UNITS[canonical]} assumed, check")
+                unit_name, unit_why = unit_guess or (
+                    CANONICAL_UNITS[canonical],
+                    f"no unit in the name: {CANONICAL_UNITS[canonical]} assumed, check",
+                )
                 hours = None
                 if canonical == "precip_mm_h" and unit_name in ("mm", "in"):
-                    hours = next((h for h in guess.header if h != name and _HOURS_COLUMN.search(h)
-                                  and not _SKIP_WORDS.search(h)), None)
+                    hours = next(
+                        (
+                            h
+                            for h in guess.header
+                            if h != name and _HOURS_COLUMN.search(h) and not _SKIP_WORDS.search(h)
+                        ),
+                        None,
+                    )
                     if hours is None:
-                        guess.todos["precip_mm_h"] = (f"'{name}' is a depth: add over_hours: N (the hours it was "
-                                                      "collected over) or over_hours_from: COLUMN")
+                        guess.todos["precip_mm_h"] = (
+                            f"'{name}' is a depth: add over_hours: N (the hours it was "
+                            "collected over) or over_hours_from: COLUMN"
+                        )
                 depth = canonical == "precip_mm_h" and unit_name in ("mm", "in")
                 codes = _sentinels(table[name], None if depth else canonical, None if depth else unit_name)
                 if depth and (table[name].astype(str).str.strip().str.startswith("-")).any():
                     codes += [c for c in _sentinels(table[name]) if c not in codes]
-                    codes += [c for c in SENTINELS if c < 0 and (pd.to_numeric(table[name], errors="coerce") == c).any()
-                              and c not in codes]
+                    codes += [
+                        c
+                        for c in SENTINELS
+                        if c < 0 and (pd.to_numeric(table[name], errors="coerce") == c).any() and c not in codes
+                    ]
                 if hours is not None:
                     codes += [c for c in _sentinels(table[hours]) if c not in codes]
                 codes = [int(c) if isinstance(c, float) and c == int(c) else c for c in codes]
-                guess.columns[canonical] = GuessedColumn(canonical, name, unit_name, unit_why, hours,
-                                                         tuple(codes))
+                guess.columns[canonical] = GuessedColumn(canonical, name, unit_name, unit_why, hours, tuple(codes))
                 used.add(name)
                 if hours:
                     used.add(hours)
@@ -302,9 +354,10 @@ def guess_layout(path: Path | str) -> Guess:
             guess.todos[required] = "no column looks like it: name the logger's column"
     gust_factor = None
     if "wind_gust_ms" not in guess.columns and "wind_mean_ms" in guess.columns:
-        guess.todos["gust_factor"] = ("no gust column: the station's gust factor (gust / mean, e.g. 1.5), or map "
-                                      "a gust column as wind_gust_ms")
-        gust_factor = 1.5   # only to read the file for inspection; the site file keeps the TODO
+        guess.todos["gust_factor"] = (
+            "no gust column: the station's gust factor (gust / mean, e.g. 1.5), or map a gust column as wind_gust_ms"
+        )
+        gust_factor = 1.5  # only to read the file for inspection; the site file keeps the TODO
     all_codes = sorted({c for col in guess.columns.values() for c in col.codes}, key=str)
     for col in guess.columns.values():
         for c in col.codes:
@@ -312,20 +365,38 @@ def guess_layout(path: Path | str) -> Guess:
     guess.unused = [n for n in guess.header if n not in used]
     times_for_cadence = texts.head(2000)
     try:
-        parsed = pd.to_datetime(times_for_cadence.str.replace(MIDNIGHT_24, "00:00", regex=True),
-                                format=fmt if fmt else ("ISO8601" if unit is None else None),
-                                unit=None, errors="coerce", utc=True) if unit is None else \
-            pd.to_datetime(pd.to_numeric(times_for_cadence), unit="ms" if unit == "epoch_ms" else "s", utc=True)
+        parsed = (
+            pd.to_datetime(
+                times_for_cadence.str.replace(MIDNIGHT_24, "00:00", regex=True),
+                format=fmt if fmt else ("ISO8601" if unit is None else None),
+                unit=None,
+                errors="coerce",
+                utc=True,
+            )
+            if unit is None
+            else pd.to_datetime(pd.to_numeric(times_for_cadence), unit="ms" if unit == "epoch_ms" else "s", utc=True)
+        )
         t = np.sort(pd.DatetimeIndex(parsed.dropna()).as_unit("ns").asi8)
         steps = np.diff(t)
         steps = steps[steps > 0]
         guess.cadence_min = float(np.median(steps) / 6e10) if len(steps) else None
     except (ValueError, TypeError):
         guess.cadence_min = None
-    columns = tuple(ColumnMap(c.canonical, c.source, c.unit, over_hours_from=c.over_hours_from)
-                    for c in guess.columns.values() if not (c.canonical == "precip_mm_h" and "precip_mm_h" in guess.todos))
+    columns = tuple(
+        ColumnMap(c.canonical, c.source, c.unit, over_hours_from=c.over_hours_from)
+        for c in guess.columns.values()
+        if not (c.canonical == "precip_mm_h" and "precip_mm_h" in guess.todos)
+    )
     guess.layout = FeedLayout(
-        path=path, time_column=time_cols[0] if len(time_cols) == 1 else (time_cols[0], time_cols[1]),
-        time_zone=None if zone_known else "UTC", columns=columns, time_unit=unit, time_format=fmt,
-        time_label=label, skip_lines=skip, missing=tuple(all_codes), gust_factor=gust_factor)
+        path=path,
+        time_column=time_cols[0] if len(time_cols) == 1 else (time_cols[0], time_cols[1]),
+        time_zone=None if zone_known else "UTC",
+        columns=columns,
+        time_unit=unit,
+        time_format=fmt,
+        time_label=label,
+        skip_lines=skip,
+        missing=tuple(all_codes),
+        gust_factor=gust_factor,
+    )
     return guess

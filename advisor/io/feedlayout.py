@@ -38,21 +38,46 @@ import numpy as np
 from advisor import units
 from advisor.io.sitereader import Reader
 
-__all__ = ["CANONICAL_COLUMNS", "REQUIRED_COLUMNS", "OPTIONAL_COLUMNS", "CANONICAL_UNITS", "DEFAULT_MAX_CHANGE_PER_MIN",
-           "TIME_LABELS", "TIME_UNITS", "ColumnMap", "FeedLayout", "parse_feed_section", "parse_time_zone",
-           "fixed_offset_minutes", "zone_label"]
+__all__ = [
+    "CANONICAL_COLUMNS",
+    "REQUIRED_COLUMNS",
+    "OPTIONAL_COLUMNS",
+    "CANONICAL_UNITS",
+    "DEFAULT_MAX_CHANGE_PER_MIN",
+    "TIME_LABELS",
+    "TIME_UNITS",
+    "ColumnMap",
+    "FeedLayout",
+    "parse_feed_section",
+    "parse_time_zone",
+    "fixed_offset_minutes",
+    "zone_label",
+]
 
 CANONICAL_COLUMNS = (
-    "wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct",
-    "dew_point_c", "pressure_hpa", "precip_mm_h", "visibility_m", "solar_wm2",
+    "wind_mean_ms",
+    "wind_gust_ms",
+    "air_temp_c",
+    "rel_humidity_pct",
+    "dew_point_c",
+    "pressure_hpa",
+    "precip_mm_h",
+    "visibility_m",
+    "solar_wm2",
 )
 REQUIRED_COLUMNS = ("wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct")
 #: Inputs a call can be made without; absent, they are "not seen", never "fine".
 OPTIONAL_COLUMNS = ("pressure_hpa", "precip_mm_h", "visibility_m", "solar_wm2")
 CANONICAL_UNITS = {
-    "wind_mean_ms": "m/s", "wind_gust_ms": "m/s", "air_temp_c": "degC",
-    "rel_humidity_pct": "%", "dew_point_c": "degC", "pressure_hpa": "hPa",
-    "precip_mm_h": "mm/h", "visibility_m": "m", "solar_wm2": "W/m2",
+    "wind_mean_ms": "m/s",
+    "wind_gust_ms": "m/s",
+    "air_temp_c": "degC",
+    "rel_humidity_pct": "%",
+    "dew_point_c": "degC",
+    "pressure_hpa": "hPa",
+    "precip_mm_h": "mm/h",
+    "visibility_m": "m",
+    "solar_wm2": "W/m2",
 }
 TIME_UNITS = ("iso", "epoch_s", "epoch_ms")
 #: What a stamp marks: an instant, the end of the period its values cover, or its start.
@@ -64,8 +89,13 @@ TIME_LABELS = ("instant", "end", "start")
 #: stations", WMO CBS/OPAG-IOS/ET AWS-3/Doc. 4(2) (quoted from memory); over longer intervals the
 #: limit grows in proportion (a generous bound: it bites on fast feeds, never on hourly ones).
 DEFAULT_MAX_CHANGE_PER_MIN = {
-    "air_temp_c": 3.0, "dew_point_c": 2.0, "rel_humidity_pct": 10.0, "pressure_hpa": 0.5,
-    "wind_mean_ms": 20.0, "wind_gust_ms": 20.0, "solar_wm2": 800.0,
+    "air_temp_c": 3.0,
+    "dew_point_c": 2.0,
+    "rel_humidity_pct": 10.0,
+    "pressure_hpa": 0.5,
+    "wind_mean_ms": 20.0,
+    "wind_gust_ms": 20.0,
+    "solar_wm2": 800.0,
 }
 
 #: Floors of the limits derived from the cadence [min] (the limits of a 1-minute logger).
@@ -107,16 +137,16 @@ class FeedLayout:
     time_column: str | tuple[str, ...] = "time"
     time_zone: str | None = None
     columns: tuple[ColumnMap, ...] = ()
-    max_feed_age_min: float | None = None   # None: from the cadence (age_limit_min)
-    max_gap_min: float | None = None        # None: from the cadence (gap_limit_min)
-    time_unit: str | None = None   # None: ISO 8601 text (or epoch seconds); "iso", "epoch_s", "epoch_ms"
-    time_format: str | None = None          # strftime format of the (joined) time text
-    time_label: str = "instant"             # instant | end | start
-    skip_lines: int = 0                     # lines above the header
-    missing: tuple = ()                     # codes meaning "no value" in every column
-    gust_factor: float | None = None        # no gust sensor: gust = factor × mean wind (estimated)
-    dropout_min: float | None = None        # None: from the cadence (dropout_limit_min)
-    max_change_per_min: tuple[tuple[str, float], ...] = ()   # site overrides of the step limits
+    max_feed_age_min: float | None = None  # None: from the cadence (age_limit_min)
+    max_gap_min: float | None = None  # None: from the cadence (gap_limit_min)
+    time_unit: str | None = None  # None: ISO 8601 text (or epoch seconds); "iso", "epoch_s", "epoch_ms"
+    time_format: str | None = None  # strftime format of the (joined) time text
+    time_label: str = "instant"  # instant | end | start
+    skip_lines: int = 0  # lines above the header
+    missing: tuple = ()  # codes meaning "no value" in every column
+    gust_factor: float | None = None  # no gust sensor: gust = factor × mean wind (estimated)
+    dropout_min: float | None = None  # None: from the cadence (dropout_limit_min)
+    max_change_per_min: tuple[tuple[str, float], ...] = ()  # site overrides of the step limits
 
     @property
     def time_columns(self) -> tuple[str, ...]:
@@ -169,8 +199,9 @@ def _limit(fixed: float | None, cadence_min, floor: float, cadences: float):
     if fixed is not None:
         return fixed if np.ndim(cadence_min) == 0 else np.full(np.shape(cadence_min), float(fixed))
     cadence = np.asarray(np.nan if cadence_min is None else cadence_min, dtype=float)
-    value = np.where(np.isfinite(cadence), np.maximum(floor, cadences * np.where(np.isfinite(cadence), cadence, 0)),
-                     floor)
+    value = np.where(
+        np.isfinite(cadence), np.maximum(floor, cadences * np.where(np.isfinite(cadence), cadence, 0)), floor
+    )
     return float(value) if value.ndim == 0 else value
 
 
@@ -200,8 +231,9 @@ def parse_time_zone(value: str, allow_fractional_offset: bool = True) -> str:
             hours = -minutes // 60
             return "UTC" if hours == 0 else f"Etc/GMT{hours:+d}"
         if not allow_fractional_offset:
-            raise ValueError(f"offset {text!r} is not a whole number of hours here; name the IANA zone "
-                             "(e.g. Asia/Kolkata)")
+            raise ValueError(
+                f"offset {text!r} is not a whole number of hours here; name the IANA zone (e.g. Asia/Kolkata)"
+            )
         sign = "+" if minutes > 0 else "-"
         return f"UTC{sign}{abs(minutes) // 60:02d}:{abs(minutes) % 60:02d}"
     if not text or len(text) > 64 or any(not (ch.isalnum() or ch in "/_+-") for ch in text):
@@ -252,8 +284,9 @@ def _codes(reader: Reader, path: tuple) -> tuple:
     out: list = []
     for item in value:
         if isinstance(item, bool) or not isinstance(item, (int, float, str)):
-            raise reader.fail(path, f"expected a list of numbers or words, got {item!r}",
-                              hint="e.g. missing: [-9900, -9999, M]")
+            raise reader.fail(
+                path, f"expected a list of numbers or words, got {item!r}", hint="e.g. missing: [-9900, -9999, M]"
+            )
         if isinstance(item, str):
             word = item.strip()
             if not word:
@@ -277,14 +310,20 @@ def _column(reader: Reader, canonical: str) -> ColumnMap:
         import difflib
 
         close = difflib.get_close_matches(str(canonical), CANONICAL_COLUMNS, n=1)
-        raise reader.fail(cpath, "not a canonical column",
-                          hint=f"did you mean '{close[0]}'?" if close else f"one of {', '.join(CANONICAL_COLUMNS)}")
+        raise reader.fail(
+            cpath,
+            "not a canonical column",
+            hint=f"did you mean '{close[0]}'?" if close else f"one of {', '.join(CANONICAL_COLUMNS)}",
+        )
     keys = {"from", "unit", "missing"} | ({"over_hours", "over_hours_from"} if canonical == "precip_mm_h" else set())
     reader.section(cpath, keys)
     src = reader.text(cpath + ("from",), required=True) or ""
     unit = reader.text(cpath + ("unit",), default=CANONICAL_UNITS[canonical]) or CANONICAL_UNITS[canonical]
-    over_hours = reader.number(cpath + ("over_hours",), lo=1e-3, hi=24 * 366) \
-        if reader.get_raw(cpath + ("over_hours",)) is not None else None
+    over_hours = (
+        reader.number(cpath + ("over_hours",), lo=1e-3, hi=24 * 366)
+        if reader.get_raw(cpath + ("over_hours",)) is not None
+        else None
+    )
     over_from = reader.text(cpath + ("over_hours_from",))
     if over_hours is not None and over_from is not None:
         raise reader.fail(cpath + ("over_hours_from",), "give over_hours or over_hours_from, not both")
@@ -310,8 +349,11 @@ def _time_column(reader: Reader) -> str | tuple[str, ...]:
         if value[0] == value[1]:
             raise reader.fail(path, "the date and the time column are the same")
         return (value[0], value[1])
-    raise reader.fail(path, f"expected a column name or [date column, time column], got {value!r}",
-                      hint='e.g. time_column: timestamp, or time_column: ["Date (MM/DD/YYYY)", "Time (HH:MM)"]')
+    raise reader.fail(
+        path,
+        f"expected a column name or [date column, time column], got {value!r}",
+        hint='e.g. time_column: timestamp, or time_column: ["Date (MM/DD/YYYY)", "Time (HH:MM)"]',
+    )
 
 
 def _time_format(reader: Reader, two_columns: bool) -> str | None:
@@ -319,17 +361,26 @@ def _time_format(reader: Reader, two_columns: bool) -> str | None:
     fmt = reader.text(path)
     if fmt is None:
         if two_columns:
-            raise reader.fail(path, "a date and a time column need a time_format",
-                              hint='the two are joined with one space, e.g. time_format: "%m/%d/%Y %H:%M"')
+            raise reader.fail(
+                path,
+                "a date and a time column need a time_format",
+                hint='the two are joined with one space, e.g. time_format: "%m/%d/%Y %H:%M"',
+            )
         return None
     if "%" not in fmt:
         raise reader.fail(path, f"{fmt!r} has no % directive", hint='write strftime codes, e.g. "%m/%d/%Y %H:%M"')
     if not any(d in fmt for d in ("%d", "%j")) or "%H" not in fmt and "%I" not in fmt:
-        raise reader.fail(path, f"{fmt!r} needs a day (%d or %j) and an hour (%H or %I)",
-                          hint='e.g. "%Y-%m-%d %H:%M" or "%m/%d/%Y %H:%M"')
+        raise reader.fail(
+            path,
+            f"{fmt!r} needs a day (%d or %j) and an hour (%H or %I)",
+            hint='e.g. "%Y-%m-%d %H:%M" or "%m/%d/%Y %H:%M"',
+        )
     if "%z" in fmt or "%Z" in fmt:
-        raise reader.fail(path, "a zone in the time text is not read with time_format",
-                          hint="remove %z/%Z and set feed.time_zone, or write ISO 8601 times with an offset")
+        raise reader.fail(
+            path,
+            "a zone in the time text is not read with time_format",
+            hint="remove %z/%Z and set feed.time_zone, or write ISO 8601 times with an offset",
+        )
     return fmt
 
 
@@ -339,8 +390,22 @@ def _max_change(reader: Reader) -> tuple[tuple[str, float], ...]:
     return tuple((name, reader.number(path + (name,), lo=1e-6, hi=1e6, required=True)) for name in section)
 
 
-FEED_KEYS = {"path", "time_column", "time_zone", "time_unit", "time_format", "time_label", "skip_lines", "columns",
-             "missing", "gust_factor", "max_feed_age_min", "max_gap_min", "dropout_min", "max_change_per_min"}
+FEED_KEYS = {
+    "path",
+    "time_column",
+    "time_zone",
+    "time_unit",
+    "time_format",
+    "time_label",
+    "skip_lines",
+    "columns",
+    "missing",
+    "gust_factor",
+    "max_feed_age_min",
+    "max_gap_min",
+    "dropout_min",
+    "max_change_per_min",
+}
 
 
 def parse_feed_section(reader: Reader, base: Path) -> FeedLayout:
@@ -355,22 +420,34 @@ def parse_feed_section(reader: Reader, base: Path) -> FeedLayout:
     if reader.get_raw(("feed", "gust_factor")) is not None:
         gust_factor = reader.number(("feed", "gust_factor"), lo=1.0, hi=5.0)
         if "wind_gust_ms" in mapped:
-            raise reader.fail(("feed", "gust_factor"), "the feed maps a gust column and also sets gust_factor",
-                              hint="use the measured gusts (remove gust_factor) or drop the wind_gust_ms mapping")
+            raise reader.fail(
+                ("feed", "gust_factor"),
+                "the feed maps a gust column and also sets gust_factor",
+                hint="use the measured gusts (remove gust_factor) or drop the wind_gust_ms mapping",
+            )
     time_column = _time_column(reader)
     time_unit = reader.text(("feed", "time_unit"))
     if time_unit is not None and time_unit not in TIME_UNITS:
-        raise reader.fail(("feed", "time_unit"), f"unknown time unit {time_unit!r}",
-                          hint="use iso (ISO 8601 text), epoch_s (seconds since 1970) or epoch_ms (milliseconds)")
+        raise reader.fail(
+            ("feed", "time_unit"),
+            f"unknown time unit {time_unit!r}",
+            hint="use iso (ISO 8601 text), epoch_s (seconds since 1970) or epoch_ms (milliseconds)",
+        )
     time_format = _time_format(reader, not isinstance(time_column, str))
     if time_format is not None and time_unit in ("epoch_s", "epoch_ms"):
-        raise reader.fail(("feed", "time_format"), f"time_format with time_unit: {time_unit}",
-                          hint="epoch numbers need no format; remove one of the two")
+        raise reader.fail(
+            ("feed", "time_format"),
+            f"time_format with time_unit: {time_unit}",
+            hint="epoch numbers need no format; remove one of the two",
+        )
     label = reader.text(("feed", "time_label"), default="instant")
     if label not in TIME_LABELS:
-        raise reader.fail(("feed", "time_label"), f"unknown time label {label!r}",
-                          hint="instant (a sample at the stamp), end (the stamp ends the period its values "
-                               "cover; 24:00 allowed) or start")
+        raise reader.fail(
+            ("feed", "time_label"),
+            f"unknown time label {label!r}",
+            hint="instant (a sample at the stamp), end (the stamp ends the period its values "
+            "cover; 24:00 allowed) or start",
+        )
     skip = reader.number(("feed", "skip_lines"), default=0, lo=0, hi=1000)
     if skip != int(skip):
         raise reader.fail(("feed", "skip_lines"), f"expected a whole number, got {skip:g}")

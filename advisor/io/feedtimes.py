@@ -66,25 +66,33 @@ def _raw_time_text(table: pd.DataFrame, layout: FeedLayout, source: str, line_of
         return table[name], name
     absent = [n for n in names if n not in table.columns]
     if absent:
-        raise FeedError(f"no time column '{absent[0]}'", source=source, line=max(1, line_offset - 1),
-                        hint=f"feed.time_column names [date, time]; columns found: "
-                             f"{', '.join(map(str, table.columns[:8]))}")
+        raise FeedError(
+            f"no time column '{absent[0]}'",
+            source=source,
+            line=max(1, line_offset - 1),
+            hint=f"feed.time_column names [date, time]; columns found: {', '.join(map(str, table.columns[:8]))}",
+        )
     parts = [table[n].astype(object).where(table[n].notna(), "").astype(str).str.strip() for n in names]
     joined = (parts[0] + " " + parts[1]).str.strip()
     return joined.where((parts[0] != "") & (parts[1] != ""), ""), layout.time_field
 
 
-def _localise(naive: pd.Series, texts: pd.Series, layout: FeedLayout, source: str, field: str,
-              line_offset: int) -> pd.Series:
+def _localise(
+    naive: pd.Series, texts: pd.Series, layout: FeedLayout, source: str, field: str, line_offset: int
+) -> pd.Series:
     zone = zone_object(layout.time_zone)
     local = naive.dt.tz_localize(zone, ambiguous="NaT", nonexistent="NaT")
     lost = (local.isna() & naive.notna()).to_numpy()
     if lost.any():
         i = int(np.flatnonzero(lost)[0])
-        raise FeedError(f"local time {texts.iloc[i]!r} is ambiguous or does not exist in {layout.time_zone}",
-                        source=source, line=i + line_offset, field=field,
-                        hint="a logger that keeps standard time all year needs its fixed offset as "
-                             "feed.time_zone (e.g. UTC-05:00); else log in UTC")
+        raise FeedError(
+            f"local time {texts.iloc[i]!r} is ambiguous or does not exist in {layout.time_zone}",
+            source=source,
+            line=i + line_offset,
+            field=field,
+            hint="a logger that keeps standard time all year needs its fixed offset as "
+            "feed.time_zone (e.g. UTC-05:00); else log in UTC",
+        )
     return pd.Series(pd.DatetimeIndex(local.dt.tz_convert("UTC")).as_unit("ns"))
 
 
@@ -96,25 +104,39 @@ def _formatted_times(raw: pd.Series, layout: FeedLayout, source: str, field: str
     empty = (texts == "").to_numpy()
     if empty.any():
         i = int(np.flatnonzero(empty)[0])
-        raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field,
-                        hint="every row needs a time")
+        raise FeedError(
+            "empty timestamp", source=source, line=i + line_offset, field=field, hint="every row needs a time"
+        )
     if layout.time_zone is None:
-        raise FeedError(f"times written as {fmt!r} carry no UTC offset and no time zone is declared",
-                        source=source, line=line_offset, field=field,
-                        hint="set feed.time_zone in the site file (e.g. UTC, UTC-05:00 or America/Chicago)")
+        raise FeedError(
+            f"times written as {fmt!r} carry no UTC offset and no time zone is declared",
+            source=source,
+            line=line_offset,
+            field=field,
+            hint="set feed.time_zone in the site file (e.g. UTC, UTC-05:00 or America/Chicago)",
+        )
     midnight = texts.str.contains(MIDNIGHT_24).to_numpy()
     if midnight.any() and layout.time_label != "end":
         i = int(np.flatnonzero(midnight)[0])
-        raise FeedError(f"timestamp {texts.iloc[i]!r} says 24:00", source=source, line=i + line_offset, field=field,
-                        hint="a stamp of 24:00 ends a period: set feed.time_label: end in the site file")
+        raise FeedError(
+            f"timestamp {texts.iloc[i]!r} says 24:00",
+            source=source,
+            line=i + line_offset,
+            field=field,
+            hint="a stamp of 24:00 ends a period: set feed.time_label: end in the site file",
+        )
     readable = texts.str.replace(MIDNIGHT_24, "00:00", regex=True) if midnight.any() else texts
     parsed = pd.to_datetime(readable, format=fmt, errors="coerce")
     bad = parsed.isna().to_numpy()
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        raise FeedError(f"timestamp {texts.iloc[i]!r} does not match time_format {fmt!r}", source=source,
-                        line=i + line_offset, field=field,
-                        hint="check feed.time_format (strftime codes, e.g. %m/%d/%Y %H:%M) against the file")
+        raise FeedError(
+            f"timestamp {texts.iloc[i]!r} does not match time_format {fmt!r}",
+            source=source,
+            line=i + line_offset,
+            field=field,
+            hint="check feed.time_format (strftime codes, e.g. %m/%d/%Y %H:%M) against the file",
+        )
     if midnight.any():
         parsed = parsed + pd.to_timedelta(midnight.astype(np.int64), unit="D")
     check_time_range(parsed, texts, source=source, field=field, line_offset=line_offset, error_type=FeedError)
@@ -127,51 +149,77 @@ def _standard_times(raw: pd.Series, layout: FeedLayout, source: str, field: str,
     ``layout.time_unit`` says which; unset, numbers are read as epoch seconds and a value that
     cannot be one (e.g. epoch milliseconds) is refused with a message naming the setting.
     """
-    if isinstance(raw.dtype, pd.DatetimeTZDtype):   # an in-memory table with real times
+    if isinstance(raw.dtype, pd.DatetimeTZDtype):  # an in-memory table with real times
         times = raw.dt.tz_convert("UTC").reset_index(drop=True)
         if times.isna().any():
             i = int(np.flatnonzero(times.isna().to_numpy())[0])
             raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field)
         check_time_range(times, source=source, field=field, line_offset=line_offset, error_type=FeedError)
         return pd.Series(pd.DatetimeIndex(times).as_unit("ns"))
-    if pd.api.types.is_datetime64_dtype(raw):       # naive in-memory times: local wall clock
+    if pd.api.types.is_datetime64_dtype(raw):  # naive in-memory times: local wall clock
         raw = raw.dt.strftime("%Y-%m-%dT%H:%M:%S.%f").where(raw.notna(), None)
     values = raw.reset_index(drop=True).astype(object)
     empty = values.isna().to_numpy()
     if empty.any():
         i = int(np.flatnonzero(empty)[0])
-        raise FeedError("empty timestamp", source=source, line=i + line_offset, field=field,
-                        hint="every row needs a time")
+        raise FeedError(
+            "empty timestamp", source=source, line=i + line_offset, field=field, hint="every row needs a time"
+        )
     unit = layout.time_unit
-    looks_numeric = (pd.api.types.is_numeric_dtype(raw) and not pd.api.types.is_bool_dtype(raw)) or \
-        _is_number(values.iloc[0])
+    looks_numeric = (pd.api.types.is_numeric_dtype(raw) and not pd.api.types.is_bool_dtype(raw)) or _is_number(
+        values.iloc[0]
+    )
     if unit in EPOCH_UNITS or (unit is None and looks_numeric):
         unit_name = unit or "epoch_s"
         numbers = pd.to_numeric(values.astype(str).str.strip(), errors="coerce").to_numpy(dtype=float)
         bad = np.isnan(numbers)
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
-            raise FeedError(f"cannot read timestamp {values.iloc[i]!r} as "
-                            f"{'epoch seconds' if unit_name == 'epoch_s' else 'epoch milliseconds'}",
-                            source=source, line=i + line_offset, field=field,
-                            hint="write every time the same way, and set feed.time_unit (iso, epoch_s or epoch_ms) "
-                                 "in the site file to match")
-        return epoch_times(numbers, unit_name, guessed=unit is None, texts=values.astype(str).to_numpy(),
-                           source=source, field=field, line_offset=line_offset, error_type=FeedError)
-    if looks_numeric:   # unit == "iso"
-        raise FeedError(f"numeric timestamp {values.iloc[0]!r} where feed.time_unit is iso", source=source,
-                        line=line_offset, field=field,
-                        hint="set feed.time_unit: epoch_s or epoch_ms in the site file, or write ISO 8601 times")
+            raise FeedError(
+                f"cannot read timestamp {values.iloc[i]!r} as "
+                f"{'epoch seconds' if unit_name == 'epoch_s' else 'epoch milliseconds'}",
+                source=source,
+                line=i + line_offset,
+                field=field,
+                hint="write every time the same way, and set feed.time_unit (iso, epoch_s or epoch_ms) "
+                "in the site file to match",
+            )
+        return epoch_times(
+            numbers,
+            unit_name,
+            guessed=unit is None,
+            texts=values.astype(str).to_numpy(),
+            source=source,
+            field=field,
+            line_offset=line_offset,
+            error_type=FeedError,
+        )
+    if looks_numeric:  # unit == "iso"
+        raise FeedError(
+            f"numeric timestamp {values.iloc[0]!r} where feed.time_unit is iso",
+            source=source,
+            line=line_offset,
+            field=field,
+            hint="set feed.time_unit: epoch_s or epoch_ms in the site file, or write ISO 8601 times",
+        )
     try:
-        return parse_time_column(values, source=source, field=field, line_offset=line_offset, error_type=FeedError,
-                                 time_zone=zone_object(layout.time_zone), require_offset=False,
-                                 no_zone_hint="write times like 2026-01-15T09:00:00Z, or set feed.time_zone in the "
-                                              "site file")
+        return parse_time_column(
+            values,
+            source=source,
+            field=field,
+            line_offset=line_offset,
+            error_type=FeedError,
+            time_zone=zone_object(layout.time_zone),
+            require_offset=False,
+            no_zone_hint="write times like 2026-01-15T09:00:00Z, or set feed.time_zone in the site file",
+        )
     except FeedError as exc:
         i = (exc.line - line_offset) if exc.line is not None else -1
         if 0 <= i < len(values) and MIDNIGHT_24.search(str(values.iloc[i])):
-            exc.hint = ("ISO 8601 times here use 00:00 of the next day; for an export that writes 24:00, "
-                        "set feed.time_format and feed.time_label: end")
+            exc.hint = (
+                "ISO 8601 times here use 00:00 of the next day; for an export that writes 24:00, "
+                "set feed.time_format and feed.time_label: end"
+            )
         raise
 
 

@@ -16,8 +16,17 @@ import pandas as pd
 
 from advisor.errors import FeedError
 
-__all__ = ["MAX_FEED_NUMBER", "numeric_column", "depth_rate", "step_outliers", "dropout_mask",
-           "refuse_mixed_humidity", "column_bit", "kind_rows", "REPORTING_RUN"]
+__all__ = [
+    "MAX_FEED_NUMBER",
+    "numeric_column",
+    "depth_rate",
+    "step_outliers",
+    "dropout_mask",
+    "refuse_mixed_humidity",
+    "column_bit",
+    "kind_rows",
+    "REPORTING_RUN",
+]
 
 #: Largest magnitude read as a feed value; beyond it a cell is corrupt, not a measurement.
 MAX_FEED_NUMBER = 1e15
@@ -47,8 +56,9 @@ def numeric_column(raw: pd.Series, column: str, codes, source: str, line_offset:
     """
     numbers, words = _split_codes(codes)
     if pd.api.types.is_bool_dtype(raw):
-        raise FeedError("true/false where a number is expected", source=source, line=line_offset, field=column,
-                        hint=_EMPTY_HINT)
+        raise FeedError(
+            "true/false where a number is expected", source=source, line=line_offset, field=column, hint=_EMPTY_HINT
+        )
     text = None
     if pd.api.types.is_float_dtype(raw) or pd.api.types.is_integer_dtype(raw):
         values = raw.to_numpy(dtype=float)
@@ -64,11 +74,17 @@ def numeric_column(raw: pd.Series, column: str, codes, source: str, line_offset:
             i = int(np.flatnonzero(bad)[0])
             word = text.iloc[i]
             if word.lower() in ("true", "false"):
-                raise FeedError(f"{word} where a number is expected", source=source, line=i + line_offset,
-                                field=column, hint=_EMPTY_HINT)
+                raise FeedError(
+                    f"{word} where a number is expected",
+                    source=source,
+                    line=i + line_offset,
+                    field=column,
+                    hint=_EMPTY_HINT,
+                )
             shown = repr(word) if len(word) <= 40 else repr(word[:30] + "…")
-            raise FeedError(f"{shown} is not a number", source=source, line=i + line_offset, field=column,
-                            hint=_EMPTY_HINT)
+            raise FeedError(
+                f"{shown} is not a number", source=source, line=i + line_offset, field=column, hint=_EMPTY_HINT
+            )
     if len(numbers):
         by_number = np.isin(values, numbers)
         coded = coded | by_number
@@ -92,9 +108,13 @@ def refuse_mixed_humidity(values: np.ndarray, column: str, source: str, line_off
     looks_percent = finite & (values > 1.5)
     if looks_fraction.sum() >= 3 and looks_percent.any():
         i = int(np.flatnonzero(looks_fraction)[0])
-        raise FeedError("relative humidity looks like a fraction in some rows and percent in others",
-                        source=source, line=i + line_offset, field=column,
-                        hint="write RH the same way in every row; map it with unit: fraction if it is 0..1")
+        raise FeedError(
+            "relative humidity looks like a fraction in some rows and percent in others",
+            source=source,
+            line=i + line_offset,
+            field=column,
+            hint="write RH the same way in every row; map it with unit: fraction if it is 0..1",
+        )
 
 
 def depth_rate(depth_mm: np.ndarray, hours) -> np.ndarray:
@@ -123,7 +143,9 @@ def _previous_same_kind(groups: list[np.ndarray], n: int) -> np.ndarray:
     return prev
 
 
-def step_outliers(values: np.ndarray, time_ns: np.ndarray, groups: list[np.ndarray], limit_per_min: float) -> np.ndarray:
+def step_outliers(
+    values: np.ndarray, time_ns: np.ndarray, groups: list[np.ndarray], limit_per_min: float
+) -> np.ndarray:
     """Rows whose value changed from the previous sample of their kind by more than
     ``limit_per_min`` × the minutes between them (at least one minute) — a step test.
     ``groups`` are the row positions of each kind (:func:`kind_rows`).

@@ -38,9 +38,22 @@ from advisor.errors import AdvisorError, UsageError
 from advisor.io.encoding import decode_text, encoding_error, repeated_csv_column, sniff_encoding_problem
 
 __all__ = [
-    "KINDS", "FileKind", "atomic_write_text", "check_path", "decode_text", "encoding_error",
-    "fsync_folder", "lock_path", "locked", "open_regular", "read_bytes_bounded", "read_text_bounded",
-    "refuse_overwrite", "repeated_csv_column", "sniff_encoding_problem", "stat_regular",
+    "KINDS",
+    "FileKind",
+    "atomic_write_text",
+    "check_path",
+    "decode_text",
+    "encoding_error",
+    "fsync_folder",
+    "lock_path",
+    "locked",
+    "open_regular",
+    "read_bytes_bounded",
+    "read_text_bounded",
+    "refuse_overwrite",
+    "repeated_csv_column",
+    "sniff_encoding_problem",
+    "stat_regular",
     "update_text_locked",
 ]
 
@@ -60,16 +73,17 @@ KINDS: dict[str, FileKind] = {
     "feed": FileKind("feed file", 600_000_000, "split the archive by month and process each part"),
     "site": FileKind("site file", 2_000_000, "a site file is a few kB of YAML; is this the right file?"),
     "rules": FileKind("rule file", 2_000_000, "split the rules into several files, or remove generated content"),
-    "registry": FileKind("reference registry", 20_000_000,
-                         "a registry holds one short line per reference scan; is this the right file?"),
+    "registry": FileKind(
+        "reference registry", 20_000_000, "a registry holds one short line per reference scan; is this the right file?"
+    ),
     "history": FileKind("history file", 200_000_000, "split the history by year"),
     "model": FileKind("model file", 1_000_000, "a site model is a few kB of JSON; is this the right file?"),
     "state": FileKind("state file", 5_000_000, "a state file is a few kB; is this the right file?"),
     "yaml": FileKind("YAML file", 2_000_000, "split the file or remove generated content"),
 }
 
-PATH_MAX = 4096   # Linux PATH_MAX [bytes], including the terminating NUL
-NAME_MAX = 255    # longest file or folder name [bytes]
+PATH_MAX = 4096  # Linux PATH_MAX [bytes], including the terminating NUL
+NAME_MAX = 255  # longest file or folder name [bytes]
 LOCK_WAIT_S = 30.0
 
 _FILE_TYPES = (
@@ -104,16 +118,25 @@ def check_path(path: Path | str, error_type: type[AdvisorError], what: str = "fi
     if text == "":
         raise error_type(f"empty path given for the {what}", hint="give the path of the file")
     if "\x00" in text:
-        raise error_type(f"the {what} path contains a NUL character", source=text.replace("\x00", "\\0"),
-                         hint="check how the path was built; a file name cannot contain NUL")
+        raise error_type(
+            f"the {what} path contains a NUL character",
+            source=text.replace("\x00", "\\0"),
+            hint="check how the path was built; a file name cannot contain NUL",
+        )
     encoded = os.fsencode(text)
     if len(encoded) >= PATH_MAX:
-        raise error_type(f"the {what} path is {len(encoded):,} bytes long, above the system's limit of "
-                         f"{PATH_MAX - 1:,}", source=text, hint="use a shorter path")
+        raise error_type(
+            f"the {what} path is {len(encoded):,} bytes long, above the system's limit of {PATH_MAX - 1:,}",
+            source=text,
+            hint="use a shorter path",
+        )
     longest = max((len(part) for part in encoded.split(b"/")), default=0)
     if longest > NAME_MAX:
-        raise error_type(f"a name in the {what} path is {longest:,} bytes long, above the system's limit of "
-                         f"{NAME_MAX}", source=text, hint="use shorter file and folder names")
+        raise error_type(
+            f"a name in the {what} path is {longest:,} bytes long, above the system's limit of {NAME_MAX}",
+            source=text,
+            hint="use shorter file and folder names",
+        )
     return Path(text)
 
 
@@ -123,14 +146,15 @@ def _os_error(exc: OSError, error_type: type[AdvisorError], what: str, source: s
     if code == errno.ENOENT:
         return error_type(f"{what} not found", source=source, hint="check the path")
     if code == errno.ENOTDIR:
-        return error_type(f"{what} not found: a folder in the path is a file", source=source,
-                          hint="check the path")
+        return error_type(f"{what} not found: a folder in the path is a file", source=source, hint="check the path")
     if code in (errno.EACCES, errno.EPERM):
-        return error_type(f"permission denied reading the {what}", source=source,
-                          hint="check the file's and its folders' permissions")
+        return error_type(
+            f"permission denied reading the {what}", source=source, hint="check the file's and its folders' permissions"
+        )
     if code == errno.ELOOP:
-        return error_type(f"too many symbolic links in the {what} path", source=source,
-                          hint="a link probably points to itself")
+        return error_type(
+            f"too many symbolic links in the {what} path", source=source, hint="a link probably points to itself"
+        )
     if code == errno.ENAMETOOLONG:
         return error_type(f"the {what} path is too long for the system", source=source, hint="use a shorter path")
     if code == errno.EISDIR:
@@ -144,13 +168,21 @@ def _refuse_special(mode: int, error_type: type[AdvisorError], what: str, source
     if stat.S_ISDIR(mode):
         raise error_type(f"is a directory, expected a {what}", source=source, hint="give the path of a file")
     name = next((label for test, label in _FILE_TYPES if test(mode)), "not a regular file")
-    raise error_type(f"is {name}, not a regular file; expected a {what}", source=source,
-                     hint=f"give the path of a saved {what}; the advisor does not read pipes or devices")
+    raise error_type(
+        f"is {name}, not a regular file; expected a {what}",
+        source=source,
+        hint=f"give the path of a saved {what}; the advisor does not read pipes or devices",
+    )
 
 
-def stat_regular(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind,
-                 missing_ok: bool = False, empty_ok: bool = True,
-                 empty_hint: str | None = None) -> os.stat_result | None:
+def stat_regular(
+    path: Path | str,
+    error_type: type[AdvisorError],
+    kind: str | FileKind,
+    missing_ok: bool = False,
+    empty_ok: bool = True,
+    empty_hint: str | None = None,
+) -> os.stat_result | None:
     """``os.stat`` of an existing regular file within its kind's size cap; nothing is read.
 
     Returns ``None`` for a missing file when ``missing_ok``.  Raises ``error_type`` with one
@@ -175,19 +207,31 @@ def stat_regular(path: Path | str, error_type: type[AdvisorError], kind: str | F
     return st
 
 
-def _check_size(size: int, error_type: type[AdvisorError], spec: FileKind, source: str, empty_ok: bool,
-                empty_hint: str | None) -> None:
+def _check_size(
+    size: int, error_type: type[AdvisorError], spec: FileKind, source: str, empty_ok: bool, empty_hint: str | None
+) -> None:
     if size == 0 and not empty_ok:
-        raise error_type(f"{spec.what} is empty", source=source,
-                         hint=empty_hint or "a truncated or unsaved file looks the same; check the file")
+        raise error_type(
+            f"{spec.what} is empty",
+            source=source,
+            hint=empty_hint or "a truncated or unsaved file looks the same; check the file",
+        )
     if size > spec.max_bytes:
-        raise error_type(f"{spec.what} is {_size_text(size)}, above the {_limit_text(spec.max_bytes)} limit "
-                         f"for a {spec.what}", source=source, hint=spec.too_big_hint)
+        raise error_type(
+            f"{spec.what} is {_size_text(size)}, above the {_limit_text(spec.max_bytes)} limit for a {spec.what}",
+            source=source,
+            hint=spec.too_big_hint,
+        )
 
 
 @contextmanager
-def open_regular(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind,
-                 empty_ok: bool = False, empty_hint: str | None = None) -> Iterator[tuple[BinaryIO, int]]:
+def open_regular(
+    path: Path | str,
+    error_type: type[AdvisorError],
+    kind: str | FileKind,
+    empty_ok: bool = False,
+    empty_hint: str | None = None,
+) -> Iterator[tuple[BinaryIO, int]]:
     """Open a regular file for binary reading without ever blocking: yields ``(file, size)``.
 
     The path is checked with :func:`stat_regular`, opened with ``O_NONBLOCK`` (opening a FIFO
@@ -213,9 +257,14 @@ def open_regular(path: Path | str, error_type: type[AdvisorError], kind: str | F
         yield fh, st.st_size
 
 
-def read_bytes_bounded(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind,
-                       missing_ok: bool = False, empty_ok: bool = False,
-                       empty_hint: str | None = None) -> bytes | None:
+def read_bytes_bounded(
+    path: Path | str,
+    error_type: type[AdvisorError],
+    kind: str | FileKind,
+    missing_ok: bool = False,
+    empty_ok: bool = False,
+    empty_hint: str | None = None,
+) -> bytes | None:
     """The whole content of a regular file of ``kind``, never more than its cap.
 
     ``None`` for a missing file when ``missing_ok``.  A file that grows past the cap while it is
@@ -230,27 +279,39 @@ def read_bytes_bounded(path: Path | str, error_type: type[AdvisorError], kind: s
         except OSError as exc:
             raise _os_error(exc, error_type, spec.what, str(path)) from None
     if len(raw) > spec.max_bytes:
-        raise error_type(f"{spec.what} grew above the {_limit_text(spec.max_bytes)} limit while being read",
-                         source=str(path), hint=spec.too_big_hint)
+        raise error_type(
+            f"{spec.what} grew above the {_limit_text(spec.max_bytes)} limit while being read",
+            source=str(path),
+            hint=spec.too_big_hint,
+        )
     if not raw and not empty_ok:
-        raise error_type(f"{spec.what} is empty", source=str(path),
-                         hint=empty_hint or "a truncated or unsaved file looks the same; check the file")
+        raise error_type(
+            f"{spec.what} is empty",
+            source=str(path),
+            hint=empty_hint or "a truncated or unsaved file looks the same; check the file",
+        )
     return raw
 
 
-def read_text_bounded(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind,
-                      missing_ok: bool = False, empty_ok: bool = False, empty_hint: str | None = None,
-                      expected: str = "text") -> str | None:
+def read_text_bounded(
+    path: Path | str,
+    error_type: type[AdvisorError],
+    kind: str | FileKind,
+    missing_ok: bool = False,
+    empty_ok: bool = False,
+    empty_hint: str | None = None,
+    expected: str = "text",
+) -> str | None:
     """:func:`read_bytes_bounded` then :func:`decode_text`."""
     spec = _kind(kind)
-    raw = read_bytes_bounded(path, error_type, spec, missing_ok=missing_ok, empty_ok=empty_ok,
-                             empty_hint=empty_hint)
+    raw = read_bytes_bounded(path, error_type, spec, missing_ok=missing_ok, empty_ok=empty_ok, empty_hint=empty_hint)
     if raw is None:
         return None
     return decode_text(raw, error_type, spec.what, str(path), expected)
 
 
 # --- writing -------------------------------------------------------------------------------
+
 
 def atomic_write_text(path: Path | str, text: str) -> None:
     """Replace ``path`` with ``text`` atomically: a reader sees the old file or the new one, never half.
@@ -301,8 +362,9 @@ def lock_path(path: Path | str) -> Path:
 
 
 @contextmanager
-def locked(path: Path | str, error_type: type[AdvisorError], what: str = "file",
-           wait_s: float = LOCK_WAIT_S) -> Iterator[None]:
+def locked(
+    path: Path | str, error_type: type[AdvisorError], what: str = "file", wait_s: float = LOCK_WAIT_S
+) -> Iterator[None]:
     """Hold an exclusive ``flock`` on ``path``'s sidecar lock file while the block runs.
 
     Every writer of a shared file (the reference registry, the attempt history, state files)
@@ -317,12 +379,18 @@ def locked(path: Path | str, error_type: type[AdvisorError], what: str = "file",
     except OSError as exc:
         if exc.errno == errno.ENOENT:
             raise error_type("folder does not exist", source=str(target.parent), hint="create it first") from None
-        raise error_type(f"cannot create the lock file {lock.name}: {exc.strerror}", source=str(target),
-                         hint="check the folder is writable") from None
+        raise error_type(
+            f"cannot create the lock file {lock.name}: {exc.strerror}",
+            source=str(target),
+            hint="check the folder is writable",
+        ) from None
     try:
         if not stat.S_ISREG(os.fstat(fd).st_mode):
-            raise error_type(f"lock file {lock.name} is not a regular file", source=str(lock),
-                             hint="remove it; the advisor recreates it")
+            raise error_type(
+                f"lock file {lock.name} is not a regular file",
+                source=str(lock),
+                hint="remove it; the advisor recreates it",
+            )
         deadline = time.monotonic() + max(0.0, wait_s)
         pause = 0.002
         while True:
@@ -331,9 +399,11 @@ def locked(path: Path | str, error_type: type[AdvisorError], what: str = "file",
                 break
             except BlockingIOError:
                 if time.monotonic() >= deadline:
-                    raise error_type(f"another advisor has been writing the {what} for {wait_s:g} s; nothing was "
-                                     "changed", source=str(target),
-                                     hint="try again; if this repeats, look for a hung advisor process") from None
+                    raise error_type(
+                        f"another advisor has been writing the {what} for {wait_s:g} s; nothing was changed",
+                        source=str(target),
+                        hint="try again; if this repeats, look for a hung advisor process",
+                    ) from None
                 time.sleep(pause)
                 pause = min(pause * 2, 0.05)
         yield
@@ -341,8 +411,13 @@ def locked(path: Path | str, error_type: type[AdvisorError], what: str = "file",
         os.close(fd)  # releases the lock
 
 
-def update_text_locked(path: Path | str, change: Callable[[str | None], str], error_type: type[AdvisorError],
-                       kind: str | FileKind, wait_s: float = LOCK_WAIT_S) -> str:
+def update_text_locked(
+    path: Path | str,
+    change: Callable[[str | None], str],
+    error_type: type[AdvisorError],
+    kind: str | FileKind,
+    wait_s: float = LOCK_WAIT_S,
+) -> str:
     """Read ``path`` (``None`` if absent), apply ``change`` and atomically write the result, all under
     :func:`locked`; returns the text written.  ``change`` may raise to leave the file untouched."""
     spec = _kind(kind)
@@ -352,12 +427,16 @@ def update_text_locked(path: Path | str, change: Callable[[str | None], str], er
         try:
             atomic_write_text(path, new)
         except OSError as exc:
-            raise error_type(f"cannot write the {spec.what}: {exc.strerror}", source=str(path),
-                             hint="check the folder is writable and the disk is not full") from None
+            raise error_type(
+                f"cannot write the {spec.what}: {exc.strerror}",
+                source=str(path),
+                hint="check the folder is writable and the disk is not full",
+            ) from None
     return new
 
 
 # --- outputs that would destroy inputs ----------------------------------------------------
+
 
 def _same_file(a: Path, b: Path) -> bool:
     try:
@@ -366,13 +445,15 @@ def _same_file(a: Path, b: Path) -> bool:
         pass
     try:
         return os.path.realpath(a) == os.path.realpath(b)
-    except (OSError, ValueError):   # an impossible input path: its own reader reports it
+    except (OSError, ValueError):  # an impossible input path: its own reader reports it
         return False
 
 
-def refuse_overwrite(output_path: Path | str | None,
-                     input_paths: Mapping[str, Path | str | Iterable[Path | str] | None] | Iterable[Path | str | None],
-                     field: str) -> None:
+def refuse_overwrite(
+    output_path: Path | str | None,
+    input_paths: Mapping[str, Path | str | Iterable[Path | str] | None] | Iterable[Path | str | None],
+    field: str,
+) -> None:
     """Refuse an output path that names one of the command's input files.
 
     Compares by file identity (``os.path.samefile``: symbolic and hard links included) where
@@ -400,5 +481,8 @@ def refuse_overwrite(output_path: Path | str | None,
             continue
         if _same_file(out, Path(str(candidate))):
             which = f"the {name} input" if name else "one of its inputs"
-            raise UsageError(f"{out} is {which}; writing it would destroy the input", field=field,
-                             hint="write the output to another file")
+            raise UsageError(
+                f"{out} is {which}; writing it would destroy the input",
+                field=field,
+                hint="write the output to another file",
+            )

@@ -38,15 +38,28 @@ from advisor.io.times import parse_time_column
 from advisor.vocabulary import METHOD_LABEL, METHODS
 
 MAX_HISTORY_BYTES = KINDS["history"].max_bytes
-USABLE_WORDS = {**dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),
-                **dict.fromkeys(("no", "n", "false", "0", "unusable", "failed", "fail"), 0.0), "": np.nan}
+USABLE_WORDS = {
+    **dict.fromkeys(("yes", "y", "true", "1", "usable", "ok", "success"), 1.0),
+    **dict.fromkeys(("no", "n", "false", "0", "unusable", "failed", "fail"), 0.0),
+    "": np.nan,
+}
 
 #: The weather an attempt row carries, in canonical names and SI units: what ``attempt add``
 #: records from the feed at the attempt's time, what a ``tick`` history line keeps, and what
 #: ``train`` computes the features from.  The wind columns are the 10-minute mean and maximum
 #: and the rate is the air-temperature change over the last hour, as ``check`` computes them.
-WEATHER_COLUMNS = ("wind_mean_ms", "wind_gust_ms", "air_temp_c", "rel_humidity_pct", "dew_point_c",
-                   "pressure_hpa", "precip_mm_h", "visibility_m", "solar_wm2", "air_temp_rate_c_per_h")
+WEATHER_COLUMNS = (
+    "wind_mean_ms",
+    "wind_gust_ms",
+    "air_temp_c",
+    "rel_humidity_pct",
+    "dew_point_c",
+    "pressure_hpa",
+    "precip_mm_h",
+    "visibility_m",
+    "solar_wm2",
+    "air_temp_rate_c_per_h",
+)
 #: A row carries its own weather when every one of these is a number.
 REQUIRED_WEATHER = (*REQUIRED_COLUMNS, "air_temp_rate_c_per_h")
 #: The columns of a history file ``attempt add`` creates, in order.
@@ -81,8 +94,9 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
     """Read and validate a history CSV (see the module docstring for its columns)."""
     path = Path(path)
     source = str(path)
-    with open_regular(path, HistoryError, KINDS["history"],
-                      empty_hint="expected a header line and one row per attempt") as (fh, _size):
+    with open_regular(
+        path, HistoryError, KINDS["history"], empty_hint="expected a header line and one row per attempt"
+    ) as (fh, _size):
         head = fh.read(4096)
         problem = sniff_encoding_problem(head)
         if problem is not None:
@@ -97,33 +111,50 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
         except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
             msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
             m = re.search(r"line (\d+)", msg)
-            raise HistoryError(f"cannot parse CSV: {msg}", source=source, line=int(m.group(1)) if m else None,
-                               hint="save the history as comma-separated UTF-8 text") from None
+            raise HistoryError(
+                f"cannot parse CSV: {msg}",
+                source=source,
+                line=int(m.group(1)) if m else None,
+                hint="save the history as comma-separated UTF-8 text",
+            ) from None
     repeated = repeated_csv_column(header)
     if repeated:
-        raise HistoryError(f"column {repeated!r} appears twice in the header", source=source, line=1,
-                           hint="keep one; the advisor will not guess which is meant")
+        raise HistoryError(
+            f"column {repeated!r} appears twice in the header",
+            source=source,
+            line=1,
+            hint="keep one; the advisor will not guess which is meant",
+        )
     table = table.rename(columns=lambda c: str(c).strip())
     if len(table) == 0:
         raise HistoryError("history has a header but no attempts", source=source)
     for required in ("time", "method"):
         if required not in table.columns:
-            raise HistoryError(f"missing column {required!r}", source=source, line=1,
-                               hint="columns: time, method, usable and/or residual_rms_um, then weather columns")
+            raise HistoryError(
+                f"missing column {required!r}",
+                source=source,
+                line=1,
+                hint="columns: time, method, usable and/or residual_rms_um, then weather columns",
+            )
     if "usable" not in table.columns and "residual_rms_um" not in table.columns:
         raise HistoryError("no outcome column: need 'usable' (yes/no) and/or 'residual_rms_um'", source=source, line=1)
 
     def line_of(mask) -> int:
         return int(np.flatnonzero(np.asarray(mask))[0]) + 2
 
-    times = parse_time_column(table["time"], source=source, field="time", line_offset=2, error_type=HistoryError,
-                              require_offset=True)
+    times = parse_time_column(
+        table["time"], source=source, field="time", line_offset=2, error_type=HistoryError, require_offset=True
+    )
     method = table["method"].str.strip().str.lower()
     bad = ~method.isin(list(METHODS))
     if bad.any():
         i = line_of(bad)
-        raise HistoryError(f"method {table['method'].iloc[i - 2]!r} is neither 'scan' nor 'astronomical'",
-                           source=source, line=i, field="method")
+        raise HistoryError(
+            f"method {table['method'].iloc[i - 2]!r} is neither 'scan' nor 'astronomical'",
+            source=source,
+            line=i,
+            field="method",
+        )
     out = pd.DataFrame({"time": times, "method": method.to_numpy(dtype=object)})
 
     usable = np.full(len(table), np.nan)
@@ -132,10 +163,19 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
         bad = ~words.isin(list(USABLE_WORDS))
         if bad.any():
             i = line_of(bad)
-            raise HistoryError(f"usable {table['usable'].iloc[i - 2]!r} is not yes/no", source=source, line=i,
-                               field="usable", hint="write yes or no (or leave it blank and give residual_rms_um)")
+            raise HistoryError(
+                f"usable {table['usable'].iloc[i - 2]!r} is not yes/no",
+                source=source,
+                line=i,
+                field="usable",
+                hint="write yes or no (or leave it blank and give residual_rms_um)",
+            )
         usable = words.map(USABLE_WORDS).to_numpy(dtype=float)
-    rms = _numeric(table, "residual_rms_um", source) if "residual_rms_um" in table.columns else np.full(len(table), np.nan)
+    rms = (
+        _numeric(table, "residual_rms_um", source)
+        if "residual_rms_um" in table.columns
+        else np.full(len(table), np.nan)
+    )
     if (rms < 0).any():
         raise HistoryError("residual_rms_um is negative", source=source, line=line_of(rms < 0), field="residual_rms_um")
     limit = np.full(len(table), np.nan if usable_below_um is None else float(usable_below_um))
@@ -144,13 +184,21 @@ def read_history(path: Path | str, usable_below_um: float | None = None) -> Hist
         limit = np.where(np.isfinite(row_limit), row_limit, limit)
     judged = np.isnan(usable) & np.isfinite(rms)
     if (judged & np.isnan(limit)).any():
-        raise HistoryError("no 'usable' value and no limit to judge residual_rms_um by", source=source,
-                           line=line_of(judged & np.isnan(limit)), field="usable",
-                           hint="fill in usable, add usable_max_rms_um, or pass --usable-below-um UM")
+        raise HistoryError(
+            "no 'usable' value and no limit to judge residual_rms_um by",
+            source=source,
+            line=line_of(judged & np.isnan(limit)),
+            field="usable",
+            hint="fill in usable, add usable_max_rms_um, or pass --usable-below-um UM",
+        )
     usable = np.where(judged, (rms <= limit).astype(float), usable)
     if np.isnan(usable).any():
-        raise HistoryError("attempt has no outcome (neither usable nor residual_rms_um)", source=source,
-                           line=line_of(np.isnan(usable)), field="usable")
+        raise HistoryError(
+            "attempt has no outcome (neither usable nor residual_rms_um)",
+            source=source,
+            line=line_of(np.isnan(usable)),
+            field="usable",
+        )
     out["usable"] = usable.astype(bool)
     out["residual_rms_um"] = rms
     for name in (*CANONICAL_COLUMNS, "air_temp_rate_c_per_h"):
@@ -192,7 +240,7 @@ def _records(text: str, source: str) -> tuple[list[str], list[str], list[list[st
         texts, cells = [], []
         start = reader.line_num
         for row in reader:
-            chunk = "".join(lines[start:reader.line_num])
+            chunk = "".join(lines[start : reader.line_num])
             start = reader.line_num
             if any(c.strip() for c in row):
                 texts.append(chunk if chunk.endswith("\n") else chunk + "\n")
@@ -208,8 +256,13 @@ def _line(cells: list[str]) -> str:
     return buf.getvalue()
 
 
-def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells: dict[str, str],
-                   duplicate_within: pd.Timedelta = DUPLICATE_WITHIN) -> int:
+def append_attempt(
+    path: Path | str,
+    time_utc: pd.Timestamp,
+    method: str,
+    cells: dict[str, str],
+    duplicate_within: pd.Timedelta = DUPLICATE_WITHIN,
+) -> int:
     """Add one attempt to the history at ``path`` (created if absent); return its line number.
 
     Under the history's lock (:func:`advisor.io.fileio.locked`) the existing file is validated
@@ -233,17 +286,21 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
             existing = read_history(path, usable_below_um=math.inf)  # validates; every outcome counts here
             frame = existing.frame
             same = (frame["method"].to_numpy() == method) & (
-                (frame["time"] - time_utc).abs() < duplicate_within).to_numpy()
+                (frame["time"] - time_utc).abs() < duplicate_within
+            ).to_numpy()
             if same.any():
                 k = int(np.flatnonzero(same)[0])
                 label = METHOD_LABEL[method]
                 article = "an" if label[0] in "aeiou" else "a"
-                raise HistoryError(f"{article} {label} attempt at {frame['time'].iloc[k]:%Y-%m-%dT%H:%M:%SZ} "
-                                   "is already recorded", source=source, line=k + 2, field="time",
-                                   hint="nothing was added; give the time of a different attempt, or correct "
-                                        "that line")
+                raise HistoryError(
+                    f"{article} {label} attempt at {frame['time'].iloc[k]:%Y-%m-%dT%H:%M:%SZ} is already recorded",
+                    source=source,
+                    line=k + 2,
+                    field="time",
+                    hint="nothing was added; give the time of a different attempt, or correct that line",
+                )
             times = pd.DatetimeIndex(frame["time"])
-            text = read_text_bounded(path, HistoryError, "history") or ""   # a UTF-8 BOM is dropped here
+            text = read_text_bounded(path, HistoryError, "history") or ""  # a UTF-8 BOM is dropped here
             header, texts, rows = _records(text, source)
             if len(rows) != len(times):  # pragma: no cover - read_history and csv agree on rows
                 raise HistoryError("the history's rows could not be matched up; nothing was added", source=source)
@@ -252,9 +309,11 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
             if name not in header:
                 header.append(name)
         grow = len(header) - width
-        if grow:   # blank cells for the new columns, at the end of each older record's text
-            texts = [t[: len(t) - 1] + "," * max(0, len(header) - len(r)) + "\n" if len(r) < len(header) else t
-                     for t, r in zip(texts, rows)]
+        if grow:  # blank cells for the new columns, at the end of each older record's text
+            texts = [
+                t[: len(t) - 1] + "," * max(0, len(header) - len(r)) + "\n" if len(r) < len(header) else t
+                for t, r in zip(texts, rows)
+            ]
         values = {**cells, "time": time_utc.strftime("%Y-%m-%dT%H:%M:%SZ"), "method": method}
         new = _line([values.get(name, "") for name in header])
         later = np.flatnonzero(times.as_unit("ns").asi8 > time_utc.as_unit("ns").value)
@@ -263,8 +322,11 @@ def append_attempt(path: Path | str, time_utc: pd.Timestamp, method: str, cells:
         try:
             atomic_write_text(path, _line(header) + "".join(texts))
         except OSError as exc:
-            raise HistoryError(f"cannot write the history: {exc.strerror}", source=source,
-                               hint="check the folder is writable and the disk is not full") from None
+            raise HistoryError(
+                f"cannot write the history: {exc.strerror}",
+                source=source,
+                hint="check the folder is writable and the disk is not full",
+            ) from None
     return at + 2
 
 
@@ -282,6 +344,7 @@ def _numeric(table: pd.DataFrame, name: str, source: str) -> np.ndarray:
         i = int(np.flatnonzero(huge)[0])
         shown = str(table[name].iloc[i]).strip()
         shown = shown if len(shown) <= 24 else f"{shown[:12]}… ({len(shown)} characters)"
-        raise HistoryError(f"{name} {shown} is not a finite number of plausible size", source=source, line=i + 2,
-                           field=name)
+        raise HistoryError(
+            f"{name} {shown} is not a finite number of plausible size", source=source, line=i + 2, field=name
+        )
     return numbers

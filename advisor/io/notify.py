@@ -26,8 +26,14 @@ def _open_log(log_path: Path | None, argv: tuple[str, ...], issued: str):
         return subprocess.DEVNULL
 
 
-def run_notify(argv: tuple[str, ...], payload: str, timeout_s: float, extra_env: dict[str, str],
-               log_path: Path | None = None, issued: str = "") -> str | None:
+def run_notify(
+    argv: tuple[str, ...],
+    payload: str,
+    timeout_s: float,
+    extra_env: dict[str, str],
+    log_path: Path | None = None,
+    issued: str = "",
+) -> str | None:
     """Run the site's notify command (argv, no shell) with ``payload`` on stdin; a warning or None.
 
     Its stdout and stderr are appended to ``log_path`` (after a line naming ``issued`` and the
@@ -46,8 +52,15 @@ def run_notify(argv: tuple[str, ...], payload: str, timeout_s: float, extra_env:
 
 def _run(argv: tuple[str, ...], payload: str, timeout_s: float, env: dict, log) -> str | None:
     try:
-        proc = subprocess.Popen(list(argv), stdin=subprocess.PIPE, stdout=log, stderr=subprocess.STDOUT, env=env,
-                                start_new_session=True, close_fds=True)
+        proc = subprocess.Popen(
+            list(argv),
+            stdin=subprocess.PIPE,
+            stdout=log,
+            stderr=subprocess.STDOUT,
+            env=env,
+            start_new_session=True,
+            close_fds=True,
+        )
     except OSError as exc:
         return f"notify command {argv[0]!r} could not start: {exc.strerror or exc}"
     try:

@@ -38,8 +38,20 @@ from advisor.errors import AdvisorError
 from advisor.io.appendfile import append_line_locked
 from advisor.io.fileio import KINDS, fsync_folder, read_bytes_bounded
 
-__all__ = ["HISTORY_FILE", "JOURNAL_FILE", "TEST_KILL_ENV", "TEST_PAUSE_ENV", "UNCHANGED", "WRITE_HINT", "StateDirError",
-           "Staged", "io_error", "publish", "remove_quietly", "roll_back_journal"]
+__all__ = [
+    "HISTORY_FILE",
+    "JOURNAL_FILE",
+    "TEST_KILL_ENV",
+    "TEST_PAUSE_ENV",
+    "UNCHANGED",
+    "WRITE_HINT",
+    "StateDirError",
+    "Staged",
+    "io_error",
+    "publish",
+    "remove_quietly",
+    "roll_back_journal",
+]
 
 HISTORY_FILE = "history.jsonl"
 JOURNAL_FILE = ".publish.journal"
@@ -66,7 +78,7 @@ def roll_back_journal(state_dir: Path) -> tuple[bool, list[str]]:
     journal = state_dir / JOURNAL_FILE
     try:
         raw = read_bytes_bounded(journal, StateDirError, KINDS["state"], missing_ok=True, empty_ok=True)
-    except StateDirError as exc:     # not a file a run wrote (a FIFO, a folder): removed
+    except StateDirError as exc:  # not a file a run wrote (a FIFO, a folder): removed
         remove_quietly(journal)
         return False, [f"an unreadable publish journal ({exc.message})"]
     if raw is None:
@@ -75,7 +87,7 @@ def roll_back_journal(state_dir: Path) -> tuple[bool, list[str]]:
         entries = json.loads(raw.decode("utf-8"))["files"]
         names = [(str(e["name"]), e["backup"]) for e in entries]
     except (ValueError, KeyError, TypeError, UnicodeDecodeError):
-        names = []   # a journal cut short: its run had renamed nothing yet
+        names = []  # a journal cut short: its run had renamed nothing yet
     problems = _roll_back(state_dir, [(n, b, True) for n, b in names if _safe_name(n) and _safe_backup(b)])
     remove_quietly(journal)
     fsync_folder(state_dir)
@@ -97,7 +109,7 @@ class Staged:
 
     def __init__(self, state_dir: Path) -> None:
         self.state_dir = state_dir
-        self.pending: list[tuple[str, Path]] = []       # (temp path, final path), in order
+        self.pending: list[tuple[str, Path]] = []  # (temp path, final path), in order
         self.renamed: list[tuple[str, str | None]] = []  # (name, backup name or None: it did not exist)
         self.backups: dict[str, str | None] = {}
 
@@ -132,7 +144,7 @@ class Staged:
             backup = None
             if final.exists():
                 backup = f".{final.name}.{secrets.token_hex(4)}.old.tmp"
-                self.backups[final.name] = backup       # discard() removes it if what follows fails
+                self.backups[final.name] = backup  # discard() removes it if what follows fails
                 try:
                     _backup(final, self.state_dir / backup)
                 except OSError as exc:
@@ -142,14 +154,15 @@ class Staged:
         text = json.dumps(doc) + "\n"
         path = self.state_dir / JOURNAL_FILE
         try:
-            with suppress(FileNotFoundError):   # whatever is there (even a FIFO) is replaced, never opened
+            with suppress(FileNotFoundError):  # whatever is there (even a FIFO) is replaced, never opened
                 os.unlink(path)
-            fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_CLOEXEC | os.O_NOFOLLOW | os.O_NONBLOCK,
-                         0o644)
+            fd = os.open(
+                path, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_CLOEXEC | os.O_NOFOLLOW | os.O_NONBLOCK, 0o644
+            )
             try:
                 view = memoryview(text.encode("utf-8"))
                 while view:
-                    view = view[os.write(fd, view):]
+                    view = view[os.write(fd, view) :]
                 os.fsync(fd)
             finally:
                 os.close(fd)
@@ -168,8 +181,11 @@ class Staged:
                 os.replace(tmp, final)
             except OSError as exc:
                 problems = self.roll_back()
-                raise StateDirError(f"cannot rename into place: {exc.strerror or exc}", source=str(final),
-                                    hint=_after_rollback(problems)) from None
+                raise StateDirError(
+                    f"cannot rename into place: {exc.strerror or exc}",
+                    source=str(final),
+                    hint=_after_rollback(problems),
+                ) from None
             self.renamed.append((final.name, self.backups.get(final.name)))
 
     def commit(self) -> None:
@@ -189,7 +205,7 @@ class Staged:
         """Put back what this run renamed (from the backups), drop its temps and journal; problems left."""
         problems = _roll_back(self.state_dir, [(n, b, False) for n, b in reversed(self.renamed)])
         self.renamed = []
-        self.discard()              # temps not renamed, and backups of files not replaced
+        self.discard()  # temps not renamed, and backups of files not replaced
         remove_quietly(self.state_dir / JOURNAL_FILE)
         fsync_folder(self.state_dir)
         return problems
@@ -215,7 +231,7 @@ def _backup(final: Path, backup: Path) -> None:
     try:
         view = memoryview(data)
         while view:
-            view = view[os.write(fd, view):]
+            view = view[os.write(fd, view) :]
         os.fsync(fd)
     finally:
         os.close(fd)
@@ -246,8 +262,10 @@ def _roll_back(state_dir: Path, entries: list[tuple[str, str | None, bool]]) -> 
 def _after_rollback(problems: list[str]) -> str:
     if not problems:
         return f"every file was put back: {UNCHANGED}; free space or fix permissions in the state dir"
-    return ("could not put back " + "; ".join(problems) + ": the advisory files may disagree until the next "
-            "successful run, which replaces them all; fix the state dir")
+    return (
+        "could not put back " + "; ".join(problems) + ": the advisory files may disagree until the next "
+        "successful run, which replaces them all; fix the state dir"
+    )
 
 
 def remove_quietly(path: Path) -> None:
@@ -275,7 +293,7 @@ def publish(state_dir: Path, files: dict[str, str], history_record: dict, histor
     every file is as before and the temps are removed; the :class:`StateDirError` raised says
     so, or names what could not be put back.  Returns the warnings of the history append.
     """
-    line = json.dumps(history_record, separators=(",", ":"), allow_nan=False)   # fails before anything is written
+    line = json.dumps(history_record, separators=(",", ":"), allow_nan=False)  # fails before anything is written
     staged = Staged(state_dir)
     try:
         for name, text in files.items():
@@ -288,9 +306,15 @@ def publish(state_dir: Path, files: dict[str, str], history_record: dict, histor
     staged.rename_all()
     staged.commit()
     try:
-        warnings = append_line_locked(state_dir / HISTORY_FILE, line, StateDirError, "history",
-                                      rotate_above=history_max_bytes, repair_partial=True)
-    except StateDirError as exc:   # no line for files that will not stand: they are put back
+        warnings = append_line_locked(
+            state_dir / HISTORY_FILE,
+            line,
+            StateDirError,
+            "history",
+            rotate_above=history_max_bytes,
+            repair_partial=True,
+        )
+    except StateDirError as exc:  # no line for files that will not stand: they are put back
         problems = staged.roll_back()
         raise StateDirError(exc.message, source=exc.source, hint=_after_rollback(problems)) from None
     staged.tidy()

@@ -62,13 +62,18 @@ def parse_registry_text(text: str | None, source: str) -> Registry:
     seen = set()
     for name in header:
         if name in seen and name:
-            raise RegistryError(f"column {name!r} appears twice in the header", source=source, line=1,
-                                hint="header must be: time,air_temp_c,note")
+            raise RegistryError(
+                f"column {name!r} appears twice in the header",
+                source=source,
+                line=1,
+                hint="header must be: time,air_temp_c,note",
+            )
         seen.add(name)
     for required in ("time", "air_temp_c"):
         if required not in header:
-            raise RegistryError(f"missing column '{required}'", source=source, line=1,
-                                hint="header must be: time,air_temp_c,note")
+            raise RegistryError(
+                f"missing column '{required}'", source=source, line=1, hint="header must be: time,air_temp_c,note"
+            )
     texts, lines, temps, notes = [], [], [], []
     lo, hi = AIR_TEMP_RANGE_C
     try:
@@ -84,20 +89,32 @@ def parse_registry_text(text: str | None, source: str) -> Registry:
             try:
                 temp = float(cell)
             except ValueError:
-                raise RegistryError(f"air_temp_c {shown!r} is not a number", source=source,
-                                    line=number, field="air_temp_c", hint="write °C, e.g. 3.5") from None
+                raise RegistryError(
+                    f"air_temp_c {shown!r} is not a number",
+                    source=source,
+                    line=number,
+                    field="air_temp_c",
+                    hint="write °C, e.g. 3.5",
+                ) from None
             if not (math.isfinite(temp) and lo <= temp <= hi):
-                raise RegistryError(f"air_temp_c {shown} is outside {lo:g}..{hi:g} °C", source=source,
-                                    line=number, field="air_temp_c")
+                raise RegistryError(
+                    f"air_temp_c {shown} is outside {lo:g}..{hi:g} °C", source=source, line=number, field="air_temp_c"
+                )
             temps.append(temp)
             notes.append(clean_text(row.get("note", "")))
     except csv.Error as exc:
-        raise RegistryError(f"cannot parse CSV: {exc}", source=source, line=reader.line_num,
-                            hint="check quotes and commas") from None
+        raise RegistryError(
+            f"cannot parse CSV: {exc}", source=source, line=reader.line_num, hint="check quotes and commas"
+        ) from None
     if not texts:
         return Registry.empty(source)
-    times = parse_time_column(pd.Series(texts, dtype=object), source=source, field="time",
-                              line_offset=np.array(lines), error_type=RegistryError)
+    times = parse_time_column(
+        pd.Series(texts, dtype=object),
+        source=source,
+        field="time",
+        line_offset=np.array(lines),
+        error_type=RegistryError,
+    )
     t = times.to_numpy(dtype="datetime64[ns]").view(np.int64)
     order = np.argsort(t, kind="stable")
     idx = pd.DatetimeIndex(times.iloc[order]).tz_convert("UTC").as_unit("ns")
@@ -108,17 +125,20 @@ def read_registry(path: Path | str | None) -> Registry:
     """Read a registry CSV; a missing path gives an empty registry (no reference)."""
     if path is None:
         return Registry.empty()
-    text = read_text_bounded(path, RegistryError, "registry", missing_ok=True, empty_ok=True,
-                             expected="a CSV text file")
+    text = read_text_bounded(
+        path, RegistryError, "registry", missing_ok=True, empty_ok=True, expected="a CSV text file"
+    )
     return parse_registry_text(text, str(path))
 
 
-def reference_in_force(registry: Registry, times_utc: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray]:
+def reference_in_force(registry: Registry, times_utc: pd.DatetimeIndex | np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """For each time, the (time_ns, air_temp_c) of the newest reference at or before it.
 
     Returns ``(reference_time_ns, reference_air_temp_c)``; NaN/-1 where none is in force.
     """
-    t = np.asarray(times_utc.as_unit("ns").asi8 if isinstance(times_utc, pd.DatetimeIndex) else times_utc, dtype=np.int64)
+    t = np.asarray(
+        times_utc.as_unit("ns").asi8 if isinstance(times_utc, pd.DatetimeIndex) else times_utc, dtype=np.int64
+    )
     if len(registry) == 0:
         return np.full(t.shape, -1, dtype=np.int64), np.full(t.shape, np.nan)
     ref_t = registry.times_utc.as_unit("ns").asi8
@@ -156,7 +176,7 @@ def append_reference(path: Path | str, time_utc: pd.Timestamp, air_temp_c: float
     result: list[Registry] = []
 
     def add(old_text: str | None) -> str:
-        registry = parse_registry_text(old_text, str(path))   # validates the existing file first
+        registry = parse_registry_text(old_text, str(path))  # validates the existing file first
         times = pd.DatetimeIndex(registry.times_utc.append(pd.DatetimeIndex([time_utc]).as_unit("ns")))
         temps = np.append(registry.air_temp_c, float(air_temp_c))
         notes = registry.notes + (note,)

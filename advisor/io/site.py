@@ -16,8 +16,6 @@ Two sections concern the site model:
 
 from __future__ import annotations
 
-import functools
-import hashlib
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -37,9 +35,9 @@ from advisor.io.feedlayout import (  # noqa: F401 (re-exported)
     zone_value,
 )
 from advisor.io.sitemodel import ModelTermSetting, model_terms
-from advisor.text import clean_text
 from advisor.io.sitereader import Reader
 from advisor.io.yamlio import load_yaml
+from advisor.text import clean_text
 
 
 @dataclass(frozen=True)
@@ -76,7 +74,7 @@ class AstronomicalFigures:
     wind_term_um_per_ms2: float = 3.0
     thermal_drift_um_per_c: float = 25.0
     duration_min: float = 45.0
-    uncorrected_surface_rms_um: float | None = None   # the surface with no fresh correction (optional)
+    uncorrected_surface_rms_um: float | None = None  # the surface with no fresh correction (optional)
     min_calibrator_elevation_deg: float = 25.0
     max_calibrator_elevation_deg: float = 80.0
     # Never point at a calibrator closer to the Sun than this over the measurement [deg]: sites set
@@ -125,7 +123,7 @@ class Thresholds:
 
     high_frequency_wind_limit_ms: float = 4.0
     high_frequency_min_ghz: float = 30.0
-    surface_requirement_fraction: float = 16.0   # the surface must reach λ/N (Ruze η 0.54 at λ/16)
+    surface_requirement_fraction: float = 16.0  # the surface must reach λ/N (Ruze η 0.54 at λ/16)
     min_ruze_efficiency: float = 0.30
     laser_preference_efficiency: float = 0.08
     min_p_usable: float = 0.5
@@ -147,22 +145,22 @@ class StructureFigures:
     (:mod:`advisor.physics.thermal`).
     """
 
-    drift_um_per_c: float = 25.0              # surface rms added per °C the structure moved since the correction
-    time_constant_h: float = 1.0              # how fast the structure follows the air (first-order lag)
-    sun_heating_c_per_kwm2: float = 4.0       # sunlit structure above the air, per kW/m² of irradiance
-    max_efficiency_loss: float = 0.10         # a correction holds while it meets λ/N or has lost at most this of η
+    drift_um_per_c: float = 25.0  # surface rms added per °C the structure moved since the correction
+    time_constant_h: float = 1.0  # how fast the structure follows the air (first-order lag)
+    sun_heating_c_per_kwm2: float = 4.0  # sunlit structure above the air, per kW/m² of irradiance
+    max_efficiency_loss: float = 0.10  # a correction holds while it meets λ/N or has lost at most this of η
 
 
 @dataclass(frozen=True)
 class ForecastSettings:
     """``forecast:`` — how forecast rows are read and how far they are trusted (``advisor outlook``)."""
 
-    path: Path | None = None             # forecast file read beside the site's own feed
-    issue_time_column: str = "issued"    # ISO 8601 issue time of each forecast row
-    horizon_h: float = 48.0              # rows further than this past their issue time are flagged
-    wind_margin_pct: float = 0.0         # forecast wind and gusts raised by this before the rules [%]
-    dew_point_margin_c: float = 0.0      # forecast dew point raised by this (capped at the air temperature) [°C]
-    settling_min: float = 10.0           # added to a method's duration for the shortest window offered [min]
+    path: Path | None = None  # forecast file read beside the site's own feed
+    issue_time_column: str = "issued"  # ISO 8601 issue time of each forecast row
+    horizon_h: float = 48.0  # rows further than this past their issue time are flagged
+    wind_margin_pct: float = 0.0  # forecast wind and gusts raised by this before the rules [%]
+    dew_point_margin_c: float = 0.0  # forecast dew point raised by this (capped at the air temperature) [°C]
+    settling_min: float = 10.0  # added to a method's duration for the shortest window offered [min]
     # When the latest observation disagrees with the forecast beyond the margins, the forecast is
     # pulled towards the observation, the pull fading with this time constant [h].
     trust_observation_h: float = 2.0
@@ -170,18 +168,30 @@ class ForecastSettings:
 
 def _forecast_settings(reader: Reader, base: Path) -> ForecastSettings:
     path = ("forecast",)
-    reader.section(path, {"path", "issue_time_column", "horizon_h", "wind_margin_pct", "dew_point_margin_c",
-                          "settling_min", "trust_observation_h"})
+    reader.section(
+        path,
+        {
+            "path",
+            "issue_time_column",
+            "horizon_h",
+            "wind_margin_pct",
+            "dew_point_margin_c",
+            "settling_min",
+            "trust_observation_h",
+        },
+    )
     d = ForecastSettings
     return ForecastSettings(
         path=reader.path_value(path + ("path",), base),
-        issue_time_column=reader.text(path + ("issue_time_column",), default=d.issue_time_column),
+        issue_time_column=reader.text(path + ("issue_time_column",), default=d.issue_time_column)
+        or d.issue_time_column,
         horizon_h=reader.number(path + ("horizon_h",), default=d.horizon_h, lo=1, hi=24 * 60),
         wind_margin_pct=reader.number(path + ("wind_margin_pct",), default=d.wind_margin_pct, lo=0, hi=200),
         dew_point_margin_c=reader.number(path + ("dew_point_margin_c",), default=d.dew_point_margin_c, lo=0, hi=10),
         settling_min=reader.number(path + ("settling_min",), default=d.settling_min, lo=0, hi=1440),
-        trust_observation_h=reader.number(path + ("trust_observation_h",), default=d.trust_observation_h,
-                                          lo=0.1, hi=48),
+        trust_observation_h=reader.number(
+            path + ("trust_observation_h",), default=d.trust_observation_h, lo=0.1, hi=48
+        ),
     )
 
 
@@ -191,9 +201,9 @@ class TickConfig:
 
     notify_command: tuple[str, ...] = ()
     notify_timeout_s: float = 30.0
-    notify_format: str = "text"          # text | json, what the notify command reads on stdin
-    history_max_bytes: int = 5_000_000   # history.jsonl is rotated to history.jsonl.1 above this
-    dead_feed_ticks: int = 6             # consecutive undetermined ticks before "the feed looks dead"
+    notify_format: str = "text"  # text | json, what the notify command reads on stdin
+    history_max_bytes: int = 5_000_000  # history.jsonl is rotated to history.jsonl.1 above this
+    dead_feed_ticks: int = 6  # consecutive undetermined ticks before "the feed looks dead"
     # A new call is announced once it has held for confirm_ticks ticks or confirm_min minutes
     # (whichever comes first); a call forced by a block (fog, rain, wind, bad data) at once.
     confirm_ticks: int = 3
@@ -202,18 +212,34 @@ class TickConfig:
 
 def _tick_config(reader: Reader, base: Path) -> TickConfig:
     path = ("tick",)
-    section = reader.section(path, {"notify_command", "notify_timeout_s", "notify_format",
-                                    "history_max_bytes", "dead_feed_ticks", "confirm_ticks", "confirm_min"})
+    section = reader.section(
+        path,
+        {
+            "notify_command",
+            "notify_timeout_s",
+            "notify_format",
+            "history_max_bytes",
+            "dead_feed_ticks",
+            "confirm_ticks",
+            "confirm_min",
+        },
+    )
     argv = section.get("notify_command") or []
     if not isinstance(argv, list) or not all(isinstance(a, str) and a for a in argv):
-        raise reader.fail(path + ("notify_command",), f"expected a list of non-empty strings, got {argv!r}",
-                          hint="write the program and its arguments as a list, e.g. [/usr/local/bin/page-ops, "
-                               "--team, surface]; it is run directly, never through a shell")
+        raise reader.fail(
+            path + ("notify_command",),
+            f"expected a list of non-empty strings, got {argv!r}",
+            hint="write the program and its arguments as a list, e.g. [/usr/local/bin/page-ops, "
+            "--team, surface]; it is run directly, never through a shell",
+        )
     if argv and "/" in argv[0] and not Path(argv[0]).expanduser().is_absolute():
         argv = [str(base / argv[0]), *argv[1:]]
     ints = {}
-    for name, lo, hi in (("history_max_bytes", 1000, 1e12), ("dead_feed_ticks", 1, 100_000),
-                         ("confirm_ticks", 1, 100_000)):
+    for name, lo, hi in (
+        ("history_max_bytes", 1000, 1e12),
+        ("dead_feed_ticks", 1, 100_000),
+        ("confirm_ticks", 1, 100_000),
+    ):
         value = reader.number(path + (name,), default=getattr(TickConfig, name), lo=lo, hi=hi)
         if value != int(value):
             raise reader.fail(path + (name,), f"expected a whole number, got {value:g}")
@@ -221,10 +247,13 @@ def _tick_config(reader: Reader, base: Path) -> TickConfig:
     fmt = reader.text(path + ("notify_format",), default="text")
     if fmt not in ("text", "json"):
         raise reader.fail(path + ("notify_format",), f"unknown format {fmt!r}", hint="use text or json")
-    return TickConfig(notify_command=tuple(argv), notify_format=fmt,
-                      notify_timeout_s=reader.number(path + ("notify_timeout_s",), default=30.0, lo=0.1, hi=3600),
-                      confirm_min=reader.number(path + ("confirm_min",), default=TickConfig.confirm_min, lo=0, hi=1440),
-                      **ints)
+    return TickConfig(
+        notify_command=tuple(argv),
+        notify_format=fmt,
+        notify_timeout_s=reader.number(path + ("notify_timeout_s",), default=30.0, lo=0.1, hi=3600),
+        confirm_min=reader.number(path + ("confirm_min",), default=TickConfig.confirm_min, lo=0, hi=1440),
+        **ints,
+    )
 
 
 @dataclass(frozen=True)
@@ -245,8 +274,8 @@ class Site:
     references_path: Path | None = None
     rule_paths: tuple[Path, ...] = ()
     model_path: Path | None = None
-    model_terms: tuple[ModelTermSetting, ...] = ()   # empty: training's default terms
-    history_path: Path | None = None                  # the site's record of past attempts
+    model_terms: tuple[ModelTermSetting, ...] = ()  # empty: training's default terms
+    history_path: Path | None = None  # the site's record of past attempts
     tick: TickConfig = field(default_factory=TickConfig)
     forecast: ForecastSettings = field(default_factory=ForecastSettings)
     structure: StructureFigures = field(default_factory=StructureFigures)
@@ -320,19 +349,45 @@ def _refuse_todos(reader: Reader, node: Any, path: tuple) -> None:
 def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = False) -> Site:
     """Validate parsed YAML ``data`` into a :class:`Site`."""
     if not isinstance(data, dict):
-        raise SiteError("expected a mapping at the top of the site file", source=source, line=1,
-                        hint="start with 'site:'")
+        raise SiteError(
+            "expected a mapping at the top of the site file", source=source, line=1, hint="start with 'site:'"
+        )
     r = Reader(data, lines, source)
     _refuse_todos(r, data, ())
-    r.section((), {"site", "feed", "references", "rules", "model", "history", "methods", "thresholds", "calibrators",
-                   "tick", "forecast", "atmosphere", "session", "structure"})
-    r.section(("site",), {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"}, required=True)
-    name = clean_text(r.text(("site", "name"), required=True))   # shown on terminals, pages and mail
+    r.section(
+        (),
+        {
+            "site",
+            "feed",
+            "references",
+            "rules",
+            "model",
+            "history",
+            "methods",
+            "thresholds",
+            "calibrators",
+            "tick",
+            "forecast",
+            "atmosphere",
+            "session",
+            "structure",
+        },
+    )
+    r.section(
+        ("site",),
+        {"name", "latitude_deg", "longitude_deg", "elevation_m", "time_zone", "dish_diameter_m"},
+        required=True,
+    )
+    name = clean_text(r.text(("site", "name"), required=True))  # shown on terminals, pages and mail
     lat = r.number(("site", "latitude_deg"), lo=-90, hi=90, required=True)
     lon = r.number(("site", "longitude_deg"), lo=-180, hi=180, required=True)
     elev = r.number(("site", "elevation_m"), default=0.0, lo=-500, hi=9000)
-    tz = zone_value(r, ("site", "time_zone"), r.text(("site", "time_zone"), default="UTC"),
-                    allow_fractional_offset=False) or "UTC"
+    tz = (
+        zone_value(
+            r, ("site", "time_zone"), r.text(("site", "time_zone"), default="UTC"), allow_fractional_offset=False
+        )
+        or "UTC"
+    )
     dish = r.number(("site", "dish_diameter_m"), lo=1, hi=1000, required=True)
 
     feed = parse_feed_section(r, base)
@@ -341,33 +396,84 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     r.section(("model",), {"path", "terms"})
     r.section(("history",), {"path"})
     r.section(("methods",), {"scan", "astronomical"})
-    scan = _figures(r, ("methods", "scan"), ScanFigures, {
-        "noise_um_at_calm": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
-        "reference_ageing_um_per_day": (0, 5000), "reference_mismatch_um_per_c": (0, 5000),
-        "air_path_m": (0, 1000), "refraction_compensated_fraction": (0, 1), "mount_um_per_c": (0, 5000),
-        "duration_min": (0.1, 1440)})
-    astro = _figures(r, ("methods", "astronomical"), AstronomicalFigures, {
-        "surface_rms_um": (0, 5000), "wind_term_um_per_ms2": (0, 1000),
-        "thermal_drift_um_per_c": (0, 5000), "duration_min": (0.1, 1440), "uncorrected_surface_rms_um": (0, 100000),
-        "min_calibrator_elevation_deg": (0, 90), "max_calibrator_elevation_deg": (0, 90),
-        "sun_avoidance_deg": (0, 90), "gravity_sin_um": (-5000, 5000), "gravity_cos_um": (-5000, 5000)})
+    scan = _figures(
+        r,
+        ("methods", "scan"),
+        ScanFigures,
+        {
+            "noise_um_at_calm": (0, 5000),
+            "wind_term_um_per_ms2": (0, 1000),
+            "reference_ageing_um_per_day": (0, 5000),
+            "reference_mismatch_um_per_c": (0, 5000),
+            "air_path_m": (0, 1000),
+            "refraction_compensated_fraction": (0, 1),
+            "mount_um_per_c": (0, 5000),
+            "duration_min": (0.1, 1440),
+        },
+    )
+    astro = _figures(
+        r,
+        ("methods", "astronomical"),
+        AstronomicalFigures,
+        {
+            "surface_rms_um": (0, 5000),
+            "wind_term_um_per_ms2": (0, 1000),
+            "thermal_drift_um_per_c": (0, 5000),
+            "duration_min": (0.1, 1440),
+            "uncorrected_surface_rms_um": (0, 100000),
+            "min_calibrator_elevation_deg": (0, 90),
+            "max_calibrator_elevation_deg": (0, 90),
+            "sun_avoidance_deg": (0, 90),
+            "gravity_sin_um": (-5000, 5000),
+            "gravity_cos_um": (-5000, 5000),
+        },
+    )
     if astro.min_calibrator_elevation_deg >= astro.max_calibrator_elevation_deg:
-        raise r.fail(("methods", "astronomical", "max_calibrator_elevation_deg"),
-                     "must be above min_calibrator_elevation_deg")
-    atmosphere = _figures(r, ("atmosphere",), AtmosphereFigures, {
-        "water_scale_height_km": (0.1, 10), "reference_pwv_mm": (0.1, 100), "reference_air_temp_c": (-60, 40),
-        "receiver_temp_k": (1, 5000)})
+        raise r.fail(
+            ("methods", "astronomical", "max_calibrator_elevation_deg"), "must be above min_calibrator_elevation_deg"
+        )
+    atmosphere = _figures(
+        r,
+        ("atmosphere",),
+        AtmosphereFigures,
+        {
+            "water_scale_height_km": (0.1, 10),
+            "reference_pwv_mm": (0.1, 100),
+            "reference_air_temp_c": (-60, 40),
+            "receiver_temp_k": (1, 5000),
+        },
+    )
     session = _figures(r, ("session",), SessionSettings, {"elevation_deg": (5, 90)})
-    thresholds = _figures(r, ("thresholds",), Thresholds, {
-        "high_frequency_wind_limit_ms": (0, 100), "high_frequency_min_ghz": (0, 2000),
-        "surface_requirement_fraction": (1, 1000),
-        "min_ruze_efficiency": (0, 1), "laser_preference_efficiency": (0, 1),
-        "min_p_usable": (0, 1), "fog_spread_c": (0, 20), "fog_rel_humidity_pct": (0, 100),
-        "fog_visibility_m": (0, 100000), "precip_mm_h": (0, 1000),
-        "pointing_error_arcsec_at_4ms": (0, 3600), "session_hours": (0, 24 * 7)})
-    structure = _figures(r, ("structure",), StructureFigures, {
-        "drift_um_per_c": (0, 5000), "time_constant_h": (0.05, 100), "sun_heating_c_per_kwm2": (0, 100),
-        "max_efficiency_loss": (0.001, 0.9)})
+    thresholds = _figures(
+        r,
+        ("thresholds",),
+        Thresholds,
+        {
+            "high_frequency_wind_limit_ms": (0, 100),
+            "high_frequency_min_ghz": (0, 2000),
+            "surface_requirement_fraction": (1, 1000),
+            "min_ruze_efficiency": (0, 1),
+            "laser_preference_efficiency": (0, 1),
+            "min_p_usable": (0, 1),
+            "fog_spread_c": (0, 20),
+            "fog_rel_humidity_pct": (0, 100),
+            "fog_visibility_m": (0, 100000),
+            "precip_mm_h": (0, 1000),
+            "pointing_error_arcsec_at_4ms": (0, 3600),
+            "session_hours": (0, 24 * 7),
+        },
+    )
+    structure = _figures(
+        r,
+        ("structure",),
+        StructureFigures,
+        {
+            "drift_um_per_c": (0, 5000),
+            "time_constant_h": (0.05, 100),
+            "sun_heating_c_per_kwm2": (0, 100),
+            "max_efficiency_loss": (0.001, 0.9),
+        },
+    )
 
     cal_list = r.get_raw(("calibrators",)) or []
     if not isinstance(cal_list, list):
@@ -393,8 +499,16 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     rule_paths = tuple((base / Path(p)).resolve() if not Path(p).is_absolute() else Path(p) for p in rule_list)
 
     return Site(
-        name=str(name), latitude_deg=lat, longitude_deg=lon, elevation_m=elev, time_zone=tz,
-        dish_diameter_m=dish, feed=feed, scan=scan, astronomical=astro, thresholds=thresholds,
+        name=str(name),
+        latitude_deg=lat,
+        longitude_deg=lon,
+        elevation_m=elev,
+        time_zone=tz,
+        dish_diameter_m=dish,
+        feed=feed,
+        scan=scan,
+        astronomical=astro,
+        thresholds=thresholds,
         calibrators=tuple(calibrators),
         references_path=r.path_value(("references", "path"), base),
         rule_paths=rule_paths,
@@ -404,8 +518,10 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
         tick=_tick_config(r, base),
         forecast=_forecast_settings(r, base),
         structure=structure,
-        atmosphere=atmosphere, session=session,
-        source=source, is_demo=is_demo,
+        atmosphere=atmosphere,
+        session=session,
+        source=source,
+        is_demo=is_demo,
     )
 
 

@@ -32,8 +32,8 @@ class PathChange:
     """The edit that points a site file at a model: new text, the changed line and its number."""
 
     text: str
-    line: int              # 1-based line number of the new or changed line
-    line_text: str         # that line as written
+    line: int  # 1-based line number of the new or changed line
+    line_text: str  # that line as written
     old_value: str | None  # the path the site named before (as written), None if it named none
 
 
@@ -69,9 +69,13 @@ def model_path_change(site_path: Path | str, model_path: Path | str) -> PathChan
         top = _TOP_MODEL.match(lines[start].rstrip("\r\n"))
         rest = top.group("rest").split("#")[0].strip() if top else ""
         if rest:
-            raise SiteError("model: is written on one line (flow style); cannot change it safely", source=source,
-                            line=start + 1, field="model",
-                            hint=f"write it as a block ('model:' then '  path: {value}' on the next line)")
+            raise SiteError(
+                "model: is written on one line (flow style); cannot change it safely",
+                source=source,
+                line=start + 1,
+                field="model",
+                hint=f"write it as a block ('model:' then '  path: {value}' on the next line)",
+            )
         end = start + 1
         while end < len(lines) and (not lines[end].strip() or lines[end][0] in " \t#"):
             end += 1
@@ -79,20 +83,30 @@ def model_path_change(site_path: Path | str, model_path: Path | str) -> PathChan
         at, m = next(((k, m) for k, m in found if m is not None), (None, None))
         if at is not None and m is not None:
             old = m.group("value").strip()
-            newline = lines[at][len(lines[at].rstrip("\r\n")):] or "\n"
+            newline = lines[at][len(lines[at].rstrip("\r\n")) :] or "\n"
             lines[at] = f"{m.group('indent')}path: {value}{m.group('comment') or ''}{newline}"
             changed = at
         else:
-            indent = next((lines[k][: len(lines[k]) - len(lines[k].lstrip(" \t"))] for k in range(start + 1, end)
-                           if lines[k].strip() and not lines[k].lstrip().startswith("#")), "  ")
+            indent = next(
+                (
+                    lines[k][: len(lines[k]) - len(lines[k].lstrip(" \t"))]
+                    for k in range(start + 1, end)
+                    if lines[k].strip() and not lines[k].lstrip().startswith("#")
+                ),
+                "  ",
+            )
             lines.insert(start + 1, f"{indent}path: {value}\n")
             changed = start + 1
     new_text = "".join(lines)
     data, line_map = parse_yaml_text(new_text, source, SiteError)
     site = parse_site(data, line_map, source, site_path.resolve().parent)
     if site.model_path is None or os.path.realpath(site.model_path) != os.path.realpath(model_path):
-        raise SiteError("could not point the site file at the new model safely", source=source, field="model.path",
-                        hint=f"set it by hand: model: {{path: {value}}}")
+        raise SiteError(
+            "could not point the site file at the new model safely",
+            source=source,
+            field="model.path",
+            hint=f"set it by hand: model: {{path: {value}}}",
+        )
     return PathChange(new_text, changed + 1, lines[changed].rstrip("\r\n"), old)
 
 
@@ -102,6 +116,7 @@ def install_model_path(site_path: Path | str, model_path: Path | str) -> PathCha
     try:
         atomic_write_text(Path(site_path), change.text)
     except OSError as exc:
-        raise SiteError(f"cannot write the site file: {exc.strerror}", source=str(site_path),
-                        hint="check the folder is writable") from None
+        raise SiteError(
+            f"cannot write the site file: {exc.strerror}", source=str(site_path), hint="check the folder is writable"
+        ) from None
     return change

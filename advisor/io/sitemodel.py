@@ -32,8 +32,14 @@ class SectionReader(Protocol):
     def get_raw(self, path: tuple) -> Any: ...
     def section(self, path: tuple, known: set[str], required: bool = False) -> dict: ...
     def text(self, path: tuple, default: str | None = None, required: bool = False) -> str | None: ...
-    def number(self, path: tuple, default: float | None = None, lo: float | None = None,
-               hi: float | None = None, required: bool = False) -> float: ...
+    def number(
+        self,
+        path: tuple,
+        default: float | None = None,
+        lo: float | None = None,
+        hi: float | None = None,
+        required: bool = False,
+    ) -> float: ...
 
 
 @dataclass(frozen=True)
@@ -58,8 +64,11 @@ def model_terms(reader: SectionReader) -> tuple[ModelTermSetting, ...]:
     if raw is None:
         return ()
     if not isinstance(raw, list) or not raw:
-        raise reader.fail(path, "expected a non-empty list of terms",
-                          hint="e.g. - {feature: wind_gust_ms, transform: square, direction: lowers}")
+        raise reader.fail(
+            path,
+            "expected a non-empty list of terms",
+            hint="e.g. - {feature: wind_gust_ms, transform: square, direction: lowers}",
+        )
     if len(raw) > MAX_MODEL_TERMS:
         raise reader.fail(path, f"{len(raw)} terms, more than the {MAX_MODEL_TERMS} a site model may read")
     out: list[ModelTermSetting] = []
@@ -72,38 +81,62 @@ def model_terms(reader: SectionReader) -> tuple[ModelTermSetting, ...]:
             import difflib
 
             close = difflib.get_close_matches(str(feature), list(CATALOGUE), n=1)
-            raise reader.fail(tpath + ("feature",), f"unknown feature {feature!r}",
-                              hint=f"did you mean '{close[0]}'?" if close else "see 'advisor rules features'")
+            raise reader.fail(
+                tpath + ("feature",),
+                f"unknown feature {feature!r}",
+                hint=f"did you mean '{close[0]}'?" if close else "see 'advisor rules features'",
+            )
         if spec.scope != "row":
-            raise reader.fail(tpath + ("feature",), f"{feature} is fixed by the target and the site, the same for "
-                              "every attempt, so the model cannot learn from it",
-                              hint="choose a feature that varies with the weather or the time")
+            raise reader.fail(
+                tpath + ("feature",),
+                f"{feature} is fixed by the target and the site, the same for "
+                "every attempt, so the model cannot learn from it",
+                hint="choose a feature that varies with the weather or the time",
+            )
         transform = reader.text(tpath + ("transform",), default="identity") or ""
         if transform not in MODEL_TRANSFORMS:
-            raise reader.fail(tpath + ("transform",), f"unknown transform {transform!r}",
-                              hint=f"one of {', '.join(MODEL_TRANSFORMS)}")
+            raise reader.fail(
+                tpath + ("transform",), f"unknown transform {transform!r}", hint=f"one of {', '.join(MODEL_TRANSFORMS)}"
+            )
         if spec.unit == "flag" and transform != "identity":
-            raise reader.fail(tpath + ("transform",), f"{feature} is a flag (true/false): it enters as itself",
-                              hint="write transform: identity or leave it out")
+            raise reader.fail(
+                tpath + ("transform",),
+                f"{feature} is a flag (true/false): it enters as itself",
+                hint="write transform: identity or leave it out",
+            )
         knot = None
         if transform == "shortfall":
             knot = reader.number(tpath + ("knot",), required=True)
         elif "knot" in entry:
-            raise reader.fail(tpath + ("knot",), f"only a shortfall term has a knot, not {transform}",
-                              hint="remove knot, or use transform: shortfall")
+            raise reader.fail(
+                tpath + ("knot",),
+                f"only a shortfall term has a knot, not {transform}",
+                hint="remove knot, or use transform: shortfall",
+            )
         direction = reader.text(tpath + ("direction",), required=True) or ""
         if direction not in MODEL_DIRECTIONS:
-            raise reader.fail(tpath + ("direction",), f"unknown direction {direction!r}",
-                              hint="lowers (a larger term can only lower the odds), raises, or free")
+            raise reader.fail(
+                tpath + ("direction",),
+                f"unknown direction {direction!r}",
+                hint="lowers (a larger term can only lower the odds), raises, or free",
+            )
         methods = entry.get("methods", list(METHODS))
-        if (not isinstance(methods, list) or not methods or not all(m in METHODS for m in methods)
-                or len(set(methods)) != len(methods)):
-            raise reader.fail(tpath + ("methods",), f"expected a list of methods, got {methods!r}",
-                              hint="e.g. [scan], [astronomical] or [scan, astronomical]")
+        if (
+            not isinstance(methods, list)
+            or not methods
+            or not all(m in METHODS for m in methods)
+            or len(set(methods)) != len(methods)
+        ):
+            raise reader.fail(
+                tpath + ("methods",),
+                f"expected a list of methods, got {methods!r}",
+                hint="e.g. [scan], [astronomical] or [scan, astronomical]",
+            )
         term = ModelTermSetting(feature, transform, knot, direction, tuple(m for m in METHODS if m in methods))
         for k, other in enumerate(out):
-            if ((other.feature, other.transform, other.knot) == (term.feature, term.transform, term.knot)
-                    and set(other.methods) & set(term.methods)):
+            if (other.feature, other.transform, other.knot) == (term.feature, term.transform, term.knot) and set(
+                other.methods
+            ) & set(term.methods):
                 raise reader.fail(tpath, f"the same term as model.terms[{k}]", hint="list each term once")
         out.append(term)
     for method in METHODS:

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import difflib
 from pathlib import Path
-from typing import Any, overload
+from typing import Any
 
 from advisor.errors import SiteError
 from advisor.text import clean_text
@@ -38,8 +38,11 @@ class Reader:
         for key in value:
             if key not in known:
                 if clean_text(key) != str(key):
-                    raise self.fail(path + (key,), "unknown key: it contains control characters or escape sequences",
-                                    hint="retype the key; known keys: " + ", ".join(sorted(known)))
+                    raise self.fail(
+                        path + (key,),
+                        "unknown key: it contains control characters or escape sequences",
+                        hint="retype the key; known keys: " + ", ".join(sorted(known)),
+                    )
                 close = difflib.get_close_matches(str(key), sorted(known), n=1)
                 hint = f"did you mean '{close[0]}'?" if close else f"known keys: {', '.join(sorted(known))}"
                 raise self.fail(path + (key,), "unknown key", hint=hint)
@@ -48,14 +51,26 @@ class Reader:
     def get_raw(self, path: tuple) -> Any:
         node: Any = self.data
         for key in path:
-            if isinstance(node, dict) and key in node or isinstance(node, list) and isinstance(key, int) and key < len(node):
+            if (
+                isinstance(node, dict)
+                and key in node
+                or isinstance(node, list)
+                and isinstance(key, int)
+                and key < len(node)
+            ):
                 node = node[key]
             else:
                 return None
         return node
 
-    def number(self, path: tuple, default: float | None = None, lo: float | None = None,
-               hi: float | None = None, required: bool = False) -> float:
+    def number(
+        self,
+        path: tuple,
+        default: float | None = None,
+        lo: float | None = None,
+        hi: float | None = None,
+        required: bool = False,
+    ) -> float:
         value = self.get_raw(path)
         if value is None:
             if required or default is None:
@@ -72,11 +87,6 @@ class Reader:
         if (lo is not None and value < lo) or (hi is not None and value > hi):
             raise self.fail(path, f"{value:g} is outside {lo:g}..{hi:g}")
         return value
-
-    @overload
-    def text(self, path: tuple, default: str, required: bool = False) -> str: ...
-    @overload
-    def text(self, path: tuple, default: None = None, required: bool = False) -> str | None: ...
 
     def text(self, path: tuple, default: str | None = None, required: bool = False) -> str | None:
         value = self.get_raw(path)

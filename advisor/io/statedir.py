@@ -45,9 +45,25 @@ from advisor.io.publishing import (
     roll_back_journal,
 )
 
-__all__ = ["EXIT_BUSY", "EXIT_STATE_DIR", "STATE_FILE", "HISTORY_FILE", "JOURNAL_FILE", "TEST_KILL_ENV",
-           "TEST_PAUSE_ENV", "StateDirError", "Busy", "check_state_dir", "locked", "recover", "remove_leftover_temps",
-           "read_state", "Staged", "publish", "withdraw"]
+__all__ = [
+    "EXIT_BUSY",
+    "EXIT_STATE_DIR",
+    "STATE_FILE",
+    "HISTORY_FILE",
+    "JOURNAL_FILE",
+    "TEST_KILL_ENV",
+    "TEST_PAUSE_ENV",
+    "StateDirError",
+    "Busy",
+    "check_state_dir",
+    "locked",
+    "recover",
+    "remove_leftover_temps",
+    "read_state",
+    "Staged",
+    "publish",
+    "withdraw",
+]
 
 #: Exit status when another run holds the lock (sysexits.h EX_TEMPFAIL: try again later).
 EXIT_BUSY = 75
@@ -72,13 +88,17 @@ def check_state_dir(state_dir: Path | str) -> Path:
     """
     path = check_path(state_dir, UsageError, "state dir")
     if len(os.fsencode(str(path))) + _LONGEST_CHILD >= PATH_MAX:
-        raise UsageError(f"the state dir path is {len(os.fsencode(str(path))):,} bytes long; with the names of "
-                         f"the files written in it, it passes the system's limit of {PATH_MAX - 1:,}",
-                         field="--state-dir", hint="use a shorter path")
+        raise UsageError(
+            f"the state dir path is {len(os.fsencode(str(path))):,} bytes long; with the names of "
+            f"the files written in it, it passes the system's limit of {PATH_MAX - 1:,}",
+            field="--state-dir",
+            hint="use a shorter path",
+        )
     return path
 
 
 # --- lock ---------------------------------------------------------------------------------
+
 
 @contextmanager
 def locked(state_dir: Path, wait_s: float) -> Iterator[None]:
@@ -88,11 +108,13 @@ def locked(state_dir: Path, wait_s: float) -> Iterator[None]:
             state_dir.mkdir(mode=0o755)
         except FileExistsError:
             if not state_dir.is_dir():
-                raise StateDirError("exists and is not a folder", source=str(state_dir),
-                                    hint="point --state-dir at a folder") from None
+                raise StateDirError(
+                    "exists and is not a folder", source=str(state_dir), hint="point --state-dir at a folder"
+                ) from None
         except OSError as exc:
-            raise io_error(state_dir, "create the state dir", exc,
-                            "create its parent folder first, or point --state-dir elsewhere") from None
+            raise io_error(
+                state_dir, "create the state dir", exc, "create its parent folder first, or point --state-dir elsewhere"
+            ) from None
     path = state_dir / "lock"
     try:
         fd = os.open(path, os.O_RDONLY | os.O_CREAT | os.O_CLOEXEC | os.O_NONBLOCK, 0o644)
@@ -106,9 +128,11 @@ def locked(state_dir: Path, wait_s: float) -> Iterator[None]:
                 break
             except BlockingIOError:
                 if time.monotonic() >= deadline:
-                    raise Busy(f"another advisor tick has held the lock for {wait_s:g} s; this run changed nothing",
-                               source=str(path),
-                               hint=f"exit {EXIT_BUSY}; if this repeats, look for a hung tick or slow disk") from None
+                    raise Busy(
+                        f"another advisor tick has held the lock for {wait_s:g} s; this run changed nothing",
+                        source=str(path),
+                        hint=f"exit {EXIT_BUSY}; if this repeats, look for a hung tick or slow disk",
+                    ) from None
                 time.sleep(0.05)
         yield
     finally:
@@ -135,8 +159,10 @@ def recover(state_dir: Path) -> list[str]:
     warnings = []
     listed, problems = roll_back_journal(state_dir)
     if listed:
-        warnings.append(f"{state_dir}: an interrupted run had started to publish; its changes were rolled back"
-                        + (f" except {'; '.join(problems)}" if problems else ""))
+        warnings.append(
+            f"{state_dir}: an interrupted run had started to publish; its changes were rolled back"
+            + (f" except {'; '.join(problems)}" if problems else "")
+        )
     elif problems:
         warnings.append(f"{state_dir}: removed {problems[0]}")
     removed = remove_leftover_temps(state_dir)
@@ -146,6 +172,7 @@ def recover(state_dir: Path) -> list[str]:
 
 
 # --- state --------------------------------------------------------------------------------
+
 
 def read_state(state_dir: Path, now: datetime, parse: Callable[[str], T]) -> tuple[T | None, str | None]:
     """``parse`` of ``DIR/state.json``, or None when there is none; an unreadable one is set aside.
@@ -161,8 +188,9 @@ def read_state(state_dir: Path, now: datetime, parse: Callable[[str], T]) -> tup
         raw = read_bytes_bounded(path, StateDirError, KINDS["state"], missing_ok=True, empty_ok=True)
     except StateDirError as exc:
         if not _is_garbage(path):
-            raise StateDirError(f"cannot read the state file: {exc.message}", source=str(path),
-                                hint="check the state dir's permissions") from None
+            raise StateDirError(
+                f"cannot read the state file: {exc.message}", source=str(path), hint="check the state dir's permissions"
+            ) from None
         problem = exc.message
     else:
         if raw is None:
@@ -178,8 +206,9 @@ def read_state(state_dir: Path, now: datetime, parse: Callable[[str], T]) -> tup
         os.replace(path, aside)
     except OSError as exc:
         raise io_error(path, "set the corrupted state file aside", exc, WRITE_HINT) from None
-    return None, (f"{path}: corrupted or truncated state file ({problem}); set aside as {aside.name}; "
-                  "starting from a clean state")
+    return None, (
+        f"{path}: corrupted or truncated state file ({problem}); set aside as {aside.name}; starting from a clean state"
+    )
 
 
 def _is_garbage(path: Path) -> bool:
@@ -199,5 +228,3 @@ def withdraw(state_dir: Path, names: tuple[str, ...]) -> None:
     for name in names:
         remove_quietly(state_dir / name)
     fsync_folder(state_dir)
-
-

@@ -84,9 +84,9 @@ def iso_shape(stripped: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     width = int(length.max()) if usable.any() else 16
     itemsize = max(stripped.dtype.itemsize // 4, 1)
     wide = stripped.view(np.uint32).reshape(n, itemsize)
-    codes = np.zeros((n, max(width, 16) + 1), dtype=np.uint8)   # one spare zero column past the end
+    codes = np.zeros((n, max(width, 16) + 1), dtype=np.uint8)  # one spare zero column past the end
     take = min(itemsize, width)
-    codes[:, :take] = np.minimum(wide[:, :take], 255)               # non-ASCII: 255, never a digit or separator
+    codes[:, :take] = np.minimum(wide[:, :take], 255)  # non-ASCII: 255, never a digit or separator
     codes[~usable] = 0
     digit = (codes >= 48) & (codes <= 57)
     rows = np.arange(n)
@@ -153,14 +153,16 @@ def describe_bad_time(text: object) -> tuple[str, str]:
         return f"timestamp {shown} is incomplete", cut_hint
     m = _FULL.match(t)
     if m:
-        rest = t[m.end():]
+        rest = t[m.end() :]
         if rest[:1] == ":" or rest == "." or (rest[:1] == "." and m.group(0).count(":") == 1):
             return f"timestamp {shown} is incomplete", cut_hint
         if rest[:1] in "+-" and _fits(rest, _OFFSET_SHAPE):
             return f"UTC offset {rest!r} of timestamp {shown} is incomplete", cut_hint
         if rest[:1] in "+-":
-            return (f"UTC offset {rest!r} of timestamp {shown} is malformed",
-                    "write the offset as +HH:MM, +HHMM, +HH or Z, e.g. 2026-01-15T09:00:00+01:00")
+            return (
+                f"UTC offset {rest!r} of timestamp {shown} is malformed",
+                "write the offset as +HH:MM, +HHMM, +HH or Z, e.g. 2026-01-15T09:00:00+01:00",
+            )
         if rest.strip().upper() in ("UTC", "GMT", "UT"):
             return f"timestamp {shown} names its zone as {rest.strip()!r}", "write Z for UTC, e.g. 2026-01-15T09:00:00Z"
         return f"timestamp {shown} has unexpected text {rest!r} after the time", ISO_HINT
@@ -171,9 +173,16 @@ def _fail(error_type, what, hint, source, line, field):
     return error_type(what, source=source, line=line, field=field, hint=hint)
 
 
-def check_time_range(times: pd.Series | pd.DatetimeIndex, texts=None, *, source: str | None = None,
-                     field: str | None = None, line_offset=None,
-                     error_type: type[AdvisorError] = UsageError, hint: str | None = None) -> None:
+def check_time_range(
+    times: pd.Series | pd.DatetimeIndex,
+    texts=None,
+    *,
+    source: str | None = None,
+    field: str | None = None,
+    line_offset=None,
+    error_type: type[AdvisorError] = UsageError,
+    hint: str | None = None,
+) -> None:
     """Refuse any time outside :data:`TIME_RANGE_UTC` (NaT is ignored), naming the first one's line.
 
     Naive times are compared with the range's wall-clock bounds.
@@ -188,9 +197,14 @@ def check_time_range(times: pd.Series | pd.DatetimeIndex, texts=None, *, source:
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
         shown = texts.iloc[i] if isinstance(texts, pd.Series) else texts[i] if texts is not None else values.iloc[i]
-        raise _fail(error_type, f"time {str(shown).strip()!r} is outside the years {RANGE_TEXT}",
-                    hint or "check the year", source,
-                    _line(i, line_offset), field)
+        raise _fail(
+            error_type,
+            f"time {str(shown).strip()!r} is outside the years {RANGE_TEXT}",
+            hint or "check the year",
+            source,
+            _line(i, line_offset),
+            field,
+        )
 
 
 def _line(i: int, line_offset) -> int | None:
@@ -202,10 +216,18 @@ def _line(i: int, line_offset) -> int | None:
     return int(line_offset[i])
 
 
-def parse_time_column(texts: pd.Series, *, source: str | None, field: str | None, line_offset,
-                      error_type: type[AdvisorError], time_zone: str | None = None,
-                      require_offset: bool = True, allow_empty: bool = False,
-                      no_zone_hint: str | None = None) -> pd.Series:
+def parse_time_column(
+    texts: pd.Series,
+    *,
+    source: str | None,
+    field: str | None,
+    line_offset,
+    error_type: type[AdvisorError],
+    time_zone: str | None = None,
+    require_offset: bool = True,
+    allow_empty: bool = False,
+    no_zone_hint: str | None = None,
+) -> pd.Series:
     """A column of ISO 8601 texts → UTC times (``datetime64[ns, UTC]``), strictly.
 
     Row ``i`` is reported as line ``i + line_offset`` (``line_offset[i]`` for an array of lines;
@@ -233,17 +255,36 @@ def parse_time_column(texts: pd.Series, *, source: str | None, field: str | None
         i = int(np.flatnonzero(naive)[0])
         shown = repr(str(stripped[i]))
         if require_offset:
-            raise _fail(error_type, f"time {shown} has no UTC offset", no_zone_hint or ISO_HINT, source,
-                        _line(i, line_offset), field)
+            raise _fail(
+                error_type,
+                f"time {shown} has no UTC offset",
+                no_zone_hint or ISO_HINT,
+                source,
+                _line(i, line_offset),
+                field,
+            )
         if has_offset.any():
-            raise _fail(error_type, f"timestamp {shown} has no UTC offset while others do",
-                        "write every time with an offset or Z", source, _line(i, line_offset), field)
+            raise _fail(
+                error_type,
+                f"timestamp {shown} has no UTC offset while others do",
+                "write every time with an offset or Z",
+                source,
+                _line(i, line_offset),
+                field,
+            )
         if time_zone is None:
-            raise _fail(error_type, f"timestamp {shown} carries no UTC offset and no time zone is declared",
-                        no_zone_hint or ISO_HINT, source, _line(i, line_offset), field)
+            raise _fail(
+                error_type,
+                f"timestamp {shown} carries no UTC offset and no time zone is declared",
+                no_zone_hint or ISO_HINT,
+                source,
+                _line(i, line_offset),
+                field,
+            )
     # pandas reads the original strings fastest; only stripped or lower-case texts are rewritten.
-    same = np.array_equal(np.fromiter(map(len, series), dtype=np.int64, count=len(series)),
-                          np.strings.str_len(stripped))
+    same = np.array_equal(
+        np.fromiter(map(len, series), dtype=np.int64, count=len(series)), np.strings.str_len(stripped)
+    )
     if same and not (np.strings.find(stripped, "t") >= 0).any() and not (np.strings.find(stripped, "z") >= 0).any():
         upper = series.where(given, None)
     else:
@@ -254,17 +295,28 @@ def parse_time_column(texts: pd.Series, *, source: str | None, field: str | None
         check = pd.to_datetime(upper, utc=not naive.any(), format="ISO8601", errors="coerce")
         wrong = given & check.isna().to_numpy()
         i = int(np.flatnonzero(wrong)[0]) if wrong.any() else 0
-        raise _fail(error_type, f"timestamp {str(stripped[i])!r} is not a valid date and time",
-                    "check the month, day, hour and minute; " + ISO_HINT, source, _line(i, line_offset), field) from None
+        raise _fail(
+            error_type,
+            f"timestamp {str(stripped[i])!r} is not a valid date and time",
+            "check the month, day, hour and minute; " + ISO_HINT,
+            source,
+            _line(i, line_offset),
+            field,
+        ) from None
     check_time_range(parsed, stripped, source=source, field=field, line_offset=line_offset, error_type=error_type)
     if naive.any():
         local = parsed.dt.tz_localize(time_zone, ambiguous="NaT", nonexistent="NaT")
         lost = (local.isna() & parsed.notna()).to_numpy()
         if lost.any():
             i = int(np.flatnonzero(lost)[0])
-            raise _fail(error_type, f"local time {str(stripped[i])!r} is ambiguous or does not exist in {time_zone}",
-                        "log in UTC or with an offset to avoid daylight-saving changes", source,
-                        _line(i, line_offset), field)
+            raise _fail(
+                error_type,
+                f"local time {str(stripped[i])!r} is ambiguous or does not exist in {time_zone}",
+                "log in UTC or with an offset to avoid daylight-saving changes",
+                source,
+                _line(i, line_offset),
+                field,
+            )
         parsed = local.dt.tz_convert("UTC")
     return pd.Series(pd.DatetimeIndex(parsed).as_unit("ns"), index=texts.index)
 
@@ -273,8 +325,17 @@ def parse_time_column(texts: pd.Series, *, source: str | None, field: str | None
 EPOCH_UNITS: dict[str, tuple[Literal["s", "ms"], float]] = {"epoch_s": ("s", 1.0), "epoch_ms": ("ms", 1e-3)}
 
 
-def epoch_times(values: np.ndarray, unit: str, *, guessed: bool, texts=None, source: str | None,
-                field: str | None, line_offset: int, error_type: type[AdvisorError]) -> pd.Series:
+def epoch_times(
+    values: np.ndarray,
+    unit: str,
+    *,
+    guessed: bool,
+    texts=None,
+    source: str | None,
+    field: str | None,
+    line_offset: int,
+    error_type: type[AdvisorError],
+) -> pd.Series:
     """Numeric epoch times (``unit`` ``epoch_s`` or ``epoch_ms``) → UTC ``datetime64[ns, UTC]``.
 
     Every value is range-checked first.  ``guessed`` says the unit was assumed (no
@@ -300,16 +361,23 @@ def epoch_times(values: np.ndarray, unit: str, *, guessed: bool, texts=None, sou
     return pd.Series(pd.DatetimeIndex(times).as_unit("ns"))
 
 
-def parse_time_text(text: str, *, field: str | None = None, source: str | None = None, line: int | None = None,
-                    error_type: type[AdvisorError] = UsageError) -> pd.Timestamp:
+def parse_time_text(
+    text: str,
+    *,
+    field: str | None = None,
+    source: str | None = None,
+    line: int | None = None,
+    error_type: type[AdvisorError] = UsageError,
+) -> pd.Timestamp:
     """One ISO 8601 time with a UTC offset (``--at``, a registry row) → UTC ``Timestamp`` [ns].
 
     Raises ``error_type`` (``UsageError`` by default: exit 2) with an accurate one-line message
     for a malformed, incomplete, offset-less or out-of-range time.
     """
     series = pd.Series([str(text)], dtype=object)
-    times = parse_time_column(series, source=source, field=field, line_offset=line, error_type=error_type,
-                              require_offset=True)
+    times = parse_time_column(
+        series, source=source, field=field, line_offset=line, error_type=error_type, require_offset=True
+    )
     return times.iloc[0]
 
 

@@ -36,8 +36,9 @@ _SPECIAL_FLOAT = re.compile(r"^[-+]?\.(?:inf|Inf|INF|nan|NaN|NAN)$")
 KeyPath = tuple
 
 
-def _node_lines(root: yaml.Node, error_type: type[AdvisorError], source: str,
-                duplicate_keys: bool = True) -> dict[KeyPath, int]:
+def _node_lines(
+    root: yaml.Node, error_type: type[AdvisorError], source: str, duplicate_keys: bool = True
+) -> dict[KeyPath, int]:
     """Map every key path in a composed YAML tree to its 1-based line.
 
     Refuses aliases, numbers out of range and (with ``duplicate_keys``) a key given twice in one
@@ -51,11 +52,18 @@ def _node_lines(root: yaml.Node, error_type: type[AdvisorError], source: str,
         node, path = stack.pop()
         count += 1
         if count > MAX_YAML_NODES:
-            raise error_type(f"more than {MAX_YAML_NODES} YAML nodes", source=source,
-                             hint="split the file or remove generated content")
+            raise error_type(
+                f"more than {MAX_YAML_NODES} YAML nodes",
+                source=source,
+                hint="split the file or remove generated content",
+            )
         if id(node) in seen:
-            raise error_type("YAML anchors and aliases are not supported", source=source,
-                             line=node.start_mark.line + 1, hint="write the values out in full")
+            raise error_type(
+                "YAML anchors and aliases are not supported",
+                source=source,
+                line=node.start_mark.line + 1,
+                hint="write the values out in full",
+            )
         seen.add(id(node))
         lines[path] = node.start_mark.line + 1
         if isinstance(node, yaml.MappingNode):
@@ -65,9 +73,13 @@ def _node_lines(root: yaml.Node, error_type: type[AdvisorError], source: str,
                 line = key_node.start_mark.line + 1
                 identity = (key_node.tag, key)
                 if duplicate_keys and identity in first_line:
-                    raise error_type(f"key {key!r} given twice (first at line {first_line[identity]})", source=source,
-                                     line=line, column=key_node.start_mark.column + 1,
-                                     hint="keep one; YAML would silently use the last")
+                    raise error_type(
+                        f"key {key!r} given twice (first at line {first_line[identity]})",
+                        source=source,
+                        line=line,
+                        column=key_node.start_mark.column + 1,
+                        hint="keep one; YAML would silently use the last",
+                    )
                 first_line.setdefault(identity, line)
                 lines[path + (key,)] = line
                 if isinstance(key_node, yaml.ScalarNode) and key_node.tag in (_INT_TAG, _FLOAT_TAG):
@@ -96,9 +108,13 @@ def _check_number(node: yaml.ScalarNode, error_type: type[AdvisorError], source:
             too_large = False  # sexagesimal, hex, ...: PyYAML builds it; the schema checks it
     if too_large:
         shown = text if len(text) <= 24 else f"{text[:12]}…{text[-6:]} ({digits} digits)"
-        raise error_type(f"number {shown} is too large", source=source, line=node.start_mark.line + 1,
-                         column=node.start_mark.column + 1,
-                         hint="write a plain value below 1e15 in magnitude")
+        raise error_type(
+            f"number {shown} is too large",
+            source=source,
+            line=node.start_mark.line + 1,
+            column=node.start_mark.column + 1,
+            hint="write a plain value below 1e15 in magnitude",
+        )
 
 
 def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], duplicate_keys: bool = True):
@@ -112,8 +128,7 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
     for number, raw in enumerate(text.splitlines(), start=1):
         stripped = raw.lstrip(" ")
         if stripped.startswith("\t"):
-            raise error_type("tab used for indentation", source=source, line=number,
-                             hint="indent with spaces")
+            raise error_type("tab used for indentation", source=source, line=number, hint="indent with spaces")
     loader = _SafeLoader(text)
     try:
         root = loader.get_single_node()
@@ -122,17 +137,28 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
         line = mark.line + 1 if mark else None
         column = mark.column + 1 if mark else None
         what = exc.problem or "invalid YAML"
-        raise error_type(f"YAML syntax error: {what}", source=source, line=line, column=column,
-                         hint="check indentation, colons and quotes") from None
+        raise error_type(
+            f"YAML syntax error: {what}",
+            source=source,
+            line=line,
+            column=column,
+            hint="check indentation, colons and quotes",
+        ) from None
     except yaml.reader.ReaderError as exc:
         line = text.count("\n", 0, exc.position) + 1 if isinstance(exc.position, int) else None
         what = f"control character U+{exc.character:04X}" if isinstance(exc.character, int) else "a character"
-        raise error_type(f"{what} is not allowed in YAML", source=source, line=line,
-                         hint="remove it; write special characters with escapes inside double quotes") from None
+        raise error_type(
+            f"{what} is not allowed in YAML",
+            source=source,
+            line=line,
+            hint="remove it; write special characters with escapes inside double quotes",
+        ) from None
     except yaml.YAMLError as exc:
         raise error_type(f"YAML syntax error: {exc}", source=source) from None
     except RecursionError:
-        raise error_type("YAML nested too deeply", source=source, hint="a site or rule file is a few levels deep") from None
+        raise error_type(
+            "YAML nested too deeply", source=source, hint="a site or rule file is a few levels deep"
+        ) from None
     if root is None:
         return None, {}
     lines = _node_lines(root, error_type, source, duplicate_keys)
@@ -140,9 +166,12 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
         data = loader.construct_document(root)
     except yaml.constructor.ConstructorError as exc:
         mark = exc.problem_mark
-        raise error_type(f"YAML tag not allowed: {exc.problem}", source=source,
-                         line=mark.line + 1 if mark else None,
-                         hint="remove the '!' tag; only plain values, lists and mappings are read") from None
+        raise error_type(
+            f"YAML tag not allowed: {exc.problem}",
+            source=source,
+            line=mark.line + 1 if mark else None,
+            hint="remove the '!' tag; only plain values, lists and mappings are read",
+        ) from None
     except yaml.YAMLError as exc:
         raise error_type(f"YAML error: {exc}", source=source) from None
     except (ValueError, TypeError, RecursionError) as exc:  # e.g. an unhashable key
@@ -153,8 +182,9 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
 _KIND_OF_ERROR = {"RulesError": "rules", "SiteError": "site"}
 
 
-def load_yaml(path: Path | str, error_type: type[AdvisorError], duplicate_keys: bool = True,
-              kind: str | FileKind | None = None):
+def load_yaml(
+    path: Path | str, error_type: type[AdvisorError], duplicate_keys: bool = True, kind: str | FileKind | None = None
+):
     """Read and parse a YAML file safely; return ``(data, lines)``.
 
     ``kind`` (default: from ``error_type``: rule file, site file, else YAML file) sets the size

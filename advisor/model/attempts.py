@@ -43,7 +43,7 @@ def weather_at(frame: pd.DataFrame, times_utc, site: Site) -> pd.DataFrame:
     out = rows[["time", *WEATHER_COLUMNS, "data_ok", "data_age_min"]].copy()
     source = rows["source_row"].to_numpy()
     sample_ns = pd.DatetimeIndex(observed["time"]).as_unit("ns").asi8 if len(observed) else np.zeros(1, np.int64)
-    nat = np.iinfo(np.int64).min                      # NaT in datetime64[ns]
+    nat = np.iinfo(np.int64).min  # NaT in datetime64[ns]
     picked = np.where(source >= 0, sample_ns[np.clip(source, 0, len(sample_ns) - 1)], nat)
     out["sample_time"] = pd.DatetimeIndex(picked.astype("datetime64[ns]")).tz_localize("UTC")
     return out
@@ -82,8 +82,10 @@ def not_covered(weather: pd.DataFrame, i: int, frame: pd.DataFrame, site: Site) 
         return f"the feed's latest sample at {when} is implausible or incomplete"
     missing = [c for c in REQUIRED_WEATHER if not np.isfinite(float(weather[c].iloc[i]))]
     if "air_temp_rate_c_per_h" in missing:
-        return (f"the feed has less than {TEMP_RATE_WINDOW_MIN / 2:g} min of samples before {when}, "
-                "too little for the temperature rate")
+        return (
+            f"the feed has less than {TEMP_RATE_WINDOW_MIN / 2:g} min of samples before {when}, "
+            "too little for the temperature rate"
+        )
     if missing:
         return f"the feed gives no {', '.join(missing)} at {when}"
     return None
@@ -94,15 +96,16 @@ class HistoryFeatures:
     """Features of every history row (same order) and where each row's weather came from."""
 
     features: pd.DataFrame
-    source: np.ndarray            # per row: "history", "feed" or "none" (SOURCES)
-    feed_source: str | None       # the feed that completed rows, if any
+    source: np.ndarray  # per row: "history", "feed" or "none" (SOURCES)
+    feed_source: str | None  # the feed that completed rows, if any
 
     def count(self, source: str) -> int:
         return int((self.source == source).sum())
 
 
-def _recorded_features(frame: pd.DataFrame, times: pd.DatetimeIndex, site: Site, registry: Registry,
-                       freq_ghz: float, source: str) -> pd.DataFrame:
+def _recorded_features(
+    frame: pd.DataFrame, times: pd.DatetimeIndex, site: Site, registry: Registry, freq_ghz: float, source: str
+) -> pd.DataFrame:
     """Features from the weather a history records at each attempt (rows without it get data_ok false)."""
     table = pd.DataFrame({"time": times.strftime("%Y-%m-%dT%H:%M:%SZ")})
     for name in CANONICAL_COLUMNS:
@@ -110,8 +113,9 @@ def _recorded_features(frame: pd.DataFrame, times: pd.DatetimeIndex, site: Site,
             table[name] = frame[name].to_numpy(dtype=float)
         elif name in REQUIRED_WEATHER:
             table[name] = np.nan
-    recorded = canonical_frame(table, FeedLayout(max_feed_age_min=site.feed.max_feed_age_min, max_gap_min=1e9),
-                               source=source)
+    recorded = canonical_frame(
+        table, FeedLayout(max_feed_age_min=site.feed.max_feed_age_min, max_gap_min=1e9), source=source
+    )
     features = compute_features(recorded.frame, times, site, registry, freq_ghz)
     for name in RECORDED_FEATURES:
         values = frame[name].to_numpy(dtype=float) if name in frame.columns else np.full(len(frame), np.nan)
@@ -122,15 +126,17 @@ def _recorded_features(frame: pd.DataFrame, times: pd.DatetimeIndex, site: Site,
         features["gust_factor"] = np.where(mean >= 0.5, gust / mean, np.nan)
     th = site.thresholds
     features["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (gust / 4.0) ** 2
-    features["pointing_beam_fraction"] = (features["wind_pointing_error_arcsec"].to_numpy()
-                                          / features["beam_fwhm_arcsec"].to_numpy())
+    features["pointing_beam_fraction"] = (
+        features["wind_pointing_error_arcsec"].to_numpy() / features["beam_fwhm_arcsec"].to_numpy()
+    )
     ok = features["data_ok"].to_numpy(dtype=bool) & own_weather(frame)
     features["data_ok"] = ok
     return features
 
 
-def history_features(history: History, site: Site, feed: Feed | None = None, registry: Registry | None = None,
-                     freq_ghz: float = 86.0) -> HistoryFeatures:
+def history_features(
+    history: History, site: Site, feed: Feed | None = None, registry: Registry | None = None, freq_ghz: float = 86.0
+) -> HistoryFeatures:
     """Features at each attempt (one row per history row, same order), as ``check`` computes them.
 
     Rows that carry their own weather use it; the others are computed from ``feed`` (its
@@ -143,10 +149,13 @@ def history_features(history: History, site: Site, feed: Feed | None = None, reg
     own = own_weather(frame)
     if not own.any() and feed is None:
         missing = next((c for c in REQUIRED_WEATHER if c not in frame.columns), REQUIRED_WEATHER[0])
-        raise HistoryError(f"no weather column {missing!r} and no --feed archive to compute it from",
-                           source=history.source, line=1,
-                           hint=f"add the columns {', '.join(REQUIRED_WEATHER)}, record attempts with 'advisor "
-                                "attempt add', or pass --feed ARCHIVE.csv")
+        raise HistoryError(
+            f"no weather column {missing!r} and no --feed archive to compute it from",
+            source=history.source,
+            line=1,
+            hint=f"add the columns {', '.join(REQUIRED_WEATHER)}, record attempts with 'advisor "
+            "attempt add', or pass --feed ARCHIVE.csv",
+        )
     features = _recorded_features(frame, times, site, registry, freq_ghz, history.source)
     source = np.where(own & features["data_ok"].to_numpy(dtype=bool), "history", "none").astype(object)
     if feed is not None and (~own).any():

@@ -45,7 +45,7 @@ EXTRAPOLATION_TOLERANCE_SD = 0.1
 def value_text(name: str, value: float) -> str:
     """``7.8 m/s``: a feature's value with its unit, as the screen formats it (never ``-0.0``)."""
     text = CATALOGUE[name].display_format.format(value)
-    if re.match(r"-0(\.0*)?(\D|$)", text):   # no "-0.0 °C" for a value that rounds to zero
+    if re.match(r"-0(\.0*)?(\D|$)", text):  # no "-0.0 °C" for a value that rounds to zero
         text = text[1:]
     return text
 
@@ -109,7 +109,7 @@ class Term:
         lo, hi = np.asarray(lo, dtype=float), np.asarray(hi, dtype=float)
         a, b = self.values(lo), self.values(hi)
         low, high = np.minimum(a, b), np.maximum(a, b)
-        if self.transform in ("square", "abs"):      # the minimum is at zero when the range spans it
+        if self.transform in ("square", "abs"):  # the minimum is at zero when the range spans it
             low = np.where((lo < 0) & (hi > 0), 0.0, low)
         return low, high
 
@@ -193,8 +193,7 @@ class ModelOdds(dict):
     ``extrapolated``: method → per-row mask (odds outside the training range of a term), and
     ``extrapolation``: method → per-row sentence saying which value lies outside (None inside)."""
 
-    def __init__(self, odds: dict, notes: dict, extrapolated: dict | None = None,
-                 extrapolation: dict | None = None):
+    def __init__(self, odds: dict, notes: dict, extrapolated: dict | None = None, extrapolation: dict | None = None):
         super().__init__(odds)
         self.notes = notes
         self.extrapolated = extrapolated or {}
@@ -227,10 +226,15 @@ class ExtrapolationNotes(Sequence):
                 continue
             seen.add(feature)
             lo, hi = self.model.feature_min[k], self.model.feature_max[k]
-            parts.append(f"{feature_phrase(feature, self.values[i, k])} is outside the range it was trained on "
-                         f"({value_text(feature, lo)} .. {value_text(feature, hi)})")
-        return (f"{METHOD_LABELS[self.method]}: the site model's odds are extrapolated: " + "; ".join(parts)
-                + ". Nothing like this is in the site's record: treat the odds with caution.")
+            parts.append(
+                f"{feature_phrase(feature, self.values[i, k])} is outside the range it was trained on "
+                f"({value_text(feature, lo)} .. {value_text(feature, hi)})"
+            )
+        return (
+            f"{METHOD_LABELS[self.method]}: the site model's odds are extrapolated: "
+            + "; ".join(parts)
+            + ". Nothing like this is in the site's record: treat the odds with caution."
+        )
 
 
 class OddsNotes(Sequence):
@@ -240,10 +244,9 @@ class OddsNotes(Sequence):
     so a year of minutes costs no Python loop.
     """
 
-    def __init__(self, method: str, p: np.ndarray, features: list[str], values: np.ndarray,
-                 pushes: np.ndarray):
+    def __init__(self, method: str, p: np.ndarray, features: list[str], values: np.ndarray, pushes: np.ndarray):
         self.method, self.p, self.feature_names = method, p, features
-        self.values, self.pushes = values, pushes              # (n, n_features) each
+        self.values, self.pushes = values, pushes  # (n, n_features) each
         # No odds although every input is there: the model's arithmetic overflowed.
         self.failed = ~np.isfinite(p) & np.isfinite(values).all(axis=1)
         with np.errstate(all="ignore"):
@@ -265,20 +268,30 @@ class OddsNotes(Sequence):
     def _text(self, i: int) -> str:
         label = METHOD_LABELS[self.method]
         if self.failed[i]:
-            return (f"{label}: the site model's arithmetic failed (overflow) for these inputs: rules only "
-                    "(the call rests on the rules and the error budget).")
+            return (
+                f"{label}: the site model's arithmetic failed (overflow) for these inputs: rules only "
+                "(the call rests on the rules and the error budget)."
+            )
         if not np.isfinite(self.p[i]):
-            missing = [self.feature_names[k] for k in range(len(self.feature_names)) if not np.isfinite(self.values[i, k])]
-            return (f"{label}: site model gives no odds ({', '.join(missing) or 'inputs'} not available); "
-                    "the call rests on rules and the error budget.")
+            missing = [
+                self.feature_names[k] for k in range(len(self.feature_names)) if not np.isfinite(self.values[i, k])
+            ]
+            return (
+                f"{label}: site model gives no odds ({', '.join(missing) or 'inputs'} not available); "
+                "the call rests on rules and the error budget."
+            )
         first, *rest = self.order[i]
         push = self.pushes[i, first]
         if abs(push) < 0.05:
-            return (f"{label}: site model odds {self.p[i]:.0%}, as for the average past attempt "
-                    "(no condition pushed them noticeably).")
+            return (
+                f"{label}: site model odds {self.p[i]:.0%}, as for the average past attempt "
+                "(no condition pushed them noticeably)."
+            )
         verb = "raised" if push > 0 else "lowered"
-        text = (f"{label}: {feature_phrase(self.feature_names[first], self.values[i, first])} {verb} the site "
-                f"model's odds most ({push:+.1f} log-odds vs. the average past attempt)")
+        text = (
+            f"{label}: {feature_phrase(self.feature_names[first], self.values[i, first])} {verb} the site "
+            f"model's odds most ({push:+.1f} log-odds vs. the average past attempt)"
+        )
         if rest and abs(self.pushes[i, rest[0]]) >= 0.2:
             k = rest[0]
             text += f", then {feature_phrase(self.feature_names[k], self.values[i, k])} ({self.pushes[i, k]:+.1f})"
@@ -303,23 +316,32 @@ class SiteModel:
             names = list(dict.fromkeys(t.feature for t in m.terms))
             with np.errstate(all="ignore"):  # an overflow shows as p = NaN, said in the notes
                 contrib = m.contributions(term_matrix(features, m.terms))
-                pushes = np.column_stack([contrib[:, np.array([t.feature == f for t in m.terms])].sum(axis=1)
-                                          for f in names])
+                pushes = np.column_stack(
+                    [contrib[:, np.array([t.feature == f for t in m.terms])].sum(axis=1) for f in names]
+                )
             values = np.column_stack([features[f].to_numpy(dtype=float) for f in names])
             outside = m.outside(features)
             term_values = np.column_stack([features[t.feature].to_numpy(dtype=float) for t in m.terms])
             odds[method] = p
             notes[method] = OddsNotes(method, p, names, values, pushes)
             extrapolated[method] = outside.any(axis=1) & np.isfinite(p)
-            extrapolation[method] = ExtrapolationNotes(method, m, term_values,
-                                                       outside & np.isfinite(p)[:, None])
+            extrapolation[method] = ExtrapolationNotes(method, m, term_values, outside & np.isfinite(p)[:, None])
         return ModelOdds(odds, notes, extrapolated, extrapolation)
 
 
 #: Names of the model file's reader and writer (:mod:`advisor.model.modelfile`), still importable
 #: from here for callers written before the file format had its own module.
-_MODEL_FILE_NAMES = ("FORMAT", "SCHEMA_VERSION", "READABLE_VERSIONS", "MAX_MODEL_BYTES", "RETRAIN_HINT",
-                     "load_model", "parse_model", "dumps_model", "model_to_dict")
+_MODEL_FILE_NAMES = (
+    "FORMAT",
+    "SCHEMA_VERSION",
+    "READABLE_VERSIONS",
+    "MAX_MODEL_BYTES",
+    "RETRAIN_HINT",
+    "load_model",
+    "parse_model",
+    "dumps_model",
+    "model_to_dict",
+)
 
 
 def __getattr__(name: str):

@@ -47,7 +47,7 @@ class LogisticFit:
     scale: np.ndarray
     coef: np.ndarray
     intercept: float
-    at_bound: np.ndarray      # bool per term: held at zero by its sign bound
+    at_bound: np.ndarray  # bool per term: held at zero by its sign bound
     signs: np.ndarray
 
     def logit(self, X: np.ndarray) -> np.ndarray:
@@ -82,7 +82,7 @@ def _gradient_hessian(theta: np.ndarray, Z1: np.ndarray, y: np.ndarray, c: float
     z = Z1 @ theta
     with np.errstate(over="ignore"):
         p = 1.0 / (1.0 + np.exp(-z))
-    penalty = np.append(np.ones(len(theta) - 1), 0.0)     # the intercept is not penalised
+    penalty = np.append(np.ones(len(theta) - 1), 0.0)  # the intercept is not penalised
     grad = penalty * theta + c * (Z1.T @ (p - y))
     hess = np.diag(penalty) + c * (Z1.T @ (Z1 * (p * (1.0 - p))[:, None]))
     return grad, hess
@@ -109,7 +109,7 @@ def _newton_on_free(theta, free, signs_full, Z1, y, c):
             a = -theta[k] / step[k]  # where theta[k] + a step[k] = 0
             if a < alpha_max:
                 alpha_max, blocking = max(a, 0.0), k
-        if blocking is not None and alpha_max <= 0.0:   # already on that bound and heading out
+        if blocking is not None and alpha_max <= 0.0:  # already on that bound and heading out
             theta[blocking] = 0.0
             return theta, blocking
         f0 = _objective(theta, Z1, y, c)
@@ -152,7 +152,7 @@ def fit_logistic(X: np.ndarray, y: np.ndarray, c: float = 10.0, signs=None) -> L
     base = np.clip(y.mean(), 1e-6, 1 - 1e-6)
     theta = np.zeros(d + 1)
     theta[-1] = np.log(base / (1 - base))
-    held = set(np.flatnonzero(signs_arr != 0).tolist())   # bounded coefficients start at zero
+    held = set(np.flatnonzero(signs_arr != 0).tolist())  # bounded coefficients start at zero
     for _ in range(MAX_ACTIVE_CHANGES):
         free = np.array([k for k in range(d + 1) if k not in held], dtype=int)
         theta, blocking = _newton_on_free(theta, free, signs_full, Z1, y, c)

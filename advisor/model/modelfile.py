@@ -32,14 +32,20 @@ RETRAIN_HINT = "retrain it with 'advisor train --history HISTORY.csv --out MODEL
 
 # --- export -------------------------------------------------------------------------------
 
+
 def model_to_dict(model: SiteModel) -> dict:
     """The JSON document of ``model`` (schema :data:`SCHEMA_VERSION`)."""
     methods = {}
     for method, m in model.methods.items():
         terms = []
         for t in m.terms:
-            entry: dict[str, object] = {"name": t.name, "feature": t.feature, "transform": t.transform,
-                                        "unit": t.unit, "direction": t.direction}
+            entry: dict[str, object] = {
+                "name": t.name,
+                "feature": t.feature,
+                "transform": t.transform,
+                "unit": t.unit,
+                "direction": t.direction,
+            }
             if t.transform == "shortfall" and t.knot is not None:
                 entry["knot"] = float(t.knot)
             terms.append(entry)
@@ -72,6 +78,7 @@ def dumps_model(model: SiteModel) -> str:
 
 # --- strict reading -----------------------------------------------------------------------
 
+
 def load_model(path: Path | str) -> SiteModel:
     """Read and validate a model file; every problem is a :class:`ModelError`.
 
@@ -90,8 +97,7 @@ def load_model(path: Path | str) -> SiteModel:
     raw = read_bytes_bounded(path, ModelError, kind, empty_ok=True) or b""
     problem = sniff_encoding_problem(raw[:4096])
     if problem == "binary" or (problem is None and b"\x00" in raw):
-        raise ModelError("not UTF-8 text (binary content)", source=source,
-                         hint="a model file is JSON; " + RETRAIN_HINT)
+        raise ModelError("not UTF-8 text (binary content)", source=source, hint="a model file is JSON; " + RETRAIN_HINT)
     text = decode_text(raw, ModelError, "model file", source, expected="a JSON model file")
     return parse_model(text, source)
 
@@ -141,16 +147,19 @@ def parse_model(text: str, source: str = "<model>") -> SiteModel:
         raise ModelError("model file is empty", source=source, hint=RETRAIN_HINT)
     depth = _json_depth(text)
     if depth > MAX_JSON_DEPTH:
-        raise ModelError(f"JSON nested {depth} levels deep; a model file is at most {MAX_JSON_DEPTH}", source=source,
-                         hint="the file is damaged or not a model; " + RETRAIN_HINT)
+        raise ModelError(
+            f"JSON nested {depth} levels deep; a model file is at most {MAX_JSON_DEPTH}",
+            source=source,
+            hint="the file is damaged or not a model; " + RETRAIN_HINT,
+        )
     try:
-        doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_reject_constant,
-                         parse_int=_bounded_int)
+        doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_reject_constant, parse_int=_bounded_int)
     except json.JSONDecodeError as exc:
         at_end = exc.pos >= len(text.rstrip()) or exc.msg.startswith("Unterminated string")
         what = "truncated JSON" if at_end else f"invalid JSON: {exc.msg}"
-        raise ModelError(what, source=source, line=exc.lineno, column=exc.colno,
-                         hint="the file is damaged; " + RETRAIN_HINT) from None
+        raise ModelError(
+            what, source=source, line=exc.lineno, column=exc.colno, hint="the file is damaged; " + RETRAIN_HINT
+        ) from None
     except (ValueError, RecursionError) as exc:
         raise ModelError(f"invalid JSON: {exc}", source=source, hint=RETRAIN_HINT) from None
     return _Validator(source).model(doc)
@@ -206,9 +215,12 @@ class _Validator:
         if isinstance(version, bool) or not isinstance(version, int):
             raise self.fail("schema_version", f"expected an integer, got {version!r}")
         if version not in READABLE_VERSIONS:
-            raise self.fail("schema_version", f"schema version {version} is not supported (this advisor reads "
-                            f"versions {', '.join(map(str, READABLE_VERSIONS))})",
-                            hint="use the advisor release that wrote it, or " + RETRAIN_HINT)
+            raise self.fail(
+                "schema_version",
+                f"schema version {version} is not supported (this advisor reads "
+                f"versions {', '.join(map(str, READABLE_VERSIONS))})",
+                hint="use the advisor release that wrote it, or " + RETRAIN_HINT,
+            )
         self.version = version
         self.mapping(doc, "", {"format", "schema_version", "features", "methods"}, {"training"})
         features = self.features(doc["features"])
@@ -237,11 +249,17 @@ class _Validator:
             name, unit = self.text(entry["name"], where + ".name"), self.text(entry["unit"], where + ".unit")
             spec = CATALOGUE.get(name)
             if spec is None:
-                raise self.fail(where + ".name", f"unknown feature {name!r}: this advisor computes no such feature",
-                                hint="the model was trained for other features; " + RETRAIN_HINT)
+                raise self.fail(
+                    where + ".name",
+                    f"unknown feature {name!r}: this advisor computes no such feature",
+                    hint="the model was trained for other features; " + RETRAIN_HINT,
+                )
             if unit != spec.unit:
-                raise self.fail(where + ".unit", f"feature {name} is in {unit!r} in the model but in {spec.unit!r} "
-                                "in this advisor", hint="the model does not match these features; " + RETRAIN_HINT)
+                raise self.fail(
+                    where + ".unit",
+                    f"feature {name} is in {unit!r} in the model but in {spec.unit!r} in this advisor",
+                    hint="the model does not match these features; " + RETRAIN_HINT,
+                )
             if name in dict(out):
                 raise self.fail(where + ".name", f"feature {name} is listed twice")
             out.append((name, unit))
@@ -269,8 +287,10 @@ class _Validator:
         intercept = self.number(logistic["intercept"], where + ".logistic.intercept")
         for k, (term, w) in enumerate(zip(terms, coef)):
             if term.sign * w < 0:
-                raise self.fail(f"{where}.logistic.coef[{k}]", f"coefficient {w:+g} of {term.name} contradicts its "
-                                f"declared direction ({term.direction})")
+                raise self.fail(
+                    f"{where}.logistic.coef[{k}]",
+                    f"coefficient {w:+g} of {term.name} contradicts its declared direction ({term.direction})",
+                )
         metrics = body.get("metrics", {})
         if not isinstance(metrics, dict):
             raise self.fail(where + ".metrics", "expected an object")
@@ -287,8 +307,9 @@ class _Validator:
         """``n`` finite numbers or nulls (no bound: ``missing``)."""
         if not isinstance(value, list) or len(value) != n:
             raise self.fail(where, f"expected a list of {n} numbers or nulls (one per term)")
-        return np.array([missing if v is None else self.number(v, f"{where}[{k}]") for k, v in enumerate(value)],
-                        dtype=float)
+        return np.array(
+            [missing if v is None else self.number(v, f"{where}[{k}]") for k, v in enumerate(value)], dtype=float
+        )
 
     def term(self, entry, where: str, features: dict) -> Term:
         if self.version >= 2:
@@ -300,8 +321,9 @@ class _Validator:
             raise self.fail(where + ".feature", f"feature {feature!r} is not in the model's feature list")
         transform = self.text(entry["transform"], where + ".transform")
         if transform not in TRANSFORMS:
-            raise self.fail(where + ".transform", f"unknown transform {transform!r}",
-                            hint=f"one of {', '.join(TRANSFORMS)}")
+            raise self.fail(
+                where + ".transform", f"unknown transform {transform!r}", hint=f"one of {', '.join(TRANSFORMS)}"
+            )
         if features[feature] == "flag" and transform != "identity":
             raise self.fail(where + ".transform", f"flag {feature} can only enter as itself (identity)")
         knot = None
@@ -315,11 +337,14 @@ class _Validator:
         if self.version >= 2:
             direction = self.text(entry["direction"], where + ".direction")
             if direction not in DIRECTIONS:
-                raise self.fail(where + ".direction", f"unknown direction {direction!r}",
-                                hint=f"one of {', '.join(DIRECTIONS)}")
+                raise self.fail(
+                    where + ".direction", f"unknown direction {direction!r}", hint=f"one of {', '.join(DIRECTIONS)}"
+                )
         term = Term(feature, transform, knot, direction)
         if entry["name"] != term.name:
-            raise self.fail(where + ".name", f"term name {entry['name']!r} does not match its definition ({term.name!r})")
+            raise self.fail(
+                where + ".name", f"term name {entry['name']!r} does not match its definition ({term.name!r})"
+            )
         if entry["unit"] != term.unit:
             raise self.fail(where + ".unit", f"term unit {entry['unit']!r} does not match {term.unit!r}")
         return term

@@ -58,8 +58,11 @@ RELIABILITY_EDGES = (0.0, 0.2, 0.4, 0.6, 0.8, 1.0)
 #: structure follows the rate of air-temperature change (|dT/dt|).  None of them can make a
 #: usable surface map likelier, so each is declared ``lowers``.
 DEFAULT_TERMS: dict[str, tuple[Term, ...]] = {
-    method: (Term("wind_gust_ms", "square", None, "lowers"), Term("dew_point_spread_c", "shortfall", 3.0, "lowers"),
-             Term("air_temp_rate_c_per_h", "abs", None, "lowers"))
+    method: (
+        Term("wind_gust_ms", "square", None, "lowers"),
+        Term("dew_point_spread_c", "shortfall", 3.0, "lowers"),
+        Term("air_temp_rate_c_per_h", "abs", None, "lowers"),
+    )
     for method in METHODS
 }
 
@@ -68,8 +71,10 @@ def site_terms(site: Site) -> dict[str, tuple[Term, ...]]:
     """The terms the site asks for (``model.terms``), per method; :data:`DEFAULT_TERMS` without them."""
     if not site.model_terms:
         return DEFAULT_TERMS
-    return {m: tuple(Term(t.feature, t.transform, t.knot, t.direction) for t in site.model_terms if m in t.methods)
-            for m in METHODS}
+    return {
+        m: tuple(Term(t.feature, t.transform, t.knot, t.direction) for t in site.model_terms if m in t.methods)
+        for m in METHODS
+    }
 
 
 @dataclass(frozen=True)
@@ -77,12 +82,16 @@ class DroppedTerm:
     """A declared term the bounded fit held at zero, and why."""
 
     term: Term
-    unconstrained_per_unit: float   # log-odds per unit of the term without the bound
+    unconstrained_per_unit: float  # log-odds per unit of the term without the bound
     reason: str
 
     def as_dict(self) -> dict:
-        return {"term": self.term.name, "direction": self.term.direction,
-                "unconstrained_log_odds_per_unit": round(self.unconstrained_per_unit, 6), "reason": self.reason}
+        return {
+            "term": self.term.name,
+            "direction": self.term.direction,
+            "unconstrained_log_odds_per_unit": round(self.unconstrained_per_unit, 6),
+            "reason": self.reason,
+        }
 
 
 @dataclass(frozen=True)
@@ -91,13 +100,13 @@ class MethodFit:
 
     method: str
     model: MethodModel
-    terms: tuple[Term, ...]           # the terms kept
-    X: np.ndarray                     # kept terms at the training rows
+    terms: tuple[Term, ...]  # the terms kept
+    X: np.ndarray  # kept terms at the training rows
     y: np.ndarray
-    cv_p: np.ndarray                  # held-out odds of the bounded procedure
+    cv_p: np.ndarray  # held-out odds of the bounded procedure
     metrics: dict
-    declared: tuple[Term, ...]        # every term asked for
-    unconstrained: LogisticFit        # the same fit without the direction bounds (for comparison)
+    declared: tuple[Term, ...]  # every term asked for
+    unconstrained: LogisticFit  # the same fit without the direction bounds (for comparison)
     dropped: tuple[DroppedTerm, ...]
 
     def predict_terms(self, X: np.ndarray) -> np.ndarray:
@@ -111,7 +120,7 @@ class MethodFit:
 class TrainingResult:
     model: SiteModel
     fits: dict[str, MethodFit]
-    n_dropped: int                    # attempts left out (no usable weather)
+    n_dropped: int  # attempts left out (no usable weather)
 
 
 def reliability_table(p: np.ndarray, y: np.ndarray, edges=RELIABILITY_EDGES) -> list[dict]:
@@ -121,9 +130,15 @@ def reliability_table(p: np.ndarray, y: np.ndarray, edges=RELIABILITY_EDGES) -> 
     for k in range(len(edges) - 1):
         sel = idx == k
         n = int(sel.sum())
-        rows.append({"p_from": edges[k], "p_to": edges[k + 1], "attempts": n,
-                     "mean_predicted": round(float(p[sel].mean()), 4) if n else None,
-                     "observed_usable": round(float(y[sel].mean()), 4) if n else None})
+        rows.append(
+            {
+                "p_from": edges[k],
+                "p_to": edges[k + 1],
+                "attempts": n,
+                "mean_predicted": round(float(p[sel].mean()), 4) if n else None,
+                "observed_usable": round(float(y[sel].mean()), 4) if n else None,
+            }
+        )
     return rows
 
 
@@ -145,15 +160,26 @@ def _drop_reason(term: Term, free_per_unit: float) -> str:
     allowed = "lower" if term.sign < 0 else "raise"
     if term.sign * free_per_unit < 0:
         way = "raise" if free_per_unit > 0 else "lower"
-        return (f"without the bound the fit gives {free_per_unit:+.3g} log-odds per {_unit(term)}: it would {way} the "
-                f"odds, where physics says it can only {allowed} them; the record shows no effect the declared "
-                "way, so the term is left out")
-    return ("held at zero by its bound: with the other terms in the model, the record shows no effect the declared "
-            "way, so the term is left out")
+        return (
+            f"without the bound the fit gives {free_per_unit:+.3g} log-odds per {_unit(term)}: it would {way} the "
+            f"odds, where physics says it can only {allowed} them; the record shows no effect the declared "
+            "way, so the term is left out"
+        )
+    return (
+        "held at zero by its bound: with the other terms in the model, the record shows no effect the declared "
+        "way, so the term is left out"
+    )
 
 
-def fit_method(method: str, X: np.ndarray, y: np.ndarray, terms: tuple[Term, ...], feature_values: np.ndarray,
-               c: float = C_REGULARISATION, source: str = "<history>") -> MethodFit:
+def fit_method(
+    method: str,
+    X: np.ndarray,
+    y: np.ndarray,
+    terms: tuple[Term, ...],
+    feature_values: np.ndarray,
+    c: float = C_REGULARISATION,
+    source: str = "<history>",
+) -> MethodFit:
     """Fit and cross-validate one method; refuse when the data are too few to fit honestly.
 
     ``X`` holds the declared ``terms`` at the training rows and ``feature_values`` the feature of
@@ -165,29 +191,45 @@ def fit_method(method: str, X: np.ndarray, y: np.ndarray, terms: tuple[Term, ...
     n, n_ok = len(y), int(y.sum())
     n_bad = n - n_ok
     if n < MIN_ATTEMPTS:
-        raise HistoryError(f"{label}: only {n} attempts to learn from, need at least {MIN_ATTEMPTS} to fit honestly",
-                           source=source, hint=hint)
+        raise HistoryError(
+            f"{label}: only {n} attempts to learn from, need at least {MIN_ATTEMPTS} to fit honestly",
+            source=source,
+            hint=hint,
+        )
     if min(n_ok, n_bad) < MIN_PER_CLASS:
         which = "usable" if n_ok < n_bad else "unusable"
-        raise HistoryError(f"{label}: only {min(n_ok, n_bad)} {which} attempts out of {n}, need at least "
-                           f"{MIN_PER_CLASS} of each outcome to fit honestly", source=source, hint=hint)
+        raise HistoryError(
+            f"{label}: only {min(n_ok, n_bad)} {which} attempts out of {n}, need at least "
+            f"{MIN_PER_CLASS} of each outcome to fit honestly",
+            source=source,
+            hint=hint,
+        )
     signs = np.array([t.sign for t in terms])
     free = fit_logistic(X, y, c)
     bounded = fit_logistic(X, y, c, signs)
-    dropped = tuple(DroppedTerm(t, float(free.per_unit[k]), _drop_reason(t, float(free.per_unit[k])))
-                    for k, t in enumerate(terms) if bounded.at_bound[k])
+    dropped = tuple(
+        DroppedTerm(t, float(free.per_unit[k]), _drop_reason(t, float(free.per_unit[k])))
+        for k, t in enumerate(terms)
+        if bounded.at_bound[k]
+    )
     keep = ~bounded.at_bound
     if not keep.any():
-        raise HistoryError(f"{label}: every term was left out: the record shows none of them acting the declared way "
-                           f"({'; '.join(f'{d.term.describe()}: {d.reason}' for d in dropped)})", source=source,
-                           hint="check the history's outcomes, or the terms and directions under model.terms")
+        raise HistoryError(
+            f"{label}: every term was left out: the record shows none of them acting the declared way "
+            f"({'; '.join(f'{d.term.describe()}: {d.reason}' for d in dropped)})",
+            source=source,
+            hint="check the history's outcomes, or the terms and directions under model.terms",
+        )
     folds = min(CV_FOLDS, n_ok, n_bad)
     cv_p = _cross_validated(X, y, c, signs, folds)
     cv_free = _cross_validated(X, y, c, None, folds)
     base = n_ok / n
     kept_terms = tuple(t for t, k in zip(terms, keep) if k)
     metrics = {
-        "attempts": n, "usable": n_ok, "unusable": n_bad, "usable_fraction": round(base, 4),
+        "attempts": n,
+        "usable": n_ok,
+        "unusable": n_bad,
+        "usable_fraction": round(base, 4),
         "cv_folds": folds,
         "roc_auc": round(float(roc_auc_score(y, cv_p)), 4),
         "brier": round(float(brier_score_loss(y, cv_p)), 4),
@@ -199,14 +241,20 @@ def fit_method(method: str, X: np.ndarray, y: np.ndarray, terms: tuple[Term, ...
     }
     lo = np.nanmin(feature_values, axis=0)[keep]
     hi = np.nanmax(feature_values, axis=0)[keep]
-    model = MethodModel(kept_terms, bounded.mean[keep], bounded.scale[keep], bounded.coef[keep],
-                        bounded.intercept, metrics, lo, hi)
+    model = MethodModel(
+        kept_terms, bounded.mean[keep], bounded.scale[keep], bounded.coef[keep], bounded.intercept, metrics, lo, hi
+    )
     return MethodFit(method, model, kept_terms, X[:, keep], y, cv_p, metrics, terms, free, dropped)
 
 
-def train(history: History, features: pd.DataFrame, methods=tuple(METHOD_LABELS),
-          terms: dict[str, tuple[Term, ...]] | None = None, c: float = C_REGULARISATION,
-          metadata: dict | None = None) -> TrainingResult:
+def train(
+    history: History,
+    features: pd.DataFrame,
+    methods=tuple(METHOD_LABELS),
+    terms: dict[str, tuple[Term, ...]] | None = None,
+    c: float = C_REGULARISATION,
+    metadata: dict | None = None,
+) -> TrainingResult:
     """Fit every method in ``methods`` and assemble the :class:`~advisor.model.inference.SiteModel`."""
     terms = terms or DEFAULT_TERMS
     frame = history.frame
@@ -230,18 +278,31 @@ def train(history: History, features: pd.DataFrame, methods=tuple(METHOD_LABELS)
     times = frame.loc[of_methods, "time"]
     training = {
         "trained_by": f"advisor {__version__} (advisor train)",
-        "history": {"file": Path(history.source).name, "sha256": history.sha256, "rows": int(len(frame)),
-                    "first_utc": times.min().strftime("%Y-%m-%dT%H:%M:%SZ"),
-                    "last_utc": times.max().strftime("%Y-%m-%dT%H:%M:%SZ")},
+        "history": {
+            "file": Path(history.source).name,
+            "sha256": history.sha256,
+            "rows": int(len(frame)),
+            "first_utc": times.min().strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "last_utc": times.max().strftime("%Y-%m-%dT%H:%M:%SZ"),
+        },
         "rows_used": {m: int(f.metrics["attempts"]) for m, f in fits.items()},
         "rows_dropped": int(left_out.sum()),
-        "estimator": (f"standardised logistic regression, L2 (C={c:g}), each coefficient bounded by its term's "
-                      "declared direction (active-set Newton); one per method"),
+        "estimator": (
+            f"standardised logistic regression, L2 (C={c:g}), each coefficient bounded by its term's "
+            "declared direction (active-set Newton); one per method"
+        ),
         "cross_validation": f"stratified {CV_FOLDS}-fold, shuffled with seed {CV_SEED}; metrics on held-out folds",
-        "libraries": {"python": platform.python_version(), "numpy": np.__version__, "pandas": pd.__version__,
-                      "scikit-learn": sklearn.__version__},
+        "libraries": {
+            "python": platform.python_version(),
+            "numpy": np.__version__,
+            "pandas": pd.__version__,
+            "scikit-learn": sklearn.__version__,
+        },
     }
     training.update(metadata or {})
-    model = SiteModel(features=tuple((n, CATALOGUE[n].unit) for n in used),
-                      methods={m: f.model for m, f in fits.items()}, training=training)
+    model = SiteModel(
+        features=tuple((n, CATALOGUE[n].unit) for n in used),
+        methods={m: f.model for m, f in fits.items()},
+        training=training,
+    )
     return TrainingResult(model, fits, int(left_out.sum()))

@@ -51,8 +51,9 @@ def _finish(x):
 
 def _inputs(freq_ghz, pressure_hpa, temp_c, water_vapour_density_gm3):
     """Broadcast inputs; return f [GHz], dry pressure p [hPa], e [hPa], theta = 300/T, T [K]."""
-    f, p_tot, t_c, rho = np.broadcast_arrays(*(np.asarray(x, dtype=float) for x in
-                                               (freq_ghz, pressure_hpa, temp_c, water_vapour_density_gm3)))
+    f, p_tot, t_c, rho = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (freq_ghz, pressure_hpa, temp_c, water_vapour_density_gm3))
+    )
     t_k = t_c + 273.15
     e = rho * t_k / 216.7  # ITU-R P.676 / P.453: e = rho T / 216.7
     return f, p_tot - e, e, 300.0 / t_k, t_k
@@ -63,8 +64,8 @@ def _line_sum(terms, *arrays):
     flat = [a.ravel()[:, None] for a in arrays]
     out = np.empty(flat[0].shape[0])
     for start in range(0, out.size, _BLOCK):
-        block = [a[start:start + _BLOCK] for a in flat]
-        out[start:start + _BLOCK] = terms(*block).sum(axis=1)
+        block = [a[start : start + _BLOCK] for a in flat]
+        out[start : start + _BLOCK] = terms(*block).sum(axis=1)
     return out.reshape(arrays[0].shape)
 
 
@@ -73,10 +74,12 @@ def _in_range(f, bounds):
 
 
 #: Line constants as (1, n_lines) rows, scaled to the units of the formulas.
-_O_F0, _O_A1, _O_A2, _O_A3, _O_A4, _O_A5, _O_A6 = (c[None, :] for c in OXYGEN_LINES.T * np.array(
-    [1.0, 1e-7, 1.0, 1e-4, 1.0, 1e-4, 1e-4])[:, None])
-_W_F0, _W_B1, _W_B2, _W_B3, _W_B4, _W_B5, _W_B6 = (c[None, :] for c in WATER_LINES.T * np.array(
-    [1.0, 1e-1, 1.0, 1e-4, 1.0, 1.0, 1.0])[:, None])
+_O_F0, _O_A1, _O_A2, _O_A3, _O_A4, _O_A5, _O_A6 = (
+    c[None, :] for c in OXYGEN_LINES.T * np.array([1.0, 1e-7, 1.0, 1e-4, 1.0, 1e-4, 1e-4])[:, None]
+)
+_W_F0, _W_B1, _W_B2, _W_B3, _W_B4, _W_B5, _W_B6 = (
+    c[None, :] for c in WATER_LINES.T * np.array([1.0, 1e-1, 1.0, 1e-4, 1.0, 1.0, 1.0])[:, None]
+)
 #: Every oxygen line of P.676-12 has a4 = 0 (checked by the tests), so the pressure width goes
 #: as theta^0.8 for all of them and is computed once per row.
 _W_DOPPLER = 2.1316e-12 * _W_F0**2
@@ -153,8 +156,9 @@ def specific_attenuation_oxygen_db_km(freq_ghz, pressure_hpa, temp_c, water_vapo
     theta08 = theta**0.8
     lines = _line_sum(_oxygen_terms, f, p * theta**3, p * theta08 + 1.1 * e * theta, (p + e) * theta08, theta)
     d = 5.6e-4 * (p + e) * theta08
-    continuum = f * p * theta**2 * (6.14e-5 / (d * (1.0 + (f / d) ** 2))
-                                    + 1.4e-12 * p * theta**1.5 / (1.0 + 1.9e-5 * f**1.5))
+    continuum = (
+        f * p * theta**2 * (6.14e-5 / (d * (1.0 + (f / d) ** 2)) + 1.4e-12 * p * theta**1.5 / (1.0 + 1.9e-5 * f**1.5))
+    )
     gamma = 0.1820 * f * (lines + continuum)
     return _finish(np.where(_in_range(f, ANNEX1_RANGE_GHZ), gamma, np.nan))
 
@@ -232,8 +236,13 @@ def equivalent_height_oxygen_km(freq_ghz, pressure_hpa, temp_c, water_vapour_den
     t1 = 5.1040 / (1.0 + 0.066 * rp**-2.3) * np.exp(-(((f - 59.7) / (2.87 + 12.4 * np.exp(-7.9 * rp))) ** 2))
     c, fi = (x[None, :] for x in OXYGEN_HEIGHT_LINES.T)
     t2 = _line_sum(lambda f, rp: c * np.exp(2.12 * rp) / ((f - fi) ** 2 + 0.025 * np.exp(2.2 * rp)), f, rp)
-    t3 = (0.0114 * f / (1.0 + 0.14 * rp**-2.6) * (15.02 * f**2 - 1353.0 * f + 5.333e4)
-          / (f**3 - 151.3 * f**2 + 9629.0 * f - 6803.0))
+    t3 = (
+        0.0114
+        * f
+        / (1.0 + 0.14 * rp**-2.6)
+        * (15.02 * f**2 - 1353.0 * f + 5.333e4)
+        / (f**3 - 151.3 * f**2 + 9629.0 * f - 6803.0)
+    )
     a = 0.7832 + 0.00709 * (t_k - 273.15)
     h_o = 6.1 * a / (1.0 + 0.17 * rp**-1.1) * (1.0 + t1 + t2 + t3)
     h_o = np.where(f < 70.0, np.minimum(h_o, 10.7 * rp**0.3), h_o)
@@ -292,8 +301,9 @@ def _pwv_ratio(f, v):
     rho_ref = v / 2.38
     t_ref_c = 14.0 * np.log(0.22 * v / 2.38) + 3.0
     p_tot = 845.0 + rho_ref * (t_ref_c + 273.15) / 216.7  # so that the dry pressure is p_ref
-    return (np.asarray(specific_attenuation_water_db_km(f, p_tot, t_ref_c, rho_ref))
-            / np.asarray(specific_attenuation_water_db_km(20.6, p_tot, t_ref_c, rho_ref)))
+    return np.asarray(specific_attenuation_water_db_km(f, p_tot, t_ref_c, rho_ref)) / np.asarray(
+        specific_attenuation_water_db_km(20.6, p_tot, t_ref_c, rho_ref)
+    )
 
 
 def zenith_water_attenuation_from_pwv_db(freq_ghz, pwv_mm, site_height_km):
@@ -338,8 +348,12 @@ def zenith_water_attenuation_from_pwv_db(freq_ghz, pwv_mm, site_height_km):
         else:
             ratio = _pwv_ratio(f, v)
         b = 8.741e4 * np.exp(-0.587 * f) + 312.2 * f**-2.38 + 0.723
-    a = (0.2048 * np.exp(-(((f - 22.43) / 3.097) ** 2)) + 0.2326 * np.exp(-(((f - 183.5) / 4.096) ** 2))
-         + 0.2073 * np.exp(-(((f - 325.0) / 3.651) ** 2)) - 0.1113)
+    a = (
+        0.2048 * np.exp(-(((f - 22.43) / 3.097) ** 2))
+        + 0.2326 * np.exp(-(((f - 183.5) / 4.096) ** 2))
+        + 0.2073 * np.exp(-(((f - 325.0) / 3.651) ** 2))
+        - 0.1113
+    )
     attenuation = 0.0176 * v * ratio
     with np.errstate(over="ignore", invalid="ignore"):  # h^b is huge below 20 GHz, where it is unused
         attenuation = np.where(f > 20.0, attenuation * (a * np.clip(h, 0.0, 4.0) ** b + 1.0), attenuation)

@@ -1,12 +1,12 @@
 """Aperture: wavelength, Ruze surface efficiency, surface tolerance, beam width, error budgets.
 
-    wavelength_mm(freq_ghz)                       lambda = c / f
-    ruze_efficiency(surface_rms_um, freq_ghz)     exp(-(4 pi sigma / lambda)^2)
-    required_surface_rms_um(freq_ghz, 16.0)       lambda / 16
-    beam_fwhm_arcsec(freq_ghz, diameter_m)        1.2 lambda / D
-    pointing_efficiency(error_arcsec, fwhm_arcsec) exp(-4 ln2 (sigma / theta)^2)
-    gravity_residual_um(el_corr, el_used, a_um, b_um) rms of a (sin E2 - sin E1) + b (cos E2 - cos E1)
-    root_sum_square(a_um, b_um, ...)              sqrt(a^2 + b^2 + ...)
+wavelength_mm(freq_ghz)                       lambda = c / f
+ruze_efficiency(surface_rms_um, freq_ghz)     exp(-(4 pi sigma / lambda)^2)
+required_surface_rms_um(freq_ghz, 16.0)       lambda / 16
+beam_fwhm_arcsec(freq_ghz, diameter_m)        1.2 lambda / D
+pointing_efficiency(error_arcsec, fwhm_arcsec) exp(-4 ln2 (sigma / theta)^2)
+gravity_residual_um(el_corr, el_used, a_um, b_um) rms of a (sin E2 - sin E1) + b (cos E2 - cos E1)
+root_sum_square(a_um, b_um, ...)              sqrt(a^2 + b^2 + ...)
 """
 
 from __future__ import annotations
@@ -126,7 +126,9 @@ def beam_fwhm_arcsec(freq_ghz, diameter_m, taper_factor=1.2):
     (chapter on filled-aperture antennas).
     """
     lam_m = np.asarray(wavelength_mm(freq_ghz), dtype=float) * 1e-3
-    return _finish(np.asarray(taper_factor, dtype=float) * lam_m / np.asarray(diameter_m, dtype=float) * _ARCSEC_PER_RAD)
+    return _finish(
+        np.asarray(taper_factor, dtype=float) * lam_m / np.asarray(diameter_m, dtype=float) * _ARCSEC_PER_RAD
+    )
 
 
 def pointing_efficiency(pointing_error_arcsec, beam_fwhm_arcsec):
@@ -201,8 +203,9 @@ def gravity_residual_um(el_corrected_deg, el_used_deg, sin_coeff_um, cos_coeff_u
     e2 = np.radians(np.asarray(el_used_deg, dtype=float))
     d_sin = (np.sin(e2) - np.sin(e1))[..., None]
     d_cos = (np.cos(e2) - np.cos(e1))[..., None]
-    a, b = np.broadcast_arrays(np.atleast_1d(np.asarray(sin_coeff_um, dtype=float)),
-                               np.atleast_1d(np.asarray(cos_coeff_um, dtype=float)))
+    a, b = np.broadcast_arrays(
+        np.atleast_1d(np.asarray(sin_coeff_um, dtype=float)), np.atleast_1d(np.asarray(cos_coeff_um, dtype=float))
+    )
     if a.ndim != 1:
         raise ValueError(f"sin_coeff_um and cos_coeff_um must be scalars or 1-D (one per mode), got shape {a.shape}")
     per_mode = d_sin * a + d_cos * b

@@ -178,8 +178,7 @@ def standard_pressure_hpa(height_m):
     return _finish(np.where((h_km >= -0.5) & (h_km <= 11.0), p, np.nan))
 
 
-def zenith_opacity_nepers(freq_ghz, pressure_hpa, temp_c, water_vapour_density_gm3,
-                          pwv_mm=None, site_height_m=0.0):
+def zenith_opacity_nepers(freq_ghz, pressure_hpa, temp_c, water_vapour_density_gm3, pwv_mm=None, site_height_m=0.0):
     """Zenith opacity of oxygen and water vapour from surface weather.
 
     Parameters
@@ -316,8 +315,13 @@ def atmosphere_temperature_k(temp_c):
     return _finish(1.12 * (np.asarray(temp_c, dtype=float) + 273.15) - 50.0)
 
 
-def system_temperature_above_atmosphere_k(receiver_temp_k, zenith_opacity_nepers, elevation_deg,
-                                          atmosphere_temp_k, min_elevation_deg=DEFAULT_MIN_ELEVATION_DEG):
+def system_temperature_above_atmosphere_k(
+    receiver_temp_k,
+    zenith_opacity_nepers,
+    elevation_deg,
+    atmosphere_temp_k,
+    min_elevation_deg=DEFAULT_MIN_ELEVATION_DEG,
+):
     """System temperature referred to above the atmosphere, T_sys*.
 
     Parameters

@@ -86,12 +86,7 @@ def _gmst_deg_from_days(days_j2000: np.ndarray) -> np.ndarray:
     t = d / 36525.0
     # 360.98564736629 d = 360 d + 0.98564736629 d; keep the large part exact modulo 360
     whole = np.floor(d)
-    theta = (
-        280.46061837
-        + 360.0 * (d - whole)
-        + 0.98564736629 * d
-        + t * t * (0.000387933 - t / 38710000.0)
-    )
+    theta = 280.46061837 + 360.0 * (d - whole) + 0.98564736629 * d + t * t * (0.000387933 - t / 38710000.0)
     return np.mod(theta, 360.0)
 
 

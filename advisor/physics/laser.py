@@ -17,8 +17,12 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["STANDARD_AIR_REFRACTIVITY", "air_refractivity", "air_index_temperature_coefficient_per_k",
-           "reference_mismatch_um_per_c"]
+__all__ = [
+    "STANDARD_AIR_REFRACTIVITY",
+    "air_refractivity",
+    "air_index_temperature_coefficient_per_k",
+    "reference_mismatch_um_per_c",
+]
 
 #: Refractivity n − 1 of dry standard air (15 °C, 1013.25 hPa, 0.04 % CO2) for near-infrared
 #: light (about 1 µm) [1] (Ciddor 1996, Appl. Opt. 35, 1566; Edlén 1966, Metrologia 2, 71).

@@ -84,7 +84,7 @@ def _dry_on_grid(freq_ghz: float, state: np.ndarray) -> np.ndarray:
     cell = np.floor(scaled).astype(np.int64)
     weight = scaled - cell
     low = cell.min(axis=1)
-    span = cell.max(axis=1) - low + 2                       # nodes along each axis
+    span = cell.max(axis=1) - low + 2  # nodes along each axis
     if np.prod(span) <= max(_BOX_MAX_NODES, 8 * state.shape[1]):
         # the box of nodes around every row: no sort, one gather per corner
         axes = [(low[a] + np.arange(span[a])) * DRY_GRID_STEPS[a] for a in range(3)]
@@ -98,17 +98,20 @@ def _dry_on_grid(freq_ghz: float, state: np.ndarray) -> np.ndarray:
     else:  # scattered states: only the cells in use
         key = ((cell[0] + 2**20) << 42) | ((cell[1] + 2**20) << 21) | (cell[2] + 2**20)
         cells, inverse = np.unique(key, return_inverse=True)
-        index = np.stack([(cells >> 42) - 2**20, ((cells >> 21) & (2**21 - 1)) - 2**20,
-                          (cells & (2**21 - 1)) - 2**20])
-        nodes = (index[:, :, None] + _CORNERS.T[:, None, :]) * steps[:, :, None]     # (3, cells, 8)
+        index = np.stack([(cells >> 42) - 2**20, ((cells >> 21) & (2**21 - 1)) - 2**20, (cells & (2**21 - 1)) - 2**20])
+        nodes = (index[:, :, None] + _CORNERS.T[:, None, :]) * steps[:, :, None]  # (3, cells, 8)
         per_cell = np.asarray(dry_zenith_opacity_nepers(freq_ghz, nodes[0], nodes[1], nodes[2]))[inverse.ravel()]
 
         def corner(k):
             return per_cell[:, k]
+
     total = np.zeros(state.shape[1])
     for k, (i, j, m) in enumerate(_CORNERS):
-        w = ((weight[0] if i else 1.0 - weight[0]) * (weight[1] if j else 1.0 - weight[1])
-             * (weight[2] if m else 1.0 - weight[2]))
+        w = (
+            (weight[0] if i else 1.0 - weight[0])
+            * (weight[1] if j else 1.0 - weight[1])
+            * (weight[2] if m else 1.0 - weight[2])
+        )
         total += corner(k) * w
     return total
 
@@ -126,18 +129,25 @@ def _wet_on_grid(freq_ghz: float, pwv_mm: np.ndarray, site_height_km: float) -> 
         nodes, lower_at, upper_at = np.arange(low, high + 1), k - low, k - low + 1
     else:
         nodes, inverse = np.unique(np.concatenate([k, k + 1]), return_inverse=True)
-        lower_at, upper_at = inverse[:k.size], inverse[k.size:]
+        lower_at, upper_at = inverse[: k.size], inverse[k.size :]
     v_nodes = np.exp(nodes * WET_GRID_LOG_STEP)
-    per_mm = np.concatenate([np.asarray(zenith_water_attenuation_from_pwv_db(freq_ghz, v_nodes[i:i + _WET_CHUNK],
-                                                                            site_height_km))
-                             for i in range(0, v_nodes.size, _WET_CHUNK)]) / v_nodes
+    per_mm = (
+        np.concatenate(
+            [
+                np.asarray(zenith_water_attenuation_from_pwv_db(freq_ghz, v_nodes[i : i + _WET_CHUNK], site_height_km))
+                for i in range(0, v_nodes.size, _WET_CHUNK)
+            ]
+        )
+        / v_nodes
+    )
     w = x - k
     out[positive] = ((1.0 - w) * per_mm[lower_at] + w * per_mm[upper_at]) * pwv_mm[positive]
     return out
 
 
-def zenith_opacity_series_nepers(freq_ghz: float, pressure_hpa, temp_c, water_vapour_density_gm3, pwv_mm,
-                                 site_height_m=0.0):
+def zenith_opacity_series_nepers(
+    freq_ghz: float, pressure_hpa, temp_c, water_vapour_density_gm3, pwv_mm, site_height_m=0.0
+):
     """Zenith opacity of dry air and water vapour at one frequency for many surface states.
 
     Parameters
@@ -172,8 +182,9 @@ def zenith_opacity_series_nepers(freq_ghz: float, pressure_hpa, temp_c, water_va
     ITU-R Recommendation P.676-12 (08/2019), Attenuation by atmospheric gases and related
     effects, Annex 2, sections 2.1 and 2.3.
     """
-    p, t, rho, v = np.broadcast_arrays(*(np.atleast_1d(np.asarray(x, dtype=float))
-                                         for x in (pressure_hpa, temp_c, water_vapour_density_gm3, pwv_mm)))
+    p, t, rho, v = np.broadcast_arrays(
+        *(np.atleast_1d(np.asarray(x, dtype=float)) for x in (pressure_hpa, temp_c, water_vapour_density_gm3, pwv_mm))
+    )
     shape = p.shape
     p, t, rho, v = (x.ravel() for x in (p, t, rho, v))
     out = np.full(p.shape, np.nan)

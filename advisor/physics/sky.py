@@ -17,7 +17,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from advisor.physics.ephemeris import _altaz_from_hour_angle, _days_since_j2000, _finish, _gmst_deg_from_days, _sun_equatorial_fast
+from advisor.physics.ephemeris import (
+    _altaz_from_hour_angle,
+    _days_since_j2000,
+    _finish,
+    _gmst_deg_from_days,
+    _sun_equatorial_fast,
+)
 
 __all__ = [
     "SIDEREAL_RATE_DEG_PER_H",
@@ -242,12 +248,14 @@ def minutes_above_elevation(
     ----------
     Meeus, J. (1998). *Astronomical Algorithms*, 2nd ed., Willmann-Bell, ch. 12, 13, 15, 21.
     """
-    return elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg,
-                                       min_elevation_deg, horizon_min)[1]
+    return elevation_and_minutes_above(
+        times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, min_elevation_deg, horizon_min
+    )[1]
 
 
-def elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg,
-                                min_elevation_deg, horizon_min=1440.0):
+def elevation_and_minutes_above(
+    times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, min_elevation_deg, horizon_min=1440.0
+):
     """Elevation now [deg] and minutes above ``min_elevation_deg`` [min], both (n, m), in one pass.
 
     Same arguments and conventions as :func:`minutes_above_elevation`.  Everything that depends
@@ -258,10 +266,10 @@ def elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longit
     ra = np.atleast_1d(np.asarray(ra_deg, dtype=float)).ravel()[None, :]
     dec = np.atleast_1d(np.asarray(dec_deg, dtype=float)).ravel()[None, :]
     whole_days, inverse = np.unique(np.floor(days), return_inverse=True)
-    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)          # (d, m)
+    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)  # (d, m)
     phi = np.radians(float(latitude_deg))
     d = np.radians(dec_day)
-    a_day = np.sin(phi) * np.sin(d)                                             # sin(e) = a + b cos(H)
+    a_day = np.sin(phi) * np.sin(d)  # sin(e) = a + b cos(H)
     b_day = np.cos(phi) * np.cos(d)
     limit = np.atleast_1d(np.asarray(min_elevation_deg, dtype=float)).ravel()[None, :]
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -273,17 +281,18 @@ def elevation_and_minutes_above(times_utc, ra_deg, dec_deg, latitude_deg, longit
     # below the 0.05 deg the tests hold us to); inputs reduced mod 360 in float64 first.
     # The (n, m) block runs in float32 (about ten times faster here; resolution ~1e-5 deg, far
     # below the 0.05 deg the tests hold us to); inputs are reduced mod 360 in float64 first.
-    if np.all(inverse[1:] >= inverse[:-1]):           # times in order: repeat each day's row
+    if np.all(inverse[1:] >= inverse[:-1]):  # times in order: repeat each day's row
         counts = np.bincount(inverse, minlength=len(whole_days))
 
         def per_time(day_values):
             return np.repeat(day_values.astype(np.float32), counts, axis=0)
     else:
+
         def per_time(day_values):
             return day_values.astype(np.float32)[inverse]
 
     f32 = np.float32
-    lst = np.mod(_gmst_deg_from_days(days) + float(longitude_deg), 360.0).astype(f32)   # (n,)
+    lst = np.mod(_gmst_deg_from_days(days) + float(longitude_deg), 360.0).astype(f32)  # (n,)
     hour_angle = lst[:, None] - per_time(np.mod(ra_day, 360.0))
     hour_angle += f32(180.0)
     np.mod(hour_angle, f32(360.0), out=hour_angle)
@@ -369,7 +378,7 @@ def sun_separation_deg(times_utc, ra_deg, dec_deg):
     dec = np.atleast_1d(np.asarray(dec_deg, dtype=float)).ravel()[None, :]
     finite = np.isfinite(days)
     whole_days, inverse = np.unique(np.floor(np.where(finite, days, 0.0)), return_inverse=True)
-    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)          # (d, m)
+    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)  # (d, m)
     sun_ra, sun_dec, _r, _eqeq = _sun_equatorial_fast(days)
     inverse = inverse.ravel()
     d_sun, d_src = np.radians(sun_dec)[:, None], np.radians(dec_day)

@@ -123,7 +123,6 @@ def solar_position(
     return _finish(elevation), _finish(azimuth)
 
 
-
 # --------------------------------------------------------------------------------------------
 # sunrise, sunset and day/night state
 # --------------------------------------------------------------------------------------------
@@ -152,8 +151,7 @@ class _EventTable:
     def __init__(self, first_day, last_day, latitude_deg, longitude_deg):
         lat, lon = float(latitude_deg), float(longitude_deg)
         # half-day k: mean upper transit (k even) or lower transit (k odd) near k/2 - lon/360
-        k = np.arange(np.floor(2.0 * (first_day + lon / 360.0)) - 4.0,
-                      np.ceil(2.0 * (last_day + lon / 360.0)) + 5.0)
+        k = np.arange(np.floor(2.0 * (first_day + lon / 360.0)) - 4.0, np.ceil(2.0 * (last_day + lon / 360.0)) + 5.0)
         upper = np.mod(k, 2.0) == 0.0
         target_deg = np.where(upper, 0.0, 180.0)
         t = k / 2.0 - lon / 360.0
@@ -341,7 +339,6 @@ def sun_state(times_utc, latitude_deg, longitude_deg):
         above = table.above
         all_day = above[start] & above[start + 1] & above[start + 2]
         no_day = ~(above[start] | above[start + 1] | above[start + 2])
-        out[rows] = np.where(all_day, SUN_POLAR_DAY, np.where(no_day, SUN_POLAR_NIGHT,
-                                                              np.where(up, SUN_UP, SUN_DOWN)))
+        out[rows] = np.where(all_day, SUN_POLAR_DAY, np.where(no_day, SUN_POLAR_NIGHT, np.where(up, SUN_UP, SUN_DOWN)))
     out = out.reshape(shape)
     return int(out) if out.ndim == 0 else out

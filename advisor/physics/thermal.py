@@ -157,8 +157,8 @@ def _lag_block(t: np.ndarray, u: np.ndarray, tau: float, y0: float) -> np.ndarra
     with np.errstate(invalid="ignore", divide="ignore"):
         slope = np.where(dt > 0, np.diff(u) / np.where(dt > 0, dt, 1.0), 0.0)
     b = u[1:] - a * u[:-1] - slope * tau * (1.0 - a)
-    decay_from_start = (t[1:] - t[0]) / tau              # -ln P_k
-    grow = np.exp(decay_from_start)                      # 1 / P_k
+    decay_from_start = (t[1:] - t[0]) / tau  # -ln P_k
+    grow = np.exp(decay_from_start)  # 1 / P_k
     y = np.empty_like(u)
     y[0] = y0
     y[1:] = np.exp(-decay_from_start) * (y0 + np.cumsum(b * grow))

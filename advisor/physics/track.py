@@ -30,15 +30,16 @@ __all__ = ["SourceTrack", "source_track", "sun_separation_over_deg"]
 class SourceTrack:
     """Elevations of each source over a measurement starting at each time; arrays (n, m) [deg], [min]."""
 
-    elevation_deg: np.ndarray          # at the start
-    minutes_above: np.ndarray          # from the start until it drops below the minimum elevation
-    mid_elevation_deg: np.ndarray      # halfway through
-    lowest_elevation_deg: np.ndarray   # lowest over [t, t + duration]
+    elevation_deg: np.ndarray  # at the start
+    minutes_above: np.ndarray  # from the start until it drops below the minimum elevation
+    mid_elevation_deg: np.ndarray  # halfway through
+    lowest_elevation_deg: np.ndarray  # lowest over [t, t + duration]
     highest_elevation_deg: np.ndarray  # highest over [t, t + duration]
 
 
-def source_track(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, duration_min, min_elevation_deg,
-                 horizon_min=1440.0) -> SourceTrack:
+def source_track(
+    times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, duration_min, min_elevation_deg, horizon_min=1440.0
+) -> SourceTrack:
     """Where each source is over a measurement of ``duration_min`` starting at each time.
 
     Parameters
@@ -85,10 +86,10 @@ def source_track(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, durati
     dec = np.atleast_1d(np.asarray(dec_deg, dtype=float)).ravel()[None, :]
     whole_days, inverse = np.unique(np.floor(days), return_inverse=True)
     inverse = inverse.ravel()
-    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)          # (d, m)
+    ra_day, dec_day = _precess_days(ra, dec, whole_days[:, None] + 0.5)  # (d, m)
     phi = np.radians(float(latitude_deg))
     d = np.radians(dec_day)
-    a_day = np.sin(phi) * np.sin(d)                                             # sin E = a + b cos H
+    a_day = np.sin(phi) * np.sin(d)  # sin E = a + b cos H
     b_day = np.cos(phi) * np.cos(d)
     with np.errstate(divide="ignore", invalid="ignore"):
         cos_h0 = (np.sin(np.radians(float(min_elevation_deg))) - a_day) / b_day
@@ -97,12 +98,13 @@ def source_track(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, durati
     lower_day = np.degrees(np.arcsin(np.clip(a_day - b_day, -1.0, 1.0)))
 
     f32 = np.float32
-    if np.all(inverse[1:] >= inverse[:-1]):            # times in order: repeat each day's row
+    if np.all(inverse[1:] >= inverse[:-1]):  # times in order: repeat each day's row
         counts = np.bincount(inverse, minlength=len(whole_days))
 
         def per_time(day_values):
             return np.repeat(np.asarray(day_values).astype(f32), counts, axis=0)
     else:
+
         def per_time(day_values):
             return np.asarray(day_values).astype(f32)[inverse]
 
@@ -110,9 +112,9 @@ def source_track(times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, durati
     hour_angle = lst[:, None] - per_time(np.mod(ra_day, 360.0))
     hour_angle += f32(180.0)
     np.mod(hour_angle, f32(360.0), out=hour_angle)
-    hour_angle -= f32(180.0)                                                    # -180..180
+    hour_angle -= f32(180.0)  # -180..180
     a, b = per_time(a_day), per_time(b_day)
-    step = f32(duration / 60.0 * SIDEREAL_RATE_DEG_PER_H)                       # hour angle swept [deg]
+    step = f32(duration / 60.0 * SIDEREAL_RATE_DEG_PER_H)  # hour angle swept [deg]
 
     def elevation_at(offset_deg):
         e = hour_angle + f32(offset_deg)
@@ -187,7 +189,7 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
     first = int(np.floor(h.min()))
     nodes = first + np.arange(int(np.ceil(h.max() + duration / 60.0)) - first + 2)
     node_times = _J2000 + (nodes * 3_600_000_000_000).astype("timedelta64[ns]")
-    per_hour = sun_separation_deg(node_times, ra_deg, dec_deg).astype(np.float32)   # (hours, m)
+    per_hour = sun_separation_deg(node_times, ra_deg, dec_deg).astype(np.float32)  # (hours, m)
     slope = np.diff(per_hour, axis=0)
 
     def at(x):
@@ -199,7 +201,7 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
 
     end = h + duration / 60.0
     least = np.minimum(at(h), at(end))
-    for k in range(1, int(np.ceil(duration / 60.0)) + 1):   # whole hours inside the measurement
+    for k in range(1, int(np.ceil(duration / 60.0)) + 1):  # whole hours inside the measurement
         node = np.floor(h).astype(np.int64) + k
         inside = (node < end)[:, None]
         least = np.where(inside, np.minimum(least, per_hour[np.minimum(node, nodes[-1]) - first]), least)

@@ -14,22 +14,41 @@ scalar features.  The result always has length ``n``.
 
 from __future__ import annotations
 
-from typing import Any, Callable, Mapping
+from collections.abc import Callable, Mapping
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
 from advisor import units
 from advisor.catalogue import FeatureSpec
-from advisor.rules.nodes import (Binary, Bool, Call, Compare, Convert, Logical, Name, Node, Number, Unary, children,
-                                 iter_nodes)
+from advisor.rules.nodes import (
+    Binary,
+    Bool,
+    Call,
+    Compare,
+    Convert,
+    Logical,
+    Name,
+    Node,
+    Number,
+    Unary,
+    children,
+    iter_nodes,
+)
 from advisor.rules.typecheck import check_text
 
 __all__ = ["Compiled", "compile_condition", "compile_expression"]
 
 _ARITHMETIC = {"+": np.add, "-": np.subtract, "*": np.multiply, "/": np.divide}
-_COMPARE = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater_equal,
-            "==": np.equal, "!=": np.not_equal}
+_COMPARE = {
+    "<": np.less,
+    "<=": np.less_equal,
+    ">": np.greater,
+    ">=": np.greater_equal,
+    "==": np.equal,
+    "!=": np.not_equal,
+}
 _Fn = Callable[[dict], Any]
 
 
@@ -66,8 +85,10 @@ def _build(node: Node, flag_missing: set[str]) -> tuple[_Fn, bool]:
         return _fold(lambda env: arithmetic(left(env), right(env)), c1 and c2)
     if isinstance(node, Logical):
         built = [_build(o, flag_missing) for o in node.operands]
-        return _fold(_reduce(np.logical_and if node.op == "and" else np.logical_or, [f for f, _ in built]),
-                     all(c for _, c in built))
+        return _fold(
+            _reduce(np.logical_and if node.op == "and" else np.logical_or, [f for f, _ in built]),
+            all(c for _, c in built),
+        )
     if isinstance(node, Compare):
         built = [_build(o, flag_missing) for o in node.operands]
         fns = [f for f, _ in built]
@@ -170,7 +191,7 @@ def _reduce(ufunc, fns: list[_Fn]) -> _Fn:
 
 
 def _float_column(column: Any, name: str) -> np.ndarray:
-    if column is pd.NA:               # a missing scalar
+    if column is pd.NA:  # a missing scalar
         return np.array(np.nan)
     try:
         if isinstance(column, pd.Series):
@@ -212,11 +233,17 @@ class Compiled:
         evaluates it.
     """
 
-    __slots__ = ("source", "names", "kind", "unit", "ast", "_fn", "_kinds", "_flag_missing", "_unknown",
-                 "needs_inputs")
+    __slots__ = ("source", "names", "kind", "unit", "ast", "_fn", "_kinds", "_flag_missing", "_unknown", "needs_inputs")
 
-    def __init__(self, source: str, ast: Node, kind: str, unit: str | None,
-                 kinds: dict[str, str], needs: Mapping[str, tuple[str, ...]] | None = None) -> None:
+    def __init__(
+        self,
+        source: str,
+        ast: Node,
+        kind: str,
+        unit: str | None,
+        kinds: dict[str, str],
+        needs: Mapping[str, tuple[str, ...]] | None = None,
+    ) -> None:
         self.source = source
         self.ast = ast
         self.kind = kind
@@ -296,7 +323,6 @@ class Compiled:
         if any(out is v for v in env.values()):
             out = out.copy()
         return out
-
 
     def unknown(self, columns: Any = None, *, length: int | None = None) -> np.ndarray | None:
         """Rows where the condition is unknown because an optional input it needs is missing

@@ -81,13 +81,45 @@ from __future__ import annotations
 from advisor.catalogue import FeatureSpec
 from advisor.rules.compiler import Compiled, compile_condition, compile_expression
 from advisor.rules.interpret import evaluate_row
-from advisor.rules.nodes import (Binary, Bool, Call, Compare, Convert, Logical, Name, Node, Number, Unary,
-                                 condition_parts, iter_nodes, names_in)
+from advisor.rules.nodes import (
+    Binary,
+    Bool,
+    Call,
+    Compare,
+    Convert,
+    Logical,
+    Name,
+    Node,
+    Number,
+    Unary,
+    condition_parts,
+    iter_nodes,
+    names_in,
+)
 from advisor.rules.syntax import FUNCTIONS, MAX_DEPTH, MAX_LENGTH, MAX_NESTING, parse
 
 __all__ = [
-    "FeatureSpec", "Compiled", "parse", "compile_condition", "compile_expression", "evaluate_row",
-    "Node", "Number", "Bool", "Name", "Unary", "Binary", "Logical", "Compare", "Call", "Convert",
-    "iter_nodes", "names_in", "condition_parts",
-    "FUNCTIONS", "MAX_LENGTH", "MAX_NESTING", "MAX_DEPTH",
+    "FeatureSpec",
+    "Compiled",
+    "parse",
+    "compile_condition",
+    "compile_expression",
+    "evaluate_row",
+    "Node",
+    "Number",
+    "Bool",
+    "Name",
+    "Unary",
+    "Binary",
+    "Logical",
+    "Compare",
+    "Call",
+    "Convert",
+    "iter_nodes",
+    "names_in",
+    "condition_parts",
+    "FUNCTIONS",
+    "MAX_LENGTH",
+    "MAX_NESTING",
+    "MAX_DEPTH",
 ]

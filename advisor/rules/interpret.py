@@ -12,7 +12,8 @@ random trees; ``rules explain`` and lint's threshold reasoning use it on single 
 from __future__ import annotations
 
 import math
-from typing import Any, Mapping
+from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
 import pandas as pd

@@ -59,12 +59,12 @@ __all__ = ["Problem", "LintReport", "Field", "ValueLint", "did_you_mean", "close
 class Problem:
     """One lint finding: where it is, what is wrong, and how to fix it."""
 
-    severity: str                 # "error" | "warning"
+    severity: str  # "error" | "warning"
     message: str
     source: str | None = None
     line: int | None = None
     column: int | None = None
-    field: str | None = None      # e.g. "rule fog_blinds_laser.condition"
+    field: str | None = None  # e.g. "rule fog_blinds_laser.condition"
     hint: str | None = None
 
     def location(self) -> str:
@@ -73,8 +73,9 @@ class Problem:
 
     def as_error(self) -> RulesError:
         """The same finding as a :class:`RulesError` (its ``one_line`` is what the CLI prints)."""
-        return RulesError(self.message, source=self.source, line=self.line, column=self.column,
-                          field=self.field, hint=self.hint)
+        return RulesError(
+            self.message, source=self.source, line=self.line, column=self.column, field=self.field, hint=self.hint
+        )
 
     def one_line(self) -> str:
         """``file:line:col: error: field: message (hint)`` on one line."""
@@ -117,7 +118,7 @@ def _scalar_position(node: yaml.Node, text: str, offset: int) -> tuple[int, int]
     fallback = (node.start_mark.line + 1, node.start_mark.column + 1)
     value = node.value if isinstance(node, yaml.ScalarNode) else ""
     style = node.style if isinstance(node, yaml.ScalarNode) else None
-    raw = text[start:node.end_mark.index]
+    raw = text[start : node.end_mark.index]
     i = 0
     if style in ("|", ">"):
         i = raw.find("\n") + 1 if "\n" in raw else len(raw)
@@ -125,7 +126,7 @@ def _scalar_position(node: yaml.Node, text: str, offset: int) -> tuple[int, int]
         i = 1
     offset = max(0, min(offset, len(value)))
     for k in range(offset + 1):
-        if k == len(value):        # just after the last character
+        if k == len(value):  # just after the last character
             break
         ch = value[k]
         while i < len(raw) and not (raw[i] == ch or (ch == " " and raw[i] == "\n")):
@@ -154,7 +155,7 @@ class Field:
     text: str
     compiled: Compiled | None = None
     ok: bool = True
-    scale: float = 1.0            # error_um only: factor from the expression's length unit to µm
+    scale: float = 1.0  # error_um only: factor from the expression's length unit to µm
 
     @property
     def line(self) -> int:
@@ -186,19 +187,36 @@ _SAMPLE = {"flag": True, "number": 1.5}
 class ValueLint:
     """The checks of each value as written; collects :class:`Problem` s in ``problems``."""
 
-    def __init__(self, catalogue: Mapping[str, FeatureSpec],
-                 domains: Mapping[str, tuple[float, float, str]] | None = None) -> None:
+    def __init__(
+        self, catalogue: Mapping[str, FeatureSpec], domains: Mapping[str, tuple[float, float, str]] | None = None
+    ) -> None:
         self.catalogue = catalogue
         self.domains = domains
         self.problems: list[Problem] = []
 
-    def add(self, severity: str, message: str, source: str | None, line: int | None = None,
-            column: int | None = None, where: str | None = None, hint: str | None = None) -> None:
+    def add(
+        self,
+        severity: str,
+        message: str,
+        source: str | None,
+        line: int | None = None,
+        column: int | None = None,
+        where: str | None = None,
+        hint: str | None = None,
+    ) -> None:
         """Record one finding."""
         self.problems.append(Problem(severity, message, source, line, column, where, hint))
 
-    def at_field(self, severity: str, f: Field, rid: str, message: str, hint: str | None = None,
-                 offset: int | None = None, on_key: bool = False) -> None:
+    def at_field(
+        self,
+        severity: str,
+        f: Field,
+        rid: str,
+        message: str,
+        hint: str | None = None,
+        offset: int | None = None,
+        on_key: bool = False,
+    ) -> None:
         """Record a finding at a field's value (character ``offset`` inside it) or at its key."""
         if on_key:
             line, column = f.key_node.start_mark.line + 1, f.key_node.start_mark.column + 1
@@ -213,12 +231,25 @@ class ValueLint:
         for key, f in fields.items():
             v = f.value
             if key == "applies_to" and v not in APPLIES_TO:
-                self.at_field("error", f, rid, f"applies_to {v!r} is not one of {', '.join(APPLIES_TO)}",
-                              did_you_mean(str(v), APPLIES_TO, "scan: the laser; astronomical: holography; both"))
+                self.at_field(
+                    "error",
+                    f,
+                    rid,
+                    f"applies_to {v!r} is not one of {', '.join(APPLIES_TO)}",
+                    did_you_mean(str(v), APPLIES_TO, "scan: the laser; astronomical: holography; both"),
+                )
             elif key == "effect" and v not in EFFECTS:
-                self.at_field("error", f, rid, f"effect {v!r} is not one of {', '.join(EFFECTS)}",
-                              did_you_mean(str(v), EFFECTS, "block stops the method, warn adds a caution, "
-                                                             "add_error adds error_um in quadrature"))
+                self.at_field(
+                    "error",
+                    f,
+                    rid,
+                    f"effect {v!r} is not one of {', '.join(EFFECTS)}",
+                    did_you_mean(
+                        str(v),
+                        EFFECTS,
+                        "block stops the method, warn adds a caution, add_error adds error_um in quadrature",
+                    ),
+                )
             elif key == "enabled" and not isinstance(v, bool):
                 self.at_field("error", f, rid, f"'enabled' must be true or false, got {v!r}", "write enabled: false")
             elif key == "condition":
@@ -239,8 +270,13 @@ class ValueLint:
         if isinstance(v, bool):
             v = "true" if v else "false"
         if not isinstance(v, str):
-            self.at_field("error", f, rid, f"the condition must be text, got {type(v).__name__} {v!r:.40}",
-                          "write a condition such as wind_gust_ms > 8 m/s; quote it if it starts with a number")
+            self.at_field(
+                "error",
+                f,
+                rid,
+                f"the condition must be text, got {type(v).__name__} {v!r:.40}",
+                "write a condition such as wind_gust_ms > 8 m/s; quote it if it starts with a number",
+            )
             return
         try:
             f.compiled = compile_condition(v, self.catalogue)
@@ -254,8 +290,13 @@ class ValueLint:
         """Compile an ``error_um`` term (``f.compiled``, ``f.scale`` to µm on success)."""
         v = f.value
         if isinstance(v, bool) or not isinstance(v, (int, float, str)):
-            self.at_field("error", f, rid, f"'error_um' must be a number or an expression, got {v!r:.40}",
-                          "write e.g. error_um: 30 or error_um: 10 * (gust_factor - 1)")
+            self.at_field(
+                "error",
+                f,
+                rid,
+                f"'error_um' must be a number or an expression, got {v!r:.40}",
+                "write e.g. error_um: 30 or error_um: 10 * (gust_factor - 1)",
+            )
             return
         if isinstance(v, (int, float)) and not math.isfinite(v):
             self.at_field("error", f, rid, f"'error_um' must be finite, got {v!r}", "write a number of µm")
@@ -266,20 +307,34 @@ class ValueLint:
             self.condition_error(f, rid, exc, "")
             return
         unit = compiled.unit
-        if isinstance(compiled.ast, Number) and compiled.ast.unit is not None \
-                and units.dimension(compiled.ast.unit) != "length":
-            self.at_field("error", f, rid, f"'{v}' is {units.dimension(compiled.ast.unit).replace('_', ' ')}, "
-                          "but error_um is a surface error (a length)", "write µm, e.g. 30 or 30 um")
+        if (
+            isinstance(compiled.ast, Number)
+            and compiled.ast.unit is not None
+            and units.dimension(compiled.ast.unit) != "length"
+        ):
+            self.at_field(
+                "error",
+                f,
+                rid,
+                f"'{v}' is {units.dimension(compiled.ast.unit).replace('_', ' ')}, "
+                "but error_um is a surface error (a length)",
+                "write µm, e.g. 30 or 30 um",
+            )
             return
         if unit is not None and unit not in ("1", "um") and units.dimension(unit) == "length":
             scale = float(units.convert(1.0, unit, "um"))
         else:
             scale = 1.0
-        if not compiled.names:          # a constant
+        if not compiled.names:  # a constant
             value = float(evaluate_row(compiled.ast, {})) * scale
             if value < 0:
-                self.at_field("error", f, rid, f"error_um is negative ({value:g} µm)",
-                              "an error term is a size: write a positive number of µm")
+                self.at_field(
+                    "error",
+                    f,
+                    rid,
+                    f"error_um is negative ({value:g} µm)",
+                    "an error term is a size: write a positive number of µm",
+                )
                 return
         f.compiled = compiled
         f.scale = scale
@@ -296,36 +351,65 @@ class ValueLint:
             message_fields(v)
         except ValueError as exc:
             offset = v.find("{") if "{" in v else 0
-            self.at_field("error", f, rid, f"malformed message template: {exc}", "write values as {feature_name} "
-                          "or {feature_name:.1f}; write a literal brace as {{ or }}", offset=offset)
+            self.at_field(
+                "error",
+                f,
+                rid,
+                f"malformed message template: {exc}",
+                "write values as {feature_name} or {feature_name:.1f}; write a literal brace as {{ or }}",
+                offset=offset,
+            )
             return
         known = list(self.catalogue) + list(MESSAGE_EXTRAS)
         for match in re.finditer(r"(?<!\{)\{([^{}]*)\}", v.replace("{{", "\0\0").replace("}}", "\0\0")):
             name, _, spec = match.group(1).partition(":")
             offset = match.start()
             if name not in self.catalogue and name not in MESSAGE_EXTRAS:
-                self.at_field("error", f, rid, f"the message names '{{{name}}}', which the rule does not have "
-                              "(not a feature)", did_you_mean(name, known, "see 'advisor rules features'"),
-                              offset=offset)
+                self.at_field(
+                    "error",
+                    f,
+                    rid,
+                    f"the message names '{{{name}}}', which the rule does not have (not a feature)",
+                    did_you_mean(name, known, "see 'advisor rules features'"),
+                    offset=offset,
+                )
                 continue
             if not spec:
                 continue
             kind = self.catalogue[name].kind if name in self.catalogue else "text"
             if kind == "flag":
-                self.at_field("warning", f, rid, f"'{{{name}:{spec}}}' formats a flag, which is shown as yes/no",
-                              f"write {{{name}}}", offset=offset)
+                self.at_field(
+                    "warning",
+                    f,
+                    rid,
+                    f"'{{{name}:{spec}}}' formats a flag, which is shown as yes/no",
+                    f"write {{{name}}}",
+                    offset=offset,
+                )
                 continue
             problem = format_spec_problem(spec)
             if problem:
-                self.at_field("error", f, rid, f"bad format '{shorten(spec, 40)}' for '{name}': {problem}",
-                              f"a field at most {MAX_FORMAT_WIDTH} characters wide with at most "
-                              f"{MAX_FORMAT_PRECISION} decimals, e.g. .1f or >8.1f", offset=offset)
+                self.at_field(
+                    "error",
+                    f,
+                    rid,
+                    f"bad format '{shorten(spec, 40)}' for '{name}': {problem}",
+                    f"a field at most {MAX_FORMAT_WIDTH} characters wide with at most "
+                    f"{MAX_FORMAT_PRECISION} decimals, e.g. .1f or >8.1f",
+                    offset=offset,
+                )
                 continue
             try:
                 format(_SAMPLE.get(kind, "text"), spec)
             except (ValueError, TypeError) as exc:
-                self.at_field("error", f, rid, f"bad format '{spec}' for '{name}': {exc}",
-                              "use e.g. .1f (one decimal), .0f (none) or +.1f (with sign)", offset=offset)
+                self.at_field(
+                    "error",
+                    f,
+                    rid,
+                    f"bad format '{spec}' for '{name}': {exc}",
+                    "use e.g. .1f (one decimal), .0f (none) or +.1f (with sign)",
+                    offset=offset,
+                )
 
 
 def sorted_problems(problems: Iterable[Problem], files: list[str]) -> tuple[Problem, ...]:

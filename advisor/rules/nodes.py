@@ -9,13 +9,29 @@ stack, never recursion, so a deep tree cannot exhaust Python's stack.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass
-from typing import Iterator
 
 from advisor.errors import ConditionError
 
-__all__ = ["Node", "Number", "Bool", "Name", "Unary", "Binary", "Logical", "Compare", "Call", "Convert",
-           "children", "iter_nodes", "names_in", "depth", "condition_parts", "error_at"]
+__all__ = [
+    "Node",
+    "Number",
+    "Bool",
+    "Name",
+    "Unary",
+    "Binary",
+    "Logical",
+    "Compare",
+    "Call",
+    "Convert",
+    "children",
+    "iter_nodes",
+    "names_in",
+    "depth",
+    "condition_parts",
+    "error_at",
+]
 
 
 def error_at(message: str, start: int, hint: str | None = None) -> ConditionError:
@@ -37,7 +53,7 @@ class Node:
 
     def text_in(self, source: str) -> str:
         """The piece of ``source`` this node was parsed from."""
-        return source[self.start:self.end]
+        return source[self.start : self.end]
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -20,8 +20,9 @@ from __future__ import annotations
 
 import re
 import string
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
 
@@ -29,9 +30,21 @@ from advisor.rules.compiler import Compiled
 from advisor.rules.nodes import Number, iter_nodes
 from advisor.text import clean_text, shorten
 
-__all__ = ["Rule", "RuleSet", "RuleEvaluation", "format_message", "format_spec_problem", "message_fields",
-           "RULE_KEYS", "REQUIRED_KEYS", "MAX_RULES", "MESSAGE_EXTRAS", "MAX_FORMAT_WIDTH",
-           "MAX_FORMAT_PRECISION", "MAX_MESSAGE_CHARS"]
+__all__ = [
+    "Rule",
+    "RuleSet",
+    "RuleEvaluation",
+    "format_message",
+    "format_spec_problem",
+    "message_fields",
+    "RULE_KEYS",
+    "REQUIRED_KEYS",
+    "MAX_RULES",
+    "MESSAGE_EXTRAS",
+    "MAX_FORMAT_WIDTH",
+    "MAX_FORMAT_PRECISION",
+    "MAX_MESSAGE_CHARS",
+]
 
 #: The keys a rule mapping may have.
 RULE_KEYS = ("id", "applies_to", "condition", "effect", "error_um", "message", "enabled")
@@ -52,8 +65,7 @@ MAX_FORMAT_PRECISION = 12
 #: Longest filled message [characters]; a longer one is elided in the middle.
 MAX_MESSAGE_CHARS = 1000
 # [[fill]align][sign][z][#][0][width][grouping][.precision][type] (Python's format mini-language)
-_FORMAT_SPEC = re.compile(r"(?:.?[<>=^])?[-+ ]?z?#?0?(?P<width>\d*)[,_]?(?:\.(?P<precision>\d*))?[A-Za-z%]?",
-                          re.DOTALL)
+_FORMAT_SPEC = re.compile(r"(?:.?[<>=^])?[-+ ]?z?#?0?(?P<width>\d*)[,_]?(?:\.(?P<precision>\d*))?[A-Za-z%]?", re.DOTALL)
 _UNIT_WORDS = (("delta_degC", "°C"), ("degC/h", "°C/h"), ("degC", "°C"), ("degF", "°F"), ("deg", "°"), ("um", "µm"))
 
 
@@ -84,7 +96,7 @@ class Rule:
     source: str = "<built-in>"
     line: int | None = None
     layer: str = "default"
-    error_scale: float = 1.0      # error expression's length unit → µm (1 for a plain number)
+    error_scale: float = 1.0  # error expression's length unit → µm (1 for a plain number)
     #: Earlier entries this rule was merged over: (file, line, layer), oldest first.
     overrides: tuple[tuple[str, int | None, str], ...] = ()
 
@@ -146,7 +158,7 @@ class RuleSet:
             undecided = rule.condition.unknown(columns, length=n)
             if undecided is not None and undecided.any():
                 unknown[rule.id] = undecided
-                mask = mask & ~undecided   # an undecided rule neither fires nor clears
+                mask = mask & ~undecided  # an undecided rule neither fires nor clears
             fired[rule.id] = mask
             if rule.error is not None:
                 value = np.asarray(rule.error.evaluate(columns, length=n), dtype=float) * rule.error_scale
@@ -157,7 +169,7 @@ class RuleSet:
 def message_fields(template: str) -> list[str]:
     """Field names in a message template; ValueError on a malformed template."""
     names = []
-    for _, name, spec, conversion in string.Formatter().parse(template):
+    for _, name, _spec, conversion in string.Formatter().parse(template):
         if name is None:
             continue
         if not name.isidentifier() or conversion:
@@ -174,8 +186,10 @@ def format_spec_problem(spec: str) -> str | None:
     m = _FORMAT_SPEC.fullmatch(spec or "")
     if not m:
         return None
-    for what, digits, most in (("width", m.group("width"), MAX_FORMAT_WIDTH),
-                               ("precision", m.group("precision"), MAX_FORMAT_PRECISION)):
+    for what, digits, most in (
+        ("width", m.group("width"), MAX_FORMAT_WIDTH),
+        ("precision", m.group("precision"), MAX_FORMAT_PRECISION),
+    ):
         if digits and (len(digits) > 4 or int(digits) > most):
             shown = digits if len(digits) <= 12 else f"{digits[:6]}… ({len(digits)} digits)"
             return f"format {what} {shown} is above {most}"
@@ -210,8 +224,11 @@ def format_message(template: str, row: Mapping[str, Any]) -> str:
                 spec = ""
             try:
                 text = format(value, spec or "")
-                if isinstance(value, (float, np.floating)) and text.startswith("-") and \
-                        text.lstrip("-") == format(0.0, spec or ""):
+                if (
+                    isinstance(value, (float, np.floating))
+                    and text.startswith("-")
+                    and text.lstrip("-") == format(0.0, spec or "")
+                ):
                     text = text[1:]  # no "-0.0 °C"
                 parts.append(text)
             except (ValueError, TypeError):

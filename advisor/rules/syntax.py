@@ -41,7 +41,11 @@ MAX_NESTING = 50
 MAX_DEPTH = 100
 #: The functions a condition may call: name → (fewest, most) arguments (None: no limit).
 FUNCTIONS: dict[str, tuple[int, int | None]] = {
-    "abs": (1, 1), "max": (2, None), "min": (2, None), "missing": (1, 1), "sqrt": (1, 1),
+    "abs": (1, 1),
+    "max": (2, None),
+    "min": (2, None),
+    "missing": (1, 1),
+    "sqrt": (1, 1),
 }
 
 _NAME_RE = re.compile(r"[a-z_][a-z0-9_]*\Z")
@@ -57,8 +61,7 @@ def _unknown_unit_hint(word: str) -> str:
     close = difflib.get_close_matches(word, units.known_units(), n=2)
     shown = ", ".join(u for u in _SHOWN_UNITS if u in units.known_units())
     start = f"did you mean {' or '.join(repr(c) for c in close)}? " if close else ""
-    return (f"{start}accepted units include {shown}; if '{word}' is a feature name, "
-            f"put an operator before it")
+    return f"{start}accepted units include {shown}; if '{word}' is a feature name, put an operator before it"
 
 
 class _Parser:
@@ -85,8 +88,11 @@ class _Parser:
     def enter(self, tok: Token) -> None:
         self.nesting += 1
         if self.nesting > MAX_NESTING:
-            raise error_at(f"the condition is nested more than {MAX_NESTING} levels deep", tok.start,
-                         "simplify it or split it into several rules")
+            raise error_at(
+                f"the condition is nested more than {MAX_NESTING} levels deep",
+                tok.start,
+                "simplify it or split it into several rules",
+            )
 
     def leave(self) -> None:
         self.nesting -= 1
@@ -150,16 +156,20 @@ class _Parser:
             operands.append(self.parse_sum())
         if not ops:
             return first
-        return Compare(start=first.start, end=operands[-1].end, ops=tuple(ops),
-                       operands=tuple(operands), op_starts=tuple(op_starts))
+        return Compare(
+            start=first.start,
+            end=operands[-1].end,
+            ops=tuple(ops),
+            operands=tuple(operands),
+            op_starts=tuple(op_starts),
+        )
 
     def parse_sum(self) -> Node:
         node = self.parse_product()
         while self.peek().kind == "op" and self.peek().text in ("+", "-"):
             tok = self.advance()
             right = self.parse_product()
-            node = Binary(start=node.start, end=right.end, op=tok.text, left=node, right=right,
-                          op_start=tok.start)
+            node = Binary(start=node.start, end=right.end, op=tok.text, left=node, right=right, op_start=tok.start)
         return node
 
     def parse_product(self) -> Node:
@@ -167,8 +177,7 @@ class _Parser:
         while self.peek().kind == "op" and self.peek().text in ("*", "/"):
             tok = self.advance()
             right = self.parse_unary()
-            node = Binary(start=node.start, end=right.end, op=tok.text, left=node, right=right,
-                          op_start=tok.start)
+            node = Binary(start=node.start, end=right.end, op=tok.text, left=node, right=right, op_start=tok.start)
         return node
 
     def parse_unary(self) -> Node:
@@ -198,10 +207,12 @@ class _Parser:
         nxt = self.peek()
         if nxt.kind == "name":
             if unit is None:
-                raise error_at(f"unknown unit '{nxt.text}' after {tok.text}", nxt.start,
-                             _unknown_unit_hint(nxt.text))
-            raise error_at(f"expected an operator before '{nxt.text}'", nxt.start,
-                         "write one unit directly after its number, e.g. 8 kn")
+                raise error_at(f"unknown unit '{nxt.text}' after {tok.text}", nxt.start, _unknown_unit_hint(nxt.text))
+            raise error_at(
+                f"expected an operator before '{nxt.text}'",
+                nxt.start,
+                "write one unit directly after its number, e.g. 8 kn",
+            )
         return Number(start=tok.start, end=end, value=value, unit=unit)
 
     def parse_primary(self) -> Node:
@@ -231,8 +242,9 @@ class _Parser:
             # the parentheses belong to the node's text (for messages and explanations)
             return replace(node, start=tok.start, end=close.end)
         if tok.kind == "end":
-            raise error_at("the condition ends too early", tok.start,
-                         "expected a number, a feature name, a function or '('")
+            raise error_at(
+                "the condition ends too early", tok.start, "expected a number, a feature name, a function or '('"
+            )
         if tok.kind == "kw" and tok.text == "not":
             raise error_at("'not' cannot stand here", tok.start, "put it in parentheses: (not x)")
         if tok.kind == "kw":
@@ -248,24 +260,39 @@ class _Parser:
         if word == "None":
             raise error_at("'None' is not a value here", tok.start, "test for absent data with missing(x)")
         if word in _RESERVED:
-            hints = {"is": "use == or !=", "in": "there are no lists; compare with each value and join with or",
-                     "if": "a rule's condition is already an 'if'; write just the condition"}
-            raise error_at(f"'{word}' is not part of the condition language", tok.start,
-                         hints.get(word, "conditions combine feature names, numbers with units, "
-                                         "comparisons, and / or / not and abs, min, max, missing, sqrt"))
+            hints = {
+                "is": "use == or !=",
+                "in": "there are no lists; compare with each value and join with or",
+                "if": "a rule's condition is already an 'if'; write just the condition",
+            }
+            raise error_at(
+                f"'{word}' is not part of the condition language",
+                tok.start,
+                hints.get(
+                    word,
+                    "conditions combine feature names, numbers with units, "
+                    "comparisons, and / or / not and abs, min, max, missing, sqrt",
+                ),
+            )
         if word.startswith("__"):
             raise error_at(f"'{word}' is not a valid name", tok.start, "feature names do not start with '__'")
         if not _NAME_RE.match(word):
-            raise error_at(f"'{word}' is not a valid name: feature names are lower case", tok.start,
-                         f"did you mean '{word.lower()}'?")
+            raise error_at(
+                f"'{word}' is not a valid name: feature names are lower case",
+                tok.start,
+                f"did you mean '{word.lower()}'?",
+            )
 
     def parse_call(self, name_tok: Token) -> Call:
         func = name_tok.text
         if func not in FUNCTIONS:
             similar = difflib.get_close_matches(func, list(FUNCTIONS), n=1)
             known = ", ".join(sorted(FUNCTIONS))
-            raise error_at(f"unknown function '{func}'", name_tok.start,
-                           (f"did you mean '{similar[0]}'? " if similar else "") + f"the functions are {known}")
+            raise error_at(
+                f"unknown function '{func}'",
+                name_tok.start,
+                (f"did you mean '{similar[0]}'? " if similar else "") + f"the functions are {known}",
+            )
         open_tok = self.advance()
         self.enter(open_tok)
         args: list[Node] = []
@@ -285,19 +312,28 @@ class _Parser:
         self.leave()
         fewest, most = FUNCTIONS[func]
         if len(args) < fewest or (most is not None and len(args) > most):
-            wanted = (f"exactly {fewest} argument" + ("s" if fewest > 1 else "")) if fewest == most \
+            wanted = (
+                (f"exactly {fewest} argument" + ("s" if fewest > 1 else ""))
+                if fewest == most
                 else f"at least {fewest} arguments"
+            )
             raise error_at(f"{func}() takes {wanted}, got {len(args)}", name_tok.start)
         return Call(start=name_tok.start, end=close.end, func=func, args=tuple(args))
 
 
 def _as_text(text: Any) -> str:
     if not isinstance(text, str):
-        raise ConditionError(f"a condition must be text, got {type(text).__name__} {text!r:.40}",
-                             column=1, hint="quote it in the YAML file")
+        raise ConditionError(
+            f"a condition must be text, got {type(text).__name__} {text!r:.40}",
+            column=1,
+            hint="quote it in the YAML file",
+        )
     if len(text) > MAX_LENGTH:
-        raise ConditionError(f"the condition is {len(text)} characters long, more than {MAX_LENGTH}",
-                             column=MAX_LENGTH + 1, hint="split it into several rules")
+        raise ConditionError(
+            f"the condition is {len(text)} characters long, more than {MAX_LENGTH}",
+            column=MAX_LENGTH + 1,
+            hint="split it into several rules",
+        )
     return text
 
 
@@ -313,9 +349,13 @@ def parse(text: str) -> Node:
     try:
         tree = _Parser(text).parse()
     except RecursionError:  # pragma: no cover - the nesting limit prevents it
-        raise ConditionError("the condition is nested too deeply", column=1,
-                             hint="simplify it or split it into several rules") from None
+        raise ConditionError(
+            "the condition is nested too deeply", column=1, hint="simplify it or split it into several rules"
+        ) from None
     if depth(tree) > MAX_DEPTH:
-        raise ConditionError(f"the condition has more than {MAX_DEPTH} levels of operations", column=1,
-                             hint="simplify it or split it into several rules")
+        raise ConditionError(
+            f"the condition has more than {MAX_DEPTH} levels of operations",
+            column=1,
+            hint="simplify it or split it into several rules",
+        )
     return tree

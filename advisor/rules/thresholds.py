@@ -18,8 +18,8 @@ warnings.  Comparisons of one feature (or ``abs`` of one) with a constant, flags
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
-from typing import Mapping
 
 from advisor.catalogue import FeatureSpec
 from advisor.rules.compiler import Compiled
@@ -49,7 +49,7 @@ class _Iv:
     def empty(self) -> bool:
         return self.lo > self.hi or (self.lo == self.hi and not (self.lo_in and self.hi_in))
 
-    def meet(self, other: "_Iv") -> "_Iv":
+    def meet(self, other: _Iv) -> _Iv:
         if self.lo > other.lo:
             lo, lo_in = self.lo, self.lo_in
         elif other.lo > self.lo:
@@ -89,10 +89,14 @@ def _complement(ivs: tuple[_Iv, ...]) -> tuple[_Iv, ...]:
 def _compare_set(op: str, c: float) -> tuple[_Iv, ...]:
     """The reals x for which ``x op c`` holds."""
     inf = math.inf
-    return {"<": (_Iv(-inf, c, False, False),), "<=": (_Iv(-inf, c, False, True),),
-            ">": (_Iv(c, inf, False, False),), ">=": (_Iv(c, inf, True, False),),
-            "==": (_Iv(c, c, True, True),),
-            "!=": (_Iv(-inf, c, False, False), _Iv(c, inf, False, False))}[op]
+    return {
+        "<": (_Iv(-inf, c, False, False),),
+        "<=": (_Iv(-inf, c, False, True),),
+        ">": (_Iv(c, inf, False, False),),
+        ">=": (_Iv(c, inf, True, False),),
+        "==": (_Iv(c, c, True, True),),
+        "!=": (_Iv(-inf, c, False, False), _Iv(c, inf, False, False)),
+    }[op]
 
 
 _FLIP = {"<": ">", "<=": ">=", ">": "<", ">=": "<=", "==": "==", "!=": "!="}
@@ -107,9 +111,13 @@ class _State:
     flags: frozenset = frozenset({True, False})
     parts: tuple[Node, ...] = ()
 
-    def meet(self, other: "_State") -> "_State":
-        return _State(_meet(self.reals, other.reals), self.nan and other.nan, self.flags & other.flags,
-                      self.parts + tuple(p for p in other.parts if p not in self.parts))
+    def meet(self, other: _State) -> _State:
+        return _State(
+            _meet(self.reals, other.reals),
+            self.nan and other.nan,
+            self.flags & other.flags,
+            self.parts + tuple(p for p in other.parts if p not in self.parts),
+        )
 
     def empty(self, is_flag: bool) -> bool:
         return not self.flags if is_flag else (not self.reals and not self.nan)
@@ -119,8 +127,8 @@ class _State:
 class _Conflict:
     name: str
     parts: tuple[Node, ...]
-    domain: bool                  # the feature's range took part
-    alone: bool = False           # one part that no value at all satisfies
+    domain: bool  # the feature's range took part
+    alone: bool = False  # one part that no value at all satisfies
 
 
 class _TooMany(Exception):
@@ -232,7 +240,7 @@ class _Reasoner:
             reals = nonneg + tuple(_Iv(-iv.hi, -iv.lo, iv.hi_in, iv.lo_in) for iv in nonneg)
         else:
             return [{}]
-        nan_holds = op == "!="           # NaN: every comparison is false except !=
+        nan_holds = op == "!="  # NaN: every comparison is false except !=
         if not truth:
             reals, nan_holds = _complement(reals), not nan_holds
         return self.atom(name, _State(reals=reals, nan=nan_holds, parts=(node,)))
@@ -240,7 +248,6 @@ class _Reasoner:
 
 def _constant(node: Node) -> bool:
     return not names_in(node)
-
 
 
 def _range_text(name: str, domains, catalogue) -> str:
@@ -252,9 +259,11 @@ def _range_text(name: str, domains, catalogue) -> str:
     return f"{name} is always within {lo:g}..{hi:g}{unit} ({why})"
 
 
-def threshold_findings(compiled: Compiled, catalogue: Mapping[str, FeatureSpec],
-                       domains: Mapping[str, tuple[float, float, str]] | None = None
-                       ) -> list[tuple[str, str, int, str]]:
+def threshold_findings(
+    compiled: Compiled,
+    catalogue: Mapping[str, FeatureSpec],
+    domains: Mapping[str, tuple[float, float, str]] | None = None,
+) -> list[tuple[str, str, int, str]]:
     """Impossible or trivial thresholds in a compiled condition.
 
     ``domains`` (feature → lowest, highest, why) defaults to the domains the catalogue's
@@ -294,10 +303,19 @@ def threshold_findings(compiled: Compiled, catalogue: Mapping[str, FeatureSpec],
         try:
             if not alone.alternatives(atom, True) and alone.conflicts:
                 c = alone.conflicts[0]
-                why = (f"whatever the value of {c.name}" if c.alone or c.name not in domains
-                       else _range_text(c.name, domains, catalogue))
-                findings.append(("warning", f"'{q(atom)}' can never be true: {why}",
-                                 atom.start, "this part of the condition never matters; fix or remove it"))
+                why = (
+                    f"whatever the value of {c.name}"
+                    if c.alone or c.name not in domains
+                    else _range_text(c.name, domains, catalogue)
+                )
+                findings.append(
+                    (
+                        "warning",
+                        f"'{q(atom)}' can never be true: {why}",
+                        atom.start,
+                        "this part of the condition never matters; fix or remove it",
+                    )
+                )
         except _TooMany:  # pragma: no cover - one atom is one alternative
             pass
     try:
@@ -305,7 +323,12 @@ def threshold_findings(compiled: Compiled, catalogue: Mapping[str, FeatureSpec],
     except _TooMany:
         return findings
     if not when_false:
-        findings.append(("warning", f"the condition '{q(compiled.ast)}' is always true: the rule applies at "
-                                    "every instant", 0, "check the threshold; a rule meant to always apply "
-                                                        "can say so in its message"))
+        findings.append(
+            (
+                "warning",
+                f"the condition '{q(compiled.ast)}' is always true: the rule applies at every instant",
+                0,
+                "check the threshold; a rule meant to always apply can say so in its message",
+            )
+        )
     return findings

@@ -24,12 +24,13 @@ OPERATORS = ("<=", ">=", "==", "!=", "<", ">", "+", "-", "*", "/")
 _NUMBER_RE = re.compile(r"[0-9]+(?:\.[0-9]+)?(?:[eE][+-]?[0-9]+)?")
 _IDENT_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 #: Unit spellings that may follow a number, longest first (so "mm/h" wins over "mm").
-_UNIT_SPELLINGS = tuple(sorted((u for u in units.known_units() if u and not u[0].isdigit()),
-                               key=len, reverse=True))
+_UNIT_SPELLINGS = tuple(sorted((u for u in units.known_units() if u and not u[0].isdigit()), key=len, reverse=True))
 _WORD_CHARS = frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789_°µ")
 _BAD_CHARACTERS = {
-    ".": ("'.' is not allowed here",
-          "write decimals with digits on both sides (0.5, 5.0); there are no attributes or methods"),
+    ".": (
+        "'.' is not allowed here",
+        "write decimals with digits on both sides (0.5, 5.0); there are no attributes or methods",
+    ),
     "'": ("quotes are not allowed: the language has no strings", "write feature names without quotes"),
     '"': ("quotes are not allowed: the language has no strings", "write feature names without quotes"),
     "[": ("'[' is not allowed: there is no indexing", "use a feature name on its own"),
@@ -53,7 +54,6 @@ class Token:
     text: str
     start: int
     end: int
-
 
 
 def _show_char(ch: str) -> str:
@@ -82,7 +82,7 @@ def tokenize(text: str) -> list[Token]:
             continue
         if "0" <= ch <= "9":
             match = _NUMBER_RE.match(text, pos)
-            assert match is not None          # the character at pos is a digit
+            assert match is not None  # the character at pos is a digit
             tokens.append(Token("num", match.group(), pos, match.end()))
             pos = match.end()
             look = pos
@@ -95,7 +95,7 @@ def tokenize(text: str) -> list[Token]:
             continue
         if ch == "_" or ("a" <= ch <= "z") or ("A" <= ch <= "Z"):
             match = _IDENT_RE.match(text, pos)
-            assert match is not None          # the character at pos is a letter or '_'
+            assert match is not None  # the character at pos is a letter or '_'
             word = match.group()
             tokens.append(Token("kw" if word in KEYWORDS else "name", word, pos, match.end()))
             pos = match.end()
@@ -104,10 +104,9 @@ def tokenize(text: str) -> list[Token]:
             tokens.append(Token(ch, ch, pos, pos + 1))
             pos += 1
             continue
-        two = text[pos:pos + 2]
+        two = text[pos : pos + 2]
         if two == "**":
-            raise error_at("'**' is not supported: there is no power operator", pos,
-                         "multiply (x * x) or use sqrt(x)")
+            raise error_at("'**' is not supported: there is no power operator", pos, "multiply (x * x) or use sqrt(x)")
         if two == "//":
             raise error_at("'//' is not supported", pos, "use / for division")
         if two in ("&&", "||"):
@@ -120,8 +119,11 @@ def tokenize(text: str) -> list[Token]:
         if ch in _BAD_CHARACTERS:
             message, hint = _BAD_CHARACTERS[ch]
             raise error_at(message, pos, hint)
-        raise error_at(f"unexpected character {_show_char(ch)}", pos,
-                     "conditions use feature names, numbers with units, comparisons, + - * /, "
-                     "and / or / not, parentheses and abs, min, max, missing, sqrt")
+        raise error_at(
+            f"unexpected character {_show_char(ch)}",
+            pos,
+            "conditions use feature names, numbers with units, comparisons, + - * /, "
+            "and / or / not, parentheses and abs, min, max, missing, sqrt",
+        )
     tokens.append(Token("end", "", size, size))
     return tokens

@@ -16,14 +16,26 @@ nodes and comparison chains are split into pairs joined by ``and``.
 from __future__ import annotations
 
 import difflib
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
-from typing import Mapping
 
 from advisor import units
 from advisor.catalogue import FeatureSpec
 from advisor.errors import ConditionError
-from advisor.rules.nodes import (Binary, Bool, Call, Compare, Convert, Logical, Name, Node, Number, Unary,
-                                 error_at, iter_nodes)
+from advisor.rules.nodes import (
+    Binary,
+    Bool,
+    Call,
+    Compare,
+    Convert,
+    Logical,
+    Name,
+    Node,
+    Number,
+    Unary,
+    error_at,
+    iter_nodes,
+)
 from advisor.rules.syntax import FUNCTIONS, parse
 
 __all__ = ["Checked", "check_text"]
@@ -69,15 +81,22 @@ def check_text(text: str, catalogue: Mapping[str, FeatureSpec], want: str) -> Ch
     try:
         typed = checker.check(tree)
     except RecursionError:  # pragma: no cover - the depth limit prevents it
-        raise ConditionError("the condition is nested too deeply", column=1,
-                             hint="simplify it or split it into several rules") from None
+        raise ConditionError(
+            "the condition is nested too deeply", column=1, hint="simplify it or split it into several rules"
+        ) from None
     q = checker.q(typed.node)
     if want == "flag" and typed.kind != "flag":
-        raise ConditionError(f"'{q}' is a number, but a condition must be true or false", column=1,
-                             hint=f"compare it, e.g. {checker.example(typed)}")
+        raise ConditionError(
+            f"'{q}' is a number, but a condition must be true or false",
+            column=1,
+            hint=f"compare it, e.g. {checker.example(typed)}",
+        )
     if want == "number" and typed.kind != "number":
-        raise ConditionError(f"'{q}' is a condition (true/false), but a number is needed here", column=1,
-                             hint="write a number or an expression, e.g. 15 + 0.5 * reference_age_h")
+        raise ConditionError(
+            f"'{q}' is a condition (true/false), but a number is needed here",
+            column=1,
+            hint="write a number or an expression, e.g. 15 + 0.5 * reference_age_h",
+        )
     kinds = {n.name: n.kind or "number" for n in iter_nodes(typed.node) if isinstance(n, Name)}
     unit = typed.unit if typed.kind == "number" and typed.unit != _UNKNOWN else None
     return Checked(typed.node, typed.kind, unit, kinds)
@@ -86,9 +105,9 @@ def check_text(text: str, catalogue: Mapping[str, FeatureSpec], want: str) -> Ch
 @dataclass(frozen=True)
 class _Typed:
     node: Node
-    kind: str                 # "flag" | "number"
-    unit: str | None = None   # canonical unit name; None for a bare number; _UNKNOWN
-    literal: bool = False     # a Number written with a unit (its value may still be converted)
+    kind: str  # "flag" | "number"
+    unit: str | None = None  # canonical unit name; None for a bare number; _UNKNOWN
+    literal: bool = False  # a Number written with a unit (its value may still be converted)
 
 
 def _canonical(unit: str) -> str:
@@ -129,13 +148,15 @@ class _Checker:
 
     def need_flag(self, t: _Typed) -> None:
         if t.kind != "flag":
-            raise self.err(f"'{self.q(t.node)}' is a number, not a flag", t.node,
-                           f"compare it, e.g. {self.example(t)}")
+            raise self.err(f"'{self.q(t.node)}' is a number, not a flag", t.node, f"compare it, e.g. {self.example(t)}")
 
     def need_number(self, t: _Typed, what: str) -> None:
         if t.kind != "number":
-            raise self.err(f"'{self.q(t.node)}' is a flag (true/false), not a number", t.node,
-                           f"{what} needs numbers; combine flags with and / or / not")
+            raise self.err(
+                f"'{self.q(t.node)}' is a flag (true/false), not a number",
+                t.node,
+                f"{what} needs numbers; combine flags with and / or / not",
+            )
 
     # dispatch
     def check(self, node: Node) -> _Typed:
@@ -191,8 +212,11 @@ class _Checker:
             self.need_flag(t)
             return _Typed(replace(node, operand=t.node), "flag")
         if t.kind != "number":
-            raise self.err(f"'{self.q(t.node)}' is a flag (true/false), not a number", t.node,
-                           f"write not {self.q(t.node)} to negate a flag")
+            raise self.err(
+                f"'{self.q(t.node)}' is a flag (true/false), not a number",
+                t.node,
+                f"write not {self.q(t.node)} to negate a flag",
+            )
         return _Typed(replace(node, operand=t.node), "number", t.unit)
 
     def check_binary(self, node: Binary) -> _Typed:
@@ -214,18 +238,24 @@ class _Checker:
             if a.kind == "flag" or b.kind == "flag":
                 if a.kind != b.kind:
                     flag, num = (a, b) if a.kind == "flag" else (b, a)
-                    raise self.err(f"'{self.q(flag.node)}' is a flag (true/false) and cannot be compared "
-                                   f"with the number '{self.q(num.node)}'", flag.node,
-                                   f"use the flag itself ({self.q(flag.node)}), its negation, "
-                                   f"or compare it with true / false")
+                    raise self.err(
+                        f"'{self.q(flag.node)}' is a flag (true/false) and cannot be compared "
+                        f"with the number '{self.q(num.node)}'",
+                        flag.node,
+                        f"use the flag itself ({self.q(flag.node)}), its negation, or compare it with true / false",
+                    )
                 if op not in ("==", "!="):
-                    raise self.err(f"flags can only be compared with == or !=, not {op}", op_start,
-                                   "use the flag itself, not, or == true / == false")
+                    raise self.err(
+                        f"flags can only be compared with == or !=, not {op}",
+                        op_start,
+                        "use the flag itself, not, or == true / == false",
+                    )
                 left, right = a.node, b.node
             else:
                 left, right, _ = self.unify(a, b)
-            pairs.append(Compare(start=a.node.start, end=b.node.end, ops=(op,), operands=(left, right),
-                                 op_starts=(op_start,)))
+            pairs.append(
+                Compare(start=a.node.start, end=b.node.end, ops=(op,), operands=(left, right), op_starts=(op_start,))
+            )
         if len(pairs) == 1:
             return _Typed(replace(pairs[0], start=node.start, end=node.end), "flag")
         return _Typed(Logical(start=node.start, end=node.end, op="and", operands=tuple(pairs)), "flag")
@@ -236,8 +266,11 @@ class _Checker:
         if func == "missing":
             (t,) = typed
             if t.kind == "flag" and not isinstance(t.node, Name):
-                raise self.err("missing() takes a number or a feature name", t.node,
-                               "write e.g. missing(fog) or missing(visibility_m)")
+                raise self.err(
+                    "missing() takes a number or a feature name",
+                    t.node,
+                    "write e.g. missing(fog) or missing(visibility_m)",
+                )
             return _Typed(replace(node, args=(t.node,)), "flag")
         for t in typed:
             self.need_number(t, f"{func}()")
@@ -247,8 +280,9 @@ class _Checker:
             unit = typed[0].unit if typed[0].unit in (None, "1") else _UNKNOWN
             return _Typed(replace(node, args=(typed[0].node,)), "number", unit)
         # min / max: bring every argument into the unit of the first measured one
-        ref = next((t for t in typed if t.unit is not None and not t.literal), None) \
-            or next((t for t in typed if t.unit is not None), typed[0])
+        ref = next((t for t in typed if t.unit is not None and not t.literal), None) or next(
+            (t for t in typed if t.unit is not None), typed[0]
+        )
         args = []
         for t in typed:
             if t is ref:
@@ -261,7 +295,7 @@ class _Checker:
     # units
     def to_unit(self, t: _Typed, unit: str) -> Node:
         """``t``'s node expressed in ``unit`` (literals converted now, others by a Convert node)."""
-        if t.unit is None or t.unit == unit:      # a bare number takes the unit it meets
+        if t.unit is None or t.unit == unit:  # a bare number takes the unit it meets
             return t.node
         if isinstance(t.node, Number):
             return replace(t.node, value=float(units.convert(t.node.value, t.unit, unit)), unit=unit)
@@ -271,14 +305,17 @@ class _Checker:
         """The error for two quantities of different dimensions (``a`` preferably the literal)."""
         if b.literal and not a.literal:
             a, b = b, a
-        assert a.unit is not None and b.unit is not None   # bare numbers never mismatch
+        assert a.unit is not None and b.unit is not None  # bare numbers never mismatch
         what = f"'{self.q(a.node)}' is {_dimension_words(a.unit)}"
         if b.literal:
             hint = "write both values in units of the same kind"
             return self.err(f"{what} but '{self.q(b.node)}' is {_dimension_words(b.unit)}", a.node, hint)
         if a.literal:
-            hint = ("write a plain number" if units.dimension(b.unit) == "dimensionless"
-                    else f"write the value in {b.unit} or another unit of the same kind")
+            hint = (
+                "write a plain number"
+                if units.dimension(b.unit) == "dimensionless"
+                else f"write the value in {b.unit} or another unit of the same kind"
+            )
         else:
             hint = "only quantities of the same kind can be compared, added or subtracted"
         return self.err(f"{what} but '{self.q(b.node)}' is {_in_unit(b.unit)}", a.node, hint)
@@ -291,14 +328,16 @@ class _Checker:
         if _UNKNOWN in (ua, ub):
             lit, other = (b, a) if (b.literal and ua == _UNKNOWN) else (a, b)
             if lit.literal and other.unit == _UNKNOWN:
-                raise self.err(f"cannot convert '{self.q(lit.node)}': the unit of '{self.q(other.node)}' "
-                               f"is not known", lit.node,
-                               f"write a plain number in the unit of '{self.q(other.node)}'")
+                raise self.err(
+                    f"cannot convert '{self.q(lit.node)}': the unit of '{self.q(other.node)}' is not known",
+                    lit.node,
+                    f"write a plain number in the unit of '{self.q(other.node)}'",
+                )
             return a.node, b.node, _UNKNOWN
         if ua == ub:
             return a.node, b.node, ua
         try:
-            if b.literal:   # a feature (or a first literal) sets the unit
+            if b.literal:  # a feature (or a first literal) sets the unit
                 return a.node, self.to_unit(b, ua), ua
             if a.literal:
                 return self.to_unit(a, ub), b.node, ub
@@ -315,21 +354,27 @@ class _Checker:
             return self.unify(a, b)
         da, db = units.dimension(ua), units.dimension(ub)
         if da == db == _T:
-            if b.literal:                        # air_temp_c - 2 degF: the literal is a difference
+            if b.literal:  # air_temp_c - 2 degF: the literal is a difference
                 return self.to_unit(a, "degC"), self.to_unit(b, "delta_degC"), "degC"
-            if a.literal and node.op == "+":     # 2 degF + air_temp_c
+            if a.literal and node.op == "+":  # 2 degF + air_temp_c
                 return self.to_unit(a, "delta_degC"), self.to_unit(b, "degC"), "degC"
-            if node.op == "-":                   # air_temp_c - dew_point_c: a difference
+            if node.op == "-":  # air_temp_c - dew_point_c: a difference
                 return self.to_unit(a, "degC"), self.to_unit(b, "degC"), "delta_degC"
-            raise self.err("adding two temperatures has no meaning", node.op_start,
-                           "subtract them for a difference, e.g. air_temp_c - dew_point_c")
+            raise self.err(
+                "adding two temperatures has no meaning",
+                node.op_start,
+                "subtract them for a difference, e.g. air_temp_c - dew_point_c",
+            )
         if {da, db} == {_T, _D}:
             absolute = a if da == _T else b
-            if absolute.literal:                 # a temperature next to a difference is a difference
+            if absolute.literal:  # a temperature next to a difference is a difference
                 return self.to_unit(a, "delta_degC"), self.to_unit(b, "delta_degC"), "delta_degC"
             if da == _D and node.op == "-":
-                raise self.err("subtracting a temperature from a temperature difference has no meaning",
-                               node.op_start, "write the temperature first, e.g. air_temp_c - 2 degC")
+                raise self.err(
+                    "subtracting a temperature from a temperature difference has no meaning",
+                    node.op_start,
+                    "write the temperature first, e.g. air_temp_c - 2 degC",
+                )
             left = self.to_unit(a, "degC" if da == _T else "delta_degC")
             right = self.to_unit(b, "degC" if db == _T else "delta_degC")
             return left, right, "degC"
@@ -339,9 +384,14 @@ class _Checker:
         """Units for ``a * b`` / ``a / b``: a bare or dimensionless factor keeps the other's unit."""
         ua, ub = a.unit, b.unit
         left, right = a.node, b.node
-        if (ua is not None and ub is not None and _UNKNOWN not in (ua, ub) and ua != ub
-                and units.dimension(ua) == units.dimension(ub)
-                and (a.literal or b.literal or op == "/")):
+        if (
+            ua is not None
+            and ub is not None
+            and _UNKNOWN not in (ua, ub)
+            and ua != ub
+            and units.dimension(ua) == units.dimension(ub)
+            and (a.literal or b.literal or op == "/")
+        ):
             left, right, ua = self.unify(a, b)  # wind_mean_ms / 8 kn: one unit first, then divide
             ub = ua
         if op == "*":
@@ -359,4 +409,3 @@ class _Checker:
         if ua == ub and ua != _UNKNOWN:
             return left, right, "1"
         return left, right, _UNKNOWN
-

@@ -39,24 +39,35 @@ from advisor.vocabulary import DEMO_BANNER, VERDICT
 
 HTML_REFRESH_S = 60
 #: Page colours per verdict (background, text), matching the terminal's badge colours.
-VERDICT_COLOURS = {"scan": ("#1e8c3a", "#ffffff"), "astronomical": ("#0e7c99", "#ffffff"),
-                   "postpone": ("#c99a06", "#111111"), "undetermined": ("#c62828", "#ffffff")}
+VERDICT_COLOURS = {
+    "scan": ("#1e8c3a", "#ffffff"),
+    "astronomical": ("#0e7c99", "#ffffff"),
+    "postpone": ("#c99a06", "#111111"),
+    "undetermined": ("#c62828", "#ffffff"),
+}
 
 
 def advisory_json(check_doc: dict, change: Change) -> dict:
     """The ``check --json`` object plus the tick's own keys."""
     doc = dict(check_doc)
-    doc.update({"issued_utc": change.state.issued_utc, "changed_since": change.state.since_utc,
-                "previous_verdict": change.previous_verdict,
-                "undetermined_ticks": change.state.undetermined_ticks,
-                "feed_looks_dead": change.feed_looks_dead})
+    doc.update(
+        {
+            "issued_utc": change.state.issued_utc,
+            "changed_since": change.state.since_utc,
+            "previous_verdict": change.previous_verdict,
+            "undetermined_ticks": change.state.undetermined_ticks,
+            "feed_looks_dead": change.feed_looks_dead,
+        }
+    )
     return doc
 
 
 def issued_line(change: Change) -> str:
     """When this advisory was issued and since when its verdict holds."""
-    return (f"Issued {short_utc(change.state.issued_utc)} by advisor tick; "
-            f"{change.state.verdict} since {short_utc(change.state.since_utc)}.")
+    return (
+        f"Issued {short_utc(change.state.issued_utc)} by advisor tick; "
+        f"{change.state.verdict} since {short_utc(change.state.since_utc)}."
+    )
 
 
 def advisory_title(verdict: str, site_name: str) -> str:
@@ -158,9 +169,11 @@ def _methods(call: Call) -> str:
         feasible = call.candidates[method]["feasible"]
         state = "feasible" if feasible else ("blocked by: " + ", ".join(names) if names else "not feasible")
         figs = f"{rms} · η {eta} · odds {p} · {takes}"
-        out.append(f'<div class="method {"ok" if feasible else "blocked"}" data-method="{method}">'
-                   f'<span class="name">{_esc(label)}</span> <span class="figs">{_nowrap_units(figs)}</span><br>'
-                   f'<span class="state">{_nowrap_units(state)}</span></div>')
+        out.append(
+            f'<div class="method {"ok" if feasible else "blocked"}" data-method="{method}">'
+            f'<span class="name">{_esc(label)}</span> <span class="figs">{_nowrap_units(figs)}</span><br>'
+            f'<span class="state">{_nowrap_units(state)}</span></div>'
+        )
     return "\n".join(out)
 
 

@@ -28,8 +28,16 @@ HEADLINE = "The advisor could not evaluate this run; the previous advisory is wi
 REFRESH_S = 60
 
 
-def failed_advisory(change: Change, problem: str, exit_status: int, *, site_name: str | None, time_utc: str,
-                    freq_ghz: float | None, stale_after_min: float) -> dict[str, str]:
+def failed_advisory(
+    change: Change,
+    problem: str,
+    exit_status: int,
+    *,
+    site_name: str | None,
+    time_utc: str,
+    freq_ghz: float | None,
+    stale_after_min: float,
+) -> dict[str, str]:
     """``advisory.json``, ``advisory.txt`` and ``advisory.html`` of a run that failed with ``problem``.
 
     ``change`` is the tick's change record for the verdict ``undetermined``; ``time_utc`` the
@@ -49,9 +57,19 @@ def failed_advisory(change: Change, problem: str, exit_status: int, *, site_name
         "reasons": [reason],
         "features": {name: None for name in CATALOGUE},
         "calibrator": None,
-        "candidates": {m: {"feasible": False, "surface_rms_um": None, "ruze_efficiency": None,
-                           "meets_requirement": None, "requirement_margin_um": None, "p_usable": None,
-                           "duration_min": None, "blocked_by": [FAILED_RULE]} for m in METHODS},
+        "candidates": {
+            m: {
+                "feasible": False,
+                "surface_rms_um": None,
+                "ruze_efficiency": None,
+                "meets_requirement": None,
+                "requirement_margin_um": None,
+                "p_usable": None,
+                "duration_min": None,
+                "blocked_by": [FAILED_RULE],
+            }
+            for m in METHODS
+        },
         "data_quality": {"ok": False, "error": problem},
         "next_window": None,
         "notes": [],
@@ -66,24 +84,35 @@ def failed_advisory(change: Change, problem: str, exit_status: int, *, site_name
     }
     label = VERDICT["undetermined"].label
     freq = f" · {freq_ghz:g} GHz" if freq_ghz else ""
-    issued = (f"Issued {short_utc(change.state.issued_utc)} by advisor tick; "
-              f"undetermined since {short_utc(change.state.since_utc)}.")
-    text = "\n".join([
-        issued,
-        f"advisor · {site or 'site not read'} · {time_utc.replace('T', ' ').replace('Z', ' UTC')}{freq}",
-        f"VERDICT: {label} — {HEADLINE}",
-        "",
-        "Reasons:",
-        f"  - block [{FAILED_RULE}, both]: {problem}",
-        "",
-        "Cautions: " + " ".join(CAUTIONS),
-        "",
-    ])
-    page = _PAGE.format(refresh=REFRESH_S, title=html.escape(f"{label} · {site or 'advisor'} · advisor"),
-                        body=html.escape(text), issued=html.escape(change.state.issued_utc),
-                        stale_min=f"{stale_after_min:g}")
-    return {"advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n", "advisory.txt": text,
-            "advisory.html": page}
+    issued = (
+        f"Issued {short_utc(change.state.issued_utc)} by advisor tick; "
+        f"undetermined since {short_utc(change.state.since_utc)}."
+    )
+    text = "\n".join(
+        [
+            issued,
+            f"advisor · {site or 'site not read'} · {time_utc.replace('T', ' ').replace('Z', ' UTC')}{freq}",
+            f"VERDICT: {label} — {HEADLINE}",
+            "",
+            "Reasons:",
+            f"  - block [{FAILED_RULE}, both]: {problem}",
+            "",
+            "Cautions: " + " ".join(CAUTIONS),
+            "",
+        ]
+    )
+    page = _PAGE.format(
+        refresh=REFRESH_S,
+        title=html.escape(f"{label} · {site or 'advisor'} · advisor"),
+        body=html.escape(text),
+        issued=html.escape(change.state.issued_utc),
+        stale_min=f"{stale_after_min:g}",
+    )
+    return {
+        "advisory.json": json.dumps(doc, indent=2, allow_nan=False) + "\n",
+        "advisory.txt": text,
+        "advisory.html": page,
+    }
 
 
 _PAGE = """<!DOCTYPE html>

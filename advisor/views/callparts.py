@@ -40,13 +40,24 @@ _EFFECT_ORDER = {effect: k for k, effect in enumerate(SEVERITY)}
 #: A method as the object of a sentence ("why not the astronomical method").
 METHOD_PHRASE = {"scan": "the laser scan", "astronomical": "the astronomical method"}
 #: Reasons the decision itself gives (not a rule of the rule set), as words for a table cell.
-_OWN_REASON_WORDS = {"data": "stale or bad data", "feed": "feed unreadable", "model": "site model odds",
-                     "budget": "efficiency below minimum", "efficiency": "efficiency below minimum",
-                     "target": "frequency out of reach", "choice": "the other is better"}
+_OWN_REASON_WORDS = {
+    "data": "stale or bad data",
+    "feed": "feed unreadable",
+    "model": "site model odds",
+    "budget": "efficiency below minimum",
+    "efficiency": "efficiency below minimum",
+    "target": "frequency out of reach",
+    "choice": "the other is better",
+}
 #: The conditions the compact screen shows on one line, in this order.
 COMPACT_FEATURES = ("wind_mean_ms", "wind_gust_ms", "dew_point_spread_c", "precip_mm_h", "visibility_m")
-_COMPACT_LABEL = {"wind_mean_ms": "wind", "wind_gust_ms": "gusts", "dew_point_spread_c": "spread",
-                  "precip_mm_h": "rain", "visibility_m": "vis"}
+_COMPACT_LABEL = {
+    "wind_mean_ms": "wind",
+    "wind_gust_ms": "gusts",
+    "dew_point_spread_c": "spread",
+    "precip_mm_h": "rain",
+    "visibility_m": "vis",
+}
 # Statistical asides that mean nothing to an operator: "(+1.0 log-odds vs. ...)", "(+0.5)".
 #: A reason's lead clause shorter than this [characters] is shown with the rest of its message.
 SHORT_CAUSE_CHARS = 40
@@ -84,13 +95,13 @@ def feature_label(name: str, features: dict) -> str:
     if window and name == "wind_gust_ms":
         return f"gusts ({window} max)"
     rate_window = features.get("temp_rate_window_min")
-    if name == "air_temp_rate_c_per_h" and rate_window is not None and math.isfinite(rate_window) \
-            and rate_window > 60:
+    if name == "air_temp_rate_c_per_h" and rate_window is not None and math.isfinite(rate_window) and rate_window > 60:
         return f"temperature rate (over {_window_text(rate_window)})"
     return label
 
 
 # --- reasons ------------------------------------------------------------------------------
+
 
 def ordered_reasons(call: Call) -> list[Reason]:
     """Reasons, most severe first (stable within one severity)."""
@@ -127,7 +138,7 @@ def plain_words(message: str) -> str:
     text = fmt.no_minus_zero(_JARGON.sub("", message))
     for label in METHOD_LABEL.values():
         if text.startswith(label + ": "):
-            text = text[len(label) + 2:]
+            text = text[len(label) + 2 :]
             break
     return text[:1].upper() + text[1:]
 
@@ -191,9 +202,9 @@ def _without_restated_verdict(call: Call) -> str:
 class Item:
     """One reason as a section shows it: its words, the compact words, and where it came from."""
 
-    text: str           # the full message (with who it stops, where the section does not say)
-    short: str          # plain words: no statistical asides
-    cause: str          # the lead clause only: what happened, with its numbers
+    text: str  # the full message (with who it stops, where the section does not say)
+    short: str  # plain words: no statistical asides
+    cause: str  # the lead clause only: what happened, with its numbers
     rule: str
     applies_to: str
     effect: str
@@ -212,7 +223,7 @@ def _item(reason: Reason, who: bool = False) -> Item:
     if who:
         label = METHOD_LABEL.get(reason.applies_to, "")
         prefix = "both" if reason.applies_to == "both" else label or reason.applies_to
-        full = f"{prefix}: {full[len(label) + 2:] if label and full.startswith(label + ': ') else full}"
+        full = f"{prefix}: {full[len(label) + 2 :] if label and full.startswith(label + ': ') else full}"
         short, cause = (f"{prefix}: {t}" for t in (short, cause))
     return Item(full, short, cause, reason.rule, reason.applies_to, reason.effect)
 
@@ -251,6 +262,7 @@ def sections(call: Call) -> list[Section]:
 
 # --- figures ------------------------------------------------------------------------------
 
+
 def candidate_rows(call: Call):
     """One row of text per method: label, feasible, surface rms, Ruze η, p usable, duration, blocked by."""
     for method, label in METHOD_LABEL.items():
@@ -258,8 +270,15 @@ def candidate_rows(call: Call):
         rms = "n/a" if c["surface_rms_um"] is None else f"{fmt.fixed(c['surface_rms_um'], 0)} µm"
         eta = fmt.fixed(c["ruze_efficiency"], 2)
         p = "—" if c["p_usable"] is None else fmt.odds_text(c["p_usable"])
-        yield (label, "yes" if c["feasible"] else "no", rms, eta, p, fmt.duration_text(c["duration_min"]),
-               ", ".join(blocked_names(call, method)) or "—")
+        yield (
+            label,
+            "yes" if c["feasible"] else "no",
+            rms,
+            eta,
+            p,
+            fmt.duration_text(c["duration_min"]),
+            ", ".join(blocked_names(call, method)) or "—",
+        )
 
 
 def feature_text(name: str, fmt_pattern: str, features: dict) -> str:
@@ -298,7 +317,7 @@ def conditions_line(call: Call) -> str:
     for name in COMPACT_FEATURES:
         text = feature_text(name, CATALOGUE[name].display_format, call.features)
         if text != "n/a":
-            label = feature_label(name, call.features)   # "wind (1-h mean)", "gusts (estimated)" when so
+            label = feature_label(name, call.features)  # "wind (1-h mean)", "gusts (estimated)" when so
             bits.append(f"{_COMPACT_LABEL[name] if label == CATALOGUE[name].label else label} {text}")
     return " · ".join(bits)
 
@@ -309,8 +328,9 @@ def data_age_text(call: Call) -> str:
     return "no good data" if age is None or not math.isfinite(age) else f"data age {fmt.duration_text(age)}"
 
 
-def next_window_text(next_window: dict, time_zone: str, compact: bool = False,
-                     since: pd.Timestamp | None = None) -> str:
+def next_window_text(
+    next_window: dict, time_zone: str, compact: bool = False, since: pd.Timestamp | None = None
+) -> str:
     """'Next window: laser scan 1 Dec 10:00 → 11:50 MST (17:00 → 18:50 UTC), 1 h 50 min; ...'.
 
     ``compact``: each method's start and length (``laser scan 15:50 MST (22:50 UTC) for 4 h 15 min``),
@@ -326,8 +346,9 @@ def next_window_text(next_window: dict, time_zone: str, compact: bool = False,
         length = w.get("length_min", (end - start).total_seconds() / 60)
         if compact:
             same_day = since is not None and fmt.same_local_day(start, since, time_zone)
-            bits.append(f"{label} {fmt.local_utc(start, time_zone, with_date=not same_day)} "
-                        f"for {fmt.duration_text(length)}")
+            bits.append(
+                f"{label} {fmt.local_utc(start, time_zone, with_date=not same_day)} for {fmt.duration_text(length)}"
+            )
         else:
             bits.append(f"{label} {fmt.span_text(start, end, time_zone)}, {fmt.duration_text(length)}")
     return "Next window: " + "; ".join(bits)

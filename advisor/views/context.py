@@ -30,7 +30,7 @@ class Context:
     data_quality: dict
     next_window: dict | None = None
     notes: tuple[str, ...] = ()
-    look_ahead: dict | None = None     # how long a correction holds, until when a postpone lasts, forecast check
+    look_ahead: dict | None = None  # how long a correction holds, until when a postpone lasts, forecast check
 
 
 def with_note(ctx: Context, note: str | None) -> Context:

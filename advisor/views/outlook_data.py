@@ -31,9 +31,13 @@ def _iso_local(times: pd.DatetimeIndex, tz: str) -> np.ndarray:
 def outlook_csv_frame(outlook: Outlook) -> pd.DataFrame:
     """One row per step: ``time`` (ISO 8601 UTC), ``verdict``, flags, conditions, per-method figures."""
     steps = outlook.steps
-    out = pd.DataFrame({"time": pd.DatetimeIndex(steps["time"]).strftime("%Y-%m-%dT%H:%M:%SZ"),
-                        "verdict": steps["verdict"].to_numpy(),
-                        "local_time": _iso_local(pd.DatetimeIndex(steps["time"]), outlook.site.time_zone)})
+    out = pd.DataFrame(
+        {
+            "time": pd.DatetimeIndex(steps["time"]).strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "verdict": steps["verdict"].to_numpy(),
+            "local_time": _iso_local(pd.DatetimeIndex(steps["time"]), outlook.site.time_zone),
+        }
+    )
     for name in ("gap", "beyond_horizon", "source", *STEP_FEATURES):
         out[name] = steps[name].to_numpy()
     for method in METHODS:
@@ -59,7 +63,7 @@ def outlook_json(outlook: Outlook, ctx: Context) -> dict:
     step_records = []
     columns = list(csv.columns)
     values = csv.to_numpy(dtype=object)
-    for row in values:                               # JSON records need Python objects
+    for row in values:  # JSON records need Python objects
         rec = {}
         for k, v in zip(columns, row):
             rec["time_utc" if k == "time" else k] = v if isinstance(v, str) else json_number(v)
@@ -68,10 +72,17 @@ def outlook_json(outlook: Outlook, ctx: Context) -> dict:
     for method in METHODS:
         for _, w in outlook.windows[method].iterrows():
             windows.append({"method": method, **window_dict(w)})
-    spans = [{"verdict": "undetermined" if r.category == "gap" else r.category, "gap": r.category == "gap",
-              "start_utc": r.start_utc.strftime("%Y-%m-%dT%H:%M:%SZ"), "end_utc": r.end_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
-              "steps": int(r.steps), **{f"{m}_blocked_by": list(getattr(r, f"{m}_blocked_by")) for m in METHODS}}
-             for r in rows_of(outlook.spans)]
+    spans = [
+        {
+            "verdict": "undetermined" if r.category == "gap" else r.category,
+            "gap": r.category == "gap",
+            "start_utc": r.start_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "end_utc": r.end_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
+            "steps": int(r.steps),
+            **{f"{m}_blocked_by": list(getattr(r, f"{m}_blocked_by")) for m in METHODS},
+        }
+        for r in rows_of(outlook.spans)
+    ]
     counts = {v: int((outlook.steps["verdict"] == v).sum()) for v in VERDICTS}
     counts["gap"] = int(outlook.steps["gap"].sum())
     return {
@@ -84,16 +95,21 @@ def outlook_json(outlook: Outlook, ctx: Context) -> dict:
         "to_utc": outlook.end_utc.strftime("%Y-%m-%dT%H:%M:%SZ"),
         "step_min": outlook.step_min,
         "time_zone": outlook.site.time_zone,
-        "forecast": {"issued_utc": [t.strftime("%Y-%m-%dT%H:%M:%SZ") for t in outlook.issued_utc],
-                     "horizon_h": outlook.horizon_h, "margins": outlook.margins,
-                     "steps_beyond_horizon": int(outlook.steps["beyond_horizon"].sum())},
+        "forecast": {
+            "issued_utc": [t.strftime("%Y-%m-%dT%H:%M:%SZ") for t in outlook.issued_utc],
+            "horizon_h": outlook.horizon_h,
+            "margins": outlook.margins,
+            "steps_beyond_horizon": int(outlook.steps["beyond_horizon"].sum()),
+        },
         "counts": counts,
         "min_window_min": outlook.min_window_min,
         "next_window": outlook.next_window,
         "windows": windows,
         "spans": spans,
-        "sun_events": [{"event": e, "time_utc": t.strftime("%Y-%m-%dT%H:%M:%SZ")}
-                       for e, t in zip(outlook.sun_events["event"], outlook.sun_events["time_utc"])],
+        "sun_events": [
+            {"event": e, "time_utc": t.strftime("%Y-%m-%dT%H:%M:%SZ")}
+            for e, t in zip(outlook.sun_events["event"], outlook.sun_events["time_utc"])
+        ],
         "steps": step_records,
         "data_quality": ctx.data_quality,
         "notes": [*ctx.notes, *outlook.notes],

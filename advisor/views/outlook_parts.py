@@ -27,8 +27,19 @@ from advisor.vocabulary import METHOD_LABEL, METHODS, VERDICT
 
 #: From this width [columns] the windows are shown as a table; narrower, as a two-line list.
 WIDE_TABLE_MIN = 130
-WINDOW_HEADERS = ("method", "from (local)", "to (local)", "from (UTC)", "length", "wind max", "gust max",
-                  "spread min", "mean η", "advised", "note")
+WINDOW_HEADERS = (
+    "method",
+    "from (local)",
+    "to (local)",
+    "from (UTC)",
+    "length",
+    "wind max",
+    "gust max",
+    "spread min",
+    "mean η",
+    "advised",
+    "note",
+)
 
 
 def rows_of(table: pd.DataFrame) -> Iterator[Any]:
@@ -62,8 +73,7 @@ def sun_text(outlook: Outlook) -> str:
     if len(ev) == 0:
         return ""
     tzname = tz_abbrev(outlook.start_utc, tz)
-    parts = [f"{e} {fmt_local(t, tz)} {tzname} ({fmt_utc(t, False)} UTC)"
-             for e, t in zip(ev["event"], ev["time_utc"])]
+    parts = [f"{e} {fmt_local(t, tz)} {tzname} ({fmt_utc(t, False)} UTC)" for e, t in zip(ev["event"], ev["time_utc"])]
     return "Sun: " + "; ".join(parts)
 
 
@@ -73,17 +83,27 @@ def window_rows(outlook: Outlook) -> list[tuple[str, ...]]:
     rows: list[tuple[str, ...]] = []
     for method in METHODS:
         table = outlook.windows[method]
-        for w in rows_of(table):        # one row per window, not per step
+        for w in rows_of(table):  # one row per window, not per step
             note = []
             if w.beyond_horizon:
                 note.append("beyond horizon")
             if w.open_end:
                 note.append("runs past the outlook")
-            rows.append((METHOD_LABEL[method], fmt_local(w.start_utc, tz), fmt_local(w.end_utc, tz),
-                         fmt_utc(w.start_utc), length_text(w.length_min),
-                         _num(w.max_wind_mean_ms, "{:.1f} m/s"), _num(w.max_wind_gust_ms, "{:.1f} m/s"),
-                         _num(w.min_dew_point_spread_c, "{:.1f} °C"), _num(w.mean_ruze_efficiency, "{:.2f}"),
-                         f"{w.advised_fraction:.0%}", ", ".join(note)))
+            rows.append(
+                (
+                    METHOD_LABEL[method],
+                    fmt_local(w.start_utc, tz),
+                    fmt_local(w.end_utc, tz),
+                    fmt_utc(w.start_utc),
+                    length_text(w.length_min),
+                    _num(w.max_wind_mean_ms, "{:.1f} m/s"),
+                    _num(w.max_wind_gust_ms, "{:.1f} m/s"),
+                    _num(w.min_dew_point_spread_c, "{:.1f} °C"),
+                    _num(w.mean_ruze_efficiency, "{:.2f}"),
+                    f"{w.advised_fraction:.0%}",
+                    ", ".join(note),
+                )
+            )
     return rows
 
 
@@ -99,13 +119,18 @@ def window_list_lines(outlook: Outlook) -> list[str]:
     tz = outlook.site.time_zone
     lines = []
     for method in METHODS:
-        for w in rows_of(outlook.windows[method]):   # one entry per window
+        for w in rows_of(outlook.windows[method]):  # one entry per window
             notes = (["beyond the forecast horizon"] if w.beyond_horizon else []) + (
-                ["may run past the outlook"] if w.open_end else [])
-            lines.append(f"  {METHOD_LABEL[method]:<13}{when_text(w.start_utc, w.end_utc, tz)}, {length_text(w.length_min)}")
-            lines.append(f"      wind ≤ {_num(w.max_wind_mean_ms, '{:.1f}')} m/s (gusts "
-                         f"{_num(w.max_wind_gust_ms, '{:.1f}')}), spread ≥ {_num(w.min_dew_point_spread_c, '{:.1f}')} °C, "
-                         f"η {_num(w.mean_ruze_efficiency, '{:.2f}')}, advised {w.advised_fraction:.0%}")
+                ["may run past the outlook"] if w.open_end else []
+            )
+            lines.append(
+                f"  {METHOD_LABEL[method]:<13}{when_text(w.start_utc, w.end_utc, tz)}, {length_text(w.length_min)}"
+            )
+            lines.append(
+                f"      wind ≤ {_num(w.max_wind_mean_ms, '{:.1f}')} m/s (gusts "
+                f"{_num(w.max_wind_gust_ms, '{:.1f}')}), spread ≥ {_num(w.min_dew_point_spread_c, '{:.1f}')} °C, "
+                f"η {_num(w.mean_ruze_efficiency, '{:.2f}')}, advised {w.advised_fraction:.0%}"
+            )
             if notes:
                 lines.append(f"      {'; '.join(notes)}")
     return lines
@@ -132,8 +157,12 @@ def next_window_lines(outlook: Outlook) -> list[str]:
             lines.append(f"  {METHOD_LABEL[method]:<13}none of at least {need} in this outlook")
             continue
         s, e = pd.Timestamp(w["start_utc"]), pd.Timestamp(w["end_utc"])
-        flags = "".join(["; beyond the forecast horizon" if w["beyond_horizon"] else "",
-                         "; may run past the outlook" if w["open_end"] else ""])
+        flags = "".join(
+            [
+                "; beyond the forecast horizon" if w["beyond_horizon"] else "",
+                "; may run past the outlook" if w["open_end"] else "",
+            ]
+        )
         lines.append(f"  {METHOD_LABEL[method]:<13}{when_text(s, e, tz)}, {length_text(w['length_min'])}{flags}")
     return lines
 
@@ -143,7 +172,7 @@ def span_lines(outlook: Outlook, limit: int = 12) -> list[str]:
     tz = outlook.site.time_zone
     sp = outlook.spans
     out = []
-    for row in rows_of(sp.head(limit)):   # one line per span of one verdict
+    for row in rows_of(sp.head(limit)):  # one line per span of one verdict
         gap = row.category == "gap"
         what = "no forecast (gap)" if gap else VERDICT[row.category].words
         letter = GAP_LETTER if gap else VERDICT[row.category].letter
@@ -154,8 +183,10 @@ def span_lines(outlook: Outlook, limit: int = 12) -> list[str]:
                 if ids:
                     why.append(f"{METHOD_LABEL[method]} blocked by {', '.join(reason_name(i) for i in ids)}")
         same_day = row.start_utc.tz_convert(ZoneInfo(tz)).date() == row.end_utc.tz_convert(ZoneInfo(tz)).date()
-        out.append(f"  {fmt_local(row.start_utc, tz)} → {fmt_local(row.end_utc, tz, with_date=not same_day)}  "
-                   f"{letter} {what}" + (f" — {'; '.join(why)}" if why else ""))
+        out.append(
+            f"  {fmt_local(row.start_utc, tz)} → {fmt_local(row.end_utc, tz, with_date=not same_day)}  "
+            f"{letter} {what}" + (f" — {'; '.join(why)}" if why else "")
+        )
     if len(sp) > limit:
         out.append(f"  … {fmt.plural(len(sp) - limit, 'more span')} (see --json)")
     return out
@@ -166,9 +197,11 @@ def header_lines(outlook: Outlook, ctx: Context) -> list[str]:
     tz = outlook.site.time_zone
     tzname = tz_abbrev(outlook.start_utc, tz)
     s, e = outlook.start_utc, outlook.end_utc
-    lines = [f"advisor outlook · {ctx.site_name} · {fmt.freq_wave_text(outlook.freq_ghz)}",
-             f"{fmt_local(s, tz)} → {fmt_local(e, tz)} {tzname} ({fmt_utc(s)} → {fmt_utc(e)} UTC), "
-             f"{len(outlook.steps)} steps of {outlook.step_min:g} min"]
+    lines = [
+        f"advisor outlook · {ctx.site_name} · {fmt.freq_wave_text(outlook.freq_ghz)}",
+        f"{fmt_local(s, tz)} → {fmt_local(e, tz)} {tzname} ({fmt_utc(s)} → {fmt_utc(e)} UTC), "
+        f"{len(outlook.steps)} steps of {outlook.step_min:g} min",
+    ]
     if outlook.issued_utc:
         issued = ", ".join(f"{t:%Y-%m-%d %H:%M} UTC" for t in outlook.issued_utc[-3:])
         lines.append(f"Forecast issued {issued}; horizon {outlook.horizon_h:g} h.")

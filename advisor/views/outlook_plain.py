@@ -31,7 +31,7 @@ def _wrap(text: str, width: int, indent: str = "") -> list[str]:
     unit); continuation lines get ``indent``."""
     if len(text) <= width:
         return [text]
-    lead = text[:len(text) - len(text.lstrip())]
+    lead = text[: len(text) - len(text.lstrip())]
     return fmt.wrap(text.lstrip(), max(40, width), indent=lead + indent, first_indent=lead)
 
 

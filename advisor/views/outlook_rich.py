@@ -36,7 +36,7 @@ def _folded(text: str, inner: int, style: str = "", indent: str = "  "):
     """``text`` folded here (never between a number and its unit), so rich does not fold it again."""
     from rich.text import Text
 
-    lead = text[:len(text) - len(text.lstrip())]
+    lead = text[: len(text) - len(text.lstrip())]
     rows = fmt.wrap(text.lstrip(), inner, indent=lead + indent, first_indent=lead) if len(text) > inner else [text]
     return Text("\n".join(rows), style=style, no_wrap=True, overflow="ellipsis")
 
@@ -84,20 +84,30 @@ def outlook_renderable(outlook: Outlook, ctx: Context, width: int = 100):
         parts.append(Text("  none"))
     if not (rows and width >= WIDE_TABLE_MIN):
         parts.append(Text(""))
-    parts.append(Text(f"Next window (local time {tz_abbrev(outlook.start_utc, outlook.site.time_zone)})",
-                      style="bold underline"))
+    parts.append(
+        Text(f"Next window (local time {tz_abbrev(outlook.start_utc, outlook.site.time_zone)})", style="bold underline")
+    )
     for line in next_window_lines(outlook):
         parts.append(_folded(line, inner, "bold"))
     parts.append(Text(""))
-    parts.append(Text(f"Verdict spans (local time {tz_abbrev(outlook.start_utc, outlook.site.time_zone)})",
-                      style="bold underline"))
+    parts.append(
+        Text(
+            f"Verdict spans (local time {tz_abbrev(outlook.start_utc, outlook.site.time_zone)})", style="bold underline"
+        )
+    )
     for line in span_lines(outlook):
         parts.append(_folded(line, inner, indent="    "))
     parts.append(Text(""))
     parts.append(_folded(" ".join(CAUTIONS), inner, "dim italic", indent=""))
-    return Panel(Group(*parts), title=f"advisor outlook · {fmt.freq_wave_text(outlook.freq_ghz)}", title_align="left",
-                 border_style="blue",
-                 subtitle=Text(feed_title(ctx.feed_source, width)), subtitle_align="left", width=width)
+    return Panel(
+        Group(*parts),
+        title=f"advisor outlook · {fmt.freq_wave_text(outlook.freq_ghz)}",
+        title_align="left",
+        border_style="blue",
+        subtitle=Text(feed_title(ctx.feed_source, width)),
+        subtitle_align="left",
+        width=width,
+    )
 
 
 #: The SVG around rich's drawing: the text area only (no imitation window, no title bar) and
@@ -161,8 +171,10 @@ def _with_margin(svg: str, margin: float) -> str:
     if not match:
         return svg
     w, h = (float(v) for v in match.groups())
-    box = f'{-margin:g} {-margin:g} {w + 2 * margin:g} {h + 2 * margin:g}'
+    box = f"{-margin:g} {-margin:g} {w + 2 * margin:g} {h + 2 * margin:g}"
     svg = svg.replace(match.group(0), f'viewBox="{box}"', 1)
-    return svg.replace(f'<rect x="0" y="0" width="{match.group(1)}" height="{match.group(2)}" fill=',
-                       f'<rect x="{-margin:g}" y="{-margin:g}" width="{w + 2 * margin:g}" '
-                       f'height="{h + 2 * margin:g}" fill=', 1)
+    return svg.replace(
+        f'<rect x="0" y="0" width="{match.group(1)}" height="{match.group(2)}" fill=',
+        f'<rect x="{-margin:g}" y="{-margin:g}" width="{w + 2 * margin:g}" height="{h + 2 * margin:g}" fill=',
+        1,
+    )

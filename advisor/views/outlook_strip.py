@@ -68,7 +68,7 @@ def strip_lines(outlook: Outlook, width: int) -> list[list[tuple[str, str | None
     styles = {v: VERDICT[v].style for v in VERDICTS}
     styles["gap"] = GAP_STYLE
     lines: list[list[tuple[str, str | None]]] = []
-    tz_label = tz_abbrev(times[0], tz)[:LABEL_W - 1]
+    tz_label = tz_abbrev(times[0], tz)[: LABEL_W - 1]
     for a in range(0, n, per_row):
         b = min(n, a + per_row)
         w = b - a
@@ -76,24 +76,24 @@ def strip_lines(outlook: Outlook, width: int) -> list[list[tuple[str, str | None
         utc_buf = [" "] * w
         last_end = -1
         ticks = np.flatnonzero(is_tick[a:b])
-        if len(ticks) == 0 or ticks[0] >= 6:                # label the block's first cell too ("HH:MM ")
+        if len(ticks) == 0 or ticks[0] >= 6:  # label the block's first cell too ("HH:MM ")
             ticks = np.concatenate(([0], ticks))
-        for k in (int(t) for t in ticks):                # a few ticks per block
+        for k in (int(t) for t in ticks):  # a few ticks per block
             ts_l, ts_u = local[a + k], times[a + k]
             label = f"{ts_l.day} {ts_l:%b}" if minute_of_day[a + k] == 0 else f"{ts_l:%H:%M}"
             if k <= last_end or k + len(label) > w:
                 continue
-            loc_buf[k:k + len(label)] = label
+            loc_buf[k : k + len(label)] = label
             utc_label = f"{ts_u:%H:%M}"
-            utc_buf[k:k + len(utc_label)] = utc_label
+            utc_buf[k : k + len(utc_label)] = utc_label
             last_end = k + len(label)
         lines.append([(tz_label.ljust(LABEL_W), "dim"), ("".join(loc_buf), "bold")])
         cells: list[tuple[str, str | None]] = [("".ljust(LABEL_W), None)]
         keys = style_key[a:b]
         change = np.flatnonzero(np.concatenate(([True], keys[1:] != keys[:-1])))
         ends = np.append(change[1:], w)
-        for s, e in zip(change, ends):                  # runs of one verdict, not steps
-            cells.append(("".join(letter[a + s:a + e]), styles[keys[s]]))
+        for s, e in zip(change, ends):  # runs of one verdict, not steps
+            cells.append(("".join(letter[a + s : a + e]), styles[keys[s]]))
         lines.append(cells)
         lines.append([("UTC".ljust(LABEL_W), "dim"), ("".join(utc_buf), None)])
         lines.append([("sun".ljust(LABEL_W), "dim"), ("".join(sun_row[a:b]), "yellow")])

@@ -40,7 +40,7 @@ def short_path(path: str, max_len: int) -> str:
         tail = "…/" + "/".join(parts[-k:])
         if len(tail) <= max_len:
             return tail
-    return "…" + path[-(max_len - 1):]
+    return "…" + path[-(max_len - 1) :]
 
 
 def feed_title(source: str, width: int) -> str:
@@ -50,8 +50,15 @@ def feed_title(source: str, width: int) -> str:
     return "feed: " + " + ".join(short_path(s, room) for s in sources)
 
 
-def render_panel(call: Call, ctx: Context, width: int = 80, height: int = 24, details: bool = False,
-                 status: int | None = None, hint: str = DETAILS_HINT) -> Panel:
+def render_panel(
+    call: Call,
+    ctx: Context,
+    width: int = 80,
+    height: int = 24,
+    details: bool = False,
+    status: int | None = None,
+    hint: str = DETAILS_HINT,
+) -> Panel:
     """The terminal view, ``width`` columns wide; the compact default fits ``height`` lines."""
     from rich.console import Group
     from rich.panel import Panel
@@ -59,11 +66,17 @@ def render_panel(call: Call, ctx: Context, width: int = 80, height: int = 24, de
 
     inner = max(40, width - PANEL_FRAME)
     # a taller terminal shows more of the reasons; the borders, the command and the prompt take four lines
-    lines = screen_lines(call, ctx, inner, max_lines=max(COMPACT_LINES, height - 4), details=details,
-                         status=status, hint=hint)
-    body = [Text.assemble(*[(t, s) if s else t for t, s in line], no_wrap=True, overflow="ellipsis")
-            for line in lines]
+    lines = screen_lines(
+        call, ctx, inner, max_lines=max(COMPACT_LINES, height - 4), details=details, status=status, hint=hint
+    )
+    body = [Text.assemble(*[(t, s) if s else t for t, s in line], no_wrap=True, overflow="ellipsis") for line in lines]
     verdict = VERDICT[call.verdict]
-    return Panel(Group(*body), title=Text(f"advisor · {ctx.site_name}"), title_align="left",
-                 border_style=verdict.style.split()[-1], subtitle=Text(feed_title(ctx.feed_source, width)),
-                 subtitle_align="left", width=width)
+    return Panel(
+        Group(*body),
+        title=Text(f"advisor · {ctx.site_name}"),
+        title_align="left",
+        border_style=verdict.style.split()[-1],
+        subtitle=Text(feed_title(ctx.feed_source, width)),
+        subtitle_align="left",
+        width=width,
+    )

@@ -13,11 +13,18 @@ from advisor.views.panel import short_path
 from advisor.views.screen import COMPACT_LINES, DETAILS_HINT, Line, plain_text, screen_lines
 
 
-def render_plain(call: Call, ctx: Context, width: int = 80, details: bool = False, status: int | None = None,
-                 hint: str = DETAILS_HINT) -> str:
+def render_plain(
+    call: Call,
+    ctx: Context,
+    width: int = 80,
+    details: bool = False,
+    status: int | None = None,
+    hint: str = DETAILS_HINT,
+) -> str:
     """The call as text folded to ``width`` columns; the compact default fits 80×24."""
-    lines = screen_lines(call, ctx, width, max_lines=COMPACT_LINES, details=details, status=status, hint=hint,
-                         plain=True)
+    lines = screen_lines(
+        call, ctx, width, max_lines=COMPACT_LINES, details=details, status=status, hint=hint, plain=True
+    )
     title: Line = [(f"advisor · {ctx.site_name}", None)]
     sources = " + ".join(short_path(s, width - 8) for s in ctx.feed_source.split(" + "))
     feed: list[Line] = [] if details else [[(f"feed: {sources}", None)]]

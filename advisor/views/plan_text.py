@@ -1,8 +1,8 @@
 """The session plan as plain text: headline, schedule, the alternatives in one table, a timeline strip.
 
-    render_plain_plan(plan, ctx, width=100)
-    alternative_rows(plan)      the table's rows (also used by the SVG legend)
-    schedule_lines(plan)        one line per planned correction
+render_plain_plan(plan, ctx, width=100)
+alternative_rows(plan)      the table's rows (also used by the SVG legend)
+schedule_lines(plan)        one line per planned correction
 """
 
 from __future__ import annotations
@@ -21,8 +21,12 @@ from advisor.vocabulary import DEMO_BANNER
 ALTERNATIVE_HEADERS = ("alternative", "corrections", "session η", "time lost", "integration time")
 #: One letter per step in the timeline: a correction by each method, observing, no usable weather.
 STEP_LETTER = {"scan": "L", "astronomical": "H", "observe": "o", "unknown": "?"}
-VERDICT_WORDS = {"correct": "PLAN", "no_correction": "NO CORRECTION NEEDED", "not_possible": "POSTPONE",
-                 "undetermined": "UNDETERMINED"}
+VERDICT_WORDS = {
+    "correct": "PLAN",
+    "no_correction": "NO CORRECTION NEEDED",
+    "not_possible": "POSTPONE",
+    "undetermined": "UNDETERMINED",
+}
 
 
 def _zone(plan: Plan) -> ZoneInfo:
@@ -44,9 +48,11 @@ def session_line(plan: Plan) -> str:
     s, e = plan.start_utc.tz_convert(zone), plan.end_utc.tz_convert(zone)
     end_day = "" if s.date() == e.date() else f"{e:%-d %b} "
     hours = len(plan.steps) * plan.step_min / 60.0
-    return (f"Session {s:%-d %b %H:%M} → {end_day}{e:%H:%M %Z} ({plan.start_utc:%H:%M} → {plan.end_utc:%H:%M} UTC), "
-            f"{hours:g} h in {len(plan.steps)} steps of {plan.step_min:g} min; requirement "
-            f"λ/{plan.site.thresholds.surface_requirement_fraction:g} = {plan.required_surface_rms_um:.0f} µm")
+    return (
+        f"Session {s:%-d %b %H:%M} → {end_day}{e:%H:%M %Z} ({plan.start_utc:%H:%M} → {plan.end_utc:%H:%M} UTC), "
+        f"{hours:g} h in {len(plan.steps)} steps of {plan.step_min:g} min; requirement "
+        f"λ/{plan.site.thresholds.surface_requirement_fraction:g} = {plan.required_surface_rms_um:.0f} µm"
+    )
 
 
 def schedule_lines(plan: Plan) -> list[str]:
@@ -54,12 +60,20 @@ def schedule_lines(plan: Plan) -> list[str]:
     lines = []
     for c in plan.corrections:
         odds = "" if c.p_usable is None else f", odds {fmt.odds_text(c.p_usable)}"
-        holds = ("holds to the session's end" if c.holds_until_utc is None
-                 else f"holds until about {_clock(c.holds_until_utc, plan)}")
-        fallback = "" if c.if_fails is None else (
-            f"; if it fails: {PLAN_LABEL[c.if_fails[0]]} at {_clock(c.if_fails[1], plan)}")
-        lines.append(f"{_clock(c.start_utc, plan)}–{_clock(c.end_utc, plan)}  {PLAN_LABEL[c.method]:<10}  "
-                     f"{c.surface_rms_um:.0f} µm → η {c.ruze_efficiency:.2f}{odds}; {holds}{fallback}")
+        holds = (
+            "holds to the session's end"
+            if c.holds_until_utc is None
+            else f"holds until about {_clock(c.holds_until_utc, plan)}"
+        )
+        fallback = (
+            ""
+            if c.if_fails is None
+            else (f"; if it fails: {PLAN_LABEL[c.if_fails[0]]} at {_clock(c.if_fails[1], plan)}")
+        )
+        lines.append(
+            f"{_clock(c.start_utc, plan)}–{_clock(c.end_utc, plan)}  {PLAN_LABEL[c.method]:<10}  "
+            f"{c.surface_rms_um:.0f} µm → η {c.ruze_efficiency:.2f}{odds}; {holds}{fallback}"
+        )
     return lines
 
 
@@ -83,9 +97,9 @@ def strip_line(plan: Plan) -> tuple[str, str]:
     hour = local.floor("h")
     new_hour = np.concatenate(([True], hour[1:] != hour[:-1]))
     marks = [" "] * (len(letters) + 5)
-    for k in (int(i) for i in np.flatnonzero(new_hour)):       # one mark per hour, where it fits
-        if all(c == " " for c in marks[max(0, k - 1):k + 5]):
-            marks[k:k + 5] = list(f"{local[k]:%H:%M}")
+    for k in (int(i) for i in np.flatnonzero(new_hour)):  # one mark per hour, where it fits
+        if all(c == " " for c in marks[max(0, k - 1) : k + 5]):
+            marks[k : k + 5] = list(f"{local[k]:%H:%M}")
     return "".join(marks).rstrip(), letters
 
 
@@ -130,11 +144,22 @@ def render_plain_plan(plan: Plan, ctx: Context, width: int = 100) -> str:
     lines.append("")
     for note in (*ctx.notes, *plan.notes):
         lines.extend(_wrap(note, width))
-    lines.extend(_wrap("feed: " + " + ".join(short_path(source, width - 8) for source in ctx.feed_source.split(" + ")),
-                       width))
+    lines.extend(
+        _wrap("feed: " + " + ".join(short_path(source, width - 8) for source in ctx.feed_source.split(" + ")), width)
+    )
     lines.extend(_wrap("Cautions: " + " ".join(CAUTIONS), width))
     return "\n".join(lines) + "\n"
 
 
-__all__ = ["ALTERNATIVE_HEADERS", "STEP_LETTER", "VERDICT_WORDS", "minutes_text", "session_line",
-           "schedule_lines", "alternative_rows", "strip_line", "efficiency_line", "render_plain_plan"]
+__all__ = [
+    "ALTERNATIVE_HEADERS",
+    "STEP_LETTER",
+    "VERDICT_WORDS",
+    "minutes_text",
+    "session_line",
+    "schedule_lines",
+    "alternative_rows",
+    "strip_line",
+    "efficiency_line",
+    "render_plain_plan",
+]

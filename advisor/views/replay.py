@@ -34,7 +34,7 @@ def heat_strip(dominant: pd.DataFrame):
         strip.append(f" {v}  ")
     strip.append("\n")
     strip.append("         " + "".join(f"{h:<3d}" for h in range(0, 24, 3)).rstrip() + "\n", style="dim")
-    for month, row in dominant.iterrows():               # one line per month
+    for month, row in dominant.iterrows():  # one line per month
         strip.append(f"{month}  ")
         for verdict in row:
             if verdict:
@@ -60,19 +60,31 @@ def _attempt_parts(attempts: dict) -> list:
     for h in ("method", "attempts", "usable", "go", "false go", "missed"):
         table.add_column(h, justify="left" if h == "method" else "right", no_wrap=True)
     for method, m in attempts["methods"].items():
-        table.add_row(METHOD_LABEL[method], str(m["attempts"]), str(m["usable"]), str(m["allowed"]),
-                      f"{m['false_go']} ({pct(m['false_go_rate'])})", f"{m['missed']} ({pct(m['missed_rate'])})")
+        table.add_row(
+            METHOD_LABEL[method],
+            str(m["attempts"]),
+            str(m["usable"]),
+            str(m["allowed"]),
+            f"{m['false_go']} ({pct(m['false_go_rate'])})",
+            f"{m['missed']} ({pct(m['missed_rate'])})",
+        )
     parts.append(table)
     for method, m in attempts["methods"].items():
         if not m["per_rule"]:
             continue
-        rules = Table(title=f"{METHOD_LABEL[method]}: rules that fired at its attempts", box=box.SIMPLE_HEAD,
-                      title_justify="left")
+        rules = Table(
+            title=f"{METHOD_LABEL[method]}: rules that fired at its attempts", box=box.SIMPLE_HEAD, title_justify="left"
+        )
         for h in ("rule", "fired at", "failed", "false go", "missed"):
             rules.add_column(h, justify="left" if h == "rule" else "right", no_wrap=True)
         for r in m["per_rule"]:
-            rules.add_row(r["rule"], str(r["attempts_when_fired"]), str(r["failed_when_fired"]),
-                          str(r["false_go_when_fired"]), str(r["missed_when_fired"]))
+            rules.add_row(
+                r["rule"],
+                str(r["attempts_when_fired"]),
+                str(r["failed_when_fired"]),
+                str(r["false_go_when_fired"]),
+                str(r["missed_when_fired"]),
+            )
         parts.append(rules)
     return parts
 
@@ -80,22 +92,36 @@ def _attempt_parts(attempts: dict) -> list:
 def _comparison_parts(comparison: dict, attempts: dict | None) -> list:
     from rich.text import Text
 
-    parts: list = [Text("Compared rule set", style="bold underline"),
-                   f"  {comparison['hours_changed']:.1f} h change verdict"]
+    parts: list = [
+        Text("Compared rule set", style="bold underline"),
+        f"  {comparison['hours_changed']:.1f} h change verdict",
+    ]
     parts += [f"    {t['from']} → {t['to']}: {t['hours']:.1f} h" for t in comparison["transitions"]]
     parts += [f"    by {r['rule']}: {r['hours_changed']:.1f} h" for r in comparison["by_rule"]]
     if "attempts_b" in comparison and attempts:
         for method, a in attempts["methods"].items():
             b = comparison["attempts_b"]["methods"][method]
-            parts.append(f"  {METHOD_LABEL[method]}: false-go rate {pct(a['false_go_rate'])} → "
-                         f"{pct(b['false_go_rate'])}; missed rate {pct(a['missed_rate'])} → {pct(b['missed_rate'])}")
+            parts.append(
+                f"  {METHOD_LABEL[method]}: false-go rate {pct(a['false_go_rate'])} → "
+                f"{pct(b['false_go_rate'])}; missed rate {pct(a['missed_rate'])} → {pct(b['missed_rate'])}"
+            )
     return parts
 
 
-_WEATHER_WORDS = {"wind_above_limit": "mean wind above the limit", "fog": "fog likely", "precipitation": "precipitation",
-                  "night": "night", "gusts_estimated": "gusts estimated", "sensor_dropout": "sensor dropout"}
-_INPUT_WORDS = {"precip_mm_h": "precipitation", "visibility_m": "visibility", "pressure_hpa": "pressure",
-                "solar_wm2": "irradiance"}
+_WEATHER_WORDS = {
+    "wind_above_limit": "mean wind above the limit",
+    "fog": "fog likely",
+    "precipitation": "precipitation",
+    "night": "night",
+    "gusts_estimated": "gusts estimated",
+    "sensor_dropout": "sensor dropout",
+}
+_INPUT_WORDS = {
+    "precip_mm_h": "precipitation",
+    "visibility_m": "visibility",
+    "pressure_hpa": "pressure",
+    "solar_wm2": "irradiance",
+}
 
 
 def _weather_parts(summary: dict) -> list:
@@ -105,8 +131,10 @@ def _weather_parts(summary: dict) -> list:
         return []
     parts: list = ["Weather hours: " + " · ".join(f"{_WEATHER_WORDS.get(k, k)} {v:.1f} h" for k, v in weather.items())]
     for name, h in (not_seen or {}).items():
-        parts.append(f"Not seen: {_INPUT_WORDS.get(name, name)} {h['hours']:.1f} h (scan advised in "
-                     f"{h['scan_hours']:.1f} h of them; each such call names it as not seen)")
+        parts.append(
+            f"Not seen: {_INPUT_WORDS.get(name, name)} {h['hours']:.1f} h (scan advised in "
+            f"{h['scan_hours']:.1f} h of them; each such call names it as not seen)"
+        )
     return parts
 
 
@@ -121,10 +149,12 @@ def replay_renderable(summary: dict, dominant: pd.DataFrame, width: int = 80):
     hours = ", ".join(f"{v} {summary['hours'][v]:.1f} h ({summary['hours'][v] / total:.0%})" for v in VERDICTS)
     # folded here, never between a number and its unit, so a pipe shows the same as a terminal
     line = Text("\n".join(fmt.wrap(f"Hours per verdict: {hours}", width, indent="  ")), no_wrap=True)
-    parts: list = [f"Replay of {summary['feed']}",
-                   f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
-                   f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules",
-                   line]
+    parts: list = [
+        f"Replay of {summary['feed']}",
+        f"{summary['from_utc']} → {summary['to_utc']} · {summary['rows']} rows · "
+        f"{summary['target_freq_ghz']:g} GHz · {summary['rules']} rules",
+        line,
+    ]
     for warning in summary.get("warnings") or []:
         parts.append(Text(f"Warning: {warning}", style="bold yellow"))
 

@@ -54,13 +54,14 @@ DETAILS_HINT = "every reason and condition: add --details"
 DEMO_HINT = "next: --details · advisor outlook · advisor demo copy DIR"
 
 
-def _wrapped(text: str, width: int, style: str | None = None, indent: str = "", first: str = "",
-             max_rows: int | None = None) -> list[Line]:
+def _wrapped(
+    text: str, width: int, style: str | None = None, indent: str = "", first: str = "", max_rows: int | None = None
+) -> list[Line]:
     rows = fmt.wrap(text, width, indent=indent, first_indent=first)
     if max_rows is not None and len(rows) > max_rows:
         rows = rows[:max_rows]
         last = rows[-1]
-        rows[-1] = (last[:width - 1].rstrip() if len(last) >= width else last.rstrip()) + "…"
+        rows[-1] = (last[: width - 1].rstrip() if len(last) >= width else last.rstrip()) + "…"
     return [[(r, style)] for r in rows]
 
 
@@ -86,12 +87,12 @@ def _head(call: Call, width: int, max_rows: int | None, plain: bool) -> list[Lin
     indent = "  " if plain else " " * (len(badge[0]) + 2)
     text = cause_line(call, limit=2 if max_rows is None else 1)
     rows = fmt.wrap(text, first_w, indent="")
-    if len(rows) > 1:                        # the rest folds to the continuation width
-        rest = text[len(rows[0]):].strip()
+    if len(rows) > 1:  # the rest folds to the continuation width
+        rest = text[len(rows[0]) :].strip()
         rows = rows[:1] + fmt.wrap(rest, width - len(indent))
     if max_rows is not None and len(rows) > max_rows:
         rows = rows[:max_rows]
-        rows[-1] = rows[-1][:width - len(indent) - 1].rstrip() + "…"
+        rows[-1] = rows[-1][: width - len(indent) - 1].rstrip() + "…"
     lines: list[Line] = [[badge, (" " + rows[0] if plain else "  " + rows[0], "bold")]]
     lines += [[(indent + r, "bold")] for r in rows[1:]]
     return lines
@@ -99,8 +100,11 @@ def _head(call: Call, width: int, max_rows: int | None, plain: bool) -> list[Lin
 
 def _table(call: Call, width: int, details: bool) -> list[Line]:
     """The methods side by side; the last column (what blocks each) folds within its cell."""
-    headers = (("method", "feasible", "surface rms", "Ruze η", "p usable", "takes", "blocked by") if details
-               else ("method", "feasible", "rms", "η", "odds", "takes", "blocked by"))
+    headers = (
+        ("method", "feasible", "surface rms", "Ruze η", "p usable", "takes", "blocked by")
+        if details
+        else ("method", "feasible", "rms", "η", "odds", "takes", "blocked by")
+    )
     keep = range(7) if details else (0, 2, 3, 4, 5, 6)
     rows, names = [], {}
     for method, row in zip(METHOD_LABEL, candidate_rows(call)):
@@ -154,7 +158,7 @@ def _section_lines(section: Section, width: int, details: bool, limit: int | Non
         rows = fmt.wrap(text, width - pad)
         if not details and len(rows) > 2:
             rows = rows[:2]
-            rows[1] = rows[1][:width - pad - 1].rstrip() + "…"
+            rows[1] = rows[1][: width - pad - 1].rstrip() + "…"
         lines.append([(" " + bullet.ljust(pad - 1), style), (rows[0], None)])
         lines += [[(" " * pad + r, None)] for r in rows[1:]]
     return lines
@@ -173,15 +177,22 @@ def _conditions(call: Call, width: int, details: bool) -> list[Line]:
     step = 2 if two else 1
     for k in range(0, len(cells), step):
         line: Line = []
-        for label, text in cells[k:k + step]:
+        for label, text in cells[k : k + step]:
             line += [(" " + label.ljust(lw), "dim"), (" " + text.rjust(vw) + "  ", None)]
         lines.append(line)
     return lines
 
 
-def screen_lines(call: Call, ctx: Context, width: int = 76, max_lines: int = COMPACT_LINES,
-                 details: bool = False, status: int | None = None, hint: str = DETAILS_HINT,
-                 plain: bool = False) -> list[Line]:
+def screen_lines(
+    call: Call,
+    ctx: Context,
+    width: int = 76,
+    max_lines: int = COMPACT_LINES,
+    details: bool = False,
+    status: int | None = None,
+    hint: str = DETAILS_HINT,
+    plain: bool = False,
+) -> list[Line]:
     """The screen as lines of (text, style) segments, each at most ``width`` columns."""
     width = max(40, width)
     groups = [g for g in sections(call) if details or g.title != "Other notes"]
@@ -189,8 +200,7 @@ def screen_lines(call: Call, ctx: Context, width: int = 76, max_lines: int = COM
     show_conditions = True
     head_rows = None if details else 2
     while True:
-        lines = _compose(call, ctx, width, details, groups, limits, show_conditions, head_rows, status, hint,
-                         plain)
+        lines = _compose(call, ctx, width, details, groups, limits, show_conditions, head_rows, status, hint, plain)
         if details or len(lines) <= max_lines:
             return lines
         # shrink: the last group with more than one item loses one (the first group, why this
@@ -209,8 +219,7 @@ def screen_lines(call: Call, ctx: Context, width: int = 76, max_lines: int = COM
             return lines
 
 
-def _compose(call, ctx, width, details, groups, limits, show_conditions, head_rows, status, hint,
-             plain) -> list[Line]:
+def _compose(call, ctx, width, details, groups, limits, show_conditions, head_rows, status, hint, plain) -> list[Line]:
     lines: list[Line] = _head(call, width, head_rows, plain)
     lines += _joined([when_text(call, ctx), target_text(call), data_age_text(call)], width)
     if ctx.is_demo:
@@ -218,8 +227,12 @@ def _compose(call, ctx, width, details, groups, limits, show_conditions, head_ro
     for note in ctx.notes:
         lines += _wrapped(note, width, "italic", indent="  ")
     if ctx.next_window:
-        lines += _wrapped(next_window_text(ctx.next_window, ctx.time_zone, compact=not details, since=call.time_utc),
-                          width, "bold", indent="  ")
+        lines += _wrapped(
+            next_window_text(ctx.next_window, ctx.time_zone, compact=not details, since=call.time_utc),
+            width,
+            "bold",
+            indent="  ",
+        )
     lines.append([("", None)])
     lines += _table(call, width, details)
     for section, limit in zip(groups, limits):

@@ -17,22 +17,27 @@ from advisor.io.feedlayout import CANONICAL_COLUMNS
 
 __all__ = ["draft_site_file"]
 
-WIDTH = 80    # every line fits in 80 columns
-_WIDTH = 32   # comments start in this column where the value leaves room
+WIDTH = 80  # every line fits in 80 columns
+_WIDTH = 32  # comments start in this column where the value leaves room
 
 
 def _quote(text: str) -> str:
     """A YAML scalar: plain when safe, else double-quoted (JSON quoting is valid YAML)."""
-    safe = text and all(ch.isalnum() or ch in "_./-" for ch in text) and not text[0].isdigit() \
+    safe = (
+        text
+        and all(ch.isalnum() or ch in "_./-" for ch in text)
+        and not text[0].isdigit()
         and text not in ("TODO", "yes", "no", "true", "false", "null", "on", "off")
+    )
     return text if safe else json.dumps(text, ensure_ascii=False)
 
 
 def _comment(indent: int, text: str) -> list[str]:
     """A comment wrapped within :data:`WIDTH` columns."""
     pad = " " * indent + "# "
-    return textwrap.wrap(text, WIDTH, initial_indent=pad, subsequent_indent=pad, break_on_hyphens=False,
-                         break_long_words=False) or [pad.rstrip()]
+    return textwrap.wrap(
+        text, WIDTH, initial_indent=pad, subsequent_indent=pad, break_on_hyphens=False, break_long_words=False
+    ) or [pad.rstrip()]
 
 
 def _line(indent: int, key: str, value: str, comment: str = "") -> list[str]:
@@ -50,8 +55,7 @@ def _mapping(indent: int, key: str, fields: list[tuple[str, str]], comment: str)
     flow = "{" + ", ".join(f"{k}: {v}" for k, v in fields) + "}"
     if len(" " * indent + key + ": " + flow) <= WIDTH:
         return _line(indent, key, flow, comment)
-    return [*_comment(indent, comment), f"{' ' * indent}{key}:",
-            *(f"{' ' * (indent + 2)}{k}: {v}" for k, v in fields)]
+    return [*_comment(indent, comment), f"{' ' * indent}{key}:", *(f"{' ' * (indent + 2)}{k}: {v}" for k, v in fields)]
 
 
 def _codes(codes) -> str:
@@ -75,8 +79,9 @@ def draft_site_file(guess: Guess, feed_path_text: str, source_name: str) -> str:
         *_line(2, "dish_diameter_m", "TODO", "the reflector's diameter"),
         "",
         "feed:",
-        *_line(2, "path", _quote(feed_path_text), "relative to this file" if not feed_path_text.startswith("/")
-               else ""),
+        *_line(
+            2, "path", _quote(feed_path_text), "relative to this file" if not feed_path_text.startswith("/") else ""
+        ),
     ]
     for line in guess.skipped_lines[:3]:
         out.append(f"  # above the header: {line[:58]}")
@@ -89,8 +94,12 @@ def draft_site_file(guess: Guess, feed_path_text: str, source_name: str) -> str:
     out += _line(2, "time_column", time_value, guess.notes.get("time_column", ""))
     if lay.time_format or "time_format" in guess.todos:
         value = _quote(lay.time_format) if lay.time_format else "TODO"
-        out += _line(2, "time_format", json.dumps(lay.time_format) if lay.time_format else value,
-                     guess.notes.get("time_format", guess.todos.get("time_format", "")))
+        out += _line(
+            2,
+            "time_format",
+            json.dumps(lay.time_format) if lay.time_format else value,
+            guess.notes.get("time_format", guess.todos.get("time_format", "")),
+        )
     if lay.time_unit:
         out += _line(2, "time_unit", lay.time_unit, guess.notes.get("time_unit", ""))
     if lay.time_label != "instant":
