@@ -27,6 +27,7 @@ BELOW_VIEWS = (
     "features.py",
     "budget.py",
     "calibrator_choice.py",
+    "weather_stats.py",
     "rules",
     "model",
     "decision.py",
