@@ -287,7 +287,8 @@ def test_site_new_drafts_a_file_refused_until_its_todos_are_filled(tmp_path):
     status, out, err = run("site", "new", "--feed", TMY3, "--out", out_file)
     assert status == 0, err
     text = out_file.read_text()
-    assert all(len(line) <= 80 for line in text.splitlines())
+    # every line fits 80 columns but the feed's path, which is as long as the folder it lives in
+    assert all(len(line) <= 80 for line in text.splitlines() if str(TMY3) not in line)
     assert "skip_lines: 1" in text and 'time_format: "%m/%d/%Y %H:%M"' in text and "time_label: end" in text
     assert "missing: [-9900]" in text and 'over_hours_from: "Lprecip quantity (hr)"' in text
     status, _, err = run("rules", "lint", "--site", out_file)
