@@ -28,6 +28,7 @@ from advisor.calibrator_choice import choose_calibrator
 from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, ROW_FEATURES, FeatureSpec  # noqa: F401 (re-exported)
 from advisor.io.references import Registry, reference_in_force
 from advisor.io.site import Site
+from advisor.io.times import utc_ns as _ns
 from advisor.physics.aperture import (
     beam_fwhm_arcsec,
     pointing_efficiency,
@@ -108,17 +109,6 @@ FEATURE_SOURCE_MODULES = (
     "advisor.io.feedvalues",
     "advisor.io.sitereader",
 )
-
-
-def _ns(times) -> np.ndarray:
-    """Times (DatetimeIndex/Series/datetime64) → int64 nanoseconds since the epoch, UTC."""
-    if isinstance(times, pd.Series):
-        times = pd.DatetimeIndex(times)
-    if isinstance(times, pd.DatetimeIndex):
-        if times.tz is not None:
-            times = times.tz_convert("UTC").tz_localize(None)
-        return times.as_unit("ns").asi8
-    return np.asarray(times, dtype="datetime64[ns]").astype(np.int64)
 
 
 def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry) -> pd.DataFrame:

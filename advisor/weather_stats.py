@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from advisor.io.site import Site
+from advisor.io.times import utc_ns as _ns
 from advisor.physics.moisture import (
     frost_point_from_dew_point_c,
     saturation_vapour_pressure_hpa,
@@ -24,17 +25,6 @@ WIND_WINDOW_MIN = 10.0
 TEMP_RATE_WINDOW_MIN = 60.0
 #: Fewest part of its window a statistic's samples must cover (count × cadence / window).
 MIN_WINDOW_COVERAGE = 0.5
-
-
-def _ns(times) -> np.ndarray:
-    """Times (DatetimeIndex/Series/datetime64) → int64 nanoseconds since the epoch, UTC."""
-    if isinstance(times, pd.Series):
-        times = pd.DatetimeIndex(times)
-    if isinstance(times, pd.DatetimeIndex):
-        if times.tz is not None:
-            times = times.tz_convert("UTC").tz_localize(None)
-        return times.as_unit("ns").asi8
-    return np.asarray(times, dtype="datetime64[ns]").astype(np.int64)
 
 
 def sample_cadence_min(time_ns: np.ndarray, kind: np.ndarray) -> np.ndarray:

@@ -304,3 +304,15 @@ def site_location(option: str | None) -> tuple[Path | None, str]:
     if config.exists():
         return config, str(config)
     return None, "demo"
+
+
+def svg_target(text: str | None, example: str) -> Path | None:
+    """``--svg FILE``: the file to write (None when not asked), refused when it cannot be a file."""
+    if text is None:
+        return None
+    path = Path(text).expanduser()
+    if path.is_dir():
+        raise UsageError(f"{path} is a directory", field="--svg", hint=f"give a file name, e.g. {example}")
+    if not path.parent.is_dir():
+        raise UsageError(f"folder {path.parent} does not exist", field="--svg", hint="create it or choose another path")
+    return path

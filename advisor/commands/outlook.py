@@ -17,7 +17,7 @@ import shutil
 import sys
 from pathlib import Path
 
-from advisor.commands import session
+from advisor.commands import options, session
 from advisor.commands.helpformat import HelpFormatter
 from advisor.errors import UsageError
 from advisor.io.fileio import atomic_write_text
@@ -80,17 +80,6 @@ def _positive_number(text: str | None, option: str, lo: float, hi: float, defaul
     return value
 
 
-def _svg_target(text: str | None) -> Path | None:
-    if text is None:
-        return None
-    path = Path(text).expanduser()
-    if path.is_dir():
-        raise UsageError(f"{path} is a directory", field="--svg", hint="give a file name, e.g. outlook.svg")
-    if not path.parent.is_dir():
-        raise UsageError(f"folder {path.parent} does not exist", field="--svg", hint="create it or choose another path")
-    return path
-
-
 def cmd_outlook(args: argparse.Namespace) -> int:
     from advisor.evaluation.outlook import combine_frames, compute_outlook
     from advisor.io.feed import read_feed
@@ -100,7 +89,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
 
     hours = _positive_number(args.hours, "--hours", 0.1, MAX_HOURS, 24.0) or 24.0  # never None: has a default
     min_dur = _positive_number(args.min_duration_min, "--min-duration-min", 0.0, 7 * 1440.0, None)
-    svg = _svg_target(args.svg)
+    svg = options.svg_target(args.svg, "outlook.svg")
     if args.from_ is not None and args.at is not None:
         raise UsageError(
             "give --from or --at, not both", field="--from", hint="--from is the first step of the outlook"

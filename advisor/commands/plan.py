@@ -17,9 +17,8 @@ import shutil
 import sys
 from pathlib import Path
 
-from advisor.commands import session
+from advisor.commands import options, session
 from advisor.commands.helpformat import HelpFormatter
-from advisor.errors import UsageError
 from advisor.io.fileio import atomic_write_text
 
 
@@ -56,17 +55,6 @@ def add_parser(sub, name: str, help: str) -> argparse.ArgumentParser:
     return p
 
 
-def _svg_target(text: str | None) -> Path | None:
-    if text is None:
-        return None
-    path = Path(text).expanduser()
-    if path.is_dir():
-        raise UsageError(f"{path} is a directory", field="--svg", hint="give a file name, e.g. plan.svg")
-    if not path.parent.is_dir():
-        raise UsageError(f"folder {path.parent} does not exist", field="--svg", hint="create it or choose another path")
-    return path
-
-
 def cmd_plan(args: argparse.Namespace) -> int:
     from advisor.evaluation.plan import MAX_PLAN_HOURS, compute_plan
     from advisor.views.context import Context
@@ -75,7 +63,7 @@ def cmd_plan(args: argparse.Namespace) -> int:
     from advisor.views.plan_text import render_plain_plan
 
     hours = session.parse_hours(args.hours, "--hours", 0.5, MAX_PLAN_HOURS)
-    svg = _svg_target(args.svg)
+    svg = options.svg_target(args.svg, "plan.svg")
     start_option = session.parse_time(args.start, "--start")
     request = session.request_from(args)
     inputs = session.load_inputs(request, read="whole")

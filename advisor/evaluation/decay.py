@@ -26,6 +26,7 @@ import pandas as pd
 
 from advisor import fmt
 from advisor.io.site import Site
+from advisor.io.times import utc_ns as _ns
 from advisor.physics.aperture import wavelength_mm
 from advisor.physics.sun import solar_position
 from advisor.physics.thermal import (
@@ -62,13 +63,6 @@ FORECAST_HORIZON_H = 12.0
 _CORRECTION = {"scan": "A laser correction", "astronomical": "A holography correction"}
 #: Clearness (measured / clear-sky irradiance) is not trusted with the sun this low [deg].
 _MIN_SUN_FOR_CLEARNESS_DEG = 5.0
-
-
-def _ns(times) -> np.ndarray:
-    index = pd.DatetimeIndex(times)
-    if index.tz is not None:
-        index = index.tz_convert("UTC").tz_localize(None)
-    return index.as_unit("ns").asi8
 
 
 def _irradiance_wm2(rows: pd.DataFrame, site: Site) -> np.ndarray:

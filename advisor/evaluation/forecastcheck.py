@@ -25,6 +25,7 @@ import numpy as np
 import pandas as pd
 
 from advisor.io.site import Site
+from advisor.io.times import utc_ns as _ns
 from advisor.physics.moisture import relative_humidity_pct
 
 __all__ = [
@@ -47,13 +48,6 @@ QUANTITIES = {
     "dew_point_c": ("dew point", "°C", DEW_POINT_TOLERANCE_C),
 }
 _WIND_WINDOW_NS = 10 * 60 * 1_000_000_000
-
-
-def _ns(times) -> np.ndarray:
-    index = pd.DatetimeIndex(times)
-    if index.tz is not None:
-        index = index.tz_convert("UTC").tz_localize(None)
-    return index.as_unit("ns").asi8
 
 
 @dataclass(frozen=True)

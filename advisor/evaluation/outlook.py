@@ -36,6 +36,7 @@ from advisor.evaluation.windows import find_windows, next_window
 from advisor.fmt import hours_text, plural
 from advisor.io.references import Registry
 from advisor.io.site import Site
+from advisor.io.times import utc_ns as _ns
 from advisor.physics.moisture import relative_humidity_pct
 from advisor.physics.sun import SUNRISE_SUNSET_ALTITUDE_DEG
 from advisor.rules.ruleset import RuleSet
@@ -78,11 +79,6 @@ class Outlook:
 
 
 # --- the pure core -------------------------------------------------------------------------
-def _ns(times) -> np.ndarray:
-    index = pd.DatetimeIndex(times)
-    if index.tz is not None:
-        index = index.tz_convert("UTC").tz_localize(None)
-    return index.as_unit("ns").asi8
 
 
 def combine_frames(feed_frame: pd.DataFrame, forecast_frame: pd.DataFrame | None) -> pd.DataFrame:

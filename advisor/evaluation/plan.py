@@ -50,6 +50,7 @@ from advisor.evaluation.schedule import (
 )
 from advisor.io.references import Registry
 from advisor.io.site import Site
+from advisor.io.times import utc_ns as _ns
 from advisor.physics.aperture import pointing_efficiency, ruze_efficiency
 from advisor.physics.thermal import drifted_surface_rms_um
 from advisor.rules.ruleset import RuleSet
@@ -125,13 +126,6 @@ class Plan:
     @property
     def end_utc(self) -> pd.Timestamp:
         return self.steps["time"].iloc[-1] + pd.Timedelta(minutes=self.step_min)
-
-
-def _ns(times) -> np.ndarray:
-    index = pd.DatetimeIndex(times)
-    if index.tz is not None:
-        index = index.tz_convert("UTC").tz_localize(None)
-    return index.as_unit("ns").asi8
 
 
 def _utc(ns) -> pd.DatetimeIndex:

@@ -18,6 +18,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from advisor.io.times import utc_ns as _ns
+
 WINDOW_COLUMNS = (
     "start_utc",
     "end_utc",
@@ -32,14 +34,6 @@ WINDOW_COLUMNS = (
     "beyond_horizon",
     "open_end",
 )
-
-
-def _ns(times) -> np.ndarray:
-    """Times (DatetimeIndex/Series/datetime64, UTC) → int64 nanoseconds since the epoch."""
-    index = pd.DatetimeIndex(times)
-    if index.tz is not None:
-        index = index.tz_convert("UTC").tz_localize(None)
-    return index.as_unit("ns").asi8
 
 
 def runs(mask, breaks=None) -> tuple[np.ndarray, np.ndarray]:

@@ -386,3 +386,14 @@ def parse_time_arg(text: str, field: str = "--at", now: pd.Timestamp | None = No
     if str(text).strip().lower() == "now":
         return pd.Timestamp.now(tz="UTC") if now is None else now
     return parse_time_text(text, field=field, error_type=UsageError)
+
+
+def utc_ns(times) -> np.ndarray:
+    """Times (DatetimeIndex, Series, datetime64 array or a list of timestamps) → int64 nanoseconds
+    since the epoch, UTC (tz-aware times are converted; naive ones are read as UTC)."""
+    if isinstance(times, np.ndarray) and times.dtype.kind == "M":
+        return times.astype("datetime64[ns]").astype(np.int64)
+    index = pd.DatetimeIndex(times)
+    if index.tz is not None:
+        index = index.tz_convert("UTC").tz_localize(None)
+    return index.as_unit("ns").asi8
