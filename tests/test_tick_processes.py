@@ -88,7 +88,8 @@ print(json.dumps(result))
 
 
 def test_twenty_concurrent_ticks_serialise_cleanly(tmp_path):
-    site = make_site(tmp_path)
+    # every change announced at once: this test is about the lock, not about confirming a new call
+    site = make_site(tmp_path, tick="tick:\n  confirm_ticks: 1\n  confirm_min: 0\n")
     state = tmp_path / "state"
     outdir = tmp_path / "out"
     outdir.mkdir()
