@@ -262,8 +262,13 @@ def canonical_frame(
     source: str = "<feed>",
     line_offset: int = 2,
     issue_time_column: str | None = None,
+    cadence_min: float | None = None,
 ) -> Feed:
     """Map, convert, sort and flag a logger table into a canonical :class:`Feed`.
+
+    The feed's cadence (gap and dropout limits follow it) is the median interval between the
+    table's observed rows, or ``cadence_min`` [min] when given: a file read in parts
+    (:mod:`advisor.io.archive`) passes the cadence of the whole file to each part.
 
     With ``issue_time_column``, the frame also carries ``issued_utc``: each forecast row's issue
     time (NaT where the column is absent or the cell empty).  Besides the canonical columns the
@@ -344,7 +349,7 @@ def canonical_frame(
     else:
         frame["dew_point_c"] = derived
 
-    cadence = _cadence(frame)
+    cadence = _cadence(frame) if cadence_min is None else float(cadence_min)
     dt_min = frame["time"].diff().dt.total_seconds().to_numpy() / 60.0
     frame["q_gap_before"] = np.nan_to_num(dt_min, nan=0.0) > layout.gap_limit_min(cadence)
     frame["good"] = ~(frame["q_implausible"] | frame["q_missing"]).to_numpy()
