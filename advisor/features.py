@@ -401,3 +401,4 @@ def columns_of(features: pd.DataFrame, targets: dict[str, float] | None = None) 
     for name, value in (targets or {}).items():
         columns[name] = np.broadcast_to(np.float64(value), (n,))
     return columns
+

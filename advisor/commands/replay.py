@@ -10,36 +10,24 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from collections.abc import Iterator
 from pathlib import Path
-from zoneinfo import ZoneInfo
 
-import numpy as np
 import pandas as pd
 
 from advisor.commands import session
 from advisor.errors import UsageError
 from advisor.evaluation.evaluate import Scenario
-from advisor.evaluation.replay import (
-    attempts_from_history,
-    compare_rule_sets,
-    dominant_by_month_hour,
-    hours_by,
-    month_keys,
-    replay_features,
-    replay_from_features,
-    score_attempts,
-    step_hours,
-    weather_hours,
-)
-from advisor.evaluation.replay_table import coverage_warnings, step_table
-from advisor.features import FEATURES_VERSION, feature_source_paths
+from advisor.evaluation.replay import Replayed, attempts_from_history
+from advisor.evaluation.replay_stream import ReplayTotals, decide_chunks, feature_chunks
+from advisor.evaluation.replay_table import step_table
+from advisor.features import FEATURES_VERSION, complete_row_features, feature_source_paths, stored_row_features
 from advisor.io import featurecache
-from advisor.io.feed import check_whole_read, read_feed
-from advisor.io.fileio import refuse_overwrite
+from advisor.io.archive import ArchiveReader, NeedsWholeRead
+from advisor.io.fileio import atomic_writer, refuse_overwrite
 from advisor.io.history import read_history
-from advisor.vocabulary import VERDICTS
 
-PROGRESS_ROWS = 150_000  # archives this long take more than a second: show progress
+PROGRESS_BYTES = 10_000_000  # archives this large take more than a second: show progress
 
 
 def add_parser(sub, name: str, help: str) -> None:
@@ -82,19 +70,6 @@ def add_parser(sub, name: str, help: str) -> None:
     p.set_defaults(func=cmd_replay)
 
 
-def _progress(total: int):
-    """A progress callback drawing on stderr for long archives on a terminal, else a no-op."""
-    if total < PROGRESS_ROWS or not sys.stderr.isatty():
-        return None, None
-    from rich.console import Console
-    from rich.progress import Progress
-
-    progress = Progress(console=Console(stderr=True), transient=True)
-    task = progress.add_task("replaying", total=total)
-    progress.start()
-    return (lambda done, _total: progress.update(task, completed=done)), progress
-
-
 def cmd_replay(args: argparse.Namespace) -> int:
     request = session.request_from(args)
     if request.feed_path is None:
@@ -122,7 +97,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
     rule_sets = [inputs.rules]
     if args.compare_rules:  # the same features serve both rule sets
         rule_sets.append(session.load_ruleset(inputs.site, [*request.rule_files, *args.compare_rules]))
-    check_whole_read(inputs.feed_path)  # before hashing it for the cache
+    attempts = attempts_from_history(read_history(args.history)) if args.history else None
     key = featurecache.key_for(
         inputs.feed_path,
         Path(inputs.site.source),
@@ -136,50 +111,32 @@ def cmd_replay(args: argparse.Namespace) -> int:
         code_paths=feature_source_paths(),
         features_version=FEATURES_VERSION,
     )
-    features = None if args.no_cache else featurecache.load(key)
-    if features is None:
-        features = _compute_features(inputs, scenario, t_from, t_to)
-        if not args.no_cache:
-            featurecache.store(key, features)
-    base, *rest = replay_from_features(features, scenario, rule_sets)
-    other = rest[0] if rest else None
-    times = base.times_utc
-    cadence = features["feed_cadence_min"].to_numpy(dtype=float)
-    cadence_min = float(np.nanmedian(cadence)) if np.isfinite(cadence).any() else None
-    layout = inputs.site.feed
-    hours = step_hours(times, float(layout.gap_limit_min(cadence_min)))
-    age_limit = float(layout.age_limit_min(cadence_min))
-    local = times.tz_convert(ZoneInfo(inputs.site.time_zone))
+    run = _Run(inputs, scenario, rule_sets, attempts, key, use_cache=not args.no_cache, t_from=t_from, t_to=t_to)
+    totals = run.totals(args.csv)
+    base_scores = totals.scores(0)
+    first, last = (pd.Timestamp(t, tz="UTC") for t in (totals.first_ns, totals.last_ns))
     summary = {
         "feed": str(inputs.feed_path),
-        "from_utc": times[0].strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "to_utc": times[-1].strftime("%Y-%m-%dT%H:%M:%SZ"),
-        "rows": int(len(times)),
+        "from_utc": first.strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "to_utc": last.strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "rows": int(totals.rows),
         "target_freq_ghz": inputs.freq_ghz,
         "rules": len(inputs.rules),
-        "hours": _hours_dict(base.verdict, hours),
-        "by_month": _table_dict(hours_by(base.verdict, hours, month_keys(local))),
-        "by_local_hour": _table_dict(hours_by(base.verdict, hours, local.hour)),
-        "attempts": None,
+        "hours": totals.hours(0),
+        "by_month": _table_dict(totals.by_month()),
+        "by_local_hour": _table_dict(totals.by_local_hour()),
+        "attempts": base_scores,
         "comparison": None,
-        **weather_hours(features, base.verdict, hours, inputs.site.thresholds.high_frequency_wind_limit_ms),
+        **totals.weather(),
     }
-    attempts, scores = None, None
-    if args.history:
-        attempts = attempts_from_history(read_history(args.history))
-        scores = summary["attempts"] = _score(base, attempts, inputs, age_limit)
-    if other is not None:
-        comparison = compare_rule_sets(base.verdict, other.verdict, base.rule_eval, other.rule_eval, hours)
-        comparison["hours_b"] = _hours_dict(other.verdict, hours)
+    if len(rule_sets) > 1:
+        comparison = totals.comparison()
+        comparison["hours_b"] = totals.hours(1)
         if attempts is not None:
-            comparison["attempts_b"] = _score(other, attempts, inputs, age_limit)
+            comparison["attempts_b"] = totals.scores(1)
         summary["comparison"] = comparison
-    warnings = coverage_warnings(
-        times, hours, features, inputs.registry, attempts, scores["attempts_covered"] if scores else None
-    )
+    warnings = totals.warnings(inputs.registry, base_scores["attempts_covered"] if base_scores else None)
     summary["warnings"] = warnings
-    if args.csv:
-        _write_csv(args.csv, step_table(base, other))
     if args.json:
         for warning in warnings:
             print(f"advisor: warning: {warning}", file=sys.stderr)
@@ -190,60 +147,190 @@ def cmd_replay(args: argparse.Namespace) -> int:
         from advisor.views.replay import replay_renderable
 
         console = Console(highlight=False)
-        console.print(replay_renderable(summary, dominant_by_month_hour(base.verdict, hours, local), console.width))
+        console.print(replay_renderable(summary, totals.dominant(), console.width))
     return 0
 
 
-def _compute_features(inputs, scenario, t_from, t_to) -> pd.DataFrame:
-    """Read the archive and compute the features of every observed row in the period."""
-    feed = read_feed(inputs.feed_path, inputs.feed_layout)
-    session.check_feed_zone(feed, inputs.site, inputs.feed_layout)
-    frame = feed.frame[feed.frame["kind"] == "observed"]
-    times = pd.DatetimeIndex(frame["time"]).as_unit("ns")
-    keep = np.ones(len(times), dtype=bool)
-    if t_from is not None:
-        keep &= times >= t_from
-    if t_to is not None:
-        keep &= times <= t_to
-    times = times[keep]
-    if len(times) == 0:
-        raise UsageError(
+class _Run:
+    """One replay: the archive read in parts (or its features from the cache), decided in slices.
+
+    What a part cannot know until the end, the feed's cadence and the gap limit that follows
+    from the rows' cadence, is guessed from the first part; when the guess did not hold, the
+    replay runs again with the measured values (an archive whose cadence changed over time).
+    """
+
+    def __init__(self, inputs, scenario, rule_sets, attempts, key, use_cache, t_from, t_to) -> None:
+        self.inputs, self.scenario, self.rule_sets, self.attempts = inputs, scenario, rule_sets, attempts
+        self.key, self.use_cache, self.t_from, self.t_to = key, use_cache, t_from, t_to
+        self.feed_cadence_min: float | None = None
+        self.whole_read = False
+        self.zone_checked = False
+
+    def totals(self, csv_path: str | None) -> ReplayTotals:
+        gap_limit = None
+        for _ in range(3):
+            totals = ReplayTotals(self.rule_sets, self.inputs.site, self.attempts, gap_limit)
+            with _CsvRows(csv_path) as csv_rows:
+                again = self._pass(totals, csv_rows.write if csv_path else None)
+                if not again and totals.rows == 0:
+                    raise self._no_rows()
+                if not again and totals.consistent():
+                    return totals
+                csv_rows.discard()
+            gap_limit = totals.measured_gap_limit_min()
+        raise AssertionError("the replay's cadence did not settle")  # pragma: no cover
+
+    def _no_rows(self) -> UsageError:
+        archive = self.archive
+        return UsageError(
             "no archive rows in the chosen period",
             field="--from/--to",
-            hint=f"the archive covers {feed.quality.first_time_utc} to {feed.quality.last_time_utc}",
+            hint=f"the archive covers {archive.first_time_utc} to {archive.last_time_utc}",
         )
-    on_chunk, progress = _progress(len(times))
-    try:
-        return replay_features(frame, times, scenario, on_chunk=on_chunk)
-    finally:
-        if progress:
+
+    def _pass(self, totals: ReplayTotals, write_rows) -> bool:
+        """Decide every row once; True when it must be done again (a guess about the feed failed)."""
+        entry = featurecache.open_entry(self.key) if self.use_cache else None
+        if entry is not None:
+            chunks = (complete_row_features(stored, self.inputs.site) for stored in entry.chunks())
+            decide_chunks(chunks, self.scenario, self.rule_sets, totals, write_rows)
+            return False
+        reader = ArchiveReader(
+            self.inputs.feed_path,
+            self.inputs.feed_layout,
+            self.feed_cadence_min,
+            stream_above_bytes=2**62 if self.whole_read else None,
+        )
+        self.archive = reader
+        writer = featurecache.Writer(self.key) if self.use_cache else None
+        progress = _Progress(self.inputs.feed_path)
+        try:
+            chunks = feature_chunks(
+                self._frames(reader),
+                self.inputs.site,
+                self.inputs.registry,
+                self.t_from,
+                self.t_to,
+                on_rows=progress.update,
+            )
+            if writer is not None:
+                chunks = _stored_as_they_pass(chunks, writer)
+            decide_chunks(chunks, self.scenario, self.rule_sets, totals, write_rows)
+        except NeedsWholeRead:
+            if writer is not None:
+                writer.abort()
+            self.whole_read = True
+            return True
+        except BaseException:
+            if writer is not None:
+                writer.abort()
+            raise
+        finally:
             progress.stop()
+        measured = reader.measured_cadence_min()
+        if measured != reader.cadence_min:
+            self.feed_cadence_min = measured
+            if writer is not None:
+                writer.abort()
+            return True
+        if writer is not None:
+            if totals.rows:
+                writer.commit()
+            else:
+                writer.abort()
+        return False
+
+    def _frames(self, reader: ArchiveReader) -> Iterator[pd.DataFrame]:
+        """The archive's canonical parts, the first one checked against the computed sun."""
+        for frame in reader.frames():
+            if not self.zone_checked:
+                session.check_feed_zone(reader.feed_of(frame), self.inputs.site, self.inputs.feed_layout)
+                self.zone_checked = True
+            yield frame
 
 
-def _hours_dict(verdict: np.ndarray, hours: np.ndarray) -> dict:
-    return {v: round(float(hours[verdict == v].sum()), 2) for v in VERDICTS}
+def _stored_as_they_pass(chunks: Iterator[pd.DataFrame], writer) -> Iterator[pd.DataFrame]:
+    """The chunks unchanged, each stored in the feature cache on its way."""
+    for chunk in chunks:
+        writer.add(stored_row_features(chunk))
+        yield chunk
+
+
+class _CsvRows:
+    """``replay --csv``: one row per step, written as the slices pass, published at the end."""
+
+    def __init__(self, path: str | None) -> None:
+        self.path = path
+        self.fh = None
+        self.header = True
+        self._writer = None
+        self._discard = False
+
+    def __enter__(self) -> _CsvRows:
+        if self.path is not None:
+            self._writer = atomic_writer(self.path)
+            try:
+                self.fh = self._writer.__enter__()
+            except OSError as exc:
+                raise UsageError(f"cannot write {self.path}: {exc.strerror}", field="--csv") from None
+        return self
+
+    def write(self, decisions) -> None:
+        base = decisions[0]
+        times = pd.DatetimeIndex(base.features["time"])
+        other = decisions[1] if len(decisions) > 1 else None
+        table = step_table(
+            Replayed(times, base.verdict, base.rule_eval, base),
+            None if other is None else Replayed(times, other.verdict, other.rule_eval, other),
+        )
+        assert self.fh is not None
+        table.to_csv(self.fh, index=False, header=self.header, lineterminator="\n")
+        self.header = False
+
+    def discard(self) -> None:
+        self._discard = True
+
+    def __exit__(self, kind, value, tb) -> bool:
+        if self._writer is None:
+            return False
+        if kind is None and self._discard:
+            kind, value = _Discarded, _Discarded()
+        try:
+            self._writer.__exit__(kind, value, tb)
+        except _Discarded:
+            return False
+        except OSError as exc:
+            raise UsageError(f"cannot write {self.path}: {exc.strerror}", field="--csv") from None
+        return False
+
+
+class _Discarded(Exception):
+    """Thrown into the CSV writer so that it removes what it wrote (the pass is run again)."""
+
+
+class _Progress:
+    """Rows done, on stderr, for a long archive on a terminal; else nothing."""
+
+    def __init__(self, path) -> None:
+        self.progress = None
+        if not sys.stderr.isatty() or Path(path).stat().st_size < PROGRESS_BYTES:
+            return
+        from rich.console import Console
+        from rich.progress import Progress
+
+        self.progress = Progress(console=Console(stderr=True), transient=True)
+        self.task = self.progress.add_task("replaying (rows)", total=None)
+        self.progress.start()
+
+    def update(self, done: int) -> None:
+        if self.progress is not None:
+            self.progress.update(self.task, completed=done)
+
+    def stop(self) -> None:
+        if self.progress is not None:
+            self.progress.stop()
+            self.progress = None
 
 
 def _table_dict(table: pd.DataFrame) -> dict:
     return {str(k): {v: round(float(table.loc[k, v]), 2) for v in table.columns} for k in table.index}
-
-
-def _score(replayed, attempts, inputs, age_limit: float) -> dict:
-    """Both methods scored against the attempts; per-rule tables only for rules that concern the method."""
-    applies = {r.id: r.applies_to for r in replayed.decisions.rules} if replayed.decisions is not None else None
-    return score_attempts(
-        replayed.times_utc, replayed.verdict, replayed.rule_eval, attempts, age_limit, replayed.feasible, applies
-    )
-
-
-def _write_csv(path: str, table: pd.DataFrame) -> None:
-    from advisor.io.fileio import atomic_write_text
-
-    try:
-        atomic_write_text(path, table.to_csv(index=False, lineterminator="\n"))
-    except OSError as exc:
-        raise UsageError(f"cannot write {path}: {exc.strerror}", field="--csv") from None
-
-
-def _pct(rate) -> str:
-    return "n/a" if rate is None else f"{rate:.0%}"

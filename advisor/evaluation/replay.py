@@ -187,6 +187,43 @@ def _rate(num, den) -> float | None:
     return None if den == 0 else round(float(num) / float(den), 4)
 
 
+def rule_set_change_masks(
+    verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: RuleEvaluation, eval_b: RuleEvaluation
+) -> dict[tuple, np.ndarray]:
+    """The rows behind :func:`compare_rule_sets`: ``("changed",)``, ``("transition", a, b)`` for
+    each pair of verdicts, ``("rule", id)`` for each rule of either set (changed there and firing
+    differently)."""
+    changed = np.asarray(verdict_a != verdict_b, dtype=bool)
+    masks: dict[tuple, np.ndarray] = {("changed",): changed}
+    for a in VERDICTS:
+        for b in VERDICTS:
+            masks[("transition", a, b)] = changed & (verdict_a == a) & (verdict_b == b)
+    none = np.zeros(len(verdict_a), dtype=bool)
+    for rule_id in sorted(set(eval_a.fired) | set(eval_b.fired)):
+        masks[("rule", rule_id)] = changed & (eval_a.fired.get(rule_id, none) != eval_b.fired.get(rule_id, none))
+    return masks
+
+
+def rule_set_changes(hours_of, has_rows, rule_ids) -> dict:
+    """The :func:`compare_rule_sets` summary from totals of :func:`rule_set_change_masks`.
+
+    ``hours_of(key)`` is the hours of a mask's rows, ``has_rows(key)`` whether it has any.
+    """
+    transitions = [
+        {"from": a, "to": b, "hours": round(hours_of(("transition", a, b)), 2)}
+        for a in VERDICTS
+        for b in VERDICTS
+        if has_rows(("transition", a, b))
+    ]
+    by_rule = [
+        {"rule": rule_id, "hours_changed": round(hours_of(("rule", rule_id)), 2)}
+        for rule_id in sorted(rule_ids)
+        if has_rows(("rule", rule_id))
+    ]
+    by_rule.sort(key=lambda r: -r["hours_changed"])
+    return {"hours_changed": round(hours_of(("changed",)), 2), "transitions": transitions, "by_rule": by_rule}
+
+
 def compare_rule_sets(
     verdict_a: np.ndarray, verdict_b: np.ndarray, eval_a: RuleEvaluation, eval_b: RuleEvaluation, hours: np.ndarray
 ) -> dict:
@@ -195,22 +232,12 @@ def compare_rule_sets(
     A changed row is attributed to every rule whose firing differs between the two sets there
     (a rule present in only one set counts as not firing in the other).
     """
-    changed = verdict_a != verdict_b
-    transitions = []
-    for a in VERDICTS:
-        for b in VERDICTS:
-            mask = changed & (verdict_a == a) & (verdict_b == b)
-            if mask.any():
-                transitions.append({"from": a, "to": b, "hours": round(float(hours[mask].sum()), 2)})
-    by_rule: list[dict[str, Any]] = []
-    none = np.zeros(len(verdict_a), dtype=bool)
-    for rule_id in sorted(set(eval_a.fired) | set(eval_b.fired)):
-        differs = eval_a.fired.get(rule_id, none) != eval_b.fired.get(rule_id, none)
-        mask = changed & differs
-        if mask.any():
-            by_rule.append({"rule": rule_id, "hours_changed": round(float(hours[mask].sum()), 2)})
-    by_rule.sort(key=lambda r: -r["hours_changed"])
-    return {"hours_changed": round(float(hours[changed].sum()), 2), "transitions": transitions, "by_rule": by_rule}
+    masks = rule_set_change_masks(verdict_a, verdict_b, eval_a, eval_b)
+    return rule_set_changes(
+        lambda key: float(hours[masks[key]].sum()),
+        lambda key: bool(masks[key].any()),
+        set(eval_a.fired) | set(eval_b.fired),
+    )
 
 
 @dataclass(frozen=True)
@@ -282,6 +309,48 @@ def replay_from_features(rows: pd.DataFrame, scenario: Scenario, rule_sets=None)
 NOT_SEEN_INPUTS = ("precip_mm_h", "visibility_m", "pressure_hpa", "solar_wm2")
 
 
+def weather_masks(features: pd.DataFrame, verdict: np.ndarray, wind_limit_ms: float) -> dict[tuple, np.ndarray]:
+    """The rows behind :func:`weather_hours`, each among the rows with good data: ``("weather",
+    name)`` and ``("not_seen", input, "hours" | "scan_hours")``."""
+    ok = features["data_ok"].to_numpy(dtype=bool)
+
+    def among_ok(mask) -> np.ndarray:
+        return np.asarray(mask, dtype=bool) & ok
+
+    wind = features["wind_mean_ms"].to_numpy(dtype=float)
+    masks = {
+        ("weather", "wind_above_limit"): among_ok(wind > wind_limit_ms),
+        ("weather", "fog"): among_ok(features["fog"]),
+        ("weather", "precipitation"): among_ok(features["precipitation"]),
+        ("weather", "night"): among_ok(features["is_night"]),
+    }
+    if "gust_estimated" in features:
+        masks[("weather", "gusts_estimated")] = among_ok(features["gust_estimated"])
+    if "input_dropout" in features:
+        masks[("weather", "sensor_dropout")] = among_ok(features["input_dropout"])
+    scan = np.asarray(verdict) == "scan"
+    for name in NOT_SEEN_INPUTS:
+        if name in features:
+            missing = ~np.isfinite(features[name].to_numpy(dtype=float))
+            masks[("not_seen", name, "hours")] = among_ok(missing)
+            masks[("not_seen", name, "scan_hours")] = among_ok(missing & scan)
+    return masks
+
+
+def weather_summary(hours_of, has_rows, keys) -> dict:
+    """The :func:`weather_hours` summary from totals of :func:`weather_masks` (``keys``: the masks made)."""
+    weather = {key[1]: round(hours_of(key), 2) for key in keys if key[0] == "weather"}
+    not_seen = {}
+    for key in keys:
+        if key[0] == "not_seen" and key[2] == "hours" and has_rows(key):
+            name = key[1]
+            not_seen[name] = {
+                "hours": round(hours_of(key), 2),
+                "scan_hours": round(hours_of(("not_seen", name, "scan_hours")), 2),
+            }
+    return {"weather": weather, "not_seen": not_seen}
+
+
 def weather_hours(features: pd.DataFrame, verdict: np.ndarray, hours: np.ndarray, wind_limit_ms: float) -> dict:
     """Hours of the weather behind the verdicts, and of the optional inputs the calls could not see.
 
@@ -290,27 +359,7 @@ def weather_hours(features: pd.DataFrame, verdict: np.ndarray, hours: np.ndarray
     ``not_seen``: per optional input, the hours it was missing at the sample in use, and how many
     of those hours the advice was scan (each such call names the input as not seen).
     """
-    ok = features["data_ok"].to_numpy(dtype=bool)
-
-    def total(mask) -> float:
-        return round(float(hours[np.asarray(mask, dtype=bool) & ok].sum()), 2)
-
-    wind = features["wind_mean_ms"].to_numpy(dtype=float)
-    weather = {
-        "wind_above_limit": total(wind > wind_limit_ms),
-        "fog": total(features["fog"]),
-        "precipitation": total(features["precipitation"]),
-        "night": total(features["is_night"]),
-    }
-    if "gust_estimated" in features:
-        weather["gusts_estimated"] = total(features["gust_estimated"])
-    if "input_dropout" in features:
-        weather["sensor_dropout"] = total(features["input_dropout"])
-    scan = np.asarray(verdict) == "scan"
-    not_seen = {}
-    for name in NOT_SEEN_INPUTS:
-        if name in features:
-            missing = ~np.isfinite(features[name].to_numpy(dtype=float))
-            if (missing & ok).any():
-                not_seen[name] = {"hours": total(missing), "scan_hours": total(missing & scan)}
-    return {"weather": weather, "not_seen": not_seen}
+    masks = weather_masks(features, verdict, wind_limit_ms)
+    return weather_summary(
+        lambda key: float(hours[masks[key]].sum()), lambda key: bool(masks[key].any()), list(masks)
+    )

@@ -89,13 +89,42 @@ def coverage_warnings(
 ) -> list[str]:
     """What the replay cannot speak for: stretches with no reference scan in force, and a history
     of attempts that does not cover the replayed period (each over :data:`GAP_FRACTION` of it)."""
+    if len(times_utc) == 0:
+        return []
+    outside = 0.0
+    if attempts is not None and len(attempts):
+        first, last = attempts.times_utc.min(), attempts.times_utc.max()
+        outside = float(hours[(times_utc < first) | (times_utc > last)].sum())
+    return coverage_warnings_from(
+        times_utc[0],
+        times_utc[-1],
+        float(np.sum(hours)),
+        float(hours[~rows["has_reference"].to_numpy(dtype=bool)].sum()),
+        outside,
+        registry,
+        attempts,
+        attempts_covered,
+    )
+
+
+def coverage_warnings_from(
+    first_utc: pd.Timestamp,
+    last_utc: pd.Timestamp,
+    total_hours: float,
+    no_reference_hours: float,
+    outside_attempts_hours: float,
+    registry: Registry,
+    attempts: Attempts | None = None,
+    attempts_covered: int | None = None,
+) -> list[str]:
+    """:func:`coverage_warnings` from the replay's totals: its first and last times, its hours, the
+    hours without a reference scan in force and those outside the attempts' span [h]."""
     warnings: list[str] = []
-    total = float(np.sum(hours))
+    total = total_hours
     if total <= 0:
         return warnings
-    period = f"{times_utc[0]:%Y-%m-%d} .. {times_utc[-1]:%Y-%m-%d}"
-    no_ref = ~rows["has_reference"].to_numpy(dtype=bool)
-    uncovered = float(hours[no_ref].sum())
+    period = f"{first_utc:%Y-%m-%d} .. {last_utc:%Y-%m-%d}"
+    uncovered = no_reference_hours
     if uncovered > GAP_FRACTION * total:
         share = f"{uncovered:.0f} h of {total:.0f} h ({uncovered / total:.0%})"
         if len(registry) == 0:
@@ -114,7 +143,7 @@ def coverage_warnings(
             )
         else:
             first, last = attempts.times_utc.min(), attempts.times_utc.max()
-            outside = float(hours[(times_utc < first) | (times_utc > last)].sum())
+            outside = outside_attempts_hours
             if outside > GAP_FRACTION * total:
                 warnings.append(
                     f"the attempts in {attempts.source} run {first:%Y-%m-%d} .. {last:%Y-%m-%d}: "

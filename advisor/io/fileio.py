@@ -32,7 +32,7 @@ from collections.abc import Callable, Iterable, Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import BinaryIO
+from typing import BinaryIO, TextIO
 
 from advisor.errors import AdvisorError, UsageError
 from advisor.io.encoding import decode_text, encoding_error, repeated_csv_column, sniff_encoding_problem
@@ -314,11 +314,19 @@ def read_text_bounded(
 
 
 def atomic_write_text(path: Path | str, text: str) -> None:
-    """Replace ``path`` with ``text`` atomically: a reader sees the old file or the new one, never half.
+    """Replace ``path`` with ``text`` atomically (see :func:`atomic_writer`)."""
+    with atomic_writer(path) as fh:
+        fh.write(text)
 
-    The temporary file is created beside ``path`` (with the old file's permissions, or 0666
-    less the umask for a new one), fsynced, renamed over ``path``, and the folder is fsynced.
-    On any failure the temporary file is removed and ``path`` is untouched.
+
+@contextmanager
+def atomic_writer(path: Path | str) -> Iterator[TextIO]:
+    """A text file that replaces ``path`` atomically when the block ends without an error.
+
+    A reader sees the old file or the new one, never half.  The temporary file is created
+    beside ``path`` (with the old file's permissions, or 0666 less the umask for a new one),
+    fsynced, renamed over ``path``, and the folder is fsynced.  On any failure, or an error in
+    the block, the temporary file is removed and ``path`` is untouched.
     """
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
@@ -332,7 +340,7 @@ def atomic_write_text(path: Path | str, text: str) -> None:
         if old_mode is not None:
             os.fchmod(fd, old_mode)
         with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
+            yield fh
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, path)
