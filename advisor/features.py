@@ -26,6 +26,7 @@ from advisor.budget import (  # noqa: F401 (re-exported)
 )
 from advisor.calibrator_choice import choose_calibrator
 from advisor.catalogue import CATALOGUE, FEATURES, FLAG_NAMES, ROW_FEATURES, FeatureSpec  # noqa: F401 (re-exported)
+from advisor.derived_features import DERIVED_ROW_FEATURES, derive_row_features
 from advisor.io.references import Registry, reference_in_force
 from advisor.io.site import Site
 from advisor.io.times import utc_ns as _ns
@@ -37,20 +38,12 @@ from advisor.physics.aperture import (
 )
 from advisor.physics.atmosphere import (
     atmosphere_temperature_k,
-    precipitable_water_mm,
     standard_pressure_hpa,
     system_temperature_above_atmosphere_k,
     transmission,
-    water_vapour_density_from_dew_point_gm3,
 )
 from advisor.physics.opacity import zenith_opacity_series_nepers
-from advisor.physics.sun import (
-    SUNRISE_SUNSET_ALTITUDE_DEG,
-    hours_since_sunrise,
-    hours_since_sunset,
-    solar_position,
-    sun_state,
-)
+from advisor.physics.sun import solar_position, sun_state
 from advisor.vocabulary import METHODS
 from advisor.weather_stats import (  # noqa: F401 (re-exported)
     MIN_WINDOW_COVERAGE,
@@ -73,6 +66,7 @@ FEATURES_VERSION = 3
 #: source; tests/test_featurecache.py fails when the import closure of this module grows beyond it.
 FEATURE_SOURCE_MODULES = (
     "advisor.features",
+    "advisor.derived_features",
     "advisor.catalogue",
     "advisor.vocabulary",
     "advisor.io.sitemodel",
@@ -123,7 +117,6 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
     t_ns = _ns(times_utc)
     n = len(t_ns)
     times_index = pd.DatetimeIndex(t_ns.astype("datetime64[ns]")).tz_localize("UTC")
-    th = site.thresholds
     out: dict[str, np.ndarray] = {}
 
     # --- weather at each time: last good sample at or before it --------------------------
@@ -158,8 +151,6 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
         out[name] = take(rolled[name].to_numpy(dtype=float)) if rolled is not None else np.full(n, np.nan)
     estimated = good["gust_estimated"].to_numpy(dtype=bool) if "gust_estimated" in good else np.zeros(len(good), bool)
     out["gust_estimated"] = take(estimated.astype(float)) == 1.0
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out["gust_factor"] = np.where(out["wind_mean_ms"] >= 0.5, out["wind_gust_ms"] / out["wind_mean_ms"], np.nan)
 
     # --- data quality --------------------------------------------------------------------
     age_min = np.where(has, (t_ns - good_ns[safe]) / 6e10, np.nan) if len(good_ns) else np.full(n, np.nan)
@@ -177,62 +168,42 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
         else np.zeros(len(good), dtype=np.int64)
     )
     dropout_bits = np.where(has, dropout_bits[safe], 0) if len(dropout_bits) else np.zeros(n, dtype=np.int64)
-    out["input_dropout"] = dropout_bits != 0
 
-    # --- moisture ------------------------------------------------------------------------
-    out.update(
-        moisture_features(out["air_temp_c"], out["dew_point_c"], out["rel_humidity_pct"], out["visibility_m"], site)
-    )
-    out["precipitation"] = out["precip_mm_h"] >= th.precip_mm_h
-    out["water_vapour_density_gm3"] = np.asarray(
-        water_vapour_density_from_dew_point_gm3(out["air_temp_c"], out["dew_point_c"])
-    )
-    out["pwv_mm"] = np.asarray(
-        precipitable_water_mm(out["water_vapour_density_gm3"], site.atmosphere.water_scale_height_km)
-    )
-
-    # --- sun and thermal state -----------------------------------------------------------
+    # --- sun -----------------------------------------------------------------------------
     sun_el, sun_az = solar_position(times_index, site.latitude_deg, site.longitude_deg)
     out["sun_elevation_deg"] = np.asarray(sun_el, dtype=float)
     out["sun_azimuth_deg"] = np.asarray(sun_az, dtype=float)
-    out["hours_since_sunset"] = np.asarray(
-        hours_since_sunset(times_index, site.latitude_deg, site.longitude_deg), dtype=float
-    )
-    out["hours_since_sunrise"] = np.asarray(
-        hours_since_sunrise(times_index, site.latitude_deg, site.longitude_deg), dtype=float
-    )
-    # Night: the sun is below the standard altitude (the same crossing table as the event times, so
-    # polar day and polar night are right); the elevation decides only for a time it cannot place.
     state = np.asarray(sun_state(times_index, site.latitude_deg, site.longitude_deg), dtype=np.int8).reshape(n)
     out["sun_state"] = state.astype(float)
-    out["is_night"] = np.where(state != 0, state < 0, out["sun_elevation_deg"] < SUNRISE_SUNSET_ALTITUDE_DEG)
-    # Fastest deformation while the sun rises or sets through the low band: not on a polar day or
-    # night, when it stays up (or down) and its heating changes slowly.
-    out["sun_transition"] = (
-        (out["sun_elevation_deg"] >= -6.0) & (out["sun_elevation_deg"] <= 15.0) & (np.abs(state) != 2)
-    )
 
     # --- reference scan ------------------------------------------------------------------
     ref_ns, ref_temp = reference_in_force(registry, t_ns)
-    out["has_reference"] = ref_ns >= 0
     out["reference_age_h"] = np.where(ref_ns >= 0, (t_ns - ref_ns) / 3.6e12, np.nan)
     out["reference_temp_delta_c"] = np.abs(out["air_temp_c"] - ref_temp)
 
     # --- calibrators ---------------------------------------------------------------------
     cal_name = choose_calibrator(times_index, site, out)
 
-    out["wind_pointing_error_arcsec"] = th.pointing_error_arcsec_at_4ms * (out["wind_gust_ms"] / 4.0) ** 2
+    good_rows = np.flatnonzero(good_mask)
+    source_row = np.where(has, good_rows[safe] if len(good_rows) else -1, -1).astype(np.int64)
+    out["dropout_bits"] = np.asarray(dropout_bits, dtype=np.int64)
+    derive_row_features(out, times_index, site)
+    return _assemble(times_index, out, cal_name, source_row, np.asarray(latest, dtype=np.int64))
 
-    out["reference_mismatch_um"] = mismatch_um_per_c(site) * out["reference_temp_delta_c"]
 
-    # --- expected surface of each method (before rule error terms) ---------------------------
-    out["scan_surface_rms_um"] = laser_surface_rms_um(
-        site, out["wind_gust_ms"], out["reference_age_h"], out["reference_temp_delta_c"]
-    )
-    out["astronomical_surface_rms_um"] = astronomical_surface_rms_um(
-        site, out["wind_gust_ms"], out["air_temp_rate_c_per_h"], out["calibrator_gravity_residual_um"]
-    )
+#: The columns of :func:`row_features` a feature cache keeps; :func:`complete_row_features` adds the rest.
+STORED_ROW_FEATURES = (
+    "time",
+    *(name for name in ROW_FEATURES if name not in DERIVED_ROW_FEATURES),
+    "calibrator_name",
+    "source_row",
+    "latest_row",
+    "dropout_bits",
+)
 
+
+def _assemble(times_index, out: dict[str, np.ndarray], cal_name, source_row, latest_row) -> pd.DataFrame:
+    """The frame of :func:`row_features`: time, the row features in catalogue order, then the pointers."""
     columns: dict[str, object] = {"time": times_index}
     for name in ROW_FEATURES:
         values = out[name]
@@ -240,11 +211,32 @@ def row_features(frame: pd.DataFrame, times_utc, site: Site, registry: Registry)
             np.asarray(values, dtype=bool) if CATALOGUE[name].unit == "flag" else np.asarray(values, dtype=float)
         )
     columns["calibrator_name"] = cal_name
-    good_rows = np.flatnonzero(good_mask)
-    columns["source_row"] = np.where(has, good_rows[safe] if len(good_rows) else -1, -1).astype(np.int64)
-    columns["latest_row"] = np.asarray(latest, dtype=np.int64)
-    columns["dropout_bits"] = np.asarray(dropout_bits, dtype=np.int64)
-    return pd.DataFrame(columns)
+    columns["source_row"] = source_row
+    columns["latest_row"] = latest_row
+    columns["dropout_bits"] = out["dropout_bits"]
+    return pd.DataFrame(columns, copy=False)
+
+
+def complete_row_features(stored: pd.DataFrame, site: Site) -> pd.DataFrame:
+    """The :func:`row_features` frame back from its :data:`STORED_ROW_FEATURES` (what a cache keeps).
+
+    Equal to the frame the stored columns were taken from, bit for bit, when ``stored`` holds
+    rows that :func:`row_features` computed together (a chunk of a cache entry) for the same
+    site: the derived features are computed by the same code from the same values.
+    """
+    times_index = pd.DatetimeIndex(stored["time"])
+    out = {name: stored[name].to_numpy() for name in STORED_ROW_FEATURES if name in ROW_FEATURES}
+    out["dropout_bits"] = stored["dropout_bits"].to_numpy()
+    derive_row_features(out, times_index, site)
+    frame = _assemble(
+        times_index,
+        out,
+        stored["calibrator_name"].array,
+        stored["source_row"].to_numpy(),
+        stored["latest_row"].to_numpy(),
+    )
+    frame.index = stored.index
+    return frame
 
 
 def row_features_chunked(

@@ -25,6 +25,7 @@ BELOW_VIEWS = (
     "physics",
     "io",
     "features.py",
+    "derived_features.py",
     "budget.py",
     "calibrator_choice.py",
     "weather_stats.py",

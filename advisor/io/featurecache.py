@@ -2,8 +2,8 @@
 
 Staff replay the same season again and again while they tune rules.  The features of every
 archive row (sun, moisture, wind windows, reference, calibrators) do not depend on the rules, so
-``advisor replay`` keeps them in ``$ADVISOR_CACHE_DIR`` (default ``$XDG_CACHE_HOME/advisor`` or
-``~/.cache/advisor``), keyed by a hash of everything they are computed from:
+``advisor replay`` keeps them in ``$ADVISOR_CACHE_DIR`` (default ``$XDG_CACHE_HOME/advisor/replay``
+or ``~/.cache/advisor/replay``), keyed by a hash of everything they are computed from:
 
 * the bytes of the archive, the site file and the reference registry;
 * the replayed period and the feed layout;
@@ -11,10 +11,20 @@ archive row (sun, moisture, wind windows, reference, calibrators) do not depend 
   both: :data:`advisor.features.FEATURES_VERSION`, :func:`advisor.features.feature_source_paths`).
 
 The row features do not depend on the target frequency, so one entry serves every frequency.
+A change to any of these gives a new key, so an entry is never stale.
 
-A change to any of these gives a new key, so an entry is never stale. Entries are plain
-``.npz`` arrays (no pickle), written atomically; a damaged entry is removed and recomputed.
-Only the newest :data:`MAX_ENTRIES` are kept.
+An entry is a directory ``KEY/`` holding ``manifest.json`` and raw little-endian arrays
+(:mod:`advisor.io.columnfiles`: each column in the smallest form that keeps every bit, coded
+columns packed side by side into shared lanes), memory-mapped when read: no pickle, nothing
+executed, and opening one takes milliseconds whatever its length.  It is written a chunk at a
+time (:class:`Writer`) under a temporary name renamed into place at the end, so a reader sees a
+whole entry or none, and read back chunk by chunk (:meth:`Entry.chunks`) with the same chunk
+boundaries, columns, dtypes and bits.  A damaged entry is removed and recomputed.  Only the
+newest :data:`MAX_ENTRIES` are kept.
+
+The caller decides what to keep: a replay stores only the row features that cannot be
+recomputed cheaply (``advisor.features.STORED_ROW_FEATURES``) and completes each chunk it reads
+(``advisor.features.complete_row_features``), so an entry is smaller than the archive's CSV.
 """
 
 from __future__ import annotations
@@ -23,14 +33,23 @@ import contextlib
 import hashlib
 import json
 import os
-import zipfile
+import re
+import secrets
+import shutil
+import time
+from collections.abc import Iterator
 from pathlib import Path
-from typing import Any
 
-import numpy as np
 import pandas as pd
 
+from advisor.io.columnfiles import ColumnReader, ColumnWriter, DamagedEntry, map_lanes, pack_lanes
+
 MAX_ENTRIES = 3
+FORMAT = "advisor-feature-cache"
+VERSION = 2
+#: A writer's temporary directory older than this is one whose process died [s].
+STALE_TMP_S = 86_400.0
+_KEY = re.compile(r"[0-9A-Za-z_-]{1,128}")
 
 
 def cache_dir() -> Path:
@@ -70,51 +89,203 @@ def key_for(
     return digest.hexdigest()
 
 
+def _entry_dir(key: str) -> Path:
+    if not _KEY.fullmatch(key):
+        raise ValueError(f"not a cache key: {key!r}")
+    return cache_dir() / key
+
+
+# --------------------------------------------------------------------------- writing
+class Writer:
+    """Write one entry a chunk at a time: :meth:`add` each chunk, then :meth:`commit` (or :meth:`abort`).
+
+    Every chunk has the same columns with the same dtypes (ValueError otherwise; TypeError for a
+    dtype that cannot be kept).  A failure to write (disk full, unwritable cache folder) abandons
+    the entry quietly: the cache is an optimisation, never a reason to fail.  As a context
+    manager it commits on a clean exit and aborts on an exception.
+    """
+
+    def __init__(self, key: str) -> None:
+        self.key = key
+        target = _entry_dir(key)
+        self.rows = 0
+        self._columns: list[ColumnWriter] = []
+        self._chunks: list[list[int]] = []
+        self._folder: Path | None = None
+        try:
+            target.parent.mkdir(parents=True, exist_ok=True)
+            self._folder = target.parent / f".{key}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
+            self._folder.mkdir()
+        except OSError:
+            self._folder = None
+
+    def __enter__(self) -> Writer:
+        return self
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        if exc_type is None:
+            self.commit()
+        else:
+            self.abort()
+
+    def add(self, frame: pd.DataFrame) -> None:
+        """Append one chunk (its columns, dtypes and values; a RangeIndex's start and step)."""
+        if self._folder is None:
+            return
+        names = list(frame.columns)
+        if not self._columns:
+            if len(set(names)) != len(names) or not all(isinstance(n, str) for n in names):
+                raise ValueError("cached columns need distinct string names")
+        elif names != [c.name for c in self._columns]:
+            raise ValueError("the columns changed between chunks")
+        index = frame.index
+        start, step = (index.start, index.step) if isinstance(index, pd.RangeIndex) else (0, 1)
+        try:
+            if not self._columns:
+                self._columns = [ColumnWriter(self._folder, i, frame[name]) for i, name in enumerate(names)]
+            for column in self._columns:
+                column.add(frame[column.name], self.rows)
+        except OSError:
+            self.abort()
+            return
+        except BaseException:
+            self.abort()
+            raise
+        self.rows += len(frame)
+        self._chunks.append([len(frame), int(start), int(step)])
+
+    def commit(self) -> None:
+        """Publish the entry (atomically: a rename); a concurrent writer of the same key may win."""
+        if self._folder is None:
+            return
+        folder = self._folder
+        try:
+            metas = [c.finish() for c in self._columns]
+            lanes = pack_lanes(folder, self._columns, metas, self.rows)
+            manifest = {
+                "format": FORMAT,
+                "version": VERSION,
+                "key": self.key,
+                "rows": self.rows,
+                "chunks": self._chunks,
+                "lanes": lanes,
+                "columns": metas,
+            }
+            (folder / "manifest.json").write_text(json.dumps(manifest), encoding="utf-8")
+            target = folder.parent / self.key
+            try:
+                os.rename(folder, target)  # fails when the key exists: the same content is there
+            except OSError:
+                shutil.rmtree(folder, ignore_errors=True)
+            self._folder = None
+            with contextlib.suppress(OSError):
+                os.utime(target)
+                _prune(target.parent)
+        except OSError:
+            self.abort()
+
+    def abort(self) -> None:
+        """Remove the partial entry."""
+        for column in self._columns:
+            if column.fh is not None:
+                with contextlib.suppress(OSError):
+                    column.fh.close()
+        if self._folder is not None:
+            shutil.rmtree(self._folder, ignore_errors=True)
+        self._folder = None
+
+
+def _prune(folder: Path) -> None:
+    """Keep the newest :data:`MAX_ENTRIES`; drop older formats and temporaries of dead writers."""
+    entries = []
+    now = time.time()
+    for path in folder.iterdir():
+        with contextlib.suppress(OSError):
+            if path.name.startswith("."):
+                if path.name.endswith(".tmp") and now - path.stat().st_mtime > STALE_TMP_S:
+                    shutil.rmtree(path) if path.is_dir() else path.unlink()
+            elif path.suffix == ".npz":  # an entry of the first format
+                path.unlink()
+            elif path.is_dir():
+                entries.append((path.stat().st_mtime, path.name, path))
+    for _, _, old in sorted(entries, reverse=True)[MAX_ENTRIES:]:
+        shutil.rmtree(old, ignore_errors=True)
+
+
+# --------------------------------------------------------------------------- reading
+class Entry:
+    """A stored entry, memory-mapped.  ``rows``: total rows; ``chunk_rows``: rows of each chunk."""
+
+    def __init__(self, folder: Path, manifest: dict) -> None:
+        self.folder = folder
+        self.rows = int(manifest["rows"])
+        chunks = manifest["chunks"]
+        self.chunk_rows = [int(c[0]) for c in chunks]
+        self._index = [(int(c[1]), int(c[2])) for c in chunks]
+        if sum(self.chunk_rows) != self.rows or any(r < 0 for r in self.chunk_rows):
+            raise DamagedEntry("chunks do not add up")
+        lanes = map_lanes(folder, manifest["lanes"], self.rows)
+        self._columns = [ColumnReader(folder, m, self.rows, lanes, len(chunks)) for m in manifest["columns"]]
+
+    @property
+    def columns(self) -> list[str]:
+        return [c.name for c in self._columns]
+
+    def chunks(self) -> Iterator[pd.DataFrame]:
+        """The stored frames, chunk by chunk, as they were added.
+
+        Raises DamagedEntry (and removes the entry) if a file was altered in place after it was
+        opened; its size was checked when it was opened.
+        """
+        start = 0
+        for number, n in enumerate(self.chunk_rows):
+            index_start, step = self._index[number]
+            try:
+                data = {c.name: c.chunk(number, start, start + n) for c in self._columns}
+            except DamagedEntry:
+                shutil.rmtree(self.folder, ignore_errors=True)
+                raise
+            yield pd.DataFrame(data, index=pd.RangeIndex(index_start, index_start + n * step, step), copy=False)
+            start += n
+
+
+def open_entry(key: str) -> Entry | None:
+    """The stored entry for ``key``, or None (missing, or damaged: a damaged entry is removed)."""
+    folder = _entry_dir(key)
+    if not folder.is_dir():
+        return None
+    try:
+        manifest = json.loads((folder / "manifest.json").read_text(encoding="utf-8"))
+        if manifest.get("format") != FORMAT or manifest.get("version") != VERSION or manifest.get("key") != key:
+            raise DamagedEntry("not an entry of this format")
+        entry = Entry(folder, manifest)
+    except (OSError, ValueError, KeyError, TypeError, IndexError, AttributeError):
+        shutil.rmtree(folder, ignore_errors=True)
+        return None
+    with contextlib.suppress(OSError):
+        os.utime(folder)  # most recently used
+    return entry
+
+
+# --------------------------------------------------------------------------- whole frames
+def store(key: str, frame: pd.DataFrame) -> None:
+    """Keep ``frame`` under ``key`` as one chunk (atomically); failures to write are skipped."""
+    with Writer(key) as writer:
+        writer.add(frame)
+
+
 def load(key: str) -> pd.DataFrame | None:
-    """The cached features for ``key``, or None (missing or damaged: a damaged entry is removed)."""
-    path = cache_dir() / f"{key}.npz"
-    if not path.exists():
+    """The frame stored under ``key`` (all chunks, one index), or None (missing or damaged)."""
+    entry = open_entry(key)
+    if entry is None:
         return None
     try:
-        with np.load(path, allow_pickle=False) as data:
-            columns: dict[str, Any] = {
-                "time": pd.DatetimeIndex(data["time"].astype("datetime64[ns]")).tz_localize("UTC")
-            }
-            names = [str(n) for n in data["__columns__"]]
-            for name in names:
-                columns[name] = data[name]
-            columns["calibrator_name"] = pd.Categorical.from_codes(
-                data["__calibrator_codes__"], categories=pd.Index([str(c) for c in data["__calibrator_names__"]])
-            )
-        os.utime(path)  # most recently used
-        return pd.DataFrame(columns)
-    except (OSError, ValueError, KeyError, zipfile.BadZipFile, EOFError):
-        path.unlink(missing_ok=True)
+        parts = list(entry.chunks())
+    except DamagedEntry:
         return None
+    if len(parts) == 1:
+        return parts[0]
+    return pd.concat(parts, ignore_index=True) if parts else None
 
 
-def store(key: str, features: pd.DataFrame) -> None:
-    """Keep ``features`` under ``key`` (atomically); failures to write are silently skipped."""
-    folder = cache_dir()
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        names = [c for c in features.columns if c not in ("time", "calibrator_name")]
-        arrays: dict[str, Any] = {name: features[name].to_numpy() for name in names}
-        cal = pd.Categorical(features["calibrator_name"])
-        arrays.update(
-            {
-                "time": pd.DatetimeIndex(features["time"]).tz_convert("UTC").tz_localize(None).as_unit("ns").asi8,
-                "__columns__": np.array(names),
-                "__calibrator_codes__": cal.codes.astype(np.int16),
-                "__calibrator_names__": np.array([str(c) for c in cal.categories]),
-            }
-        )
-        tmp = folder / f".{key}.{os.getpid()}.tmp.npz"
-        np.savez(tmp, **arrays)
-        os.replace(tmp, folder / f"{key}.npz")
-        entries = sorted(folder.glob("*.npz"), key=lambda p: p.stat().st_mtime, reverse=True)
-        for old in entries[MAX_ENTRIES:]:
-            old.unlink(missing_ok=True)
-    except OSError:
-        with contextlib.suppress(OSError, NameError):
-            tmp.unlink(missing_ok=True)
+__all__ = ["MAX_ENTRIES", "DamagedEntry", "Entry", "Writer", "cache_dir", "key_for", "load", "open_entry", "store"]
