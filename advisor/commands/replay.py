@@ -21,7 +21,7 @@ from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import Replayed, attempts_from_history
 from advisor.evaluation.replay_stream import ReplayTotals, decide_chunks, feature_chunks
 from advisor.evaluation.replay_table import step_table
-from advisor.features import FEATURES_VERSION, complete_row_features, feature_source_paths, stored_row_features
+from advisor.features import STORED_ROW_FEATURES, FEATURES_VERSION, complete_row_features, feature_source_paths
 from advisor.io import featurecache
 from advisor.io.archive import ArchiveReader, NeedsWholeRead
 from advisor.io.fileio import atomic_writer, refuse_overwrite
@@ -164,6 +164,7 @@ class _Run:
         self.key, self.use_cache, self.t_from, self.t_to = key, use_cache, t_from, t_to
         self.feed_cadence_min: float | None = None
         self.whole_read = False
+        self.recompute = False  # a cache entry turned out damaged
         self.zone_checked = False
 
     def totals(self, csv_path: str | None) -> ReplayTotals:
@@ -190,10 +191,14 @@ class _Run:
 
     def _pass(self, totals: ReplayTotals, write_rows) -> bool:
         """Decide every row once; True when it must be done again (a guess about the feed failed)."""
-        entry = featurecache.open_entry(self.key) if self.use_cache else None
+        entry = featurecache.open_entry(self.key) if self.use_cache and not self.recompute else None
         if entry is not None:
             chunks = (complete_row_features(stored, self.inputs.site) for stored in entry.chunks())
-            decide_chunks(chunks, self.scenario, self.rule_sets, totals, write_rows)
+            try:
+                decide_chunks(chunks, self.scenario, self.rule_sets, totals, write_rows)
+            except featurecache.DamagedEntry:  # removed by the cache: compute the features again
+                self.recompute = True
+                return True
             return False
         reader = ArchiveReader(
             self.inputs.feed_path,
@@ -252,7 +257,7 @@ class _Run:
 def _stored_as_they_pass(chunks: Iterator[pd.DataFrame], writer) -> Iterator[pd.DataFrame]:
     """The chunks unchanged, each stored in the feature cache on its way."""
     for chunk in chunks:
-        writer.add(stored_row_features(chunk))
+        writer.add(chunk[list(STORED_ROW_FEATURES)])
         yield chunk
 
 
