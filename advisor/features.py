@@ -393,4 +393,3 @@ def columns_of(features: pd.DataFrame, targets: dict[str, float] | None = None) 
     for name, value in (targets or {}).items():
         columns[name] = np.broadcast_to(np.float64(value), (n,))
     return columns
-

@@ -84,11 +84,21 @@ def test_tail_read_reports_true_file_lines(tmp_path):
 
 
 def test_huge_feed_is_refused_without_reading_it(capsys, tmp_path):
+    """A whole-file command refuses a feed over the size cap before reading it; replay, which
+    streams, refuses a file that is not text at its first bytes, before hashing it all."""
     path = tmp_path / "huge.csv"
     with path.open("wb") as fh:  # a sparse 1.2 GB file: costs no disk, would cost memory to read
+        fh.write(b"time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n")
+        fh.write(b"2026-01-01T00:00:00Z,1.0,2.0,3.0,50\n" * 200)
+        fh.truncate(1_200_000_000)
+    status = main(["outlook", "--feed", str(path), "--forecast", str(path)])
+    err = capsys.readouterr().err
+    assert status == 2 and "split the archive" in err and len(err.strip().splitlines()) == 1
+    os.unlink(path)
+    with path.open("wb") as fh:
         fh.write(b"time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n")
         fh.truncate(1_200_000_000)
     status = main(["replay", "--feed", str(path)])
     err = capsys.readouterr().err
-    assert status == 2 and "split the archive" in err and len(err.strip().splitlines()) == 1
+    assert status == 2 and "NUL bytes" in err and len(err.strip().splitlines()) == 1
     os.unlink(path)

@@ -168,9 +168,7 @@ def _streamed(argv: list[str], capsys) -> dict:
 @pytest.mark.parametrize("part_rows", [113, 1_777, 6_963, 40_000])
 def test_archive_parts_concatenate_to_the_whole_read(tmp_path, part_rows):
     feed = _messy(tmp_path)
-    layout = session.load_inputs(
-        session.request_from(build_parser().parse_args(_args(feed))), read=None
-    ).feed_layout
+    layout = session.load_inputs(session.request_from(build_parser().parse_args(_args(feed))), read=None).feed_layout
     whole = read_feed(feed, layout)
     reader = ArchiveReader(feed, layout, whole.quality.cadence_min, part_rows=part_rows, stream_above_bytes=0)
     parts = list(reader.frames())
@@ -188,9 +186,7 @@ def test_archive_parts_concatenate_to_the_whole_read(tmp_path, part_rows):
 
 def test_archive_reader_measures_the_whole_files_cadence_when_the_first_part_misleads(tmp_path):
     feed = _messy(tmp_path, cadence_change=True)
-    layout = session.load_inputs(
-        session.request_from(build_parser().parse_args(_args(feed))), read=None
-    ).feed_layout
+    layout = session.load_inputs(session.request_from(build_parser().parse_args(_args(feed))), read=None).feed_layout
     whole = read_feed(feed, layout)
     reader = ArchiveReader(feed, layout, part_rows=1_000, stream_above_bytes=0)
     list(reader.frames())
@@ -201,9 +197,7 @@ def test_archive_reader_measures_the_whole_files_cadence_when_the_first_part_mis
 @pytest.mark.parametrize("fault", ["out_of_order", "repeat"])
 def test_archive_reader_asks_for_a_whole_read_when_rows_are_out_of_order_or_repeated(tmp_path, fault):
     feed = _messy(tmp_path, **{fault: True})
-    layout = session.load_inputs(
-        session.request_from(build_parser().parse_args(_args(feed))), read=None
-    ).feed_layout
+    layout = session.load_inputs(session.request_from(build_parser().parse_args(_args(feed))), read=None).feed_layout
     with pytest.raises(NeedsWholeRead):
         list(ArchiveReader(feed, layout, part_rows=1_000, stream_above_bytes=0).frames())
 

@@ -11,7 +11,9 @@ import argparse
 import json
 import sys
 from collections.abc import Iterator
+from contextlib import AbstractContextManager
 from pathlib import Path
+from typing import Literal, TextIO
 
 import pandas as pd
 
@@ -21,7 +23,7 @@ from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import Replayed, attempts_from_history
 from advisor.evaluation.replay_stream import ReplayTotals, decide_chunks, feature_chunks
 from advisor.evaluation.replay_table import step_table
-from advisor.features import STORED_ROW_FEATURES, FEATURES_VERSION, complete_row_features, feature_source_paths
+from advisor.features import FEATURES_VERSION, STORED_ROW_FEATURES, complete_row_features, feature_source_paths
 from advisor.io import featurecache
 from advisor.io.archive import ArchiveReader, NeedsWholeRead
 from advisor.io.fileio import atomic_writer, refuse_overwrite
@@ -98,6 +100,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
     if args.compare_rules:  # the same features serve both rule sets
         rule_sets.append(session.load_ruleset(inputs.site, [*request.rule_files, *args.compare_rules]))
     attempts = attempts_from_history(read_history(args.history)) if args.history else None
+    ArchiveReader(inputs.feed_path, inputs.feed_layout).check_head()  # before hashing it for the cache
     key = featurecache.key_for(
         inputs.feed_path,
         Path(inputs.site.source),
@@ -114,6 +117,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
     run = _Run(inputs, scenario, rule_sets, attempts, key, use_cache=not args.no_cache, t_from=t_from, t_to=t_to)
     totals = run.totals(args.csv)
     base_scores = totals.scores(0)
+    assert totals.first_ns is not None and totals.last_ns is not None  # a replay without rows stopped earlier
     first, last = (pd.Timestamp(t, tz="UTC") for t in (totals.first_ns, totals.last_ns))
     summary = {
         "feed": str(inputs.feed_path),
@@ -193,9 +197,11 @@ class _Run:
         """Decide every row once; True when it must be done again (a guess about the feed failed)."""
         entry = featurecache.open_entry(self.key) if self.use_cache and not self.recompute else None
         if entry is not None:
-            chunks = (complete_row_features(stored, self.inputs.site) for stored in entry.chunks())
+            cached: Iterator[pd.DataFrame] = (
+                complete_row_features(stored, self.inputs.site) for stored in entry.chunks()
+            )
             try:
-                decide_chunks(chunks, self.scenario, self.rule_sets, totals, write_rows)
+                decide_chunks(cached, self.scenario, self.rule_sets, totals, write_rows)
             except featurecache.DamagedEntry:  # removed by the cache: compute the features again
                 self.recompute = True
                 return True
@@ -210,7 +216,7 @@ class _Run:
         writer = featurecache.Writer(self.key) if self.use_cache else None
         progress = _Progress(self.inputs.feed_path)
         try:
-            chunks = feature_chunks(
+            chunks: Iterator[pd.DataFrame] = feature_chunks(
                 self._frames(reader),
                 self.inputs.site,
                 self.inputs.registry,
@@ -266,9 +272,9 @@ class _CsvRows:
 
     def __init__(self, path: str | None) -> None:
         self.path = path
-        self.fh = None
+        self.fh: TextIO | None = None
         self.header = True
-        self._writer = None
+        self._writer: AbstractContextManager[TextIO] | None = None
         self._discard = False
 
     def __enter__(self) -> _CsvRows:
@@ -295,7 +301,7 @@ class _CsvRows:
     def discard(self) -> None:
         self._discard = True
 
-    def __exit__(self, kind, value, tb) -> bool:
+    def __exit__(self, kind, value, tb) -> Literal[False]:
         if self._writer is None:
             return False
         if kind is None and self._discard:

@@ -318,7 +318,7 @@ def weather_masks(features: pd.DataFrame, verdict: np.ndarray, wind_limit_ms: fl
         return np.asarray(mask, dtype=bool) & ok
 
     wind = features["wind_mean_ms"].to_numpy(dtype=float)
-    masks = {
+    masks: dict[tuple, np.ndarray] = {
         ("weather", "wind_above_limit"): among_ok(wind > wind_limit_ms),
         ("weather", "fog"): among_ok(features["fog"]),
         ("weather", "precipitation"): among_ok(features["precipitation"]),
@@ -360,6 +360,4 @@ def weather_hours(features: pd.DataFrame, verdict: np.ndarray, hours: np.ndarray
     of those hours the advice was scan (each such call names the input as not seen).
     """
     masks = weather_masks(features, verdict, wind_limit_ms)
-    return weather_summary(
-        lambda key: float(hours[masks[key]].sum()), lambda key: bool(masks[key].any()), list(masks)
-    )
+    return weather_summary(lambda key: float(hours[masks[key]].sum()), lambda key: bool(masks[key].any()), list(masks))

@@ -60,7 +60,7 @@ __all__ = ["DECIDE_CELLS", "FEATURE_CHUNK_ROWS", "ReplayTotals", "decide_chunks"
 #: Evaluation times per chunk of row features (as :func:`advisor.features.row_features_chunked`).
 FEATURE_CHUNK_ROWS = 100_000
 #: Most rule × row results (fired masks and error terms) held at once while deciding.
-DECIDE_CELLS = 4_000_000
+DECIDE_CELLS = 16_000_000
 NS_PER_HOUR = 3_600_000_000_000
 _NV = len(VERDICTS)
 _VERDICTS = np.array(VERDICTS, dtype=object)
@@ -263,15 +263,16 @@ class ReplayTotals:
                 self.cadences[value] = self.cadences.get(value, 0) + count
         if self.gap_limit_min is None:
             self.gap_limit_min = float(self.site.feed.gap_limit_min(self.cadence_min()))
+        gap_limit_min = self.gap_limit_min
         final = next_ns is None
-        following = np.append(times_ns[1:], times_ns[-1] if final else next_ns)
+        following = np.append(times_ns[1:], times_ns[-1] if next_ns is None else next_ns)
         step = following - times_ns
         counted = step[:-1] if final else step
         if len(counted):
             values, counts = np.unique(counted, return_counts=True)
             for value, count in zip(values.tolist(), counts.tolist(), strict=True):
                 self.steps[value] = self.steps.get(value, 0) + count
-        weights = np.where(step / 6e10 <= self.gap_limit_min, step, 0)
+        weights = np.where(step / 6e10 <= gap_limit_min, step, 0)
         if final:
             weights[-1] = 0  # the last row's hours come from the median step
         masks = self._masks(decisions)
@@ -293,7 +294,7 @@ class ReplayTotals:
                 masks[("verdict", k, v)] = d.verdict == v
         masks[("all",)] = np.ones(len(base.verdict), dtype=bool)
         masks[("no_reference",)] = ~features["has_reference"].to_numpy(dtype=bool)
-        if self.attempts is not None and len(self.attempts):
+        if self.attempt_ns is not None and len(self.attempt_ns):
             t = features["time"].to_numpy(dtype="datetime64[ns]").view(np.int64)
             masks[("outside_attempts",)] = (t < self.attempt_ns.min()) | (t > self.attempt_ns.max())
         wind_limit = float(self.site.thresholds.high_frequency_wind_limit_ms)
@@ -323,6 +324,7 @@ class ReplayTotals:
     def _keep_attempt_rows(self, decisions: Sequence[Decisions], times_ns: np.ndarray, next_ns: int | None) -> None:
         """Keep the rows in force at the attempts that fall from this slice's first row to the next."""
         q = self.attempt_ns
+        assert q is not None
         inside = q >= times_ns[0]
         if next_ns is not None:
             inside &= q < next_ns

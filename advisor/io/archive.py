@@ -162,6 +162,11 @@ class ArchiveReader:
         return None if median is None else median / 6e10
 
     # ------------------------------------------------------------------ reading
+    def check_head(self) -> None:
+        """Refuse at once a file that is not a regular file of text (before anything reads it all)."""
+        with open_regular(self.path, FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (fh, _size):
+            _refuse_bad_head(fh.read(4096), self.source)
+
     def frames(self) -> Iterator[pd.DataFrame]:
         """The canonical rows of the file, in time order, one part at a time."""
         with open_regular(self.path, FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (fh, size):
@@ -207,8 +212,7 @@ class ArchiveReader:
                 warnings.simplefilter("ignore", pd.errors.DtypeWarning)
                 reader = pd.read_csv(stream, encoding="utf-8", skiprows=skip or None, chunksize=self.part_rows)
                 with reader:
-                    for table in reader:
-                        yield table
+                    yield from reader
         except UnicodeDecodeError:
             raise (
                 _first_bad_utf8(fh, end, self.source)
