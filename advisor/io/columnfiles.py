@@ -31,6 +31,8 @@ MAX_CODES = 1 << 20
 #: Rows handled at once when a written column is converted or packed.
 BLOCK_ROWS = 1 << 20
 LANE_BITS = 64
+#: A first chunk with at most this share of distinct values is coded.
+REPEATING = 0.95
 
 
 class DamagedEntry(ValueError):
@@ -125,7 +127,7 @@ class ColumnWriter:
     # ------------------------------------------------------------------ keys
     def _keys(self, series: pd.Series, first_row: int) -> np.ndarray:
         n = len(series)
-        if series.dtype != self.dtype:
+        if _kind(series) != (self.kind, self.meta):  # categories may differ from chunk to chunk
             raise ValueError(f"column {self.name!r} changed dtype between chunks: {self.dtype} -> {series.dtype}")
         if self.kind == "bool":
             return series.to_numpy().view(np.uint8).astype(np.int64)
@@ -197,9 +199,14 @@ class ColumnWriter:
         self.rows += n
 
     def _choose(self, keys: np.ndarray) -> None:
+        """Codes unless nearly every value of the first chunk is new (a continuous quantity).
+
+        Later chunks repeat the values of the first (its table is paid once), so a column is coded
+        on a hint of repetition; :meth:`finish` turns it raw if the codes and table cost more.
+        """
         n, distinct = len(keys), len(pd.unique(keys))
-        raw_bytes = n * self._raw_itemsize(keys)
-        if self.kind in ("bool", "category", "string") or n * _bits(distinct) / 8 + 8 * distinct <= raw_bytes:
+        repeats = distinct <= REPEATING * n or n * _bits(distinct) / 8 + 8 * distinct <= n * self._raw_itemsize(keys)
+        if self.kind in ("bool", "category", "string") or repeats:
             self.encoding = "coded"
             self.fh = self._path("codes.tmp").open("wb")
         else:
@@ -466,4 +473,6 @@ class ColumnReader:
         if len(keys) and (keys.min() < -1 or keys.max() >= len(self.strings) - 1):
             raise DamagedEntry(f"{self.name}: a string beyond its table")
         values = self.strings[keys]
-        return values if meta["dtype"] == "object" else pd.array(values, dtype=pd.api.types.pandas_dtype(meta["dtype"]))
+        if meta["dtype"] == "object":
+            return values
+        return pd.array(values, dtype=pd.api.types.pandas_dtype(meta["dtype"]))

@@ -240,12 +240,16 @@ class Entry:
         start = 0
         for number, n in enumerate(self.chunk_rows):
             index_start, step = self._index[number]
+            index = pd.RangeIndex(index_start, index_start + n * step, step)
             try:
                 data = {c.name: c.chunk(number, start, start + n) for c in self._columns}
             except DamagedEntry:
                 shutil.rmtree(self.folder, ignore_errors=True)
                 raise
-            yield pd.DataFrame(data, index=pd.RangeIndex(index_start, index_start + n * step, step), copy=False)
+            for c in self._columns:  # objects stay objects (a frame would infer strings)
+                if c.kind == "string" and c.meta["dtype"] == "object":
+                    data[c.name] = pd.Series(data[c.name], index=index, dtype=object, copy=False)
+            yield pd.DataFrame(data, index=index, copy=False)
             start += n
 
 
