@@ -42,7 +42,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from advisor.io.columnfiles import ColumnReader, ColumnWriter, DamagedEntry, map_lanes, pack_lanes
+from advisor.io.columnfiles import ColumnWriter, DamagedEntry, pack_lanes
+from advisor.io.columnread import ColumnReader, map_lanes
 
 MAX_ENTRIES = 3
 FORMAT = "advisor-feature-cache"
