@@ -1,7 +1,7 @@
 """Data-frame columns as raw little-endian arrays, each in the smallest form that keeps every bit.
 
 The storage of :mod:`advisor.io.featurecache`.  A column is written a chunk at a time
-(:class:`ColumnWriter`) and read back from memory-mapped files (:class:`ColumnReader`); nothing
+(:class:`ColumnWriter`) and read back from memory maps (:mod:`advisor.io.columnread`); nothing
 is pickled or executed.  Every value becomes an integer *key* that keeps its bits (a float's bit
 pattern, so -0.0, NaN and infinities survive; a time's step from the row before; an integer's
 offset from its row number when that repeats more, as row pointers do; a string's index in a
