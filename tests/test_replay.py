@@ -284,7 +284,8 @@ def _cache_files():
     import os
 
     folder = Path(os.environ["ADVISOR_CACHE_DIR"])
-    return sorted(folder.glob("*.npz")) if folder.exists() else []
+    # an entry is a directory named by its key (writers' temporaries start with a dot)
+    return sorted(p for p in folder.iterdir() if p.is_dir() and not p.name.startswith(".")) if folder.exists() else []
 
 
 def test_second_replay_reuses_the_features_and_gives_the_same_answer(capsys, tmp_path, monkeypatch, sample_args):
@@ -334,10 +335,12 @@ def test_damaged_cache_entry_is_recomputed(capsys, tmp_path, monkeypatch, sample
     assert main(sample_args + ["--json"]) == 0
     good = json.loads(capsys.readouterr().out)
     (entry,) = _cache_files()
-    entry.write_bytes(entry.read_bytes()[:1000])  # truncated
+    biggest = max(entry.iterdir(), key=lambda p: p.stat().st_size)
+    size = biggest.stat().st_size
+    biggest.write_bytes(biggest.read_bytes()[: size // 2])  # truncated
     assert main(sample_args + ["--json"]) == 0
     assert json.loads(capsys.readouterr().out) == good
-    assert _cache_files() == [entry] and entry.stat().st_size > 1000
+    assert _cache_files() == [entry] and biggest.stat().st_size == size
 
 
 def test_no_cache_writes_nothing(capsys, tmp_path, monkeypatch, sample_args):

@@ -1,7 +1,7 @@
 """Data-frame columns as raw little-endian arrays, each in the smallest form that keeps every bit.
 
 The storage of :mod:`advisor.io.featurecache`.  A column is written a chunk at a time
-(:class:`ColumnWriter`) and read back from memory-mapped files (:class:`ColumnReader`); nothing
+(:class:`ColumnWriter`) and read back from memory maps (:mod:`advisor.io.columnread`); nothing
 is pickled or executed.  Every value becomes an integer *key* that keeps its bits (a float's bit
 pattern, so -0.0, NaN and infinities survive; a time's step from the row before; an integer's
 offset from its row number when that repeats more, as row pointers do; a string's index in a
@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -31,6 +32,8 @@ MAX_CODES = 1 << 20
 #: Rows handled at once when a written column is converted or packed.
 BLOCK_ROWS = 1 << 20
 LANE_BITS = 64
+#: A first chunk with at most this share of distinct values is coded.
+REPEATING = 0.95
 
 
 class DamagedEntry(ValueError):
@@ -57,7 +60,7 @@ def _kind(series: pd.Series) -> tuple[str, dict]:
         if dtype.kind == "f":
             return "float", {"dtype": dtype.str}
         if dtype.kind == "M":
-            return "time", {"unit": np.datetime_data(dtype)[0], "tz": None}
+            return "time", {"unit": np.datetime_data(dtype.str)[0], "tz": None}
     raise TypeError(f"column {series.name!r}: cannot cache dtype {dtype}")
 
 
@@ -119,13 +122,13 @@ class ColumnWriter:
         self.strings: dict = {}  # string kind: value -> key
         self.category_sets: list[list[str]] = []
         self.chunk_sets: list[int] = []
-        self.codes_dtype = np.dtype("<u2")
-        self.fh = None
+        self.codes_dtype: np.dtype = np.dtype("<u2")
+        self.fh: Any = None  # the open file of the column's codes or values
 
     # ------------------------------------------------------------------ keys
     def _keys(self, series: pd.Series, first_row: int) -> np.ndarray:
         n = len(series)
-        if series.dtype != self.dtype:
+        if _kind(series) != (self.kind, self.meta):  # categories may differ from chunk to chunk
             raise ValueError(f"column {self.name!r} changed dtype between chunks: {self.dtype} -> {series.dtype}")
         if self.kind == "bool":
             return series.to_numpy().view(np.uint8).astype(np.int64)
@@ -197,9 +200,14 @@ class ColumnWriter:
         self.rows += n
 
     def _choose(self, keys: np.ndarray) -> None:
+        """Codes unless nearly every value of the first chunk is new (a continuous quantity).
+
+        Later chunks repeat the values of the first (its table is paid once), so a column is coded
+        on a hint of repetition; :meth:`finish` turns it raw if the codes and table cost more.
+        """
         n, distinct = len(keys), len(pd.unique(keys))
-        raw_bytes = n * self._raw_itemsize(keys)
-        if self.kind in ("bool", "category", "string") or n * _bits(distinct) / 8 + 8 * distinct <= raw_bytes:
+        repeats = distinct <= REPEATING * n or n * _bits(distinct) / 8 + 8 * distinct <= n * self._raw_itemsize(keys)
+        if self.kind in ("bool", "category", "string") or repeats:
             self.encoding = "coded"
             self.fh = self._path("codes.tmp").open("wb")
         else:
@@ -349,121 +357,3 @@ def pack_lanes(folder: Path, writers: list[ColumnWriter], metas: list[dict], row
         if meta["encoding"] == "coded":
             writer.codes_file()[0].unlink(missing_ok=True)
     return out
-
-
-# ---------------------------------------------------------------------- reading
-def _expect_size(path: Path, size: int) -> None:
-    if not path.is_file() or path.stat().st_size != size:
-        raise DamagedEntry(f"{path.name}: missing or of the wrong size")
-
-
-def _map(path: Path, dtype: str, rows: int) -> np.ndarray:
-    _expect_size(path, rows * np.dtype(dtype).itemsize)
-    if rows == 0:
-        return np.empty(0, dtype=dtype)
-    return np.memmap(path, dtype=dtype, mode="r", shape=(rows,))
-
-
-def map_lanes(folder: Path, lanes: list[dict], rows: int) -> list[np.ndarray]:
-    """The lanes of an entry, memory-mapped (DamagedEntry when a file is missing or cut)."""
-    out = []
-    for lane in lanes:
-        if lane["dtype"] not in ("<u1", "<u2", "<u4", "<u8") or not 0 < lane["bits"] <= 8 * int(lane["dtype"][2:]):
-            raise DamagedEntry("bad lane")
-        out.append(_map(folder / Path(lane["file"]).name, lane["dtype"], rows))
-    return out
-
-
-class ColumnReader:
-    """One stored column, memory-mapped; :meth:`chunk` decodes a range of rows to what was written."""
-
-    def __init__(self, folder: Path, meta: dict, rows: int, lanes: list[np.ndarray], chunks: int) -> None:
-        self.meta, self.rows = meta, rows
-        self.name: str = meta["name"]
-        self.kind: str = meta["kind"]
-        if self.kind not in ("bool", "int", "float", "time", "category", "string"):
-            raise DamagedEntry(f"unknown kind {self.kind!r}")
-        self.codes: np.ndarray | None = None
-        self.table: np.ndarray | None = None
-        self.raw: np.ndarray | None = None
-        self.shift = self.mask = 0
-        if meta["encoding"] == "coded":
-            distinct, bits = int(meta["distinct"]), int(meta["bits"])
-            path = folder / Path(meta["table"]).name
-            _expect_size(path, 8 * distinct)
-            self.table = np.fromfile(path, dtype="<i8")
-            if bits != (0 if distinct <= 1 else math.ceil(math.log2(distinct))) or (rows and not distinct):
-                raise DamagedEntry(f"{self.name}: bits do not match the table")
-            if bits:
-                lane = lanes[int(meta["lane"])]
-                shift = int(meta["shift"])
-                if not 0 <= shift <= 8 * lane.dtype.itemsize - bits:
-                    raise DamagedEntry(f"{self.name}: bad shift")
-                self.codes, self.shift, self.mask = lane, shift, (1 << bits) - 1
-        elif meta["encoding"] == "raw":
-            if meta["raw_dtype"] not in ("<i8", "<f2", "<f4", "<f8"):
-                raise DamagedEntry(f"{self.name}: bad raw dtype")
-            self.raw = _map(folder / Path(meta["file"]).name, meta["raw_dtype"], rows)
-        else:
-            raise DamagedEntry(f"{self.name}: unknown encoding")
-        if self.kind == "time" and len(meta["firsts"]) != chunks:
-            raise DamagedEntry(f"{self.name}: a first time per chunk expected")
-        if self.kind == "category":
-            sets = meta["category_sets"]
-            self.categories = [pd.Index(s, dtype=meta["categories_dtype"]) for s in sets]
-            if len(meta["chunk_sets"]) != chunks or any(not 0 <= k < len(sets) for k in meta["chunk_sets"]):
-                raise DamagedEntry(f"{self.name}: bad categories")
-        if self.kind == "string":
-            self.strings = np.array([*meta["strings"], None], dtype=object)
-
-    def _keys(self, start: int, stop: int) -> np.ndarray:
-        if self.raw is not None:
-            return np.array(self.raw[start:stop])
-        assert self.table is not None
-        if self.codes is None:
-            return np.full(stop - start, self.table[0] if len(self.table) else 0, dtype=np.int64)
-        codes = np.asarray(self.codes[start:stop])
-        word = codes.dtype.type
-        if self.shift or self.mask != np.iinfo(codes.dtype).max:
-            codes = (codes >> word(self.shift)) & word(self.mask)
-        index = codes.view(np.int64) if codes.dtype.itemsize == 8 else codes.astype(np.intp)
-        try:
-            return self.table.take(index)
-        except IndexError:
-            raise DamagedEntry(f"{self.name}: a code beyond its table") from None
-
-    def chunk(self, number: int, start: int, stop: int):
-        """Rows ``[start, stop)`` (chunk ``number``) as an array of the written dtype."""
-        keys = self._keys(start, stop)
-        meta = self.meta
-        if self.kind == "float":
-            dtype = np.dtype(meta["dtype"])
-            if self.raw is not None:
-                return keys.astype(dtype)
-            return keys.astype(f"<i{dtype.itemsize}").view(dtype)
-        if self.kind == "bool":
-            return keys.astype(bool)
-        if self.kind == "int":
-            if meta["offset"]:
-                keys = keys + np.arange(start, stop, dtype=np.int64)
-            dtype = np.dtype(meta["dtype"])
-            return keys.view(dtype) if dtype.itemsize == 8 else keys.astype(dtype)
-        if self.kind == "time":
-            if len(keys):
-                keys[0] = 0
-            with np.errstate(over="ignore"):
-                ns = np.cumsum(keys, dtype=np.int64) + np.int64(meta["firsts"][number])
-            values = ns.view(f"datetime64[{meta['unit']}]")
-            if meta["tz"] is None:
-                return values
-            return pd.DatetimeIndex(values).tz_localize("UTC").tz_convert(meta["tz"]).array
-        if self.kind == "category":
-            categories = self.categories[meta["chunk_sets"][number]]
-            try:
-                return pd.Categorical.from_codes(keys, categories=categories, ordered=meta["ordered"])
-            except ValueError:
-                raise DamagedEntry(f"{self.name}: a code beyond its categories") from None
-        if len(keys) and (keys.min() < -1 or keys.max() >= len(self.strings) - 1):
-            raise DamagedEntry(f"{self.name}: a string beyond its table")
-        values = self.strings[keys]
-        return values if meta["dtype"] == "object" else pd.array(values, dtype=pd.api.types.pandas_dtype(meta["dtype"]))

@@ -42,7 +42,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from advisor.io.columnfiles import ColumnReader, ColumnWriter, DamagedEntry, map_lanes, pack_lanes
+from advisor.io.columnfiles import ColumnWriter, DamagedEntry, pack_lanes
+from advisor.io.columnread import ColumnReader, map_lanes
 
 MAX_ENTRIES = 3
 FORMAT = "advisor-feature-cache"
@@ -240,12 +241,16 @@ class Entry:
         start = 0
         for number, n in enumerate(self.chunk_rows):
             index_start, step = self._index[number]
+            index = pd.RangeIndex(index_start, index_start + n * step, step)
             try:
                 data = {c.name: c.chunk(number, start, start + n) for c in self._columns}
             except DamagedEntry:
                 shutil.rmtree(self.folder, ignore_errors=True)
                 raise
-            yield pd.DataFrame(data, index=pd.RangeIndex(index_start, index_start + n * step, step), copy=False)
+            for c in self._columns:  # objects stay objects (a frame would infer strings)
+                if c.kind == "string" and c.meta["dtype"] == "object":
+                    data[c.name] = pd.Series(data[c.name], index=index, dtype=object, copy=False)
+            yield pd.DataFrame(data, index=index, copy=False)
             start += n
 
 
