@@ -299,7 +299,7 @@ def test_second_replay_reuses_the_features_and_gives_the_same_answer(capsys, tmp
     def no_reading(*_a, **_k):
         raise AssertionError("the archive was read again")
 
-    monkeypatch.setattr(cli_replay, "read_feed", no_reading)
+    monkeypatch.setattr(cli_replay.ArchiveReader, "frames", no_reading)
     assert main(sample_args + ["--json"]) == 0
     assert json.loads(capsys.readouterr().out) == cold
 
@@ -323,7 +323,7 @@ def test_cache_key_follows_the_inputs(capsys, tmp_path, monkeypatch, sample_args
     def no_reading(*_a, **_k):
         raise AssertionError("the archive was read again for another frequency")
 
-    monkeypatch.setattr(cli_replay, "read_feed", no_reading)
+    monkeypatch.setattr(cli_replay.ArchiveReader, "frames", no_reading)
     assert main(args + ["--freq", "43", "--json"]) == 0
     at_43 = json.loads(capsys.readouterr().out)
     assert len(_cache_files()) == 2
