@@ -49,7 +49,7 @@ from advisor.evaluation.replay import (
 )
 from advisor.evaluation.replay_table import coverage_warnings_from
 from advisor.features import LOOKBACK, row_features
-from advisor.io.archive import median_of_counts
+from advisor.io.archive import count_values, median_of_counts
 from advisor.io.references import Registry
 from advisor.io.site import Site
 from advisor.rules.ruleset import RuleEvaluation, RuleSet
@@ -256,22 +256,14 @@ class ReplayTotals:
             return
         base = decisions[0]
         cadence = base.features["feed_cadence_min"].to_numpy(dtype=float)
-        finite = cadence[np.isfinite(cadence)]
-        if len(finite):
-            values, counts = np.unique(finite, return_counts=True)
-            for value, count in zip(values.tolist(), counts.tolist(), strict=True):
-                self.cadences[value] = self.cadences.get(value, 0) + count
+        count_values(self.cadences, cadence[np.isfinite(cadence)])
         if self.gap_limit_min is None:
             self.gap_limit_min = float(self.site.feed.gap_limit_min(self.cadence_min()))
         gap_limit_min = self.gap_limit_min
         final = next_ns is None
         following = np.append(times_ns[1:], times_ns[-1] if next_ns is None else next_ns)
         step = following - times_ns
-        counted = step[:-1] if final else step
-        if len(counted):
-            values, counts = np.unique(counted, return_counts=True)
-            for value, count in zip(values.tolist(), counts.tolist(), strict=True):
-                self.steps[value] = self.steps.get(value, 0) + count
+        count_values(self.steps, step[:-1] if final else step)
         weights = np.where(step / 6e10 <= gap_limit_min, step, 0)
         if final:
             weights[-1] = 0  # the last row's hours come from the median step

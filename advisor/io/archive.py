@@ -71,6 +71,19 @@ class NeedsWholeRead(Exception):
     """The file cannot be read in parts exactly (rows out of order or repeated): read it whole."""
 
 
+def count_values(counts: dict, values: np.ndarray) -> None:
+    """Add to ``counts`` how often each value occurs (one value throughout without sorting)."""
+    if len(values) == 0:
+        return
+    first = values[0].item()
+    if (values == first).all():
+        counts[first] = counts.get(first, 0) + len(values)
+        return
+    unique, repeats = np.unique(values, return_counts=True)
+    for value, count in zip(unique.tolist(), repeats.tolist(), strict=True):
+        counts[value] = counts.get(value, 0) + count
+
+
 def median_of_counts(counts: dict[int, int]) -> float | None:
     """The median of a multiset of integers given as value → count, as ``np.median`` computes it."""
     if not counts:
@@ -258,15 +271,7 @@ class ArchiveReader:
         t = frame["time"].to_numpy(dtype="datetime64[ns]").view(np.int64)
         positions = np.arange(len(t)) if observed is None else np.flatnonzero(observed)
         times = t[positions]
-        steps = np.diff(times)[positions[1:] > start]
-        if len(steps) == 0:
-            return
-        if (steps == steps[0]).all():
-            self._steps[int(steps[0])] = self._steps.get(int(steps[0]), 0) + len(steps)
-            return
-        values, counts = np.unique(steps, return_counts=True)
-        for value, count in zip(values.tolist(), counts.tolist(), strict=True):
-            self._steps[value] = self._steps.get(value, 0) + count
+        count_values(self._steps, np.diff(times)[positions[1:] > start])
 
     def _note(self, part: pd.DataFrame) -> None:
         if len(part) == 0:
