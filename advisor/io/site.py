@@ -435,5 +435,5 @@ def load_site(path: Path | str | None = None) -> Site:
     """Load and validate a site file; ``None`` loads the bundled demo site."""
     path = demo_site_path() if path is None else Path(path)
     is_demo = is_demo_file(path)
-    data, lines = load_yaml(path, SiteError)
+    data, lines = load_yaml(path, SiteError, cached=True)
     return parse_site(data, lines, str(path), path.resolve().parent, is_demo=is_demo)
