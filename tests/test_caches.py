@@ -15,7 +15,7 @@ import pytest
 from advisor.commands import session
 from advisor.errors import RulesError, SiteError
 from advisor.features import CATALOGUE
-from advisor.io import jsoncache, yamlio
+from advisor.io import jsoncache, yamlcache, yamlio
 from advisor.io.site import load_site
 from advisor.rules import loader, stored
 
@@ -186,43 +186,43 @@ def test_the_key_covers_the_code_of_the_rule_language():
 def test_yaml_comes_back_from_the_cache_unchanged(cache, monkeypatch, tmp_path):
     path = tmp_path / "doc.yaml"
     path.write_text("site:\n  name: Somewhere\n  latitude_deg: 47.1\n  list: [1, 2.5, 'x', true, null]\n")
-    data, lines = yamlio.load_yaml(path, SiteError, cached=True)
+    data, lines = yamlcache.load_yaml_cached(path, SiteError)
     assert (data, lines) == yamlio.load_yaml(path, SiteError)
 
     def no_parsing(*_a, **_k):
         raise AssertionError("parsed again")
 
-    monkeypatch.setattr(yamlio, "parse_yaml_text", no_parsing)
-    assert yamlio.load_yaml(path, SiteError, cached=True) == (data, lines)
+    monkeypatch.setattr(yamlcache, "parse_yaml_text", no_parsing)
+    assert yamlcache.load_yaml_cached(path, SiteError) == (data, lines)
     assert lines[("site", "list")] == 4
     path.write_text("site:\n  name: Elsewhere\n")  # other bytes: parsed again
     with pytest.raises(AssertionError, match="parsed again"):
-        yamlio.load_yaml(path, SiteError, cached=True)
+        yamlcache.load_yaml_cached(path, SiteError)
 
 
 def test_the_demo_site_is_the_same_from_the_cache(cache):
-    first = load_site(None)
+    first = load_site(None, read_yaml=yamlcache.load_yaml_cached)
     assert _entries(cache / "yaml")
-    assert load_site(None) == first
+    assert load_site(None, read_yaml=yamlcache.load_yaml_cached) == first == load_site(None)
 
 
 @pytest.mark.parametrize("text", ["when: 2026-01-15\n", "x: .nan\n", "3: three\n", "x: .inf\n", "s: !!set {a}\n"])
 def test_yaml_that_json_cannot_give_back_is_not_cached(cache, tmp_path, text):
     path = tmp_path / "doc.yaml"
     path.write_text(text)
-    first = yamlio.load_yaml(path, SiteError, cached=True)
+    first = yamlcache.load_yaml_cached(path, SiteError)
     assert _entries(cache / "yaml") == []
-    assert repr(yamlio.load_yaml(path, SiteError, cached=True)) == repr(first)
+    assert repr(yamlcache.load_yaml_cached(path, SiteError)) == repr(first)
 
 
 @pytest.mark.parametrize("how", ["truncated", "garbage", "edited", "another key", "empty"])
 def test_a_damaged_yaml_entry_is_ignored_and_rebuilt(cache, tmp_path, how):
     path = tmp_path / "doc.yaml"
     path.write_text("a:\n  b: [1, 2]\n")
-    first = yamlio.load_yaml(path, SiteError, cached=True)
+    first = yamlcache.load_yaml_cached(path, SiteError)
     (entry,) = _entries(cache / "yaml")
     _damage(entry, how)
-    assert yamlio.load_yaml(path, SiteError, cached=True) == first
+    assert yamlcache.load_yaml_cached(path, SiteError) == first
     assert jsoncache.load("yaml", entry.stem) is not None
 
 
@@ -232,10 +232,10 @@ def test_a_bad_site_file_is_refused_the_same_with_a_cache(cache, tmp_path):
     path.write_text("site:\n  name: x\n  name: y\n")
     for _ in range(2):
         with pytest.raises(SiteError, match="given twice"):
-            yamlio.load_yaml(path, SiteError, cached=True)
+            yamlcache.load_yaml_cached(path, SiteError)
     path.write_text("")
     with pytest.raises(SiteError, match="empty"):
-        yamlio.load_yaml(path, SiteError, cached=True)
+        yamlcache.load_yaml_cached(path, SiteError)
     assert _entries(cache / "yaml") == []
 
 

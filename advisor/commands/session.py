@@ -219,7 +219,9 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     ``read``: ``"tail"`` reads at most the feed's last part (enough for an instant's call),
     ``"whole"`` the whole file, ``None`` only locates it (the caller reads it).
     """
-    site = load_site(request.site_path)
+    from advisor.io.yamlcache import load_yaml_cached
+
+    site = load_site(request.site_path, read_yaml=load_yaml_cached)  # parsed once per content of the file
     if request.session_hours is not None:
         site = replace(site, thresholds=replace(site.thresholds, session_hours=request.session_hours))
     if request.elevation_deg is not None:  # the session's elevation for this command line

@@ -1,6 +1,6 @@
 """A small cache of plain JSON documents keyed by the content they were made from.
 
-    key = content_key([b"...", "..."], code=("advisor.io.yamlio",))   # hash of the parts and that code
+    key = content_key([b"...", "..."], code_digest(["advisor.io.yamlio"]))   # the parts and that code
     doc = jsoncache.load("yaml", key)                                   # None: missing, damaged, other key
     jsoncache.store("yaml", key, doc)                                   # atomically; failures are silent
 

@@ -11,14 +11,12 @@ UTF-8 with or without a BOM).
 
 from __future__ import annotations
 
-import importlib.util
 import math
 import re
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 from advisor.errors import AdvisorError
-from advisor.io import jsoncache
 from advisor.io.fileio import KINDS, FileKind, read_text_bounded
 
 if TYPE_CHECKING:
@@ -190,69 +188,23 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
 _KIND_OF_ERROR = {"RulesError": "rules", "SiteError": "site"}
 
 
-def load_yaml(
-    path: Path | str,
-    error_type: type[AdvisorError],
-    duplicate_keys: bool = True,
-    kind: str | FileKind | None = None,
-    cached: bool = False,
-):
-    """Read and parse a YAML file safely; return ``(data, lines)``.
+def read_yaml_text(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind | None = None) -> str:
+    """The text of a YAML file, read with every check of :func:`load_yaml` but not parsed.
 
     ``kind`` (default: from ``error_type``: rule file, site file, else YAML file) sets the size
     cap and the name used in messages.  An empty file is refused: a truncated or unsaved file
     looks the same, and silently reading it as "nothing" would hide the mistake.
-
-    ``cached``: the file is read and checked as always, but the parse of a text seen before is
-    taken from the cache of :mod:`advisor.io.jsoncache` (kind ``yaml``), keyed by the text, the
-    options and the parser's code, so it is exactly what parsing would give; only documents of
-    plain JSON values are kept there (a file with dates or non-text keys is parsed every time).
     """
     spec = KINDS[kind or _KIND_OF_ERROR.get(error_type.__name__, "yaml")] if not isinstance(kind, FileKind) else kind
     hint = "a truncated or unsaved file looks the same; restore its content"
     text = read_text_bounded(path, error_type, spec, expected="a YAML text file", empty_hint=hint) or ""
     if not text.strip():
         raise error_type(f"{spec.what} holds only blank space", source=str(path), hint=hint)
-    if not cached:
-        return parse_yaml_text(text, str(path), error_type, duplicate_keys)
-    code = _parser_digest()
-    key = jsoncache.content_key([text, f"{duplicate_keys}"], code) if code else None
-    if key is not None:
-        hit = _from_stored(jsoncache.load("yaml", key))
-        if hit is not None:
-            return hit
-    data, lines = parse_yaml_text(text, str(path), error_type, duplicate_keys)
-    if key is not None and jsoncache.is_plain(data):
-        jsoncache.store("yaml", key, {"data": data, "lines": [[list(p), n] for p, n in lines.items()]})
-    return data, lines
+    return text
 
 
-#: The code a parse depends on: this module and the cache's (read as text, nothing imported).
-_PARSER_MODULES = ("advisor.io.yamlio", "advisor.io.jsoncache")
-
-
-def _parser_digest() -> str | None:
-    """Digest of the parser's code: this module, and PyYAML's version (its ``__init__.py``)."""
-    ours = jsoncache.code_digest(_PARSER_MODULES)
-    spec = importlib.util.find_spec("yaml")
-    if ours is None or spec is None or spec.origin is None:
-        return None
-    try:
-        theirs = Path(spec.origin).read_bytes()
-    except OSError:
-        return None
-    return jsoncache.content_key([ours, theirs], "yaml")
-
-
-def _from_stored(doc) -> tuple | None:
-    """``(data, lines)`` from a stored parse, or None when it is not one."""
-    if not isinstance(doc, dict) or not isinstance(doc.get("lines"), list) or "data" not in doc:
-        return None
-    lines: dict[KeyPath, int] = {}
-    for item in doc["lines"]:
-        if not (isinstance(item, list) and len(item) == 2 and isinstance(item[0], list) and type(item[1]) is int):
-            return None
-        if not all(type(k) in (str, int) for k in item[0]):
-            return None
-        lines[tuple(item[0])] = item[1]
-    return doc["data"], lines
+def load_yaml(
+    path: Path | str, error_type: type[AdvisorError], duplicate_keys: bool = True, kind: str | FileKind | None = None
+):
+    """Read and parse a YAML file safely (:func:`read_yaml_text`, :func:`parse_yaml_text`); return ``(data, lines)``."""
+    return parse_yaml_text(read_yaml_text(path, error_type, kind), str(path), error_type, duplicate_keys)
