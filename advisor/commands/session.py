@@ -136,7 +136,7 @@ def feed_layout(site: Site, named_on_command_line: bool) -> FeedLayout:
 
 def rule_files(site: Site, extra=()) -> list[tuple[Path, str]]:
     """The layered ``(file, layer)`` list: the defaults, then the site's files, then ``extra``."""
-    from advisor.rules.loader import default_rule_files
+    from advisor.io.bundled import default_rule_files
 
     files = [(Path(p), "default") for p in default_rule_files()]
     files += [(Path(p), "site") for p in site.rule_paths]
@@ -145,11 +145,12 @@ def rule_files(site: Site, extra=()) -> list[tuple[Path, str]]:
 
 
 def load_ruleset(site: Site, extra=()) -> RuleSet:
-    """The effective rule set for ``site`` with ``extra`` files layered on top."""
+    """The effective rule set for ``site`` with ``extra`` files layered on top (checked once per
+    content of the files: :func:`advisor.rules.stored.load_rules_cached`)."""
     from advisor.features import CATALOGUE
-    from advisor.rules.loader import load_rules
+    from advisor.rules.stored import load_rules_cached
 
-    return load_rules(rule_files(site, extra), CATALOGUE)
+    return load_rules_cached(rule_files(site, extra), CATALOGUE)
 
 
 def model_for(
@@ -218,7 +219,9 @@ def load_inputs(request: Request, read: FeedRead = "tail", with_model: bool = Tr
     ``read``: ``"tail"`` reads at most the feed's last part (enough for an instant's call),
     ``"whole"`` the whole file, ``None`` only locates it (the caller reads it).
     """
-    site = load_site(request.site_path)
+    from advisor.io.yamlcache import load_yaml_cached
+
+    site = load_site(request.site_path, read_yaml=load_yaml_cached)  # parsed once per content of the file
     if request.session_hours is not None:
         site = replace(site, thresholds=replace(site.thresholds, session_hours=request.session_hours))
     if request.elevation_deg is not None:  # the session's elevation for this command line

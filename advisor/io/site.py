@@ -431,9 +431,13 @@ def parse_site(data: Any, lines: dict, source: str, base: Path, is_demo: bool = 
     )
 
 
-def load_site(path: Path | str | None = None) -> Site:
-    """Load and validate a site file; ``None`` loads the bundled demo site."""
+def load_site(path: Path | str | None = None, read_yaml=load_yaml) -> Site:
+    """Load and validate a site file; ``None`` loads the bundled demo site.
+
+    ``read_yaml`` reads and parses it (``load_yaml``, or the cached
+    :func:`advisor.io.yamlcache.load_yaml_cached`, which gives the same).
+    """
     path = demo_site_path() if path is None else Path(path)
     is_demo = is_demo_file(path)
-    data, lines = load_yaml(path, SiteError)
+    data, lines = read_yaml(path, SiteError)
     return parse_site(data, lines, str(path), path.resolve().parent, is_demo=is_demo)

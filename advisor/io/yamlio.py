@@ -14,14 +14,15 @@ from __future__ import annotations
 import math
 import re
 from pathlib import Path
-
-import yaml
+from typing import TYPE_CHECKING
 
 from advisor.errors import AdvisorError
 from advisor.io.fileio import KINDS, FileKind, read_text_bounded
 
-# libyaml's safe loader where PyYAML was built with it (the wheels are), else the pure-Python one.
-_SafeLoader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
+if TYPE_CHECKING:
+    import yaml
+
+# PyYAML is imported where a text is parsed: a cached parse (load_yaml(..., cached=True)) needs none.
 
 MAX_YAML_BYTES = KINDS["yaml"].max_bytes
 MAX_YAML_NODES = 200_000
@@ -44,6 +45,8 @@ def _node_lines(
     Refuses aliases, numbers out of range and (with ``duplicate_keys``) a key given twice in one
     mapping.
     """
+    import yaml
+
     lines: dict[KeyPath, int] = {}
     seen: set[int] = set()
     stack: list[tuple[yaml.Node, KeyPath]] = [(root, ())]
@@ -123,13 +126,16 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
     ``duplicate_keys=False`` lets a caller that reports duplicated keys itself (the rule lint,
     which lists every problem of a file at once) see them.
     """
+    import yaml
+
     if text.startswith("\ufeff"):
         text = text[1:]
     for number, raw in enumerate(text.splitlines(), start=1):
         stripped = raw.lstrip(" ")
         if stripped.startswith("\t"):
             raise error_type("tab used for indentation", source=source, line=number, hint="indent with spaces")
-    loader = _SafeLoader(text)
+    # libyaml's safe loader where PyYAML was built with it (the wheels are), else the pure-Python one.
+    loader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)(text)
     try:
         root = loader.get_single_node()
     except yaml.MarkedYAMLError as exc:
@@ -182,10 +188,8 @@ def parse_yaml_text(text: str, source: str, error_type: type[AdvisorError], dupl
 _KIND_OF_ERROR = {"RulesError": "rules", "SiteError": "site"}
 
 
-def load_yaml(
-    path: Path | str, error_type: type[AdvisorError], duplicate_keys: bool = True, kind: str | FileKind | None = None
-):
-    """Read and parse a YAML file safely; return ``(data, lines)``.
+def read_yaml_text(path: Path | str, error_type: type[AdvisorError], kind: str | FileKind | None = None) -> str:
+    """The text of a YAML file, read with every check of :func:`load_yaml` but not parsed.
 
     ``kind`` (default: from ``error_type``: rule file, site file, else YAML file) sets the size
     cap and the name used in messages.  An empty file is refused: a truncated or unsaved file
@@ -196,4 +200,11 @@ def load_yaml(
     text = read_text_bounded(path, error_type, spec, expected="a YAML text file", empty_hint=hint) or ""
     if not text.strip():
         raise error_type(f"{spec.what} holds only blank space", source=str(path), hint=hint)
-    return parse_yaml_text(text, str(path), error_type, duplicate_keys)
+    return text
+
+
+def load_yaml(
+    path: Path | str, error_type: type[AdvisorError], duplicate_keys: bool = True, kind: str | FileKind | None = None
+):
+    """Read and parse a YAML file safely (:func:`read_yaml_text`, :func:`parse_yaml_text`); return ``(data, lines)``."""
+    return parse_yaml_text(read_yaml_text(path, error_type, kind), str(path), error_type, duplicate_keys)
