@@ -382,7 +382,7 @@ def target_cached_replay(res: Result, pairs: int, quick: bool, cache: Path) -> N
     ours, ref = ADVISOR + argv, fill(REFERENCES["read_csv"], feed=feed)
     res.commands = {"ours": shell_text(ours), "reference": shell_text(ref)}
     run_process(ours, env)  # fills the cache
-    cache_mb, csv_mb = dir_bytes(cache) / MB, feed.stat().st_size / MB
+    cache_mb, csv_mb = dir_bytes(cache / "replay") / MB, feed.stat().st_size / MB
     m = interleave_processes(ours, ref, pairs, env)
     res.measurements.append(m)
     res.checks.append(Check("median ratio", m.summary()["ratio_median"], 1.0))

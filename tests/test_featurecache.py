@@ -95,7 +95,7 @@ KEY = "0123456789abcdef0123456789abcdef01234567"
 @pytest.fixture()
 def cache(tmp_path, monkeypatch):
     monkeypatch.setenv("ADVISOR_CACHE_DIR", str(tmp_path / "cache"))
-    return tmp_path / "cache"
+    return tmp_path / "cache" / "replay"  # the feature cache's folder in the advisor's cache
 
 
 def _nan_with_payload() -> float:

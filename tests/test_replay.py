@@ -283,7 +283,7 @@ def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules
 def _cache_files():
     import os
 
-    folder = Path(os.environ["ADVISOR_CACHE_DIR"])
+    folder = Path(os.environ["ADVISOR_CACHE_DIR"]) / "replay"
     # an entry is a directory named by its key (writers' temporaries start with a dot)
     return sorted(p for p in folder.iterdir() if p.is_dir() and not p.name.startswith(".")) if folder.exists() else []
 

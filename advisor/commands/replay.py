@@ -67,7 +67,7 @@ def add_parser(sub, name: str, help: str) -> None:
         "--no-cache",
         action="store_true",
         help="recompute the archive's features instead of reusing them from an earlier replay "
-        "(cache: $ADVISOR_CACHE_DIR, default ~/.cache/advisor/replay)",
+        "(cache: $ADVISOR_CACHE_DIR/replay, default ~/.cache/advisor/replay)",
     )
     p.set_defaults(func=cmd_replay)
 

@@ -2,8 +2,8 @@
 
 Staff replay the same season again and again while they tune rules.  The features of every
 archive row (sun, moisture, wind windows, reference, calibrators) do not depend on the rules, so
-``advisor replay`` keeps them in ``$ADVISOR_CACHE_DIR`` (default ``$XDG_CACHE_HOME/advisor/replay``
-or ``~/.cache/advisor/replay``), keyed by a hash of everything they are computed from:
+``advisor replay`` keeps them in ``$ADVISOR_CACHE_DIR/replay`` (default
+``$XDG_CACHE_HOME/advisor/replay`` or ``~/.cache/advisor/replay``), keyed by a hash of everything they are computed from:
 
 * the bytes of the archive, the site file and the reference registry;
 * the replayed period and the feed layout;
@@ -44,6 +44,7 @@ import pandas as pd
 
 from advisor.io.columnfiles import ColumnWriter, DamagedEntry, pack_lanes
 from advisor.io.columnread import ColumnReader, map_lanes
+from advisor.io.jsoncache import cache_root
 
 MAX_ENTRIES = 3
 FORMAT = "advisor-feature-cache"
@@ -54,11 +55,9 @@ _KEY = re.compile(r"[0-9A-Za-z_-]{1,128}")
 
 
 def cache_dir() -> Path:
-    """Where entries live (created on first store)."""
-    if os.environ.get("ADVISOR_CACHE_DIR"):
-        return Path(os.environ["ADVISOR_CACHE_DIR"])
-    base = Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache")
-    return base / "advisor" / "replay"
+    """Where entries live (created on first store): the ``replay`` folder of the advisor's cache
+    (:func:`advisor.io.jsoncache.cache_root`), beside the other kinds."""
+    return cache_root() / "replay"
 
 
 def _hash_file(digest, path: Path | None) -> None:
