@@ -37,19 +37,14 @@ __all__ = ["MIDNIGHT_24", "feed_times", "zone_object", "start_label_shift", "uni
 MIDNIGHT_24 = re.compile(r"(?:^|(?<=[\sTt]))24:00(?::00)?(?![\d:])")
 
 _ISO_WITH_OFFSET = re.compile(r"\d{4}-\d\d-\d\d[Tt ]\d\d:\d\d(?::\d\d(?:\.(\d{1,9}))?)?(Z|z|[+-]\d\d(?::?\d\d)?)\Z")
-_DAYS_BEFORE_MONTH = np.array([0, 0, 31, 59, 90, 120, 151, 181, 212, 243, 273, 304, 334], dtype=np.int64)
-_DAYS_IN_MONTH = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.int64)
+_DAYS_BEFORE_MONTH = np.array([0, 0, 31, 59, 90, 120, 151, 181, 212, 243, 273, 304, 334], dtype=np.int32)
+_DAYS_IN_MONTH = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.int32)
+_YEARS = np.arange(10_000, dtype=np.int64)  # every year four digits can write
+#: Per year: is it a leap year; days from 1970-01-01 to its 1 January (proleptic Gregorian).
+_LEAP = ((_YEARS % 4 == 0) & (_YEARS % 100 != 0)) | (_YEARS % 400 == 0)
+_YEAR_START_DAYS = 365 * (_YEARS - 1) + (_YEARS - 1) // 4 - (_YEARS - 1) // 100 + (_YEARS - 1) // 400 - 719162
 #: TIME_RANGE_UTC of advisor.io.times, [1900-01-01, 2200-01-01) UTC, in seconds since 1970.
 _RANGE_S = (int(TIME_RANGE_UTC[0].value // 1_000_000_000), int(TIME_RANGE_UTC[1].value // 1_000_000_000))
-
-
-def _digits_value(buf: np.ndarray, start: int, stop: int) -> np.ndarray:
-    """The decimal number in columns ``[start, stop)`` of every row of a byte matrix (digits checked)."""
-    out = buf[:, start].astype(np.int64)
-    for col in range(start + 1, stop):
-        out *= 10
-        out += buf[:, col]
-    return out - 48 * int("1" * (stop - start))  # each digit was its character code
 
 
 def uniform_iso_ns(values: pd.Series) -> np.ndarray | None:
@@ -98,39 +93,46 @@ def _matrix_ns(buf: np.ndarray, template_text: str) -> np.ndarray | None:
     hi = np.where(is_digit, 57, template).astype(np.uint8)
     if sign_col is not None:
         lo[sign_col], hi[sign_col] = ord("+"), ord("-")  # '+' 43, ',' 44, '-' 45
-    if not ((buf - lo) <= (hi - lo)).all():  # lo <= c <= hi in one comparison (uint8 wraps below lo)
+    rel = buf - lo  # a digit's value in a digit column; wraps to >= 128 below lo
+    if not (rel <= hi - lo).all():  # lo <= c <= hi in one comparison
         return None
-    if sign_col is not None and (buf[:, sign_col] == ord(",")).any():
+    if sign_col is not None and (rel[:, sign_col] == 1).any():  # a ',' between '+' and '-'
         return None
-    year, month, day = _digits_value(buf, 0, 4), _digits_value(buf, 5, 7), _digits_value(buf, 8, 10)
-    hour, minute = _digits_value(buf, 11, 13), _digits_value(buf, 14, 16)
+
+    def number(start: int, stop: int) -> np.ndarray:  # the digits in columns [start, stop), as int32
+        out = rel[:, start].astype(np.int32)
+        for col in range(start + 1, stop):
+            out *= 10
+            out += rel[:, col]
+        return out
+
+    year, month, day = number(0, 4), number(5, 7), number(8, 10)
+    hour, minute = number(11, 13), number(14, 16)
     has_seconds = width > 16 and template[16] == ord(":")
-    second = _digits_value(buf, 17, 19) if has_seconds else np.zeros(n, dtype=np.int64)
-    fraction = m.group(1)
-    fraction_ns = _digits_value(buf, 20, 20 + len(fraction)) * 10 ** (9 - len(fraction)) if fraction else 0
+    second = number(17, 19) if has_seconds else np.zeros(n, dtype=np.int32)
     if not ((month >= 1) & (month <= 12)).all():
         return None
-    leap = ((year % 4 == 0) & (year % 100 != 0)) | (year % 400 == 0)
-    days_in_month = _DAYS_IN_MONTH[month] + ((month == 2) & leap)
-    ok = (day >= 1) & (day <= days_in_month) & (hour <= 23) & (minute <= 59) & (second <= 59)
-    offset_s: np.ndarray | int = 0
+    leap = _LEAP[year]
+    ok = (day >= 1) & (day <= _DAYS_IN_MONTH[month] + ((month == 2) & leap))
+    ok &= (hour <= 23) & (minute <= 59) & (second <= 59)
+    clock_s = hour * 3600 + minute * 60 + second  # int32: within a day and an offset
     if sign_col is not None:
-        off_h = _digits_value(buf, off_at + 1, off_at + 3)
-        off_m = _digits_value(buf, width - 2, width) if len(offset) > 3 else np.zeros(n, dtype=np.int64)
+        off_h = number(off_at + 1, off_at + 3)
+        off_m = number(width - 2, width) if len(offset) > 3 else np.zeros(n, dtype=np.int32)
         ok &= (off_h <= 23) & (off_m <= 59)
-        sign = 1 - 2 * (buf[:, sign_col] == ord("-")).astype(np.int64)
-        offset_s = sign * (off_h * 3600 + off_m * 60)
+        offset_s = off_h * 3600 + off_m * 60
+        clock_s -= np.where(rel[:, sign_col] == 2, -offset_s, offset_s)  # '-' is 2 past '+'
     if not ok.all():
         return None
-    # days since 1970-01-01 of the proleptic Gregorian date
-    y = year - 1
-    days = (
-        (365 * y + y // 4 - y // 100 + y // 400 - 719162) + _DAYS_BEFORE_MONTH[month] + ((month > 2) & leap) + day - 1
-    )
-    seconds = days * 86400 + hour * 3600 + minute * 60 + second - offset_s
+    days = _YEAR_START_DAYS[year] + (_DAYS_BEFORE_MONTH[month] + ((month > 2) & leap) + day - 1)
+    seconds = days * 86400 + clock_s
     if not ((seconds >= _RANGE_S[0]) & (seconds < _RANGE_S[1])).all():
         return None
-    return seconds * 1_000_000_000 + fraction_ns
+    ns = seconds * 1_000_000_000
+    fraction = m.group(1)
+    if fraction:
+        ns += number(20, 20 + len(fraction)).astype(np.int64) * 10 ** (9 - len(fraction))
+    return ns
 
 
 def zone_object(name: str | None):
