@@ -37,8 +37,9 @@ def sample_cadence_min(time_ns: np.ndarray, kind: np.ndarray) -> np.ndarray:
     if len(time_ns) < 2:
         return out
     dt_prev = np.diff(time_ns, prepend=time_ns[0]) / 6e10
-    for k in np.unique(kind):
-        mine = kind == k
+    codes, uniques = pd.factorize(np.asarray(kind, dtype=object))  # by hashing, never sorting the texts
+    for k in range(len(uniques)):
+        mine = codes == k if len(uniques) > 1 else np.ones(len(codes), dtype=bool)
         intervals = dt_prev[mine][1:]
         if len(intervals):
             out[mine] = float(np.median(intervals))

@@ -37,6 +37,25 @@ class SourceTrack:
     highest_elevation_deg: np.ndarray  # highest over [t, t + duration]
 
 
+def _wrap_180(x: np.ndarray) -> None:
+    """Angles to [-180, 180] in place, float32: ``np.mod(x + 180, 360) - 180`` to the bit, fast.
+
+    For y = x + 180 within [-360, 720), fmod(y, 360) is y or, from 360 on, y - 360 (exact:
+    Sterbenz's lemma), and numpy's floor-mod then adds 360 to a negative remainder (rounded as
+    float32); a zero remainder is +0 there and may be -0 here, which the final -180 makes the same
+    -180.  So one subtraction or addition where needed gives the same numbers without numpy's slow
+    float remainder.  Anything else (NaN, out of range) goes through ``np.mod``.
+    """
+    x += np.float32(180.0)
+    lo, hi = x.min(initial=0.0), x.max(initial=0.0)
+    if lo >= -360.0 and hi < 720.0:
+        np.subtract(x, np.float32(360.0), out=x, where=x >= np.float32(360.0))
+        np.add(x, np.float32(360.0), out=x, where=x < np.float32(0.0))
+    else:
+        np.mod(x, np.float32(360.0), out=x)
+    x -= np.float32(180.0)
+
+
 def source_track(
     times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, duration_min, min_elevation_deg, horizon_min=1440.0
 ) -> SourceTrack:
@@ -110,9 +129,7 @@ def source_track(
 
     lst = np.mod(_gmst_deg_from_days(days) + float(longitude_deg), 360.0).astype(f32)
     hour_angle = lst[:, None] - per_time(np.mod(ra_day, 360.0))
-    hour_angle += f32(180.0)
-    np.mod(hour_angle, f32(360.0), out=hour_angle)
-    hour_angle -= f32(180.0)  # -180..180
+    _wrap_180(hour_angle)  # -180..180
     a, b = per_time(a_day), per_time(b_day)
     step = f32(duration / 60.0 * SIDEREAL_RATE_DEG_PER_H)  # hour angle swept [deg]
 
@@ -141,7 +158,9 @@ def source_track(
     minutes -= hour_angle
     minutes *= f32(60.0 / SIDEREAL_RATE_DEG_PER_H)
     np.clip(minutes, f32(0.0), f32(horizon_min), out=minutes)
-    minutes[per_time(cos_h0 < -1.0) > 0] = f32(horizon_min)
+    never_sets = cos_h0 < -1.0  # (d, m)
+    if never_sets.any():
+        minutes[never_sets[inverse]] = f32(horizon_min)
     minutes[start < f32(min_elevation_deg)] = f32(0.0)
     return SourceTrack(start, minutes, mid, lowest, highest)
 
