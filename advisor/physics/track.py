@@ -220,9 +220,12 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
 
     end = h + duration / 60.0
     least = np.minimum(at(h), at(end))
+    hour = np.floor(h).astype(np.int64)
     for k in range(1, int(np.ceil(duration / 60.0)) + 1):  # whole hours inside the measurement
-        node = np.floor(h).astype(np.int64) + k
-        inside = (node < end)[:, None]
-        least = np.where(inside, np.minimum(least, per_hour[np.minimum(node, nodes[-1]) - first]), least)
+        node = hour + k
+        inside = np.broadcast_to((node < end)[:, None], least.shape)
+        np.minimum(least, per_hour[np.minimum(node, nodes[-1]) - first], out=least, where=inside)
+    if ok.all():
+        return least.astype(float)  # float32 steps: ~1e-5 deg
     out[ok] = least
-    return out  # float32 steps: ~1e-5 deg
+    return out
