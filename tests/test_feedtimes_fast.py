@@ -36,14 +36,14 @@ def _strict(texts: list) -> np.ndarray | None:
     return pd.DatetimeIndex(parsed).as_unit("ns").asi8
 
 
-def _feed_times(texts: list, fast: bool):
+def _feed_times(texts: list, fast: bool, unit: str | None = None):
     """``feed_times`` of a one-column table: the times, or the error's message."""
     table = pd.DataFrame({"time": pd.Series(texts, dtype=object)})
     with pytest.MonkeyPatch.context() as m:
         if not fast:
             m.setattr(feedtimes, "uniform_iso_ns", lambda _values: None)
         try:
-            times, _ = feed_times(table, FeedLayout(time_zone="America/Denver"), "feed.csv", 2)
+            times, _ = feed_times(table, FeedLayout(time_zone="America/Denver", time_unit=unit), "feed.csv", 2)
         except FeedError as exc:
             return str(exc)
     return times
@@ -91,9 +91,9 @@ def test_fast_path_agrees_with_the_strict_reader(texts):
 
 
 @settings(max_examples=200, deadline=None)
-@given(columns())
-def test_a_feeds_times_and_errors_are_the_same_without_the_fast_path(texts):
-    with_fast, without = _feed_times(texts, fast=True), _feed_times(texts, fast=False)
+@given(columns(), st.sampled_from([None, "iso", "epoch_s"]))
+def test_a_feeds_times_and_errors_are_the_same_without_the_fast_path(texts, unit):
+    with_fast, without = _feed_times(texts, True, unit), _feed_times(texts, False, unit)
     if isinstance(without, str):
         assert with_fast == without
     else:

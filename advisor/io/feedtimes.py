@@ -261,6 +261,14 @@ def _standard_times(raw: pd.Series, layout: FeedLayout, source: str, field: str,
     if pd.api.types.is_datetime64_dtype(raw):  # naive in-memory times: local wall clock
         raw = raw.dt.strftime("%Y-%m-%dT%H:%M:%S.%f").where(raw.notna(), None)
     values = raw.reset_index(drop=True).astype(object)
+    if layout.time_unit not in EPOCH_UNITS:
+        # The usual column (every cell a str of one ISO 8601 shape with its offset: none empty,
+        # none a number) at once; anything else below, as the strict reader reads or refuses it.
+        fast = uniform_iso_ns(values)
+        if fast is not None:
+            # named as the strict reader names it: after the column, unless it upper-cased a t or z
+            name = None if {"t", "z"} & set(str(values.iloc[0])) else values.name
+            return pd.Series(pd.DatetimeIndex(fast.view("datetime64[ns]")).tz_localize("UTC"), name=name)
     empty = values.isna().to_numpy()
     if empty.any():
         i = int(np.flatnonzero(empty)[0])
@@ -304,11 +312,6 @@ def _standard_times(raw: pd.Series, layout: FeedLayout, source: str, field: str,
             field=field,
             hint="set feed.time_unit: epoch_s or epoch_ms in the site file, or write ISO 8601 times",
         )
-    fast = uniform_iso_ns(values)
-    if fast is not None:
-        # named as the strict reader names it: after the column, unless it had to upper-case a t or z
-        name = None if {"t", "z"} & set(str(values.iloc[0])) else values.name
-        return pd.Series(pd.DatetimeIndex(fast.view("datetime64[ns]")).tz_localize("UTC"), name=name)
     try:
         return parse_time_column(
             values,
