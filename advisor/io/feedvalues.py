@@ -143,16 +143,19 @@ def _previous_same_kind(groups: list[np.ndarray], n: int) -> np.ndarray:
     return prev
 
 
-def step_basis(time_ns: np.ndarray, groups: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def step_basis(time_ns: np.ndarray, groups: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
     """What :func:`step_outliers` needs of the times, the same for every column: ``(has, prev, minutes)``.
 
-    ``has``: the row has a previous sample of its kind; ``prev``: that sample's row (0 where none);
-    ``minutes``: the minutes since it, at least one (NaN where none).
+    ``has``: the row has a previous sample of its kind; ``prev``: that sample's row (0 where none;
+    None when it is always the row before); ``minutes``: the minutes since it, at least one (NaN
+    where none).
     """
     prev = _previous_same_kind(groups, len(time_ns))
     has = prev >= 0
     prev = np.clip(prev, 0, None)
     minutes = np.where(has, (time_ns - time_ns[prev]) / 6e10, np.nan)
+    if len(groups) == 1 and len(groups[0]) == len(time_ns) and np.array_equal(groups[0], np.arange(len(time_ns))):
+        prev = None  # every row's previous sample is the row before: a shift, not a gather
     return has, prev, np.maximum(minutes, 1.0)
 
 
@@ -161,7 +164,7 @@ def step_outliers(
     time_ns: np.ndarray,
     groups: list[np.ndarray],
     limit_per_min: float,
-    basis: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    basis: tuple[np.ndarray, np.ndarray | None, np.ndarray] | None = None,
 ) -> np.ndarray:
     """Rows whose value changed from the previous sample of their kind by more than
     ``limit_per_min`` × the minutes between them (at least one minute) — a step test.
@@ -172,7 +175,10 @@ def step_outliers(
     the sample that returns from it; a lasting step is flagged once and then compared with itself.
     """
     has, prev, minutes = step_basis(time_ns, groups) if basis is None else basis
-    before = np.where(has, values[prev], np.nan)
+    if prev is None:
+        before = np.concatenate([[np.nan], values[:-1]]) if len(values) else values
+    else:
+        before = np.where(has, values[prev], np.nan)
     with np.errstate(invalid="ignore"):
         return np.abs(values - before) > limit_per_min * minutes
 
