@@ -341,10 +341,10 @@ def canonical_frame(
         frame = frame[~dup].reset_index(drop=True)
     t_ns = pd.DatetimeIndex(frame["time"]).asi8
     if "kind" in table.columns:
-        kind = frame["kind"].to_numpy(dtype=object)
-        groups, observed = kind_rows(kind), kind == "observed"
+        row_kinds: np.ndarray = frame["kind"].to_numpy(dtype=object)
+        groups, observed_rows = kind_rows(row_kinds), np.asarray(row_kinds == "observed", dtype=bool)
     else:  # every row observed
-        groups, observed = [np.arange(len(frame))], np.ones(len(frame), dtype=bool)
+        groups, observed_rows = [np.arange(len(frame))], np.ones(len(frame), dtype=bool)
 
     # Implausible values → NaN (range and step tests, after sorting), row flagged; required
     # inputs missing; dew point derived where the feed has none.
@@ -359,11 +359,11 @@ def canonical_frame(
     else:
         frame["dew_point_c"] = derived
 
-    cadence = _cadence(t_ns, observed)
+    cadence = _cadence(t_ns, observed_rows)
     dt_min = frame["time"].diff().dt.total_seconds().to_numpy() / 60.0
     frame["q_gap_before"] = np.nan_to_num(dt_min, nan=0.0) > layout.gap_limit_min(cadence)
     frame["good"] = ~(frame["q_implausible"] | frame["q_missing"]).to_numpy()
-    frame["q_bits_dropout"] = _dropouts(frame, layout, cadence, t_ns, groups, observed)
+    frame["q_bits_dropout"] = _dropouts(frame, layout, cadence, t_ns, groups, observed_rows)
 
     quality = FeedQuality(
         n_rows=len(frame),

@@ -150,13 +150,13 @@ def step_basis(time_ns: np.ndarray, groups: list[np.ndarray]) -> tuple[np.ndarra
     None when it is always the row before); ``minutes``: the minutes since it, at least one (NaN
     where none).
     """
-    prev = _previous_same_kind(groups, len(time_ns))
-    has = prev >= 0
-    prev = np.clip(prev, 0, None)
-    minutes = np.where(has, (time_ns - time_ns[prev]) / 6e10, np.nan)
-    if len(groups) == 1 and len(groups[0]) == len(time_ns) and np.array_equal(groups[0], np.arange(len(time_ns))):
-        prev = None  # every row's previous sample is the row before: a shift, not a gather
-    return has, prev, np.maximum(minutes, 1.0)
+    previous = _previous_same_kind(groups, len(time_ns))
+    has = previous >= 0
+    previous = np.clip(previous, 0, None)
+    minutes = np.where(has, (time_ns - time_ns[previous]) / 6e10, np.nan)
+    one_run = len(groups) == 1 and len(groups[0]) == len(time_ns) and np.array_equal(groups[0], np.arange(len(time_ns)))
+    # every row's previous sample the row before (None): a shift, not a gather
+    return has, None if one_run else previous, np.maximum(minutes, 1.0)
 
 
 def step_outliers(

@@ -271,13 +271,14 @@ class OddsNotes(Sequence):
         parts=None,
     ):
         self.method, self.p, self.feature_names = method, p, features
-        self._parts = parts if parts is not None else (lambda: (values, pushes))
+        self._parts = parts if parts is not None else (lambda: (np.asarray(values), np.asarray(pushes)))
         self._ready = False
 
     def _prepare(self) -> None:
         if self._ready:
             return
-        self.values, self.pushes = self._parts()  # (n, n_features) each
+        parts: tuple[np.ndarray, np.ndarray] = self._parts()
+        self.values, self.pushes = parts  # (n, n_features) each
         # No odds although every input is there: the model's arithmetic overflowed.
         self.failed = ~np.isfinite(self.p) & np.isfinite(self.values).all(axis=1)
         with np.errstate(all="ignore"):
