@@ -122,3 +122,15 @@ def test_refraction_in_parts_is_refraction_as_a_whole():
             ]
         )
         assert np.array_equal(whole.view(np.int64), pieces.view(np.int64))
+
+
+def test_the_float32_sun_separation_is_the_float64_one():
+    from advisor.physics.track import sun_separation_over_deg
+
+    times = pd.date_range("2026-03-01", periods=3000, freq="7min", tz="UTC").as_unit("ns").to_numpy().copy()
+    times[[5, 2000]] = np.datetime64("NaT")
+    ra, dec = np.array([10.0, 200.0, 350.5]), np.array([5.0, -30.0, 60.0])
+    wide = sun_separation_over_deg(times, ra, dec, 45.0)
+    narrow = sun_separation_over_deg(times, ra, dec, 45.0, as_float32=True)
+    assert narrow.dtype == np.float32 and wide.dtype == np.float64
+    assert np.array_equal(narrow.astype(float), wide, equal_nan=True)

@@ -165,7 +165,7 @@ def source_track(
     return SourceTrack(start, minutes, mid, lowest, highest)
 
 
-def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
+def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min, *, as_float32: bool = False):
     """Closest approach of each source to the sun over a measurement starting at each time.
 
     Parameters
@@ -176,6 +176,9 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
         J2000.0 coordinates of the sources; shape (m,). [deg]
     duration_min : float
         Length of the measurement, >= 0. [min]
+
+    as_float32 : bool, default False
+        Return the float32 numbers the result is made of (its float64 values are exactly these).
 
     Returns
     -------
@@ -200,7 +203,7 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
         raise ValueError(f"duration_min must be >= 0, got {duration_min!r}")
     hours = np.atleast_1d(_days_since_j2000(times_utc)).ravel() * 24.0
     m = np.atleast_1d(np.asarray(ra_deg, dtype=float)).size
-    out = np.full((hours.size, m), np.nan)
+    out = np.full((hours.size, m), np.nan, dtype=np.float32 if as_float32 else float)
     ok = np.isfinite(hours)
     if not ok.any():
         return out
@@ -226,6 +229,6 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
         inside = np.broadcast_to((node < end)[:, None], least.shape)
         np.minimum(least, per_hour[np.minimum(node, nodes[-1]) - first], out=least, where=inside)
     if ok.all():
-        return least.astype(float)  # float32 steps: ~1e-5 deg
+        return least if as_float32 else least.astype(float)  # float32 steps: ~1e-5 deg
     out[ok] = least
     return out
