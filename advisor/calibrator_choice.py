@@ -54,11 +54,13 @@ def choose_calibrator(times_index: pd.DatetimeIndex, site: Site, out: dict[str, 
         astro.duration_min,
         astro.min_calibrator_elevation_deg,
     )
-    sun_sep = sun_separation_over_deg(times_index, ra, dec, astro.duration_min)
+    # float32 separations, compared with a float64 limit (so as float64: the same test as on the
+    # float64 result) and picked or reduced before they become float64 (the same numbers)
+    sun_sep = sun_separation_over_deg(times_index, ra, dec, astro.duration_min, as_float32=True)
     in_limits = (track.lowest_elevation_deg >= astro.min_calibrator_elevation_deg) & (
         track.highest_elevation_deg <= astro.max_calibrator_elevation_deg
     )
-    clear_of_sun = sun_sep >= astro.sun_avoidance_deg
+    clear_of_sun = sun_sep >= np.float64(astro.sun_avoidance_deg)
     eligible = in_limits & clear_of_sun
     session_el = site.session.elevation_deg
     best = np.argmin(np.where(eligible, np.abs(track.mid_elevation_deg - session_el), np.inf), axis=1)
@@ -73,7 +75,10 @@ def choose_calibrator(times_index: pd.DatetimeIndex, site: Site, out: dict[str, 
     out["calibrator_minutes_up"] = pick(track.minutes_above, 0.0)
     out["calibrator_sun_separation_deg"] = pick(sun_sep)
     out["calibrators_sun_blocked"] = (in_limits & ~clear_of_sun).sum(axis=1).astype(float)
-    out["calibrators_sun_closest_deg"] = np.where(in_limits, sun_sep, np.inf).min(axis=1)
+    closest = np.where(in_limits[:, 0], sun_sep[:, 0], np.float32(np.inf))
+    for k in range(1, sun_sep.shape[1]):  # one calibrator at a time: a minimum along the short axis is slow
+        np.minimum(closest, np.where(in_limits[:, k], sun_sep[:, k], np.float32(np.inf)), out=closest)
+    out["calibrators_sun_closest_deg"] = closest.astype(float)
     out["calibrators_sun_closest_deg"][~in_limits.any(axis=1)] = np.nan
     out["calibrator_available"] = chosen
     out["calibrator_gravity_residual_um"] = np.asarray(

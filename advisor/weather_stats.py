@@ -37,8 +37,9 @@ def sample_cadence_min(time_ns: np.ndarray, kind: np.ndarray) -> np.ndarray:
     if len(time_ns) < 2:
         return out
     dt_prev = np.diff(time_ns, prepend=time_ns[0]) / 6e10
-    for k in np.unique(kind):
-        mine = kind == k
+    codes, uniques = pd.factorize(np.asarray(kind, dtype=object))  # by hashing, never sorting the texts
+    for k in range(len(uniques)):
+        mine = codes == k if len(uniques) > 1 else np.ones(len(codes), dtype=bool)
         intervals = dt_prev[mine][1:]
         if len(intervals):
             out[mine] = float(np.median(intervals))
@@ -66,19 +67,20 @@ def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
     statistic is NaN and the row is not good.  A slower feed's sample (hourly) covers its own
     interval and stands for it.
     """
-    series = good.set_index("time")
-    out = pd.DataFrame(index=series.index)
+    index = pd.DatetimeIndex(good["time"])  # only the columns used, not a copy of the frame
+    series = {name: pd.Series(good[name].to_numpy(), index=index) for name in ("wind_mean_ms", "wind_gust_ms")}
+    out = pd.DataFrame(index=index)
     wind_window, temp_window = statistic_windows_min(cadence_min)
-    t_ns = _ns(series.index)
-    mean = np.full(len(series), np.nan)
-    gust = np.full(len(series), np.nan)
+    t_ns = _ns(index)
+    mean = np.full(len(index), np.nan)
+    gust = np.full(len(index), np.nan)
     for window_min in np.unique(wind_window):  # one pass per cadence (observed, forecast)
         rows = wind_window == window_min
         window = pd.Timedelta(minutes=float(window_min))
         dt_prev = np.diff(t_ns, prepend=t_ns[0] - int(window_min * 6e10)) / 6e10
         covers = np.minimum(np.minimum(dt_prev, cadence_min), window_min)  # NaN cadence: covers nothing
         covers = np.where(np.isfinite(covers), covers, 0.0)
-        coverage = pd.Series(covers, index=series.index).rolling(window).sum().to_numpy()
+        coverage = pd.Series(covers, index=index).rolling(window).sum().to_numpy()
         covered = coverage >= MIN_WINDOW_COVERAGE * window_min - 1e-9
         # pandas' rolling mean is an online sum, so its last bits depend on where the series
         # starts; rounding to 1e-6 m/s (far below any anemometer's resolution) makes a row's
@@ -91,7 +93,7 @@ def _rolling(good: pd.DataFrame, cadence_min: np.ndarray) -> pd.DataFrame:
     out["wind_gust_ms"] = gust
     out["wind_window_min"] = wind_window
     out["temp_rate_window_min"] = temp_window
-    temp = series["air_temp_c"].to_numpy()
+    temp = good["air_temp_c"].to_numpy()
     back = np.searchsorted(t_ns, t_ns - (temp_window * 60e9).astype(np.int64), side="left")
     dt_h = (t_ns - t_ns[back]) / 3.6e12
     with np.errstate(invalid="ignore", divide="ignore"):

@@ -39,6 +39,7 @@ from advisor.io.feedvalues import (
     kind_rows,
     numeric_column,
     refuse_mixed_humidity,
+    step_basis,
     step_outliers,
 )
 from advisor.io.times import parse_time_column
@@ -203,7 +204,9 @@ def _read_values(table: pd.DataFrame, layout: FeedLayout, source: str, line_offs
     return out, coded_cells, coded_rows, coded_bits, sources
 
 
-def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarray, dict[str, int]]:
+def _flag_implausible(
+    frame: pd.DataFrame, layout: FeedLayout, t_ns: np.ndarray, groups: list[np.ndarray]
+) -> tuple[np.ndarray, dict[str, int]]:
     """Set implausible values to NaN (kept as ``raw_<name>``); the per-row mask of columns affected.
 
     Implausible: outside the catalogue's plausible range, a gust below the mean wind, or a change
@@ -212,9 +215,8 @@ def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarr
     n = len(frame)
     bits = np.zeros(n, dtype=np.int32)
     counts: dict[str, int] = {}
-    t_ns = pd.DatetimeIndex(frame["time"]).asi8
-    groups = kind_rows(frame["kind"].to_numpy(dtype=object))
     limits = layout.step_limits()
+    basis = step_basis(t_ns, groups) if limits else None
     for k, name in enumerate(CANONICAL_COLUMNS):
         if name not in frame:
             continue
@@ -222,7 +224,7 @@ def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarr
         lo, hi = PLAUSIBLE_RANGE.get(name, (-np.inf, np.inf))
         bad = (col < lo) | (col > hi)
         if name in limits and not (name == "wind_gust_ms" and layout.gust_factor is not None):
-            bad |= step_outliers(np.where(bad, np.nan, col), t_ns, groups, limits[name])
+            bad |= step_outliers(np.where(bad, np.nan, col), t_ns, groups, limits[name], basis)
         if name == "wind_gust_ms":
             bad |= col < frame["wind_mean_ms"].to_numpy(dtype=float) - 0.5
         if bad.any():
@@ -236,13 +238,16 @@ def _flag_implausible(frame: pd.DataFrame, layout: FeedLayout) -> tuple[np.ndarr
     return bits, counts
 
 
-def _dropouts(frame: pd.DataFrame, layout: FeedLayout, cadence_min: float | None) -> np.ndarray:
+def _dropouts(
+    frame: pd.DataFrame,
+    layout: FeedLayout,
+    cadence_min: float | None,
+    t_ns: np.ndarray,
+    groups: list[np.ndarray],
+    observed: np.ndarray,
+) -> np.ndarray:
     """Per-row mask of the optional columns whose sensor fell silent just now (see ``dropout_mask``)."""
     bits = np.zeros(len(frame), dtype=np.int32)
-    t_ns = pd.DatetimeIndex(frame["time"]).asi8
-    kind = frame["kind"].to_numpy(dtype=object)
-    groups = kind_rows(kind)
-    observed = kind == "observed"
     hold = layout.dropout_limit_min(cadence_min)
     for name in OPTIONAL_COLUMNS:
         if name in frame:
@@ -251,8 +256,8 @@ def _dropouts(frame: pd.DataFrame, layout: FeedLayout, cadence_min: float | None
     return bits
 
 
-def _cadence(frame: pd.DataFrame) -> float | None:
-    t = pd.DatetimeIndex(frame.loc[frame["kind"] == "observed", "time"]).asi8
+def _cadence(t_ns: np.ndarray, observed: np.ndarray) -> float | None:
+    t = t_ns[observed]
     return float(np.median(np.diff(t)) / 6e10) if len(t) >= 2 else None
 
 
@@ -317,8 +322,11 @@ def canonical_frame(
             line=int(backwards[0]) + line_offset,
             hint="the logger clock or the file order is wrong; sort the feed by time",
         )
-    frame = frame.sort_values("time", kind="stable")
-    dup = frame["time"].duplicated(keep="first").to_numpy()
+    if n_out_of_order:
+        frame = frame.sort_values("time", kind="stable")
+        dup = frame["time"].duplicated(keep="first").to_numpy()
+    else:  # in order already (the stable sort would keep every row where it is): repeats are neighbours
+        dup = np.concatenate([[False], t[1:] == t[:-1]]) if len(t) else np.zeros(0, dtype=bool)
     if dup.any():
         value_cols = [c for c in CANONICAL_COLUMNS if c in frame]
         repeated = frame[frame["time"].duplicated(keep=False).to_numpy()]
@@ -334,11 +342,18 @@ def canonical_frame(
                 hint="remove the duplicate rows; the advisor will not guess which is right",
             )
     n_duplicates = int(dup.sum())
-    frame = frame[~dup].reset_index(drop=True)
+    if n_duplicates or n_out_of_order:  # else the frame keeps every row, in order, indexed 0..n-1
+        frame = frame[~dup].reset_index(drop=True)
+    t_ns = pd.DatetimeIndex(frame["time"]).asi8
+    if "kind" in table.columns:
+        row_kinds: np.ndarray = frame["kind"].to_numpy(dtype=object)
+        groups, observed_rows = kind_rows(row_kinds), np.asarray(row_kinds == "observed", dtype=bool)
+    else:  # every row observed
+        groups, observed_rows = [np.arange(len(frame))], np.ones(len(frame), dtype=bool)
 
     # Implausible values → NaN (range and step tests, after sorting), row flagged; required
     # inputs missing; dew point derived where the feed has none.
-    implausible_bits, implausible_counts = _flag_implausible(frame, layout)
+    implausible_bits, implausible_counts = _flag_implausible(frame, layout, t_ns, groups)
     implausible = implausible_bits != 0
     frame["q_bits_implausible"] = implausible_bits
     frame["q_implausible"] = implausible
@@ -349,11 +364,11 @@ def canonical_frame(
     else:
         frame["dew_point_c"] = derived
 
-    cadence = _cadence(frame) if cadence_min is None else float(cadence_min)
+    cadence = _cadence(t_ns, observed_rows) if cadence_min is None else float(cadence_min)
     dt_min = frame["time"].diff().dt.total_seconds().to_numpy() / 60.0
     frame["q_gap_before"] = np.nan_to_num(dt_min, nan=0.0) > layout.gap_limit_min(cadence)
     frame["good"] = ~(frame["q_implausible"] | frame["q_missing"]).to_numpy()
-    frame["q_bits_dropout"] = _dropouts(frame, layout, cadence)
+    frame["q_bits_dropout"] = _dropouts(frame, layout, cadence, t_ns, groups, observed_rows)
 
     quality = FeedQuality(
         n_rows=len(frame),

@@ -12,6 +12,10 @@
   fixed offset ``UTC-05:00`` / ``UTC+05:30``).
 
 Every error names the column(s), the line and the text as written, and how to fix it.
+
+The usual column, every text written the same way with its UTC offset
+(``2026-01-15T09:00:00-07:00``), is read at once from its bytes (:func:`uniform_iso_ns`); any
+other column, and every error, goes through the strict reader (:mod:`advisor.io.times`).
 """
 
 from __future__ import annotations
@@ -25,12 +29,110 @@ import pandas as pd
 
 from advisor.errors import FeedError
 from advisor.io.feedlayout import FeedLayout, fixed_offset_minutes
-from advisor.io.times import EPOCH_UNITS, check_time_range, epoch_times, parse_time_column
+from advisor.io.times import EPOCH_UNITS, TIME_RANGE_UTC, check_time_range, epoch_times, parse_time_column
 
-__all__ = ["MIDNIGHT_24", "feed_times", "zone_object", "start_label_shift"]
+__all__ = ["MIDNIGHT_24", "feed_times", "zone_object", "start_label_shift", "uniform_iso_ns"]
 
 #: An hour of 24 (24:00 or 24:00:00) where a time of day starts: after the date's space or T.
 MIDNIGHT_24 = re.compile(r"(?:^|(?<=[\sTt]))24:00(?::00)?(?![\d:])")
+
+_ISO_WITH_OFFSET = re.compile(r"\d{4}-\d\d-\d\d[Tt ]\d\d:\d\d(?::\d\d(?:\.(\d{1,9}))?)?(Z|z|[+-]\d\d(?::?\d\d)?)\Z")
+_DAYS_BEFORE_MONTH = np.array([0, 0, 31, 59, 90, 120, 151, 181, 212, 243, 273, 304, 334], dtype=np.int32)
+_DAYS_IN_MONTH = np.array([0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.int32)
+_YEARS = np.arange(10_000, dtype=np.int64)  # every year four digits can write
+#: Per year: is it a leap year; days from 1970-01-01 to its 1 January (proleptic Gregorian).
+_LEAP = ((_YEARS % 4 == 0) & (_YEARS % 100 != 0)) | (_YEARS % 400 == 0)
+_YEAR_START_DAYS = 365 * (_YEARS - 1) + (_YEARS - 1) // 4 - (_YEARS - 1) // 100 + (_YEARS - 1) // 400 - 719162
+#: TIME_RANGE_UTC of advisor.io.times, [1900-01-01, 2200-01-01) UTC, in seconds since 1970.
+_RANGE_S = (int(TIME_RANGE_UTC[0].value // 1_000_000_000), int(TIME_RANGE_UTC[1].value // 1_000_000_000))
+
+
+def uniform_iso_ns(values: pd.Series) -> np.ndarray | None:
+    """UTC times [ns since 1970] of ISO 8601 texts that all share the first one's shape, else None.
+
+    The fast path for a logger's column: every cell a ``str`` with exactly the first one's
+    shape (the same length, digits where it has digits, the same separators, a sign where it has
+    one) and a UTC offset; every field range-checked (month, day of that month, hour, minute,
+    second, offset) and every time within :data:`advisor.io.times.TIME_RANGE_UTC`.  Anything
+    else (no offset, spaces, a cut-short line, a leap second, 24:00, mixed shapes, non-ASCII)
+    returns ``None``: the strict reader (:func:`advisor.io.times.parse_time_column`) then reads
+    or refuses the column with its line-numbered message.  So this never accepts what the
+    strict reader refuses, and gives the same instants (tests/test_feedtimes_fast.py).
+    """
+    n = len(values)
+    if n == 0:
+        return None
+    first = values.iloc[0]
+    if not isinstance(first, str) or _ISO_WITH_OFFSET.match(first) is None:
+        return None
+    if not isinstance(values.dtype, pd.StringDtype) and pd.api.types.infer_dtype(values, skipna=False) != "string":
+        return None  # a cell that is not a str is written out by the strict reader
+    try:
+        buf = values.to_numpy(dtype=object).astype("S")  # ASCII bytes, one row per text
+    except (UnicodeEncodeError, ValueError, TypeError):
+        return None
+    width = buf.dtype.itemsize
+    if width != len(first):  # a longer text; a shorter one ends in zero bytes, refused below
+        return None
+    return _matrix_ns(buf.view(np.uint8).reshape(n, width), first)
+
+
+def _matrix_ns(buf: np.ndarray, template_text: str) -> np.ndarray | None:
+    """:func:`uniform_iso_ns` of an ``(n, width)`` ``uint8`` matrix of texts shaped like ``template_text``."""
+    n, width = buf.shape
+    m = _ISO_WITH_OFFSET.match(template_text)
+    if m is None or len(template_text) != width:
+        return None
+    template = np.frombuffer(template_text.encode("ascii"), dtype=np.uint8)
+    offset = m.group(2)
+    off_at = width - len(offset)
+    sign_col = off_at if offset[0] in "+-" else None
+    # every column holds a digit where the template has one and the template's character elsewhere
+    is_digit = (template >= 48) & (template <= 57)
+    lo = np.where(is_digit, 48, template).astype(np.uint8)
+    hi = np.where(is_digit, 57, template).astype(np.uint8)
+    if sign_col is not None:
+        lo[sign_col], hi[sign_col] = ord("+"), ord("-")  # '+' 43, ',' 44, '-' 45
+    rel = buf - lo  # a digit's value in a digit column; wraps to >= 128 below lo
+    if not (rel <= hi - lo).all():  # lo <= c <= hi in one comparison
+        return None
+    if sign_col is not None and (rel[:, sign_col] == 1).any():  # a ',' between '+' and '-'
+        return None
+
+    def number(start: int, stop: int) -> np.ndarray:  # the digits in columns [start, stop), as int32
+        out = rel[:, start].astype(np.int32)
+        for col in range(start + 1, stop):
+            out *= 10
+            out += rel[:, col]
+        return out
+
+    year, month, day = number(0, 4), number(5, 7), number(8, 10)
+    hour, minute = number(11, 13), number(14, 16)
+    has_seconds = width > 16 and template[16] == ord(":")
+    second = number(17, 19) if has_seconds else np.zeros(n, dtype=np.int32)
+    if not ((month >= 1) & (month <= 12)).all():
+        return None
+    leap = _LEAP[year]
+    ok = (day >= 1) & (day <= _DAYS_IN_MONTH[month] + ((month == 2) & leap))
+    ok &= (hour <= 23) & (minute <= 59) & (second <= 59)
+    clock_s = hour * 3600 + minute * 60 + second  # int32: within a day and an offset
+    if sign_col is not None:
+        off_h = number(off_at + 1, off_at + 3)
+        off_m = number(width - 2, width) if len(offset) > 3 else np.zeros(n, dtype=np.int32)
+        ok &= (off_h <= 23) & (off_m <= 59)
+        offset_s = off_h * 3600 + off_m * 60
+        clock_s -= np.where(rel[:, sign_col] == 2, -offset_s, offset_s)  # '-' is 2 past '+'
+    if not ok.all():
+        return None
+    days = _YEAR_START_DAYS[year] + (_DAYS_BEFORE_MONTH[month] + ((month > 2) & leap) + day - 1)
+    seconds = days * 86400 + clock_s
+    if not ((seconds >= _RANGE_S[0]) & (seconds < _RANGE_S[1])).all():
+        return None
+    ns = seconds * 1_000_000_000
+    fraction = m.group(1)
+    if fraction:
+        ns += number(20, 20 + len(fraction)).astype(np.int64) * 10 ** (9 - len(fraction))
+    return ns
 
 
 def zone_object(name: str | None):
@@ -159,6 +261,14 @@ def _standard_times(raw: pd.Series, layout: FeedLayout, source: str, field: str,
     if pd.api.types.is_datetime64_dtype(raw):  # naive in-memory times: local wall clock
         raw = raw.dt.strftime("%Y-%m-%dT%H:%M:%S.%f").where(raw.notna(), None)
     values = raw.reset_index(drop=True).astype(object)
+    if layout.time_unit not in EPOCH_UNITS:
+        # The usual column (every cell a str of one ISO 8601 shape with its offset: none empty,
+        # none a number) at once; anything else below, as the strict reader reads or refuses it.
+        fast = uniform_iso_ns(values)
+        if fast is not None:
+            # named as the strict reader names it: after the column, unless it upper-cased a t or z
+            name = None if {"t", "z"} & set(str(values.iloc[0])) else values.name
+            return pd.Series(pd.DatetimeIndex(fast.view("datetime64[ns]")).tz_localize("UTC"), name=name)
     empty = values.isna().to_numpy()
     if empty.any():
         i = int(np.flatnonzero(empty)[0])

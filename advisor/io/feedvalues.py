@@ -143,22 +143,44 @@ def _previous_same_kind(groups: list[np.ndarray], n: int) -> np.ndarray:
     return prev
 
 
+def step_basis(time_ns: np.ndarray, groups: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
+    """What :func:`step_outliers` needs of the times, the same for every column: ``(has, prev, minutes)``.
+
+    ``has``: the row has a previous sample of its kind; ``prev``: that sample's row (0 where none;
+    None when it is always the row before); ``minutes``: the minutes since it, at least one (NaN
+    where none).
+    """
+    previous = _previous_same_kind(groups, len(time_ns))
+    has = previous >= 0
+    previous = np.clip(previous, 0, None)
+    minutes = np.where(has, (time_ns - time_ns[previous]) / 6e10, np.nan)
+    one_run = len(groups) == 1 and len(groups[0]) == len(time_ns) and np.array_equal(groups[0], np.arange(len(time_ns)))
+    # every row's previous sample the row before (None): a shift, not a gather
+    return has, None if one_run else previous, np.maximum(minutes, 1.0)
+
+
 def step_outliers(
-    values: np.ndarray, time_ns: np.ndarray, groups: list[np.ndarray], limit_per_min: float
+    values: np.ndarray,
+    time_ns: np.ndarray,
+    groups: list[np.ndarray],
+    limit_per_min: float,
+    basis: tuple[np.ndarray, np.ndarray | None, np.ndarray] | None = None,
 ) -> np.ndarray:
     """Rows whose value changed from the previous sample of their kind by more than
     ``limit_per_min`` × the minutes between them (at least one minute) — a step test.
-    ``groups`` are the row positions of each kind (:func:`kind_rows`).
+    ``groups`` are the row positions of each kind (:func:`kind_rows`); ``basis`` is
+    :func:`step_basis` of them when several columns are tested (computed here if not given).
 
     Past-only, so a live check and a replay flag the same rows: a spike is flagged, and so is
     the sample that returns from it; a lasting step is flagged once and then compared with itself.
     """
-    prev = _previous_same_kind(groups, len(values))
-    has = prev >= 0
-    before = np.where(has, values[np.clip(prev, 0, None)], np.nan)
-    minutes = np.where(has, (time_ns - time_ns[np.clip(prev, 0, None)]) / 6e10, np.nan)
+    has, prev, minutes = step_basis(time_ns, groups) if basis is None else basis
+    if prev is None:
+        before = np.concatenate([[np.nan], values[:-1]]) if len(values) else values
+    else:
+        before = np.where(has, values[prev], np.nan)
     with np.errstate(invalid="ignore"):
-        return np.abs(values - before) > limit_per_min * np.maximum(minutes, 1.0)
+        return np.abs(values - before) > limit_per_min * minutes
 
 
 def dropout_mask(values: np.ndarray, time_ns: np.ndarray, groups: list[np.ndarray], hold_min) -> np.ndarray:
@@ -172,6 +194,8 @@ def dropout_mask(values: np.ndarray, time_ns: np.ndarray, groups: list[np.ndarra
     n = len(values)
     out = np.zeros(n, dtype=bool)
     present = np.isfinite(values)
+    if present.all():  # a dropout is a missing value: none here
+        return out
     hold = np.broadcast_to(np.asarray(hold_min, dtype=float), (n,))
     for rows in groups:
         p = present[rows]

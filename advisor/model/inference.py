@@ -149,16 +149,17 @@ class MethodModel:
     feature_min: np.ndarray | None = field(default=None, compare=False)
     feature_max: np.ndarray | None = field(default=None, compare=False)
 
-    def outside(self, features: pd.DataFrame) -> np.ndarray:
+    def outside(self, features: pd.DataFrame, terms: np.ndarray | None = None) -> np.ndarray:
         """(n_rows, n_terms) mask: the term lies outside the values it was trained on (NaN is not outside).
 
         A term's trained values are those its transform takes over the feature's training range;
         a margin of :data:`EXTRAPOLATION_TOLERANCE_SD` of the term's training sd counts as inside.
+        ``terms``: :func:`term_matrix` of ``features``, when the caller has it already.
         """
         n = len(features)
         if self.feature_min is None or self.feature_max is None:
             return np.zeros((n, len(self.terms)), dtype=bool)
-        t = term_matrix(features, self.terms)
+        t = term_matrix(features, self.terms) if terms is None else terms
         low = np.empty(len(self.terms))
         high = np.empty(len(self.terms))
         for k, term in enumerate(self.terms):
@@ -178,8 +179,12 @@ class MethodModel:
         never a confident 0 or 1: the call then rests on the rules (see :class:`OddsNotes`).
         """
         with np.errstate(all="ignore"):
-            logit = self.intercept + self.contributions(term_matrix(features, self.terms)).sum(axis=1)
-            return np.where(np.isfinite(logit), 1.0 / (1.0 + np.exp(-logit)), np.nan)
+            return self._p_usable(self.contributions(term_matrix(features, self.terms)))
+
+    def _p_usable(self, contributions: np.ndarray) -> np.ndarray:
+        """:meth:`predict` from :meth:`contributions` of the terms (call under ``np.errstate(all="ignore")``)."""
+        logit = self.intercept + contributions.sum(axis=1)
+        return np.where(np.isfinite(logit), 1.0 / (1.0 + np.exp(-logit)), np.nan)
 
     def plain_coefficients(self) -> tuple[float, np.ndarray]:
         """(intercept at all terms zero, log-odds per unit of each term) — the model in plain units."""
@@ -201,11 +206,21 @@ class ModelOdds(dict):
 
 
 class ExtrapolationNotes(Sequence):
-    """Per row: None inside the training range, else a sentence naming the value outside it."""
+    """Per row: None inside the training range, else a sentence naming the value outside it.
 
-    def __init__(self, method: str, model: MethodModel, values: np.ndarray, outside: np.ndarray):
-        self.method, self.model, self.values, self.outside = method, model, values, outside
-        self.any: np.ndarray = np.asarray(outside.any(axis=1), dtype=bool)
+    ``values``: the (n_rows, n_terms) feature value of each term, or a function giving it (called
+    only when a sentence is written); ``any``: ``outside.any(axis=1)`` when the caller has it.
+    """
+
+    def __init__(self, method: str, model: MethodModel, values, outside: np.ndarray, any_outside=None):
+        self.method, self.model, self._values, self.outside = method, model, values, outside
+        self.any: np.ndarray = np.asarray(outside.any(axis=1) if any_outside is None else any_outside, dtype=bool)
+
+    @property
+    def values(self) -> np.ndarray:
+        if callable(self._values):
+            self._values = self._values()
+        return self._values
 
     def __len__(self) -> int:
         return len(self.any)
@@ -240,18 +255,35 @@ class ExtrapolationNotes(Sequence):
 class OddsNotes(Sequence):
     """Per-row sentences naming the features that pushed the odds most, formatted on demand.
 
-    The numbers are computed for all rows at once; only the rows that are read become text,
-    so a year of minutes costs no Python loop.
+    The numbers are computed for all rows at once, when the first sentence is read (a replay
+    that prints none computes none); only the rows that are read become text, so a year of
+    minutes costs no Python loop.  ``values`` and ``pushes`` are (n, n_features) arrays, or
+    ``parts`` a function giving both.
     """
 
-    def __init__(self, method: str, p: np.ndarray, features: list[str], values: np.ndarray, pushes: np.ndarray):
+    def __init__(
+        self,
+        method: str,
+        p: np.ndarray,
+        features: list[str],
+        values: np.ndarray | None = None,
+        pushes: np.ndarray | None = None,
+        parts=None,
+    ):
         self.method, self.p, self.feature_names = method, p, features
-        self.values, self.pushes = values, pushes  # (n, n_features) each
+        self._parts = parts if parts is not None else (lambda: (np.asarray(values), np.asarray(pushes)))
+        self._ready = False
+
+    def _prepare(self) -> None:
+        if self._ready:
+            return
+        parts: tuple[np.ndarray, np.ndarray] = self._parts()
+        self.values, self.pushes = parts  # (n, n_features) each
         # No odds although every input is there: the model's arithmetic overflowed.
-        self.failed = ~np.isfinite(p) & np.isfinite(values).all(axis=1)
+        self.failed = ~np.isfinite(self.p) & np.isfinite(self.values).all(axis=1)
         with np.errstate(all="ignore"):
-            order = np.argsort(-np.abs(np.nan_to_num(pushes)), axis=1, kind="stable")
-        self.order = order
+            self.order = np.argsort(-np.abs(np.nan_to_num(self.pushes)), axis=1, kind="stable")
+        self._ready = True
 
     def __len__(self) -> int:
         return len(self.p)
@@ -266,6 +298,7 @@ class OddsNotes(Sequence):
         return self._text(i)
 
     def _text(self, i: int) -> str:
+        self._prepare()
         label = METHOD_LABELS[self.method]
         if self.failed[i]:
             return (
@@ -312,21 +345,42 @@ class SiteModel:
         extrapolation per method."""
         odds, notes, extrapolated, extrapolation = {}, {}, {}, {}
         for method, m in self.methods.items():
-            p = m.predict(features)
-            names = list(dict.fromkeys(t.feature for t in m.terms))
+            # The terms once for the odds and the range test; numpy warns of an overflow in them
+            # where the range test is made (as it always has), never for the odds alone.
+            ranged = m.feature_min is not None and m.feature_max is not None
+            with np.errstate() if ranged else np.errstate(all="ignore"):
+                terms = term_matrix(features, m.terms)
             with np.errstate(all="ignore"):  # an overflow shows as p = NaN, said in the notes
-                contrib = m.contributions(term_matrix(features, m.terms))
-                pushes = np.column_stack(
-                    [contrib[:, np.array([t.feature == f for t in m.terms])].sum(axis=1) for f in names]
-                )
-            values = np.column_stack([features[f].to_numpy(dtype=float) for f in names])
-            outside = m.outside(features)
-            term_values = np.column_stack([features[t.feature].to_numpy(dtype=float) for t in m.terms])
+                contrib = m.contributions(terms)
+                p = m._p_usable(contrib)
+            names = list(dict.fromkeys(t.feature for t in m.terms))
+            outside = m.outside(features, terms) & np.isfinite(p)[:, None]
+            # the feature columns now (views, no copy), stacked only when a note is written
+            columns = {f: features[f].to_numpy(dtype=float) for f in names}
             odds[method] = p
-            notes[method] = OddsNotes(method, p, names, values, pushes)
-            extrapolated[method] = outside.any(axis=1) & np.isfinite(p)
-            extrapolation[method] = ExtrapolationNotes(method, m, term_values, outside & np.isfinite(p)[:, None])
+            notes[method] = OddsNotes(method, p, names, parts=_note_parts(m, names, columns, contrib))
+            extrapolated[method] = outside.any(axis=1)
+            extrapolation[method] = ExtrapolationNotes(
+                method,
+                m,
+                lambda m=m, columns=columns: np.column_stack([columns[t.feature] for t in m.terms]),
+                outside,
+                extrapolated[method],
+            )
         return ModelOdds(odds, notes, extrapolated, extrapolation)
+
+
+def _note_parts(m: MethodModel, names: list[str], columns: dict[str, np.ndarray], contrib: np.ndarray):
+    """The (values, pushes) of :class:`OddsNotes`, computed when the first note is read."""
+
+    def parts() -> tuple[np.ndarray, np.ndarray]:
+        with np.errstate(all="ignore"):
+            pushes = np.column_stack(
+                [contrib[:, np.array([t.feature == f for t in m.terms])].sum(axis=1) for f in names]
+            )
+        return np.column_stack([columns[f] for f in names]), pushes
+
+    return parts
 
 
 #: Names of the model file's reader and writer (:mod:`advisor.model.modelfile`), still importable

@@ -31,6 +31,9 @@ def _as_datetime64_ns(times_utc) -> np.ndarray:
     ``Series`` / ``Timestamp`` (tz-aware: converted to UTC; naive: read as UTC), Python
     ``datetime`` and ISO 8601 strings.
     """
+    if isinstance(times_utc, (pd.Series, pd.Index)) and times_utc.dtype.kind == "M":
+        # datetimes, aware or naive: their int64 are UTC (or read as UTC)
+        return np.array(pd.DatetimeIndex(times_utc).as_unit("ns").asi8).view("datetime64[ns]")
     if isinstance(times_utc, pd.Series):
         values = pd.to_datetime(times_utc, utc=True).dt.tz_localize(None)
         return values.to_numpy(dtype="datetime64[ns]")
@@ -155,6 +158,22 @@ def _sun_hour_angle_dec(days_j2000, longitude_deg):
     return np.mod(hour_angle + 180.0, 360.0) - 180.0, dec, radius_au
 
 
+_REFRACTION_SPLIT_SIZE = 256
+
+
+def _refraction_high(e):
+    tan_e = np.tan(np.radians(e))
+    return 58.1 / tan_e - 0.07 / tan_e**3 + 0.000086 / tan_e**5
+
+
+def _refraction_low(e):
+    return 1735.0 + e * (-518.2 + e * (103.4 + e * (-12.79 + e * 0.711)))
+
+
+def _refraction_below(e):
+    return -20.774 / np.tan(np.radians(e))
+
+
 def _refraction_deg(elevation_deg, pressure_hpa=1010.0, temp_c=10.0):
     """Atmospheric refraction to add to a true elevation [deg].
 
@@ -168,11 +187,18 @@ def _refraction_deg(elevation_deg, pressure_hpa=1010.0, temp_c=10.0):
     """
     e = np.asarray(elevation_deg, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        tan_e = np.tan(np.radians(e))
-        high = 58.1 / tan_e - 0.07 / tan_e**3 + 0.000086 / tan_e**5
-        low = 1735.0 + e * (-518.2 + e * (103.4 + e * (-12.79 + e * 0.711)))
-        below = -20.774 / tan_e
-        arcsec = np.where(e > 5.0, high, np.where(e > -0.575, low, below))
+        if e.size < _REFRACTION_SPLIT_SIZE:
+            arcsec = np.where(
+                e > 5.0, _refraction_high(e), np.where(e > -0.575, _refraction_low(e), _refraction_below(e))
+            )
+        else:  # each expression only where it applies (elementwise: the same numbers)
+            arcsec = np.empty(e.shape)
+            high = e > 5.0
+            low = ~high & (e > -0.575)
+            below = ~(high | low)  # NaN too, as above
+            arcsec[high] = _refraction_high(e[high])
+            arcsec[low] = _refraction_low(e[low])
+            arcsec[below] = _refraction_below(e[below])
     scale = (np.asarray(pressure_hpa, dtype=float) / 1010.0) * (283.0 / (273.0 + np.asarray(temp_c, dtype=float)))
     return arcsec / 3600.0 * scale
 

@@ -106,13 +106,12 @@ def _dry_on_grid(freq_ghz: float, state: np.ndarray) -> np.ndarray:
             return per_cell[:, k]
 
     total = np.zeros(state.shape[1])
+    sides = [(1.0 - weight[a], weight[a]) for a in range(3)]  # each axis' weight of its low and high node
+    pairs: dict[tuple[int, int], np.ndarray] = {}
     for k, (i, j, m) in enumerate(_CORNERS):
-        w = (
-            (weight[0] if i else 1.0 - weight[0])
-            * (weight[1] if j else 1.0 - weight[1])
-            * (weight[2] if m else 1.0 - weight[2])
-        )
-        total += corner(k) * w
+        if (i, j) not in pairs:
+            pairs[i, j] = sides[0][i] * sides[1][j]
+        total += corner(k) * (pairs[i, j] * sides[2][m])
     return total
 
 

@@ -19,6 +19,8 @@ and polar night: the first sunset after weeks of midnight sun is found like any 
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from advisor.physics.ephemeris import (  # noqa: F401  (re-exported: sky.py and the tests use them from here)
@@ -176,6 +178,16 @@ class _EventTable:
         self.rise_days, self.set_days = crossing[rising], crossing[~rising]
 
 
+@functools.lru_cache(maxsize=8)
+def _event_table(first_day: float, last_day: float, latitude_deg: float, longitude_deg: float) -> _EventTable:
+    """:class:`_EventTable` of a span, kept for the next call with the same span (sunset and sunrise
+    of the same times read the same table)."""
+    table = _EventTable(first_day, last_day, latitude_deg, longitude_deg)
+    for values in vars(table).values():
+        values.flags.writeable = False
+    return table
+
+
 def _per_site(times_utc, latitude_deg, longitude_deg):
     """Flattened days since J2000.0 and, per distinct site, (row indices, lat, lon)."""
     days = _days_since_j2000(times_utc)
@@ -207,7 +219,7 @@ def _hours_since_event(times_utc, latitude_deg, longitude_deg, rising, max_lookb
         # Search the last few days first; go back the whole lookback only for the times that
         # found nothing there (polar day or night), so the usual case stays cheap.
         for margin in sorted({min(lookback, _SHORT_LOOKBACK_DAYS), lookback}):
-            table = _EventTable(d.min() - margin - 1.0, d.max(), lat, lon)
+            table = _event_table(float(d.min() - margin - 1.0), float(d.max()), float(lat), float(lon))
             events = table.rise_days if rising else table.set_days
             last = np.searchsorted(events, d, side="right") - 1
             if np.all(last >= 0):
@@ -329,7 +341,7 @@ def sun_state(times_utc, latitude_deg, longitude_deg):
     out = np.full(days.shape, SUN_UNKNOWN, dtype=np.int8)
     for rows, lat, lon in groups:
         d = days[rows]
-        table = _EventTable(d.min() - 1.0, d.max() + 1.0, lat, lon)
+        table = _event_table(float(d.min() - 1.0), float(d.max() + 1.0), float(lat), float(lon))
         k = np.searchsorted(table.transit_days, d, side="right") - 1  # bracket [t_k, t_k+1)
         crossing = table.crossing_days[k]
         with np.errstate(invalid="ignore"):

@@ -37,6 +37,25 @@ class SourceTrack:
     highest_elevation_deg: np.ndarray  # highest over [t, t + duration]
 
 
+def _wrap_180(x: np.ndarray) -> None:
+    """Angles to [-180, 180] in place, float32: ``np.mod(x + 180, 360) - 180`` to the bit, fast.
+
+    For y = x + 180 within [-360, 720), fmod(y, 360) is y or, from 360 on, y - 360 (exact:
+    Sterbenz's lemma), and numpy's floor-mod then adds 360 to a negative remainder (rounded as
+    float32); a zero remainder is +0 there and may be -0 here, which the final -180 makes the same
+    -180.  So one subtraction or addition where needed gives the same numbers without numpy's slow
+    float remainder.  Anything else (NaN, out of range) goes through ``np.mod``.
+    """
+    x += np.float32(180.0)
+    lo, hi = x.min(initial=0.0), x.max(initial=0.0)
+    if lo >= -360.0 and hi < 720.0:
+        np.subtract(x, np.float32(360.0), out=x, where=x >= np.float32(360.0))
+        np.add(x, np.float32(360.0), out=x, where=x < np.float32(0.0))
+    else:
+        np.mod(x, np.float32(360.0), out=x)
+    x -= np.float32(180.0)
+
+
 def source_track(
     times_utc, ra_deg, dec_deg, latitude_deg, longitude_deg, duration_min, min_elevation_deg, horizon_min=1440.0
 ) -> SourceTrack:
@@ -110,9 +129,7 @@ def source_track(
 
     lst = np.mod(_gmst_deg_from_days(days) + float(longitude_deg), 360.0).astype(f32)
     hour_angle = lst[:, None] - per_time(np.mod(ra_day, 360.0))
-    hour_angle += f32(180.0)
-    np.mod(hour_angle, f32(360.0), out=hour_angle)
-    hour_angle -= f32(180.0)  # -180..180
+    _wrap_180(hour_angle)  # -180..180
     a, b = per_time(a_day), per_time(b_day)
     step = f32(duration / 60.0 * SIDEREAL_RATE_DEG_PER_H)  # hour angle swept [deg]
 
@@ -141,12 +158,14 @@ def source_track(
     minutes -= hour_angle
     minutes *= f32(60.0 / SIDEREAL_RATE_DEG_PER_H)
     np.clip(minutes, f32(0.0), f32(horizon_min), out=minutes)
-    minutes[per_time(cos_h0 < -1.0) > 0] = f32(horizon_min)
+    never_sets = cos_h0 < -1.0  # (d, m)
+    if never_sets.any():
+        minutes[never_sets[inverse]] = f32(horizon_min)
     minutes[start < f32(min_elevation_deg)] = f32(0.0)
     return SourceTrack(start, minutes, mid, lowest, highest)
 
 
-def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
+def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min, *, as_float32: bool = False):
     """Closest approach of each source to the sun over a measurement starting at each time.
 
     Parameters
@@ -157,6 +176,9 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
         J2000.0 coordinates of the sources; shape (m,). [deg]
     duration_min : float
         Length of the measurement, >= 0. [min]
+
+    as_float32 : bool, default False
+        Return the float32 numbers the result is made of (its float64 values are exactly these).
 
     Returns
     -------
@@ -181,7 +203,7 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
         raise ValueError(f"duration_min must be >= 0, got {duration_min!r}")
     hours = np.atleast_1d(_days_since_j2000(times_utc)).ravel() * 24.0
     m = np.atleast_1d(np.asarray(ra_deg, dtype=float)).size
-    out = np.full((hours.size, m), np.nan)
+    out = np.full((hours.size, m), np.nan, dtype=np.float32 if as_float32 else float)
     ok = np.isfinite(hours)
     if not ok.any():
         return out
@@ -201,9 +223,12 @@ def sun_separation_over_deg(times_utc, ra_deg, dec_deg, duration_min):
 
     end = h + duration / 60.0
     least = np.minimum(at(h), at(end))
+    hour = np.floor(h).astype(np.int64)
     for k in range(1, int(np.ceil(duration / 60.0)) + 1):  # whole hours inside the measurement
-        node = np.floor(h).astype(np.int64) + k
-        inside = (node < end)[:, None]
-        least = np.where(inside, np.minimum(least, per_hour[np.minimum(node, nodes[-1]) - first]), least)
+        node = hour + k
+        inside = np.broadcast_to((node < end)[:, None], least.shape)
+        np.minimum(least, per_hour[np.minimum(node, nodes[-1]) - first], out=least, where=inside)
+    if ok.all():
+        return least if as_float32 else least.astype(float)  # float32 steps: ~1e-5 deg
     out[ok] = least
-    return out  # float32 steps: ~1e-5 deg
+    return out
