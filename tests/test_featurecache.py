@@ -72,6 +72,7 @@ def test_every_listed_module_is_hashed_and_changes_the_key(tmp_path):
 # Invented values throughout: these tests check that bits come back, not any physics.
 import json  # noqa: E402
 import multiprocessing  # noqa: E402
+import time  # noqa: E402
 import shutil  # noqa: E402
 import subprocess  # noqa: E402
 import sys  # noqa: E402
@@ -275,11 +276,12 @@ def _write_in_a_process(cache_dir: str, key: str) -> None:
 
 def test_concurrent_writers_and_readers_see_whole_entries(cache):
     context = multiprocessing.get_context("spawn")
-    writers = [context.Process(target=_write_in_a_process, args=(str(cache), KEY)) for _ in range(3)]
+    writers = [context.Process(target=_write_in_a_process, args=(str(cache.parent), KEY)) for _ in range(3)]
     for p in writers:
         p.start()
     seen = 0
-    while any(p.is_alive() for p in writers) or seen == 0:
+    give_up = time.monotonic() + 300  # a hang guard, not a timing: the writers take a second or two
+    while (any(p.is_alive() for p in writers) or seen == 0) and time.monotonic() < give_up:
         entry = featurecache.open_entry(KEY)
         if entry is not None:  # whole, or not there at all
             assert entry.chunk_rows == [20_000] * 5
