@@ -72,10 +72,10 @@ def test_every_listed_module_is_hashed_and_changes_the_key(tmp_path):
 # Invented values throughout: these tests check that bits come back, not any physics.
 import json  # noqa: E402
 import multiprocessing  # noqa: E402
-import time  # noqa: E402
 import shutil  # noqa: E402
 import subprocess  # noqa: E402
 import sys  # noqa: E402
+import time  # noqa: E402
 
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
