@@ -194,6 +194,40 @@ def test_archive_reader_measures_the_whole_files_cadence_when_the_first_part_mis
     assert reader.measured_cadence_min() == whole.quality.cadence_min == 5.0
 
 
+def _as_json_lines(csv_path: Path, drop_key_after: int | None = None) -> Path:
+    """The archive as JSON Lines (numbers as numbers, an empty cell as a missing key)."""
+    table = pd.read_csv(csv_path)
+    lines = []
+    for i, row in enumerate(table.to_dict(orient="records")):
+        row = {k: v for k, v in row.items() if not (isinstance(v, float) and np.isnan(v))}
+        if drop_key_after is not None and i < drop_key_after:
+            row.pop("vis_m", None)  # the visibility key first appears later in the file
+        lines.append(json.dumps(row))
+    path = csv_path.with_suffix(".jsonl")
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+@pytest.mark.parametrize("part_rows", [1_777, 6_963])
+def test_json_lines_parts_concatenate_to_the_whole_read(tmp_path, part_rows):
+    feed = _as_json_lines(_messy(tmp_path))
+    layout = session.load_inputs(session.request_from(build_parser().parse_args(_args(feed))), read=None).feed_layout
+    whole = read_feed(feed, layout)
+    reader = ArchiveReader(feed, layout, whole.quality.cadence_min, part_rows=part_rows, stream_above_bytes=0)
+    streamed = pd.concat(list(reader.frames()), ignore_index=True).reindex(columns=whole.frame.columns)
+    pd.testing.assert_frame_equal(streamed, whole.frame, check_exact=True)
+
+
+def test_json_lines_with_a_key_that_appears_late_are_read_whole(tmp_path, capsys, small_parts):
+    feed = _as_json_lines(_messy(tmp_path), drop_key_after=5_000)
+    layout = session.load_inputs(session.request_from(build_parser().parse_args(_args(feed))), read=None).feed_layout
+    with pytest.raises(NeedsWholeRead):
+        list(ArchiveReader(feed, layout, part_rows=1_000, stream_above_bytes=0).frames())
+    argv = _args(feed)
+    expected, _, _ = _whole_replay(argv)
+    assert _streamed(argv, capsys) == expected
+
+
 @pytest.mark.parametrize("fault", ["out_of_order", "repeat"])
 def test_archive_reader_asks_for_a_whole_read_when_rows_are_out_of_order_or_repeated(tmp_path, fault):
     feed = _messy(tmp_path, **{fault: True})
@@ -271,3 +305,9 @@ def test_the_dominant_verdict_table_equals_the_whole_replays(small_parts):
     totals = run.totals(None)
     _, _, expected = _whole_replay(argv)
     pd.testing.assert_frame_equal(totals.dominant(), expected)
+
+
+def test_streamed_json_lines_replay_equals_the_whole_replay(tmp_path, capsys, small_parts):
+    argv = _args(_as_json_lines(_messy(tmp_path)), "--history", str(HISTORY))
+    expected, _, _ = _whole_replay(argv)
+    assert _streamed(argv, capsys) == expected

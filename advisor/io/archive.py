@@ -26,7 +26,8 @@ Two things a part cannot know, and how they are kept exact:
   one before cannot be streamed exactly: :class:`NeedsWholeRead` is raised and the caller reads
   the file whole (:func:`advisor.io.feed.read_feed`), which sorts, counts and refuses as always.
 
-JSON Lines files and files below ``stream_above_bytes`` are read whole (one frame).  Known
+Files below ``stream_above_bytes`` are read whole (one frame); so is a JSON Lines file in which a
+key first appears after the first part.  Known
 difference: a relative-humidity column written as fractions in a few rows and percent in others
 is refused when at least three such rows fall in one part (a whole read counts over the file).
 """
@@ -35,6 +36,7 @@ from __future__ import annotations
 
 import codecs
 import io
+import itertools
 import warnings
 from collections.abc import Iterator
 from pathlib import Path
@@ -51,6 +53,7 @@ from advisor.io.feedfile import (
     MAX_HEADER_BYTES,
     _complete_end,
     _first_bad_utf8,
+    _jsonl_rows,
     _parse_error,
     _refuse_bad_head,
     _Window,
@@ -132,7 +135,7 @@ class ArchiveReader:
     Parameters
     ----------
     path : path-like
-        The feed file (CSV streams; JSON Lines is read whole).
+        The feed file (CSV or JSON Lines).
     layout : FeedLayout
         How to read it (the site file's ``feed:``).
     cadence_min : float, optional
@@ -190,12 +193,15 @@ class ArchiveReader:
             is_jsonl = self.path.suffix.lower() in (".jsonl", ".ndjson") or (
                 skip == 0 and body.lstrip().startswith(b"{")
             )
-            whole = is_jsonl or size <= self.stream_above_bytes
+            whole = size <= self.stream_above_bytes
             end = 0 if whole else _complete_end(fh, size, size)
             if whole or end == 0:
                 yield from self._whole()
                 return
             self.partial_last_line = end < size
+            if is_jsonl:
+                yield from self._parts(self._jsonl_tables(fh, end, skip), 1 + skip)
+                return
             fh.seek(0)
             for _ in range(skip):
                 fh.readline(MAX_HEADER_BYTES)
@@ -235,6 +241,42 @@ class ArchiveReader:
             raise FeedError("feed has no header or rows", source=self.source, hint=_EMPTY_HINT) from None
         except (pd.errors.ParserError, ValueError) as exc:
             raise _parse_error(exc, self.source) from None
+
+    def _jsonl_tables(self, fh, end: int, skip: int) -> Iterator[pd.DataFrame]:
+        """The raw tables of a JSON Lines file's parts (one object per line, as a whole read parses them).
+
+        A key that first appears after the first part cannot be placed as a whole read places
+        it (its column position and its empty cells before): :class:`NeedsWholeRead`.
+        """
+        stream = io.BufferedReader(_Window(fh, 0, end), buffer_size=_BLOCK)
+        text = io.TextIOWrapper(stream, encoding="utf-8-sig", newline=None)
+        line = 1
+        for _ in range(skip):
+            text.readline()
+            line += 1
+        columns: list | None = None
+        try:
+            while True:
+                lines = list(itertools.islice(text, self.part_rows))
+                if not lines:
+                    return
+                if not any(raw.strip() for raw in lines):
+                    line += len(lines)
+                    continue
+                table = _jsonl_rows(lines, self.source, line)
+                line += len(lines)
+                if columns is None:
+                    columns = list(table.columns)
+                elif not set(table.columns) <= set(columns):
+                    raise NeedsWholeRead(f"{self.source}: a key first appears near line {line}")
+                else:
+                    table = table.reindex(columns=columns)
+                yield table
+        except UnicodeDecodeError:
+            raise (
+                _first_bad_utf8(fh, end, self.source)
+                or FeedError("not UTF-8 text", source=self.source, hint="save the feed as UTF-8 JSON Lines")
+            ) from None
 
     def _parts(self, tables: Iterator[pd.DataFrame], first_line: int) -> Iterator[pd.DataFrame]:
         carry: pd.DataFrame | None = None  # raw rows of the part before that the next one needs
