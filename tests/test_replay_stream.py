@@ -311,3 +311,32 @@ def test_streamed_json_lines_replay_equals_the_whole_replay(tmp_path, capsys, sm
     argv = _args(_as_json_lines(_messy(tmp_path)), "--history", str(HISTORY))
     expected, _, _ = _whole_replay(argv)
     assert _streamed(argv, capsys) == expected
+
+
+HEADER = "time,wind_mean_ms,wind_gust_ms,air_temp_c,rel_humidity_pct\n"
+ROWS = "".join(f"2026-01-01T{h:02d}:{m:02d}:00Z,1.5,2.5,-3.0,60\n" for h in range(3) for m in range(0, 60, 10))
+BAD_FILES = {
+    "header_only.csv": HEADER,
+    "line_in_progress.csv": HEADER + "2026-01-01T00:00:00Z,1,2,3,50",
+    "word_for_a_number.csv": HEADER + ROWS + "2026-01-01T03:00:00Z,calm,2.5,-3.0,60\n",
+    "extra_field.csv": HEADER + ROWS + "2026-01-01T03:00:00Z,1.5,2.5,-3.0,60,9\n",
+    "column_twice.csv": HEADER.replace("air_temp_c", "wind_mean_ms") + ROWS,
+    "backwards.csv": HEADER + "".join(reversed(ROWS.splitlines(keepends=True))),
+    "bad_json.jsonl": '{"time": "2026-01-01T00:00:00Z", "wind_mean_ms": 1}\n{"time": oops}\n',
+    "blank.jsonl": "\n\n",
+}
+
+
+@pytest.mark.parametrize("name", list(BAD_FILES))
+def test_a_bad_archive_gets_the_same_one_line_error_streamed_or_read_whole(tmp_path, capsys, monkeypatch, name):
+    path = tmp_path / name
+    path.write_text(BAD_FILES[name], encoding="utf-8")
+    argv = ["replay", "--feed", str(path), "--no-cache", "--json"]
+    monkeypatch.setattr(archive, "ARCHIVE_PART_ROWS", 7)
+    monkeypatch.setattr(archive, "STREAM_ABOVE_BYTES", 0)
+    assert main(argv) == 2
+    streamed = capsys.readouterr().err
+    monkeypatch.setattr(archive, "STREAM_ABOVE_BYTES", 10**12)
+    assert main(argv) == 2
+    assert capsys.readouterr().err == streamed
+    assert len(streamed.strip().splitlines()) == 1 and "Traceback" not in streamed

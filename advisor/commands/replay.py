@@ -20,7 +20,7 @@ import pandas as pd
 from advisor.commands import session
 from advisor.errors import UsageError
 from advisor.evaluation.evaluate import Scenario
-from advisor.evaluation.replay import Replayed, attempts_from_history
+from advisor.evaluation.replay import Attempts, Replayed, attempts_from_history
 from advisor.evaluation.replay_stream import ReplayTotals, decide_chunks, feature_chunks
 from advisor.evaluation.replay_table import step_table
 from advisor.features import FEATURES_VERSION, STORED_ROW_FEATURES, complete_row_features, feature_source_paths
@@ -28,6 +28,7 @@ from advisor.io import featurecache
 from advisor.io.archive import ArchiveReader, NeedsWholeRead
 from advisor.io.fileio import atomic_writer, refuse_overwrite
 from advisor.io.history import read_history
+from advisor.rules.ruleset import RuleSet
 
 PROGRESS_BYTES = 10_000_000  # archives this large take more than a second: show progress
 
@@ -163,17 +164,28 @@ class _Run:
     replay runs again with the measured values (an archive whose cadence changed over time).
     """
 
-    def __init__(self, inputs, scenario, rule_sets, attempts, key, use_cache, t_from, t_to) -> None:
+    def __init__(
+        self,
+        inputs: session.Inputs,
+        scenario: Scenario,
+        rule_sets: list[RuleSet],
+        attempts: Attempts | None,
+        key: str,
+        use_cache: bool,
+        t_from: pd.Timestamp | None,
+        t_to: pd.Timestamp | None,
+    ) -> None:
         self.inputs, self.scenario, self.rule_sets, self.attempts = inputs, scenario, rule_sets, attempts
         self.key, self.use_cache, self.t_from, self.t_to = key, use_cache, t_from, t_to
         self.feed_cadence_min: float | None = None
         self.whole_read = False
         self.recompute = False  # a cache entry turned out damaged
         self.zone_checked = False
+        self.archive: ArchiveReader | None = None
 
     def totals(self, csv_path: str | None) -> ReplayTotals:
         gap_limit = None
-        for _ in range(3):
+        for _ in range(5):  # a damaged cache entry, a cadence guess, a whole read, a gap-limit guess
             totals = ReplayTotals(self.rule_sets, self.inputs.site, self.attempts, gap_limit)
             with _CsvRows(csv_path) as csv_rows:
                 again = self._pass(totals, csv_rows.write if csv_path else None)
@@ -187,11 +199,8 @@ class _Run:
 
     def _no_rows(self) -> UsageError:
         archive = self.archive
-        return UsageError(
-            "no archive rows in the chosen period",
-            field="--from/--to",
-            hint=f"the archive covers {archive.first_time_utc} to {archive.last_time_utc}",
-        )
+        covers = "" if archive is None else f"the archive covers {archive.first_time_utc} to {archive.last_time_utc}"
+        return UsageError("no archive rows in the chosen period", field="--from/--to", hint=covers or None)
 
     def _pass(self, totals: ReplayTotals, write_rows) -> bool:
         """Decide every row once; True when it must be done again (a guess about the feed failed)."""

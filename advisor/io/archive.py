@@ -25,6 +25,9 @@ Two things a part cannot know, and how they are kept exact:
 * the order of the rows.  A row out of time order, a repeated time or a part that overlaps the
   one before cannot be streamed exactly: :class:`NeedsWholeRead` is raised and the caller reads
   the file whole (:func:`advisor.io.feed.read_feed`), which sorts, counts and refuses as always.
+  So is a part that is refused (a wrong value, rows going back in time): the whole read names
+  the problem as it always has, counted over the whole file.  A file too big to be read whole
+  gets the part's own message instead.
 
 Files below ``stream_above_bytes`` are read whole (one frame); so is a JSON Lines file in which a
 key first appears after the first part.  Known
@@ -50,6 +53,7 @@ from advisor.io.feedfile import (
     _ANY_SIZE,
     _BLOCK,
     _EMPTY_HINT,
+    MAX_FULL_READ_BYTES,
     MAX_HEADER_BYTES,
     _complete_end,
     _first_bad_utf8,
@@ -67,7 +71,7 @@ __all__ = ["ARCHIVE_PART_ROWS", "STREAM_ABOVE_BYTES", "ArchiveReader", "NeedsWho
 #: File rows parsed at a time (about 60 bytes each in a logger's CSV, a few hundred once canonical).
 ARCHIVE_PART_ROWS = 250_000
 #: Smaller files are read whole, as one frame.
-STREAM_ABOVE_BYTES = 48_000_000
+STREAM_ABOVE_BYTES = 0
 
 
 class NeedsWholeRead(Exception):
@@ -165,6 +169,7 @@ class ArchiveReader:
         self.last_time_utc: pd.Timestamp | None = None
         self._steps: dict[int, int] = {}  # interval between observed rows [ns] → count
         self._whole_cadence: float | None = None
+        self._size = 0
 
     @property
     def source(self) -> str:
@@ -186,6 +191,7 @@ class ArchiveReader:
     def frames(self) -> Iterator[pd.DataFrame]:
         """The canonical rows of the file, in time order, one part at a time."""
         with open_regular(self.path, FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (fh, size):
+            self._size = size
             head = fh.read(4096)
             _refuse_bad_head(head, self.source)
             body = head[3:] if head.startswith(codecs.BOM_UTF8) else head
@@ -288,7 +294,12 @@ class ArchiveReader:
             n_carry = 0 if carry is None else len(carry)
             work = table if carry is None else pd.concat([carry, table], ignore_index=True)
             cadence = self.cadence_min
-            feed = canonical_frame(work, self.layout, self.source, line - n_carry, cadence_min=cadence)
+            try:
+                feed = canonical_frame(work, self.layout, self.source, line - n_carry, cadence_min=cadence)
+            except FeedError:
+                if self._size > MAX_FULL_READ_BYTES:
+                    raise  # the part's own message: the file is too big to be read whole
+                raise NeedsWholeRead(f"{self.source}: refused near line {line}; a whole read says why") from None
             frame, quality = feed.frame, feed.quality
             if quality.n_duplicates or quality.n_out_of_order or len(frame) != len(work):
                 raise NeedsWholeRead(f"{self.source}: rows out of time order or repeated near line {line}")
@@ -305,6 +316,8 @@ class ArchiveReader:
             carry_last_ns = int(t[-1])
             line += len(table)
             yield part
+        if carry is None:  # not one row: the whole read says why (no data rows, a line in progress)
+            yield from self._whole()
 
     # ------------------------------------------------------------------ bookkeeping
     def _count_steps(self, frame: pd.DataFrame, start: int) -> None:
