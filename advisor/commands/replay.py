@@ -223,7 +223,7 @@ class _Run:
         )
         self.archive = reader
         writer = featurecache.Writer(self.key) if self.use_cache else None
-        progress = _Progress(self.inputs.feed_path)
+        progress = _Progress(self.inputs.feed_path, reader)
         try:
             chunks: Iterator[pd.DataFrame] = feature_chunks(
                 self._frames(reader),
@@ -231,7 +231,7 @@ class _Run:
                 self.inputs.registry,
                 self.t_from,
                 self.t_to,
-                on_rows=progress.update,
+                on_rows=progress.rows_done,
             )
             if writer is not None:
                 chunks = _stored_as_they_pass(chunks, writer)
@@ -329,22 +329,25 @@ class _Discarded(Exception):
 
 
 class _Progress:
-    """Rows done, on stderr, for a long archive on a terminal; else nothing."""
+    """How much of a long archive is read, on stderr when it is a terminal; else nothing."""
 
-    def __init__(self, path) -> None:
+    def __init__(self, path, reader: ArchiveReader) -> None:
         self.progress = None
+        self.reader = reader
         if not sys.stderr.isatty() or Path(path).stat().st_size < PROGRESS_BYTES:
             return
         from rich.console import Console
         from rich.progress import Progress
 
         self.progress = Progress(console=Console(stderr=True), transient=True)
-        self.task = self.progress.add_task("replaying (rows)", total=None)
+        self.task = self.progress.add_task(f"replaying {Path(path).name}", total=100.0)
         self.progress.start()
 
-    def update(self, done: int) -> None:
+    def rows_done(self, rows: int) -> None:
         if self.progress is not None:
-            self.progress.update(self.task, completed=done)
+            self.progress.update(
+                self.task, completed=100.0 * self.reader.fraction_read(), description=f"replaying: {rows:,} rows"
+            )
 
     def stop(self) -> None:
         if self.progress is not None:

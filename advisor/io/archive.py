@@ -170,10 +170,17 @@ class ArchiveReader:
         self._steps: dict[int, int] = {}  # interval between observed rows [ns] → count
         self._whole_cadence: float | None = None
         self._size = 0
+        self._window: _Window | None = None  # the bytes being parsed, for progress
 
     @property
     def source(self) -> str:
         return str(self.path)
+
+    def fraction_read(self) -> float:
+        """How much of the file has been parsed so far (0..1; 1 for a file read whole)."""
+        if self._window is None:
+            return 1.0 if self.rows else 0.0
+        return min(1.0, self._window.position / max(1, self._size))
 
     def measured_cadence_min(self) -> float | None:
         """The whole file's cadence [min], as a whole read measures it (after :meth:`frames`)."""
@@ -231,7 +238,8 @@ class ArchiveReader:
 
     def _tables(self, fh, end: int, skip: int) -> Iterator[pd.DataFrame]:
         """The raw tables of the file's parts, as pandas parses them."""
-        stream = io.BufferedReader(_Window(fh, 0, end), buffer_size=_BLOCK)
+        self._window = _Window(fh, 0, end)
+        stream = io.BufferedReader(self._window, buffer_size=_BLOCK)
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", pd.errors.DtypeWarning)
@@ -254,7 +262,8 @@ class ArchiveReader:
         A key that first appears after the first part cannot be placed as a whole read places
         it (its column position and its empty cells before): :class:`NeedsWholeRead`.
         """
-        stream = io.BufferedReader(_Window(fh, 0, end), buffer_size=_BLOCK)
+        self._window = _Window(fh, 0, end)
+        stream = io.BufferedReader(self._window, buffer_size=_BLOCK)
         text = io.TextIOWrapper(stream, encoding="utf-8-sig", newline=None)
         line = 1
         for _ in range(skip):

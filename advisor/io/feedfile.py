@@ -119,6 +119,11 @@ class _Window(io.RawIOBase):
     def readable(self) -> bool:
         return True
 
+    @property
+    def position(self) -> int:
+        """The byte offset in the file of the next byte to be read."""
+        return self._pos
+
     def readinto(self, buffer) -> int:
         n = min(len(buffer), self._end - self._pos)
         if n <= 0:
