@@ -37,7 +37,6 @@ is refused when at least three such rows fall in one part (a whole read counts o
 
 from __future__ import annotations
 
-import codecs
 import io
 import itertools
 import warnings
@@ -50,21 +49,22 @@ import pandas as pd
 from advisor.errors import FeedError
 from advisor.io.feed import Feed, canonical_frame, read_feed
 from advisor.io.feedfile import (
-    _ANY_SIZE,
-    _BLOCK,
-    _EMPTY_HINT,
+    ANY_SIZE,
+    BLOCK_BYTES,
+    EMPTY_FEED_HINT,
     MAX_FULL_READ_BYTES,
-    MAX_HEADER_BYTES,
-    _complete_end,
-    _first_bad_utf8,
-    _jsonl_rows,
-    _parse_error,
-    _refuse_bad_head,
-    _Window,
+    ByteWindow,
+    complete_end,
+    first_bad_utf8,
+    is_json_lines,
+    jsonl_rows,
+    parse_error,
+    refuse_bad_head,
+    refuse_repeated_column,
 )
 from advisor.io.feedlayout import FeedLayout
 from advisor.io.feedvalues import REPORTING_RUN
-from advisor.io.fileio import open_regular, repeated_csv_column
+from advisor.io.fileio import open_regular
 
 __all__ = ["ARCHIVE_PART_ROWS", "STREAM_ABOVE_BYTES", "ArchiveReader", "NeedsWholeRead"]
 
@@ -170,7 +170,7 @@ class ArchiveReader:
         self._steps: dict[int, int] = {}  # interval between observed rows [ns] → count
         self._whole_cadence: float | None = None
         self._size = 0
-        self._window: _Window | None = None  # the bytes being parsed, for progress
+        self._window: ByteWindow | None = None  # the bytes being parsed, for progress
 
     @property
     def source(self) -> str:
@@ -192,22 +192,19 @@ class ArchiveReader:
     # ------------------------------------------------------------------ reading
     def check_head(self) -> None:
         """Refuse at once a file that is not a regular file of text (before anything reads it all)."""
-        with open_regular(self.path, FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (fh, _size):
-            _refuse_bad_head(fh.read(4096), self.source)
+        with open_regular(self.path, FeedError, ANY_SIZE, empty_hint=EMPTY_FEED_HINT) as (fh, _size):
+            refuse_bad_head(fh.read(4096), self.source)
 
     def frames(self) -> Iterator[pd.DataFrame]:
         """The canonical rows of the file, in time order, one part at a time."""
-        with open_regular(self.path, FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (fh, size):
+        with open_regular(self.path, FeedError, ANY_SIZE, empty_hint=EMPTY_FEED_HINT) as (fh, size):
             self._size = size
             head = fh.read(4096)
-            _refuse_bad_head(head, self.source)
-            body = head[3:] if head.startswith(codecs.BOM_UTF8) else head
+            refuse_bad_head(head, self.source)
             skip = self.layout.skip_lines
-            is_jsonl = self.path.suffix.lower() in (".jsonl", ".ndjson") or (
-                skip == 0 and body.lstrip().startswith(b"{")
-            )
+            is_jsonl = is_json_lines(self.path, head, skip)
             whole = size <= self.stream_above_bytes
-            end = 0 if whole else _complete_end(fh, size, size)
+            end = 0 if whole else complete_end(fh, size, size)
             if whole or end == 0:
                 yield from self._whole()
                 return
@@ -215,17 +212,7 @@ class ArchiveReader:
             if is_jsonl:
                 yield from self._parts(self._jsonl_tables(fh, end, skip), 1 + skip)
                 return
-            fh.seek(0)
-            for _ in range(skip):
-                fh.readline(MAX_HEADER_BYTES)
-            repeated = repeated_csv_column(fh.readline(MAX_HEADER_BYTES))
-            if repeated:
-                raise FeedError(
-                    f"column {repeated!r} appears twice in the header",
-                    source=self.source,
-                    line=1 + skip,
-                    hint="keep one; the advisor will not guess which is meant",
-                )
+            refuse_repeated_column(fh, skip, self.source)
             yield from self._parts(self._tables(fh, end, skip), 2 + skip)
 
     def _whole(self) -> Iterator[pd.DataFrame]:
@@ -238,8 +225,8 @@ class ArchiveReader:
 
     def _tables(self, fh, end: int, skip: int) -> Iterator[pd.DataFrame]:
         """The raw tables of the file's parts, as pandas parses them."""
-        self._window = _Window(fh, 0, end)
-        stream = io.BufferedReader(self._window, buffer_size=_BLOCK)
+        self._window = ByteWindow(fh, 0, end)
+        stream = io.BufferedReader(self._window, buffer_size=BLOCK_BYTES)
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", pd.errors.DtypeWarning)
@@ -248,13 +235,13 @@ class ArchiveReader:
                     yield from reader
         except UnicodeDecodeError:
             raise (
-                _first_bad_utf8(fh, end, self.source)
+                first_bad_utf8(fh, end, self.source)
                 or FeedError("not UTF-8 text", source=self.source, hint="save the feed as UTF-8 CSV")
             ) from None
         except pd.errors.EmptyDataError:
-            raise FeedError("feed has no header or rows", source=self.source, hint=_EMPTY_HINT) from None
+            raise FeedError("feed has no header or rows", source=self.source, hint=EMPTY_FEED_HINT) from None
         except (pd.errors.ParserError, ValueError) as exc:
-            raise _parse_error(exc, self.source) from None
+            raise parse_error(exc, self.source) from None
 
     def _jsonl_tables(self, fh, end: int, skip: int) -> Iterator[pd.DataFrame]:
         """The raw tables of a JSON Lines file's parts (one object per line, as a whole read parses them).
@@ -262,8 +249,8 @@ class ArchiveReader:
         A key that first appears after the first part cannot be placed as a whole read places
         it (its column position and its empty cells before): :class:`NeedsWholeRead`.
         """
-        self._window = _Window(fh, 0, end)
-        stream = io.BufferedReader(self._window, buffer_size=_BLOCK)
+        self._window = ByteWindow(fh, 0, end)
+        stream = io.BufferedReader(self._window, buffer_size=BLOCK_BYTES)
         text = io.TextIOWrapper(stream, encoding="utf-8-sig", newline=None)
         line = 1
         for _ in range(skip):
@@ -278,7 +265,7 @@ class ArchiveReader:
                 if not any(raw.strip() for raw in lines):
                     line += len(lines)
                     continue
-                table = _jsonl_rows(lines, self.source, line)
+                table = jsonl_rows(lines, self.source, line)
                 line += len(lines)
                 if columns is None:
                     columns = list(table.columns)
@@ -289,7 +276,7 @@ class ArchiveReader:
                 yield table
         except UnicodeDecodeError:
             raise (
-                _first_bad_utf8(fh, end, self.source)
+                first_bad_utf8(fh, end, self.source)
                 or FeedError("not UTF-8 text", source=self.source, hint="save the feed as UTF-8 JSON Lines")
             ) from None
 

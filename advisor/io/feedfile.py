@@ -34,9 +34,9 @@ from advisor.io.fileio import KINDS, FileKind, encoding_error, open_regular, rep
 MAX_FULL_READ_BYTES = KINDS["feed"].max_bytes  # whole-file reads (replay, outlook); bounded memory
 MAX_HEADER_BYTES = 65_536  # the CSV header line
 MAX_LINE_COUNT_BYTES = 512_000_000  # lines before a tail are counted up to this far
-_ANY_SIZE = FileKind("feed file", 1 << 62, "")  # tail reads: the size does not matter, the read is bounded
-_BLOCK = 1 << 20
-_EMPTY_HINT = "expected a header line and data rows"
+ANY_SIZE = FileKind("feed file", 1 << 62, "")  # tail reads: the size does not matter, the read is bounded
+BLOCK_BYTES = 1 << 20
+EMPTY_FEED_HINT = "expected a header line and data rows"
 
 
 @dataclass
@@ -85,7 +85,7 @@ def _count_newlines(fh: BinaryIO, end: int) -> int | None:
     fh.seek(0)
     count, done = 0, 0
     while done < end:
-        block = fh.read(min(_BLOCK * 16, end - done))
+        block = fh.read(min(BLOCK_BYTES * 16, end - done))
         if not block:
             break
         count += block.count(b"\n")
@@ -93,7 +93,7 @@ def _count_newlines(fh: BinaryIO, end: int) -> int | None:
     return count
 
 
-def _complete_end(fh: BinaryIO, size: int, limit: int) -> int:
+def complete_end(fh: BinaryIO, size: int, limit: int) -> int:
     """Byte offset just after the file's last newline, searching back at most ``limit`` bytes
     (0 if there is none there)."""
     pos, stop = size, max(0, size - limit)
@@ -108,7 +108,7 @@ def _complete_end(fh: BinaryIO, size: int, limit: int) -> int:
     return 0
 
 
-class _Window(io.RawIOBase):
+class ByteWindow(io.RawIOBase):
     """Bytes ``[start, end)`` of a binary file, as a readable raw stream."""
 
     def __init__(self, fh: BinaryIO, start: int, end: int) -> None:
@@ -134,7 +134,7 @@ class _Window(io.RawIOBase):
         return len(data)
 
 
-def _refuse_bad_head(head: bytes, source: str) -> None:
+def refuse_bad_head(head: bytes, source: str) -> None:
     problem = sniff_encoding_problem(head)
     if problem is not None:
         raise encoding_error(problem, FeedError, "feed", source, expected="CSV or JSON Lines text")
@@ -152,13 +152,13 @@ def _not_utf8(data: bytes, pos: int, source: str, lines_before: int) -> FeedErro
     )
 
 
-def _first_bad_utf8(fh: BinaryIO, end: int, source: str) -> FeedError | None:
+def first_bad_utf8(fh: BinaryIO, end: int, source: str) -> FeedError | None:
     """The error naming the line of the first invalid UTF-8 byte before ``end``, if any."""
     decoder = codecs.getincrementaldecoder("utf-8")()
     fh.seek(0)
     lines, done = 0, 0
     while done < end:
-        block = fh.read(min(_BLOCK, end - done))
+        block = fh.read(min(BLOCK_BYTES, end - done))
         if not block:
             break
         try:
@@ -200,7 +200,7 @@ def _constant(name: str) -> float:
     raise ValueError(f"{name} is not a finite number")
 
 
-def _jsonl_rows(lines, source: str, first_line: int) -> pd.DataFrame:
+def jsonl_rows(lines, source: str, first_line: int) -> pd.DataFrame:
     rows = []
     for number, raw in enumerate(lines, start=first_line):
         if not raw.strip():
@@ -230,11 +230,11 @@ def _jsonl_rows(lines, source: str, first_line: int) -> pd.DataFrame:
                 obj[key] = "true" if value else "false"
         rows.append(obj)
     if not rows:
-        raise FeedError("feed has no rows", source=source, hint=_EMPTY_HINT)
+        raise FeedError("feed has no rows", source=source, hint=EMPTY_FEED_HINT)
     return pd.DataFrame(rows).astype(object)
 
 
-def _parse_error(exc: Exception, source: str) -> FeedError:
+def parse_error(exc: Exception, source: str) -> FeedError:
     msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
     m = re.search(r"line (\d+)", msg)
     return FeedError(
@@ -248,13 +248,34 @@ def _parse_error(exc: Exception, source: str) -> FeedError:
 def check_whole_read(path: Path, size: int | None = None) -> None:
     """Refuse, before touching its content, a feed too big to read whole in bounded memory."""
     if size is None:
-        with open_regular(Path(path), FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (_fh, size):
+        with open_regular(Path(path), FeedError, ANY_SIZE, empty_hint=EMPTY_FEED_HINT) as (_fh, size):
             pass
     if size > MAX_FULL_READ_BYTES:
         raise FeedError(
             f"feed is {size / 1e6:.0f} MB; whole-file commands read at most {MAX_FULL_READ_BYTES / 1e6:.0f} MB",
             source=str(path),
             hint="split the archive by month and process each part",
+        )
+
+
+def is_json_lines(path: Path, head: bytes, skip_lines: int = 0) -> bool:
+    """Whether a feed file is JSON Lines: by its suffix, or by its first bytes (an object)."""
+    body = head[3:] if head.startswith(codecs.BOM_UTF8) else head
+    return path.suffix.lower() in (".jsonl", ".ndjson") or (skip_lines == 0 and body.lstrip().startswith(b"{"))
+
+
+def refuse_repeated_column(fh: BinaryIO, skip_lines: int, source: str) -> None:
+    """Refuse a CSV header (below ``skip_lines`` lines) that names a column twice."""
+    fh.seek(0)
+    for _ in range(skip_lines):
+        fh.readline(MAX_HEADER_BYTES)
+    repeated = repeated_csv_column(fh.readline(MAX_HEADER_BYTES))
+    if repeated:
+        raise FeedError(
+            f"column {repeated!r} appears twice in the header",
+            source=source,
+            line=1 + skip_lines,
+            hint="keep one; the advisor will not guess which is meant",
         )
 
 
@@ -265,17 +286,14 @@ def open_feed(path: Path | str, tail_bytes: int | None = None, skip_lines: int =
     ``skip_lines`` lines above the header (or above the first JSON line) are passed over."""
     path = Path(path)
     source = str(path)
-    with open_regular(path, FeedError, _ANY_SIZE, empty_hint=_EMPTY_HINT) as (fh, size):
+    with open_regular(path, FeedError, ANY_SIZE, empty_hint=EMPTY_FEED_HINT) as (fh, size):
         head = fh.read(4096)
-        _refuse_bad_head(head, source)
-        body_head = head[3:] if head.startswith(codecs.BOM_UTF8) else head
-        is_jsonl = path.suffix.lower() in (".jsonl", ".ndjson") or (
-            skip_lines == 0 and body_head.lstrip().startswith(b"{")
-        )
+        refuse_bad_head(head, source)
+        is_jsonl = is_json_lines(path, head, skip_lines)
         tail_part = tail_bytes if tail_bytes is not None and size > 2 * tail_bytes else None
         if tail_part is None:
             check_whole_read(path, size)
-        end = _complete_end(fh, size, size if tail_part is None else tail_part)
+        end = complete_end(fh, size, size if tail_part is None else tail_part)
         if end == 0:
             where = "in the feed"
             if tail_part is not None:
@@ -295,25 +313,15 @@ def open_feed(path: Path | str, tail_bytes: int | None = None, skip_lines: int =
             )
         except UnicodeDecodeError:
             raise (
-                _first_bad_utf8(fh, end, source)
+                first_bad_utf8(fh, end, source)
                 or FeedError("not UTF-8 text", source=source, hint="save the feed as UTF-8 CSV")
             ) from None
         except pd.errors.EmptyDataError:
-            raise FeedError("feed has no header or rows", source=source, hint=_EMPTY_HINT) from None
+            raise FeedError("feed has no header or rows", source=source, hint=EMPTY_FEED_HINT) from None
         except (pd.errors.ParserError, ValueError) as exc:
-            raise _parse_error(exc, source) from None
+            raise parse_error(exc, source) from None
         if not is_jsonl:
-            fh.seek(0)
-            for _ in range(skip_lines):
-                fh.readline(MAX_HEADER_BYTES)
-            repeated = repeated_csv_column(fh.readline(MAX_HEADER_BYTES))
-            if repeated:
-                raise FeedError(
-                    f"column {repeated!r} appears twice in the header",
-                    source=source,
-                    line=1 + skip_lines,
-                    hint="keep one; the advisor will not guess which is meant",
-                )
+            refuse_repeated_column(fh, skip_lines, source)
         raw.partial = end < size
         if len(raw.table) == 0 and raw.partial:
             raise FeedError(
@@ -326,12 +334,12 @@ def open_feed(path: Path | str, tail_bytes: int | None = None, skip_lines: int =
 
 
 def _whole(fh: BinaryIO, end: int, is_jsonl: bool, source: str, skip: int = 0) -> RawFeed:
-    stream = io.BufferedReader(_Window(fh, 0, end), buffer_size=_BLOCK)
+    stream = io.BufferedReader(ByteWindow(fh, 0, end), buffer_size=BLOCK_BYTES)
     if is_jsonl:
         text = io.TextIOWrapper(stream, encoding="utf-8-sig", newline=None)
         for _ in range(skip):
             text.readline()
-        return RawFeed(_jsonl_rows(text, source, 1 + skip), 1 + skip, False, fh, 0, True, skip)
+        return RawFeed(jsonl_rows(text, source, 1 + skip), 1 + skip, False, fh, 0, True, skip)
     return RawFeed(_read_csv(stream, skip), 2 + skip, False, fh, 0, False, skip)
 
 
@@ -366,12 +374,12 @@ def _tail(fh: BinaryIO, end: int, tail_bytes: int, is_jsonl: bool, source: str, 
         except UnicodeDecodeError as exc:
             raise _not_utf8(data, exc.start, source, 0) from None
         if is_jsonl:
-            return RawFeed(_jsonl_rows(text.splitlines(), source, 1), 1, False, fh, cut, True, skip)
+            return RawFeed(jsonl_rows(text.splitlines(), source, 1), 1, False, fh, cut, True, skip)
         try:
             return RawFeed(_read_csv(io.StringIO(text)), 2, False, fh, cut, False, skip)
         except pd.errors.EmptyDataError:
-            raise FeedError("feed has no header or rows", source=source, hint=_EMPTY_HINT) from None
+            raise FeedError("feed has no header or rows", source=source, hint=EMPTY_FEED_HINT) from None
         except (pd.errors.ParserError, ValueError) as exc:
-            raise _parse_error(exc, source) from None
+            raise parse_error(exc, source) from None
     except FeedError as exc:
         raise _relocate(exc, fh, cut, is_jsonl, skip) from None
