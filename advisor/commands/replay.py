@@ -21,8 +21,9 @@ from advisor.commands import session
 from advisor.errors import UsageError
 from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import Attempts, Replayed, attempts_from_history
-from advisor.evaluation.replay_stream import ReplayTotals, decide_chunks, feature_chunks
+from advisor.evaluation.replay_stream import decide_chunks, feature_chunks
 from advisor.evaluation.replay_table import step_table
+from advisor.evaluation.replay_totals import ReplayTotals
 from advisor.features import FEATURES_VERSION, STORED_ROW_FEATURES, complete_row_features, feature_source_paths
 from advisor.io import featurecache
 from advisor.io.archive import ArchiveReader, NeedsWholeRead
