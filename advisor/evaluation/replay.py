@@ -1,6 +1,11 @@
 """Replay: what the advice would have been over an archive, and how it scored.
 
-Pure summaries over the vectorised decisions of every archive row:
+The definitions, over the vectorised decisions of every archive row held at once.  ``advisor
+replay`` never holds them at once: it streams the archive (:mod:`advisor.evaluation.replay_stream`)
+and sums the same quantities slice by slice (:mod:`advisor.evaluation.replay_totals`), through
+the mask and summary functions below (``weather_masks``/``weather_summary``,
+``rule_set_change_masks``/``rule_set_changes``, ``score_attempts``); the whole-array forms stay
+as the reference the streamed replay is tested against, and for analyses in a notebook.
 
 * :func:`step_hours` — how many hours each row stands for (gaps count for nothing);
 * :func:`hours_by` — hours per verdict, per month or per local hour of day;
