@@ -72,6 +72,7 @@ def test_every_listed_module_is_hashed_and_changes_the_key(tmp_path):
 # Invented values throughout: these tests check that bits come back, not any physics.
 import json  # noqa: E402
 import multiprocessing  # noqa: E402
+import os  # noqa: E402
 import shutil  # noqa: E402
 import subprocess  # noqa: E402
 import sys  # noqa: E402
@@ -375,3 +376,35 @@ def test_an_entry_is_smaller_than_the_archive(cache, tmp_path):
     size = sum(p.stat().st_size for p in (cache / KEY).iterdir())
     assert size < csv.stat().st_size
     shutil.rmtree(cache / KEY)
+
+
+def test_an_archive_is_hashed_once_and_again_when_it_changes(cache, tmp_path, monkeypatch):
+    """The digest of a large archive is remembered by file identity; an edit (same size, new
+    modification time) gives another key."""
+    archive = tmp_path / "archive.csv"
+    archive.write_text("time,wind_mean_ms\n2026-01-01T00:00:00Z,1.0\n", encoding="utf-8")
+    old = time.time() - 60  # written a minute ago: settled
+    os.utime(archive, (old, old))
+    first = featurecache.key_for(archive, None, None, {})
+    opened = []
+    real_open = Path.open
+
+    def counting_open(self, *args, **kwargs):
+        opened.append(self)
+        return real_open(self, *args, **kwargs)
+
+    monkeypatch.setattr(Path, "open", counting_open)
+    assert featurecache.key_for(archive, None, None, {}) == first
+    assert archive not in opened  # remembered, not read again
+    archive.write_text("time,wind_mean_ms\n2026-01-01T00:00:00Z,2.0\n", encoding="utf-8")
+    os.utime(archive, (old + 1, old + 1))
+    assert featurecache.key_for(archive, None, None, {}) != first
+    assert archive in opened
+
+
+def test_a_file_written_just_now_is_not_remembered(cache, tmp_path):
+    archive = tmp_path / "archive.csv"
+    archive.write_text("time,wind_mean_ms\n", encoding="utf-8")
+    featurecache.key_for(archive, None, None, {})
+    memo = cache / "hashes.json"
+    assert not memo.exists() or str(archive.resolve()) not in json.loads(memo.read_text(encoding="utf-8"))

@@ -48,6 +48,12 @@ NS_PER_HOUR = 3_600_000_000_000
 _NV = len(VERDICTS)
 
 
+def verdict_codes(verdict: np.ndarray) -> np.ndarray:
+    """The position of each verdict in :data:`advisor.vocabulary.VERDICTS` (-1 for anything else),
+    by hashing (an object array compared once per verdict would be slower)."""
+    return pd.Categorical(np.asarray(verdict, dtype=object), categories=list(VERDICTS)).codes.astype(np.int64)
+
+
 class _Sums:
     """Nanoseconds and rows per key; the final row's keys wait for the median step."""
 
@@ -130,9 +136,10 @@ class ReplayTotals:
         weights = np.where(step / 6e10 <= gap_limit_min, step, 0)
         if final:
             weights[-1] = 0  # the last row's hours come from the median step
-        masks = self._masks(decisions)
+        codes = [verdict_codes(d.verdict) for d in decisions]
+        masks = self._masks(decisions, codes)
         self.sums.add(masks, weights, final)
-        self._add_table(base.verdict, times_ns, weights, final)
+        self._add_table(codes[0], times_ns, weights, final)
         if self.attempt_ns is not None and len(self.attempt_ns):
             self._keep_attempt_rows(decisions, times_ns, next_ns)
         if self.first_ns is None:
@@ -140,13 +147,13 @@ class ReplayTotals:
         self.last_ns = int(times_ns[-1])
         self.rows += n
 
-    def _masks(self, decisions: Sequence[Decisions]) -> dict[tuple, np.ndarray]:
+    def _masks(self, decisions: Sequence[Decisions], codes: list[np.ndarray]) -> dict[tuple, np.ndarray]:
         base = decisions[0]
         features = base.features
         masks: dict[tuple, np.ndarray] = {}
-        for k, d in enumerate(decisions):
-            for v in VERDICTS:
-                masks[("verdict", k, v)] = d.verdict == v
+        for k, code in enumerate(codes):
+            for i, v in enumerate(VERDICTS):
+                masks[("verdict", k, v)] = code == i
         masks[("all",)] = np.ones(len(base.verdict), dtype=bool)
         masks[("no_reference",)] = ~features["has_reference"].to_numpy(dtype=bool)
         if self.attempt_ns is not None and len(self.attempt_ns):
@@ -159,14 +166,13 @@ class ReplayTotals:
             masks.update(rule_set_change_masks(base.verdict, other.verdict, base.rule_eval, other.rule_eval))
         return masks
 
-    def _add_table(self, verdict: np.ndarray, times_ns: np.ndarray, weights: np.ndarray, final: bool) -> None:
+    def _add_table(self, code: np.ndarray, times_ns: np.ndarray, weights: np.ndarray, final: bool) -> None:
         local = pd.DatetimeIndex(times_ns.astype("datetime64[ns]")).tz_localize("UTC").tz_convert(self.zone)
-        month = local.year.to_numpy() * 100 + local.month.to_numpy()
-        hour = local.hour.to_numpy()
-        code = np.full(len(verdict), -1, dtype=np.int64)
-        for i, v in enumerate(VERDICTS):
-            code[verdict == v] = i
-        for m in np.unique(month).tolist():
+        local_ns = local.tz_localize(None).asi8
+        months = local_ns.view("datetime64[ns]").astype("datetime64[M]").astype(np.int64)  # since 1970-01
+        month = (months // 12 + 1970) * 100 + months % 12 + 1
+        hour = (local_ns // NS_PER_HOUR) % 24
+        for m in (np.unique(month) if month[0] != month[-1] else month[:1]).tolist():
             rows = month == m
             table = self.months.setdefault(m, np.zeros((24, _NV), dtype=np.int64))
             present = self.month_rows.setdefault(m, np.zeros(24, dtype=np.int64))

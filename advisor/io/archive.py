@@ -69,7 +69,7 @@ from advisor.io.fileio import open_regular
 __all__ = ["ARCHIVE_PART_ROWS", "STREAM_ABOVE_BYTES", "ArchiveReader", "NeedsWholeRead"]
 
 #: File rows parsed at a time (about 60 bytes each in a logger's CSV, a few hundred once canonical).
-ARCHIVE_PART_ROWS = 250_000
+ARCHIVE_PART_ROWS = 100_000
 #: Smaller files are read whole, as one frame.
 STREAM_ABOVE_BYTES = 0
 

@@ -51,6 +51,12 @@ FORMAT = "advisor-feature-cache"
 VERSION = 2
 #: A writer's temporary directory older than this is one whose process died [s].
 STALE_TMP_S = 86_400.0
+#: A file modified this close to being hashed is hashed again next time [s] (its content may
+#: change within the resolution of its modification time).
+SETTLE_S = 2.0
+#: Remembered file digests kept.
+MAX_HASHES = 64
+_HASHES = "hashes.json"
 _KEY = re.compile(r"[0-9A-Za-z_-]{1,128}")
 
 
@@ -60,13 +66,43 @@ def cache_dir() -> Path:
     return cache_root() / "replay"
 
 
-def _hash_file(digest, path: Path | None) -> None:
-    if path is None or not Path(path).exists():
-        digest.update(b"<none>")
-        return
-    with Path(path).open("rb") as fh:
+def _file_digest(path: Path, memo: dict) -> str:
+    """The digest of a file's bytes, remembered by its identity (see the module's text)."""
+    st = path.stat()
+    identity = [st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns]
+    name = str(path.resolve())
+    known = memo.get(name)
+    if isinstance(known, list) and len(known) == 2 and known[0] == identity and isinstance(known[1], str):
+        return known[1]
+    digest = hashlib.blake2b(digest_size=20)
+    with path.open("rb") as fh:
         for block in iter(lambda: fh.read(1 << 22), b""):
             digest.update(block)
+    if time.time() - st.st_mtime_ns / 1e9 > SETTLE_S:  # a file written just now may change within its mtime
+        memo[name] = [identity, digest.hexdigest()]
+    return digest.hexdigest()
+
+
+def _read_memo() -> dict:
+    try:
+        memo = json.loads((cache_dir() / _HASHES).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return memo if isinstance(memo, dict) else {}
+
+
+def _write_memo(memo: dict) -> None:
+    """Keep the newest :data:`MAX_HASHES` remembered digests (atomically; failures are skipped)."""
+    folder = cache_dir()
+    tmp = folder / f".{_HASHES}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        kept = dict(list(memo.items())[-MAX_HASHES:])
+        tmp.write_text(json.dumps(kept), encoding="utf-8")
+        os.replace(tmp, folder / _HASHES)
+    except OSError:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
 
 
 def key_for(
@@ -77,15 +113,28 @@ def key_for(
     code_paths=(),
     features_version: int = 0,
 ) -> str:
-    """The cache key of one replay's features: inputs, settings, feature code and its version."""
+    """The cache key of one replay's features: inputs, settings, feature code and its version.
+
+    Each file counts by the digest of its bytes; the digests of the inputs are remembered by file
+    identity (device, inode, size, modification and change times) in ``hashes.json`` beside the
+    entries, so a long archive is hashed once, not on every replay.  A file changed in any of
+    those, or modified within :data:`SETTLE_S` of being hashed, is hashed again.
+    """
+    memo = _read_memo()
+    before = dict(memo)
     digest = hashlib.blake2b(digest_size=20)
     for path in (feed_path, site_path, registry_path):
-        _hash_file(digest, path)
+        if path is None or not Path(path).exists():
+            digest.update(b"<none>")
+        else:
+            digest.update(_file_digest(Path(path), memo).encode())
         digest.update(b"\0")
     for path in code_paths:
-        _hash_file(digest, Path(path))
+        digest.update(Path(path).read_bytes())
         digest.update(b"\0")
     digest.update(json.dumps({"features_version": features_version, **settings}, sort_keys=True, default=str).encode())
+    if memo != before:
+        _write_memo(memo)
     return digest.hexdigest()
 
 
