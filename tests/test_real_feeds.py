@@ -329,3 +329,36 @@ def test_the_second_file_fits_its_own_zone_and_a_wrong_one_is_refused(tmp_path):
     assert status == 0 and "time zone: ok" in out, err
     status, _, err = run("replay", "--site", wrong, "--feed", TMY3_OTHER, "--json", "--no-cache")
     assert status == 2 and "UTC-05:00, not UTC-08:00" in err
+
+
+def test_the_real_file_streamed_in_small_parts_gives_the_whole_reads_replay(tmp_path, monkeypatch):
+    """The same year in time order (a typical-year file takes each month from another year), read
+    in parts of 997 rows: two date and time columns, 24:00, a metadata line, -9900 codes and
+    precipitation over per-row hours all cross part edges; the replay equals the whole read's."""
+    import advisor.evaluation.replay_stream as replay_stream
+    import advisor.io.archive as archive
+
+    lines = TMY3.read_text(encoding="utf-8").splitlines(keepends=True)
+    d = pd.read_csv(TMY3, skiprows=1)
+    end_of_day = d["Time (HH:MM)"] == "24:00"
+    local = pd.to_datetime(
+        d["Date (MM/DD/YYYY)"] + " " + d["Time (HH:MM)"].where(~end_of_day, "00:00"), format="%m/%d/%Y %H:%M"
+    ) + pd.to_timedelta(end_of_day.astype(int), unit="D")
+    order = np.argsort(local.to_numpy(), kind="stable")
+    sorted_file = tmp_path / "703165TY_in_time_order.csv"
+    sorted_file.write_text("".join(lines[:2]) + "".join(lines[2 + i] for i in order), encoding="utf-8")
+    argv = ["replay", "--site", SITE, "--feed", sorted_file, "--json", "--no-cache"]
+    monkeypatch.setattr(archive, "STREAM_ABOVE_BYTES", 10**12)
+    status, whole, err = run(*argv)
+    assert status == 0, err
+    monkeypatch.setattr(archive, "STREAM_ABOVE_BYTES", 0)
+    monkeypatch.setattr(archive, "ARCHIVE_PART_ROWS", 997)
+    monkeypatch.setattr(replay_stream, "DECIDE_CELLS", 20_000)
+
+    def no_whole_read(self):
+        raise AssertionError("the file was read whole, not in parts")
+
+    monkeypatch.setattr(archive.ArchiveReader, "_whole", no_whole_read)
+    status, streamed, err = run(*argv)
+    assert status == 0, err
+    assert json.loads(streamed) == json.loads(whole)
