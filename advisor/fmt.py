@@ -156,6 +156,16 @@ def hours_text(hours, missing: str = "n/a") -> str:
     return duration_text(float(hours) * 60.0, missing) if _finite(hours) else missing
 
 
+def hours_total(hours, missing: str = "n/a") -> str:
+    """A total of hours, as a replay sums them: ``4211 h``, ``7.5 h``, ``0.2 h``, ``<0.1 h``."""
+    if not _finite(hours):
+        return missing
+    value = float(hours)
+    if 0 < value < 0.05:
+        return "<0.1 h"
+    return f"{value:.0f} h" if value >= 10 else no_minus_zero(f"{value:.1f} h")
+
+
 def plural(count, word: str, many: str | None = None) -> str:
     """``1 attempt``, ``2 attempts`` (``many`` for irregular plurals)."""
     n = int(count)

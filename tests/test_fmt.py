@@ -106,3 +106,17 @@ def test_wrapping_never_parts_a_number_from_its_unit():
         assert all(not line.rstrip().endswith(("199", "86", "218")) for line in lines), (width, lines)
         assert " ".join(lines).split() == text.split()
         assert all("\u00a0" not in line for line in lines)
+
+
+def test_hours_total_keeps_small_totals_readable():
+    from advisor.fmt import hours_total
+
+    assert [hours_total(h) for h in (4211.4, 10.0, 7.46, 0.17, 0.01, 0.0, float("nan"))] == [
+        "4211 h",
+        "10 h",
+        "7.5 h",
+        "0.2 h",
+        "<0.1 h",
+        "0.0 h",
+        "n/a",
+    ]

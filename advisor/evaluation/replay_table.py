@@ -17,6 +17,7 @@ import pandas as pd
 
 from advisor.catalogue import CATALOGUE, KEY_FEATURES
 from advisor.evaluation.replay import Attempts, Replayed
+from advisor.fmt import hours_total, percent
 from advisor.io.references import Registry
 from advisor.vocabulary import METHODS
 
@@ -126,7 +127,7 @@ def coverage_warnings_from(
     period = f"{first_utc:%Y-%m-%d} .. {last_utc:%Y-%m-%d}"
     uncovered = no_reference_hours
     if uncovered > GAP_FRACTION * total:
-        share = f"{uncovered:.0f} h of {total:.0f} h ({uncovered / total:.0%})"
+        share = f"{hours_total(uncovered)} of {hours_total(total)} ({percent(uncovered / total)})"
         if len(registry) == 0:
             where = f"the reference registry {registry.source} holds no scan"
         else:
@@ -147,7 +148,7 @@ def coverage_warnings_from(
             if outside > GAP_FRACTION * total:
                 warnings.append(
                     f"the attempts in {attempts.source} run {first:%Y-%m-%d} .. {last:%Y-%m-%d}: "
-                    f"{outside:.0f} h of the replayed period ({period}) have no attempt to score against; "
+                    f"{hours_total(outside)} of the replayed period ({period}) have no attempt to score against; "
                     f"the scores speak for {attempts_covered} attempts only"
                 )
     return warnings
