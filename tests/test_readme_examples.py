@@ -121,3 +121,27 @@ def test_readme_shows_the_real_check_screen(monkeypatch, capsys):
     pasted = next(b for b in re.findall(r"```\n(.*?)```", text, flags=re.S) if b.startswith("advisor · "))
     assert main(["check"]) == 0
     assert capsys.readouterr().out == pasted
+
+
+def test_readme_shows_the_real_replay_screen(monkeypatch, capsys):
+    """The replay output pasted in README.md (80 columns) is what the demo archive gives today."""
+    monkeypatch.chdir(ROOT)
+    monkeypatch.setenv("COLUMNS", "80")
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    start = text.index("```\nReplay of ") + len("```\n")
+    pasted = text[start : text.index("```", start)]
+    argv = [
+        "replay",
+        "--site",
+        "example_weather/larch_basin.yaml",
+        "--feed",
+        "example_weather/larch_basin_archive_sample.csv",
+        "--references",
+        "example_weather/larch_basin_archive_references.csv",
+        "--from",
+        "2026-02-01T00:00:00Z",
+        "--to",
+        "2026-03-01T00:00:00Z",
+    ]
+    assert main(argv) == 0
+    assert capsys.readouterr().out == pasted
