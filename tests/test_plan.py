@@ -12,6 +12,7 @@ value comes from it.  Checks against definitions:
 
 from __future__ import annotations
 
+import io
 import itertools
 import json
 from dataclasses import replace
@@ -385,3 +386,25 @@ def test_demo_plans_at_several_times_of_day_beat_every_simple_alternative(start)
     for c in plan.corrections:
         assert steps.loc[c.start_utc, f"{c.method}_can_start"]
         assert c.end_utc <= plan.end_utc
+
+
+@pytest.mark.parametrize("width", [80, 100])
+def test_the_plan_text_fits_its_width_with_the_demo_banner(night_plan, demo_site, width):
+    """An operator's 80-column terminal: no line of the plan (banner, table, legend) runs over."""
+    from dataclasses import replace as with_fields
+
+    ctx = with_fields(_ctx(demo_site), is_demo=True)
+    text = render_plain_plan(night_plan, ctx, width=width)
+    assert "DEMO DATA" in text and "time ×" in text
+    assert all(len(line) <= width for line in text.splitlines()), text
+
+
+def test_plain_text_width_follows_columns_and_else_the_readers_terminal(monkeypatch):
+    from advisor.commands.options import text_width
+
+    monkeypatch.setenv("COLUMNS", "72")
+    assert text_width() == 72
+    monkeypatch.delenv("COLUMNS")
+    monkeypatch.setattr("sys.stdout", io.StringIO())  # piped, and no terminal behind stderr either
+    monkeypatch.setattr("sys.stderr", io.StringIO())
+    assert text_width() == 80

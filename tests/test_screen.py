@@ -207,3 +207,18 @@ def test_tick_says_demo_data_for_the_demo_site_named_explicitly(capsys, tmp_path
     doc = json.loads((tmp_path / "state" / "advisory.json").read_text())
     assert doc["demo_data"] is True and "DEMO DATA" in capsys.readouterr().out
     assert "DEMO DATA" in (tmp_path / "state" / "advisory.html").read_text()
+
+
+def test_plain_text_fits_80_columns_with_a_feed_and_a_forecast(calls):
+    """Two sources share the feed line: each is shortened to its share, the demo's own files too."""
+    from dataclasses import replace
+
+    from advisor.io.bundled import demo_dir
+
+    demo = str(demo_dir() / "larch_basin_mast.csv") + " + " + str(demo_dir() / "larch_basin_forecast.csv")
+    long = CTX.feed_source + " + " + CTX.feed_source.replace("mast_feed", "forecast_feed")
+    for source in (demo, long):
+        text = render_plain(calls["scan"], replace(CTX, feed_source=source))
+        feed_line = next(line for line in text.splitlines() if line.startswith("feed: "))
+        assert all(len(line) <= 80 for line in text.splitlines()), text
+        assert feed_line.count(" + ") == 1 and "forecast" in feed_line.split(" + ")[1]

@@ -316,3 +316,17 @@ def svg_target(text: str | None, example: str) -> Path | None:
     if not path.parent.is_dir():
         raise UsageError(f"folder {path.parent} does not exist", field="--svg", hint="create it or choose another path")
     return path
+
+
+def text_width(default: int = 80) -> int:
+    """Columns for plain text: ``$COLUMNS`` when set, else the terminal of stdout, else that of
+    stderr (output piped into ``head`` or ``less`` still fits the terminal it is read on), else
+    ``default``."""
+    with contextlib.suppress(ValueError):
+        columns = int(os.environ.get("COLUMNS", ""))
+        if columns > 0:
+            return columns
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(AttributeError, ValueError, OSError):
+            return os.get_terminal_size(stream.fileno()).columns
+    return default

@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import shutil
 import sys
 from pathlib import Path
 
@@ -144,7 +143,7 @@ def cmd_outlook(args: argparse.Namespace) -> int:
         console = Console()
         console.print(outlook_renderable(outlook, ctx, console.width))
     else:
-        width = shutil.get_terminal_size((100, 24)).columns
+        width = options.text_width()
         sys.stdout.write(render_plain_outlook(outlook, ctx, width))
     if svg is not None and svg_text is not None:
         atomic_write_text(svg, svg_text)

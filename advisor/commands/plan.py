@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import shutil
 import sys
 from pathlib import Path
 
@@ -93,7 +92,7 @@ def cmd_plan(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(plan_json(plan, ctx), indent=2, allow_nan=False))
     else:
-        width = shutil.get_terminal_size((100, 24)).columns
+        width = options.text_width()
         sys.stdout.write(render_plain_plan(plan, ctx, width))
     if svg is not None and svg_text is not None:
         atomic_write_text(svg, svg_text)

@@ -26,11 +26,13 @@ PANEL_FRAME = 4
 
 
 def short_path(path: str, max_len: int) -> str:
-    """``path`` within ``max_len`` characters: ``bundled demo: larch_basin_mast.csv`` for the demo's
-    own files, relative to the working folder when below it, whole when it fits, else ``…/`` and
-    as many trailing folders as fit (``…/weather/mast_feed.csv``), else the file name's end."""
+    """``path`` within ``max_len`` characters: ``bundled demo: larch_basin_mast.csv`` (or ``demo:
+    larch_basin_mast.csv`` where that is too long) for the demo's own files, relative to the
+    working folder when below it, whole when it fits, else ``…/`` and as many trailing folders as
+    fit (``…/weather/mast_feed.csv``), else the file name's end."""
     with contextlib.suppress(ValueError, OSError):
-        return f"bundled demo: {Path(path).resolve().relative_to(demo_dir().resolve())}"
+        name = str(Path(path).resolve().relative_to(demo_dir().resolve()))
+        return next((label for label in (f"bundled demo: {name}", f"demo: {name}") if len(label) <= max_len), name)
     with contextlib.suppress(ValueError):
         path = str(PurePath(path).relative_to(os.getcwd()))
     if len(path) <= max_len:

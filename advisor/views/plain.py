@@ -26,6 +26,8 @@ def render_plain(
         call, ctx, width, max_lines=COMPACT_LINES, details=details, status=status, hint=hint, plain=True
     )
     title: Line = [(f"advisor · {ctx.site_name}", None)]
-    sources = " + ".join(short_path(s, width - 8) for s in ctx.feed_source.split(" + "))
+    parts = ctx.feed_source.split(" + ")
+    room = max(12, (width - len("feed: ") - 3 * (len(parts) - 1)) // len(parts))
+    sources = " + ".join(short_path(s, room) for s in parts)
     feed: list[Line] = [] if details else [[(f"feed: {sources}", None)]]
     return plain_text([title, *lines[:-1], *feed, lines[-1]])

@@ -18,7 +18,7 @@ from advisor.views.context import CAUTIONS, Context
 from advisor.views.panel import short_path
 from advisor.vocabulary import DEMO_BANNER
 
-ALTERNATIVE_HEADERS = ("alternative", "corrections", "session η", "time lost", "integration time")
+ALTERNATIVE_HEADERS = ("alternative", "corrections", "session η", "time lost", "time ×")
 #: One letter per step in the timeline: a correction by each method, observing, no usable weather.
 STEP_LETTER = {"scan": "L", "astronomical": "H", "observe": "o", "unknown": "?"}
 VERDICT_WORDS = {
@@ -119,7 +119,7 @@ def render_plain_plan(plan: Plan, ctx: Context, width: int = 100) -> str:
     lines.extend(_wrap(session_line(plan), width))
     lines.extend(_wrap(f"{VERDICT_WORDS[plan.verdict]}: {plan.headline}", width))
     if ctx.is_demo:
-        lines.append(DEMO_BANNER)
+        lines.extend(_wrap(DEMO_BANNER, width))
     lines.append("")
     tz = pd.Timestamp(plan.start_utc).tz_convert(_zone(plan)).strftime("%Z")
     if plan.corrections:
@@ -127,7 +127,13 @@ def render_plain_plan(plan: Plan, ctx: Context, width: int = 100) -> str:
         for line in schedule_lines(plan):
             lines.extend(_wrap("  " + line, width, "      "))
         lines.append("")
-    lines.append("Alternatives (expected over the session; integration time to the plan's sensitivity):")
+    lines.extend(
+        _wrap(
+            "Alternatives (expected over the session; time ×: the integration time each needs to reach "
+            "the plan's sensitivity):",
+            width,
+        )
+    )
     table = [ALTERNATIVE_HEADERS, *alternative_rows(plan)]
     widths = [max(len(r[k]) for r in table) for k in range(len(ALTERNATIVE_HEADERS))]
     for r in table:
@@ -140,7 +146,13 @@ def render_plain_plan(plan: Plan, ctx: Context, width: int = 100) -> str:
     lines.append(f"{tz:<5} {marks}")
     lines.append(f"      {letters}")
     lines.append(f"η     {efficiency_line(plan)}")
-    lines.append("      L laser scan  H holography  o observing  ? no usable weather;  η row: tenths (6 = 0.6x)")
+    lines.extend(
+        _wrap(
+            "      L laser scan  H holography  o observing  ? no usable weather;  η row: tenths (6 = 0.6)",
+            width,
+            "      ",
+        )
+    )
     lines.append("")
     for note in (*ctx.notes, *plan.notes):
         lines.extend(_wrap(note, width))
