@@ -175,11 +175,12 @@ def test_every_dtype_and_edge_value_comes_back_bit_for_bit_chunk_by_chunk(cache)
     assert encodings["pointer"][0] == "coded" and encodings["pointer"][1] <= 2 and encodings["time"][0] == "coded"
 
 
-def test_whole_frames_store_and_load(cache):
+def test_one_chunk_round_trip_and_an_unknown_key(cache):
     frame = _edge_chunk(0, 500, ["x", ""])
-    featurecache.store(KEY, frame)
-    _same_bits(featurecache.load(KEY), frame)
-    assert featurecache.load("f" * 40) is None
+    _write(KEY, [frame])
+    (got,) = featurecache.open_entry(KEY).chunks()
+    _same_bits(got, frame)
+    assert featurecache.open_entry("f" * 40) is None
 
 
 def test_codes_widen_and_give_way_to_plain_values_between_chunks(cache, monkeypatch):
@@ -216,7 +217,7 @@ def test_an_unwritable_cache_is_skipped_quietly(tmp_path, monkeypatch):
     blocker = tmp_path / "a-file"
     blocker.write_text("")
     monkeypatch.setenv("ADVISOR_CACHE_DIR", str(blocker / "cache"))
-    featurecache.store(KEY, pd.DataFrame({"a": [1.0]}))
+    _write(KEY, [pd.DataFrame({"a": [1.0]})])
     assert featurecache.open_entry(KEY) is None
 
 

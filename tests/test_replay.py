@@ -260,7 +260,8 @@ def test_replay_warns_when_the_history_does_not_cover_the_period(capsys, sample_
 def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules, tmp_path):
     """--compare-rules computes the features once; the verdicts must equal separate replays."""
     from advisor.commands.session import load_ruleset
-    from advisor.evaluation.replay import replay_rule_sets, replay_verdicts
+    from advisor.evaluation.evaluate import Scenario
+    from advisor.features import row_features_chunked
     from advisor.io.feed import read_feed
     from advisor.io.references import read_registry
     from advisor.io.site import load_site
@@ -273,9 +274,10 @@ def test_one_pass_over_two_rule_sets_equals_two_replays(demo_site, default_rules
     frame = feed.frame.iloc[:3000]
     times = pd.DatetimeIndex(frame["time"])
     registry = read_registry(DEMO / "larch_basin_archive_references.csv")
-    both = replay_rule_sets(frame, times, site, registry, [default_rules, other], 86.0, chunk_rows=1000)
+    scenario = Scenario(site, registry, default_rules, 86.0)
+    both = scenario.decide(row_features_chunked(frame, times, site, registry, chunk_rows=1000), [default_rules, other])
     for rules, got in zip((default_rules, other), both):
-        alone = replay_verdicts(frame, times, site, registry, rules, 86.0, chunk_rows=700)
+        (alone,) = scenario.decide(row_features_chunked(frame, times, site, registry, chunk_rows=700), [rules])
         assert np.array_equal(alone.verdict, got.verdict)
         assert all(np.array_equal(alone.rule_eval.fired[k], got.rule_eval.fired[k]) for k in alone.rule_eval.fired)
 

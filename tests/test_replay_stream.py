@@ -23,12 +23,12 @@ from advisor.commands import session
 from advisor.commands.main import build_parser, main
 from advisor.evaluation.evaluate import Scenario
 from advisor.evaluation.replay import (
+    Replayed,
     attempts_from_history,
     compare_rule_sets,
     dominant_by_month_hour,
     hours_by,
     month_keys,
-    replay_from_features,
     score_attempts,
     step_hours,
     weather_hours,
@@ -104,7 +104,8 @@ def _whole_replay(argv: list[str]) -> tuple[dict, pd.DataFrame]:
     if t_to is not None:
         keep &= times <= t_to.resolve(zone)
     features = row_features_chunked(frame, times[keep], inputs.site, inputs.registry, chunk_rows=FEATURE_CHUNK)
-    base, *rest = replay_from_features(features, scenario, rule_sets)
+    times_all = pd.DatetimeIndex(features["time"])
+    base, *rest = [Replayed(times_all, d.verdict, d.rule_eval, d) for d in scenario.decide(features, rule_sets)]
     other = rest[0] if rest else None
     times = base.times_utc
     cadence = features["feed_cadence_min"].to_numpy(dtype=float)

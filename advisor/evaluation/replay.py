@@ -27,8 +27,6 @@ import numpy as np
 import pandas as pd
 
 from advisor.decision import Decisions
-from advisor.evaluation.evaluate import Scenario
-from advisor.features import row_features_chunked
 from advisor.io.history import History
 from advisor.rules.ruleset import RuleEvaluation
 from advisor.vocabulary import METHODS, VERDICTS
@@ -260,54 +258,6 @@ class Replayed:
         if self.decisions is None:
             return None
         return {m: c.feasible & (self.verdict != "undetermined") for m, c in self.decisions.candidates.items()}
-
-
-def replay_verdicts(
-    frame: pd.DataFrame,
-    times_utc: pd.DatetimeIndex,
-    site,
-    registry,
-    rules,
-    freq_ghz: float,
-    odds=None,
-    chunk_rows: int = 100_000,
-    on_chunk=None,
-) -> Replayed:
-    """Verdicts and rule firings at ``times_utc`` under one rule set (see :func:`replay_rule_sets`)."""
-    return replay_rule_sets(frame, times_utc, site, registry, [rules], freq_ghz, odds, chunk_rows, on_chunk)[0]
-
-
-def replay_rule_sets(
-    frame: pd.DataFrame,
-    times_utc: pd.DatetimeIndex,
-    site,
-    registry,
-    rule_sets,
-    freq_ghz: float,
-    odds=None,
-    chunk_rows: int = 100_000,
-    on_chunk=None,
-) -> list[Replayed]:
-    """Verdicts under every rule set of ``rule_sets``; the features are computed once for all."""
-    scenario = Scenario(site, registry, rule_sets[0], freq_ghz, odds)
-    rows = replay_features(frame, times_utc, scenario, chunk_rows, on_chunk)
-    return replay_from_features(rows, scenario, rule_sets)
-
-
-def replay_features(
-    frame: pd.DataFrame, times_utc: pd.DatetimeIndex, scenario: Scenario, chunk_rows: int = 100_000, on_chunk=None
-) -> pd.DataFrame:
-    """Row features at ``times_utc`` in chunks of bounded memory (:func:`advisor.features.row_features_chunked`).
-
-    The result does not depend on the target frequency (a cache of it serves every frequency).
-    """
-    return row_features_chunked(frame, times_utc, scenario.site, scenario.registry, chunk_rows, on_chunk)
-
-
-def replay_from_features(rows: pd.DataFrame, scenario: Scenario, rule_sets=None) -> list[Replayed]:
-    """Verdicts and rule firings under each rule set (default: the scenario's), from row features."""
-    times = pd.DatetimeIndex(rows["time"])
-    return [Replayed(times, d.verdict, d.rule_eval, d) for d in scenario.decide(rows, rule_sets)]
 
 
 #: Optional inputs counted when not seen (canonical feature names).

@@ -320,25 +320,4 @@ def open_entry(key: str) -> Entry | None:
     return entry
 
 
-# --------------------------------------------------------------------------- whole frames
-def store(key: str, frame: pd.DataFrame) -> None:
-    """Keep ``frame`` under ``key`` as one chunk (atomically); failures to write are skipped."""
-    with Writer(key) as writer:
-        writer.add(frame)
-
-
-def load(key: str) -> pd.DataFrame | None:
-    """The frame stored under ``key`` (all chunks, one index), or None (missing or damaged)."""
-    entry = open_entry(key)
-    if entry is None:
-        return None
-    try:
-        parts = list(entry.chunks())
-    except DamagedEntry:
-        return None
-    if len(parts) == 1:
-        return parts[0]
-    return pd.concat(parts, ignore_index=True) if parts else None
-
-
-__all__ = ["MAX_ENTRIES", "DamagedEntry", "Entry", "Writer", "cache_dir", "key_for", "load", "open_entry", "store"]
+__all__ = ["MAX_ENTRIES", "DamagedEntry", "Entry", "Writer", "cache_dir", "key_for", "open_entry"]
