@@ -67,12 +67,16 @@ def step_hours(times_utc: pd.DatetimeIndex, max_gap_min: float) -> np.ndarray:
     return np.where(step <= max_gap_min, step, 0.0) / 60.0
 
 
+def verdict_codes(verdict: np.ndarray) -> np.ndarray:
+    """The position of each verdict in :data:`advisor.vocabulary.VERDICTS` (-1 for anything else),
+    by hashing (an object array compared once per verdict would be slower)."""
+    return pd.Categorical(np.asarray(verdict, dtype=object), categories=list(VERDICTS)).codes.astype(np.int64)
+
+
 def hours_by(verdict: np.ndarray, hours: np.ndarray, keys) -> pd.DataFrame:
     """Hours per verdict (columns, every verdict) for each distinct value of ``keys`` (rows, sorted)."""
     unique_keys, key_code = np.unique(np.asarray(keys), return_inverse=True)
-    verdict_code = np.full(len(verdict), -1)
-    for i, v in enumerate(VERDICTS):
-        verdict_code[np.asarray(verdict) == v] = i
+    verdict_code = verdict_codes(verdict)
     ok = verdict_code >= 0
     sums = np.bincount(
         key_code.ravel()[ok] * len(VERDICTS) + verdict_code[ok],

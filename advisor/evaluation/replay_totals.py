@@ -32,6 +32,7 @@ from advisor.evaluation.replay import (
     rule_set_change_masks,
     rule_set_changes,
     score_attempts,
+    verdict_codes,
     weather_masks,
     weather_summary,
 )
@@ -46,12 +47,6 @@ __all__ = ["NS_PER_HOUR", "ReplayTotals"]
 
 NS_PER_HOUR = 3_600_000_000_000
 _NV = len(VERDICTS)
-
-
-def verdict_codes(verdict: np.ndarray) -> np.ndarray:
-    """The position of each verdict in :data:`advisor.vocabulary.VERDICTS` (-1 for anything else),
-    by hashing (an object array compared once per verdict would be slower)."""
-    return pd.Categorical(np.asarray(verdict, dtype=object), categories=list(VERDICTS)).codes.astype(np.int64)
 
 
 class _Sums:
@@ -205,19 +200,7 @@ class ReplayTotals:
     # ---------------------------------------------------------------- results
     def cadence_min(self) -> float | None:
         """The median of the rows' ``feed_cadence_min`` [min] (NaN left out), as a whole replay takes it."""
-        if not self.cadences:
-            return None
-        values = sorted(self.cadences)
-        counts = np.array([self.cadences[v] for v in values])
-        cum = np.cumsum(counts)
-        total = int(cum[-1])
-
-        def kth(k: int) -> float:
-            return values[int(np.searchsorted(cum, k + 1))]
-
-        if total % 2:
-            return float(kth(total // 2))
-        return float(np.mean(np.array([kth(total // 2 - 1), kth(total // 2)])))
+        return median_of_counts(self.cadences)
 
     def measured_gap_limit_min(self) -> float:
         """The gap limit [min] the whole replay's cadence gives."""

@@ -91,20 +91,21 @@ def count_values(counts: dict, values: np.ndarray) -> None:
         counts[value] = counts.get(value, 0) + count
 
 
-def median_of_counts(counts: dict[int, int]) -> float | None:
-    """The median of a multiset of integers given as value → count, as ``np.median`` computes it."""
+def median_of_counts(counts: dict) -> float | None:
+    """The median of a multiset of numbers given as value → count, as ``np.median`` computes it
+    (the mean of the two middle values for an even count); None for no values."""
     if not counts:
         return None
-    values = np.array(sorted(counts), dtype=np.int64)
+    values = np.array(sorted(counts))
     cum = np.cumsum([counts[v] for v in values.tolist()])
     total = int(cum[-1])
 
-    def kth(k: int) -> int:
-        return int(values[np.searchsorted(cum, k + 1)])
+    def kth(k: int):
+        return values[np.searchsorted(cum, k + 1)]
 
     if total % 2:
         return float(kth(total // 2))
-    return float(np.mean(np.array([kth(total // 2 - 1), kth(total // 2)], dtype=np.int64)))
+    return float(np.mean(np.array([kth(total // 2 - 1), kth(total // 2)])))
 
 
 def _context_rows(frame: pd.DataFrame, layout: FeedLayout, cadence_min: float | None) -> int:
