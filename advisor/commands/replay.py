@@ -11,9 +11,9 @@ import argparse
 import json
 import sys
 from collections.abc import Iterator
-from contextlib import AbstractContextManager
+from contextlib import contextmanager
 from pathlib import Path
-from typing import Literal, TextIO
+from typing import TextIO
 
 import pandas as pd
 
@@ -185,17 +185,19 @@ class _Run:
         self.archive: ArchiveReader | None = None
 
     def totals(self, csv_path: str | None) -> ReplayTotals:
-        gap_limit = None
-        for _ in range(5):  # a damaged cache entry, a cadence guess, a whole read, a gap-limit guess
-            totals = ReplayTotals(self.rule_sets, self.inputs.site, self.attempts, gap_limit)
-            with _CsvRows(csv_path) as csv_rows:
-                again = self._pass(totals, csv_rows.write if csv_path else None)
+        with _csv_file(csv_path) as fh:
+            csv_rows = None if fh is None else _CsvRows(fh)
+            gap_limit = None
+            for _ in range(5):  # a damaged cache entry, a cadence guess, a whole read, a gap-limit guess
+                totals = ReplayTotals(self.rule_sets, self.inputs.site, self.attempts, gap_limit)
+                if csv_rows is not None:
+                    csv_rows.restart()
+                again = self._pass(totals, None if csv_rows is None else csv_rows.write)
                 if not again and totals.rows == 0:
                     raise self._no_rows()
                 if not again and totals.consistent():
                     return totals
-                csv_rows.discard()
-            gap_limit = totals.measured_gap_limit_min()
+                gap_limit = totals.measured_gap_limit_min()
         raise AssertionError("the replay's cadence did not settle")  # pragma: no cover
 
     def _no_rows(self) -> UsageError:
@@ -225,6 +227,7 @@ class _Run:
         self.archive = reader
         writer = featurecache.Writer(self.key) if self.use_cache else None
         progress = _Progress(self.inputs.feed_path, reader)
+        keep = False  # publish the cache entry only when these are the replay's features
         try:
             chunks: Iterator[pd.DataFrame] = feature_chunks(
                 self._frames(reader),
@@ -237,29 +240,21 @@ class _Run:
             if writer is not None:
                 chunks = _stored_as_they_pass(chunks, writer)
             decide_chunks(chunks, self.scenario, self.rule_sets, totals, write_rows)
+            measured = reader.measured_cadence_min()
+            if measured != reader.cadence_min:  # the first part's cadence was not the file's
+                self.feed_cadence_min = measured
+                return True
+            keep = totals.rows > 0
+            return False
         except NeedsWholeRead:
-            if writer is not None:
-                writer.abort()
             self.whole_read = True
             return True
-        except BaseException:
-            if writer is not None:
-                writer.abort()
-            raise
         finally:
             progress.stop()
-        measured = reader.measured_cadence_min()
-        if measured != reader.cadence_min:
-            self.feed_cadence_min = measured
-            if writer is not None:
-                writer.abort()
-            return True
-        if writer is not None:
-            if totals.rows:
+            if writer is not None and keep:
                 writer.commit()
-            else:
+            elif writer is not None:
                 writer.abort()
-        return False
 
     def _frames(self, reader: ArchiveReader) -> Iterator[pd.DataFrame]:
         """The archive's canonical parts, the first one checked against the computed sun."""
@@ -277,24 +272,30 @@ def _stored_as_they_pass(chunks: Iterator[pd.DataFrame], writer) -> Iterator[pd.
         yield chunk
 
 
+@contextmanager
+def _csv_file(path: str | None) -> Iterator[TextIO | None]:
+    """``replay --csv``: the file, published whole when the replay ends (None without --csv)."""
+    if path is None:
+        yield None
+        return
+    try:
+        with atomic_writer(path) as fh:
+            yield fh
+    except OSError as exc:  # opening, writing or publishing it
+        raise UsageError(f"cannot write {path}: {exc.strerror}", field="--csv") from None
+
+
 class _CsvRows:
-    """``replay --csv``: one row per step, written as the slices pass, published at the end."""
+    """One row per step, written as the slices are decided; a pass run again starts the file over."""
 
-    def __init__(self, path: str | None) -> None:
-        self.path = path
-        self.fh: TextIO | None = None
+    def __init__(self, fh: TextIO) -> None:
+        self.fh = fh
         self.header = True
-        self._writer: AbstractContextManager[TextIO] | None = None
-        self._discard = False
 
-    def __enter__(self) -> _CsvRows:
-        if self.path is not None:
-            self._writer = atomic_writer(self.path)
-            try:
-                self.fh = self._writer.__enter__()
-            except OSError as exc:
-                raise UsageError(f"cannot write {self.path}: {exc.strerror}", field="--csv") from None
-        return self
+    def restart(self) -> None:
+        self.fh.seek(0)
+        self.fh.truncate()
+        self.header = True
 
     def write(self, decisions) -> None:
         base = decisions[0]
@@ -304,29 +305,8 @@ class _CsvRows:
             Replayed(times, base.verdict, base.rule_eval, base),
             None if other is None else Replayed(times, other.verdict, other.rule_eval, other),
         )
-        assert self.fh is not None
         table.to_csv(self.fh, index=False, header=self.header, lineterminator="\n")
         self.header = False
-
-    def discard(self) -> None:
-        self._discard = True
-
-    def __exit__(self, kind, value, tb) -> Literal[False]:
-        if self._writer is None:
-            return False
-        if kind is None and self._discard:
-            kind, value = _Discarded, _Discarded()
-        try:
-            self._writer.__exit__(kind, value, tb)
-        except _Discarded:
-            return False
-        except OSError as exc:
-            raise UsageError(f"cannot write {self.path}: {exc.strerror}", field="--csv") from None
-        return False
-
-
-class _Discarded(Exception):
-    """Thrown into the CSV writer so that it removes what it wrote (the pass is run again)."""
 
 
 class _Progress:

@@ -47,7 +47,7 @@ import numpy as np
 import pandas as pd
 
 from advisor.errors import FeedError
-from advisor.io.feed import Feed, canonical_frame, read_feed
+from advisor.io.feed import Feed, FeedQuality, canonical_frame, read_feed
 from advisor.io.feedfile import (
     ANY_SIZE,
     BLOCK_BYTES,
@@ -335,8 +335,6 @@ class ArchiveReader:
 
     def feed_of(self, frame: pd.DataFrame) -> Feed:
         """A :class:`Feed` view of one part (for checks that take a feed, e.g. the time-zone check)."""
-        from advisor.io.feed import FeedQuality
-
         quality = FeedQuality(
             n_rows=len(frame),
             n_duplicates=0,
