@@ -283,16 +283,14 @@ class ArchiveReader:
 
     def _parts(self, tables: Iterator[pd.DataFrame], first_line: int) -> Iterator[pd.DataFrame]:
         carry: pd.DataFrame | None = None  # raw rows of the part before that the next one needs
-        carry_last_ns: int | None = None
         line = first_line
         for table in tables:
             if len(table) == 0:
                 continue
             n_carry = 0 if carry is None else len(carry)
             work = table if carry is None else pd.concat([carry, table], ignore_index=True)
-            cadence = self.cadence_min
             try:
-                feed = canonical_frame(work, self.layout, self.source, line - n_carry, cadence_min=cadence)
+                feed = canonical_frame(work, self.layout, self.source, line - n_carry, cadence_min=self.cadence_min)
             except FeedError:
                 if self._size > MAX_FULL_READ_BYTES:
                     raise  # the part's own message: the file is too big to be read whole
@@ -300,9 +298,6 @@ class ArchiveReader:
             frame, quality = feed.frame, feed.quality
             if quality.n_duplicates or quality.n_out_of_order or len(frame) != len(work):
                 raise NeedsWholeRead(f"{self.source}: rows out of time order or repeated near line {line}")
-            t = frame["time"].to_numpy(dtype="datetime64[ns]").view(np.int64)
-            if carry_last_ns is not None and n_carry and t[n_carry - 1] != carry_last_ns:
-                raise NeedsWholeRead(f"{self.source}: parts do not join near line {line}")
             if self.cadence_min is None:
                 self.cadence_min = quality.cadence_min
             self._count_steps(frame, max(0, n_carry - 1))
@@ -310,7 +305,6 @@ class ArchiveReader:
             self._note(part)
             keep = _context_rows(frame, self.layout, self.cadence_min)
             carry = work.iloc[len(work) - keep :].reset_index(drop=True)
-            carry_last_ns = int(t[-1])
             line += len(table)
             yield part
         if carry is None:  # not one row: the whole read says why (no data rows, a line in progress)
